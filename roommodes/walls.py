@@ -1,0 +1,168 @@
+"""How an absorption coefficient becomes wall behaviour.
+
+Room files give each surface a random-incidence (diffuse-field) energy absorption
+coefficient ``alpha``, the number handbook tables list. The solvers need a wall
+*impedance*. roommodes models every surface as locally reacting with a real
+normalised specific impedance ``zeta = Z / (rho c)`` chosen so that its
+random-incidence absorption equals ``alpha``, that is, it inverts London's (1950)
+statistical-absorption formula. From ``zeta`` follow, consistently:
+
+* the normalised admittance ``beta = 1 / zeta`` (modal damping, :mod:`roommodes.modes`);
+* the plane-wave pressure reflection factor ``R(theta) = (zeta cos(theta) - 1) /
+  (zeta cos(theta) + 1)`` (image sources, :mod:`roommodes.solvers.images`);
+* the normal-incidence absorption ``4 zeta / (zeta + 1)^2``.
+
+A real impedance can absorb at most ``ALPHA_MAX = 0.9512`` of diffuse sound (at
+``zeta = 1.567``); larger coefficients are clipped there with a warning.
+
+References
+----------
+.. [1] A. London, "The determination of reverberant sound absorption coefficients
+   from acoustic impedance measurements", J. Acoust. Soc. Am. 22(2):263-269, 1950.
+.. [2] H. Kuttruff, Room Acoustics, 5th ed., Spon, 2009, sec. 2.5 (absorption of
+   a locally reacting wall at random incidence, the "Paris formula").
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.optimize import brentq
+
+__all__ = [
+    "ALPHA_MAX",
+    "ZETA_AT_ALPHA_MAX",
+    "random_incidence_absorption",
+    "impedance_from_absorption",
+    "admittance_from_absorption",
+    "normal_incidence_absorption",
+    "reflection_factor",
+]
+
+
+def random_incidence_absorption(zeta):
+    """Random-incidence absorption of a locally reacting wall of real impedance.
+
+    Parameters
+    ----------
+    zeta : float or array_like
+        Real normalised specific impedance Z / (rho c), > 0. ``np.inf`` is a rigid wall.
+
+    Returns
+    -------
+    alpha : ndarray
+        Diffuse-field energy absorption coefficient, 0 <= alpha <= 0.9512.
+
+    Notes
+    -----
+    Integrating the oblique-incidence absorption ``4 zeta cos(t) / (zeta cos(t) + 1)^2``
+    over ``sin(2 t) dt`` from 0 to pi/2 gives London's closed form
+
+    .. math:: \\alpha = \\frac{8}{\\zeta}\\left[1 + \\frac{1}{1+\\zeta}
+              - \\frac{2}{\\zeta}\\ln(1+\\zeta)\\right].
+
+    For large ``zeta`` this tends to ``8 / zeta`` (the small-absorption shortcut).
+    """
+    z = np.asarray(zeta, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        a = 8.0 / z * (1.0 + 1.0 / (1.0 + z) - 2.0 / z * np.log1p(z))
+        # For very large zeta the bracket loses digits to cancellation; there the
+        # expansion 8/z + (8 - 16 ln z)/z^2 is exact to O(ln z / z^3).
+        big = z > 1e6
+        a = np.where(big, 8.0 / z - (16.0 * np.log(z) - 8.0) / z**2, a)
+    return np.where(np.isinf(z), 0.0, a)
+
+
+def _bracket_max():
+    # maximum of the London formula: d alpha / d zeta = 0
+    from scipy.optimize import minimize_scalar
+
+    res = minimize_scalar(
+        lambda z: -float(random_incidence_absorption(z)), bounds=(0.5, 5.0), method="bounded",
+        options={"xatol": 1e-12},
+    )
+    return float(res.x), float(-res.fun)
+
+
+ZETA_AT_ALPHA_MAX, ALPHA_MAX = _bracket_max()
+
+
+def impedance_from_absorption(alpha):
+    """Real normalised impedance whose random-incidence absorption is ``alpha``.
+
+    Parameters
+    ----------
+    alpha : float or array_like
+        Random-incidence energy absorption coefficient, 0 <= alpha < 1. Values above
+        :data:`ALPHA_MAX` are clipped to it (a real impedance absorbs no more).
+
+    Returns
+    -------
+    zeta : ndarray
+        Normalised impedance on the stiff branch ``zeta >= 1.567`` (``inf`` for alpha = 0).
+
+    Notes
+    -----
+    Solved with Brent's method on the monotone branch of London's formula
+    (see :func:`random_incidence_absorption`).
+    """
+    a = np.asarray(alpha, dtype=float)
+    flat = np.clip(a.ravel(), 0.0, ALPHA_MAX)
+    out = np.empty_like(flat)
+    for i, ai in enumerate(flat):
+        if ai <= 0.0:
+            out[i] = np.inf
+        elif ai >= ALPHA_MAX:
+            out[i] = ZETA_AT_ALPHA_MAX
+        else:
+            hi = max(16.0 / ai, 2 * ZETA_AT_ALPHA_MAX)
+            out[i] = brentq(
+                lambda z: float(random_incidence_absorption(z)) - ai,
+                ZETA_AT_ALPHA_MAX, hi, xtol=1e-12, rtol=1e-13,
+            )
+    return out.reshape(a.shape)
+
+
+def admittance_from_absorption(alpha):
+    """Real normalised admittance ``beta = 1 / zeta`` for an absorption coefficient.
+
+    Parameters
+    ----------
+    alpha : float or array_like
+        Random-incidence absorption coefficient, 0 <= alpha < 1.
+
+    Returns
+    -------
+    beta : ndarray
+        Normalised specific admittance rho c / Z (0 for a rigid wall).
+    """
+    return 1.0 / impedance_from_absorption(alpha)
+
+
+def normal_incidence_absorption(zeta):
+    """Normal-incidence absorption ``4 zeta / (zeta + 1)^2`` of a real impedance."""
+    z = np.asarray(zeta, dtype=float)
+    with np.errstate(invalid="ignore"):
+        a = 4.0 * z / (z + 1.0) ** 2
+    return np.where(np.isinf(z), 0.0, a)
+
+
+def reflection_factor(zeta, cos_theta):
+    """Plane-wave pressure reflection factor of a locally reacting wall.
+
+    Parameters
+    ----------
+    zeta : float or array_like
+        Real normalised impedance.
+    cos_theta : float or array_like
+        Cosine of the angle of incidence measured from the wall normal, 0..1.
+
+    Returns
+    -------
+    R : ndarray
+        ``(zeta cos(theta) - 1) / (zeta cos(theta) + 1)``, real, in (-1, 1].
+    """
+    z = np.asarray(zeta, dtype=float)
+    c = np.asarray(cos_theta, dtype=float)
+    with np.errstate(invalid="ignore"):
+        r = (z * c - 1.0) / (z * c + 1.0)
+    return np.where(np.isinf(z), 1.0, r)
