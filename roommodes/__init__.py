@@ -1,2 +1,49 @@
-"""roommodes: room modes and loudspeaker placement in small rectangular rooms."""
+"""roommodes: room modes and loudspeaker placement in small rectangular rooms.
+
+The public API, re-exported here, is what the command-line tool uses:
+
+>>> import roommodes
+>>> room = roommodes.load_room(roommodes.demo_room_path())
+>>> pred = roommodes.predict(room)
+>>> [c.name for c in pred.channels]
+['left', 'right']
+"""
+
 __version__ = "0.1.0"
+
+from .modes import ModeSet, room_modes
+from .placement import PRESETS, preset_layout
+from .predict import Prediction, predict, response_features, room_schroeder_frequency
+from .response import Response, log_frequencies, smooth_fractional_octave
+from .room import WALLS, Layout, Room, Speaker, Surface, speed_of_sound
+from .roomfile import RoomFileError, demo_room_path, example_rooms, load_room, room_to_toml
+from .solvers import transfer_function
+from .summary import room_summary
+
+__all__ = [
+    "__version__",
+    "WALLS",
+    "PRESETS",
+    "Layout",
+    "ModeSet",
+    "Prediction",
+    "Response",
+    "Room",
+    "RoomFileError",
+    "Speaker",
+    "Surface",
+    "demo_room_path",
+    "example_rooms",
+    "load_room",
+    "log_frequencies",
+    "predict",
+    "preset_layout",
+    "response_features",
+    "room_modes",
+    "room_schroeder_frequency",
+    "room_summary",
+    "room_to_toml",
+    "smooth_fractional_octave",
+    "speed_of_sound",
+    "transfer_function",
+]

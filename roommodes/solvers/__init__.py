@@ -1,0 +1,85 @@
+"""Solvers for the low-frequency transfer from a loudspeaker to a listener.
+
+Both solvers share one signature and one normalisation (``H = 4 pi G``: pressure
+relative to the free-field pressure of the same source at 1 m), so they can be swapped
+and compared:
+
+* ``"modal"``: the modal sum of :mod:`roommodes.solvers.modal` (default; accurate and
+  fast at low frequency);
+* ``"image"``: the image-source sum of :mod:`roommodes.solvers.images`.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .modal import modal_transfer
+
+__all__ = ["transfer_function", "METHODS"]
+
+METHODS = ("modal", "image")
+
+
+def _check_points(room, name, pts):
+    p = np.atleast_2d(np.asarray(pts, dtype=float))
+    if p.ndim != 2 or p.shape[1] != 3 or not np.all(np.isfinite(p)):
+        raise ValueError(f"{name} must be finite (N, 3) positions in metres, got shape {p.shape}")
+    bad = ~room.contains(p)
+    if np.any(bad):
+        i = int(np.argmax(bad))
+        lx, ly, lz = room.size_m
+        raise ValueError(
+            f"{name}[{i}] = ({p[i, 0]:.3g}, {p[i, 1]:.3g}, {p[i, 2]:.3g}) m lies outside the room "
+            f"(0 < x < {lx:g}, 0 < y < {ly:g}, 0 < z < {lz:g} m)"
+        )
+    return p
+
+
+def transfer_function(room, sources_m, receivers_m, freq_hz, method="modal", **options):
+    """Complex transfer from point sources to receivers in ``room``.
+
+    Parameters
+    ----------
+    room : Room
+        The room (size, surfaces, air temperature).
+    sources_m : array_like, shape (N, 3)
+        Source positions, metres, inside the room.
+    receivers_m : array_like, shape (M, 3)
+        Receiver positions, metres, inside the room.
+    freq_hz : array_like, shape (F,)
+        Frequencies, Hz.
+    method : {"modal", "image"}
+        Solver.
+    **options
+        Passed to the solver (``cutoff_hz`` for the modal sum; ``tol_db``,
+        ``max_order``, ``reflection`` for image sources).
+
+    Returns
+    -------
+    H : ndarray, complex, shape (N, M, F)
+        Pressure relative to the free-field pressure the same source gives at 1 m;
+        ``20 log10 |H|`` is ``level_db``. The loudspeaker's own response is *not*
+        included (see :func:`roommodes.predict`).
+
+    Examples
+    --------
+    >>> import roommodes
+    >>> room = roommodes.load_room(roommodes.demo_room_path())
+    >>> H = roommodes.transfer_function(room, [[0.5, 0.9, 1.1]], [[2.0, 1.7, 1.2]], [40.0, 50.0])
+    >>> H.shape
+    (1, 1, 2)
+    """
+    src = _check_points(room, "sources_m", sources_m)
+    rec = _check_points(room, "receivers_m", receivers_m)
+    f = np.atleast_1d(np.asarray(freq_hz, dtype=float))
+    if f.ndim != 1 or not np.all(np.isfinite(f)) or np.any(f <= 0):
+        raise ValueError("freq_hz must be a 1-D array of positive frequencies in Hz")
+    zeta = room.impedance(f)
+    if method == "modal":
+        return modal_transfer(room.size_m, zeta, src, rec, f, room.speed_of_sound, **options)
+    if method == "image":
+        from .images import image_source_transfer
+
+        h, _info = image_source_transfer(room.size_m, zeta, src, rec, f, room.speed_of_sound, **options)
+        return h
+    raise ValueError(f"method must be one of {', '.join(METHODS)}, got {method!r}")

@@ -1,0 +1,410 @@
+"""Command-line interface: parse, call one API function, print or write.
+
+Every command that computes takes ``--json`` and then prints one JSON object on stdout
+and nothing else there; messages and cautions go to stderr. Bad input gives one line on
+stderr and exit code 2.
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+import time
+from pathlib import Path
+
+import click
+import numpy as np
+
+from . import __version__
+from .roomfile import RoomFileError, demo_room_path, load_room
+
+CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
+
+MODEL_CAUTION = (
+    "Model: an idealised rectangular box with locally reacting walls and point-source speakers. "
+    "Treat predictions above the Schroeder frequency as indicative only, and check them against "
+    "a measurement before acting on them."
+)
+
+
+class UserError(click.ClickException):
+    """A problem with the user's input: one line, exit code 2."""
+
+    exit_code = 2
+
+    def show(self, file=None):
+        click.echo(f"roommodes: error: {self.format_message()}", err=True)
+
+
+def _fail(msg):
+    raise UserError(msg)
+
+
+def _echo_err(msg=""):
+    click.echo(msg, err=True)
+
+
+def _dump_json(obj):
+    click.echo(json.dumps(_jsonable(obj), indent=1, allow_nan=False))
+
+
+def _jsonable(o):
+    if isinstance(o, dict):
+        return {str(k): _jsonable(v) for k, v in o.items()}
+    if isinstance(o, (list, tuple)):
+        return [_jsonable(v) for v in o]
+    if isinstance(o, np.ndarray):
+        return _jsonable(o.tolist())
+    if isinstance(o, (np.floating, float)):
+        v = float(o)
+        return round(v, 6) if np.isfinite(v) else None
+    if isinstance(o, (np.integer,)):
+        return int(o)
+    if isinstance(o, np.bool_):
+        return bool(o)
+    return o
+
+
+def _load(path):
+    try:
+        return load_room(path)
+    except RoomFileError as exc:
+        _fail(str(exc))
+
+
+def _parse_range(text, name="--freq-range", allow_zero=False):
+    try:
+        parts = [float(v) for v in text.replace(":", ",").split(",")]
+    except ValueError:
+        parts = []
+    if len(parts) != 2 or not all(np.isfinite(parts)) or not (0 <= parts[0] if allow_zero else 0 < parts[0]) \
+            or not parts[0] < parts[1]:
+        _fail(f"{name} must be LOW,HIGH in Hz with 0 < LOW < HIGH, e.g. 15,300; got '{text}'")
+    if parts[1] > 2000:
+        _fail(f"{name}: {parts[1]:g} Hz is above 2000 Hz; roommodes models the low-frequency range")
+    return tuple(parts)
+
+
+def _check_output(path, force=False):
+    p = Path(path)
+    if not p.parent.exists():
+        _fail(f"cannot write {p}: folder {p.parent} does not exist")
+    if p.exists() and not force:
+        _fail(f"{p} already exists; choose another name or pass --force")
+    return p
+
+
+def _protect_inputs(out, *inputs):
+    for i in inputs:
+        try:
+            if Path(out).resolve() == Path(i).resolve():
+                _fail(f"refusing to write over the input file {i}; choose another output name")
+        except OSError:
+            pass
+
+
+freq_range_option = click.option(
+    "--freq-range", default="15,300", show_default=True, metavar="LOW,HIGH",
+    help="Frequency range in Hz.")
+ppo_option = click.option(
+    "--points-per-octave", type=click.IntRange(1, 384), default=48, show_default=True,
+    help="Frequency-grid density.")
+method_option = click.option(
+    "--method", type=click.Choice(["modal", "image"]), default="modal", show_default=True,
+    help="Solver: modal sum (fast, default) or image sources.")
+json_option = click.option("--json", "as_json", is_flag=True, help="Print one JSON object on stdout.")
+
+
+class _Group(click.Group):
+    """Turns input problems raised below the CLI into one line and exit code 2."""
+
+    def invoke(self, ctx):
+        try:
+            return super().invoke(ctx)
+        except (ValueError, FileExistsError) as exc:  # RoomFileError is a ValueError
+            raise UserError(str(exc)) from None
+        except OSError as exc:
+            name = f" {exc.filename}" if getattr(exc, "filename", None) else ""
+            raise UserError(f"cannot read or write{name}: {exc.strerror or exc}") from None
+
+
+@click.group(cls=_Group, context_settings=CONTEXT)
+@click.version_option(__version__, prog_name="roommodes")
+def main():
+    """Room modes and loudspeaker placement for small rectangular rooms.
+
+    Start with `roommodes demo`, then copy rooms/demo-studio.toml and edit it for your
+    room. Every command reads a room file (TOML); see docs/room-file.md.
+    """
+
+
+# ---------------------------------------------------------------------------- modes
+@main.command(context_settings=CONTEXT)
+@click.argument("room_file", type=click.Path(dir_okay=True, path_type=Path))
+@click.option("--freq-range", default="0,300", show_default=True, metavar="LOW,HIGH",
+              help="List the modes in this range, Hz.")
+@click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write a chart of the modes (PNG/SVG).")
+@click.option("--force", is_flag=True, help="Overwrite an existing plot file.")
+@json_option
+def modes(room_file, freq_range, plot_path, force, as_json):
+    """List the room's modes with decay times, and the room's summary figures.
+
+    Modes: indices (nx, ny, nz) along length, width and height, frequency, kind
+    (axial, tangential, oblique), nearest musical note, modal decay time T60 and
+    half-power bandwidth from the surfaces' absorption. Summary: volume, area, Sabine and
+    Eyring RT60 at 63/125/250 Hz, Schroeder frequency, and room-proportion checks.
+    """
+    from .criteria import note_name
+    from .modes import room_modes
+    from .summary import room_summary
+
+    lo, hi = _parse_range(freq_range, allow_zero=True)
+    room = _load(room_file)
+    ms = room_modes(room, hi)
+    sel = ms.freq_hz >= lo
+    summ = room_summary(room)
+    if plot_path:
+        _check_output(plot_path, force)
+    if as_json:
+        _dump_json({
+            "roommodes_version": __version__, "room": room.name, "size_m": room.size_m,
+            "modes": [
+                {"indices": ms.indices[i], "freq_hz": ms.freq_hz[i], "kind": ms.kind[i],
+                 "note": note_name(ms.freq_hz[i]), "t60_s": ms.t60_s[i],
+                 "decay_constant_per_s": ms.decay_constant[i], "bandwidth_hz": ms.bandwidth_hz[i]}
+                for i in np.flatnonzero(sel)],
+            "summary": _summary_dict(summ),
+        })
+    else:
+        click.echo(f"Room modes of '{room.name}' ({room.size_m[0]:g} x {room.size_m[1]:g} x "
+                   f"{room.size_m[2]:g} m, c = {room.speed_of_sound:.1f} m/s), {lo:g}-{hi:g} Hz")
+        click.echo(f"{'n (L,W,H)':>11}  {'freq Hz':>8}  {'kind':<10}  {'note':<10}  {'T60 s':>6}  {'B Hz':>5}")
+        for i in np.flatnonzero(sel):
+            n = "(" + ",".join(str(v) for v in ms.indices[i]) + ")"
+            click.echo(f"{n:>11}  {ms.freq_hz[i]:8.1f}  {ms.kind[i]:<10}  {note_name(ms.freq_hz[i]):<10}  "
+                       f"{ms.t60_s[i]:6.2f}  {ms.bandwidth_hz[i]:5.1f}")
+        click.echo(f"{int(sel.sum())} modes: {int(np.sum(sel & (ms.order == 1)))} axial, "
+                   f"{int(np.sum(sel & (ms.order == 2)))} tangential, {int(np.sum(sel & (ms.order == 3)))} oblique")
+        click.echo("")
+        _print_summary(summ)
+    if plot_path:
+        from .plots import plot_modes
+
+        plot_modes(ms, hi, title=f"Room modes: {room.name}", path=plot_path)
+        _echo_err(f"wrote {plot_path}")
+
+
+def _summary_dict(s):
+    return {
+        "volume_m3": s.volume_m3, "surface_area_m2": s.total_area_m2, "speed_of_sound_m_s": s.speed_of_sound,
+        "bands_hz": s.bands_hz, "sabine_rt60_s": s.sabine_rt60_s, "eyring_rt60_s": s.eyring_rt60_s,
+        "schroeder_hz": s.schroeder_hz,
+        "checks": [{"name": c.name, "passed": c.passed, "reason": c.reason} for c in s.checks],
+        "extrapolated_absorption": [{"surface": n, "bands_hz": b} for n, b in s.extrapolated],
+    }
+
+
+def _print_summary(s):
+    click.echo(f"Volume {s.volume_m3:.1f} m3, surface area {s.total_area_m2:.1f} m2")
+    click.echo("Reverberation time (s)   " + "  ".join(f"{b:>6g} Hz" for b in s.bands_hz))
+    click.echo("  Sabine                 " + "  ".join(f"{t:9.2f}" for t in s.sabine_rt60_s))
+    click.echo("  Eyring                 " + "  ".join(f"{t:9.2f}" for t in s.eyring_rt60_s))
+    click.echo(f"Schroeder frequency {s.schroeder_hz:.0f} Hz (from the Sabine time at 125 Hz): "
+               "above it the room behaves statistically and the modal picture is indicative only")
+    click.echo("Room proportions:")
+    for c in s.checks:
+        click.echo(f"  [{'pass' if c.passed else 'FAIL'}] {c.name}: {c.reason}")
+    if s.extrapolated:
+        names = ", ".join(n for n, _ in s.extrapolated)
+        click.echo(f"Note: absorption below 125 Hz is extrapolated for {names} (handbook tables stop at 125 Hz).")
+
+
+# ---------------------------------------------------------------------------- predict
+def _layouts_for(room, layout):
+    from .placement import PRESETS, preset_layout
+
+    names = (["file"] if room.layout is not None else []) + list(PRESETS) if layout == "all" else [layout]
+    out = []
+    for name in names:
+        if name == "file":
+            if room.layout is None:
+                _fail(f"{room.source}: the room file has no [speakers] and [seat]; add them or use "
+                      "--layout corner|wall|mid-room|desk")
+            out.append(room.layout)
+        else:
+            try:
+                out.append(preset_layout(room, name))
+            except ValueError as exc:
+                _fail(str(exc))
+    return out
+
+
+def _walls_text(room, pos):
+    lx, ly, _ = room.size_m
+    x, y, z = pos
+    side = f"{y * 100:.0f} cm from the left wall" if y <= ly / 2 else f"{(ly - y) * 100:.0f} cm from the right wall"
+    return f"{x * 100:.0f} cm from the front wall, {side}, {z * 100:.0f} cm high"
+
+
+def _usable_band(layout, top_hz=200.0):
+    """Band judged by the summary figures: from max(20 Hz, the speakers' low cut) to 200 Hz."""
+    cuts = [s.lowcut_hz for s in layout.speakers if s.lowcut_hz]
+    return (max([20.0] + cuts), top_hz)
+
+
+def _band_figures(f, level, band=(20.0, 200.0)):
+    from .response import smooth_fractional_octave
+
+    sel = (f >= band[0]) & (f <= band[1])
+    sm = 10 * np.log10(smooth_fractional_octave(f, 10 ** (level / 10), 6))
+    seg = sm[sel]
+    return {"spread_db": float(seg.max() - seg.min()), "std_db": float(seg.std()),
+            "max_db": float(seg.max()), "min_db": float(seg.min())}
+
+
+@main.command(context_settings=CONTEXT)
+@click.argument("room_file", type=click.Path(path_type=Path))
+@click.option("--layout", type=click.Choice(["file", "corner", "wall", "mid-room", "desk", "all"]),
+              default="file", show_default=True,
+              help="Use the file's speaker and seat positions, a named standard placement, or compare all.")
+@freq_range_option
+@ppo_option
+@method_option
+@click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write the curves to a PNG/SVG file.")
+@click.option("--force", is_flag=True, help="Overwrite an existing plot file.")
+@click.option("--no-speaker", is_flag=True, help="Leave out the speakers' own low-frequency roll-off.")
+@json_option
+def predict(room_file, layout, freq_range, points_per_octave, method, plot_path, force, no_speaker, as_json):
+    """Predict each speaker's level at the seat, with its main peaks and dips.
+
+    Levels are in dB relative to the free-field level the same speaker gives at 1 m, so
+    0 dB means "as loud as at 1 m outdoors"; room gain shows as positive values.
+    """
+    from .modes import room_modes
+    from .predict import predict as run_predict
+    from .predict import response_features
+    from .response import log_frequencies
+
+    lo, hi = _parse_range(freq_range)
+    room = _load(room_file)
+    layouts = _layouts_for(room, layout)
+    if plot_path:
+        _check_output(plot_path, force)
+        _protect_inputs(plot_path, room_file)
+    f = log_frequencies(lo, hi, points_per_octave)
+    t0 = time.perf_counter()
+    try:
+        preds = [run_predict(room, lay, f, method=method, include_speaker=not no_speaker) for lay in layouts]
+    except ValueError as exc:
+        _fail(str(exc))
+    elapsed = time.perf_counter() - t0
+    fs = preds[0].schroeder_hz
+    if as_json:
+        lay_objs = []
+        for lay, p in zip(layouts, preds):
+            lay_objs.append({
+                "name": lay.name, "seat_m": lay.seat_m,
+                "channels": [{"name": c.name, "position_m": c.position_m, "level_db": c.level_db,
+                              "band_figures": _band_figures(f, c.level_db, _usable_band(lay))} for c in p.channels],
+                "band_hz": _usable_band(lay),
+            })
+        _dump_json({
+            "roommodes_version": __version__, "room": room.name, "method": method,
+            "frequencies_hz": f, "schroeder_hz": fs, "valid": preds[0].valid,
+            "level_reference": "dB re free-field pressure of the same source at 1 m",
+            "channels": lay_objs[0]["channels"], "layout": lay_objs[0]["name"], "seat_m": lay_objs[0]["seat_m"],
+            "layouts": lay_objs,
+        })
+    else:
+        click.echo(f"Predicted level at the seat, '{room.name}', {lo:g}-{hi:g} Hz, {method} solver "
+                   f"({elapsed:.2f} s)")
+        click.echo("Level: dB relative to the same speaker's free-field level at 1 m.")
+        for lay, p in zip(layouts, preds):
+            click.echo("")
+            click.echo(f"Layout: {lay.name}.  Seat: {_walls_text(room, lay.seat_m)}")
+            for ch in p.channels:
+                band = _usable_band(lay)
+                fig = _band_figures(f, ch.level_db, band)
+                click.echo(f"  {ch.name}: {_walls_text(room, ch.position_m)}")
+                click.echo(f"    {band[0]:g}-{band[1]:g} Hz (1/6-octave smoothed): {fig['min_db']:+.1f} to {fig['max_db']:+.1f} dB, "
+                           f"spread {fig['spread_db']:.1f} dB, std {fig['std_db']:.1f} dB")
+                if layout != "all":
+                    for ft in response_features(room, p, ch.name):
+                        click.echo(f"    {ft.kind:<4} {ft.freq_hz:6.1f} Hz {ft.level_db:+6.1f} dB "
+                                   f"({ft.prominence_db:4.1f} dB): {'; '.join(ft.causes)}")
+        click.echo("")
+        click.echo(f"Schroeder frequency {fs:.0f} Hz: results above it are indicative only.")
+        click.echo("")
+    _echo_err(MODEL_CAUTION)
+    if plot_path:
+        from .plots import plot_prediction
+
+        ms = room_modes(room, hi)
+        plot_prediction(preds, ms, title=f"{room.name}: predicted level at the seat", path=plot_path)
+        _echo_err(f"wrote {plot_path}")
+
+
+# ---------------------------------------------------------------------------- demo
+@main.command(context_settings=CONTEXT)
+@click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path), default="roommodes-demo",
+              show_default=True, help="Folder for the demo's figures and tables (created if needed).")
+def demo(out_dir):
+    """Run the whole tool on the bundled demo room and write its figures.
+
+    The demo room is an invented edit suite (rooms/demo-studio.toml). The command prints
+    the room's modes and summary, predicts the file's layout and the four standard
+    placements, and writes the figures into OUT.
+    """
+    from .modes import room_modes
+    from .placement import PRESETS, preset_layout
+    from .plots import plot_modes, plot_prediction
+    from .predict import predict as run_predict
+    from .predict import response_features
+    from .summary import room_summary
+
+    path = demo_room_path()
+    room = load_room(path)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    click.echo(f"roommodes {__version__} demo: '{room.name}' from {path}")
+    click.echo(f"Writing figures to {out_dir.resolve()}")
+    click.echo("")
+    summ = room_summary(room)
+    _print_summary(summ)
+    ms = room_modes(room, 300.0)
+    click.echo("")
+    click.echo("Lowest modes: " + ", ".join(
+        f"{ms.freq_hz[i]:.1f} Hz {tuple(int(v) for v in ms.indices[i])} {ms.kind[i]}" for i in range(6)))
+    plot_modes(ms, 300.0, title=f"Room modes: {room.name}", path=out_dir / "modes.png")
+    t0 = time.perf_counter()
+    file_pred = run_predict(room)
+    click.echo("")
+    click.echo(f"Predicted level at the seat for the file's layout ({time.perf_counter() - t0:.2f} s):")
+    for ch in file_pred.channels:
+        band = _usable_band(room.layout)
+        fig = _band_figures(file_pred.freq_hz, ch.level_db, band)
+        click.echo(f"  {ch.name}: spread {fig['spread_db']:.1f} dB over {band[0]:g}-{band[1]:g} Hz (1/6 octave)")
+        for ft in response_features(room, file_pred, ch.name, max_features=4):
+            click.echo(f"    {ft.kind:<4} {ft.freq_hz:6.1f} Hz {ft.level_db:+6.1f} dB: {'; '.join(ft.causes)}")
+    plot_prediction(file_pred, ms, title=f"{room.name}: predicted level at the seat",
+                    path=out_dir / "predict-file-layout.png")
+    preds = [file_pred] + [run_predict(room, preset_layout(room, n)) for n in PRESETS]
+    click.echo("")
+    band = _usable_band(room.layout)
+    click.echo(f"Standard placements compared ({band[0]:g}-{band[1]:g} Hz, 1/6-octave smoothed spread, left / right):")
+    for p in preds:
+        spreads = " / ".join(f"{_band_figures(p.freq_hz, c.level_db, band)['spread_db']:4.1f}" for c in p.channels)
+        click.echo(f"  {p.layout_name:<9} {spreads} dB")
+    plot_prediction(preds, ms, title=f"{room.name}: layouts compared", path=out_dir / "predict-layouts.png")
+    click.echo("")
+    click.echo(f"Figures: {', '.join(sorted(p.name for p in out_dir.glob('*.png')))}")
+    click.echo(f"Next: copy {path.name} from rooms/, edit it for your room, and run "
+               "`roommodes predict YOUR-ROOM.toml --plot curves.png`.")
+    _echo_err(MODEL_CAUTION)
+
+
+def run():  # pragma: no cover - console entry point used by python -m
+    main()
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

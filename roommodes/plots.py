@@ -1,0 +1,136 @@
+"""Figures, drawn with matplotlib's object-oriented API (no pyplot global state).
+
+matplotlib is imported only when a figure is made, so ``import roommodes`` stays light.
+Every figure shares one style: a colour-blind-safe palette (Okabe & Ito, 2008, "Color
+Universal Design"), labelled axes with units, log-frequency axes ticked at
+20/50/100/200 Hz, and the region above the Schroeder frequency shaded as "indicative
+only".
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+import numpy as np
+
+__all__ = ["PALETTE", "new_figure", "save_figure", "plot_prediction", "plot_modes"]
+
+#: Okabe-Ito colour-blind-safe palette (black first for references).
+PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#F0E442", "#000000")
+_FREQ_TICKS = (20, 30, 50, 70, 100, 150, 200, 300, 500)
+
+
+def new_figure(width_in=8.0, height_in=4.5, nrows=1, ncols=1, **kw):
+    """A figure and its axes, headless (Agg canvas)."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(width_in, height_in), layout="constrained")
+    FigureCanvasAgg(fig)
+    axes = fig.subplots(nrows, ncols, **kw)
+    return fig, axes
+
+
+def save_figure(fig, path, overwrite=True):
+    """Save ``fig`` to ``path`` atomically (format from the extension: png, svg, pdf)."""
+    p = Path(path)
+    fmt = p.suffix.lstrip(".").lower() or "png"
+    tmp = p.with_name(f".{p.name}.tmp-{os.getpid()}")
+    try:
+        fig.savefig(tmp, format=fmt, dpi=130)
+        os.replace(tmp, p)
+    finally:
+        if tmp.exists():
+            tmp.unlink()
+    return p
+
+
+def style_frequency_axis(ax, fmin, fmax):
+    """Log-frequency x axis with readable ticks in Hz."""
+    from matplotlib.ticker import FixedLocator, NullFormatter
+
+    ax.set_xscale("log")
+    ax.set_xlim(fmin, fmax)
+    ticks = [t for t in _FREQ_TICKS if fmin <= t <= fmax]
+    ax.xaxis.set_major_locator(FixedLocator(ticks))
+    ax.set_xticklabels([f"{t:g}" for t in ticks])
+    ax.xaxis.set_minor_formatter(NullFormatter())
+    ax.set_xlabel("Frequency (Hz)")
+    ax.grid(True, which="major", alpha=0.35)
+    ax.grid(True, which="minor", alpha=0.12)
+
+
+def shade_invalid(ax, schroeder_hz, fmax):
+    """Shade the band above the Schroeder frequency."""
+    if schroeder_hz < fmax:
+        ax.axvspan(schroeder_hz, fmax, color="0.85", alpha=0.6, lw=0, zorder=0)
+        ax.text(schroeder_hz * 1.02, 0.90, f"above the Schroeder\nfrequency ({schroeder_hz:.0f} Hz):\nindicative only",
+                transform=ax.get_xaxis_transform(), fontsize=7.5, color="0.3", va="top")
+
+
+def mark_modes(ax, modes, fmin, fmax, max_order=2):
+    """Short ticks along the top edge at mode frequencies (axial long, tangential short)."""
+    trans = ax.get_xaxis_transform()
+    for f, order in zip(modes.freq_hz, modes.order):
+        if fmin <= f <= fmax and 1 <= order <= max_order:
+            top = 1.0
+            ax.plot([f, f], [top - (0.06 if order == 1 else 0.03), top], color="0.25", lw=0.8,
+                    transform=trans, clip_on=False)
+
+
+def plot_prediction(predictions, modes=None, title=None, path=None):
+    """Predicted level at the seat for one or more predictions (layouts).
+
+    Parameters
+    ----------
+    predictions : Prediction or list of Prediction
+        All channels of each are drawn; several predictions are told apart by colour
+        (layout) and line style (channel).
+    modes : ModeSet, optional
+        Drawn as ticks along the top (long: axial, short: tangential).
+    """
+    preds = predictions if isinstance(predictions, (list, tuple)) else [predictions]
+    fig, ax = new_figure()
+    f = preds[0].freq_hz
+    styles = ("-", "--", ":", "-.")
+    for i, p in enumerate(preds):
+        for j, ch in enumerate(p.channels):
+            if len(preds) == 1:
+                color, ls, label = PALETTE[j % len(PALETTE)], "-", ch.name
+            else:
+                color, ls, label = PALETTE[i % len(PALETTE)], styles[j % 4], f"{p.layout_name}: {ch.name}"
+            ax.plot(p.freq_hz, ch.level_db, color=color, ls=ls, lw=1.4, label=label)
+    shade_invalid(ax, preds[0].schroeder_hz, f[-1])
+    if modes is not None:
+        mark_modes(ax, modes, f[0], f[-1])
+    style_frequency_axis(ax, f[0], f[-1])
+    ax.set_ylabel("Level at seat (dB re free field at 1 m)")
+    lv = np.concatenate([c.level_db for p in preds for c in p.channels])
+    lo, hi = np.percentile(lv, 1), lv.max()
+    ax.set_ylim(np.floor(lo / 5) * 5 - 5, np.ceil(hi / 5) * 5 + 5)
+    if modes is not None:
+        ax.plot([], [], color="0.25", lw=0.8, label="| room mode (tick at top;\n  long axial, short tangential)")
+    ax.legend(fontsize=8, ncol=2 if len(preds) > 1 else 1, loc="lower center")
+    ax.set_title(title or "Predicted level at the seat", fontsize=11, pad=10)
+    if path is not None:
+        save_figure(fig, path)
+    return fig
+
+
+def plot_modes(modes, fmax, title=None, path=None):
+    """Mode frequencies as a stem chart by kind, with each mode's T60."""
+    fig, ax = new_figure(8.0, 3.6)
+    names = ("axial", "tangential", "oblique")
+    for order, name in zip((1, 2, 3), names):
+        sel = (modes.order == order) & (modes.freq_hz <= fmax)
+        if sel.any():
+            ax.vlines(modes.freq_hz[sel], 0, modes.t60_s[sel], color=PALETTE[order - 1], lw=1.6, label=name)
+    style_frequency_axis(ax, max(15.0, modes.freq_hz.min() * 0.8), fmax)
+    ax.set_ylabel("Modal decay time T60 (s)")
+    ax.set_ylim(bottom=0)
+    ax.legend(fontsize=8)
+    ax.set_title(title or "Room modes", fontsize=11)
+    if path is not None:
+        save_figure(fig, path)
+    return fig

@@ -1,0 +1,183 @@
+"""Predicted low-frequency response of each loudspeaker at the seat.
+
+:func:`predict` combines the room transfer (:func:`roommodes.transfer_function`) with
+each speaker's own low-frequency response (:mod:`roommodes.speaker`), flags the
+frequencies above the Schroeder frequency (where a rectangular-box model is indicative
+only), and :func:`response_features` lists the main peaks and dips with the modes or
+boundaries responsible.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.signal import find_peaks
+
+from .criteria import sabine_rt60, schroeder_frequency
+from .modes import mode_shapes, room_modes
+from .response import level_db, log_frequencies, smooth_fractional_octave
+from .room import WALL_AXIS, WALL_FAR, WALLS
+from .solvers import transfer_function
+from .speaker import speaker_response
+
+__all__ = ["Channel", "Prediction", "predict", "room_schroeder_frequency", "response_features",
+           "boundary_notches", "Feature"]
+
+DEFAULT_RANGE_HZ = (15.0, 300.0)
+DEFAULT_POINTS_PER_OCTAVE = 48
+
+
+@dataclass(frozen=True)
+class Channel:
+    """One speaker's predicted response at the seat."""
+
+    name: str
+    position_m: tuple
+    transfer: np.ndarray
+    level_db: np.ndarray
+
+
+@dataclass(frozen=True)
+class Prediction:
+    """Predicted responses of every speaker of a layout at its seat.
+
+    Attributes
+    ----------
+    freq_hz : ndarray (F,)
+    channels : tuple of Channel
+    seat_m : tuple
+    layout_name : str
+    method : str
+    schroeder_hz : float
+        Above it, the prediction is indicative only.
+    valid : ndarray of bool (F,)
+        ``freq_hz <= schroeder_hz``.
+    """
+
+    freq_hz: np.ndarray
+    channels: tuple
+    seat_m: tuple
+    layout_name: str
+    method: str
+    schroeder_hz: float
+    valid: np.ndarray
+
+
+def room_schroeder_frequency(room, band_hz=125.0):
+    """Schroeder frequency (Hz) from the Sabine reverberation time at ``band_hz``.
+
+    ``f_S = 2000 sqrt(T / V)`` (Schroeder 1996, J. Acoust. Soc. Am. 99(5):3240, eq. 1).
+    """
+    t = sabine_rt60(room.volume_m3, room.surface_areas_m2, room.absorption([band_hz])[:, 0],
+                    speed_of_sound=room.speed_of_sound)
+    return float(schroeder_frequency(float(np.atleast_1d(t)[0]), room.volume_m3))
+
+
+def predict(room, layout=None, freq_hz=None, method="modal", include_speaker=True, **options):
+    """Predict each speaker's level at the seat.
+
+    Parameters
+    ----------
+    room : Room
+    layout : Layout, optional
+        Default: the room file's own layout.
+    freq_hz : array_like, optional
+        Default: 15-300 Hz, 48 points per octave.
+    method : {"modal", "image"}
+    include_speaker : bool
+        Apply each speaker's own low-frequency response.
+
+    Returns
+    -------
+    Prediction
+    """
+    layout = layout if layout is not None else room.layout
+    if layout is None:
+        raise ValueError(f"{room.source or room.name}: the room file has no [speakers] and [seat]; "
+                         "add them or choose a layout (corner, wall, mid-room, desk)")
+    f = log_frequencies(*DEFAULT_RANGE_HZ, DEFAULT_POINTS_PER_OCTAVE) if freq_hz is None else np.asarray(freq_hz, float)
+    h = transfer_function(room, layout.source_positions_m, [layout.seat_m], f, method=method, **options)[:, 0, :]
+    channels = []
+    for sp, hs in zip(layout.speakers, h):
+        if include_speaker:
+            hs = hs * speaker_response(sp, f)
+        channels.append(Channel(sp.name, tuple(sp.position_m), hs, level_db(hs)))
+    fs = room_schroeder_frequency(room)
+    return Prediction(f, tuple(channels), tuple(layout.seat_m), layout.name, method, fs, f <= fs)
+
+
+def boundary_notches(room, position_m):
+    """First boundary-interference notch ``c / (4 d)`` for each of the six surfaces.
+
+    Returns a list of ``(wall, distance_m, notch_hz)`` sorted by distance. The rule is
+    the quarter-wavelength cancellation of a source and its image in a rigid plane
+    (common practice).
+    """
+    p = np.asarray(position_m, dtype=float)
+    c = room.speed_of_sound
+    out = []
+    for w, axis, far in zip(WALLS, WALL_AXIS, WALL_FAR):
+        d = room.size_m[axis] - p[axis] if far else p[axis]
+        out.append((w, float(d), c / (4.0 * d)))
+    return sorted(out, key=lambda t: t[1])
+
+
+@dataclass(frozen=True)
+class Feature:
+    """A peak or dip of a predicted curve and what causes it."""
+
+    kind: str  # "peak" or "dip"
+    freq_hz: float
+    level_db: float
+    prominence_db: float
+    causes: tuple  # of short strings
+
+
+def response_features(room, prediction, channel, max_features=8, smoothing=12, min_prominence_db=3.0):
+    """Main peaks and dips of one channel, with the modes or boundary responsible.
+
+    Peaks and dips are found on the 1/``smoothing``-octave power-smoothed curve inside
+    the valid band (scipy.signal.find_peaks with a prominence threshold). A peak is
+    attributed to the modes within their half-power bandwidth (or 3 %) of it, strongest
+    coupling first (|psi(speaker) psi(seat)|); a dip additionally to the speaker's
+    boundary notches ``c / 4d`` within 15 % and to modes with a node at the seat.
+    """
+    f = prediction.freq_hz
+    ch = prediction.channels[channel] if isinstance(channel, int) else next(
+        c for c in prediction.channels if c.name == channel)
+    smooth = 10 * np.log10(smooth_fractional_octave(f, 10 ** (ch.level_db / 10), smoothing))
+    sel = prediction.valid
+    fmax = float(f[sel].max()) if sel.any() else float(f.max())
+    modes = room_modes(room, fmax * 1.1)
+    psi_s = mode_shapes(modes.indices, room.size_m, [ch.position_m])[0]
+    psi_r = mode_shapes(modes.indices, room.size_m, [prediction.seat_m])[0]
+    coupling = np.abs(psi_s * psi_r)
+    notches = boundary_notches(room, ch.position_m)
+    feats = []
+    for kind, sign in (("peak", 1.0), ("dip", -1.0)):
+        idx, props = find_peaks(sign * smooth, prominence=min_prominence_db)
+        for i, prom in zip(idx, props["prominences"]):
+            if not sel[i]:
+                continue
+            fi = f[i]
+            near = np.abs(modes.freq_hz - fi) <= np.maximum(modes.bandwidth_hz, 0.03 * fi)
+            causes = []
+            order = np.argsort(-coupling * near)
+            for j in order[:3]:
+                if not near[j]:
+                    break
+                n = tuple(int(v) for v in modes.indices[j])
+                if kind == "peak" and coupling[j] > 0.1:
+                    causes.append(f"{modes.kind[j]} mode {n} at {modes.freq_hz[j]:.1f} Hz")
+                elif kind == "dip" and abs(psi_r[j]) < 0.3:
+                    causes.append(f"seat near a node of mode {n} at {modes.freq_hz[j]:.1f} Hz")
+            if kind == "dip":
+                for w, d, fn in notches[:3]:
+                    if abs(fn - fi) <= 0.15 * fi:
+                        causes.append(f"{w}-surface cancellation (speaker {d:.2f} m away, c/4d = {fn:.0f} Hz)")
+                if not causes:
+                    causes.append("cancellation between modes of opposite phase")
+            feats.append(Feature(kind, float(fi), float(ch.level_db[i]), float(prom), tuple(causes)))
+    feats.sort(key=lambda t: -t.prominence_db)
+    return sorted(feats[:max_features], key=lambda t: t.freq_hz)

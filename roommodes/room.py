@@ -1,0 +1,234 @@
+"""The room, its surfaces, and where the loudspeakers and the seat are.
+
+Coordinates (metres) have their origin at the floor corner where the front wall (the
+wall behind the speakers) meets the left wall, as seen from the seat facing the
+speakers::
+
+        back wall (x = Lx)
+      +-------------------+
+      |                   |
+ left |       seat        | right
+ wall |                   | wall
+(y=0) |                   | (y = Ly)
+      |   L           R   |
+      +-------------------+   z is up: floor z = 0, ceiling z = Lz
+        front wall (x = 0)
+
+x runs from the front wall toward the back wall, y from the left wall to the right
+wall, z up from the floor. The six surfaces are named ``front``, ``back``, ``left``,
+``right``, ``floor`` and ``ceiling``, always in that order (:data:`WALLS`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+
+from .walls import impedance_from_absorption
+
+__all__ = [
+    "WALLS",
+    "WALL_AXIS",
+    "Surface",
+    "Speaker",
+    "Layout",
+    "Room",
+    "speed_of_sound",
+]
+
+#: Surface names in the order every (6, ...) array uses.
+WALLS = ("front", "back", "left", "right", "floor", "ceiling")
+#: Axis (0 = x, 1 = y, 2 = z) normal to each surface of :data:`WALLS`.
+WALL_AXIS = (0, 0, 1, 1, 2, 2)
+#: Whether each surface of :data:`WALLS` lies at the far end of its axis (x = Lx, ...).
+WALL_FAR = (False, True, False, True, False, True)
+
+
+def speed_of_sound(temperature_c=20.0):
+    """Speed of sound in dry air, m/s.
+
+    ``c = 331.3 sqrt(1 + T / 273.15)``: 343.2 m/s at 20 C. This is the one place the
+    package computes it.
+
+    References
+    ----------
+    L. E. Kinsler, A. R. Frey, A. B. Coppens, J. V. Sanders, Fundamentals of Acoustics,
+    4th ed., Wiley, 2000, eq. 5.6.9 (ideal-gas speed of sound; the 331.3 m/s at 0 C
+    figure is the commonly quoted value).
+    """
+    return 331.3 * np.sqrt(1.0 + np.asarray(temperature_c, dtype=float) / 273.15)
+
+
+@dataclass(frozen=True)
+class Surface:
+    """One of the six room surfaces and its random-incidence absorption.
+
+    Attributes
+    ----------
+    name : str
+        One of :data:`WALLS`.
+    absorption : tuple of float
+        Random-incidence energy absorption coefficient(s), 0 <= alpha < 1: one value
+        (frequency independent) or one per band of ``bands_hz``.
+    bands_hz : tuple of float or None
+        Band centre frequencies (Hz) of ``absorption``; None for a single value.
+    material : str or None
+        Library material the values came from, if any.
+    extrapolated_hz : tuple of float
+        Bands whose values are extrapolated below the source's lowest band.
+    """
+
+    name: str
+    absorption: tuple
+    bands_hz: tuple | None = None
+    material: str | None = None
+    extrapolated_hz: tuple = ()
+
+    def absorption_at(self, freq_hz):
+        """Absorption at ``freq_hz``: linear in log frequency between band centres,
+        held constant beyond the first and last band."""
+        f = np.asarray(freq_hz, dtype=float)
+        if self.bands_hz is None or len(self.absorption) == 1:
+            return np.full(f.shape, float(self.absorption[0]))
+        return np.interp(np.log(f), np.log(np.asarray(self.bands_hz)), np.asarray(self.absorption))
+
+    def describe(self):
+        """Short text for tables: the material or the value(s)."""
+        if self.material:
+            return self.material
+        if self.bands_hz is None:
+            return f"alpha {self.absorption[0]:.2f}"
+        pairs = ", ".join(f"{a:.2f}@{b:g}" for a, b in zip(self.absorption, self.bands_hz))
+        return f"alpha {pairs}"
+
+
+@dataclass(frozen=True)
+class Speaker:
+    """A loudspeaker, modelled at low frequency as a point monopole.
+
+    Attributes
+    ----------
+    name : str
+        Channel name ("left", "right", ...).
+    position_m : tuple of float
+        Acoustic centre of the woofer (x, y, z), metres.
+    lowcut_hz : float or None
+        The speaker's own -3 dB point; None for a flat source.
+    lowcut_order : int
+        2 (sealed box) or 4 (vented box); see :mod:`roommodes.speaker`.
+    response : tuple or None
+        An imported anechoic curve ``(freq_hz, level_db)``; replaces the high-pass.
+    sensitivity_db : float or None
+        dB SPL at 1 m for 1 W, when known.
+    amplifier_w : float or None
+        Amplifier power per channel, watts.
+    max_spl_db : float or None
+        Maker's maximum SPL at 1 m, dB.
+    """
+
+    name: str
+    position_m: tuple
+    lowcut_hz: float | None = None
+    lowcut_order: int = 2
+    response: tuple | None = None
+    response_file: str | None = None
+    sensitivity_db: float | None = None
+    amplifier_w: float | None = None
+    max_spl_db: float | None = None
+
+    def moved(self, position_m):
+        """The same speaker at another position."""
+        return replace(self, position_m=tuple(float(v) for v in position_m))
+
+
+@dataclass(frozen=True)
+class Layout:
+    """Where the speakers and the seat are.
+
+    Attributes
+    ----------
+    speakers : tuple of Speaker
+    seat_m : tuple of float
+        Listening position (ear height), metres.
+    name : str
+        "file" for the room file's own layout, or a preset name.
+    """
+
+    speakers: tuple
+    seat_m: tuple
+    name: str = "file"
+
+    @property
+    def source_positions_m(self):
+        """(N, 3) array of speaker positions."""
+        return np.array([s.position_m for s in self.speakers], dtype=float)
+
+
+@dataclass(frozen=True)
+class Room:
+    """A rectangular room: its size, surfaces, air and (optionally) a layout.
+
+    Attributes
+    ----------
+    name : str
+    size_m : tuple of float
+        (Lx, Ly, Lz): length (front to back), width (left to right), height.
+    surfaces : tuple of Surface
+        In :data:`WALLS` order.
+    temperature_c : float
+        Air temperature, C; sets the speed of sound.
+    layout : Layout or None
+    search : dict
+        The room file's raw ``[search]`` table (placement constraints), if any.
+    source : str or None
+        The file the room was read from.
+    """
+
+    name: str
+    size_m: tuple
+    surfaces: tuple
+    temperature_c: float = 20.0
+    layout: Layout | None = None
+    search: dict = field(default_factory=dict)
+    source: str | None = None
+
+    @property
+    def speed_of_sound(self):
+        """Speed of sound at the room's air temperature, m/s."""
+        return float(speed_of_sound(self.temperature_c))
+
+    @property
+    def volume_m3(self):
+        """Room volume, m^3."""
+        return float(np.prod(self.size_m))
+
+    @property
+    def surface_areas_m2(self):
+        """(6,) areas of the surfaces in :data:`WALLS` order, m^2."""
+        lx, ly, lz = self.size_m
+        return np.array([ly * lz, ly * lz, lx * lz, lx * lz, lx * ly, lx * ly])
+
+    @property
+    def total_area_m2(self):
+        """Total surface area, m^2."""
+        return float(self.surface_areas_m2.sum())
+
+    def absorption(self, freq_hz):
+        """(6, F) random-incidence absorption of each surface at ``freq_hz``."""
+        f = np.atleast_1d(np.asarray(freq_hz, dtype=float))
+        return np.stack([s.absorption_at(f) for s in self.surfaces])
+
+    def impedance(self, freq_hz):
+        """(6, F) real normalised wall impedance (see :mod:`roommodes.walls`)."""
+        return impedance_from_absorption(self.absorption(freq_hz))
+
+    def with_layout(self, layout):
+        """The same room with another layout."""
+        return replace(self, layout=layout)
+
+    def contains(self, points_m, margin_m=0.0):
+        """Boolean mask: which points lie inside the room by at least ``margin_m``."""
+        p = np.atleast_2d(np.asarray(points_m, dtype=float))
+        size = np.asarray(self.size_m)
+        return np.all((p > margin_m) & (p < size - margin_m), axis=-1)
