@@ -7,7 +7,6 @@ stderr and exit code 2.
 
 from __future__ import annotations
 
-import json
 import sys
 import time
 from pathlib import Path
@@ -16,104 +15,10 @@ import click
 import numpy as np
 
 from . import __version__
-from .roomfile import RoomFileError, demo_room_path, load_room
-
-CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
-
-MODEL_CAUTION = (
-    "Model: an idealised rectangular box with locally reacting walls and point-source speakers. "
-    "Treat predictions above the Schroeder frequency as indicative only, and check them against "
-    "a measurement before acting on them."
-)
-
-
-class UserError(click.ClickException):
-    """A problem with the user's input: one line, exit code 2."""
-
-    exit_code = 2
-
-    def show(self, file=None):
-        click.echo(f"roommodes: error: {self.format_message()}", err=True)
-
-
-def _fail(msg):
-    raise UserError(msg)
-
-
-def _echo_err(msg=""):
-    click.echo(msg, err=True)
-
-
-def _dump_json(obj):
-    click.echo(json.dumps(_jsonable(obj), indent=1, allow_nan=False))
-
-
-def _jsonable(o):
-    if isinstance(o, dict):
-        return {str(k): _jsonable(v) for k, v in o.items()}
-    if isinstance(o, (list, tuple)):
-        return [_jsonable(v) for v in o]
-    if isinstance(o, np.ndarray):
-        return _jsonable(o.tolist())
-    if isinstance(o, (np.floating, float)):
-        v = float(o)
-        return round(v, 6) if np.isfinite(v) else None
-    if isinstance(o, (np.integer,)):
-        return int(o)
-    if isinstance(o, np.bool_):
-        return bool(o)
-    return o
-
-
-def _load(path):
-    try:
-        return load_room(path)
-    except RoomFileError as exc:
-        _fail(str(exc))
-
-
-def _parse_range(text, name="--freq-range", allow_zero=False):
-    try:
-        parts = [float(v) for v in text.replace(":", ",").split(",")]
-    except ValueError:
-        parts = []
-    if len(parts) != 2 or not all(np.isfinite(parts)) or not (0 <= parts[0] if allow_zero else 0 < parts[0]) \
-            or not parts[0] < parts[1]:
-        _fail(f"{name} must be LOW,HIGH in Hz with 0 < LOW < HIGH, e.g. 15,300; got '{text}'")
-    if parts[1] > 2000:
-        _fail(f"{name}: {parts[1]:g} Hz is above 2000 Hz; roommodes models the low-frequency range")
-    return tuple(parts)
-
-
-def _check_output(path, force=False):
-    p = Path(path)
-    if not p.parent.exists():
-        _fail(f"cannot write {p}: folder {p.parent} does not exist")
-    if p.exists() and not force:
-        _fail(f"{p} already exists; choose another name or pass --force")
-    return p
-
-
-def _protect_inputs(out, *inputs):
-    for i in inputs:
-        try:
-            if Path(out).resolve() == Path(i).resolve():
-                _fail(f"refusing to write over the input file {i}; choose another output name")
-        except OSError:
-            pass
-
-
-freq_range_option = click.option(
-    "--freq-range", default="15,300", show_default=True, metavar="LOW,HIGH",
-    help="Frequency range in Hz.")
-ppo_option = click.option(
-    "--points-per-octave", type=click.IntRange(1, 384), default=48, show_default=True,
-    help="Frequency-grid density.")
-method_option = click.option(
-    "--method", type=click.Choice(["modal", "image"]), default="modal", show_default=True,
-    help="Solver: modal sum (fast, default) or image sources.")
-json_option = click.option("--json", "as_json", is_flag=True, help="Print one JSON object on stdout.")
-
+from ._cliutil import (CONTEXT, MODEL_CAUTION, UserError, band_figures, check_output, dump_json, echo_err,
+                       fail, freq_range_option, json_option, layouts_for, load_or_fail, method_option,
+                       parse_range, ppo_option, protect_inputs, usable_band, walls_text)
+from .roomfile import demo_room_path, load_room
 
 class _Group(click.Group):
     """Turns input problems raised below the CLI into one line and exit code 2."""
@@ -158,15 +63,15 @@ def modes(room_file, freq_range, plot_path, force, as_json):
     from .modes import room_modes
     from .summary import room_summary
 
-    lo, hi = _parse_range(freq_range, allow_zero=True)
-    room = _load(room_file)
+    lo, hi = parse_range(freq_range, allow_zero=True)
+    room = load_or_fail(room_file)
     ms = room_modes(room, hi)
     sel = ms.freq_hz >= lo
     summ = room_summary(room)
     if plot_path:
-        _check_output(plot_path, force)
+        check_output(plot_path, force)
     if as_json:
-        _dump_json({
+        dump_json({
             "roommodes_version": __version__, "room": room.name, "size_m": room.size_m,
             "modes": [
                 {"indices": ms.indices[i], "freq_hz": ms.freq_hz[i], "kind": ms.kind[i],
@@ -191,7 +96,7 @@ def modes(room_file, freq_range, plot_path, force, as_json):
         from .plots import plot_modes
 
         plot_modes(ms, hi, title=f"Room modes: {room.name}", path=plot_path)
-        _echo_err(f"wrote {plot_path}")
+        echo_err(f"wrote {plot_path}")
 
 
 def _summary_dict(s):
@@ -220,48 +125,6 @@ def _print_summary(s):
 
 
 # ---------------------------------------------------------------------------- predict
-def _layouts_for(room, layout):
-    from .placement import PRESETS, preset_layout
-
-    names = (["file"] if room.layout is not None else []) + list(PRESETS) if layout == "all" else [layout]
-    out = []
-    for name in names:
-        if name == "file":
-            if room.layout is None:
-                _fail(f"{room.source}: the room file has no [speakers] and [seat]; add them or use "
-                      "--layout corner|wall|mid-room|desk")
-            out.append(room.layout)
-        else:
-            try:
-                out.append(preset_layout(room, name))
-            except ValueError as exc:
-                _fail(str(exc))
-    return out
-
-
-def _walls_text(room, pos):
-    lx, ly, _ = room.size_m
-    x, y, z = pos
-    side = f"{y * 100:.0f} cm from the left wall" if y <= ly / 2 else f"{(ly - y) * 100:.0f} cm from the right wall"
-    return f"{x * 100:.0f} cm from the front wall, {side}, {z * 100:.0f} cm high"
-
-
-def _usable_band(layout, top_hz=200.0):
-    """Band judged by the summary figures: from max(20 Hz, the speakers' low cut) to 200 Hz."""
-    cuts = [s.lowcut_hz for s in layout.speakers if s.lowcut_hz]
-    return (max([20.0] + cuts), top_hz)
-
-
-def _band_figures(f, level, band=(20.0, 200.0)):
-    from .response import smooth_fractional_octave
-
-    sel = (f >= band[0]) & (f <= band[1])
-    sm = 10 * np.log10(smooth_fractional_octave(f, 10 ** (level / 10), 6))
-    seg = sm[sel]
-    return {"spread_db": float(seg.max() - seg.min()), "std_db": float(seg.std()),
-            "max_db": float(seg.max()), "min_db": float(seg.min())}
-
-
 @main.command(context_settings=CONTEXT)
 @click.argument("room_file", type=click.Path(path_type=Path))
 @click.option("--layout", type=click.Choice(["file", "corner", "wall", "mid-room", "desk", "all"]),
@@ -285,18 +148,18 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
     from .predict import response_features
     from .response import log_frequencies
 
-    lo, hi = _parse_range(freq_range)
-    room = _load(room_file)
-    layouts = _layouts_for(room, layout)
+    lo, hi = parse_range(freq_range)
+    room = load_or_fail(room_file)
+    layouts = layouts_for(room, layout)
     if plot_path:
-        _check_output(plot_path, force)
-        _protect_inputs(plot_path, room_file)
+        check_output(plot_path, force)
+        protect_inputs(plot_path, room_file)
     f = log_frequencies(lo, hi, points_per_octave)
     t0 = time.perf_counter()
     try:
         preds = [run_predict(room, lay, f, method=method, include_speaker=not no_speaker) for lay in layouts]
     except ValueError as exc:
-        _fail(str(exc))
+        fail(str(exc))
     elapsed = time.perf_counter() - t0
     fs = preds[0].schroeder_hz
     if as_json:
@@ -305,10 +168,10 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
             lay_objs.append({
                 "name": lay.name, "seat_m": lay.seat_m,
                 "channels": [{"name": c.name, "position_m": c.position_m, "level_db": c.level_db,
-                              "band_figures": _band_figures(f, c.level_db, _usable_band(lay))} for c in p.channels],
-                "band_hz": _usable_band(lay),
+                              "band_figures": band_figures(f, c.level_db, usable_band(lay))} for c in p.channels],
+                "band_hz": usable_band(lay),
             })
-        _dump_json({
+        dump_json({
             "roommodes_version": __version__, "room": room.name, "method": method,
             "frequencies_hz": f, "schroeder_hz": fs, "valid": preds[0].valid,
             "level_reference": "dB re free-field pressure of the same source at 1 m",
@@ -321,11 +184,11 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
         click.echo("Level: dB relative to the same speaker's free-field level at 1 m.")
         for lay, p in zip(layouts, preds):
             click.echo("")
-            click.echo(f"Layout: {lay.name}.  Seat: {_walls_text(room, lay.seat_m)}")
+            click.echo(f"Layout: {lay.name}.  Seat: {walls_text(room, lay.seat_m)}")
             for ch in p.channels:
-                band = _usable_band(lay)
-                fig = _band_figures(f, ch.level_db, band)
-                click.echo(f"  {ch.name}: {_walls_text(room, ch.position_m)}")
+                band = usable_band(lay)
+                fig = band_figures(f, ch.level_db, band)
+                click.echo(f"  {ch.name}: {walls_text(room, ch.position_m)}")
                 click.echo(f"    {band[0]:g}-{band[1]:g} Hz (1/6-octave smoothed): {fig['min_db']:+.1f} to {fig['max_db']:+.1f} dB, "
                            f"spread {fig['spread_db']:.1f} dB, std {fig['std_db']:.1f} dB")
                 if layout != "all":
@@ -335,13 +198,13 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
         click.echo("")
         click.echo(f"Schroeder frequency {fs:.0f} Hz: results above it are indicative only.")
         click.echo("")
-    _echo_err(MODEL_CAUTION)
+    echo_err(MODEL_CAUTION)
     if plot_path:
         from .plots import plot_prediction
 
         ms = room_modes(room, hi)
         plot_prediction(preds, ms, title=f"{room.name}: predicted level at the seat", path=plot_path)
-        _echo_err(f"wrote {plot_path}")
+        echo_err(f"wrote {plot_path}")
 
 
 # ---------------------------------------------------------------------------- demo
@@ -380,8 +243,8 @@ def demo(out_dir):
     click.echo("")
     click.echo(f"Predicted level at the seat for the file's layout ({time.perf_counter() - t0:.2f} s):")
     for ch in file_pred.channels:
-        band = _usable_band(room.layout)
-        fig = _band_figures(file_pred.freq_hz, ch.level_db, band)
+        band = usable_band(room.layout)
+        fig = band_figures(file_pred.freq_hz, ch.level_db, band)
         click.echo(f"  {ch.name}: spread {fig['spread_db']:.1f} dB over {band[0]:g}-{band[1]:g} Hz (1/6 octave)")
         for ft in response_features(room, file_pred, ch.name, max_features=4):
             click.echo(f"    {ft.kind:<4} {ft.freq_hz:6.1f} Hz {ft.level_db:+6.1f} dB: {'; '.join(ft.causes)}")
@@ -389,17 +252,17 @@ def demo(out_dir):
                     path=out_dir / "predict-file-layout.png")
     preds = [file_pred] + [run_predict(room, preset_layout(room, n)) for n in PRESETS]
     click.echo("")
-    band = _usable_band(room.layout)
+    band = usable_band(room.layout)
     click.echo(f"Standard placements compared ({band[0]:g}-{band[1]:g} Hz, 1/6-octave smoothed spread, left / right):")
     for p in preds:
-        spreads = " / ".join(f"{_band_figures(p.freq_hz, c.level_db, band)['spread_db']:4.1f}" for c in p.channels)
+        spreads = " / ".join(f"{band_figures(p.freq_hz, c.level_db, band)['spread_db']:4.1f}" for c in p.channels)
         click.echo(f"  {p.layout_name:<9} {spreads} dB")
     plot_prediction(preds, ms, title=f"{room.name}: layouts compared", path=out_dir / "predict-layouts.png")
     click.echo("")
     click.echo(f"Figures: {', '.join(sorted(p.name for p in out_dir.glob('*.png')))}")
     click.echo(f"Next: copy {path.name} from rooms/, edit it for your room, and run "
                "`roommodes predict YOUR-ROOM.toml --plot curves.png`.")
-    _echo_err(MODEL_CAUTION)
+    echo_err(MODEL_CAUTION)
 
 
 def run():  # pragma: no cover - console entry point used by python -m

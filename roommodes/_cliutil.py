@@ -1,0 +1,151 @@
+"""Shared pieces of the command-line interface: errors, JSON, options, formatting."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import click
+import numpy as np
+
+from .roomfile import RoomFileError, load_room
+
+CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
+
+MODEL_CAUTION = (
+    "Model: an idealised rectangular box with locally reacting walls and point-source speakers. "
+    "Treat predictions above the Schroeder frequency as indicative only, and check them against "
+    "a measurement before acting on them."
+)
+
+
+class UserError(click.ClickException):
+    """A problem with the user's input: one line, exit code 2."""
+
+    exit_code = 2
+
+    def show(self, file=None):
+        click.echo(f"roommodes: error: {self.format_message()}", err=True)
+
+
+def fail(msg):
+    raise UserError(msg)
+
+
+def echo_err(msg=""):
+    click.echo(msg, err=True)
+
+
+def dump_json(obj):
+    click.echo(json.dumps(jsonable(obj), indent=1, allow_nan=False))
+
+
+def jsonable(o):
+    if isinstance(o, dict):
+        return {str(k): jsonable(v) for k, v in o.items()}
+    if isinstance(o, (list, tuple)):
+        return [jsonable(v) for v in o]
+    if isinstance(o, np.ndarray):
+        return jsonable(o.tolist())
+    if isinstance(o, (np.floating, float)):
+        v = float(o)
+        return round(v, 6) if np.isfinite(v) else None
+    if isinstance(o, (np.integer,)):
+        return int(o)
+    if isinstance(o, np.bool_):
+        return bool(o)
+    return o
+
+
+def load_or_fail(path):
+    try:
+        return load_room(path)
+    except RoomFileError as exc:
+        fail(str(exc))
+
+
+def parse_range(text, name="--freq-range", allow_zero=False):
+    try:
+        parts = [float(v) for v in text.replace(":", ",").split(",")]
+    except ValueError:
+        parts = []
+    if len(parts) != 2 or not all(np.isfinite(parts)) or not (0 <= parts[0] if allow_zero else 0 < parts[0]) \
+            or not parts[0] < parts[1]:
+        fail(f"{name} must be LOW,HIGH in Hz with 0 < LOW < HIGH, e.g. 15,300; got '{text}'")
+    if parts[1] > 2000:
+        fail(f"{name}: {parts[1]:g} Hz is above 2000 Hz; roommodes models the low-frequency range")
+    return tuple(parts)
+
+
+def check_output(path, force=False):
+    p = Path(path)
+    if not p.parent.exists():
+        fail(f"cannot write {p}: folder {p.parent} does not exist")
+    if p.exists() and not force:
+        fail(f"{p} already exists; choose another name or pass --force")
+    return p
+
+
+def protect_inputs(out, *inputs):
+    for i in inputs:
+        try:
+            if Path(out).resolve() == Path(i).resolve():
+                fail(f"refusing to write over the input file {i}; choose another output name")
+        except OSError:
+            pass
+
+
+freq_range_option = click.option(
+    "--freq-range", default="15,300", show_default=True, metavar="LOW,HIGH",
+    help="Frequency range in Hz.")
+ppo_option = click.option(
+    "--points-per-octave", type=click.IntRange(1, 384), default=48, show_default=True,
+    help="Frequency-grid density.")
+method_option = click.option(
+    "--method", type=click.Choice(["modal", "image"]), default="modal", show_default=True,
+    help="Solver: modal sum (fast, default) or image sources.")
+json_option = click.option("--json", "as_json", is_flag=True, help="Print one JSON object on stdout.")
+
+
+def layouts_for(room, layout):
+    from .placement import PRESETS, preset_layout
+
+    names = (["file"] if room.layout is not None else []) + list(PRESETS) if layout == "all" else [layout]
+    out = []
+    for name in names:
+        if name == "file":
+            if room.layout is None:
+                fail(f"{room.source}: the room file has no [speakers] and [seat]; add them or use "
+                      "--layout corner|wall|mid-room|desk")
+            out.append(room.layout)
+        else:
+            try:
+                out.append(preset_layout(room, name))
+            except ValueError as exc:
+                fail(str(exc))
+    return out
+
+
+def walls_text(room, pos):
+    lx, ly, _ = room.size_m
+    x, y, z = pos
+    side = f"{y * 100:.0f} cm from the left wall" if y <= ly / 2 else f"{(ly - y) * 100:.0f} cm from the right wall"
+    return f"{x * 100:.0f} cm from the front wall, {side}, {z * 100:.0f} cm high"
+
+
+def usable_band(layout, top_hz=200.0):
+    """Band judged by the summary figures: from max(20 Hz, the speakers' low cut) to 200 Hz."""
+    cuts = [s.lowcut_hz for s in layout.speakers if s.lowcut_hz]
+    return (max([20.0] + cuts), top_hz)
+
+
+def band_figures(f, level, band=(20.0, 200.0)):
+    from .response import smooth_fractional_octave
+
+    sel = (f >= band[0]) & (f <= band[1])
+    sm = 10 * np.log10(smooth_fractional_octave(f, 10 ** (level / 10), 6))
+    seg = sm[sel]
+    return {"spread_db": float(seg.max() - seg.min()), "std_db": float(seg.std()),
+            "max_db": float(seg.max()), "min_db": float(seg.min())}
+
+
