@@ -26,7 +26,6 @@ References
 from __future__ import annotations
 
 import numpy as np
-from scipy.optimize import brentq
 
 __all__ = [
     "ALPHA_MAX",
@@ -102,24 +101,22 @@ def impedance_from_absorption(alpha):
 
     Notes
     -----
-    Solved with Brent's method on the monotone branch of London's formula
-    (see :func:`random_incidence_absorption`).
+    Solved by bisection in ``log(zeta)`` on the monotone branch of London's formula
+    (see :func:`random_incidence_absorption`), vectorised over the input.
     """
-    a = np.asarray(alpha, dtype=float)
-    flat = np.clip(a.ravel(), 0.0, ALPHA_MAX)
-    out = np.empty_like(flat)
-    for i, ai in enumerate(flat):
-        if ai <= 0.0:
-            out[i] = np.inf
-        elif ai >= ALPHA_MAX:
-            out[i] = ZETA_AT_ALPHA_MAX
-        else:
-            hi = max(16.0 / ai, 2 * ZETA_AT_ALPHA_MAX)
-            out[i] = brentq(
-                lambda z: float(random_incidence_absorption(z)) - ai,
-                ZETA_AT_ALPHA_MAX, hi, xtol=1e-12, rtol=1e-13,
-            )
-    return out.reshape(a.shape)
+    a = np.clip(np.asarray(alpha, dtype=float), 0.0, ALPHA_MAX)
+    # Vectorised bisection in log(zeta) on [zeta_max, 1e12], where alpha falls monotonically:
+    # 60 halvings of a 30-wide log interval leave a relative error below 1e-16.
+    lo = np.full(a.shape, np.log(ZETA_AT_ALPHA_MAX))
+    hi = np.full(a.shape, np.log(1e12))
+    for _ in range(60):
+        mid = 0.5 * (lo + hi)
+        too_absorptive = random_incidence_absorption(np.exp(mid)) > a
+        lo = np.where(too_absorptive, mid, lo)
+        hi = np.where(too_absorptive, hi, mid)
+    z = np.exp(0.5 * (lo + hi))
+    z = np.where(a >= ALPHA_MAX, ZETA_AT_ALPHA_MAX, z)
+    return np.where(a <= 0.0, np.inf, z)
 
 
 def admittance_from_absorption(alpha):
