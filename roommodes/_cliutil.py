@@ -49,7 +49,7 @@ def jsonable(o):
         return jsonable(o.tolist())
     if isinstance(o, (np.floating, float)):
         v = float(o)
-        return round(v, 6) if np.isfinite(v) else None
+        return v if np.isfinite(v) else None  # full precision: filter coefficients need it
     if isinstance(o, (np.integer,)):
         return int(o)
     if isinstance(o, np.bool_):

@@ -236,6 +236,8 @@ class Limits:
     below ``max_boost_db``. Above ``band`` the curve should stay near 0 dB (rows of
     weight ``above_weight`` relative to in-band error rows of a fit grid with steps of
     ``fit_step_oct`` octaves); below it a boost costs ``below_boost_cost`` as in band.
+    Inside the no-boost intervals a cut costs like a deviation above the band (weight
+    ``above_weight``): cutting into a cancellation null only deepens it.
     """
 
     def __init__(self, max_boost_db, noboost, tol_db, span_lo, span_hi, sample_rate,
@@ -264,18 +266,21 @@ class Limits:
         self.above_idx = np.flatnonzero(above)
         self.below_idx = np.flatnonzero(below)
         self.above_w = row_w * np.sqrt(above_weight)
+        self.nb_idx = np.flatnonzero(self.nb)
         self.below_w = row_w * np.sqrt(below_boost_cost)
         self.set_check_span(span_lo, span_hi)
 
     def penalty(self, curve_db):
         """Residual rows for the limits and the out-of-band curve (``curve_db`` on ``self.f``).
 
-        One row per grid point and limit, ``weight * excess``; points above the band one
+        One row per grid point and limit, ``weight * excess``; points in a no-boost
+        interval also ``above_w * min(curve, 0)``; points above the band one
         row ``above_w * curve`` each, points below it ``below_w * max(curve, 0)``.
         """
         over = np.maximum(curve_db - self.max_boost_db, 0.0)
         nb = np.maximum(curve_db[self.nb] - self.tol_db, 0.0)
         return np.concatenate([self.weight * over, self.weight * nb,
+                               self.above_w * np.minimum(curve_db[self.nb_idx], 0.0),
                                self.above_w * curve_db[self.above_idx],
                                self.below_w * np.maximum(curve_db[self.below_idx], 0.0)])
 

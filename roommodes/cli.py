@@ -265,8 +265,9 @@ def demo(out_dir):
     echo_err(MODEL_CAUTION)
 
 
-def run():  # pragma: no cover - console entry point used by python -m
-    main()
+from .cli_eq import eq  # noqa: E402  (commands of later features, registered on the group)
+
+main.add_command(eq)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -744,14 +744,18 @@ def target_from_table(freq_hz, table_freq_hz, table_db):
     return out
 
 
-def align_target(freq_hz, level_db, shape_db, reference_band_hz):
-    """Shift a target shape so its power mean over a band equals the response's.
+def align_target(freq_hz, level_db, shape_db, reference_band_hz, mean="db"):
+    """Shift a target shape so its mean over a band equals the response's.
 
     Parameters
     ----------
     freq_hz, level_db, shape_db : array_like, shape (F,)
     reference_band_hz : (float, float)
         Band of the alignment, Hz. The documented default is the band of the fit.
+    mean : {"db", "power"}
+        ``"db"`` (default): the mean level in dB, so that peaks and dips weigh alike and
+        a correction cuts about as much as it boosts (common practice); ``"power"``: the
+        mean of ``10^(L/10)``, which the strongest peaks dominate.
 
     Returns
     -------
@@ -760,8 +764,8 @@ def align_target(freq_hz, level_db, shape_db, reference_band_hz):
 
     Notes
     -----
-    Mean of ``10^(L/10)`` with uniform weight in log frequency (trapezoid rule) over the
-    grid points inside the band, via :func:`roommodes.response.align_level`.
+    Means with uniform weight in log frequency (trapezoid rule) over the grid points
+    inside the band; the power mean via :func:`roommodes.response.align_level`.
     """
     f = _grid(freq_hz)
     lv = _curve(level_db, f, "level_db")
@@ -771,11 +775,16 @@ def align_target(freq_hz, level_db, shape_db, reference_band_hz):
         raise ValueError(
             f"target shape or level undefined inside the reference band {band[0]:g}-{band[1]:g} Hz"
         )
-    return sh + align_level(lv, sh, f, band)
+    if mean == "power":
+        return sh + align_level(lv, sh, f, band)
+    if mean != "db":
+        raise ValueError(f"mean must be 'db' or 'power', got {mean!r}")
+    u = np.log(f[sel])
+    return sh + (np.trapezoid(lv[sel] - sh[sel], u) / np.ptp(u))
 
 
 def make_target(freq_hz, level_db, reference_band_hz, shape="flat", db_per_octave=1.0,
-                corner_hz=100.0, table=None):
+                corner_hz=100.0, table=None, mean="db"):
     """Target level: a flat, tilt or table shape aligned to the response.
 
     Parameters
@@ -799,7 +808,7 @@ def make_target(freq_hz, level_db, reference_band_hz, shape="flat", db_per_octav
         sh = target_from_table(freq_hz, *table)
     else:
         raise ValueError(f"target shape must be 'flat', 'tilt' or 'table', got {shape!r}")
-    return align_target(freq_hz, level_db, sh, reference_band_hz)
+    return align_target(freq_hz, level_db, sh, reference_band_hz, mean)
 
 
 # ========================================================================================

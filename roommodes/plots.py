@@ -134,3 +134,50 @@ def plot_modes(modes, fmax, title=None, path=None):
     if path is not None:
         save_figure(fig, path)
     return fig
+
+
+_REGION_COLOURS = {"narrow null": "#CC79A7", "broad dip": "#56B4E9", "peak": "#E69F00"}
+
+
+def plot_correction(corrections, title=None, path=None):
+    """Before, target, after and the individual filters of each channel's parametric EQ.
+
+    One row of two panels per channel: left, the levels with the classified regions
+    shaded (nulls are not boosted); right, the combined correction curve and each filter.
+    """
+    from .eq import correction_db
+
+    n = len(corrections)
+    fig, axes = new_figure(11.0, 3.6 * n, n, 2, squeeze=False)
+    for row, corr in enumerate(corrections):
+        d = corr.parametric
+        f = d.freq_hz
+        ax = axes[row, 0]
+        for reg in d.classification.regions:
+            if reg.kind in _REGION_COLOURS:
+                ax.axvspan(reg.freq_lo_hz, reg.freq_hi_hz, color=_REGION_COLOURS[reg.kind], alpha=0.18, lw=0)
+        ax.plot(f, d.before_db, color=PALETTE[0], lw=1.3, label="before")
+        ax.plot(f, d.after_db, color=PALETTE[1], lw=1.6, label="after (parametric)")
+        ax.plot(f, d.target_db, color="0.2", lw=1.0, ls="--", label="target")
+        for kind, colour in _REGION_COLOURS.items():
+            ax.axvspan(0, 0, color=colour, alpha=0.3, label=kind)
+        style_frequency_axis(ax, f[0], f[-1])
+        ax.set_ylabel("Level at seat (dB)")
+        ax.set_title(f"{corr.name}: before and after", fontsize=10)
+        ax.legend(fontsize=7, ncol=2, loc="lower center")
+        ax2 = axes[row, 1]
+        for i, flt in enumerate(d.filters):
+            ax2.plot(f, correction_db([flt], f), color=PALETTE[(i + 2) % len(PALETTE)], lw=0.9, alpha=0.8,
+                     label=f"{flt.freq_hz:.0f} Hz {flt.gain_db:+.1f} dB Q {flt.q:.1f}")
+        ax2.plot(f, d.correction_db, color="0.1", lw=1.8, label="combined")
+        ax2.axhline(0, color="0.5", lw=0.7)
+        ax2.axhline(d.max_boost_db, color=PALETTE[1], lw=0.8, ls=":")
+        style_frequency_axis(ax2, f[0], f[-1])
+        ax2.set_ylabel("Correction (dB)")
+        ax2.set_title(f"{corr.name}: filters (max boost {d.max_boost_db:+.1f} dB)", fontsize=10)
+        ax2.legend(fontsize=7, ncol=2, loc="lower center")
+    if title:
+        fig.suptitle(title, fontsize=11)
+    if path is not None:
+        save_figure(fig, path)
+    return fig

@@ -207,14 +207,16 @@ def test_tilt_and_table_targets():
     assert np.all(np.isnan(tab[f < 20])) and np.all(np.isnan(tab[f > 250]))
 
 
-def test_alignment_uses_the_power_mean():
+def test_alignment_mean_in_db_or_power():
     # power mean of +10 dB over half the log band and 0 dB over the other half:
     # 10 log10((10 + 1)/2) = 7.404 dB (definition of the power mean)
     f = np.geomspace(20, 320, 4001)
     level = np.where(f < 80, 10.0, 0.0)
-    t = eq.make_target(f, level, (20, 320))
+    t = eq.make_target(f, level, (20, 320), mean="power")
     assert t[0] == pytest.approx(10 * np.log10(5.5), abs=0.01)
     assert np.ptp(t) == 0
+    # the default is the mean in dB: (10 + 0) / 2 = 5 dB (definition of the mean)
+    assert eq.make_target(f, level, (20, 320))[0] == pytest.approx(5.0, abs=0.01)
     tilt = eq.make_target(f, level, (20, 320), shape="tilt", db_per_octave=1.5, corner_hz=80)
     assert tilt[0] - tilt[-1] == pytest.approx(3.0, abs=1e-6)  # two octaves below 80 Hz
 

@@ -35,7 +35,7 @@ LEVEL = room_like(F)
 NEIGHBOURS = np.array([room_like(F, 92 * k, d, notch_q=5.0, gain_scale=g)
                        for k, d, g in [(0.95, 22, 1.05), (1.05, 30, 0.95), (0.97, 26, 1.0),
                                        (1.04, 20, 1.02)]])
-TARGET = eq.make_target(F, LEVEL, BAND)
+TARGET = eq.make_target(F, LEVEL, BAND, mean="power")
 
 
 @pytest.fixture(scope="module")

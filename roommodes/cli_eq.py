@@ -1,0 +1,190 @@
+"""The ``eq`` command: bass correction for each channel and the headroom it costs."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import click
+import numpy as np
+
+from . import __version__
+from ._cliutil import (CONTEXT, check_output, dump_json, echo_err, fail, freq_range_option, json_option,
+                       layouts_for, load_or_fail, method_option, parse_range, ppo_option, protect_inputs)
+
+_SPL_TABLE_HZ = (31.5, 40.0, 50.0, 63.0, 80.0, 100.0, 125.0, 160.0, 200.0)
+
+
+def _read_target(path):
+    from .measure.importers import read_response_text
+
+    curve = read_response_text(path)
+    return (np.asarray(curve.freq_hz), np.asarray(curve.level_db))
+
+
+def _parse_pair(text, name):
+    try:
+        a, b = (float(v) for v in text.split(","))
+    except ValueError:
+        fail(f"{name} must be two numbers LOW,HIGH, e.g. 0.5,10; got '{text}'")
+    return a, b
+
+
+def _channel_json(corr):
+    d = {"name": corr.name}
+    d.update(corr.parametric.to_dict())
+    d["shelf"] = corr.shelf.to_dict()
+    d["graphic_third_octave"] = corr.graphic_third.to_dict()
+    d["graphic_octave"] = corr.graphic_octave.to_dict()
+    h = corr.headroom
+    d["headroom"] = {"max_boost_db": h.max_boost_db, "max_boost_freq_hz": h.max_boost_freq_hz,
+                     "preattenuation_db": h.preattenuation_db, "power_factor": h.power_factor,
+                     "excursion_factor": h.excursion_factor}
+    if corr.clean is not None:
+        d["max_clean_spl"] = {"before_db": corr.clean.before_db, "after_db": corr.clean.after_db,
+                              "preattenuation_db": corr.clean.preattenuation_db}
+    return d
+
+
+def _print_channel(corr, room_layout_speaker):
+    from .eq import q_at_3db_below_peak
+
+    p = corr.parametric
+    click.echo(f"Channel {corr.name}  (band {p.band_hz[0]:g}-{p.band_hz[1]:g} Hz, curve smoothed 1/12 octave)")
+    click.echo("  What the curve does, and what EQ may do about it:")
+    for r in p.classification.regions:
+        if r.kind == "ok":
+            continue
+        action = {"peak": "cut", "broad dip": "may be boosted", "narrow null": "NOT boosted"}[r.kind]
+        click.echo(f"    {r.kind:<11} {r.freq_lo_hz:6.1f}-{r.freq_hi_hz:6.1f} Hz  {r.deviation_db:+6.1f} dB: "
+                   f"{action} ({'; '.join(r.reasons)})")
+    click.echo("  Parametric EQ (peaking filters; Q as in the Audio EQ Cookbook, bandwidth between the "
+               "half-gain points):")
+    click.echo(f"    {'#':>2} {'freq Hz':>8} {'gain dB':>8} {'Q':>6} {'BW oct':>7} {'Q at -3 dB':>10}")
+    for i, flt in enumerate(sorted(p.filters, key=lambda x: x.freq_hz), 1):
+        q3 = q_at_3db_below_peak(flt.q, flt.gain_db) if abs(flt.gain_db) > 3.0 else float("nan")
+        q3s = f"{q3:10.2f}" if np.isfinite(q3) else f"{'-':>10}"
+        click.echo(f"    {i:>2} {flt.freq_hz:8.1f} {flt.gain_db:+8.1f} {flt.q:6.2f} {flt.bandwidth_octaves:7.2f} {q3s}")
+    eb, ea = p.error_before, p.error_after
+    click.echo(f"    deviation from target where EQ may act: rms {eb.rms_db:.1f} -> {ea.rms_db:.1f} dB, "
+               f"max {eb.max_abs_db:.1f} -> {ea.max_abs_db:.1f} dB, within +-3 dB {eb.within_3db:.0%} -> {ea.within_3db:.0%}")
+    s = corr.shelf
+    sf = s.filters[0]
+    click.echo(f"  Bass (tone) control only: low shelf at {sf.freq_hz:.0f} Hz, {sf.gain_db:+.1f} dB (slope S {s.slope:.2f}); "
+               f"leaves rms {s.error_after.rms_db:.1f} dB, max {s.error_after.max_abs_db:.1f} dB")
+    for g, label in ((corr.graphic_third, "31-band 1/3-octave"), (corr.graphic_octave, "10-band octave")):
+        sliders = ", ".join(f"{lab} {v:+.1f}" for lab, v in zip(g.bands.labels, g.gains_db) if abs(v) >= 0.05)
+        click.echo(f"  {label} graphic EQ (band Q {g.band_q:.2f}): {sliders or 'all sliders at 0'}")
+        click.echo(f"    leaves rms {g.error_after.rms_db:.1f} dB (setting each slider to minus the curve would "
+                   f"leave {g.naive_error.rms_db:.1f} dB)")
+    h = corr.headroom
+    pf = 10 ** (max(h.max_boost_db, 0) / 10)
+    xf = 10 ** (max(h.max_boost_db, 0) / 20)
+    click.echo(f"  Headroom: the combined curve peaks at {h.max_boost_db:+.1f} dB at {h.max_boost_freq_hz:.0f} Hz: "
+               f"pre-attenuate digital input by {h.preattenuation_db:.1f} dB; there the amplifier needs "
+               f"x{pf:.1f} the power and the cone x{xf:.1f} the excursion")
+    if corr.clean is not None:
+        f = p.freq_hz
+        cols = [fr for fr in _SPL_TABLE_HZ if p.band_hz[0] * 0.9 <= fr <= p.band_hz[1]]
+        idx = [int(np.argmin(np.abs(f - fr))) for fr in cols]
+        click.echo("  Maximum clean level at the seat (dB SPL; amplifier power, sensitivity and maximum SPL "
+                   "from the room file):")
+        click.echo("    " + " ".join(f"{fr:>6g}" for fr in cols) + "  Hz")
+        click.echo("    " + " ".join(f"{corr.clean.before_db[i]:6.0f}" for i in idx) + "  before EQ")
+        click.echo("    " + " ".join(f"{corr.clean.after_db[i]:6.0f}" for i in idx) + "  after EQ")
+    for w in p.warnings:
+        click.echo(f"  warning: {w.message}")
+        if w.recommended is not None:
+            r = w.recommended
+            click.echo(f"    recommended instead: {r.type} at {r.freq_hz:.0f} Hz, Q {r.q:.2f}")
+    click.echo("")
+
+
+@click.command(context_settings=CONTEXT)
+@click.argument("room_file", type=click.Path(path_type=Path))
+@click.option("--layout", type=click.Choice(["file", "corner", "wall", "mid-room", "desk"]), default="file",
+              show_default=True, help="Speaker and seat positions to correct.")
+@click.option("--target", default="flat", show_default=True, metavar="flat|tilt|FILE",
+              help="Target curve: flat, a gentle low-frequency rise (tilt), or a text file of frequency and dB.")
+@click.option("--tilt", "tilt_db", type=float, default=1.0, show_default=True,
+              help="With --target tilt: rise in dB per octave below the corner.")
+@click.option("--tilt-corner", type=float, default=100.0, show_default=True, help="With --target tilt: corner, Hz.")
+@click.option("--band", "band_text", metavar="LOW,HIGH", help="Correction band in Hz [default: max(speaker low cut, 20),250].")
+@click.option("--max-filters", type=click.IntRange(1, 20), default=6, show_default=True, help="Peaking filters per channel.")
+@click.option("--max-boost", type=float, default=6.0, show_default=True,
+              help="Largest boost of the combined curve at any frequency, dB.")
+@click.option("--q-range", default="0.5,10", show_default=True, metavar="LOW,HIGH", help="Allowed filter Q.")
+@freq_range_option
+@ppo_option
+@method_option
+@click.option("--export", "export_path", type=click.Path(path_type=Path),
+              help="Write the filters and second-order sections (44.1, 48, 96 kHz) to a text file.")
+@click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write before/after curves and filters (PNG/SVG).")
+@click.option("--force", is_flag=True, help="Overwrite existing output files.")
+@json_option
+def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, max_boost, q_range, freq_range,
+       points_per_octave, method, export_path, plot_path, force, as_json):
+    """Design bass-correction EQ for each channel and show the headroom it costs.
+
+    Every dip is classified before it is touched: a deep narrow dip that moves when the
+    seat or speaker moves 5 cm is a cancellation null, and boosting it only wastes
+    amplifier power and cone excursion, so it is left alone; broad shortfalls may be
+    boosted up to --max-boost; peaks are cut. Offered: parametric filters, a single low
+    shelf (for a bass tone control), and 31-band and 10-band graphic-EQ slider settings.
+    """
+    from .correction import correct_prediction
+    from .eq import CAUTIONS, EXPORT_SAMPLE_RATES, channel_headroom_warnings, render_text
+    from .response import log_frequencies
+
+    lo, hi = parse_range(freq_range)
+    qlo, qhi = _parse_pair(q_range, "--q-range")
+    band = parse_range(band_text, "--band") if band_text else None
+    room = load_or_fail(room_file)
+    (lay,) = layouts_for(room, layout)
+    if band is not None and (band[0] < lo or band[1] > hi):
+        fail(f"--band {band[0]:g},{band[1]:g} Hz lies outside the computed range {lo:g}-{hi:g} Hz; "
+             "widen --freq-range or narrow --band")
+    options = dict(max_filters=max_filters, max_boost_db=max_boost, q_range=(qlo, qhi), band_hz=band)
+    if target in ("flat", "tilt"):
+        options.update(target=target, tilt_db_per_octave=tilt_db, tilt_corner_hz=tilt_corner)
+    else:
+        options.update(target="table", target_table=_read_target(target))
+    for out in (export_path, plot_path):
+        if out:
+            check_output(out, force)
+            protect_inputs(out, room_file)
+    f = log_frequencies(lo, hi, points_per_octave)
+    corrections, _pred = correct_prediction(room, lay, f, method=method, **options)
+    head_warn = channel_headroom_warnings({c.name: c.headroom.max_boost_db for c in corrections})
+    if as_json:
+        dump_json({"roommodes_version": __version__, "room": room.name, "layout": lay.name,
+                   "frequencies_hz": corrections[0].parametric.freq_hz,
+                   "channels": [_channel_json(c) for c in corrections],
+                   "warnings": [w.to_dict() for w in head_warn], "cautions": list(CAUTIONS)})
+    else:
+        click.echo(f"Bass correction for '{room.name}', layout {lay.name}, {method} solver")
+        click.echo("")
+        for c in corrections:
+            _print_channel(c, None)
+        click.echo("Side by side: " + ", ".join(
+            f"{c.name} max boost {c.headroom.max_boost_db:+.1f} dB" for c in corrections))
+        for w in head_warn:
+            click.echo(f"warning: {w.message}")
+    if export_path:
+        from .roomfile import write_text_atomic
+
+        text = "\n".join(
+            render_text(c.parametric.filters, __version__, sample_rates=EXPORT_SAMPLE_RATES,
+                        title=f"{room.name}: channel {c.name} (layout {lay.name})",
+                        preattenuation_db=c.headroom.preattenuation_db,
+                        notes=[w.message for w in c.parametric.warnings])
+            for c in corrections)
+        write_text_atomic(export_path, text, overwrite=force)
+        echo_err(f"wrote {export_path}")
+    if plot_path:
+        from .plots import plot_correction
+
+        plot_correction(corrections, title=f"{room.name}: bass correction", path=plot_path)
+        echo_err(f"wrote {plot_path}")
+    echo_err("Cautions:")
+    for c in CAUTIONS:
+        echo_err(f"  - {c}")

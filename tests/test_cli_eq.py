@@ -1,0 +1,97 @@
+"""The eq command on the demo room: the checks of the EQ feature, end to end.
+
+Filter definitions: Audio EQ Cookbook (R. Bristow-Johnson, W3C Audio WG note); responses
+recomputed independently with scipy.signal.sosfreqz.
+"""
+
+import json
+
+import numpy as np
+import pytest
+from click.testing import CliRunner
+from scipy import signal
+
+from roommodes import demo_room_path, load_room
+from roommodes.cli import main
+from roommodes.correction import correct_prediction
+
+DEMO = str(demo_room_path())
+
+
+@pytest.fixture(scope="module")
+def demo_eq():
+    res = CliRunner().invoke(main, ["eq", DEMO, "--json"], catch_exceptions=False)
+    assert res.exit_code == 0
+    return json.loads(res.stdout)
+
+
+def test_json_keys(demo_eq):
+    assert [c["name"] for c in demo_eq["channels"]] == ["left", "right"]
+    for ch in demo_eq["channels"]:
+        for key in ("filters", "sos", "max_boost_db", "before_db", "after_db", "target_db"):
+            assert key in ch
+        assert set(ch["sos"]) == {"44100", "48000", "96000"}
+        assert all(set(f) >= {"type", "freq_hz", "gain_db", "q"} for f in ch["filters"])
+    assert any("hearing" in c for c in demo_eq["cautions"])
+
+
+def test_corrected_response_within_3_db_where_allowed(demo_eq):
+    for ch in demo_eq["channels"]:
+        after = np.array(ch["after_db"], float)
+        target = np.array(ch["target_db"], float)
+        allowed = np.array(ch["allowed"])
+        within = np.mean(np.abs(after - target)[allowed] <= 3.0)
+        print(f"{ch['name']}: within +-3 dB on {within:.0%} of the band where EQ may act")
+        assert within >= 0.95
+
+
+def test_no_boost_above_limit_or_into_nulls(demo_eq):
+    f = np.array(demo_eq["frequencies_hz"])
+    for ch in demo_eq["channels"]:
+        corr = np.array(ch["correction_db"], float)
+        assert np.max(corr) <= 6.0 + 1e-6
+        for reg in ch["regions"]:
+            if reg["kind"] == "narrow null":
+                inside = (f >= reg["freq_hz"][0]) & (f <= reg["freq_hz"][1])
+                assert np.all(corr[inside] <= 0.5 + 1e-6)
+        # headroom equals the maximum of the realised cascade (not the largest single gain):
+        # recomputed from the exported sections at 48 kHz with scipy.signal.sosfreqz
+        sos = np.array(ch["sos"]["48000"], float)
+        w = np.geomspace(5, 2000, 20000)
+        _, h = signal.sosfreqz(sos, worN=w, fs=48000)
+        assert 20 * np.log10(np.max(np.abs(h))) == pytest.approx(ch["headroom"]["max_boost_db"], abs=0.02)
+
+
+def test_vented_speaker_is_not_boosted_below_tuning():
+    # The demo speakers are vented with lowcut 48 Hz: no boost below the tuning (Thiele/Small
+    # practice, recalled from memory), so the design band starts at 48 Hz by default.
+    corr, _ = correct_prediction(load_room(DEMO))
+    for c in corr:
+        f = c.parametric.freq_hz
+        assert c.parametric.band_hz[0] == 48.0
+        assert np.all(c.parametric.correction_db[f < 48.0] <= 0.5 + 1e-9)  # the design tolerance
+
+
+def test_export_and_plot_and_refusals(tmp_path):
+    out, png = tmp_path / "eq.txt", tmp_path / "eq.png"
+    r = CliRunner().invoke(main, ["eq", DEMO, "--export", str(out), "--plot", str(png),
+                                  "--points-per-octave", "24"], catch_exceptions=False)
+    assert r.exit_code == 0
+    text = out.read_text()
+    assert "roommodes" in text and "48000" in text
+    assert png.read_bytes()[:4] == b"\x89PNG"
+    assert "Protect your hearing" in r.stderr
+    again = CliRunner().invoke(main, ["eq", DEMO, "--export", str(out)])
+    assert again.exit_code == 2 and "already exists" in again.stderr
+
+
+@pytest.mark.parametrize("args,msg", [
+    (["--max-boost", "-3"], "max_boost_db"),
+    (["--q-range", "10,0.5"], "q_range"),
+    (["--band", "10,400"], "outside the computed range"),
+    (["--target", "missing-target.txt"], "missing-target.txt"),
+])
+def test_bad_input(args, msg):
+    r = CliRunner().invoke(main, ["eq", DEMO, *args])
+    assert r.exit_code == 2, r.output
+    assert msg in r.stderr and "Traceback" not in r.stderr
