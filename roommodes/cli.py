@@ -265,9 +265,13 @@ def demo(out_dir):
     echo_err(MODEL_CAUTION)
 
 
-from .cli_eq import eq  # noqa: E402  (commands of later features, registered on the group)
+# Commands of later features live in their own modules and are registered here.
+from .cli_eq import eq  # noqa: E402
+from .cli_measure import COMMANDS as _MEASURE_COMMANDS  # noqa: E402
 
 main.add_command(eq)
+for _cmd in _MEASURE_COMMANDS:  # sweep, ir, noise, bands, decay, compare, fit
+    main.add_command(_cmd)
 
 
 if __name__ == "__main__":  # pragma: no cover

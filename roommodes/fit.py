@@ -1,0 +1,490 @@
+"""Calibrating a room model to measurements.
+
+:func:`fit_room` adjusts a small set of physical parameters, each within bounds, so that
+the modal prediction matches measured curves:
+
+* the absorption of the surfaces, by groups (opposite pairs by default), as a factor on
+  the file's values at every band;
+* the effective dimensions, within a few percent;
+* small offsets of the speaker and microphone positions (tape-measure tolerance);
+* each speaker's roll-off frequency (``lowcut_hz``), when the file gives one.
+
+The fit is a robust, regularised least-squares problem on smoothed dB curves: the
+residual of every measured curve (the prediction minus the measurement, both smoothed
+alike on a coarse log grid, with the level offset between them removed unless the
+chain is calibrated) passes through a soft-L1 function, and each parameter is pulled
+toward the room file's value by a quadratic penalty. Nothing here reads or writes
+files; the command line writes the calibrated room with
+:func:`roommodes.roomfile.room_to_toml`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+from scipy.optimize import least_squares
+
+from .response import log_frequencies, smooth_fractional_octave
+from .room import WALLS, Surface
+from .roomfile import WALL_MARGIN_M
+
+__all__ = ["ABSORPTION_GROUPS", "FitParameter", "FitResult", "FitTarget", "fit_error", "fit_room"]
+
+#: Absorption groupings: name -> tuple of surface groups.
+ABSORPTION_GROUPS = {
+    "axes": (("front", "back"), ("left", "right"), ("floor", "ceiling")),
+    "each": tuple((w,) for w in WALLS),
+    "all": (WALLS,),
+    "none": (),
+}
+#: Absorption factors move on a log scale; one prior unit is a factor of 2, the bound 4.
+_ABS_SCALE = math.log(2.0)
+_ABS_BOUND_UNITS = 2.0
+#: Highest absorption coefficient the fit will write (the file format needs < 1).
+_MAX_ALPHA = 0.95
+#: Finite-difference step, in prior units.
+_FD_STEP = 1e-3
+
+
+@dataclass(frozen=True, eq=False)
+class FitTarget:
+    """One measured curve, tied to the speaker that played and the microphone position.
+
+    Attributes
+    ----------
+    channel : str
+        Speaker name in the room file.
+    position_m : tuple of float
+        Microphone position (x, y, z), m.
+    freq_hz : ndarray (F,)
+        Frequencies, Hz, rising.
+    level_db : ndarray (F,)
+        Measured level, dB (any reference unless the fit is absolute).
+    label : str
+    """
+
+    channel: str
+    position_m: tuple
+    freq_hz: np.ndarray
+    level_db: np.ndarray
+    label: str = ""
+
+
+@dataclass(frozen=True)
+class FitParameter:
+    """One fitted parameter.
+
+    Attributes
+    ----------
+    name : str
+        E.g. ``"absorption front+back"``, ``"length"``, ``"left x"``, ``"mic 1 y"``,
+        ``"left lowcut"``.
+    unit : str
+        ``"m"``, ``"Hz"``, or ``""`` for absorption (the area-weighted coefficient of the
+        group at ``reference_hz``).
+    initial, value : float
+        In the unit given.
+    lower, upper : float
+        Bounds, same unit.
+    std_error : float
+        Approximate standard error, same unit (see :func:`fit_room`, Notes).
+    at_bound : bool
+        The fit stopped at a bound: the data pull further than allowed.
+    kind : str
+        ``"absorption"``, ``"size"``, ``"speaker"``, ``"mic"`` or ``"lowcut"``.
+    """
+
+    name: str
+    unit: str
+    initial: float
+    value: float
+    lower: float
+    upper: float
+    std_error: float
+    at_bound: bool
+    kind: str
+
+    @property
+    def change(self):
+        """``value - initial``."""
+        return self.value - self.initial
+
+
+@dataclass(frozen=True, eq=False)
+class FitResult:
+    """What :func:`fit_room` found.
+
+    Attributes
+    ----------
+    room : Room
+        The calibrated room (absorption, size, speaker positions and roll-off); the seat
+        is left as it was.
+    parameters : tuple of FitParameter
+    freq_hz : ndarray (F,)
+        The fit's grid, Hz.
+    measured_db : ndarray (T, F)
+        Each target, on the grid, smoothed.
+    before_db, after_db : ndarray (T, F)
+        The prediction before and after the fit, smoothed, level-aligned to the target.
+    level_offsets_db : ndarray (T,)
+        Level added to each prediction after the fit (0 when absolute).
+    error_before, error_after : dict
+        ``median_abs_db``, ``p90_abs_db``, ``rms_db`` of the residual over all targets.
+    mic_positions_m : ndarray (M, 3)
+        Fitted microphone positions (in the order of first appearance in the targets).
+    iterations, evaluations : int
+    success : bool
+    message : str
+    reference_hz : float
+        Frequency at which absorption values are reported.
+    labels : tuple of str
+    """
+
+    room: object
+    parameters: tuple
+    freq_hz: np.ndarray
+    measured_db: np.ndarray
+    before_db: np.ndarray
+    after_db: np.ndarray
+    level_offsets_db: np.ndarray
+    error_before: dict
+    error_after: dict
+    mic_positions_m: np.ndarray
+    iterations: int
+    evaluations: int
+    success: bool
+    message: str
+    reference_hz: float
+    labels: tuple = field(default=())
+
+
+@dataclass
+class _Param:
+    name: str
+    kind: str
+    key: tuple
+    scale: float  # natural units per prior unit (linear kinds)
+    bound: float  # in prior units
+    unit: str
+
+
+def fit_error(difference_db):
+    """Error figures of a residual: median and 90th percentile of ``|d|``, and rms (dB)."""
+    a = np.abs(np.asarray(difference_db, dtype=float)).ravel()
+    return {"median_abs_db": float(np.median(a)), "p90_abs_db": float(np.percentile(a, 90)),
+            "rms_db": float(np.sqrt(np.mean(a**2)))}
+
+
+def _smooth(f, level_db, fraction):
+    if not fraction:
+        return np.asarray(level_db, dtype=float)
+    p = smooth_fractional_octave(f, 10 ** (np.asarray(level_db) / 10), fraction)
+    return 10 * np.log10(np.maximum(p, 1e-30))
+
+
+def _soft_l1(d, scale):
+    """Residual whose square is the soft-L1 loss ``2 s^2 (sqrt(1 + (d/s)^2) - 1)``."""
+    z = (d / scale) ** 2
+    return scale * np.sign(d) * np.sqrt(2.0 * (np.sqrt(1.0 + z) - 1.0))
+
+
+def _check_tol(name, value, lo, hi):
+    v = float(value)
+    if not (math.isfinite(v) and lo <= v <= hi):
+        raise ValueError(f"{name} must be {lo:g}..{hi:g}, got {value!r}")
+    return v
+
+
+def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoothing=12,
+             absorption="axes", size_tolerance=0.05, position_tolerance_m=0.05, fit_speaker_positions=True,
+             fit_mic_positions=True, fit_lowcut=True, lowcut_tolerance=0.3, absolute=False,
+             regularization_db=0.5, robust_scale_db=3.0, cutoff_factor=2.0, max_iterations=40,
+             progress=None):
+    """Adjust absorption, dimensions, positions and roll-off so the model fits measurements.
+
+    Parameters
+    ----------
+    room : Room
+        The room file's model, with a layout naming every target's speaker.
+    targets : sequence of FitTarget
+        Measured curves; each must cover ``band_hz``.
+    band_hz : (float, float)
+        Fit band, Hz (below the Schroeder frequency, where the modal model holds).
+    points_per_octave : int
+        Density of the fit's log grid, 6..96 (24: a 20-200 Hz fit has 81 points).
+    smoothing : float
+        ``b`` of the 1/b-octave power smoothing applied alike to the prediction and the
+        measurement on the grid, 1..48, or 0 for none.
+    absorption : {"axes", "each", "all", "none"}
+        Surface groups whose absorption is scaled by one factor each (:data:`ABSORPTION_GROUPS`):
+        opposite pairs (default), every surface, one factor for all, or none.
+    size_tolerance : float
+        Largest relative change of each dimension, 0..0.2 (0 fixes them); default 5 %.
+    position_tolerance_m : float
+        Largest offset of each speaker and microphone coordinate, m, 0..0.5; default 5 cm.
+    fit_speaker_positions, fit_mic_positions, fit_lowcut : bool
+        Which of those parameter sets to adjust.
+    lowcut_tolerance : float
+        Largest relative change of a speaker's ``lowcut_hz``, 0..1; default 30 %.
+    absolute : bool
+        Keep the measured level as it is (a calibrated chain, levels in dB re the
+        free-field level at 1 m); otherwise each target gets its own level offset.
+    regularization_db : float
+        Strength of the pull toward the file's values, dB, >= 0: moving a parameter by
+        its prior unit (the tolerance; a factor 2 for absorption) costs as much as this
+        rms residual.
+    robust_scale_db : float
+        Residuals much larger than this count linearly, not quadratically (soft L1), dB, > 0.
+    cutoff_factor : float
+        Modes up to this multiple of the band's top enter the modal sum, 1.2..4 (the
+        solver's static tail accounts for the rest).
+    max_iterations : int
+        Jacobian evaluations (iterations) at most, 1..500.
+    progress : callable, optional
+        ``progress(iteration, max_iterations, cost)`` after each iteration.
+
+    Returns
+    -------
+    FitResult
+
+    Notes
+    -----
+    With ``u`` the parameters in prior units (0 at the file's values), the fit minimises
+
+    .. math:: \\frac{1}{N}\\sum_{t,i} \\rho(d_{t,i}) + \\lambda^2 \\sum_j u_j^2,\\qquad
+              \\rho(d) = 2 s^2 \\left(\\sqrt{1 + (d/s)^2} - 1\\right),
+
+    where ``d_{t,i}`` is the smoothed prediction minus the smoothed measurement of target
+    ``t`` at grid point ``i`` (minus its mean over the band unless absolute), ``s`` is
+    ``robust_scale_db`` and ``lambda`` is ``regularization_db`` (Tikhonov regularisation
+    toward the input; the soft-L1 function is the one ``scipy.optimize.least_squares``
+    calls ``"soft_l1"``). It is solved by ``scipy.optimize.least_squares`` (trust-region
+    reflective, bounds) with a forward-difference Jacobian.
+
+    Standard errors come from the Gauss-Newton covariance at the solution,
+    ``cov(u) = sigma^2 (J^T J)^{-1}`` with ``J`` the Jacobian of the residual including the
+    prior rows, and ``sigma^2 = mean(rho) / (N_eff - P)`` with ``N_eff`` the number of
+    independent points (``b`` per octave per target at 1/b-octave smoothing) and ``P``
+    the number of parameters. The figure is approximate: residuals of a model error are
+    not independent noise. A standard error near the prior unit means the measurements
+    say little about that parameter.
+
+    Surfaces on opposite sides of the room enter the modal model's damping only through
+    their sum, so with ``absorption="each"`` the split between them follows the file.
+    """
+    from .solvers import transfer_function
+    from .speaker import speaker_response
+
+    targets = list(targets)
+    if not targets:
+        raise ValueError("fit_room needs at least one measured curve")
+    if room.layout is None:
+        raise ValueError(f"{room.source or room.name}: the room file has no [speakers] and [seat] to fit")
+    if absorption not in ABSORPTION_GROUPS:
+        raise ValueError(f"absorption must be one of {', '.join(ABSORPTION_GROUPS)}, got {absorption!r}")
+    size_tol = _check_tol("size_tolerance", size_tolerance, 0.0, 0.2)
+    pos_tol = _check_tol("position_tolerance_m", position_tolerance_m, 0.0, 0.5)
+    lc_tol = _check_tol("lowcut_tolerance", lowcut_tolerance, 0.0, 1.0)
+    lam = _check_tol("regularization_db", regularization_db, 0.0, 1e3)
+    robust = _check_tol("robust_scale_db", robust_scale_db, 1e-3, 1e3)
+    cut = _check_tol("cutoff_factor", cutoff_factor, 1.2, 4.0)
+    if not (6 <= int(points_per_octave) <= 96):
+        raise ValueError(f"points_per_octave must be 6..96, got {points_per_octave!r}")
+    if not 1 <= int(max_iterations) <= 500:
+        raise ValueError(f"max_iterations must be 1..500, got {max_iterations!r}")
+    if smoothing and not 1 <= smoothing <= 48:
+        raise ValueError(f"smoothing must be 1..48 (1/b octave) or 0, got {smoothing!r}")
+    lo, hi = (float(v) for v in band_hz)
+    f = log_frequencies(lo, hi, int(points_per_octave))
+    f_ref = math.sqrt(lo * hi)
+
+    speakers = {s.name: s for s in room.layout.speakers}
+    spk_names, mic_list, pairs, meas = [], [], [], []
+    for t in targets:
+        if t.channel not in speakers:
+            raise ValueError(f"{t.label or 'a target'}: channel '{t.channel}' is not a speaker of the room file; "
+                             f"choose one of {', '.join(speakers)}")
+        tf = np.asarray(t.freq_hz, dtype=float)
+        if tf[0] > lo * 1.02 or tf[-1] < hi * 0.98:
+            raise ValueError(f"{t.label or 'a target'} covers {tf[0]:.4g}-{tf[-1]:.4g} Hz; the fit band "
+                             f"{lo:g}-{hi:g} Hz must lie inside it, within 2 % (narrow the band)")
+        if t.channel not in spk_names:
+            spk_names.append(t.channel)
+        pos = tuple(float(v) for v in t.position_m)
+        if not room.contains([pos])[0]:
+            raise ValueError(f"{t.label or 'a target'}: microphone position {pos} lies outside the room")
+        if pos not in mic_list:
+            mic_list.append(pos)
+        pairs.append((spk_names.index(t.channel), mic_list.index(pos)))
+        meas.append(_smooth(f, np.interp(np.log(f), np.log(tf), np.asarray(t.level_db, float)), smoothing))
+    meas = np.array(meas)
+    mic0 = np.array(mic_list)
+    spk0 = np.array([speakers[n].position_m for n in spk_names], dtype=float)
+    size0 = np.asarray(room.size_m, dtype=float)
+    areas = room.surface_areas_m2
+    alpha_ref = room.absorption([f_ref])[:, 0]
+
+    # ---- the parameter list
+    params = []
+    for group in ABSORPTION_GROUPS[absorption]:
+        params.append(_Param(f"absorption {'+'.join(group)}", "absorption", tuple(WALLS.index(w) for w in group),
+                             _ABS_SCALE, _ABS_BOUND_UNITS, ""))
+    if size_tol > 0:
+        for a, nm in enumerate(("length", "width", "height")):
+            params.append(_Param(nm, "size", (a,), size_tol * size0[a], 1.0, "m"))
+    if pos_tol > 0 and fit_speaker_positions:
+        for k, n in enumerate(spk_names):
+            for a, ax in enumerate("xyz"):
+                params.append(_Param(f"{n} {ax}", "speaker", (k, a), pos_tol, 1.0, "m"))
+    if pos_tol > 0 and fit_mic_positions:
+        for k in range(len(mic_list)):
+            for a, ax in enumerate("xyz"):
+                params.append(_Param(f"mic {k + 1} {ax}", "mic", (k, a), pos_tol, 1.0, "m"))
+    if lc_tol > 0 and fit_lowcut:
+        for k, n in enumerate(spk_names):
+            sp = speakers[n]
+            if sp.lowcut_hz and sp.response is None:
+                params.append(_Param(f"{n} lowcut", "lowcut", (k,), math.log1p(lc_tol), 1.0, "Hz"))
+    n_par = len(params)
+
+    def build(u):
+        """Room, speaker positions, speakers and mic positions for parameters ``u``."""
+        size = size0.copy()
+        factors = np.ones(6)
+        spk = spk0.copy()
+        mic = mic0.copy()
+        lowcut = {n: speakers[n].lowcut_hz for n in spk_names}
+        for p, uj in zip(params, u):
+            if p.kind == "absorption":
+                factors[list(p.key)] = math.exp(uj * p.scale)
+            elif p.kind == "size":
+                size[p.key[0]] += uj * p.scale
+            elif p.kind == "speaker":
+                spk[p.key] += uj * p.scale
+            elif p.kind == "mic":
+                mic[p.key] += uj * p.scale
+            else:
+                n = spk_names[p.key[0]]
+                lowcut[n] = speakers[n].lowcut_hz * math.exp(uj * p.scale)
+        surfaces = tuple(
+            s if factors[i] == 1.0 else Surface(s.name, tuple(min(a * factors[i], _MAX_ALPHA) for a in s.absorption),
+                                                s.bands_hz, None, s.extrapolated_hz)
+            for i, s in enumerate(room.surfaces))
+        lo_m = WALL_MARGIN_M
+        spk = np.clip(spk, lo_m, size - lo_m)
+        mic = np.clip(mic, lo_m, size - lo_m)
+        sps = [replace(speakers[n], position_m=tuple(float(v) for v in spk[k]), lowcut_hz=lowcut[n])
+               for k, n in enumerate(spk_names)]
+        r = replace(room, size_m=tuple(float(v) for v in size), surfaces=surfaces)
+        return r, spk, sps, mic
+
+    def predict_all(u):
+        r, spk, sps, mic = build(u)
+        h = transfer_function(r, spk, mic, f, cutoff_hz=cut * hi)
+        resp = [speaker_response(s, f) for s in sps]
+        return np.array([_smooth(f, 20 * np.log10(np.maximum(np.abs(h[s, m] * resp[s]), 1e-15)), smoothing)
+                         for s, m in pairs])
+
+    def differences(u):
+        pred = predict_all(u)
+        d = pred - meas
+        off = np.zeros(len(targets)) if absolute else -d.mean(axis=1)
+        return d + off[:, None], pred, off
+
+    n_data = meas.size
+    octaves = math.log2(hi / lo)
+    n_eff = len(targets) * min(f.size, max(1.0, octaves * (smoothing or points_per_octave)))
+    state = {"iter": 0, "calls": 0, "last": None}
+
+    def rows(u):
+        state["calls"] += 1
+        d, _, _ = differences(u)
+        return np.concatenate([_soft_l1(d.ravel(), robust) / math.sqrt(n_data), lam * np.asarray(u)])
+
+    def residual(u):
+        r = rows(u)
+        state["last"] = (np.array(u, copy=True), r)
+        return r
+
+    bounds_u = np.array([p.bound for p in params])
+
+    def jacobian(u):
+        u = np.asarray(u, dtype=float)
+        last = state["last"]
+        r0 = last[1] if last is not None and np.array_equal(last[0], u) else residual(u)
+        jac = np.empty((r0.size, n_par))
+        for j in range(n_par):
+            step = _FD_STEP if u[j] + _FD_STEP <= bounds_u[j] else -_FD_STEP
+            uj = u.copy()
+            uj[j] += step
+            jac[:, j] = (rows(uj) - r0) / step
+        state["iter"] += 1
+        if progress is not None:
+            progress(state["iter"], int(max_iterations), float(0.5 * r0 @ r0))
+        return jac
+
+    u0 = np.zeros(n_par)
+    d_before, pred_before, off_before = differences(u0)
+    if n_par:
+        sol = least_squares(residual, u0, jac=jacobian, bounds=(-bounds_u, bounds_u), method="trf",
+                            x_scale=1.0, max_nfev=int(max_iterations), xtol=1e-6, ftol=1e-8, gtol=1e-8)
+        u, jac, success, message = sol.x, sol.jac, bool(sol.success), str(sol.message)
+    else:
+        u, jac, success, message = u0, np.zeros((0, 0)), True, "nothing to fit"
+    d_after, pred_after, off_after = differences(u)
+
+    # ---- standard errors (Gauss-Newton, prior rows included)
+    if n_par:
+        rho_mean = float(np.mean(_soft_l1(d_after.ravel(), robust) ** 2))
+        sigma2 = rho_mean / max(1.0, n_eff - n_par)
+        jtj = jac.T @ jac
+        try:
+            cov = np.linalg.inv(jtj) * sigma2
+        except np.linalg.LinAlgError:
+            cov = np.full((n_par, n_par), np.nan)
+        se_u = np.sqrt(np.maximum(np.diag(cov), 0.0))
+    else:
+        se_u = np.zeros(0)
+
+    new_room, _spk_fit, sps_fit, mic_fit = build(u)
+    # keep speakers that were not fitted as they were, in the file's order
+    fitted = {s.name: s for s in sps_fit}
+    layout = replace(room.layout, speakers=tuple(fitted.get(s.name, s) for s in room.layout.speakers))
+    new_room = replace(new_room, layout=layout, source=None)
+
+    out = []
+    for j, p in enumerate(params):
+        uj, bu = float(u[j]), p.bound
+        at_bound = abs(uj) >= bu - 1e-3
+        if p.kind == "absorption":
+            idx = list(p.key)
+            a0 = float(np.sum(alpha_ref[idx] * areas[idx]) / np.sum(areas[idx]))
+            a1 = float(np.sum(np.minimum(alpha_ref[idx] * math.exp(uj * p.scale), _MAX_ALPHA) * areas[idx])
+                       / np.sum(areas[idx]))
+            out.append(FitParameter(p.name, p.unit, a0, a1, a0 * math.exp(-bu * p.scale),
+                                    min(a0 * math.exp(bu * p.scale), _MAX_ALPHA), a1 * p.scale * se_u[j],
+                                    at_bound, p.kind))
+        elif p.kind == "lowcut":
+            n = spk_names[p.key[0]]
+            v0 = float(speakers[n].lowcut_hz)
+            v1 = v0 * math.exp(uj * p.scale)
+            out.append(FitParameter(p.name, p.unit, v0, v1, v0 * math.exp(-bu * p.scale),
+                                    v0 * math.exp(bu * p.scale), v1 * p.scale * se_u[j], at_bound, p.kind))
+        else:
+            if p.kind == "size":
+                v0 = float(size0[p.key[0]])
+            elif p.kind == "speaker":
+                v0 = float(spk0[p.key])
+            else:
+                v0 = float(mic0[p.key])
+            out.append(FitParameter(p.name, p.unit, v0, v0 + uj * p.scale, v0 - bu * p.scale, v0 + bu * p.scale,
+                                    p.scale * se_u[j], at_bound, p.kind))
+
+    return FitResult(
+        room=new_room, parameters=tuple(out), freq_hz=f, measured_db=meas,
+        before_db=pred_before + off_before[:, None], after_db=pred_after + off_after[:, None],
+        level_offsets_db=off_after, error_before=fit_error(d_before), error_after=fit_error(d_after),
+        mic_positions_m=mic_fit, iterations=state["iter"], evaluations=state["calls"], success=success,
+        message=message, reference_hz=f_ref, labels=tuple(t.label for t in targets))
