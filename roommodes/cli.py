@@ -24,6 +24,12 @@ class _Group(click.Group):
     """Turns input problems raised below the CLI into one line and exit code 2."""
 
     def invoke(self, ctx):
+        import warnings
+
+        def show(message, category, filename, lineno, file=None, line=None):
+            click.echo(f"roommodes: warning: {message}", err=True)
+
+        warnings.showwarning = show
         try:
             return super().invoke(ctx)
         except (ValueError, FileExistsError) as exc:  # RoomFileError is a ValueError

@@ -11,11 +11,17 @@ and compared:
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 
 from .modal import modal_transfer
 
-__all__ = ["transfer_function", "METHODS"]
+__all__ = ["transfer_function", "METHODS", "SolverConvergenceWarning"]
+
+
+class SolverConvergenceWarning(UserWarning):
+    """A solver stopped before its result converged to the requested tolerance."""
 
 METHODS = ("modal", "image")
 
@@ -80,6 +86,11 @@ def transfer_function(room, sources_m, receivers_m, freq_hz, method="modal", **o
     if method == "image":
         from .images import image_source_transfer
 
-        h, _info = image_source_transfer(room.size_m, zeta, src, rec, f, room.speed_of_sound, **options)
+        h, info = image_source_transfer(room.size_m, zeta, src, rec, f, room.speed_of_sound, **options)
+        if not info["converged"]:
+            warnings.warn(SolverConvergenceWarning(
+                f"the image-source sum stopped at reflection order {info['order']} before converging "
+                f"(remainder up to {np.max(info['remainder_db']):.2f} dB); the walls are too hard for "
+                "image sources to be practical: use the modal solver"), stacklevel=2)
         return h
     raise ValueError(f"method must be one of {', '.join(METHODS)}, got {method!r}")
