@@ -274,7 +274,10 @@ def demo(out_dir):
 # Commands of later features live in their own modules and are registered here.
 from .cli_eq import eq  # noqa: E402
 from .cli_measure import COMMANDS as _MEASURE_COMMANDS  # noqa: E402
+from .cli_place import explain, place  # noqa: E402
 
+main.add_command(place)
+main.add_command(explain)
 main.add_command(eq)
 for _cmd in _MEASURE_COMMANDS:  # sweep, ir, noise, bands, decay, compare, fit
     main.add_command(_cmd)

@@ -37,7 +37,9 @@ import numpy as np
 
 from ..modes import mode_indices, mode_shapes, wall_weights
 
-__all__ = ["modal_transfer", "static_green", "DEFAULT_CUTOFF_FACTOR"]
+__all__ = ["modal_transfer", "static_green", "DEFAULT_CUTOFF_FACTOR", "modal_weights", "modal_sum_block",
+           "static_green_pairs", "static_green_block", "static_tail",
+           "modal_transfer_batched"]
 
 #: The modal sum runs to ``DEFAULT_CUTOFF_FACTOR`` times the highest frequency asked for.
 DEFAULT_CUTOFF_FACTOR = 3.0
@@ -173,3 +175,291 @@ def modal_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound
                 full = 4 * np.pi * static_green(size, src[i], rec[j])
                 out[i, j, :] += full - low[i, j]
     return out
+
+
+# ---------------------------------------------------------------------------------------
+# Batched evaluation: the same modal sum written as matrix products, for many sources and
+# receivers at once (placement search). Results equal modal_transfer's to round-off.
+# ---------------------------------------------------------------------------------------
+
+#: Largest temporary array (elements) the batched functions build at once.
+_BATCH_ELEMENTS = 8_000_000
+
+
+def modal_weights(size_m, zeta, freq_hz, speed_of_sound, *, cutoff_hz=None):
+    """The frequency part of the modal sum: ``H = psi_s^T diag(.) psi_r`` factors.
+
+    ``H(r_s, r_r, f) = sum_n psi_n(r_s) psi_n(r_r) W[n, f] + T(r_s, r_r)``, where
+    ``W[n, f] = 4 pi eps_n / (V (k_n^2 - k^2 + j k b_n))`` is the modal weight and ``T``
+    the static tail (:func:`static_tail`). Same modes, damping and cutoff as
+    :func:`modal_transfer`.
+
+    Parameters
+    ----------
+    size_m : array_like (3,)
+        Room dimensions, m.
+    zeta : array_like (6,) or (6, F)
+        Real normalised wall impedances (``inf`` rigid).
+    freq_hz : array_like (F,)
+        Frequencies, Hz, > 0.
+    speed_of_sound : float
+        m/s.
+    cutoff_hz : float, optional
+        Highest mode in the sum; default ``DEFAULT_CUTOFF_FACTOR * max(freq_hz)``.
+
+    Returns
+    -------
+    indices : ndarray of int (N, 3)
+        Mode indices, starting with (0, 0, 0).
+    weight : ndarray, complex (N, F)
+        ``W[n, f]`` (normalised as ``H = 4 pi G``).
+    static_weight : ndarray (N,)
+        ``4 pi eps_n / (V k_n^2)``, the static limit of ``W``; 0 for the (0, 0, 0) term.
+
+    Notes
+    -----
+    Kuttruff, Room Acoustics, 5th ed., 2009, sec. 3.4-3.5 (see the module docstring).
+    """
+    size = np.asarray(size_m, dtype=float)
+    f = np.atleast_1d(np.asarray(freq_hz, dtype=float))
+    c = float(speed_of_sound)
+    if f.ndim != 1 or np.any(~np.isfinite(f)) or np.any(f <= 0):
+        raise ValueError("freq_hz must be a 1-D array of positive frequencies in Hz")
+    z = np.asarray(zeta, dtype=float)
+    if z.shape == (6,):
+        z = np.repeat(z[:, None], f.size, axis=1)
+    if z.shape != (6, f.size):
+        raise ValueError(f"zeta must have shape (6,) or (6, {f.size}), got {z.shape}")
+    fc = DEFAULT_CUTOFF_FACTOR * f.max() if cutoff_hz is None else float(cutoff_hz)
+    idx, fn = mode_indices(size, fc, c)
+    kn2 = (2 * np.pi * fn / c) ** 2
+    k = 2 * np.pi * f / c
+    eps = np.prod(np.where(idx != 0, 2.0, 1.0), axis=1)
+    damp = wall_weights(idx, size) @ (1.0 / z)
+    denom = kn2[:, None] - k[None, :] ** 2 + 1j * k[None, :] * damp
+    weight = (4 * np.pi * eps / np.prod(size))[:, None] / denom
+    static_weight = np.zeros(idx.shape[0])
+    static_weight[1:] = 4 * np.pi * eps[1:] / np.prod(size) / kn2[1:]
+    return idx, weight, static_weight
+
+
+def modal_sum_block(psi_src, psi_rec, weight):
+    """``H[s, r, f] = sum_n psi_src[s, n] psi_rec[r, n] weight[n, f]`` as one real GEMM.
+
+    The smaller of the two point sets is folded into the weights
+    (``B[n, (r, f)] = psi_rec[r, n] W[n, f]``), and the other multiplies it as a real
+    (points x N) by (N x 2 R F) matrix product (complex numbers viewed as pairs of reals).
+
+    Parameters
+    ----------
+    psi_src : ndarray (S, N)
+        Mode shapes at the sources (:func:`roommodes.modes.mode_shapes`).
+    psi_rec : ndarray (R, N)
+        Mode shapes at the receivers.
+    weight : ndarray, complex (N, F)
+        Modal weights (:func:`modal_weights`).
+
+    Returns
+    -------
+    ndarray, complex (S, R, F)
+    """
+    a = np.ascontiguousarray(psi_src, dtype=float)
+    b = np.ascontiguousarray(psi_rec, dtype=float)
+    w = np.ascontiguousarray(weight, dtype=complex)
+    swap = a.shape[0] < b.shape[0]
+    if swap:
+        a, b = b, a
+    n_rows, n_modes = a.shape
+    n_fold, n_freq = b.shape[0], w.shape[1]
+    out = np.empty((n_rows, n_fold, n_freq), dtype=complex)
+    chunk = max(1, _BATCH_ELEMENTS // max(1, 2 * n_modes * n_freq))
+    for j0 in range(0, n_fold, chunk):
+        j1 = min(n_fold, j0 + chunk)
+        fold = (b[j0:j1].T[:, :, None] * w[:, None, :]).reshape(n_modes, (j1 - j0) * n_freq)
+        res = a @ fold.view(np.float64)  # (rows, 2 * (j1 - j0) * F) real
+        out[:, j0:j1, :] = res.view(np.complex128).reshape(n_rows, j1 - j0, n_freq)
+    return out.transpose(1, 0, 2) if swap else out
+
+
+def _terms_2d(kmax, lb, lc):
+    """The 2-D modes (m, p) of the two transverse axes (lengths lb, lc) with ``kappa <= kmax``:
+    their indices, ``kappa = pi sqrt((m/lb)^2 + (p/lc)^2)`` and weights ``eps_m eps_p / (lb lc)``."""
+    mb = min(int(kmax * lb / np.pi) + 1, _STATIC_MAX_INDEX)
+    mc = min(int(kmax * lc / np.pi) + 1, _STATIC_MAX_INDEX)
+    m, p = np.meshgrid(np.arange(mb + 1), np.arange(mc + 1), indexing="ij")
+    kappa = np.pi * np.sqrt((m / lb) ** 2 + (p / lc) ** 2)
+    keep = kappa <= kmax
+    weight = np.where(m > 0, 2.0, 1.0) * np.where(p > 0, 2.0, 1.0) / (lb * lc)
+    return m[keep], p[keep], kappa[keep], weight[keep]
+
+
+def static_green_pairs(size_m, sources_m, receivers_m):
+    """:func:`static_green` for many (source, receiver) pairs, vectorised.
+
+    Each pair is summed along its axis of largest separation, as :func:`static_green`
+    does; pairs are processed in groups of similar separation, and each group keeps the
+    2-D terms that its closest pair needs (so every pair keeps at least the terms
+    :func:`static_green` keeps for it).
+
+    Parameters
+    ----------
+    size_m : array_like (3,)
+    sources_m, receivers_m : array_like (P, 3)
+        Paired points inside the box, m.
+
+    Returns
+    -------
+    ndarray (P,)
+    """
+    size = np.asarray(size_m, dtype=float)
+    s = np.atleast_2d(np.asarray(sources_m, dtype=float))
+    r = np.atleast_2d(np.asarray(receivers_m, dtype=float))
+    if s.shape != r.shape or s.ndim != 2 or s.shape[1] != 3:
+        raise ValueError(f"sources_m and receivers_m must both be (P, 3), got {s.shape} and {r.shape}")
+    d = np.abs(s - r)
+    axis = np.argmax(d, axis=1)
+    out = np.empty(s.shape[0])
+    for a in range(3):
+        sel = np.flatnonzero(axis == a)
+        if sel.size == 0:
+            continue
+        b, c = [i for i in range(3) if i != a]
+        sep = np.maximum(d[sel, a], 1e-3)
+        # bins of separation a factor 1.25 wide; each bin keeps the terms its closest pair needs
+        bins = np.floor(np.log(sep) / np.log(1.25)).astype(int)
+        for key in np.unique(bins):
+            members = sel[bins == key]
+            m, p, kappa, w = _terms_2d(_STATIC_DECAY / sep[bins == key].min(), size[b], size[c])
+            mb, mc = np.arange(m.max() + 1) * np.pi / size[b], np.arange(p.max() + 1) * np.pi / size[c]
+            rows = max(1, _BATCH_ELEMENTS // (4 * kappa.size))
+            for i0 in range(0, members.size, rows):
+                grp = members[i0:i0 + rows]
+                lo = np.minimum(s[grp, a], r[grp, a])[:, None]
+                hi = np.maximum(s[grp, a], r[grp, a])[:, None]
+                # the transverse shapes from per-axis cosine tables (one cosine per index, not per term)
+                cos_b = np.cos(mb * s[grp, b][:, None]) * np.cos(mb * r[grp, b][:, None])
+                cos_c = np.cos(mc * s[grp, c][:, None]) * np.cos(mc * r[grp, c][:, None])
+                shape = cos_b[:, m] * cos_c[:, p]
+                shape *= _g1d(lo, hi, kappa, size[a])
+                out[grp] = shape @ w
+    return out
+
+
+def _g1d(lo, hi, kappa, length):
+    """1-D Neumann Green's function of ``-d2/dx2 + kappa^2`` on [0, L], broadcast over
+    ``lo <= hi`` (P, 1) and ``kappa`` (K,); the kappa = 0 column is the zero-mean form."""
+    k = np.where(kappa > 0, kappa, 1.0)
+    num = (np.exp(k * (lo - hi)) + np.exp(k * (lo + hi - 2 * length)) + np.exp(-k * (lo + hi))
+           + np.exp(-k * (2 * length + lo - hi)))
+    g = num / (2.0 * k * (1.0 - np.exp(-2.0 * k * length)))
+    zero = length / 3.0 - hi + (lo**2 + hi**2) / (2.0 * length)
+    return np.where(kappa > 0, g, zero)
+
+
+def static_green_block(size_m, sources_m, receivers_m, min_gap_m=0.05):
+    """:func:`static_green` for every source and every receiver, shape (S, R).
+
+    When, along some axis, every source lies on one side of every receiver (at least
+    ``min_gap_m`` apart), the closed-form 1-D Green's function factorises,
+    ``cosh(kappa x_<) (e^{-kappa x_>} + e^{kappa (x_> - 2L)}) / (kappa (1 - e^{-2 kappa L}))``,
+    and the whole block is one matrix product over the 2-D modes of the other two axes.
+    Otherwise every pair is summed separately (:func:`static_green_pairs`).
+
+    Parameters
+    ----------
+    size_m : array_like (3,)
+    sources_m : array_like (S, 3)
+    receivers_m : array_like (R, 3)
+    min_gap_m : float
+        Smallest separation for the factorised form, m.
+
+    Returns
+    -------
+    ndarray (S, R)
+    """
+    size = np.asarray(size_m, dtype=float)
+    s = np.atleast_2d(np.asarray(sources_m, dtype=float))
+    r = np.atleast_2d(np.asarray(receivers_m, dtype=float))
+    gaps = np.maximum(r.min(axis=0) - s.max(axis=0), s.min(axis=0) - r.max(axis=0))  # (3,)
+    a = int(np.argmax(gaps))
+    if gaps[a] < min_gap_m:
+        ss = np.repeat(s, r.shape[0], axis=0)
+        rr = np.tile(r, (s.shape[0], 1))
+        return static_green_pairs(size, ss, rr).reshape(s.shape[0], r.shape[0])
+    b, c = [i for i in range(3) if i != a]
+    src_low = s[:, a].max() < r[:, a].min()
+    low, high = (s, r) if src_low else (r, s)
+    length = size[a]
+    # the points of the larger set are binned by their own gap to the other set (bins a
+    # factor 1.5 wide), so that each bin keeps only the 2-D terms its closest point needs
+    big_is_low = low.shape[0] >= high.shape[0]
+    gap_each = (high[:, a].min() - low[:, a]) if big_is_low else (high[:, a] - low[:, a].max())
+    bins = np.floor(np.log(np.maximum(gap_each, min_gap_m)) / np.log(1.5)).astype(int)
+    g = np.empty((low.shape[0], high.shape[0]))
+    for key in np.unique(bins):
+        part = bins == key
+        lo_pts, hi_pts = (low[part], high) if big_is_low else (low, high[part])
+        gap = hi_pts[:, a].min() - lo_pts[:, a].max()
+        m, p, kappa, w = _terms_2d(_STATIC_DECAY / gap, size[b], size[c])
+        pos = kappa > 0
+        m, p, kp, wp = m[pos], p[pos], kappa[pos], w[pos]
+        kb, kc = np.arange(m.max() + 1) * np.pi / size[b], np.arange(p.max() + 1) * np.pi / size[c]
+        mid = 0.5 * (lo_pts[:, a].max() + hi_pts[:, a].min())  # scaling point keeps every factor <= 2
+        lo_x, hi_x = lo_pts[:, a][:, None], hi_pts[:, a][:, None]
+        # transverse shapes from per-axis cosine tables (one cosine per index, not per term)
+        u = (np.cos(kb * lo_pts[:, b][:, None])[:, m] * np.cos(kc * lo_pts[:, c][:, None])[:, p]
+             * (wp * 0.5) * (np.exp(kp * (lo_x - mid)) + np.exp(-kp * (lo_x + mid))))
+        v = (np.cos(kb * hi_pts[:, b][:, None])[:, m] * np.cos(kc * hi_pts[:, c][:, None])[:, p]
+             * (np.exp(kp * (mid - hi_x)) + np.exp(kp * (hi_x + mid - 2 * length)))
+             / (kp * (1.0 - np.exp(-2.0 * kp * length))))
+        gb = u @ v.T  # (low, high)
+        w0 = w[~pos][0]  # the (0, 0) term: zero-mean 1-D Green's function
+        gb += w0 * (length / 3.0 - hi_x.T + (lo_x**2 + hi_x.T**2) / (2.0 * length))
+        if big_is_low:
+            g[part] = gb
+        else:
+            g[:, part] = gb
+    return g if src_low else g.T
+
+
+def static_tail(size_m, sources_m, receivers_m, indices, static_weight, *, pairs=False):
+    """The static limit of the modes above the cutoff, ``4 pi G_s - sum psi psi W_static``.
+
+    Parameters
+    ----------
+    size_m : array_like (3,)
+    sources_m, receivers_m : array_like (S, 3) and (R, 3), or both (P, 3) when ``pairs``
+    indices, static_weight : from :func:`modal_weights`
+    pairs : bool
+        Paired points (result (P,)) instead of every source with every receiver (S, R).
+
+    Returns
+    -------
+    ndarray (S, R) or (P,)
+        Real, frequency independent; add it to every frequency of the modal sum.
+    """
+    size = np.asarray(size_m, dtype=float)
+    psi_s = mode_shapes(indices[1:], size, sources_m)
+    psi_r = mode_shapes(indices[1:], size, receivers_m)
+    sw = np.asarray(static_weight, dtype=float)[1:]
+    if pairs:
+        return 4 * np.pi * static_green_pairs(size, sources_m, receivers_m) - np.sum(psi_s * sw * psi_r, axis=1)
+    return 4 * np.pi * static_green_block(size, sources_m, receivers_m) - (psi_s * sw) @ psi_r.T
+
+
+def modal_transfer_batched(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound, *,
+                           cutoff_hz=None, static_tail_on=True):
+    """:func:`modal_transfer` computed with matrix products (same arguments and result).
+
+    Returns
+    -------
+    H : ndarray, complex (N, M, F)
+    """
+    size = np.asarray(size_m, dtype=float)
+    src = _as_points("sources_m", sources_m)
+    rec = _as_points("receivers_m", receivers_m)
+    idx, weight, sw = modal_weights(size, zeta, freq_hz, speed_of_sound, cutoff_hz=cutoff_hz)
+    h = modal_sum_block(mode_shapes(idx, size, src), mode_shapes(idx, size, rec), weight)
+    if static_tail_on:
+        h += static_tail(size, src, rec, idx, sw)[:, :, None]
+    return h

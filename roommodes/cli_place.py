@@ -1,0 +1,343 @@
+"""The ``place`` and ``explain`` commands: placement search and the left/right explanation.
+
+Registered on the main group in :mod:`roommodes.cli`. Same conventions as every command:
+``--json`` prints one JSON object on stdout and nothing else there; messages, the progress
+bar and cautions go to stderr; bad input gives one line and exit code 2.
+"""
+
+from __future__ import annotations
+
+import math
+import sys
+import time
+from dataclasses import replace
+from pathlib import Path
+
+import click
+import numpy as np
+
+from . import __version__
+from ._cliutil import (
+    CONTEXT,
+    MODEL_CAUTION,
+    check_output,
+    dump_json,
+    echo_err,
+    fail,
+    json_option,
+    load_or_fail,
+    parse_range,
+    protect_inputs,
+    walls_text,
+)
+
+__all__ = ["place", "explain"]
+
+
+def _parse_weights(text):
+    if text is None:
+        return None
+    out = {}
+    for item in text.split(","):
+        if not item.strip():
+            continue
+        name, sep, value = item.partition("=")
+        try:
+            v = float(value)
+        except ValueError:
+            v = None
+        if not sep or v is None:
+            fail(f"--weights must be NAME=VALUE pairs separated by commas, e.g. mismatch=2,boost=0; got '{text}'")
+        out[name.strip()] = v
+    if not out:
+        fail("--weights is empty; give NAME=VALUE pairs, e.g. mismatch=2,boost=0")
+    return out
+
+
+def _layout_obj(room, scored):
+    lay = scored.layout
+    return {
+        "name": scored.name,
+        "speakers": [{"name": s.name, "position_m": s.position_m, "walls": walls_text(room, s.position_m)}
+                     for s in lay.speakers],
+        "seat_m": lay.seat_m, "seat_walls": walls_text(room, lay.seat_m),
+        "score": scored.score, "parts": scored.parts, "in_region": scored.in_region,
+    }
+
+
+def _row(label, s, parts):
+    note = "" if s.in_region else "  (outside the [search] region)"
+    return f"  {label:<10} {s.score:7.2f}  " + "  ".join(f"{s.parts[p]:>{max(len(p), 5)}.2f}" for p in parts) + note
+
+
+# ---------------------------------------------------------------------------- place
+@click.command(context_settings=CONTEXT)
+@click.argument("room_file", type=click.Path(path_type=Path))
+@click.option("--top", type=click.IntRange(1, 50), default=5, show_default=True, help="How many layouts to list.")
+@click.option("--weights", metavar="NAME=W,...",
+              help="Weights of the score parts (flatness, mismatch, area, boost, robustness); parts not named keep "
+                   "their defaults (1, 1, 1, 0.25, 1).")
+@click.option("--band", metavar="LOW,HIGH",
+              help="Band scored, Hz. Default: max(20 Hz, the speakers' low cut) to 200 Hz.")
+@click.option("--points-per-octave", type=click.IntRange(6, 96), default=24, show_default=True,
+              help="Frequency grid of the scores.")
+@click.option("--plot", "plot_path", type=click.Path(path_type=Path),
+              help="Write the figure (curves, floor plan with a seat-score map, score vs front distance).")
+@click.option("--write-layout", "layout_path", type=click.Path(path_type=Path), metavar="FILE.toml",
+              help="Write the room file again with the best layout (a new file, never the input).")
+@click.option("--force", is_flag=True, help="Overwrite an existing output file (never the input).")
+@json_option
+def place(room_file, top, weights, band, points_per_octave, plot_path, layout_path, force, as_json):
+    """Search where to put the two speakers and the seat, and rank the layouts.
+
+    The allowed region, symmetry, listening triangle, listening area and keep-out boxes
+    come from the room file's [search] table (defaults in docs/placement.md). The score
+    (lower is better, in dB) adds weighted parts: flatness of each channel at the seat,
+    left/right mismatch, spread over the listening area, EQ boost the deepest broad dip
+    would need, and robustness to 5 cm moves. The four standard placements and the file's
+    own layout are scored the same way and shown in the same table.
+    """
+    from .search import PARTS, search_layouts, search_space
+
+    room = load_or_fail(room_file)
+    w = _parse_weights(weights)
+    band_hz = parse_range(band, "--band") if band else None
+    for out in (plot_path, layout_path):
+        if out:
+            protect_inputs(out, room_file)
+            check_output(out, force)
+    if layout_path and Path(layout_path).suffix.lower() != ".toml":
+        fail(f"--write-layout needs a .toml file name, got {layout_path}")
+    try:
+        space = search_space(room)
+        t0 = time.perf_counter()
+        # the bar appears with the first progress report, i.e. once the input has passed
+        # every check, so that bad input gives one line on stderr and nothing else
+        state = {"done": 0, "bar": None}
+
+        def progress(fraction):
+            if state["bar"] is None:
+                state["bar"] = click.progressbar(length=1000, label="searching", file=sys.stderr)
+                state["bar"].__enter__()
+            n = int(1000 * min(max(fraction, 0.0), 1.0))
+            if n > state["done"]:
+                state["bar"].update(n - state["done"])
+                state["done"] = n
+
+        try:
+            res = search_layouts(room, space, w, band_hz, top, points_per_octave, progress=progress)
+        finally:
+            if state["bar"] is not None:
+                state["bar"].__exit__(None, None, None)
+        elapsed = time.perf_counter() - t0
+    except ValueError as exc:
+        fail(str(exc))
+    best = res.ranked[0]
+    if as_json:
+        dump_json({
+            "roommodes_version": __version__, "room": room.name, "size_m": room.size_m,
+            "band_hz": res.band_hz, "weights": res.weights, "parts": list(PARTS),
+            "score_definition": "sum of weight x part, each part in dB; lower is better (docs/placement.md)",
+            "search": {"coarse_step_m": res.step_m, "candidates": res.n_candidates,
+                       "layout_evaluations": res.n_layout_evaluations, "frequencies": res.n_frequencies,
+                       "area_points": int(np.prod(space.area_points)), "area_m": space.area_m,
+                       "symmetric": space.symmetric, "elapsed_s": elapsed},
+            "ranked": [_layout_obj(room, s) for s in res.ranked],
+            "presets": [_layout_obj(room, s) for s in res.presets],
+            "current": _layout_obj(room, res.current) if res.current is not None else None,
+        })
+    else:
+        lx, ly, lz = room.size_m
+        click.echo(f"Placement search, '{room.name}' ({lx:g} x {ly:g} x {lz:g} m): {res.band_hz[0]:g}-"
+                   f"{res.band_hz[1]:g} Hz, listening area {space.area_m[0]:g} x {space.area_m[1]:g} m "
+                   f"({space.area_points[0]} x {space.area_points[1]} points), "
+                   f"{'mirror-symmetric pair' if space.symmetric else 'pair placed freely'}")
+        click.echo(f"Scored {res.n_candidates} layouts on a {res.step_m * 100:g} cm grid, then refined the best "
+                   f"({res.n_layout_evaluations} layouts in all, {elapsed:.1f} s).")
+        click.echo("Score (dB, lower is better) = " + " + ".join(f"{res.weights[p]:g} {p}" for p in PARTS))
+        click.echo("")
+        click.echo(f"  {'layout':<10} {'score':>7}  " + "  ".join(f"{p:>{max(len(p), 5)}}" for p in PARTS))
+        for s in res.ranked:
+            click.echo(_row(f"#{s.name}", s, PARTS))
+        if res.current is not None:
+            click.echo(_row("file", res.current, PARTS))
+        for s in res.presets:
+            click.echo(_row(s.name, s, PARTS))
+        ref = min([s.score for s in res.presets] + ([res.current.score] if res.current is not None else []))
+        click.echo("")
+        click.echo(f"The best layout scores {best.score:.2f} dB, {ref - best.score:.2f} dB better than the best of the "
+                   "file's layout and the standard placements.")
+        for s in list(res.ranked) + ([res.current] if res.current is not None else []) + list(res.presets):
+            click.echo("")
+            click.echo(f"{'#' + s.name if s in res.ranked else s.name}:")
+            for sp in s.layout.speakers:
+                click.echo(f"  {sp.name} speaker: {walls_text(room, sp.position_m)}")
+            click.echo(f"  seat: {walls_text(room, s.layout.seat_m)}")
+        click.echo("")
+    echo_err(MODEL_CAUTION)
+    if layout_path:
+        from .roomfile import room_to_toml, write_text_atomic
+
+        new_room = room.with_layout(replace(best.layout, name="file"))
+        text = room_to_toml(new_room, comment=(
+            f"Written by roommodes {__version__} place from {room_file}: the best layout of the search "
+            f"(score {best.score:.2f} dB over {res.band_hz[0]:g}-{res.band_hz[1]:g} Hz)."))
+        try:
+            write_text_atomic(layout_path, text, overwrite=force)
+        except (FileExistsError, OSError) as exc:
+            fail(str(exc))
+        echo_err(f"wrote {layout_path}")
+    if plot_path:
+        _place_plot(room, space, res, plot_path)
+        echo_err(f"wrote {plot_path}")
+
+
+def _place_plot(room, space, res, path):
+    from .plots_place import plot_place
+    from .predict import predict
+    from .search import front_distance_profile, seat_score_map
+
+    best = res.ranked[0].layout
+    preds = [("best", predict(room, best))]
+    current = room.layout if room.layout is not None and len(room.layout.speakers) >= 2 else None
+    if current is not None:
+        preds.append(("current", predict(room, current)))
+    kw = {"weights": res.weights, "band_hz": res.band_hz, "area_m": space.area_m, "area_points": space.area_points}
+    seat_map = seat_score_map(room, best, **kw)
+    lo = max(0.05, min(space.speaker_front_m[0], best.speakers[0].position_m[0]) - 0.15)
+    hi = min(best.seat_m[0] - 0.5, max(space.speaker_front_m[1], best.speakers[0].position_m[0]) + 0.15)
+    profile = front_distance_profile(room, best, distances_m=np.arange(lo, hi + 1e-9, 0.02), space=space, **kw)
+    plot_place(room, best, current, preds, res.band_hz, preds[0][1].schroeder_hz, seat_map, profile,
+               space.keep_out, path=path)
+
+
+# ---------------------------------------------------------------------------- explain
+@click.command(context_settings=CONTEXT)
+@click.argument("room_file", type=click.Path(path_type=Path))
+@click.option("--channels", metavar="FIRST,SECOND", help="The two speakers compared (default the first two).")
+@click.option("--threshold", type=float, default=3.0, show_default=True,
+              help="Smallest |first - second| (dB, smoothed) that makes a region.")
+@click.option("--band", metavar="LOW,HIGH",
+              help="Where regions are looked for, Hz. Default: max(20 Hz, the speakers' low cut) to 200 Hz.")
+@click.option("--freq-range", default="15,300", show_default=True, metavar="LOW,HIGH",
+              help="Frequency range of the curves, Hz.")
+@click.option("--points-per-octave", type=click.IntRange(6, 384), default=48, show_default=True,
+              help="Frequency-grid density.")
+@click.option("--smoothing", type=click.IntRange(0, 48), default=6, show_default=True,
+              help="1/N-octave power smoothing of the curves regions are found on (0: none).")
+@click.option("--plot", "plot_path", type=click.Path(path_type=Path),
+              help="Write the figure: both channels and the mono sum, the difference with its regions.")
+@click.option("--force", is_flag=True, help="Overwrite an existing plot file.")
+@json_option
+def explain(room_file, channels, threshold, band, freq_range, points_per_octave, smoothing, plot_path, force,
+            as_json):
+    """Explain why the two channels differ at the seat, and what to move.
+
+    Shows each channel's level at the seat, their difference (first minus second) and the
+    mono sum (both driven in phase). For every region where the smoothed |difference|
+    reaches the threshold it ranks the causes (room modes with each speaker's and the
+    seat's coupling to them; boundaries with their quarter-wave notches c/4d), and
+    predicts the effect of the single speaker move that reduces the difference most.
+    """
+    from .explain import explain as run_explain
+    from .response import log_frequencies
+    from .search import search_space
+
+    if not math.isfinite(threshold) or threshold <= 0:
+        fail(f"--threshold must be a positive number of dB, got {threshold:g}")
+    lo, hi = parse_range(freq_range)
+    band_hz = parse_range(band, "--band") if band else None
+    names = None
+    if channels is not None:
+        names = tuple(c.strip() for c in channels.split(","))
+        if len(names) != 2 or not all(names):
+            fail(f"--channels must be two speaker names separated by a comma, e.g. left,right; got '{channels}'")
+    room = load_or_fail(room_file)
+    if room.layout is None:
+        fail(f"{room_file}: the room file has no [speakers] and [seat]; add them to explain the difference")
+    if plot_path:
+        protect_inputs(plot_path, room_file)
+        check_output(plot_path, force)
+    try:
+        keep = search_space(room).keep_out
+        e = run_explain(room, channels=names, freq_hz=log_frequencies(lo, hi, points_per_octave),
+                        threshold_db=threshold, band_hz=band_hz, smoothing=smoothing, keep_out=keep)
+    except ValueError as exc:
+        fail(str(exc))
+    n1, n2 = e.names
+    if as_json:
+        dump_json({
+            "roommodes_version": __version__, "room": room.name, "channels": list(e.names),
+            "positions_m": list(e.positions_m), "seat_m": e.seat_m, "frequencies_hz": e.freq_hz,
+            "level_db": {n1: e.level_db[0], n2: e.level_db[1]},
+            "smoothed_db": {n1: e.smoothed_db[0], n2: e.smoothed_db[1]}, "smoothing_octave_fraction": e.smoothing,
+            "difference_db": e.difference_db, "difference_smoothed_db": e.difference_smoothed_db,
+            "mono_db": e.mono_db, "mono_smoothed_db": e.mono_smoothed_db,
+            "band_hz": e.band_hz, "threshold_db": e.threshold_db, "schroeder_hz": e.schroeder_hz,
+            "band_mismatch_db": e.band_mismatch_db,
+            "regions": [_region_obj(r) for r in e.regions],
+            "mono_cancelled_modes": list(e.mono_cancelled),
+        })
+    else:
+        click.echo(f"Why {n1} and {n2} differ at the seat, '{room.name}'")
+        click.echo(f"  {n1}: {walls_text(room, e.positions_m[0])}")
+        click.echo(f"  {n2}: {walls_text(room, e.positions_m[1])}")
+        click.echo(f"  seat: {walls_text(room, e.seat_m)}")
+        sm = f"1/{e.smoothing}-octave smoothed" if e.smoothing else "unsmoothed"
+        click.echo("")
+        click.echo(f"Level at the seat (dB re free field at 1 m, {sm}); difference = {n1} - {n2}; mono = both in phase")
+        click.echo(f"  {'Hz':>5}  {n1:>7}  {n2:>7}  {'diff':>6}  {'mono':>6}")
+        for fc in (20, 25, 31.5, 40, 50, 63, 80, 100, 125, 160, 200, 250):
+            if e.freq_hz[0] <= fc <= e.freq_hz[-1]:
+                i = int(np.argmin(np.abs(np.log(e.freq_hz / fc))))
+                mark = "  *" if abs(e.difference_smoothed_db[i]) >= e.threshold_db and \
+                    e.band_hz[0] <= e.freq_hz[i] <= e.band_hz[1] else ""
+                click.echo(f"  {fc:>5g}  {e.smoothed_db[0, i]:7.1f}  {e.smoothed_db[1, i]:7.1f}  "
+                           f"{e.difference_smoothed_db[i]:+6.1f}  {e.mono_smoothed_db[i]:6.1f}{mark}")
+        click.echo(f"RMS difference over {e.band_hz[0]:g}-{e.band_hz[1]:g} Hz: {e.band_mismatch_db:.1f} dB")
+        click.echo("")
+        if not e.regions:
+            click.echo(f"No region of {e.band_hz[0]:g}-{e.band_hz[1]:g} Hz where |{n1} - {n2}| reaches "
+                       f"{e.threshold_db:g} dB.")
+        else:
+            click.echo(f"Regions where |{n1} - {n2}| >= {e.threshold_db:g} dB ({e.band_hz[0]:g}-{e.band_hz[1]:g} Hz):")
+        for k, r in enumerate(e.regions, 1):
+            click.echo(f"{k}. {r.sentence}")
+            if r.causes:
+                click.echo("   Causes (contribution to the mean |difference| in the region):")
+            for c in r.causes[:5]:
+                extra = ""
+                if c.kind == "mode":
+                    p1, p2 = c.data["psi_speakers"]
+                    extra = f"; psi {n1} {p1:+.2f}, {n2} {p2:+.2f}, seat {c.data['psi_seat']:+.2f}"
+                click.echo(f"     {c.contribution_db:4.1f} dB  {c.text}{extra}")
+            for nt in r.notches:
+                click.echo(f"     notch: {nt['speaker']} speaker {nt['distance_m'] * 100:.0f} cm from the "
+                           f"{nt['wall']}{'' if nt['wall'] in ('floor', 'ceiling') else ' wall'}, "
+                           f"c/4d = {nt['notch_hz']:.0f} Hz")
+        if e.mono_cancelled:
+            click.echo("")
+            click.echo("Modes the two speakers drive in opposite phase (they cancel in the mono sum): " + ", ".join(
+                f"({','.join(str(v) for v in m['indices'])}) {m['freq_hz']:.1f} Hz" for m in e.mono_cancelled[:8]))
+        click.echo("")
+        click.echo(f"Schroeder frequency {e.schroeder_hz:.0f} Hz: results above it are indicative only.")
+    echo_err(MODEL_CAUTION)
+    if plot_path:
+        from .plots_place import plot_explain
+
+        plot_explain(e, title=f"{room.name}: {n1} and {n2} at the seat", path=plot_path)
+        echo_err(f"wrote {plot_path}")
+
+
+def _region_obj(r):
+    return {
+        "freq_hz": list(r.freq_hz), "peak_hz": r.peak_hz, "difference_db": r.difference_db, "valid": r.valid,
+        "causes": [{**c.data, "contribution_db": c.contribution_db, "text": c.text} for c in r.causes],
+        "notches": list(r.notches),
+        "move": None if r.move is None else {
+            "speaker": r.move.speaker, "axis": "xyz"[r.move.axis], "delta_m": r.move.delta_m,
+            "direction": r.move.direction, "position_m": r.move.position_m,
+            "region_before_db": r.move.region_before_db, "region_after_db": r.move.region_after_db,
+            "band_before_db": r.move.band_before_db, "band_after_db": r.move.band_after_db},
+        "sentence": r.sentence,
+    }

@@ -1,0 +1,168 @@
+"""Figures of the placement search and of the left/right explanation.
+
+Same style as :mod:`roommodes.plots` (its palette, log-frequency axes and the shading
+above the Schroeder frequency); matplotlib is imported only when a figure is drawn.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .plots import PALETTE, new_figure, save_figure, shade_invalid, style_frequency_axis
+
+__all__ = ["plot_place", "plot_explain"]
+
+
+def _curves(ax, predictions, band_hz, schroeder_hz):
+    styles = ("-", "--")
+    for i, (label, pred) in enumerate(predictions):
+        for j, ch in enumerate(pred.channels[:2]):
+            ax.plot(pred.freq_hz, ch.level_db, color=PALETTE[i % len(PALETTE)], ls=styles[j % 2], lw=1.4,
+                    label=f"{label}: {ch.name}")
+    f = predictions[0][1].freq_hz
+    if band_hz[0] > f[0]:
+        ax.axvspan(f[0], band_hz[0], color="0.95", lw=0, zorder=0)
+        ax.text(np.sqrt(f[0] * band_hz[0]), 0.97, "below the scored band", transform=ax.get_xaxis_transform(),
+                fontsize=7.5, color="0.35", ha="center", va="top")
+    shade_invalid(ax, schroeder_hz, f[-1])
+    style_frequency_axis(ax, f[0], f[-1])
+    lv = np.concatenate([c.level_db for _, p in predictions for c in p.channels[:2]])
+    ax.set_ylim(np.floor(np.percentile(lv, 1) / 5) * 5 - 5, np.ceil(lv.max() / 5) * 5 + 5)
+    ax.set_ylabel("Level at seat (dB re free field at 1 m)")
+    ax.legend(fontsize=7.5, ncol=2, loc="lower center")
+    ax.set_title(f"(a) Predicted level at the seat; score band {band_hz[0]:g}-{band_hz[1]:g} Hz", fontsize=10)
+
+
+def _floor_plan(ax, room, best, current, keep_out, seat_map):
+    from matplotlib.patches import Rectangle
+
+    lx, ly, _ = room.size_m
+    x, y, score = seat_map
+    if np.isfinite(score).any():
+        step = x[1] - x[0] if x.size > 1 else lx
+        # drawn with y (left to right) across and x (front to back) downwards: the view
+        # from above with the front wall at the top
+        finite = score[np.isfinite(score)]
+        mesh = ax.pcolormesh(np.append(y - step / 2, y[-1] + step / 2), np.append(x - step / 2, x[-1] + step / 2),
+                             score, cmap="viridis_r", shading="flat", vmin=finite.min(),
+                             vmax=np.percentile(finite, 90))
+        cb = ax.figure.colorbar(mesh, ax=ax, shrink=0.85)
+        cb.set_label("score with the seat here (dB, lower is better;\nrobustness left out; top 10 % clipped)",
+                     fontsize=7.5)
+    ax.add_patch(Rectangle((0, 0), ly, lx, fill=False, lw=2.0, color="0.15"))
+    for box in keep_out:
+        ax.add_patch(Rectangle((box.min_m[1], box.min_m[0]), box.max_m[1] - box.min_m[1], box.max_m[0] - box.min_m[0],
+                               hatch="///", fill=False, color=PALETTE[3], lw=1.2))
+        ax.text(0.5 * (box.min_m[1] + box.max_m[1]), 0.5 * (box.min_m[0] + box.max_m[0]), box.name, ha="center",
+                va="center", fontsize=7, color=PALETTE[3])
+    for lay, color, label, marker in ((current, "0.45", "current", "s"), (best, PALETTE[1], "best", "o")):
+        if lay is None:
+            continue
+        sp = np.array([s.position_m for s in lay.speakers])
+        ax.plot(sp[:, 1], sp[:, 0], marker, color=color, ms=9, mec="white", label=f"{label}: speakers")
+        ax.plot(lay.seat_m[1], lay.seat_m[0], "*", color=color, ms=13, mec="white", label=f"{label}: seat")
+        for p in sp:
+            ax.plot([p[1], lay.seat_m[1]], [p[0], lay.seat_m[0]], color=color, lw=0.8, ls=":")
+    ax.set_xlim(-0.1, ly + 0.1)
+    ax.set_ylim(lx + 0.1, -0.1)
+    ax.set_aspect("equal")
+    ax.set_xlabel("from the left wall (m)")
+    ax.set_ylabel("from the front wall (m)")
+    ax.text(ly / 2, 0.04, "front wall", ha="center", va="top", fontsize=7.5, color="0.2")
+    ax.legend(fontsize=7, loc="lower left", framealpha=0.85)
+    ax.set_title("(b) Floor plan and the score as the seat moves", fontsize=10)
+
+
+def _profile(ax, profile, chosen_m):
+    d, score, parts, allowed = profile
+    ax.plot(d * 100, score, color="0.1", lw=1.8, label="score")
+    for i, name in enumerate(("flatness", "mismatch", "area", "boost", "robustness")):
+        ax.plot(d * 100, parts[name], color=PALETTE[i % len(PALETTE)], lw=1.0, ls="--", label=name)
+    if allowed is not None and allowed.any():
+        step = (d[1] - d[0]) / 2 if d.size > 1 else 0.01
+        edges = np.flatnonzero(np.diff(np.concatenate([[0], allowed.astype(int), [0]])))
+        for k, (i, j) in enumerate(zip(edges[::2], edges[1::2])):
+            ax.axvspan((d[i] - step) * 100, (d[j - 1] + step) * 100, color="0.92", lw=0, zorder=0,
+                       label="meets every constraint" if k == 0 else None)
+    ax.set_xlim(d[0] * 100, d[-1] * 100)
+    ax.axvline(chosen_m * 100, color=PALETTE[1], lw=1.0)
+    ax.set_xlabel("speakers' distance from the front wall (cm)")
+    ax.set_ylabel("dB (lower is better)")
+    ax.grid(True, alpha=0.3)
+    ax.legend(fontsize=7, ncol=2)
+    ax.set_title("(c) Score as the speakers move from the front wall", fontsize=10)
+
+
+def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map, profile, keep_out=(),
+               title=None, path=None):
+    """The placement figure: (a) curves, (b) floor plan with the seat-score map, (c) profile.
+
+    Parameters
+    ----------
+    room : Room
+    best, current : Layout (current may be None)
+    predictions : list of (label, Prediction)
+        Curves drawn in (a), e.g. the best layout and the current one.
+    band_hz : (float, float)
+        The scored band.
+    schroeder_hz : float
+    seat_map : (x_m, y_m, score)
+        From :func:`roommodes.search.seat_score_map`.
+    profile : (distance_m, score, parts, allowed)
+        From :func:`roommodes.search.front_distance_profile`; the distances where every
+        constraint holds (``allowed``, may be None) are shaded.
+    keep_out : sequence of KeepOut
+    """
+    fig, axes = new_figure(11.0, 9.0, 2, 2)
+    gs = axes[0, 0].get_gridspec()
+    for ax in axes[0]:
+        ax.remove()
+    top = fig.add_subplot(gs[0, :])
+    _curves(top, predictions, band_hz, schroeder_hz)
+    _floor_plan(axes[1, 0], room, best, current, keep_out, seat_map)
+    _profile(axes[1, 1], profile, best.speakers[0].position_m[0])
+    fig.suptitle(title or f"Placement search: {room.name}", fontsize=11)
+    if path is not None:
+        save_figure(fig, path)
+    return fig
+
+
+def plot_explain(explanation, title=None, path=None):
+    """Both channels and the mono sum (top); their difference with the regions (bottom)."""
+    e = explanation
+    fig, (ax1, ax2) = new_figure(9.0, 7.0, 2, 1, sharex=True)
+    f = e.freq_hz
+    for i, name in enumerate(e.names):
+        ax1.plot(f, e.level_db[i], color=PALETTE[i], lw=0.8, alpha=0.45)
+        ax1.plot(f, e.smoothed_db[i], color=PALETTE[i], lw=1.6, label=f"{name} (1/{e.smoothing}-octave)"
+                 if e.smoothing else name)
+    ax1.plot(f, e.mono_smoothed_db, color="0.1", lw=1.4, ls="--", label="mono sum (both in phase)")
+    shade_invalid(ax1, e.schroeder_hz, f[-1])
+    style_frequency_axis(ax1, f[0], f[-1])
+    lv = np.concatenate([e.smoothed_db.ravel(), e.mono_smoothed_db])
+    ax1.set_ylim(np.floor(np.percentile(lv, 1) / 5) * 5 - 5, np.ceil(lv.max() / 5) * 5 + 5)
+    ax1.set_ylabel("Level at seat (dB re free field at 1 m)")
+    ax1.legend(fontsize=8, loc="lower center", ncol=3)
+    ax1.set_title(title or f"{e.names[0]} and {e.names[1]} at the seat", fontsize=11)
+    ax2.plot(f, e.difference_db, color="0.6", lw=0.8, label="difference (unsmoothed)")
+    ax2.plot(f, e.difference_smoothed_db, color=PALETTE[2], lw=1.6, label=f"{e.names[0]} - {e.names[1]}")
+    for sign in (1, -1):
+        ax2.axhline(sign * e.threshold_db, color="0.4", lw=0.8, ls=":")
+    for k, r in enumerate(e.regions, 1):
+        ax2.axvspan(r.freq_hz[0] / 1.01, r.freq_hz[1] * 1.01, color=PALETTE[4], alpha=0.25, lw=0)
+        ax2.text(r.peak_hz, r.difference_db, f" {k}", fontsize=8, va="bottom" if r.difference_db > 0 else "top")
+    for a, b in ((f[0], e.band_hz[0]), (e.band_hz[1], f[-1])):
+        if b > a:
+            ax2.axvspan(a, b, color="0.95", lw=0, zorder=0)
+            ax2.text(np.sqrt(a * b), 0.97, "outside the band", transform=ax2.get_xaxis_transform(), fontsize=7.5,
+                     color="0.35", ha="center", va="top")
+    style_frequency_axis(ax2, f[0], f[-1])
+    d = e.difference_smoothed_db
+    lim = max(6.0, np.ceil(np.max(np.abs(d)) / 3) * 3 + 1)
+    ax2.set_ylim(-lim, lim)
+    ax2.set_ylabel("Difference (dB)")
+    ax2.legend(fontsize=8, loc="lower left")
+    ax2.set_title(f"Regions where |difference| >= {e.threshold_db:g} dB (numbered as in the text)", fontsize=10)
+    if path is not None:
+        save_figure(fig, path)
+    return fig
