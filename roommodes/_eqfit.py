@@ -361,7 +361,7 @@ class Limits:
 # Parametric fit
 # ----------------------------------------------------------------------------------------
 def fit_peaking(f, dev, limits, f_bounds, q_range, gain_bounds, max_filters, sample_rate,
-                boost_cost=0.02, boost_preference=0.7, stop_db=1.0, weights=None):
+                boost_cost=0.02, boost_preference=0.7, stop_db=1.0, weights=None, gain_cost=0.003):
     """Greedy-then-joint least-squares fit of peaking filters to cancel ``dev``.
 
     Parameters
@@ -382,6 +382,10 @@ def fit_peaking(f, dev, limits, f_bounds, q_range, gain_bounds, max_filters, sam
         the next filter.
     stop_db : float
         The greedy loop stops once no weighted deviation exceeds this.
+    gain_cost : float
+        Weight of one row ``sqrt(gain_cost * sum(w^2)) * gain_i`` per filter: a small
+        price on every dB of every filter, so that the fit does not sculpt a curve with
+        large opposing pairs of filters when a single one does nearly as well.
 
     Returns
     -------
@@ -393,6 +397,7 @@ def fit_peaking(f, dev, limits, f_bounds, q_range, gain_bounds, max_filters, sam
     lo = np.array([np.log(f_bounds[0]), gain_bounds[0], np.log(q_range[0])])
     hi = np.array([np.log(f_bounds[1]), gain_bounds[1], np.log(q_range[1])])
     sqrt_bc = np.sqrt(boost_cost)
+    sqrt_gc = np.sqrt(gain_cost * float(np.sum(w**2)))
 
     def unpack(x):
         x = x.reshape(-1, 3)
@@ -402,11 +407,13 @@ def fit_peaking(f, dev, limits, f_bounds, q_range, gain_bounds, max_filters, sam
         f0, g, q = unpack(x)
         return response_db("peaking", f0, g, q, grid, sample_rate).sum(axis=0)
 
-    def resid(x):
+    def resid(x, gain_rows=True):
         c = curves(x, f)
         cd = curves(x, limits.f)
-        return np.concatenate([w * (dev + c), limits.penalty(cd),
-                               sqrt_bc * w * np.maximum(c, 0.0)])
+        rows = [w * (dev + c), limits.penalty(cd), sqrt_bc * w * np.maximum(c, 0.0)]
+        if gain_rows:
+            rows.append(sqrt_gc * x.reshape(-1, 3)[:, 1])
+        return np.concatenate(rows)
 
     def cost(x):
         r = resid(x)
@@ -441,8 +448,36 @@ def fit_peaking(f, dev, limits, f_bounds, q_range, gain_bounds, max_filters, sam
         if new_cost > best_cost - 1e-3 * cost_empty:
             break
         x, best_cost = sol.x, new_cost
+    x = _merge_twins(x, resid, cost, lo, hi, best_cost)
+    if x.size:
+        # final polish without the gain price: it chose the filters, it must not bias them
+        n = x.size // 3
+        x = least_squares(lambda v: resid(v, gain_rows=False), x, bounds=(np.tile(lo, n), np.tile(hi, n)),
+                          method="trf", x_scale=np.tile([0.05, 1.0, 0.2], n), tr_solver="lsmr",
+                          max_nfev=50 * n).x
     f0, g, q = unpack(x)
     return [("peaking", float(a), float(b), float(c)) for a, b, c in zip(f0, g, q)]
+
+
+def _merge_twins(x, resid, cost, lo, hi, best_cost, tol=0.02):
+    """Replace two filters at nearly the same frequency and Q by one, when the refitted
+    cascade is hardly worse (<= 2 % in cost): a table with two identical lines helps no one."""
+    while x.size >= 6:
+        p = x.reshape(-1, 3)
+        pair = next(((i, j) for i in range(len(p)) for j in range(i + 1, len(p))
+                     if abs(p[i, 0] - p[j, 0]) < tol and abs(p[i, 2] - p[j, 2]) < 0.3), None)
+        if pair is None:
+            return x
+        i, j = pair
+        trial = np.delete(p.copy(), j, axis=0)
+        trial[i, 1] = np.clip(p[i, 1] + p[j, 1], lo[1], hi[1])
+        n = len(trial)
+        sol = least_squares(resid, trial.ravel(), bounds=(np.tile(lo, n), np.tile(hi, n)), method="trf",
+                            x_scale=np.tile([0.05, 1.0, 0.2], n), tr_solver="lsmr", max_nfev=100 * n)
+        if cost(sol.x) > 1.02 * best_cost + 1e-12:
+            return x
+        x, best_cost = sol.x, cost(sol.x)
+    return x
 
 
 # ----------------------------------------------------------------------------------------
