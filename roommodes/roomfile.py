@@ -14,7 +14,6 @@ import difflib
 import math
 import os
 import tomllib
-from importlib import resources
 from pathlib import Path
 
 import numpy as np
@@ -42,12 +41,13 @@ class RoomFileError(ValueError):
 
 
 def _rooms_folder():
-    # Installed: the repository's rooms/ folder is package data (roommodes.rooms).
-    # Editable or source checkout: the folder beside the package.
-    try:
-        return Path(str(resources.files("roommodes.rooms")))
-    except ModuleNotFoundError:
-        return Path(__file__).resolve().parent.parent / "rooms"
+    # Installed: the repository's rooms/ folder is package data inside the package
+    # (roommodes/rooms). Editable or source checkout: the folder beside the package.
+    here = Path(__file__).resolve().parent
+    for folder in (here / "rooms", here.parent / "rooms"):
+        if (folder / "demo-studio.toml").is_file():
+            return folder
+    raise RoomFileError(f"the bundled example rooms are missing (looked in {here / 'rooms'}); reinstall roommodes")
 
 
 def demo_room_path():

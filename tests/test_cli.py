@@ -107,3 +107,19 @@ def test_bad_room_file_through_cli(tmp_path):
 def test_plot_into_missing_folder(tmp_path):
     res = run("predict", DEMO, "--plot", tmp_path / "no" / "x.png")
     assert res.exit_code == 2 and "does not exist" in res.stderr
+
+
+def test_installed_console_script_runs_the_demo(tmp_path):
+    # The README's first command runs the console script of the installed package from any
+    # folder; run it outside the source tree so the installed copy (and its bundled rooms)
+    # is what gets tested.
+    import shutil
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    exe = shutil.which("roommodes") or str(Path(sys.executable).parent / "roommodes")
+    res = subprocess.run([exe, "demo", "--out", str(tmp_path / "d")], cwd=tmp_path, capture_output=True,
+                         text=True, timeout=300)
+    assert res.returncode == 0, res.stderr
+    assert (tmp_path / "d" / "predict-layouts.png").exists()
