@@ -44,7 +44,7 @@ from .predict import boundary_notches, room_schroeder_frequency
 from .response import level_db, log_frequencies, smooth_fractional_octave
 from .room import WALL_AXIS, WALL_FAR, WALLS
 from .solvers import transfer_function
-from .solvers.modal import modal_weights, static_tail
+from .solvers.modal import modal_weights, static_tail_term
 from .speaker import speaker_response
 
 __all__ = ["Cause", "Move", "Region", "Explanation", "explain", "modal_decomposition"]
@@ -173,7 +173,7 @@ def modal_decomposition(room, sources_m, receiver_m, freq_hz):
     psi_s = mode_shapes(idx, room.size_m, src)
     psi_r = mode_shapes(idx, room.size_m, rec)[0]
     terms = (psi_s * psi_r)[:, :, None] * weight[None]
-    rest = static_tail(room.size_m, src, rec, idx, sw)[:, 0]
+    rest = static_tail_term(room.size_m, src, rec, idx, sw)[:, 0]
     return idx, terms, rest
 
 
@@ -364,7 +364,7 @@ def explain(room, layout=None, channels=None, freq_hz=None, threshold_db=DEFAULT
     resp = np.stack([speaker_response(s, f) for s in chosen])
     idx, weight, sw = modal_weights(room.size_m, room.impedance(f), f, room.speed_of_sound)
     psi = np.vstack([mode_shapes(idx, room.size_m, pos), mode_shapes(idx, room.size_m, [seat])])  # (3, N)
-    rest = static_tail(room.size_m, pos, [seat], idx, sw)[:, 0]
+    rest = static_tail_term(room.size_m, pos, [seat], idx, sw)[:, 0]
     h = ((psi[:2] * psi[2]) @ weight + rest[:, None]) * resp
     level = level_db(h)
     smooth = np.stack([_smooth_db(f, h[c], smoothing) for c in range(2)])

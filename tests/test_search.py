@@ -37,7 +37,7 @@ from roommodes.search import (
 )
 from roommodes.solvers.modal import (
     modal_transfer,
-    modal_transfer_batched,
+    modal_transfer_direct,
     modal_weights,
     static_green,
     static_green_block,
@@ -86,8 +86,8 @@ def test_batched_transfer_equals_modal_transfer():
     rng = np.random.default_rng(5)
     src = rng.uniform(0.1, 0.9, (6, 3)) * SIZE
     rec = rng.uniform(0.1, 0.9, (5, 3)) * SIZE
-    ref = modal_transfer(SIZE, zeta, src, rec, f, C)
-    got = modal_transfer_batched(SIZE, zeta, src, rec, f, C)
+    ref = modal_transfer_direct(SIZE, zeta, src, rec, f, C)
+    got = modal_transfer(SIZE, zeta, src, rec, f, C)
     np.testing.assert_allclose(got, ref, rtol=1e-6)
     idx, w, sw = modal_weights(SIZE, zeta, f, C)
     assert w.shape == (idx.shape[0], f.size) and sw[0] == 0.0

@@ -37,9 +37,8 @@ import numpy as np
 
 from ..modes import mode_indices, mode_shapes, wall_weights
 
-__all__ = ["modal_transfer", "static_green", "DEFAULT_CUTOFF_FACTOR", "modal_weights", "modal_sum_block",
-           "static_green_pairs", "static_green_block", "static_tail",
-           "modal_transfer_batched"]
+__all__ = ["modal_transfer", "modal_transfer_direct", "static_green", "DEFAULT_CUTOFF_FACTOR",
+           "modal_weights", "modal_sum_block", "static_green_pairs", "static_green_block", "static_tail_term"]
 
 #: The modal sum runs to ``DEFAULT_CUTOFF_FACTOR`` times the highest frequency asked for.
 DEFAULT_CUTOFF_FACTOR = 3.0
@@ -54,21 +53,6 @@ def _as_points(name, pts):
     if p.ndim != 2 or p.shape[1] != 3:
         raise ValueError(f"{name} must be an (N, 3) array of positions in metres, got shape {p.shape}")
     return p
-
-
-def _green_1d_static(x, x0, kappa, length):
-    """1-D Neumann Green's function of ``-d2/dx2 + kappa^2`` on [0, L] (zero mean at 0)."""
-    lo = np.minimum(x, x0)
-    hi = np.maximum(x, x0)
-    out = np.empty(np.broadcast(lo, kappa).shape)
-    zero = kappa == 0
-    # kappa = 0: generalised Green's function with the constant mode removed
-    out[zero] = (length / 3.0 - hi + (x**2 + x0**2) / (2.0 * length)) * np.ones_like(out[zero])
-    k = kappa[~zero]
-    e = np.exp
-    num = e(k * (lo - hi)) + e(k * (lo + hi - 2 * length)) + e(-k * (lo + hi)) + e(-k * (2 * length + lo - hi))
-    out[~zero] = num / (2.0 * k * (1.0 - e(-2.0 * k * length)))
-    return out
 
 
 def static_green(size_m, source_m, receiver_m):
@@ -106,74 +90,31 @@ def static_green(size_m, source_m, receiver_m):
     weight = (np.where(m > 0, 2.0, 1.0) * np.where(p > 0, 2.0, 1.0)) / (size[b] * size[c])
     shape = np.cos(kb * s[b]) * np.cos(kb * r[b]) * np.cos(kc * s[c]) * np.cos(kc * r[c])
     keep = kappa <= kmax
-    g = _green_1d_static(s[a], r[a], kappa[keep], size[a])
+    g = _g1d(min(s[a], r[a]), max(s[a], r[a]), kappa[keep], size[a])
     return float(np.sum((weight * shape)[keep] * g))
 
 
-def modal_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound, *,
-                   cutoff_hz=None, static_tail=True):
-    """Complex transfer from point sources to receivers by the modal sum.
+def modal_transfer_direct(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound, *,
+                          cutoff_hz=None, static_tail=True):
+    """The modal sum evaluated term by term: one receiver and one pair at a time.
 
-    Parameters
-    ----------
-    size_m : array_like (3,)
-        Room dimensions (Lx, Ly, Lz), m.
-    zeta : array_like (6,) or (6, F)
-        Real normalised impedance of each wall (front, back, left, right, floor,
-        ceiling), per frequency or constant; ``inf`` is rigid.
-    sources_m : array_like (N, 3)
-    receivers_m : array_like (M, 3)
-        Positions inside the room, m.
-    freq_hz : array_like (F,)
-        Frequencies, Hz, > 0.
-    speed_of_sound : float
-        m/s.
-    cutoff_hz : float, optional
-        Highest mode in the sum; default ``DEFAULT_CUTOFF_FACTOR * max(freq_hz)``.
-    static_tail : bool
-        Add the static limit of the modes above the cutoff (recommended).
-
-    Returns
-    -------
-    H : ndarray, complex, shape (N, M, F)
-        ``4 pi G``: pressure relative to the free-field pressure at 1 m.
+    Same arguments and result as :func:`modal_transfer`; slower, and written to be read
+    next to the formula in the module docstring. Tests hold the fast form to it.
     """
     size = np.asarray(size_m, dtype=float)
     src = _as_points("sources_m", sources_m)
     rec = _as_points("receivers_m", receivers_m)
-    f = np.atleast_1d(np.asarray(freq_hz, dtype=float))
-    c = float(speed_of_sound)
-    if np.any(f <= 0):
-        raise ValueError("frequencies must be positive")
-    z = np.asarray(zeta, dtype=float)
-    if z.shape == (6,):
-        z = np.repeat(z[:, None], f.size, axis=1)
-    if z.shape != (6, f.size):
-        raise ValueError(f"zeta must have shape (6,) or (6, {f.size}), got {z.shape}")
-    beta = 1.0 / z  # (6, F), 0 for rigid walls
-
-    fc = DEFAULT_CUTOFF_FACTOR * f.max() if cutoff_hz is None else float(cutoff_hz)
-    idx, fn = mode_indices(size, fc, c)
-    kn2 = (2 * np.pi * fn / c) ** 2
-    k = 2 * np.pi * f / c
-    eps = np.prod(np.where(idx != 0, 2.0, 1.0), axis=1)
-    damp = wall_weights(idx, size) @ beta  # (N, F)
-    denom = kn2[:, None] - k[None, :] ** 2 + 1j * k[None, :] * damp
-    weight = (4 * np.pi * eps / np.prod(size))[:, None] / denom  # (N, F)
-
+    idx, weight, static_w = modal_weights(size, zeta, freq_hz, speed_of_sound, cutoff_hz=cutoff_hz)
     psi_s = mode_shapes(idx, size, src)  # (S, N)
     psi_r = mode_shapes(idx, size, rec)  # (M, N)
-    out = np.empty((src.shape[0], rec.shape[0], f.size), dtype=complex)
+    out = np.empty((src.shape[0], rec.shape[0], weight.shape[1]), dtype=complex)
     for j in range(rec.shape[0]):
         out[:, j, :] = (psi_s * psi_r[j]) @ weight
-
     if static_tail:
-        static_w = 4 * np.pi * eps[1:] / np.prod(size) / kn2[1:]
-        low = (psi_s[:, 1:] * static_w) @ psi_r[:, 1:].T  # (S, M)
+        low = (psi_s * static_w) @ psi_r.T  # (S, M): the static limit of the modes kept
         for i in range(src.shape[0]):
             for j in range(rec.shape[0]):
-                full = 4 * np.pi * static_green(size, src[i], rec[j])
-                out[i, j, :] += full - low[i, j]
+                out[i, j, :] += 4 * np.pi * static_green(size, src[i], rec[j]) - low[i, j]
     return out
 
 
@@ -191,7 +132,7 @@ def modal_weights(size_m, zeta, freq_hz, speed_of_sound, *, cutoff_hz=None):
 
     ``H(r_s, r_r, f) = sum_n psi_n(r_s) psi_n(r_r) W[n, f] + T(r_s, r_r)``, where
     ``W[n, f] = 4 pi eps_n / (V (k_n^2 - k^2 + j k b_n))`` is the modal weight and ``T``
-    the static tail (:func:`static_tail`). Same modes, damping and cutoff as
+    the static tail (:func:`static_tail_term`). Same modes, damping and cutoff as
     :func:`modal_transfer`.
 
     Parameters
@@ -422,7 +363,8 @@ def static_green_block(size_m, sources_m, receivers_m, min_gap_m=0.05):
     return g if src_low else g.T
 
 
-def static_tail(size_m, sources_m, receivers_m, indices, static_weight, *, pairs=False):
+def static_tail_term(size_m, sources_m, receivers_m, indices, static_weight, *, pairs=False,
+                     shapes=None):
     """The static limit of the modes above the cutoff, ``4 pi G_s - sum psi psi W_static``.
 
     Parameters
@@ -432,6 +374,8 @@ def static_tail(size_m, sources_m, receivers_m, indices, static_weight, *, pairs
     indices, static_weight : from :func:`modal_weights`
     pairs : bool
         Paired points (result (P,)) instead of every source with every receiver (S, R).
+    shapes : (ndarray, ndarray), optional
+        Mode shapes of ``indices`` at the sources and receivers, when already computed.
 
     Returns
     -------
@@ -439,27 +383,49 @@ def static_tail(size_m, sources_m, receivers_m, indices, static_weight, *, pairs
         Real, frequency independent; add it to every frequency of the modal sum.
     """
     size = np.asarray(size_m, dtype=float)
-    psi_s = mode_shapes(indices[1:], size, sources_m)
-    psi_r = mode_shapes(indices[1:], size, receivers_m)
+    if shapes is None:
+        shapes = (mode_shapes(indices, size, sources_m), mode_shapes(indices, size, receivers_m))
+    psi_s, psi_r = shapes[0][:, 1:], shapes[1][:, 1:]
     sw = np.asarray(static_weight, dtype=float)[1:]
     if pairs:
         return 4 * np.pi * static_green_pairs(size, sources_m, receivers_m) - np.sum(psi_s * sw * psi_r, axis=1)
     return 4 * np.pi * static_green_block(size, sources_m, receivers_m) - (psi_s * sw) @ psi_r.T
 
 
-def modal_transfer_batched(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound, *,
-                           cutoff_hz=None, static_tail_on=True):
-    """:func:`modal_transfer` computed with matrix products (same arguments and result).
+def modal_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound, *,
+                   cutoff_hz=None, static_tail=True):
+    """Complex transfer from point sources to receivers by the modal sum.
+
+    Parameters
+    ----------
+    size_m : array_like (3,)
+        Room dimensions (Lx, Ly, Lz), m.
+    zeta : array_like (6,) or (6, F)
+        Real normalised impedance of each wall (front, back, left, right, floor,
+        ceiling), per frequency or constant; ``inf`` is rigid.
+    sources_m : array_like (N, 3)
+    receivers_m : array_like (M, 3)
+        Positions inside the room, m.
+    freq_hz : array_like (F,)
+        Frequencies, Hz, > 0.
+    speed_of_sound : float
+        m/s.
+    cutoff_hz : float, optional
+        Highest mode in the sum; default ``DEFAULT_CUTOFF_FACTOR * max(freq_hz)``.
+    static_tail : bool
+        Add the static limit of the modes above the cutoff (recommended).
 
     Returns
     -------
-    H : ndarray, complex (N, M, F)
+    H : ndarray, complex, shape (N, M, F)
+        ``4 pi G``: pressure relative to the free-field pressure at 1 m.
     """
     size = np.asarray(size_m, dtype=float)
     src = _as_points("sources_m", sources_m)
     rec = _as_points("receivers_m", receivers_m)
     idx, weight, sw = modal_weights(size, zeta, freq_hz, speed_of_sound, cutoff_hz=cutoff_hz)
-    h = modal_sum_block(mode_shapes(idx, size, src), mode_shapes(idx, size, rec), weight)
-    if static_tail_on:
-        h += static_tail(size, src, rec, idx, sw)[:, :, None]
+    shapes = (mode_shapes(idx, size, src), mode_shapes(idx, size, rec))
+    h = modal_sum_block(*shapes, weight)
+    if static_tail:
+        h += static_tail_term(size, src, rec, idx, sw, shapes=shapes)[:, :, None]
     return h
