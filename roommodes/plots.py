@@ -66,7 +66,8 @@ def shade_invalid(ax, schroeder_hz, fmax):
     if schroeder_hz < fmax:
         ax.axvspan(schroeder_hz, fmax, color="0.85", alpha=0.6, lw=0, zorder=0)
         ax.text(schroeder_hz * 1.02, 0.90, f"above the Schroeder\nfrequency ({schroeder_hz:.0f} Hz):\nindicative only",
-                transform=ax.get_xaxis_transform(), fontsize=7.5, color="0.3", va="top")
+                transform=ax.get_xaxis_transform(), fontsize=7.5, color="0.3", va="top",
+                bbox={"facecolor": "white", "alpha": 0.75, "edgecolor": "none", "pad": 1.5})
 
 
 def mark_modes(ax, modes, fmin, fmax, max_order=2):
@@ -95,9 +96,13 @@ def plot_prediction(predictions, modes=None, title=None, path=None):
     f = preds[0].freq_hz
     styles = ("-", "--", ":", "-.")
     for i, p in enumerate(preds):
-        for j, ch in enumerate(p.channels):
+        same = len(p.channels) > 1 and all(np.allclose(c.level_db, p.channels[0].level_db, atol=0.01)
+                                           for c in p.channels[1:])
+        for j, ch in enumerate(p.channels[:1] if same and len(preds) > 1 else p.channels):
             if len(preds) == 1:
                 color, ls, label = PALETTE[j % len(PALETTE)], "-", ch.name
+            elif same:
+                color, ls, label = PALETTE[i % len(PALETTE)], "-", f"{p.layout_name} (all channels alike)"
             else:
                 color, ls, label = PALETTE[i % len(PALETTE)], styles[j % 4], f"{p.layout_name}: {ch.name}"
             ax.plot(p.freq_hz, ch.level_db, color=color, ls=ls, lw=1.4, label=label)
@@ -111,7 +116,11 @@ def plot_prediction(predictions, modes=None, title=None, path=None):
     ax.set_ylim(np.floor(lo / 5) * 5 - 5, np.ceil(hi / 5) * 5 + 5)
     if modes is not None:
         ax.plot([], [], color="0.25", lw=0.8, label="| room mode (tick at top;\n  long axial, short tangential)")
-    ax.legend(fontsize=8, ncol=2 if len(preds) > 1 else 1, loc="lower center")
+    if len(preds) > 1:
+        fig.set_size_inches(10.0, 4.8)
+        ax.legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
+    else:
+        ax.legend(fontsize=8, loc="lower center")
     ax.set_title(title or "Predicted level at the seat", fontsize=11, pad=10)
     if path is not None:
         save_figure(fig, path)
