@@ -91,6 +91,16 @@ def test_export_and_plot_and_refusals(tmp_path):
     (["--band", "10,400"], "outside the computed range"),
     (["--target", "missing-target.txt"], "missing-target.txt"),
 ])
+def test_bad_target_files(tmp_path):
+    unsorted = tmp_path / "unsorted.txt"
+    unsorted.write_text("20 3\n100 0\n50 1\n250 0\n")
+    short = tmp_path / "short.txt"
+    short.write_text("20 3\n")
+    for path, msg in ((unsorted, "do not rise"), (short, "at least 3")):
+        r = CliRunner().invoke(main, ["eq", DEMO, "--target", str(path)])
+        assert r.exit_code == 2 and msg in r.stderr and str(path.name) in r.stderr
+
+
 def test_bad_input(args, msg):
     r = CliRunner().invoke(main, ["eq", DEMO, *args])
     assert r.exit_code == 2, r.output
