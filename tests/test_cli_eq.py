@@ -85,12 +85,6 @@ def test_export_and_plot_and_refusals(tmp_path):
     assert again.exit_code == 2 and "already exists" in again.stderr
 
 
-@pytest.mark.parametrize("args,msg", [
-    (["--max-boost", "-3"], "max_boost_db"),
-    (["--q-range", "10,0.5"], "q_range"),
-    (["--band", "10,400"], "outside the computed range"),
-    (["--target", "missing-target.txt"], "missing-target.txt"),
-])
 def test_bad_target_files(tmp_path):
     unsorted = tmp_path / "unsorted.txt"
     unsorted.write_text("20 3\n100 0\n50 1\n250 0\n")
@@ -101,6 +95,12 @@ def test_bad_target_files(tmp_path):
         assert r.exit_code == 2 and msg in r.stderr and str(path.name) in r.stderr
 
 
+@pytest.mark.parametrize("args,msg", [
+    (["--max-boost", "-3"], "max_boost_db"),
+    (["--q-range", "10,0.5"], "q_range"),
+    (["--band", "10,400"], "outside the computed range"),
+    (["--target", "missing-target.txt"], "missing-target.txt"),
+])
 def test_bad_input(args, msg):
     r = CliRunner().invoke(main, ["eq", DEMO, *args])
     assert r.exit_code == 2, r.output
