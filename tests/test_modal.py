@@ -146,3 +146,23 @@ def test_waterhouse_boundary_gain():
     assert gains["corner"] == pytest.approx(9.03, abs=1.2)
     assert gains["edge"] == pytest.approx(6.02, abs=1.2)
     assert gains["wall"] == pytest.approx(3.01, abs=1.2)
+
+
+@pytest.mark.slow
+def test_one_wall_power_law():
+    # Waterhouse 1958 (JASA 30(1):4): a source at distance d from one rigid wall radiates
+    # W/W0 = 1 + sin(2kd)/(2kd) times its free-field power (the image at 2d). In a room the
+    # other walls' images average out when the source's position along them is varied, so
+    # the room-averaged mean-square pressure, relative to mid-room sources, should follow the
+    # band average of that law (lightly damped room, band well above the first modes).
+    size = np.array([6.0, 5.0, 3.2])
+    f = np.geomspace(180, 260, 40)
+    k = 2 * np.pi * f / C
+    rng = np.random.default_rng(7)
+    yz = rng.uniform(0.3, 0.7, (6, 2)) * size[1:]
+    mid = np.mean(_band_power(size, np.column_stack([rng.uniform(2.0, 4.0, 6), yz]), f))
+    for d in (0.05, 0.25, 0.45):
+        src = np.column_stack([np.full(6, d), yz])
+        got = 10 * np.log10(np.mean(_band_power(size, src, f)) / mid)
+        want = 10 * np.log10(np.mean(1 + np.sin(2 * k * d) / (2 * k * d)))
+        assert got == pytest.approx(want, abs=0.6), (d, got, want)  # measured: within 0.45 dB
