@@ -102,6 +102,36 @@ def _print_channel(corr, room_layout_speaker):
     click.echo("")
 
 
+def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, options):
+    """Corrections of measured curves: CHANNEL=FILE items, several files of a channel averaged."""
+    from .compare import average_measurements, load_measurement
+    from .correction import correct_curve
+
+    files = {}
+    for item in measured:
+        name, sep, path = item.partition("=")
+        if not sep or not name or not path:
+            fail(f"--measured takes CHANNEL=FILE (e.g. left=left-seat.txt), got '{item}'")
+        if name not in [s.name for s in layout.speakers]:
+            fail(f"--measured {item}: no speaker '{name}' in {room_file}; the speakers are "
+                 + ", ".join(s.name for s in layout.speakers))
+        files.setdefault(name, []).append(path)
+    out = []
+    for sp in layout.speakers:
+        if sp.name not in files:
+            continue
+        ms = [load_measurement(path, window_s=window_s, freq_hz=freq_hz) for path in files[sp.name]]
+        avg = average_measurements(ms)
+        f = np.asarray(avg.freq_hz)
+        neighbours = None
+        if len(ms) > 1:
+            neighbours = np.array([np.interp(np.log(f), np.log(m.freq_hz), m.level_db) for m in ms])
+        out.append(correct_curve(sp.name, f, avg.level_db, neighbour_levels_db=neighbours,
+                                 lowcut_hz=sp.lowcut_hz, lowcut_order=sp.lowcut_order if sp.lowcut_hz else None,
+                                 **options))  # no clean-SPL table: a measured level has no known reference
+    return out
+
+
 @click.command(context_settings=CONTEXT)
 @click.argument("room_file", type=click.Path(path_type=Path))
 @click.option("--layout", type=click.Choice(["file", "corner", "wall", "mid-room", "desk"]), default="file",
@@ -119,13 +149,20 @@ def _print_channel(corr, room_layout_speaker):
 @freq_range_option
 @ppo_option
 @method_option
+@click.option("--measured", "measured", multiple=True, metavar="CHANNEL=FILE",
+              help="Correct a measured curve instead of the prediction: an impulse-response WAV or a "
+                   "frequency-response text file for the named speaker. Repeat for more channels or "
+                   "more microphone positions of one channel (they are averaged, and their spread tells "
+                   "nulls from broad dips).")
+@click.option("--window", "window_s", type=float, default=0.5, show_default=True,
+              help="With --measured impulse responses: analysis window, s (resolution about 1/window).")
 @click.option("--export", "export_path", type=click.Path(path_type=Path),
               help="Write the filters and second-order sections (44.1, 48, 96 kHz) to a text file.")
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write before/after curves and filters (PNG/SVG).")
 @click.option("--force", is_flag=True, help="Overwrite existing output files.")
 @json_option
 def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, max_boost, q_range, freq_range,
-       points_per_octave, method, export_path, plot_path, force, as_json):
+       points_per_octave, method, measured, window_s, export_path, plot_path, force, as_json):
     """Design bass-correction EQ for each channel and show the headroom it costs.
 
     Every dip is classified before it is touched: a deep narrow dip that moves when the
@@ -156,15 +193,20 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
             check_output(out, force)
             protect_inputs(out, room_file)
     f = log_frequencies(lo, hi, points_per_octave)
-    corrections, _pred = correct_prediction(room, lay, f, method=method, **options)
+    if measured:
+        corrections = _correct_measured(room, lay, measured, f, window_s, room_file, options)
+        source = "measured"
+    else:
+        corrections, _pred = correct_prediction(room, lay, f, method=method, **options)
+        source = f"predicted, {method} solver"
     head_warn = channel_headroom_warnings({c.name: c.headroom.max_boost_db for c in corrections})
     if as_json:
-        dump_json({"roommodes_version": __version__, "room": room.name, "layout": lay.name,
+        dump_json({"roommodes_version": __version__, "room": room.name, "layout": lay.name, "source": source,
                    "frequencies_hz": corrections[0].parametric.freq_hz,
                    "channels": [_channel_json(c) for c in corrections],
                    "warnings": [w.to_dict() for w in head_warn], "cautions": list(CAUTIONS)})
     else:
-        click.echo(f"Bass correction for '{room.name}', layout {lay.name}, {method} solver")
+        click.echo(f"Bass correction for '{room.name}', layout {lay.name} ({source})")
         click.echo("")
         for c in corrections:
             _print_channel(c, None)

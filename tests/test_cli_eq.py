@@ -105,3 +105,25 @@ def test_bad_input(args, msg):
     r = CliRunner().invoke(main, ["eq", DEMO, *args])
     assert r.exit_code == 2, r.output
     assert msg in r.stderr and "Traceback" not in r.stderr
+
+
+def test_measured_curves_with_several_positions(tmp_path):
+    # A "measurement" made from the model itself (invented test data): the design on it must
+    # match the design on the prediction it came from, and several positions of one channel
+    # are averaged (their spread feeds the null classification).
+    pred = json.loads(CliRunner().invoke(main, ["predict", DEMO, "--json"]).stdout)
+    files = []
+    for shift, ch in zip((0.0, 1.0), pred["channels"][:1] * 2):
+        p = tmp_path / f"left-{shift}.txt"
+        p.write_text("".join(f"{f} {lv + 75 + shift}\n" for f, lv in zip(pred["frequencies_hz"], ch["level_db"])))
+        files.append(p)
+    r = CliRunner().invoke(main, ["eq", DEMO, "--json", "--measured", f"left={files[0]}",
+                                  "--measured", f"left={files[1]}"], catch_exceptions=False)
+    assert r.exit_code == 0
+    data = json.loads(r.stdout)
+    assert data["source"] == "measured" and [c["name"] for c in data["channels"]] == ["left"]
+    ch = data["channels"][0]
+    assert "max_clean_spl" not in ch  # a measured level has no known absolute reference
+    assert ch["error_after"]["rms_db"] < ch["error_before"]["rms_db"]
+    bad = CliRunner().invoke(main, ["eq", DEMO, "--measured", f"centre={files[0]}"])
+    assert bad.exit_code == 2 and "no speaker 'centre'" in bad.stderr
