@@ -121,3 +121,21 @@ def test_atomic_write_refuses_to_overwrite(tmp_path):
     write_text_atomic(p, "new", overwrite=True)
     assert p.read_text() == "new"
     assert [q.name for q in tmp_path.iterdir()] == ["room.toml"]
+
+
+def test_speaker_response_file_sets_the_speaker_roll_off(tmp_path):
+    # An imported anechoic curve (frequency, dB) replaces the high-pass: the predicted level
+    # with it minus the level without it is the curve itself (interpolated in log frequency).
+    from roommodes import predict
+
+    (tmp_path / "curve.txt").write_text("# anechoic\n20 -12\n40 -3\n80 0\n300 0\n")
+    text = GOOD.replace("lowcut_hz = 45\nlowcut_order = 2", 'response_file = "curve.txt"')
+    room = load_room(_write(tmp_path, text))
+    assert room.layout.speakers[0].response_file == "curve.txt"
+    f = np.array([20.0, 28.2842712, 40.0, 100.0])
+    with_curve = predict(room, freq_hz=f).channels[0].level_db
+    without = predict(room, freq_hz=f, include_speaker=False).channels[0].level_db
+    np.testing.assert_allclose(with_curve - without, [-12.0, -7.5, -3.0, 0.0], atol=1e-6)
+    bad = text.replace('"curve.txt"', '"missing.txt"')
+    with pytest.raises(RoomFileError, match=r"\[speakers.left\] response_file: cannot read 'missing.txt'"):
+        load_room(_write(tmp_path, bad, "bad.toml"))
