@@ -8,8 +8,8 @@ Two descriptions are supported:
   Butterworth high-pass (the B4 alignment of Thiele, "Loudspeakers in vented boxes",
   J. Audio Eng. Soc. 19(5):382, 1971), whose -3 dB point equals the box tuning;
 * an imported anechoic curve ``(freq_hz, level_db)``, interpolated in log frequency and
-  held flat beyond its ends (magnitude only; its phase is taken as minimum phase is
-  *not* assumed: the curve scales the level and leaves the room's phase alone).
+  held flat beyond its ends. Only its magnitude is used: it scales the level and leaves
+  the phase of the room transfer alone (no minimum-phase reconstruction).
 """
 
 from __future__ import annotations
