@@ -356,7 +356,7 @@ def ir(recording, sweep_path, out, wav_channel, loopback, ir_length_s, plot_path
         click.echo("Peak-to-noise ratio " + (f"{pnr:.0f} dB" if np.isfinite(pnr) else "unknown (no noise-only tail)"))
         if dist is not None:
             click.echo("Harmonic distortion (orders " + ", ".join(str(o) for o in dist.orders) + ") per octave:")
-            for c, t, nd, det in zip(dist.center_hz, dist.thd_percent, dist.noise_db, dist.detected):
+            for c, t, _nd, det in zip(dist.center_hz, dist.thd_percent, dist.noise_db, dist.detected):
                 note = "" if det else "  (not above the noise: an upper bound)"
                 click.echo(f"  {c:7.1f} Hz  THD {t:6.2f} %{note}")
         for p in res.problems:

@@ -630,7 +630,7 @@ def match_features(measured, reference, *, max_distance_octaves=0.25, room=None,
                 if d <= max_distance_octaves:
                     pairs.append((d, i, j))
     used_m, used_r, taken = set(), set(), []
-    for d, i, j in sorted(pairs):
+    for _d, i, j in sorted(pairs):
         if i not in used_m and j not in used_r:
             used_m.add(i)
             used_r.add(j)

@@ -434,8 +434,8 @@ def proportion_rule_check(size_m):
     Walker, BBC RD 1993/8; ITU-R BS.1116 (adoption recalled from memory; secondary).
     """
     lx, ly, h = _size3(size_m)
-    l, w = max(lx, ly), min(lx, ly)
-    lh, wh = float(l / h), float(w / h)
+    length, w = max(lx, ly), min(lx, ly)
+    lh, wh = float(length / h), float(w / h)
     lower, upper = 1.1 * wh, 4.5 * wh - 4.0
     value = {"l_over_h": lh, "w_over_h": wh, "lower": lower, "upper": upper}
     problems = []

@@ -136,7 +136,7 @@ def _alpha(ctx, value, key):
 
 
 def _check_inside(ctx, key, pos, size):
-    for axis, (v, L, wall) in enumerate(zip(pos, size, ("x", "y", "z"))):
+    for v, L, wall in zip(pos, size, ("x", "y", "z")):
         if not WALL_MARGIN_M <= v <= L - WALL_MARGIN_M:
             ctx.fail(key, f"{wall} = {v:g} m lies outside the room or inside a wall; allowed "
                           f"{WALL_MARGIN_M:g} <= {wall} <= {L - WALL_MARGIN_M:g} m (room is {L:g} m along {wall})")

@@ -385,7 +385,7 @@ def estimate_noise_lundeby(ir, fs, *, initial_interval_s=0.010, intervals_per_10
     tc = (noise_db - a) / b
     converged = False
     it = 0
-    for it in range(1, int(max_iterations) + 1):
+    for it in range(1, int(max_iterations) + 1):  # noqa: B007 (the count is reported after the loop)
         # 5
         n_int = max(1, round(10.0 / (-b) / intervals_per_10db * fs))
         n_int = min(n_int, max(1, n // 10))

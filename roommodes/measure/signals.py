@@ -118,10 +118,10 @@ def band_centres(fraction=3, f_low_hz=20.0, f_high_hz=20000.0):
     g = OCTAVE_RATIO_G
     tol = g ** (1.0 / (4 * b))
     # band index range from the inverse of the centre formula
-    if b % 2:
-        x_of = lambda f: b * np.log(f / 1000.0) / np.log(g)
-    else:
-        x_of = lambda f: (2 * b * np.log(f / 1000.0) / np.log(g) - 1) / 2
+    def x_of(f):
+        if b % 2:
+            return b * np.log(f / 1000.0) / np.log(g)
+        return (2 * b * np.log(f / 1000.0) / np.log(g) - 1) / 2
     x = np.arange(int(np.floor(x_of(f_low_hz / tol))), int(np.ceil(x_of(f_high_hz * tol))) + 1)
     fm = 1000.0 * g ** (x / b) if b % 2 else 1000.0 * g ** ((2 * x + 1) / (2 * b))
     keep = (fm >= f_low_hz / tol) & (fm <= f_high_hz * tol)

@@ -52,7 +52,7 @@ def main():
         t0 = time.perf_counter()
         roommodes.transfer_function(room, src, rec, f, method=method)
         first = time.perf_counter() - t0
-        t = best_of(lambda: roommodes.transfer_function(room, src, rec, f, method=method), 3)
+        t = best_of(lambda m=method: roommodes.transfer_function(room, src, rec, f, method=m), 3)
         print(f"{method:>5} solver, 1 x 1 transfer: {t * 1e3:8.1f} ms (first call {first * 1e3:.0f} ms)")
 
     rng = np.random.default_rng(2)
