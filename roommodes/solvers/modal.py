@@ -216,7 +216,7 @@ def modal_sum_block(psi_src, psi_rec, weight):
     chunk = max(1, _BATCH_ELEMENTS // max(1, 2 * n_modes * n_freq))
     for j0 in range(0, n_fold, chunk):
         j1 = min(n_fold, j0 + chunk)
-        fold = (b[j0:j1].T[:, :, None] * w[:, None, :]).reshape(n_modes, (j1 - j0) * n_freq)
+        fold = np.ascontiguousarray((b[j0:j1].T[:, :, None] * w[:, None, :]).reshape(n_modes, (j1 - j0) * n_freq))
         res = a @ fold.view(np.float64)  # (rows, 2 * (j1 - j0) * F) real
         out[:, j0:j1, :] = res.view(np.complex128).reshape(n_rows, j1 - j0, n_freq)
     return out.transpose(1, 0, 2) if swap else out
@@ -297,7 +297,7 @@ def _g1d(lo, hi, kappa, length):
     return np.where(kappa > 0, g, zero)
 
 
-def static_green_block(size_m, sources_m, receivers_m, min_gap_m=0.05):
+def static_green_block(size_m, sources_m, receivers_m, min_gap_m=0.3):
     """:func:`static_green` for every source and every receiver, shape (S, R).
 
     When, along some axis, every source lies on one side of every receiver (at least
