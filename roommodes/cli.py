@@ -275,11 +275,14 @@ def demo(out_dir):
 from .cli_eq import eq  # noqa: E402
 from .cli_measure import COMMANDS as _MEASURE_COMMANDS  # noqa: E402
 from .cli_place import explain, place  # noqa: E402
+from .cli_report import COMMANDS as _REPORT_COMMANDS  # noqa: E402
 
 main.add_command(place)
 main.add_command(explain)
 main.add_command(eq)
 for _cmd in _MEASURE_COMMANDS:  # sweep, ir, noise, bands, decay, compare, fit
+    main.add_command(_cmd)
+for _cmd in _REPORT_COMMANDS:  # report, map, init
     main.add_command(_cmd)
 
 

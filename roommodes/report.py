@@ -1,0 +1,1397 @@
+"""The report: one self-contained HTML page a practitioner can hand over or keep.
+
+:func:`build_report` runs the whole tool on a room (and measurements, when given) and
+returns a :class:`Report`: the page as a string, every figure (PNG and SVG bytes) and every
+table (with CSV text), so that the command line can write them next to the page. Nothing
+here reads or writes files: measurements arrive already read
+(:func:`roommodes.compare.load_measurement`), and the caller passes the room file's text and
+the inputs' checksums for the reproduction section.
+
+The page has no external references: figures are embedded as ``data:`` URIs, styles are
+inline, fonts are the reader's system fonts. A print style sheet breaks pages before each
+section and never inside a figure or a table row, so the page prints on A4 or Letter.
+
+Two computations live here because the report and the ``map`` command share them:
+
+* :func:`mode_coupling`: for every room mode, the mode shape at each speaker and at the
+  seat, and the coupling ``|psi(speaker) psi(seat)|``: the factor by which the mode's
+  resonance term enters that speaker's transfer to the seat in the modal sum
+  ``H = sum_n psi_n(r_speaker) psi_n(r_seat) W_n(f)`` (Kuttruff, Room Acoustics, 5th ed.,
+  2009, sec. 3.4);
+* :func:`floor_level_map`: the predicted level over a horizontal plane at one frequency.
+"""
+
+from __future__ import annotations
+
+import base64
+import csv
+import html
+import io
+import math
+import platform
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import __version__
+from .modes import mode_shapes, room_modes
+from .predict import DEFAULT_RANGE_HZ, room_schroeder_frequency
+from .units import UNITS, format_length, wall_distances, walls_text
+
+__all__ = [
+    "MATTERS_COUPLING", "SEARCH_MODES", "EMBED_FORMATS", "MODEL_ASSUMPTIONS", "SAFETY_NOTES",
+    "ModeCoupling", "FloorMap", "MeasuredCurve", "Table", "ReportFigure", "Report",
+    "mode_coupling", "floor_level_map", "build_report",
+]
+
+#: A mode "matters" at the seat when a speaker's coupling ``|psi_s psi_seat|`` reaches this
+#: (our choice: a quarter of the coupling between two corners, -12 dB).
+MATTERS_COUPLING = 0.25
+#: Placement search done by the report: as ``place`` does, without the refinement, or none.
+SEARCH_MODES = ("full", "quick", "off")
+#: How figures are embedded in the page.
+EMBED_FORMATS = ("svg", "png")
+#: Near a node: |psi| below this (the threshold :func:`roommodes.predict.response_features` uses).
+_NODE_PSI = 0.3
+
+#: What the model assumes (the validity section).
+MODEL_ASSUMPTIONS = (
+    "The room is a closed rectangular box with flat walls; doors, windows, alcoves, furniture and "
+    "sloping ceilings are not in the model.",
+    "Each surface is locally reacting, with the real impedance whose random-incidence absorption "
+    "equals the room file's coefficient (London's formula; docs/methods.md). Walls that flex "
+    "(plasterboard, timber) enter only through that coefficient.",
+    "Each loudspeaker is a point source at its woofer centre; its own low-frequency roll-off is a "
+    "Butterworth high-pass at lowcut_hz (2nd order sealed, 4th order vented) or an imported curve.",
+    "The transfer is the modal sum of the rigid-wall modes with perturbation damping and a closed-form "
+    "static tail for the modes above the cutoff (docs/methods.md). Levels are in dB relative to the "
+    "free-field level of the same speaker at 1 m.",
+    "Speakers play the same signal in phase when they are summed (the mono sum and the floor maps).",
+)
+
+#: Cautions in short (the full text is docs/cautions.md).
+SAFETY_NOTES = (
+    "The model is an idealised box: check its predictions against a measurement before moving heavy "
+    "furniture or building anything, and treat anything above the Schroeder frequency as indicative only.",
+    "Absorption below 125 Hz is extrapolated from handbook tables; measuring the room and calibrating "
+    "the model (roommodes fit) makes the details trustworthy.",
+    "Test signals are loud: start quiet, aim for 75-85 dB SPL at the seat when measuring, and wear hearing "
+    "protection at higher levels; where local rules are stricter than the limits below, follow them.",
+    "Speakers on stands, shelves or walls must be secured as their makers and local building codes "
+    "require; this report says where sound is best, not what a wall or shelf can carry.",
+)
+
+
+# ======================================================================================
+# Modes at the seat
+# ======================================================================================
+@dataclass(frozen=True)
+class ModeCoupling:
+    """Every mode up to ``fmax_hz`` with its shape at the speakers and the seat.
+
+    Attributes
+    ----------
+    indices : ndarray of int (N, 3)
+    freq_hz, t60_s, bandwidth_hz : ndarray (N,)
+    kind : ndarray of str (N,)
+    names : tuple of str
+        Speaker names.
+    psi_speakers : ndarray (S, N)
+        Mode shape at each speaker, -1..1.
+    psi_seat : ndarray (N,)
+    coupling : ndarray (S, N)
+        ``|psi_speaker psi_seat|``, 0..1.
+    matters : ndarray of bool (N,)
+        Some speaker's coupling reaches ``threshold``.
+    threshold, fmax_hz, schroeder_hz : float
+    """
+
+    indices: np.ndarray
+    freq_hz: np.ndarray
+    kind: np.ndarray
+    t60_s: np.ndarray
+    bandwidth_hz: np.ndarray
+    names: tuple
+    psi_speakers: np.ndarray
+    psi_seat: np.ndarray
+    coupling: np.ndarray
+    matters: np.ndarray
+    threshold: float
+    fmax_hz: float
+    schroeder_hz: float
+
+    def note(self, i):
+        """Short words on mode ``i``: seat or speakers near a node, speakers in opposite phase."""
+        out = []
+        if abs(self.psi_seat[i]) < _NODE_PSI:
+            out.append("seat near a node")
+        ps = self.psi_speakers[:, i]
+        if ps.size and np.max(np.abs(ps)) < _NODE_PSI:
+            out.append("speakers near a node")
+        if ps.size >= 2 and ps[0] * ps[1] < 0 and min(abs(ps[0]), abs(ps[1])) >= _NODE_PSI:
+            out.append(f"{self.names[0]} and {self.names[1]} in opposite phase (weakened in the mono sum)")
+        return "; ".join(out)
+
+
+def mode_coupling(room, layout=None, fmax_hz=None, threshold=MATTERS_COUPLING):
+    """List the room's modes with their shape at each speaker and at the seat.
+
+    Parameters
+    ----------
+    room : Room
+    layout : Layout, optional
+        Default the room file's own.
+    fmax_hz : float, optional
+        Highest mode, Hz, 1..1000; default the lower of the Schroeder frequency and 200 Hz
+        (above it single modes no longer describe the response).
+    threshold : float
+        Coupling from which a mode "matters", 0..1 (default :data:`MATTERS_COUPLING`).
+
+    Returns
+    -------
+    ModeCoupling
+
+    Notes
+    -----
+    ``psi_n(r) = cos(nx pi x / Lx) cos(ny pi y / Ly) cos(nz pi z / Lz)`` (Rayleigh; Kuttruff
+    2009, sec. 3.3). In the modal sum the mode's term in the transfer from a speaker at
+    ``r_s`` to the seat at ``r_r`` carries the factor ``psi_n(r_s) psi_n(r_r)``; its magnitude
+    is the coupling shown. A speaker in a corner has ``|psi| = 1`` for every mode.
+    """
+    layout = room.layout if layout is None else layout
+    if layout is None:
+        raise ValueError(f"{room.source or room.name}: no speakers and seat to couple the modes to")
+    fs = room_schroeder_frequency(room)
+    fmax = min(200.0, fs) if fmax_hz is None else float(fmax_hz)
+    if not (math.isfinite(fmax) and 1.0 <= fmax <= 1000.0):
+        raise ValueError(f"fmax_hz must be 1 to 1000 Hz, got {fmax_hz!r}")
+    thr = float(threshold)
+    if not 0.0 <= thr <= 1.0:
+        raise ValueError(f"threshold must be 0 to 1, got {threshold!r}")
+    ms = room_modes(room, fmax)
+    psi_s = mode_shapes(ms.indices, room.size_m, layout.source_positions_m)  # (S, N)
+    psi_r = mode_shapes(ms.indices, room.size_m, [layout.seat_m])[0]
+    coupling = np.abs(psi_s * psi_r[None, :])
+    matters = np.any(coupling >= thr, axis=0) if coupling.size else np.zeros(len(ms), bool)
+    return ModeCoupling(ms.indices, ms.freq_hz, ms.kind, ms.t60_s, ms.bandwidth_hz,
+                        tuple(s.name for s in layout.speakers), psi_s, psi_r, coupling, matters, thr, fmax, fs)
+
+
+# ======================================================================================
+# Level over the floor
+# ======================================================================================
+@dataclass(frozen=True)
+class FloorMap:
+    """Predicted level over a horizontal plane at one frequency.
+
+    Attributes
+    ----------
+    freq_hz, height_m : float
+    x_m : ndarray (X,)
+        Distances from the front wall of the grid's cell centres, m.
+    y_m : ndarray (Y,)
+        Distances from the left wall, m.
+    level_db : ndarray (X, Y)
+        dB re the free-field level of one speaker at 1 m (the speakers summed in phase).
+    channels : tuple of str
+    sources_m : ndarray (S, 3)
+    seat_m : tuple or None
+    seat_level_db : float or None
+        The same quantity at the seat, with the modes :func:`roommodes.predict` keeps on its
+        default grid, so that it equals the predicted curve at ``freq_hz`` (the grid's cells
+        use the solver's cutoff for ``freq_hz`` alone; the two differ by hundredths of a dB).
+    near_modes : tuple of dict
+        Modes within their half-power bandwidth (or 3 %) of the frequency, nearest first:
+        ``indices``, ``freq_hz``, ``kind``, ``bandwidth_hz``.
+    method : str
+    """
+
+    freq_hz: float
+    height_m: float
+    x_m: np.ndarray
+    y_m: np.ndarray
+    level_db: np.ndarray
+    channels: tuple
+    sources_m: np.ndarray
+    seat_m: tuple | None
+    seat_level_db: float | None
+    near_modes: tuple
+    method: str
+
+    def extreme(self, which="max"):
+        """(x_m, y_m, level_db) of the loudest (``"max"``) or quietest (``"min"``) cell."""
+        i = np.nanargmax(self.level_db) if which == "max" else np.nanargmin(self.level_db)
+        ix, iy = np.unravel_index(i, self.level_db.shape)
+        return float(self.x_m[ix]), float(self.y_m[iy]), float(self.level_db[ix, iy])
+
+
+#: Map cells closer than this to a speaker are left out, m.
+_MAP_CLEARANCE_M = 0.08
+
+
+def _separated_groups(source_m, points_m, mask, gap_m=0.05):
+    """Split ``points_m[mask]`` into groups the solver sums at once.
+
+    Each group lies on one side of the source along one axis, further from it along that
+    axis than every point is along the others.
+    The modal solver sums its static tail for a whole group at once along the axis of the
+    group's largest separation from the source; mixing sides makes it go pair by pair, and a
+    small separation along the chosen axis makes every term count. For a plane of points
+    ``dz`` above or below the source, the groups beside the source (along x or y) are kept
+    further than ``dz`` from it, so the solver sums along x or y, where most points are
+    far; the few points over or under the source form the last groups. The values do not
+    depend on the grouping.
+    """
+    idx = np.flatnonzero(mask)
+    if idx.size == 0:
+        return []
+    d = points_m[idx] - np.asarray(source_m)[None, :]
+    least = np.abs(d).min(axis=0)  # the smallest separation along each axis
+    left = np.ones(idx.size, bool)
+    groups = []
+    for axis in range(3):
+        others = max(least[b] for b in range(3) if b != axis)
+        threshold = max(gap_m, 1.05 * others + 0.005)
+        for sign in (1.0, -1.0):
+            g = left & (sign * d[:, axis] >= threshold)
+            if g.any():
+                groups.append(idx[g])
+                left &= ~g
+    if left.any():
+        groups.append(idx[left])
+    return groups
+
+
+def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=0.05, channels=None, method="modal",
+                    include_speaker=True):
+    """Predicted level over the floor plan at ear height at one frequency.
+
+    Parameters
+    ----------
+    room : Room
+    freq_hz : float
+        Hz, 5..1000.
+    layout : Layout, optional
+        Speakers and seat; default the room file's own.
+    height_m : float, optional
+        Height of the plane, m, inside the room; default the seat's (ear) height.
+    step_m : float
+        Grid step, m, 0.01..0.5 (cells of equal size filling the plan).
+    channels : sequence of str, optional
+        Speakers that play (summed in phase); default all.
+    method : {"modal", "image"}
+    include_speaker : bool
+        Apply each speaker's own low-frequency response.
+
+    Returns
+    -------
+    FloorMap
+
+    Notes
+    -----
+    At a mode's frequency in a lightly damped room that mode dominates away from the
+    speakers, so the map shows ``|cos(nx pi x / Lx) cos(ny pi y / Ly)|`` (Rayleigh; Kuttruff
+    2009, sec. 3.3): loud along the walls its pressure maxima lie on, quiet on its nodal lines.
+    """
+    from .solvers import transfer_function
+    from .speaker import speaker_response
+
+    layout = room.layout if layout is None else layout
+    if layout is None:
+        raise ValueError(f"{room.source or room.name}: the room file has no [speakers] and [seat]; "
+                         "a map needs at least one speaker")
+    f = float(freq_hz)
+    if not (math.isfinite(f) and 5.0 <= f <= 1000.0):
+        raise ValueError(f"frequency must be 5 to 1000 Hz, got {freq_hz!r}")
+    lx, ly, lz = room.size_m
+    h_m = float(layout.seat_m[2] if height_m is None else height_m)
+    if not (math.isfinite(h_m) and 0.0 < h_m < lz):
+        raise ValueError(f"height must lie inside the room (0 < z < {lz:g} m), got {height_m!r} m")
+    step = float(step_m)
+    if not (math.isfinite(step) and 0.01 <= step <= 0.5):
+        raise ValueError(f"step must be 0.01 to 0.5 m, got {step_m!r}")
+    names = [s.name for s in layout.speakers]
+    chosen = names if channels is None else list(channels)
+    for c in chosen:
+        if c not in names:
+            raise ValueError(f"no speaker named '{c}'; the layout has {', '.join(names)}")
+    if not chosen:
+        raise ValueError("choose at least one speaker")
+    speakers = [layout.speakers[names.index(c)] for c in chosen]
+    nx, ny = max(2, math.ceil(lx / step)), max(2, math.ceil(ly / step))
+    x = (np.arange(nx) + 0.5) * lx / nx
+    y = (np.arange(ny) + 0.5) * ly / ny
+    xx, yy = np.meshgrid(x, y, indexing="ij")
+    pts = np.stack([xx.ravel(), yy.ravel(), np.full(xx.size, h_m)], axis=1)
+    src = np.array([s.position_m for s in speakers], dtype=float)
+    seat = tuple(layout.seat_m)
+    # cells within _MAP_CLEARANCE_M of a speaker are left out (NaN): the marker covers them
+    # and the level there is the source's own 1/r near field
+    near_src = np.min(np.linalg.norm(pts[:, None, :] - src[None, :, :], axis=-1), axis=1) < _MAP_CLEARANCE_M
+    gain = np.array([speaker_response(s, [f])[0] for s in speakers]) if include_speaker else np.ones(len(speakers))
+    h = np.full((src.shape[0], pts.shape[0]), np.nan + 0j)
+    for i in range(src.shape[0]):
+        for group in _separated_groups(src[i], pts, ~near_src):
+            # [f, f]: the solver's own mode cutoff for this frequency (and its block form
+            # cannot take a single frequency yet; reported)
+            h[i, group] = transfer_function(room, src[i:i + 1], pts[group], [f, f], method=method)[0, :, 0]
+    total = np.abs((h * gain[:, None]).sum(axis=0))
+    with np.errstate(invalid="ignore"):
+        level = np.where(np.isfinite(total), 20.0 * np.log10(np.maximum(total, 1e-12)), np.nan)
+    # the seat on a grid reaching the prediction's top frequency: the modal solver then keeps
+    # the same modes as `predict`, so this value equals the predicted curve's at f
+    hs = transfer_function(room, src, [seat], [f, max(f, DEFAULT_RANGE_HZ[1])], method=method)[:, 0, 0]
+    seat_level = float(20.0 * np.log10(max(abs(np.sum(hs * gain)), 1e-12)))
+    ms = room_modes(room, f * 1.3 + 10.0)
+    near = np.flatnonzero(np.abs(ms.freq_hz - f) <= np.maximum(ms.bandwidth_hz, 0.03 * f))
+    near = near[np.argsort(np.abs(ms.freq_hz[near] - f))][:3]
+    modes = tuple({"indices": tuple(int(v) for v in ms.indices[i]), "freq_hz": float(ms.freq_hz[i]),
+                   "kind": str(ms.kind[i]), "bandwidth_hz": float(ms.bandwidth_hz[i])} for i in near)
+    return FloorMap(f, h_m, x, y, level.reshape(nx, ny), tuple(chosen), src, seat, seat_level, modes, method)
+
+
+# ======================================================================================
+# Report pieces
+# ======================================================================================
+@dataclass(frozen=True, eq=False)
+class MeasuredCurve:
+    """One measured curve with the speaker that played and the microphone position.
+
+    Attributes
+    ----------
+    channel : str
+        Speaker name in the room file.
+    position_m : tuple of float
+        Microphone position, m.
+    measurement : roommodes.compare.Measurement
+    """
+
+    channel: str
+    position_m: tuple
+    measurement: object
+
+
+@dataclass(frozen=True)
+class Table:
+    """A table of the report.
+
+    Attributes
+    ----------
+    name : str
+        File stem of its CSV (``t03-surfaces``).
+    number : int
+    title : str
+    columns : tuple of str
+        Headers, with units.
+    text : tuple of tuple of str
+        The cells as shown.
+    values : tuple of tuple
+        The same cells at full precision (numbers, text or None) for the CSV file and the
+        page's ``data-value`` attributes.
+    note : str
+    """
+
+    name: str
+    number: int
+    title: str
+    columns: tuple
+    text: tuple
+    values: tuple
+    note: str = ""
+
+    def csv_text(self):
+        """Return the table as CSV text (header row, then the full-precision values)."""
+        buf = io.StringIO()
+        w = csv.writer(buf, lineterminator="\n")
+        w.writerow(self.columns)
+        for row in self.values:
+            w.writerow(["" if v is None else (repr(float(v)) if isinstance(v, (float, np.floating)) else v)
+                        for v in row])
+        return buf.getvalue()
+
+
+@dataclass(frozen=True)
+class ReportFigure:
+    """A figure of the report, rendered.
+
+    Attributes
+    ----------
+    name : str
+        File stem (``f02-mode-coupling``); the files are ``name + ".png"`` and ``".svg"``.
+    number : int
+    title, caption : str
+    png, svg : bytes
+    """
+
+    name: str
+    number: int
+    title: str
+    caption: str
+    png: bytes
+    svg: bytes
+
+
+@dataclass(frozen=True)
+class Report:
+    """What :func:`build_report` returns.
+
+    Attributes
+    ----------
+    html : str
+        The self-contained page.
+    figures : tuple of ReportFigure
+    tables : tuple of Table
+    values : dict
+        Headline numbers as shown in the page, full precision (``schroeder_hz``,
+        ``modes``, ``eq_max_boost_db``, ``best_score``, ...).
+    """
+
+    html: str
+    figures: tuple
+    tables: tuple
+    values: dict
+
+
+def _esc(text):
+    return html.escape(str(text), quote=True)
+
+
+def _fmt(v, spec):
+    if v is None or (isinstance(v, float) and not math.isfinite(v)):
+        return "-"
+    return format(v, spec)
+
+
+def _num(v, spec):
+    """A numeric cell: (full value, text)."""
+    if v is None:
+        return (None, "-")
+    fv = float(v)
+    return (fv if math.isfinite(fv) else None, _fmt(fv, spec))
+
+
+def _indices_text(n):
+    return "(" + ",".join(str(int(v)) for v in n) + ")"
+
+
+def _render(fig):
+    """PNG and SVG bytes of a figure (deterministic SVG ids, no date)."""
+    import matplotlib
+
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=130)
+    png = buf.getvalue()
+    with matplotlib.rc_context({"svg.hashsalt": "roommodes-report", "svg.fonttype": "path"}):
+        buf = io.BytesIO()
+        fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": f"roommodes {__version__}"})
+    return png, buf.getvalue()
+
+
+_CSS = """
+:root { --ink: #1b1b1b; --muted: #555; --rule: #d4d4d4; --accent: #0072B2; --warn: #E69F00; }
+html { font-family: system-ui, -apple-system, "Segoe UI", Roboto, "Helvetica Neue", Arial, sans-serif;
+       color: var(--ink); background: #fff; }
+body { max-width: 62rem; margin: 0 auto; padding: 1.2rem 1.5rem 3rem; line-height: 1.45; font-size: 15px; }
+header h1 { font-size: 1.75rem; margin: 0.3rem 0 0.2rem; }
+header p { margin: 0.15rem 0; color: var(--muted); }
+h2 { font-size: 1.3rem; border-bottom: 2px solid var(--accent); padding-bottom: 0.15rem; margin-top: 2.2rem; }
+h3 { font-size: 1.05rem; margin: 1.4rem 0 0.4rem; }
+p, li { max-width: 52rem; }
+nav.toc ol { columns: 2; font-size: 0.92rem; }
+nav.toc a { color: var(--accent); text-decoration: none; }
+.glance { background: #f2f7fb; border-left: 4px solid var(--accent); padding: 0.5rem 1rem; }
+.glance li { margin: 0.2rem 0; }
+.caution { background: #fff6e6; border-left: 4px solid var(--warn); padding: 0.4rem 1rem; }
+table { border-collapse: collapse; margin: 0.5rem 0 1.1rem; font-size: 0.86rem; max-width: 100%; }
+caption { caption-side: top; text-align: left; font-weight: 600; padding: 0 0 0.3rem; }
+th, td { border-bottom: 1px solid var(--rule); padding: 0.22rem 0.5rem; text-align: left; vertical-align: top;
+         overflow-wrap: break-word; }
+th { background: #f4f4f4; font-weight: 600; }
+td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+.pass { color: #00795a; font-weight: 600; }
+.fail { color: #b34700; font-weight: 600; }
+.note { color: var(--muted); font-size: 0.85rem; }
+figure { margin: 1rem 0 1.4rem; }
+figure img { display: block; max-width: 100%; height: auto; border: 1px solid #eee; }
+figcaption { font-size: 0.86rem; color: var(--muted); margin-top: 0.3rem; max-width: 52rem; }
+pre { white-space: pre-wrap; font-size: 0.78rem; background: #f7f7f7; padding: 0.6rem; border: 1px solid #eee; }
+code { font-size: 0.9em; }
+@page { margin: 14mm 12mm 14mm 12mm; }
+@media print {
+  html { font-size: 10pt; }
+  body { max-width: none; padding: 0; font-size: 10pt; }
+  nav.toc a { color: inherit; }
+  h2.newpage { break-before: page; page-break-before: always; }
+  h2, h3 { break-after: avoid; page-break-after: avoid; }
+  figure, .glance, .caution, tr, pre { break-inside: avoid; page-break-inside: avoid; }
+  table { break-inside: auto; }
+  thead { display: table-header-group; }
+  figure img { max-height: 235mm; width: auto; border: none; }
+}
+"""
+
+
+class _Doc:
+    """Accumulates the page's sections, figures and tables, numbering them."""
+
+    def __init__(self, embed):
+        self.embed = embed
+        self.parts = []
+        self.toc = []
+        self.figures = []
+        self.tables = []
+
+    def section(self, anchor, title, newpage=True):
+        self.toc.append((anchor, title))
+        cls = ' class="newpage"' if newpage else ""
+        self.parts.append(f'<h2 id="{anchor}"{cls}>{len(self.toc)}. {_esc(title)}</h2>')
+
+    def h3(self, text, anchor=None):
+        ident = f' id="{anchor}"' if anchor else ""
+        self.parts.append(f"<h3{ident}>{_esc(text)}</h3>")
+
+    def p(self, text, cls=None):
+        c = f' class="{cls}"' if cls else ""
+        self.parts.append(f"<p{c}>{_esc(text)}</p>")
+
+    def raw(self, markup):
+        self.parts.append(markup)
+
+    def ul(self, items, cls=None, ordered=False):
+        tag = "ol" if ordered else "ul"
+        c = f' class="{cls}"' if cls else ""
+        self.parts.append(f"<{tag}{c}>" + "".join(f"<li>{_esc(i)}</li>" for i in items) + f"</{tag}>")
+
+    def figure(self, fig, stem, title, caption=""):
+        number = len(self.figures) + 1
+        png, svg = _render(fig)
+        name = f"f{number:02d}-{stem}"
+        self.figures.append(ReportFigure(name, number, title, caption, png, svg))
+        data, mime = (svg, "image/svg+xml") if self.embed == "svg" else (png, "image/png")
+        b64 = base64.b64encode(data).decode("ascii")
+        width = int(round(fig.get_figwidth() * 96))
+        self.parts.append(
+            f'<figure id="fig-{number}"><img src="data:{mime};base64,{b64}" alt="Figure {number}: {_esc(title)}" '
+            f'style="width:{width}px"><figcaption><strong>Figure {number}.</strong> {_esc(title)}. '
+            f'{_esc(caption)} <span class="note">(files {name}.png, {name}.svg)</span></figcaption></figure>')
+        return number
+
+    def table(self, stem, title, columns, rows, note="", key=None):
+        """Rows of cells: str, or (value, text) for a number (right-aligned, with data-value)."""
+        number = len(self.tables) + 1
+        name = f"t{number:02d}-{stem}"
+        text_rows, value_rows = [], []
+        body = []
+        for row in rows:
+            trow, vrow, cells = [], [], []
+            for cell in row:
+                if isinstance(cell, tuple):
+                    value, text = cell
+                    trow.append(text)
+                    vrow.append(value)
+                    dv = "" if value is None else f' data-value="{_esc(repr(value))}"'
+                    cells.append(f'<td class="num"{dv}>{_esc(text)}</td>')
+                else:
+                    text = "" if cell is None else str(cell)
+                    trow.append(text)
+                    vrow.append(text)
+                    cls = ' class="pass"' if text == "PASS" else (' class="fail"' if text == "FAIL" else "")
+                    cells.append(f"<td{cls}>{_esc(text)}</td>")
+            text_rows.append(tuple(trow))
+            value_rows.append(tuple(vrow))
+            body.append("<tr>" + "".join(cells) + "</tr>")
+        t = Table(name, number, title, tuple(columns), tuple(text_rows), tuple(value_rows), note)
+        self.tables.append(t)
+        head = "".join(f"<th>{_esc(c)}</th>" for c in columns)
+        k = f' data-key="{_esc(key)}"' if key else ""
+        note_html = f'<p class="note">{_esc(note)} (file {name}.csv)</p>' if note else \
+            f'<p class="note">(file {name}.csv)</p>'
+        self.parts.append(f'<table id="table-{number}"{k}><caption>Table {number}. {_esc(title)}</caption>'
+                          f"<thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>{note_html}")
+        return number
+
+    def page(self, title, header_html, glance_html):
+        toc = "".join(f'<li><a href="#{a}">{_esc(t)}</a></li>' for a, t in self.toc)
+        return ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
+                "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
+                f"<meta name=\"generator\" content=\"roommodes {__version__}\">\n"
+                f"<title>{_esc(title)}</title>\n<style>{_CSS}</style>\n</head>\n<body>\n"
+                f"<header>{header_html}</header>\n"
+                f"<nav class=\"toc\"><strong>Contents</strong><ol>{toc}</ol></nav>\n"
+                f"{glance_html}\n" + "\n".join(self.parts) + "\n</body>\n</html>\n")
+
+
+def _val(key, value, text):
+    """Inline number with its full value attached (``data-key``/``data-value``)."""
+    return f'<span data-key="{_esc(key)}" data-value="{_esc(repr(float(value)))}">{_esc(text)}</span>'
+
+
+# ======================================================================================
+# The report
+# ======================================================================================
+def _analysis_layout(room):
+    """The file's layout, or the first preset that fits a room without one."""
+    from .placement import PRESETS, preset_layout
+
+    if room.layout is not None:
+        return room.layout, None
+    for name in PRESETS:
+        try:
+            return preset_layout(room, name), name
+        except ValueError:
+            continue
+    raise ValueError(f"{room.source or room.name}: the room file has no speakers and seat, and no standard "
+                     "layout fits the room")
+
+
+#: Floor maps are drawn by default for a mode below this frequency (our choice: where modes
+#: are sparse enough to be heard one by one in small rooms).
+_MAP_MODE_TOP_HZ = 120.0
+
+
+def _map_frequencies(coupling, features):
+    """Choose the floor maps' frequencies.
+
+    The strongest mode that matters and varies over the floor (nx or ny non-zero) below
+    :data:`_MAP_MODE_TOP_HZ` and the Schroeder frequency, and the most prominent dip of the
+    first channel.
+    """
+    out = []
+    top = min(coupling.schroeder_hz, _MAP_MODE_TOP_HZ)
+    over_floor = (coupling.indices[:, 0] + coupling.indices[:, 1]) > 0
+    sel = np.flatnonzero(coupling.matters & over_floor & (coupling.freq_hz <= top))
+    if sel.size == 0:
+        sel = np.flatnonzero(coupling.matters & over_floor)
+    if sel.size:
+        strength = coupling.coupling[:, sel].max(axis=0)
+        out.append(round(float(coupling.freq_hz[sel[np.argmax(strength)]]), 1))
+    dips = [ft for ft in features if ft.kind == "dip"]
+    if dips:
+        f = round(max(dips, key=lambda ft: ft.prominence_db).freq_hz, 1)
+        if all(abs(f - g) > 0.03 * g for g in out):
+            out.append(f)
+    return out
+
+
+def build_report(room, measurements=(), fit_targets=None, *, units="cm", search="full", method="modal",
+                 embed="svg", room_text=None, inputs=(), command=None, created=None, files_folder=None,
+                 map_freqs_hz=None, compare_band_hz=(20.0, 200.0), compare_smoothing=12, progress=None):
+    """Run the whole tool on a room and lay the results out as one self-contained HTML page.
+
+    Parameters
+    ----------
+    room : Room
+        Usually from :func:`roommodes.load_room`. Without speakers and a seat, the first
+        standard layout that fits is analysed (and the page says so).
+    measurements : sequence of MeasuredCurve
+        Measured curves to compare with the prediction (grouped by channel and
+        power-averaged, as ``roommodes compare`` does).
+    fit_targets : sequence of roommodes.fit.FitTarget, optional
+        When given, :func:`roommodes.fit.fit_room` calibrates the model to them (its
+        defaults, as ``roommodes fit``) and the page shows what changed.
+    units : {"cm", "m", "ft-in"}
+        Units of the distances shown.
+    search : {"full", "quick", "off"}
+        Placement search as ``roommodes place`` runs it, without the local refinement, or
+        none.
+    method : {"modal", "image"}
+        Solver of the predictions.
+    embed : {"svg", "png"}
+        Format of the figures embedded in the page (both are returned).
+    room_text : str, optional
+        The room file's text, shown for reproduction.
+    inputs : sequence of dict
+        ``name``, ``bytes``, ``sha256`` of every input file, shown for reproduction.
+    command : str, optional
+        The command line that made the report.
+    created : str, optional
+        Date and time shown in the header.
+    files_folder : str, optional
+        Name of the folder the caller writes the figures and tables to (mentioned in the page).
+    map_freqs_hz : sequence of float, optional
+        Frequencies of the floor maps; default the strongest mode that matters and the
+        deepest dip at the seat.
+    compare_band_hz, compare_smoothing
+        Band (Hz) and 1/b-octave smoothing of the measurement comparison.
+    progress : callable, optional
+        ``progress(text)`` as each part starts.
+
+    Returns
+    -------
+    Report
+
+    Raises
+    ------
+    ValueError
+        For bad options, or measurements naming speakers the room file does not have.
+
+    Notes
+    -----
+    Every number is computed by the same function, with the same defaults, as the command
+    that prints it with ``--json`` (``modes``, ``predict``, ``place``, ``explain``, ``eq``,
+    ``compare``, ``fit``), so the page and those commands agree.
+    """
+    from .response import log_frequencies
+    from .search import search_space
+
+    if units not in UNITS:
+        raise ValueError(f"units must be one of {', '.join(UNITS)}, got {units!r}")
+    if search not in SEARCH_MODES:
+        raise ValueError(f"search must be one of {', '.join(SEARCH_MODES)}, got {search!r}")
+    if embed not in EMBED_FORMATS:
+        raise ValueError(f"embed must be one of {', '.join(EMBED_FORMATS)}, got {embed!r}")
+    measurements = list(measurements)
+    if (measurements or fit_targets) and room.layout is None:
+        raise ValueError(f"{room.source or room.name}: measurements need the room file's [speakers] and [seat]")
+    layout, preset_used = _analysis_layout(room)
+    space = search_space(room)
+    run = _Run(room=room, layout=layout, preset_used=preset_used, units=units, method=method, search=search,
+               space=space, keep_out=space.keep_out, f=log_frequencies(15.0, 300.0, 48), doc=_Doc(embed),
+               values={"roommodes_version": __version__, "units": units}, glance=[], progress=progress,
+               measurements=measurements, fit_targets=fit_targets, compare_band_hz=compare_band_hz,
+               compare_smoothing=compare_smoothing, created=created, command=command, files_folder=files_folder,
+               inputs=inputs, room_text=room_text, map_freqs_hz=map_freqs_hz, fit_res=None)
+    for section in (_section_room, _section_modes, _section_responses, _section_placement, _section_eq,
+                    _section_measurements, _section_validity, _section_reproduce, _section_appendix):
+        section(run)
+    doc, values, glance, created, fs = run.doc, run.values, run.glance, run.created, run.fs
+    title = f"Room report: {run.room.name}"
+    header = (f"<h1>{_esc(title)}</h1><p>Low-frequency behaviour, loudspeaker placement and bass correction.</p>"
+              f"<p>roommodes {_esc(__version__)}" + (f" &middot; {_esc(created)}" if created else "") + "</p>")
+    glance.append("Read 'How far to trust this report' and 'Cautions' before acting on these numbers.")
+    glance_html = ('<section class="glance" id="glance"><h2 id="at-a-glance">At a glance</h2><ul>'
+                   + "".join(f"<li>{_esc(g)}</li>" for g in glance) + "</ul>"
+                   + f"<p class=\"note\">Schroeder frequency: {_val('schroeder_hz', fs, f'{fs:.0f} Hz')}.</p>"
+                   + "</section>")
+    values["glance"] = glance
+    return Report(doc.page(title, header, glance_html), tuple(doc.figures), tuple(doc.tables), values)
+
+
+class _Run:
+    """What the sections of :func:`build_report` share.
+
+    The inputs, the page being built, the headline sentences, and what earlier sections
+    computed.
+    """
+
+    def __init__(self, **kw):
+        self.__dict__.update(kw)
+
+    def L(self, metres):  # noqa: N802 - reads like the unit it formats
+        return format_length(metres, self.units)
+
+    def step(self, text):
+        if self.progress is not None:
+            self.progress(text)
+
+
+def _section_room(run):
+    """The room drawn to scale, its surfaces, figures and proportion checks."""
+    from .plots_report import plot_room_views
+    from .summary import room_summary
+
+    doc, values, glance, step, L = run.doc, run.values, run.glance, run.step, run.L
+    room, layout, preset_used, units, keep_out = run.room, run.layout, run.preset_used, run.units, run.keep_out
+    lx, ly, lz = room.size_m
+    step("room and modes")
+    summ = room_summary(room)
+    fs = summ.schroeder_hz
+    values["schroeder_hz"] = fs
+    ms300 = room_modes(room, 300.0)
+    values["modes"] = [{"indices": [int(v) for v in ms300.indices[i]], "freq_hz": float(ms300.freq_hz[i]),
+                        "kind": str(ms300.kind[i])} for i in range(len(ms300))]
+    coupling = mode_coupling(room, layout)
+    glance.append(f"Room {L(lx)} long, {L(ly)} wide, {L(lz)} high ({summ.volume_m3:.1f} m\u00b3). "
+                  f"Schroeder frequency {fs:.0f} Hz: below it single room modes shape the bass at the seat, "
+                  "above it the room behaves statistically and this report's predictions are indicative only.")
+    lowest = [f"{_indices_text(ms300.indices[i])} {ms300.freq_hz[i]:.1f} Hz {ms300.kind[i]}"
+              for i in range(min(4, len(ms300)))]
+    glance.append("Lowest modes: " + ", ".join(lowest) + ".")
+    if preset_used:
+        glance.append(f"The room file gives no speakers and seat; the sections below analyse the standard "
+                      f"'{preset_used}' layout.")
+
+    doc.section("room", "The room", newpage=False)
+    doc.p(f"{room.name}: {L(lx)} long (front wall to back wall), {L(ly)} wide (left wall to right wall) and "
+          f"{L(lz)} high. The front wall is the wall behind the speakers; left and right are as seen from the "
+          "seat facing the speakers. Positions are given from named walls; the room file keeps them in metres "
+          "from the floor corner of the front and left walls.")
+    fig = plot_room_views(room, layout, keep_out, units)
+    doc.figure(fig, "room", "The room drawn to scale",
+               "Plan and section with the speakers (squares), the seat (star) and their distances from the "
+               "walls" + (", and the keep-out boxes of the placement search (hatched)" if keep_out else "") +
+               ". Each surface is labelled with its material or absorption coefficient.")
+    rows = []
+    for s, area in zip(room.surfaces, room.surface_areas_m2):
+        a = s.absorption_at([63.0, 125.0, 250.0])
+        desc = ""
+        if s.material:
+            from .materials import get_material
+
+            desc = get_material(s.material).description
+        rows.append([s.name, _num(area, ".2f"), s.describe(), desc, _num(a[0], ".2f"), _num(a[1], ".2f"),
+                     _num(a[2], ".2f"),
+                     "63 Hz value extrapolated" if any(abs(b - 63.0) < 1 for b in s.extrapolated_hz) else ""])
+    doc.table("surfaces", "Surfaces, their areas and random-incidence absorption coefficients",
+              ("surface", "area (m\u00b2)", "material or values", "description", "alpha 63 Hz", "alpha 125 Hz",
+               "alpha 250 Hz", "note"), rows,
+              note="Values between band centres are interpolated in log frequency. Handbook tables stop at 125 Hz; "
+                   "63 Hz values of library materials are extrapolated by stated rules.")
+    rows = [["volume", _num(summ.volume_m3, ".1f"), "m\u00b3"],
+            ["surface area", _num(summ.total_area_m2, ".1f"), "m\u00b2"],
+            ["air temperature", _num(room.temperature_c, ".0f"), "\u00b0C"],
+            ["speed of sound", _num(summ.speed_of_sound, ".1f"), "m/s"]]
+    for b, ts, te in zip(summ.bands_hz, summ.sabine_rt60_s, summ.eyring_rt60_s):
+        rows.append([f"reverberation time at {b:g} Hz, Sabine", _num(ts, ".2f"), "s"])
+        rows.append([f"reverberation time at {b:g} Hz, Eyring", _num(te, ".2f"), "s"])
+    rows.append(["Schroeder frequency (Sabine time at 125 Hz)", _num(fs, ".0f"), "Hz"])
+    doc.table("room-figures", "The room's figures", ("quantity", "value", "unit"), rows, key="room-figures")
+    doc.p(f"The Schroeder frequency, {fs:.0f} Hz here, is 2000 sqrt(T/V) (Schroeder 1996, J. Acoust. Soc. Am. "
+          "99(5):3240): below it the modes are far enough apart to be heard one by one as peaks, dips and long "
+          "decays, and they are what this report is about. Above it they overlap and the response becomes "
+          "statistical; every figure shades that region.")
+    rows = [[c.name, "PASS" if c.passed else "FAIL", c.reason] for c in summ.checks]
+    doc.table("proportions", "Room-proportion checks", ("check", "result", "details"), rows,
+              note="BBC / ITU-R BS.1116 proportion rule (Walker, BBC RD 1993/8), dimension ratios near whole "
+                   "numbers (common practice), and Bonello's criteria (J. Audio Eng. Soc. 29(9):597, 1981). "
+                   "A failed check predicts uneven mode spacing, not a bad room: placement and treatment matter more.")
+    run.summ = summ
+    run.fs = fs
+    run.ms300 = ms300
+    run.coupling = coupling
+
+
+def _section_modes(run):
+    """The modes that matter at the seat, and the floor maps."""
+    from .plots_report import plot_floor_map, plot_mode_coupling
+    from .predict import predict, response_features
+
+    doc, values, glance, step, L = run.doc, run.values, run.glance, run.step, run.L
+    room, layout, units, method, f = run.room, run.layout, run.units, run.method, run.f
+    map_freqs_hz, coupling = run.map_freqs_hz, run.coupling
+    step("modes at the seat")
+    doc.section("modes", "The modes that matter at this seat")
+    doc.p("A room mode is a standing wave at one frequency. How loud it is at the seat depends on two numbers: "
+          "its shape value psi at the speaker (how strongly the speaker drives it; 1 at a pressure maximum such "
+          "as a corner, 0 on a node) and at the seat (how much of it the listener hears). Their product is the "
+          "coupling drawn below. A mode with a high coupling gives a peak and a long decay at the seat; a mode "
+          "with the seat on a node leaves a gap. When the two speakers have opposite signs they drive the mode "
+          "in opposite phase, so it differs between left and right and is weakened when both play the same bass.")
+    fig = plot_mode_coupling(coupling)
+    doc.figure(fig, "mode-coupling", "Room modes and their coupling to each speaker and the seat",
+               f"Top: |psi(speaker) psi(seat)| for every mode up to {coupling.fmax_hz:.0f} Hz; modes at or above "
+               f"{coupling.threshold:g} (dashed line) are labelled with their indices nx ny nz along length, width "
+               "and height. Bottom: |psi| at each speaker and at the seat (dot area; open dots: negative, i.e. "
+               "opposite phase).")
+    sel = np.flatnonzero(coupling.matters)
+    mode_rows = []
+    for i in sel:
+        row = [_indices_text(coupling.indices[i]), str(coupling.kind[i]), _num(coupling.freq_hz[i], ".1f"),
+               _num(coupling.t60_s[i], ".2f")]
+        row += [_num(coupling.psi_speakers[s, i], "+.2f") for s in range(len(coupling.names))]
+        row += [_num(coupling.psi_seat[i], "+.2f")]
+        row += [_num(coupling.coupling[s, i], ".2f") for s in range(len(coupling.names))]
+        row += [coupling.note(i)]
+        mode_rows.append(row)
+    cols = (["mode", "kind", "frequency (Hz)", "T60 (s)"] + [f"psi {n}" for n in coupling.names] + ["psi seat"]
+            + [f"coupling {n}" for n in coupling.names] + ["note"])
+    if mode_rows:
+        doc.table("modes-that-matter", f"Modes up to {coupling.fmax_hz:.0f} Hz with a coupling of "
+                  f"{coupling.threshold:g} or more", cols, mode_rows,
+                  note="T60 is the mode's own decay time from the surfaces' absorption; axial modes ring longest.")
+    else:
+        doc.p(f"No mode up to {coupling.fmax_hz:.0f} Hz reaches a coupling of {coupling.threshold:g} at this seat.")
+    strongest = sorted(sel, key=lambda i: -coupling.coupling[:, i].max())[:3]
+    if len(strongest):
+        glance.append("Modes that matter most at the seat: " + "; ".join(
+            f"{_indices_text(coupling.indices[i])} {coupling.freq_hz[i]:.1f} Hz {coupling.kind[i]} (coupling "
+            + ", ".join(f"{n} {coupling.coupling[s, i]:.2f}" for s, n in enumerate(coupling.names)) + ")"
+            for i in strongest) + ".")
+
+    step("predictions")
+    pred = predict(room, layout, f, method=method)
+    feats = {ch.name: response_features(room, pred, ch.name) for ch in pred.channels}
+    first_feats = feats[pred.channels[0].name]
+    freqs = list(map_freqs_hz) if map_freqs_hz is not None else _map_frequencies(coupling, first_feats)
+    if freqs:
+        doc.h3("Where the modes are loud: the level over the floor", anchor="maps")
+        doc.p("The maps show the predicted level over the whole floor plan at the seat's ear height at one "
+              "frequency, with every speaker playing the same signal in phase: bright is loud, dark is quiet. "
+              "They show where a mode's pressure maxima and nodes fall, and so what moving the seat would do.")
+    for fq in freqs:
+        step(f"floor map at {fq:g} Hz")
+        fm = floor_level_map(room, fq, layout, method=method)
+        fig = plot_floor_map(fm, room, layout, units)
+        xm, ym, top = fm.extreme("max")
+        xn, yn, low = fm.extreme("min")
+        near = ""
+        if fm.near_modes:
+            md = fm.near_modes[0]
+            near = (f" The nearest mode is {_indices_text(md['indices'])}, {md['kind']}, at {md['freq_hz']:.1f} Hz; "
+                    "its nodal lines are dashed.")
+        doc.figure(fig, f"map-{fq:g}hz".replace(".", "p"), f"Level over the floor at {fq:g} Hz",
+                   f"At the seat {fm.seat_level_db:+.1f} dB; loudest {top:+.1f} dB at {L(xm)} from the front wall and "
+                   f"{L(ym)} from the left wall; quietest {low:+.1f} dB at {L(xn)} and {L(yn)}." + near)
+        values.setdefault("maps", []).append({"freq_hz": fq, "seat_level_db": fm.seat_level_db})
+    run.pred = pred
+    run.feats = feats
+    run.first_feats = first_feats
+
+
+def _section_responses(run):
+    """Predicted responses of the file's layout and the presets."""
+    from ._cliutil import band_figures, usable_band
+    from .placement import PRESETS, preset_layout
+    from .plots import plot_prediction
+    from .predict import predict
+
+    doc, glance, room, layout, preset_used = run.doc, run.glance, run.room, run.layout, run.preset_used
+    method, f, ms300, pred, feats = run.method, run.f, run.ms300, run.pred, run.feats
+    first_feats = run.first_feats
+    doc.section("responses", "Predicted response at the seat")
+    doc.p("Each speaker's predicted level at the seat, relative to the level the same speaker would give at 1 m "
+          "in free space (0 dB); room gain shows as positive values. The speakers' own low-frequency roll-off is "
+          "included. Ticks along the top mark the room modes (long: axial, short: tangential).")
+    fig = plot_prediction(pred, ms300, title=f"{room.name}: predicted level at the seat ({layout.name} layout)")
+    doc.figure(fig, "response", "Predicted level at the seat for the room file's layout" if not preset_used
+               else f"Predicted level at the seat for the '{preset_used}' layout",
+               "Unsmoothed, 48 points per octave.")
+    preds = [(layout, pred)]
+    for name in PRESETS:
+        if preset_used == name:
+            continue
+        try:
+            lay = preset_layout(room, name)
+        except ValueError:
+            continue
+        preds.append((lay, predict(room, lay, f, method=method)))
+    fig = plot_prediction([p for _, p in preds], ms300, title=f"{room.name}: layouts compared")
+    doc.figure(fig, "layouts", "The file's layout and the standard placements compared",
+               "Colour: layout; line style: channel. Standard placements: corner, against the wall, mid-room and "
+               "desk (docs/placement.md).")
+    rows = []
+    for lay, p in preds:
+        band = usable_band(lay)
+        for ch in p.channels:
+            bf = band_figures(f, ch.level_db, band)
+            rows.append([lay.name, ch.name, f"{band[0]:g}-{band[1]:g}", _num(bf["min_db"], "+.1f"),
+                         _num(bf["max_db"], "+.1f"), _num(bf["spread_db"], ".1f"), _num(bf["std_db"], ".1f")])
+    doc.table("layout-figures", "How even each layout is at the seat (1/6-octave smoothed)",
+              ("layout", "channel", "band (Hz)", "lowest (dB)", "highest (dB)", "spread (dB)", "std (dB)"), rows,
+              note="The band runs from the speakers' low cut (at least 20 Hz) to 200 Hz; spread = highest - lowest.")
+    band = usable_band(layout)
+    glance.append("At the seat, " + "; ".join(
+        f"{ch.name} varies by {band_figures(f, ch.level_db, band)['spread_db']:.1f} dB over {band[0]:g}-{band[1]:g} Hz"
+        for ch in pred.channels) + " (1/6-octave smoothed).")
+    rows = []
+    for ch in pred.channels:
+        for ft in feats[ch.name]:
+            rows.append([ch.name, ft.kind, _num(ft.freq_hz, ".1f"), _num(ft.level_db, "+.1f"),
+                         _num(ft.prominence_db, ".1f"), "; ".join(ft.causes)])
+    if rows:
+        doc.table("peaks-dips", "Main peaks and dips at the seat and their likely causes",
+                  ("channel", "kind", "frequency (Hz)", "level (dB)", "prominence (dB)", "likely cause"), rows,
+                  note="Found on the 1/12-octave smoothed curve below the Schroeder frequency.")
+        big = max(first_feats, key=lambda t: t.prominence_db) if first_feats else None
+        if big is not None:
+            glance.append(f"Largest feature for {pred.channels[0].name}: a {big.kind} at {big.freq_hz:.0f} Hz "
+                          f"({big.prominence_db:.1f} dB): {'; '.join(big.causes) or 'many modes together'}.")
+
+
+def _section_placement(run):
+    """The placement search and the left/right explanation."""
+    from .search import PARTS
+
+    doc, values, glance, step, L = run.doc, run.values, run.glance, run.step, run.L
+    room, layout, preset_used, units, method = run.room, run.layout, run.preset_used, run.units, run.method
+    f, space, keep_out, search = run.f, run.space, run.keep_out, run.search
+    doc.section("placement", "Placement suggestion")
+    if search == "off":
+        doc.p("No placement search was run for this report (search off). Run `roommodes place` on the room "
+              "file, or make the report again with --search full.")
+    else:
+        step(f"placement search ({search})")
+        from .search import search_layouts
+
+        res = search_layouts(room, space, refine=(search == "full"))
+        best = res.ranked[0]
+        values["best_score"] = best.score
+        values["best_layout"] = {"speakers": [list(s.position_m) for s in best.layout.speakers],
+                                 "seat_m": list(best.layout.seat_m)}
+        doc.p(f"The search placed the two speakers and the seat over the region the room file allows "
+              f"({'mirror-symmetric pair' if space.symmetric else 'pair placed freely'}, listening triangle "
+              f"{'kept' if space.triangle else 'not required'}), scoring {res.n_candidates} layouts on a "
+              f"{res.step_m * 100:g} cm grid"
+              f"{' and refining the best' if search == 'full' else ' (quick: not refined)'}."
+              f" The score, in dB, lower is better, adds weighted parts over {res.band_hz[0]:g}-{res.band_hz[1]:g} Hz: "
+              "flatness of each channel at the seat, left/right mismatch, spread over a listening area of "
+              f"{space.area_m[0]:g} x {space.area_m[1]:g} m around the seat, the EQ boost the deepest broad dip "
+              "would need, and robustness to 5 cm moves (docs/placement.md).")
+        rows = []
+        scored = [(f"#{s.name}", s) for s in res.ranked]
+        if res.current is not None:
+            scored.append(("file", res.current))
+        scored += [(s.name, s) for s in res.presets]
+        for label, s in scored:
+            rows.append([label, _num(s.score, ".2f")] + [_num(s.parts[p], ".2f") for p in PARTS]
+                        + ["yes" if s.in_region else "no"])
+        doc.table("placement-scores", "Layouts ranked by the placement score (dB, lower is better)",
+                  ["layout", "score"] + list(PARTS) + ["meets the [search] constraints"], rows,
+                  note="Weights: " + ", ".join(f"{p} {res.weights[p]:g}" for p in PARTS) + ".", key="placement")
+        rows = []
+        lays = [("suggested (#1)", best.layout)] + ([("file", res.current.layout)] if res.current is not None else [])
+        for label, lay in lays:
+            for what, pos in [(f"{sp.name} speaker", sp.position_m) for sp in lay.speakers] + [("seat", lay.seat_m)]:
+                d = wall_distances(room, pos)
+                rows.append([label, what] + [(d[w], L(d[w])) for w in ("front", "left", "right", "floor")]
+                            + [walls_text(room, pos, units)])
+        doc.table("placement-positions", "Where to put the speakers and the seat",
+                  ("layout", "object", "from the front wall", "from the left wall", "from the right wall",
+                   "height", "in words"), rows,
+                  note="Speaker distances are to the woofer's centre, not the cabinet; the seat is the listener's "
+                       "ears. The CSV file gives the distances in metres.")
+        ref = [s.score for s in res.presets] + ([res.current.score] if res.current is not None else [])
+        gain = (min(ref) - best.score) if ref else float("nan")
+        sp_txt = "; ".join(f"{sp.name} speaker {walls_text(room, sp.position_m, units)}" for sp in best.layout.speakers)
+        doc.p(f"Suggested: {sp_txt}; seat {walls_text(room, best.layout.seat_m, units)}. It scores "
+              f"{best.score:.2f} dB, {gain:.2f} dB better than the best of the file's layout and the standard "
+              "placements.")
+        cur = f" against {res.current.score:.2f} dB for the file's layout" if res.current is not None else ""
+        glance.append(f"Suggested placement (score {best.score:.2f} dB{cur}; lower is better): {sp_txt}; seat "
+                      f"{walls_text(room, best.layout.seat_m, units)}.")
+        step("placement figure")
+        fig = _placement_figure(room, space, res, layout if room.layout is not None else None, method)
+        doc.figure(fig, "placement", "The suggested layout",
+                   "(a) Predicted level at the seat for the suggested and the file's layout. (b) The floor plan "
+                   "coloured by the score the seat would get at each point with the suggested speakers. (c) The "
+                   "score as both speakers move away from the front wall, everything else kept.")
+    step("left/right explanation")
+    doc.h3("Why left and right differ", anchor="explain")
+    if len(layout.speakers) < 2:
+        doc.p("The layout has one speaker: nothing to compare.")
+    else:
+        from .explain import explain as run_explain
+        from .plots_place import plot_explain
+
+        e = run_explain(room, layout, freq_hz=f, keep_out=keep_out)
+        n1, n2 = e.names
+        values["band_mismatch_db"] = e.band_mismatch_db
+        doc.p(f"The two channels of the {'file' if not preset_used else preset_used} layout at the seat differ by "
+              f"{e.band_mismatch_db:.1f} dB RMS over {e.band_hz[0]:g}-{e.band_hz[1]:g} Hz (1/{e.smoothing}-octave "
+              f"smoothed, {n1} minus {n2}). Regions where the difference reaches {e.threshold_db:g} dB, with their "
+              "main cause and the single speaker move that helps most:")
+        if e.regions:
+            doc.ul([r.sentence for r in e.regions], ordered=True)
+            rows = []
+            for k, r in enumerate(e.regions, 1):
+                for c in r.causes[:4]:
+                    rows.append([str(k), f"{r.freq_hz[0]:.0f}-{r.freq_hz[1]:.0f}", c.kind, c.text,
+                                 _num(c.contribution_db, ".1f")])
+            if rows:
+                doc.table("left-right-causes", f"Causes of the {n1}/{n2} difference, by region",
+                          ("region", "band (Hz)", "kind", "cause", "contribution (dB)"), rows,
+                          note="Contribution: how much of the region's mean |difference| the cause accounts for.")
+            r0 = max(e.regions, key=lambda r: abs(r.difference_db))
+            glance.append(f"{n1[:1].upper()}{n1[1:]} and {n2} differ by {e.band_mismatch_db:.1f} dB RMS; most at "
+                          f"{r0.peak_hz:.0f} Hz "
+                          f"({r0.difference_db:+.1f} dB, {n1} minus {n2}).")
+        else:
+            doc.p(f"No region reaches {e.threshold_db:g} dB.")
+        if e.mono_cancelled:
+            doc.p("Modes the two speakers drive in opposite phase, so that they cancel when both play the same bass: "
+                  + ", ".join(f"{_indices_text(m['indices'])} {m['freq_hz']:.1f} Hz" for m in e.mono_cancelled[:8])
+                  + ".")
+        fig = plot_explain(e, title=f"{room.name}: {n1} and {n2} at the seat")
+        doc.figure(fig, "left-right", f"{n1} and {n2} at the seat, and their difference",
+                   "Top: both channels (thin: unsmoothed) and the mono sum. Bottom: the difference with the regions "
+                   "numbered as in the list above.")
+
+
+def _section_eq(run):
+    """Bass correction and headroom, channel by channel."""
+    from . import eq as eqmod
+    from .correction import correct_prediction
+    from .plots import plot_correction
+
+    doc, values, glance, step, room = run.doc, run.values, run.glance, run.step, run.room
+    layout, method, f = run.layout, run.method, run.f
+    step("bass correction")
+    doc.section("eq", "Bass correction (EQ) and headroom")
+    corrections, _ = correct_prediction(room, layout, f, method=method)
+    doc.p("For each channel the predicted curve at the seat (1/12-octave smoothed) is compared with a flat target "
+          "aligned to its mean. Every dip is classified first: a deep, narrow dip that moves when the seat or the "
+          "speaker moves by 5 cm is a cancellation null, and boosting it only costs amplifier power and cone "
+          "excursion, so it is left alone; broad shortfalls may be boosted (at most +6 dB of the combined curve), "
+          "peaks are cut. A vented speaker is never boosted below its tuning. Filters are peaking biquads with "
+          "the Audio EQ Cookbook's Q (bandwidth between the half-gain points).")
+    values["eq_max_boost_db"] = {}
+    rows_h = []
+    for c in corrections:
+        p = c.parametric
+        values["eq_max_boost_db"][c.name] = c.headroom.max_boost_db
+        doc.h3(f"Channel {c.name}")
+        rows = []
+        for i, flt in enumerate(sorted(p.filters, key=lambda x: x.freq_hz), 1):
+            rows.append([str(i), flt.type, _num(flt.freq_hz, ".1f"), _num(flt.gain_db, "+.1f"), _num(flt.q, ".2f"),
+                         _num(flt.bandwidth_octaves, ".2f")])
+        if rows:
+            doc.table(f"eq-{c.name}", f"Parametric EQ for {c.name} (band {p.band_hz[0]:g}-{p.band_hz[1]:g} Hz)",
+                      ("#", "type", "frequency (Hz)", "gain (dB)", "Q", "bandwidth (octaves)"), rows,
+                      note=f"Deviation from the target where EQ may act: rms {p.error_before.rms_db:.1f} -> "
+                           f"{p.error_after.rms_db:.1f} dB, largest {p.error_before.max_abs_db:.1f} -> "
+                           f"{p.error_after.max_abs_db:.1f} dB.", key=f"eq-{c.name}")
+        else:
+            doc.p("No filter is needed within the limits.")
+        regs = [f"{r.kind} {r.freq_lo_hz:.0f}-{r.freq_hi_hz:.0f} Hz ({r.deviation_db:+.1f} dB): "
+                + {"peak": "cut", "broad dip": "may be boosted", "narrow null": "not boosted"}.get(r.kind, "")
+                for r in p.classification.regions if r.kind != "ok"]
+        if regs:
+            doc.ul(regs)
+        sf = c.shelf.filters[0]
+        g = c.graphic_third
+        sliders = ", ".join(f"{lab} {v:+.1f}" for lab, v in zip(g.bands.labels, g.gains_db) if abs(v) >= 0.05)
+        doc.p(f"With a bass tone control only: a low shelf at {sf.freq_hz:.0f} Hz, {sf.gain_db:+.1f} dB. With a "
+              f"31-band graphic EQ (1/3 octave): {sliders or 'all sliders at 0'} dB.")
+        doc.table(f"graphic-{c.name}", f"1/3-octave graphic EQ sliders for {c.name}", ("band (Hz)", "gain (dB)"),
+                  [[lab, _num(v, "+.1f")] for lab, v in zip(g.bands.labels, g.gains_db)])
+        for w in p.warnings:
+            doc.p(f"Warning: {w.message}", cls="caution")
+        h = c.headroom
+        rows_h.append([c.name, _num(h.max_boost_db, "+.1f"), _num(h.max_boost_freq_hz, ".0f"),
+                       _num(h.preattenuation_db, ".1f"), _num(10 ** (max(h.max_boost_db, 0) / 10), ".2f"),
+                       _num(10 ** (max(h.max_boost_db, 0) / 20), ".2f")])
+    doc.h3("Headroom")
+    doc.table("headroom", "What the correction costs in headroom, per channel",
+              ("channel", "max boost (dB)", "at (Hz)", "digital pre-attenuation (dB)", "amplifier power (x)",
+               "cone excursion (x)"), rows_h,
+              note="Max boost of the combined filter curve at any frequency; power grows as 10^(G/10), excursion "
+                   "and voltage as 10^(G/20).", key="headroom")
+    for w in eqmod.channel_headroom_warnings({c.name: c.headroom.max_boost_db for c in corrections}):
+        doc.p(f"Warning: {w.message}", cls="caution")
+    glance.append("Bass correction: " + "; ".join(
+        f"{c.name} {len(c.parametric.filters)} filter(s), max boost {c.headroom.max_boost_db:+.1f} dB "
+        f"(pre-attenuate {c.headroom.preattenuation_db:.1f} dB)" for c in corrections) + ".")
+    fig = plot_correction(corrections, title=f"{room.name}: bass correction")
+    doc.figure(fig, "eq", "Bass correction, channel by channel",
+               "Left: before, after and the target, with the classified regions shaded (nulls are not boosted). "
+               "Right: each filter and the combined correction; the dotted line is the maximum boost.")
+    doc.raw('<div class="caution"><strong>Before loading a correction</strong><ul>'
+            + "".join(f"<li>{_esc(t)}</li>" for t in eqmod.CAUTIONS) + "</ul></div>")
+    run.corrections = corrections
+
+
+def _section_measurements(run):
+    """Measured against predicted, and the fit."""
+    doc, values, glance, step, room = run.doc, run.values, run.glance, run.step, run.room
+    method, measurements, fit_targets = run.method, run.measurements, run.fit_targets
+    compare_band_hz, compare_smoothing = run.compare_band_hz, run.compare_smoothing
+    fit_res = None
+    if measurements or fit_targets:
+        from .compare import average_measurements, compare_to_prediction
+        from .plots_measure import plot_comparison, plot_fit
+
+        doc.section("measurements", "Measured against predicted")
+        by_channel = {}
+        for m in measurements:
+            by_channel.setdefault(m.channel, []).append(m)
+        values["comparisons"] = {}
+        for ch, group in by_channel.items():
+            step(f"comparison ({ch})")
+            meas = [g.measurement for g in group]
+            first = average_measurements(meas, label=meas[0].label if len(meas) == 1 else f"mean of {len(meas)}")
+            pos = [g.position_m for g in group]
+            rep = compare_to_prediction(room, first, ch, pos, band_hz=compare_band_hz, smoothing=compare_smoothing,
+                                        method=method)
+            cmp = rep.comparison
+            values["comparisons"][ch] = {"median_abs_diff_db": cmp.median_abs_diff_db,
+                                         "p90_abs_diff_db": cmp.p90_abs_diff_db}
+            doc.h3(f"Speaker {ch}: {len(meas)} measurement(s)")
+            doc.table(f"compare-{ch}", f"Measured against predicted, {ch}",
+                      ("quantity", "value"),
+                      [["files", ", ".join(m.label for m in meas)],
+                       ["band (Hz)", f"{cmp.band_hz[0]:g}-{cmp.band_hz[1]:g}"],
+                       ["smoothing", f"1/{cmp.smoothing:g} octave" if cmp.smoothing else "none"],
+                       ["level offset added to the measurement (dB)", _num(cmp.offset_db, "+.1f")],
+                       ["median |difference| (dB)", _num(cmp.median_abs_diff_db, ".2f")],
+                       ["90th percentile |difference| (dB)", _num(cmp.p90_abs_diff_db, ".2f")],
+                       ["rms difference (dB)", _num(cmp.rms_diff_db, ".2f")],
+                       ["correlation", _num(cmp.correlation, ".2f")]], key=f"compare-{ch}")
+            rows = []
+            for mt in rep.matches:
+                rows.append([mt.kind, _num(mt.measured.freq_hz if mt.measured else None, ".1f"),
+                             _num(mt.reference.freq_hz if mt.reference else None, ".1f"), _num(mt.ratio, ".3f"),
+                             mt.cause])
+            if rows:
+                doc.table(f"features-{ch}", f"Peaks and dips, measured and predicted, {ch}",
+                          ("kind", "measured (Hz)", "predicted (Hz)", "ratio", "predicted cause"), rows)
+            if rep.interpretation:
+                doc.ul(rep.interpretation)
+            spread = None
+            if first.std_db is not None:
+                spread = np.interp(np.log(cmp.freq_hz), np.log(first.freq_hz), first.std_db)
+            fig = plot_comparison(rep, spread_db=spread, title=f"{room.name}: {ch}, measured against predicted")
+            doc.figure(fig, f"compare-{ch}", f"Measured against predicted, {ch}",
+                       "Top: both curves smoothed alike and aligned in level; triangles mark matched peaks and dips. "
+                       "Bottom: measured minus predicted.")
+            glance.append(f"Measured {ch}: median |measured - predicted| {cmp.median_abs_diff_db:.1f} dB over "
+                          f"{cmp.band_hz[0]:g}-{cmp.band_hz[1]:g} Hz.")
+        if fit_targets:
+            step("fit")
+            from .fit import fit_room
+
+            fit_res = fit_room(room, list(fit_targets))
+            eb, ea = fit_res.error_before, fit_res.error_after
+            values["fit"] = {"error_before": eb, "error_after": ea,
+                             "parameters": {p.name: p.value for p in fit_res.parameters}}
+            doc.h3("Calibrating the model to the measurements", anchor="fit")
+            doc.p(f"The model's absorption, dimensions, positions and roll-off were adjusted within bounds, pulled "
+                  f"toward the room file's values, to match the measurements: median |difference| "
+                  f"{eb['median_abs_db']:.2f} -> {ea['median_abs_db']:.2f} dB, 90th percentile {eb['p90_abs_db']:.2f} "
+                  f"-> {ea['p90_abs_db']:.2f} dB ({fit_res.iterations} iterations"
+                  f"{'' if fit_res.success else ', stopped before converging: ' + fit_res.message}). The rest of this "
+                  "report uses the room file as given; `roommodes fit ... -o CALIBRATED.toml` writes the calibrated "
+                  "room file to run again.")
+            rows = []
+            for p in fit_res.parameters:
+                spec = ".1f" if p.unit == "Hz" else ".3f"
+                rows.append([p.name, p.unit or "alpha", _num(p.initial, spec), _num(p.value, spec),
+                             _num(p.change, "+" + spec), _num(p.std_error, spec), "yes" if p.at_bound else ""])
+            doc.table("fit", "Fitted parameters", ("parameter", "unit", "file", "fitted", "change",
+                                                    "standard error", "at its bound"), rows,
+                      note="Absorption is the area-weighted coefficient of the group at "
+                           f"{fit_res.reference_hz:.0f} Hz. A standard error near the tolerance means the "
+                           "measurements say little about that parameter.", key="fit")
+            fig = plot_fit(fit_res, title=f"{room.name}: fit to measurements")
+            doc.figure(fig, "fit", "The model before and after the fit, against the measurements",
+                       "Smoothed alike and level-aligned.")
+    run.fit_res = fit_res
+
+
+def _section_validity(run):
+    """What the model assumes, where it stops being trustworthy; the cautions."""
+    from . import eq as eqmod
+
+    doc, step, L, room, layout = run.doc, run.step, run.L, run.room, run.layout
+    measurements, summ, fs, fit_res = run.measurements, run.summ, run.fs, run.fit_res
+    step("validity, cautions, reproduction")
+    doc.section("validity", "How far to trust this report")
+    doc.h3("What the model assumes")
+    doc.ul(MODEL_ASSUMPTIONS)
+    doc.h3("Where it stops being trustworthy")
+    limits = [f"Above the Schroeder frequency, {fs:.0f} Hz here (shaded in every figure): modes overlap and details "
+              "of the real room the box model does not know (furniture, openings, the walls' construction) decide "
+              "the response. Use the figures there as indications of trends only."]
+    ext = [n for n, b in summ.extrapolated]
+    if ext:
+        limits.append("Absorption below 125 Hz is extrapolated for " + ", ".join(ext) + ": the modes' decay times "
+                      "and peak heights depend on it directly. A measurement and a fit settle it.")
+    dmin = min(float(np.linalg.norm(np.subtract(s.position_m, layout.seat_m))) for s in layout.speakers)
+    if dmin < 1.0:
+        limits.append(f"The seat is {L(dmin)} from the nearest speaker: close to a real cabinet the point-source "
+                      "model and the woofer's size matter.")
+    hi_abs = [s.name for s in room.surfaces if float(s.absorption_at([125.0])[0]) > 0.45]
+    if hi_abs:
+        limits.append("Strongly absorbing surfaces (" + ", ".join(hi_abs) + ", alpha above 0.45 at 125 Hz): the "
+                      "perturbation damping of the modes is least accurate there.")
+    limits.append("Positions are as accurate as the tape measure: at 200 Hz a 5 cm error moves a mode's pattern by "
+                  "about a tenth of the distance between its node and its maximum. The placement score's "
+                  "robustness part accounts for 5 cm moves.")
+    limits.append("In the project's comparison with a finite-element wave solution of the same box (docs/methods.md), "
+                  "the modal sum differs by a median 0.08 dB (90th percentile 0.68 dB) over 20-200 Hz: the model is "
+                  "far more exact than the room is a box.")
+    doc.ul(limits)
+    doc.h3("What the measurements and the fit changed")
+    if fit_res is not None:
+        moved = [p for p in fit_res.parameters if abs(p.change) > max(1e-9, 0.5 * p.std_error)]
+        items = [f"{p.name}: {p.initial:.3g} -> {p.value:.3g} {p.unit}".rstrip()
+                 + (" (at its bound)" if p.at_bound else "") for p in moved]
+        items = items or ["No parameter moved by more than half its standard error."]
+        items.append(f"Median |measured - model| {fit_res.error_before['median_abs_db']:.2f} -> "
+                     f"{fit_res.error_after['median_abs_db']:.2f} dB.")
+        doc.ul(items)
+    elif measurements:
+        doc.p("Measurements were compared but not fitted (make the report with --fit to calibrate the model to them).")
+    else:
+        doc.p("No measurements were given, so nothing here has been checked against the room itself. Measure the "
+              "seat with each speaker (docs/measurement.md) and make the report again with the measurement files "
+              "and --fit.")
+    doc.section("cautions", "Cautions")
+    doc.raw('<div class="caution"><ul>' + "".join(f"<li>{_esc(t)}</li>" for t in SAFETY_NOTES + tuple(eqmod.CAUTIONS))
+            + "</ul></div>")
+    doc.p("The full text is docs/cautions.md.", cls="note")
+
+
+def _section_reproduce(run):
+    """Versions, settings, inputs and the room file."""
+    doc, units, method, search, measurements = run.doc, run.units, run.method, run.search, run.measurements
+    fit_targets, compare_band_hz, compare_smoothing = run.fit_targets, run.compare_band_hz, run.compare_smoothing
+    created, command = run.created, run.command
+    files_folder, inputs, room_text = run.files_folder, run.inputs, run.room_text
+    doc.section("reproduce", "Inputs, settings and version")
+    import matplotlib
+    import scipy
+
+    rows = [["roommodes", __version__], ["Python", platform.python_version()], ["NumPy", np.__version__],
+            ["SciPy", scipy.__version__], ["Matplotlib", matplotlib.__version__],
+            ["created", created or "-"], ["units shown", units], ["solver", method],
+            ["frequency grid", "15-300 Hz, 48 points per octave"],
+            ["placement search", search], ["EQ", "flat target, at most 6 filters, at most +6 dB boost, Q 0.5-10"],
+            ["left/right regions", "1/6-octave smoothed, threshold 3 dB"]]
+    if measurements:
+        rows.append(["measurement comparison", f"{compare_band_hz[0]:g}-{compare_band_hz[1]:g} Hz, 1/"
+                     f"{compare_smoothing:g}-octave smoothing, levels aligned"])
+    if fit_targets:
+        rows.append(["fit", "roommodes fit defaults: absorption by pairs of opposite surfaces, 5 % size, 5 cm "
+                     "positions, 30 % roll-off, 20-200 Hz"])
+    if command:
+        rows.append(["command", command])
+    if files_folder:
+        rows.append(["figures and tables", f"{files_folder}/ next to this page (PNG, SVG and CSV)"])
+    doc.table("settings", "Version and settings", ("item", "value"), rows)
+    if inputs:
+        doc.table("inputs", "Input files", ("file", "bytes", "SHA-256"),
+                  [[i["name"], (int(i["bytes"]), str(i["bytes"])), i["sha256"]] for i in inputs])
+    if room_text:
+        doc.h3("The room file")
+        doc.raw(f"<pre>{_esc(room_text)}</pre>")
+
+
+def _section_appendix(run):
+    """Every mode up to 200 Hz."""
+    from .criteria import note_name
+    from .plots import plot_modes
+
+    doc, room, ms300 = run.doc, run.room, run.ms300
+    doc.section("appendix", "Appendix: room modes up to 200 Hz")
+    rows = []
+    for i in np.flatnonzero(ms300.freq_hz <= 200.0):
+        rows.append([_indices_text(ms300.indices[i]), str(ms300.kind[i]), _num(ms300.freq_hz[i], ".1f"),
+                     note_name(float(ms300.freq_hz[i])), _num(ms300.t60_s[i], ".2f"),
+                     _num(ms300.bandwidth_hz[i], ".1f")])
+    doc.table("modes", "Room modes up to 200 Hz (rigid-wall frequencies, with their decay from the surfaces)",
+              ("mode", "kind", "frequency (Hz)", "note", "T60 (s)", "bandwidth (Hz)"), rows, key="modes",
+              note="Indices nx, ny, nz count half-wavelengths along length, width and height; all modes up to "
+                   "300 Hz are in `roommodes modes`.")
+    fig = plot_modes(ms300, 200.0, title=f"Room modes: {room.name}")
+    doc.figure(fig, "modes", "Room modes up to 200 Hz with their decay times", "Colour: kind of mode.")
+
+
+def _placement_figure(room, space, res, current, method):
+    """The ``place`` command's figure for a search result."""
+    from .plots_place import plot_place
+    from .predict import predict
+    from .search import front_distance_profile, seat_score_map
+
+    best = res.ranked[0].layout
+    preds = [("best", predict(room, best, method=method))]
+    if current is not None and len(current.speakers) >= 2:
+        preds.append(("current", predict(room, current, method=method)))
+    else:
+        current = None
+    kw = {"weights": res.weights, "band_hz": res.band_hz, "area_m": space.area_m, "area_points": space.area_points}
+    seat_map = seat_score_map(room, best, **kw)
+    lo = max(0.05, min(space.speaker_front_m[0], best.speakers[0].position_m[0]) - 0.15)
+    hi = min(best.seat_m[0] - 0.5, max(space.speaker_front_m[1], best.speakers[0].position_m[0]) + 0.15)
+    profile = front_distance_profile(room, best, distances_m=np.arange(lo, hi + 1e-9, 0.02), space=space, **kw)
+    return plot_place(room, best, current, preds, res.band_hz, preds[0][1].schroeder_hz, seat_map, profile,
+                      space.keep_out)

@@ -1,0 +1,377 @@
+"""The report's computations (modes at the seat, the floor map), its figures and its page.
+
+Outside references:
+* mode shapes psi_n = cos(nx pi x/Lx) cos(ny pi y/Ly) cos(nz pi z/Lz) of the rigid box
+  (Rayleigh; Kuttruff, Room Acoustics, 5th ed., 2009, sec. 3.3), written out here
+  independently of roommodes.modes;
+* a source in a corner couples with |psi| = 1 to every mode (same source; CHECKS.md);
+* at an axial mode's frequency in a lightly damped room that mode dominates, so the level
+  over the floor follows 20 log10 |cos(n pi x / L)| (same source);
+* the page is parsed with the standard library's html.parser, and embedded SVG figures
+  with xml.etree.
+"""
+
+import base64
+import csv
+import io
+import re
+import xml.etree.ElementTree as ET
+from dataclasses import replace
+from html.parser import HTMLParser
+
+import numpy as np
+import pytest
+
+from roommodes import WALLS, example_rooms, load_room, log_frequencies, predict, transfer_function
+from roommodes.modes import room_modes
+from roommodes.report import (MATTERS_COUPLING, build_report, floor_level_map, mode_coupling,
+                              _separated_groups)
+from roommodes.room import Layout, Room, Speaker, Surface
+from roommodes.search import search_space
+from roommodes.summary import room_summary
+
+ROOMS = example_rooms()
+BOOTH = next(p for p in ROOMS if "booth" in p.name)
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
+_VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source", "track", "wbr"}
+
+
+# ------------------------------------------------------------------------------ page checker
+class PageChecker(HTMLParser):
+    """Collects what the checks need: nesting errors, references, ids, figures, text, CSS."""
+
+    def __init__(self):
+        super().__init__(convert_charrefs=True)
+        self.stack, self.errors, self.refs, self.ids = [], [], [], set()
+        self.figures, self.text, self.css, self.tags = {}, [], [], []
+        self._figure = None
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        self.tags.append(tag)
+        if "id" in a:
+            if a["id"] in self.ids:
+                self.errors.append(f"duplicate id {a['id']}")
+            self.ids.add(a["id"])
+        for key in ("src", "href", "action", "data", "poster", "srcset", "background"):
+            if key in a:
+                self.refs.append((tag, key, a[key]))
+        if "style" in a:
+            self.css.append(a["style"])
+        if tag == "figure":
+            self._figure = a.get("id")
+            self.figures[self._figure] = []
+        if tag == "img" and self._figure is not None:
+            self.figures[self._figure].append(a.get("src", ""))
+        if tag not in _VOID:
+            self.stack.append(tag)
+
+    def handle_startendtag(self, tag, attrs):
+        self.handle_starttag(tag, attrs)
+        if tag not in _VOID:
+            self.stack.pop()
+
+    def handle_endtag(self, tag):
+        if tag in _VOID:
+            return
+        if not self.stack or self.stack[-1] != tag:
+            self.errors.append(f"</{tag}> does not close <{self.stack[-1] if self.stack else None}>")
+            return
+        self.stack.pop()
+        if tag == "figure":
+            self._figure = None
+
+    def handle_data(self, data):
+        if self.stack and self.stack[-1] == "style":
+            self.css.append(data)
+        else:
+            self.text.append(data)
+
+
+def check_page(page):
+    """Parse the page and check it is well formed, self-contained and embeds every figure it
+    mentions; returns the checker for further checks."""
+    c = PageChecker()
+    c.feed(page)
+    c.close()
+    assert not c.errors, c.errors[:5]
+    assert not c.stack, f"unclosed elements: {c.stack}"
+    assert page.startswith("<!DOCTYPE html>")
+    # nothing is fetched: every reference is embedded data or a link inside the page
+    for tag, key, value in c.refs:
+        assert value.startswith("data:") or value.startswith("#"), (tag, key, value[:60])
+        if value.startswith("#"):
+            assert value[1:] in c.ids, f"link to a missing anchor {value}"
+    assert not {"link", "script", "iframe", "object", "embed", "base"} & set(c.tags)
+    css = "\n".join(c.css)
+    assert "url(" not in css and "@import" not in css and "@font-face" not in css
+    assert "@media print" in css and "break-inside: avoid" in css
+    text = " ".join(c.text)
+    mentioned = {int(n) for n in re.findall(r"Figure (\d+)", text)}
+    assert mentioned, "the page mentions no figure"
+    for n in mentioned:
+        srcs = c.figures.get(f"fig-{n}")
+        assert srcs, f"Figure {n} is mentioned but not in the page"
+        for src in srcs:
+            head, _, b64 = src.partition(",")
+            data = base64.b64decode(b64, validate=True)
+            if head == "data:image/svg+xml;base64":
+                assert ET.fromstring(data).tag.endswith("svg")
+            else:
+                assert head == "data:image/png;base64" and data.startswith(PNG_SIGNATURE)
+    return c
+
+
+def data_values(page, table_key):
+    """(full value, text shown) of the numeric cells of the table with ``data-key``, by row."""
+    m = re.search(rf'<table id="table-\d+" data-key="{re.escape(table_key)}">(.*?)</table>', page, re.S)
+    assert m, f"no table {table_key}"
+    out = []
+    for r in re.findall(r"<tr>(.*?)</tr>", m.group(1), re.S):
+        cells = re.findall(r'<td class="num"(?: data-value="([^"]*)")?>(.*?)</td>', r, re.S)
+        if cells:
+            out.append([(float(v) if v else None, t) for v, t in cells])
+    return out
+
+
+# ------------------------------------------------------------------------------ modes at the seat
+def _psi(n, size, p):
+    # Rayleigh's rigid-box mode shape, written out (Kuttruff 2009, sec. 3.3)
+    return float(np.prod([np.cos(k * np.pi * x / length) for k, x, length in zip(n, p, size)]))
+
+
+@pytest.mark.parametrize("path", ROOMS, ids=lambda p: p.stem)
+def test_mode_coupling_equals_the_closed_form(path):
+    room = load_room(path)
+    cp = mode_coupling(room, fmax_hz=150.0)
+    lay = room.layout
+    assert len(cp.freq_hz) > 10 and cp.freq_hz.max() <= 150.0
+    for i in range(len(cp.freq_hz)):
+        n = cp.indices[i]
+        ref_seat = _psi(n, room.size_m, lay.seat_m)
+        assert cp.psi_seat[i] == pytest.approx(ref_seat, abs=1e-12)
+        for s, sp in enumerate(lay.speakers):
+            ref = _psi(n, room.size_m, sp.position_m)
+            assert cp.psi_speakers[s, i] == pytest.approx(ref, abs=1e-12)
+            assert cp.coupling[s, i] == pytest.approx(abs(ref * ref_seat), abs=1e-12)
+        assert cp.matters[i] == bool(np.any(cp.coupling[:, i] >= MATTERS_COUPLING))
+    # the frequencies are the rigid-box ones, f = c/2 sqrt(sum (n/L)^2)
+    c = room.speed_of_sound
+    ref_f = 0.5 * c * np.sqrt(np.sum((cp.indices / np.asarray(room.size_m)) ** 2, axis=1))
+    np.testing.assert_allclose(cp.freq_hz, ref_f, rtol=1e-12)
+
+
+def test_corner_speaker_couples_fully_to_every_mode():
+    # a source in a corner is at a pressure maximum of every mode: |psi| = 1 (CHECKS.md, Kuttruff)
+    room = load_room(BOOTH)
+    lay = Layout((Speaker("corner", (0.0, 0.0, 0.0)),), room.layout.seat_m)
+    cp = mode_coupling(room, lay, fmax_hz=200.0)
+    np.testing.assert_allclose(np.abs(cp.psi_speakers[0]), 1.0, atol=1e-12)
+    np.testing.assert_allclose(cp.coupling[0], np.abs(cp.psi_seat), atol=1e-12)
+
+
+def test_mirrored_speakers_differ_only_in_the_sign_of_odd_width_modes():
+    # psi(x, Ly - y, z) = (-1)^ny psi(x, y, z) for the cosine shapes
+    room = load_room(BOOTH)
+    ly = room.size_m[1]
+    lay = Layout((Speaker("left", (0.5, 0.7, 1.1)), Speaker("right", (0.5, ly - 0.7, 1.1))), (1.4, ly / 2, 1.2))
+    cp = mode_coupling(room, lay, fmax_hz=200.0)
+    sign = np.where(cp.indices[:, 1] % 2 == 1, -1.0, 1.0)
+    np.testing.assert_allclose(cp.psi_speakers[1], sign * cp.psi_speakers[0], atol=1e-12)
+    odd = cp.indices[:, 1] % 2 == 1
+    assert all("opposite phase" in cp.note(i) for i in np.flatnonzero(odd & (np.abs(cp.psi_speakers[0]) >= 0.3)))
+    # the seat on the centre line is on a node of every odd width mode
+    np.testing.assert_allclose(cp.psi_seat[odd], 0.0, atol=1e-12)
+    assert all("seat near a node" in cp.note(i) for i in np.flatnonzero(odd))
+
+
+def test_mode_coupling_defaults_and_refusals():
+    room = load_room(BOOTH)
+    cp = mode_coupling(room)
+    assert cp.fmax_hz == pytest.approx(min(200.0, room_summary(room).schroeder_hz))
+    with pytest.raises(ValueError, match="fmax_hz must be 1 to 1000 Hz"):
+        mode_coupling(room, fmax_hz=0.0)
+    with pytest.raises(ValueError, match="threshold must be 0 to 1"):
+        mode_coupling(room, threshold=2.0)
+    with pytest.raises(ValueError, match="no speakers and seat"):
+        mode_coupling(replace(room, layout=None))
+
+
+# ------------------------------------------------------------------------------ the floor map
+def _quiet_box(size):
+    return Room("quiet box", size, tuple(Surface(w, (0.02,)) for w in WALLS))
+
+
+@pytest.mark.parametrize("n", [(1, 0, 0), (0, 1, 0), (2, 0, 0)])
+def test_map_at_an_axial_mode_shows_its_cosine(n):
+    # Lightly damped 6 x 4 x 2.5 m box (alpha 0.02), source near a corner (couples to every
+    # mode). At the mode's own frequency it dominates: the level away from the source is
+    # 20 log10 |cos(n pi x / L)| plus a constant (Rayleigh; Kuttruff 2009, sec. 3.3).
+    size = (6.0, 4.0, 2.5)
+    room = _quiet_box(size)
+    lay = Layout((Speaker("a", (0.3, 0.3, 0.3)),), (3.1, 2.1, 1.2))
+    ms = room_modes(room, 80.0)
+    f = float(ms.freq_hz[[tuple(i) for i in ms.indices].index(n)])
+    fm = floor_level_map(room, f, lay, height_m=1.2, step_m=0.1)
+    axis = 0 if n[0] else 1
+    coord = fm.x_m if axis == 0 else fm.y_m
+    shape = np.abs(np.cos(n[axis] * np.pi * coord / size[axis]))
+    shape2d = shape[:, None] * np.ones((1, fm.y_m.size)) if axis == 0 else np.ones((fm.x_m.size, 1)) * shape[None, :]
+    xx, yy = np.meshgrid(fm.x_m, fm.y_m, indexing="ij")
+    far = np.hypot(xx - 0.3, yy - 0.3) > 1.0
+    ok = far & (shape2d > 0.3)
+    d = fm.level_db[ok] - 20 * np.log10(shape2d[ok])
+    assert np.max(np.abs(d - np.median(d))) < 0.15  # dB; other modes add a little near the nodes
+    # linear pressure against |cos| over the whole plane away from the source
+    assert np.corrcoef(10 ** (fm.level_db[far] / 20), shape2d[far])[0, 1] > 0.999
+    # quietest along the nodal lines, loudest at the walls the mode's maxima lie on
+    profile = np.nanmean(fm.level_db, axis=1 - axis)
+    nodes = (np.arange(n[axis]) + 0.5) * size[axis] / n[axis]
+    assert min(abs(coord[np.argmin(profile)] - nodes)) <= 0.1 + 1e-9
+    assert profile[-1] > profile.min() + 20 and profile[0] > profile.min() + 20  # cells straddle the node
+    assert fm.near_modes[0]["indices"] == n
+
+
+def test_map_agrees_with_the_prediction_at_the_seat():
+    room = load_room(ROOMS[0])
+    f = 57.0
+    fm = floor_level_map(room, f, step_m=0.25)
+    # the predicted curve on the default grid (15-300 Hz), at f
+    pred = predict(room, freq_hz=np.append(log_frequencies(15.0, 300.0, 48), f))
+    h = sum(c.transfer for c in pred.channels)[-1]
+    assert fm.seat_level_db == pytest.approx(20 * np.log10(abs(h)), abs=1e-6)
+    one = floor_level_map(room, f, step_m=0.25, channels=["right"])
+    ref = pred.channels[1].level_db[-1]
+    assert one.seat_level_db == pytest.approx(ref, abs=1e-6)
+    assert one.channels == ("right",)
+
+
+def test_map_grouping_does_not_change_the_values():
+    # the map asks the solver for groups of points on one side of the source; the values
+    # must equal those of one call for every point
+    room = load_room(BOOTH)
+    fm = floor_level_map(room, 63.0, step_m=0.3, include_speaker=False)
+    xx, yy = np.meshgrid(fm.x_m, fm.y_m, indexing="ij")
+    pts = np.stack([xx.ravel(), yy.ravel(), np.full(xx.size, fm.height_m)], axis=1)
+    ok = np.isfinite(fm.level_db.ravel())
+    h = transfer_function(room, fm.sources_m, pts[ok], [63.0, 63.0])[:, :, 0].sum(axis=0)
+    np.testing.assert_allclose(fm.level_db.ravel()[ok], 20 * np.log10(np.abs(h)), atol=1e-9)
+    # every point lands in exactly one group
+    mask = np.ones(len(pts), bool)
+    groups = _separated_groups(fm.sources_m[0], pts, mask)
+    assert sorted(np.concatenate(groups).tolist()) == list(range(len(pts)))
+
+
+def test_map_refuses_bad_input():
+    room = load_room(BOOTH)
+    with pytest.raises(ValueError, match="frequency must be 5 to 1000 Hz"):
+        floor_level_map(room, 0.0)
+    with pytest.raises(ValueError, match="height must lie inside the room"):
+        floor_level_map(room, 50.0, height_m=3.0)
+    with pytest.raises(ValueError, match="step must be 0.01 to 0.5 m"):
+        floor_level_map(room, 50.0, step_m=0.001)
+    with pytest.raises(ValueError, match="no speaker named 'centre'"):
+        floor_level_map(room, 50.0, channels=["centre"])
+    with pytest.raises(ValueError, match="needs at least one speaker"):
+        floor_level_map(replace(room, layout=None), 50.0)
+
+
+# ------------------------------------------------------------------------------ figures
+@pytest.mark.parametrize("path", ROOMS, ids=lambda p: p.stem)
+def test_figures_for_every_example_room(path):
+    from matplotlib.collections import LineCollection, QuadMesh
+    from matplotlib.patches import Rectangle
+
+    from roommodes.plots_report import plot_floor_map, plot_mode_coupling, plot_room_views
+
+    room = load_room(path)
+    lx, ly, lz = room.size_m
+    for units in ("cm", "ft-in"):
+        fig = plot_room_views(room, keep_out=search_space(room).keep_out, units=units)
+        assert fig.canvas.get_default_filetype() == "png" and type(fig.canvas).__name__ == "FigureCanvasAgg"
+        ax = fig.axes[0]
+        # both views in one set of axes at equal aspect: one scale for the plan and the section
+        assert ax.get_aspect() == 1.0
+        boxes = [(p.get_width(), p.get_height()) for p in ax.patches if isinstance(p, Rectangle)]
+        assert (pytest.approx(ly), pytest.approx(lx)) in boxes  # plan: width across, length down
+        assert (pytest.approx(lx), pytest.approx(lz)) in boxes  # section: length across, height up
+        labels = [t.get_text() for t in ax.texts]
+        for s in room.surfaces:
+            assert any(s.describe() in t for t in labels), s.name
+
+    cp = mode_coupling(room)
+    fig = plot_mode_coupling(cp)
+    stems = [c for c in fig.axes[0].collections if isinstance(c, LineCollection)]
+    assert len(stems) == len(cp.names)
+    for s, coll in enumerate(stems):
+        tops = np.array([seg[1][1] for seg in coll.get_segments()])
+        np.testing.assert_allclose(tops, cp.coupling[s], atol=1e-12)
+
+    fm = floor_level_map(room, float(cp.freq_hz[0]), step_m=0.1)
+    fig = plot_floor_map(fm, room)
+    mesh = [c for c in fig.axes[0].collections if isinstance(c, QuadMesh)][0]
+    np.testing.assert_allclose(np.ma.filled(mesh.get_array(), np.nan).reshape(fm.level_db.shape), fm.level_db)
+
+
+# ------------------------------------------------------------------------------ the page
+@pytest.fixture(scope="module")
+def booth_report():
+    room = load_room(BOOTH)
+    return room, build_report(room, search="off", embed="png", created="2026-01-01 12:00",
+                              room_text=BOOTH.read_text(), files_folder="booth_files")
+
+
+def test_report_page_is_self_contained_and_embeds_its_figures(booth_report):
+    room, rep = booth_report
+    c = check_page(rep.html)
+    for anchor in ("room", "modes", "responses", "placement", "eq", "validity", "cautions", "reproduce"):
+        assert anchor in c.ids
+    assert len(rep.figures) == len({f.name for f in rep.figures}) >= 7
+    for f in rep.figures:
+        assert f.png.startswith(PNG_SIGNATURE)
+        assert ET.fromstring(f.svg).tag.endswith("svg")
+        assert f"fig-{f.number}" in c.ids
+    text = " ".join(c.text)
+    assert "search off" in text  # the placement section says no search was run
+    assert "Cautions" in text and "NIOSH" in text
+
+
+def test_report_numbers_and_tables(booth_report):
+    room, rep = booth_report
+    summ = room_summary(room)
+    fs = re.search(r'data-key="schroeder_hz" data-value="([^"]+)"', rep.html)
+    assert float(fs.group(1)) == summ.schroeder_hz
+    rows = data_values(rep.html, "modes")
+    ms = room_modes(room, 300.0)
+    ref = ms.freq_hz[ms.freq_hz <= 200.0]
+    shown = np.array([r[0][0] for r in rows])
+    np.testing.assert_array_equal(shown, ref)
+    assert [r[0][1] for r in rows] == [f"{v:.1f}" for v in ref]
+    # every table's CSV has its header and one row per table row, numbers at full precision
+    for t in rep.tables:
+        got = list(csv.reader(io.StringIO(t.csv_text())))
+        assert tuple(got[0]) == t.columns
+        assert len(got) == len(t.text) + 1
+    modes_t = next(t for t in rep.tables if t.name.endswith("-modes"))
+    freqs = [float(r[2]) for r in list(csv.reader(io.StringIO(modes_t.csv_text())))[1:]]
+    np.testing.assert_array_equal(freqs, ref)
+
+
+def test_report_for_a_room_without_speakers_uses_a_standard_layout():
+    room = replace(load_room(BOOTH), layout=None)
+    rep = build_report(room, search="off", map_freqs_hz=[])
+    assert "gives no speakers and seat" in rep.html
+    check_page(rep.html)
+
+
+def test_report_refuses_bad_options():
+    room = load_room(BOOTH)
+    with pytest.raises(ValueError, match="units must be one of"):
+        build_report(room, units="yards")
+    with pytest.raises(ValueError, match="search must be one of"):
+        build_report(room, search="slow")
+    with pytest.raises(ValueError, match="embed must be one of"):
+        build_report(room, embed="gif")
+    with pytest.raises(ValueError, match="measurements need"):
+        build_report(replace(room, layout=None), measurements=[object()])
+
