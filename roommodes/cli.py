@@ -222,7 +222,8 @@ def demo(out_dir):
 
     The demo room is an invented edit suite (rooms/demo-studio.toml). The command prints
     the room's modes and summary, predicts the file's layout and the four standard
-    placements, and writes the figures into OUT.
+    placements, searches for a better placement, explains the left/right differences,
+    designs the bass correction, and writes the figures and a full HTML report into OUT.
     """
     from .modes import room_modes
     from .placement import PRESETS, preset_layout
@@ -265,9 +266,22 @@ def demo(out_dir):
         click.echo(f"  {p.layout_name:<9} {spreads} dB")
     plot_prediction(preds, ms, title=f"{room.name}: layouts compared", path=out_dir / "predict-layouts.png")
     click.echo("")
-    click.echo(f"Figures: {', '.join(sorted(p.name for p in out_dir.glob('*.png')))}")
-    click.echo(f"Next: copy {path.name} from rooms/, edit it for your room, and run "
-               "`roommodes predict YOUR-ROOM.toml --plot curves.png`.")
+    click.echo("Placement search, left/right explanation and bass correction (the full report):")
+    from .cli_report import write_report
+    from .report import build_report
+
+    t0 = time.perf_counter()
+    rep = build_report(room, room_text=path.read_text(encoding="utf-8"), command="roommodes demo",
+                       files_folder="report_files")
+    for line in rep.glance:
+        click.echo(f"  - {line}")
+    write_report(out_dir / "report.html", rep, force=True)
+    click.echo(f"  ({time.perf_counter() - t0:.1f} s)")
+    click.echo("")
+    click.echo(f"Wrote to {out_dir}: report.html (open it in a browser) with its figures and tables in "
+               f"report_files/, and {', '.join(sorted(p.name for p in out_dir.glob('*.png')))}")
+    click.echo(f"Next: copy {path.name} from rooms/, edit it for your room (docs/room-file.md), and run "
+               "`roommodes predict YOUR-ROOM.toml --plot curves.png`, `roommodes place`, `roommodes eq`.")
     echo_err(MODEL_CAUTION)
 
 

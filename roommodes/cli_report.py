@@ -66,7 +66,7 @@ def _files_folder(out):
     return out.with_name(out.stem + "_files")
 
 
-def _write_report(out, rep, force):
+def write_report(out, rep, force):
     """Write the page and its folder so that either both appear complete or nothing changes."""
     folder = _files_folder(out)
     parent = out.parent
@@ -228,7 +228,7 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
                        room_text=room_text, inputs=inputs, command=shlex.join(argv),
                        created=datetime.datetime.now().astimezone().strftime("%Y-%m-%d %H:%M %Z").strip(),
                        files_folder=folder.name, progress=lambda text: echo_err(f"  {text}"))
-    written = _write_report(out, rep, force)
+    written = write_report(out, rep, force)
     echo_err(f"wrote {out} ({len(rep.html) / 1e6:.1f} MB) and {written}/ ({len(rep.figures)} figures as PNG and SVG, "
              f"{len(rep.tables)} tables as CSV)")
     echo_err(MODEL_CAUTION)

@@ -444,12 +444,15 @@ class Report:
     values : dict
         Headline numbers as shown in the page, full precision (``schroeder_hz``,
         ``modes``, ``eq_max_boost_db``, ``best_score``, ...).
+    glance : tuple of str
+        The "At a glance" sentences of the page, for printing.
     """
 
     html: str
     figures: tuple
     tables: tuple
     values: dict
+    glance: tuple = ()
 
 
 def _esc(text):
@@ -764,7 +767,7 @@ def build_report(room, measurements=(), fit_targets=None, *, units="cm", search=
                    + f"<p class=\"note\">Schroeder frequency: {_val('schroeder_hz', fs, f'{fs:.0f} Hz')}.</p>"
                    + "</section>")
     values["glance"] = glance
-    return Report(doc.page(title, header, glance_html), tuple(doc.figures), tuple(doc.tables), values)
+    return Report(doc.page(title, header, glance_html), tuple(doc.figures), tuple(doc.tables), values, tuple(glance))
 
 
 class _Run:

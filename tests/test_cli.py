@@ -79,6 +79,9 @@ def test_demo_writes_figures(tmp_path):
     assert res.exit_code == 0
     assert sorted(p.name for p in (tmp_path / "d").glob("*.png")) == [
         "modes.png", "predict-file-layout.png", "predict-layouts.png"]
+    assert (tmp_path / "d" / "report.html").stat().st_size > 100_000
+    assert any((tmp_path / "d" / "report_files").glob("*.svg"))
+    assert "Suggested placement" in res.stdout and "Bass correction" in res.stdout
 
 
 @pytest.mark.parametrize("args,message", [
