@@ -135,17 +135,15 @@ def walls_text(room, pos):
 
 def usable_band(layout, top_hz=200.0):
     """Band judged by the summary figures: from max(20 Hz, the speakers' low cut) to 200 Hz."""
-    cuts = [s.lowcut_hz for s in layout.speakers if s.lowcut_hz]
-    return (max([20.0] + cuts), top_hz)
+    from .predict import usable_band as _usable
+
+    return _usable(layout.speakers, top_hz)
 
 
 def band_figures(f, level, band=(20.0, 200.0)):
-    from .response import smooth_fractional_octave
+    """Summary figures of a curve in a band (see :func:`roommodes.predict.band_figures`)."""
+    from .predict import band_figures as _figures
 
-    sel = (f >= band[0]) & (f <= band[1])
-    sm = 10 * np.log10(smooth_fractional_octave(f, 10 ** (level / 10), 6))
-    seg = sm[sel]
-    return {"spread_db": float(seg.max() - seg.min()), "std_db": float(seg.std()),
-            "max_db": float(seg.max()), "min_db": float(seg.min())}
+    return _figures(f, level, band)
 
 

@@ -22,10 +22,26 @@ from .solvers import transfer_function
 from .speaker import speaker_response
 
 __all__ = ["Channel", "Prediction", "predict", "room_schroeder_frequency", "response_features",
-           "boundary_notches", "Feature"]
+           "boundary_notches", "Feature", "usable_band", "band_figures"]
 
 DEFAULT_RANGE_HZ = (15.0, 300.0)
 DEFAULT_POINTS_PER_OCTAVE = 48
+
+
+def usable_band(speakers, top_hz=200.0):
+    """The usable band of a set of speakers: from max(20 Hz, their low cut) to ``top_hz``."""
+    cuts = [s.lowcut_hz for s in speakers if s.lowcut_hz]
+    return (max([20.0] + cuts), float(top_hz))
+
+
+def band_figures(freq_hz, level_db, band_hz=(20.0, 200.0), smoothing=6):
+    """Range, spread and standard deviation (dB) of the 1/``smoothing``-octave power-smoothed
+    level inside ``band_hz``: the summary figures the commands print for a curve."""
+    f = np.asarray(freq_hz, dtype=float)
+    sel = (f >= band_hz[0]) & (f <= band_hz[1])
+    seg = (10 * np.log10(smooth_fractional_octave(f, 10 ** (np.asarray(level_db) / 10), smoothing)))[sel]
+    return {"spread_db": float(seg.max() - seg.min()), "std_db": float(seg.std()),
+            "max_db": float(seg.max()), "min_db": float(seg.min())}
 
 
 @dataclass(frozen=True)

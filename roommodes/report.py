@@ -943,7 +943,7 @@ def _section_modes(run):
 
 def _section_responses(run):
     """Predicted responses of the file's layout and the presets."""
-    from ._cliutil import band_figures, usable_band
+    from .predict import band_figures, usable_band
     from .placement import PRESETS, preset_layout
     from .plots import plot_prediction
     from .predict import predict
@@ -974,7 +974,7 @@ def _section_responses(run):
                "desk (docs/placement.md).")
     rows = []
     for lay, p in preds:
-        band = usable_band(lay)
+        band = usable_band(lay.speakers)
         for ch in p.channels:
             bf = band_figures(f, ch.level_db, band)
             rows.append([lay.name, ch.name, f"{band[0]:g}-{band[1]:g}", _num(bf["min_db"], "+.1f"),
@@ -982,7 +982,7 @@ def _section_responses(run):
     doc.table("layout-figures", "How even each layout is at the seat (1/6-octave smoothed)",
               ("layout", "channel", "band (Hz)", "lowest (dB)", "highest (dB)", "spread (dB)", "std (dB)"), rows,
               note="The band runs from the speakers' low cut (at least 20 Hz) to 200 Hz; spread = highest - lowest.")
-    band = usable_band(layout)
+    band = usable_band(layout.speakers)
     glance.append("At the seat, " + "; ".join(
         f"{ch.name} varies by {band_figures(f, ch.level_db, band)['spread_db']:.1f} dB over {band[0]:g}-{band[1]:g} Hz"
         for ch in pred.channels) + " (1/6-octave smoothed).")

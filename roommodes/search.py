@@ -44,6 +44,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from .predict import usable_band
 from .placement import PRESETS, SEAT_HEIGHT_M, preset_layout
 from .response import log_frequencies, smooth_fractional_octave
 from .room import Layout, Speaker
@@ -335,8 +336,7 @@ def check_weights(weights):
 
 def default_band(speakers, top_hz=200.0):
     """The usable band: from max(20 Hz, the speakers' low cut) to ``top_hz``."""
-    cuts = [s.lowcut_hz for s in speakers if s.lowcut_hz]
-    return (max([20.0] + cuts), float(top_hz))
+    return usable_band(speakers, top_hz)
 
 
 def _check_band(band_hz):
