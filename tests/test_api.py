@@ -1,4 +1,8 @@
-"""The public API: every name in __all__ exists; importing does not import matplotlib."""
+"""The public API: every name in __all__ exists; importing does not import matplotlib.
+
+No outside check values here: these tests hold the package to its own documented
+conventions (an explicit __all__, a light import; reference: DEVELOPERS.md).
+"""
 
 import subprocess
 import sys

@@ -6,6 +6,8 @@ the demo room (left speaker to the seat, with the speaker's roll-off), delayed b
 with mild second-order distortion and noise. Measured on the project machine: median
 |difference| between the measured and the predicted curve 0.03 dB, 90th percentile 0.2 dB
 over 20-200 Hz at 1/12 octave.
+
+Sources of the check values are named beside each test (see also tests/reference).
 """
 
 import json

@@ -1,4 +1,8 @@
-"""The ``place`` and ``explain`` commands as a user meets them: output, JSON keys, files, errors."""
+"""The ``place`` and ``explain`` commands as a user meets them: output, JSON keys, files, errors.
+
+No outside check values here: the physics behind these commands is checked against its
+sources in tests/test_search.py and tests/test_explain.py.
+"""
 
 import json
 

@@ -6,6 +6,8 @@ library's html.parser (tests/test_report.py: check_page). The map's pattern at t
 (1,0,0) mode follows cos(pi x / Lx) (Rayleigh; Kuttruff, Room Acoustics, 5th ed., 2009,
 sec. 3.3). Lengths typed to init: 1 ft = 0.3048 m, 1 in = 0.0254 m exactly (NIST SP 811,
 2008, B.8).
+
+Sources of the check values are named beside each test (see also tests/reference).
 """
 
 import csv

@@ -4,6 +4,8 @@ Test data are invented: a direct impulse plus a few exponentially decaying reson
 between 30 and 150 Hz, played as an 8 kHz sweep from 20 Hz to 1 kHz so the tests stay
 fast (the third harmonic of the sweep's top, 3 kHz, stays below the Nyquist frequency,
 so the synthetic distortion does not alias).
+
+Sources of the check values are named beside each test (see also tests/reference).
 """
 
 import numpy as np

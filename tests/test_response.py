@@ -1,4 +1,8 @@
-"""Frequency grids and fractional-octave smoothing."""
+"""Frequency grids and fractional-octave smoothing.
+
+Sources: the fractional-octave window definition (CHECKS.md, computed) and the
+definitions of the means; named beside each test.
+"""
 
 import numpy as np
 import pytest

@@ -1,4 +1,9 @@
-"""Room files: every example loads; every kind of bad input gets one clear message."""
+"""Room files: every example loads; every kind of bad input gets one clear message.
+
+No outside check values here apart from the speed of sound (Kinsler et al. 2000,
+reference for roommodes.room.speed_of_sound): these tests hold the room-file reader to
+the format documented in docs/room-file.md.
+"""
 
 import numpy as np
 import pytest

@@ -1,4 +1,8 @@
-"""Pink noise and fractional-octave band levels."""
+"""Pink noise and fractional-octave band levels.
+
+Sources (named beside each test): IEC 61260-1:2014 band definitions; the -3 dB/octave
+spectrum of pink noise by definition.
+"""
 
 import numpy as np
 import pytest

@@ -1,4 +1,7 @@
-"""The speaker's own roll-off: Butterworth high-pass alignments."""
+"""The speaker's own roll-off: Butterworth high-pass alignments.
+
+Source: the Butterworth magnitude |H|^2 = 1 / (1 + (fc/f)^(2n)) (Butterworth 1930).
+"""
 
 import numpy as np
 import pytest

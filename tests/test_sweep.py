@@ -1,4 +1,8 @@
-"""Exponential sweep: parameters, inverse filter, description round trip, pyfar cross-check."""
+"""Exponential sweep: parameters, inverse filter, description round trip, pyfar cross-check.
+
+Sources (named beside each test): Farina 2000 (AES preprint 5093) and Novak, Simon &
+Lotton 2015 (JAES 63(10):786) for the sweep; pyfar as a reference library.
+"""
 
 import json
 

@@ -1,4 +1,8 @@
-"""WAV reading and atomic writing, cross-read with Python's wave module and libsndfile."""
+"""WAV reading and atomic writing, cross-read with Python's wave module and libsndfile.
+
+Reference readers: Python's wave module and libsndfile (via soundfile); the WAV format
+as those libraries implement it.
+"""
 
 import os
 import wave

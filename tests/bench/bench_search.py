@@ -1,5 +1,7 @@
 """Benchmark of the placement search on the demo room. Prints figures; asserts nothing.
 
+No check values (nothing is compared with an outside source); see tests/test_search.py.
+
     python tests/bench/bench_search.py
 
 Reports, measured in the same run:
