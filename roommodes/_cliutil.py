@@ -126,11 +126,23 @@ def layouts_for(room, layout):
     return out
 
 
+def _remember_units(ctx, _param, value):
+    ctx.meta["roommodes_units"] = value
+    return value
+
+
+units_option = click.option(
+    "--units", type=click.Choice(["cm", "m", "ft-in"]), default="cm", show_default=True, expose_value=False,
+    callback=_remember_units, help="Units of the distances from the walls in the printed output.")
+
+
 def walls_text(room, pos):
-    lx, ly, _ = room.size_m
-    x, y, z = pos
-    side = f"{y * 100:.0f} cm from the left wall" if y <= ly / 2 else f"{(ly - y) * 100:.0f} cm from the right wall"
-    return f"{x * 100:.0f} cm from the front wall, {side}, {z * 100:.0f} cm high"
+    """Where a point is, from named walls, in the units chosen with --units (default cm)."""
+    from .units import walls_text as _walls_text
+
+    ctx = click.get_current_context(silent=True)
+    units = ctx.meta.get("roommodes_units", "cm") if ctx is not None else "cm"
+    return _walls_text(room, pos, units)
 
 
 def usable_band(layout, top_hz=200.0):

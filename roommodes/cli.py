@@ -17,7 +17,7 @@ import numpy as np
 from . import __version__
 from ._cliutil import (CONTEXT, MODEL_CAUTION, UserError, band_figures, check_output, dump_json, echo_err,
                        fail, freq_range_option, json_option, layouts_for, load_or_fail, method_option,
-                       parse_range, ppo_option, protect_inputs, usable_band, walls_text)
+                       parse_range, ppo_option, protect_inputs, units_option, usable_band, walls_text)
 from .roomfile import demo_room_path, load_room
 
 class _Group(click.Group):
@@ -143,6 +143,7 @@ def _print_summary(s):
 @click.option("--force", is_flag=True, help="Overwrite an existing plot file.")
 @click.option("--no-speaker", is_flag=True, help="Leave out the speakers' own low-frequency roll-off.")
 @json_option
+@units_option
 def predict(room_file, layout, freq_range, points_per_octave, method, plot_path, force, no_speaker, as_json):
     """Predict each speaker's level at the seat, with its main peaks and dips.
 

@@ -28,6 +28,7 @@ from ._cliutil import (
     load_or_fail,
     parse_range,
     protect_inputs,
+    units_option,
     walls_text,
 )
 
@@ -87,6 +88,7 @@ def _row(label, s, parts):
               help="Write the room file again with the best layout (a new file, never the input).")
 @click.option("--force", is_flag=True, help="Overwrite an existing output file (never the input).")
 @json_option
+@units_option
 def place(room_file, top, weights, band, points_per_octave, plot_path, layout_path, force, as_json):
     """Search where to put the two speakers and the seat, and rank the layouts.
 
@@ -229,6 +231,7 @@ def _place_plot(room, space, res, path):
               help="Write the figure: both channels and the mono sum, the difference with its regions.")
 @click.option("--force", is_flag=True, help="Overwrite an existing plot file.")
 @json_option
+@units_option
 def explain(room_file, channels, threshold, band, freq_range, points_per_octave, smoothing, plot_path, force,
             as_json):
     """Explain why the two channels differ at the seat, and what to move.

@@ -126,3 +126,11 @@ def test_installed_console_script_runs_the_demo(tmp_path):
                          text=True, timeout=300)
     assert res.returncode == 0, res.stderr
     assert (tmp_path / "d" / "predict-layouts.png").exists()
+
+
+@pytest.mark.parametrize("units,text", [("cm", "50 cm from the front wall"), ("m", "0.50 m from the front wall"),
+                                        ("ft-in", "1 ft 7 3/4 in from the front wall")])
+def test_units_of_printed_distances(units, text):
+    # 0.50 m = 19.685 in = 1 ft 7 3/4 in to the nearest 1/4 in (international inch, 25.4 mm exactly)
+    res = run("predict", DEMO, "--units", units, "--points-per-octave", "6")
+    assert res.exit_code == 0 and text in res.stdout
