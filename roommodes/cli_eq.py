@@ -156,13 +156,16 @@ def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, opti
                    "nulls from broad dips).")
 @click.option("--window", "window_s", type=float, default=0.5, show_default=True,
               help="With --measured impulse responses: analysis window, s (resolution about 1/window).")
+@click.option("--area", "area_text", metavar="LENGTH,WIDTH",
+              help="Correct the average over a listening area of this size around the seat (m, e.g. 0.6,0.6) "
+                   "instead of the seat alone.")
 @click.option("--export", "export_path", type=click.Path(path_type=Path),
               help="Write the filters and second-order sections (44.1, 48, 96 kHz) to a text file.")
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write before/after curves and filters (PNG/SVG).")
 @click.option("--force", is_flag=True, help="Overwrite existing output files.")
 @json_option
 def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, max_boost, q_range, freq_range,
-       points_per_octave, method, measured, window_s, export_path, plot_path, force, as_json):
+       points_per_octave, method, measured, window_s, area_text, export_path, plot_path, force, as_json):
     """Design bass-correction EQ for each channel and show the headroom it costs.
 
     Every dip is classified before it is touched: a deep narrow dip that moves when the
@@ -197,8 +200,16 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
         corrections = _correct_measured(room, lay, measured, f, window_s, room_file, options)
         source = "measured"
     else:
-        corrections, _pred = correct_prediction(room, lay, f, method=method, **options)
-        source = f"predicted, {method} solver"
+        area = None
+        if area_text:
+            try:
+                area = tuple(float(v) for v in area_text.split(","))
+            except ValueError:
+                area = ()
+            if len(area) != 2 or not all(0 < v <= 3 for v in area):
+                fail(f"--area must be LENGTH,WIDTH in metres, each above 0 and at most 3, e.g. 0.6,0.6; got '{area_text}'")
+        corrections, _pred = correct_prediction(room, lay, f, method=method, area_m=area, **options)
+        source = f"predicted, {method} solver" + (f", average over {area[0]:g} x {area[1]:g} m" if area else "")
     head_warn = channel_headroom_warnings({c.name: c.headroom.max_boost_db for c in corrections})
     if as_json:
         dump_json({"roommodes_version": __version__, "room": room.name, "layout": lay.name, "source": source,

@@ -139,7 +139,8 @@ def _neighbour_layouts(layout, index, step_m):
     return out
 
 
-def correct_prediction(room, layout=None, freq_hz=None, method="modal", **options):
+def correct_prediction(room, layout=None, freq_hz=None, method="modal", area_m=None, area_points=(3, 3),
+                       **options):
     """Predict every channel at the seat and design its correction.
 
     The levels at eight nearby positions (the seat, then the channel's speaker, moved by
@@ -154,6 +155,13 @@ def correct_prediction(room, layout=None, freq_hz=None, method="modal", **option
     freq_hz : array_like, optional
         Default 15-300 Hz at 48 points per octave.
     method : {"modal", "image"}
+    area_m : (float, float), optional
+        Correct the power average over a listening area of this size (length, width, m)
+        around the seat, on an ``area_points`` grid at ear height, instead of the seat
+        alone; the levels at the grid points then serve as the neighbours that tell nulls
+        from broad dips. A correction for an area is less exact at the seat and more
+        useful everywhere else (after Welti & Devantier 2006, J. Audio Eng. Soc.
+        54(5):347, who judge bass by its variation over seats).
     **options
         Passed to :func:`correct_curve` (target, band, limits).
 
@@ -165,6 +173,23 @@ def correct_prediction(room, layout=None, freq_hz=None, method="modal", **option
     f = log_frequencies(15.0, 300.0, 48) if freq_hz is None else np.asarray(freq_hz, dtype=float)
     pred = predict(room, layout, f, method=method)
     out = []
+    if area_m is not None:
+        from .search import area_offsets
+        from .speaker import speaker_response
+        from .solvers import transfer_function
+
+        pts = np.asarray(layout.seat_m) + area_offsets(area_m, area_points)
+        if not np.all(room.contains(pts, 0.02)):
+            raise ValueError(f"the listening area {area_m[0]:g} x {area_m[1]:g} m around the seat reaches "
+                             "outside the room; choose a smaller area")
+        h = transfer_function(room, layout.source_positions_m, pts, f, method=method)
+        for sp, hs in zip(layout.speakers, h):
+            levels = 20 * np.log10(np.maximum(np.abs(hs * speaker_response(sp, f)), 1e-15))
+            mean = 10 * np.log10(np.mean(10 ** (levels / 10), axis=0))
+            out.append(correct_curve(sp.name, f, mean, neighbour_levels_db=levels, lowcut_hz=sp.lowcut_hz,
+                                     lowcut_order=sp.lowcut_order if sp.lowcut_hz else None, speaker=sp,
+                                     **options))
+        return out, pred
     for i, (sp, ch) in enumerate(zip(layout.speakers, pred.channels)):
         neighbours = []
         for lay in _neighbour_layouts(layout, i, NEIGHBOUR_STEP_M):

@@ -127,3 +127,19 @@ def test_measured_curves_with_several_positions(tmp_path):
     assert ch["error_after"]["rms_db"] < ch["error_before"]["rms_db"]
     bad = CliRunner().invoke(main, ["eq", DEMO, "--measured", f"centre={files[0]}"])
     assert bad.exit_code == 2 and "no speaker 'centre'" in bad.stderr
+
+
+def test_area_average_correction():
+    # The average over a one-point "area" is the seat itself (definition of the mean); a
+    # 0.6 x 0.6 m area gives a different, still valid design.
+    room = load_room(DEMO)
+    f = np.geomspace(40, 250, 60)
+    seat, _ = correct_prediction(room, freq_hz=f)
+    one, _ = correct_prediction(room, freq_hz=f, area_m=(0.6, 0.6), area_points=(1, 1))
+    np.testing.assert_allclose(one[0].parametric.before_db, seat[0].parametric.before_db, atol=1e-9)
+    r = CliRunner().invoke(main, ["eq", DEMO, "--json", "--area", "0.6,0.6", "--points-per-octave", "12"])
+    assert r.exit_code == 0
+    data = json.loads(r.stdout)
+    assert "average over 0.6 x 0.6 m" in data["source"]
+    for ch in data["channels"]:
+        assert np.max(np.array(ch["correction_db"], float)) <= 6.0 + 1e-6
