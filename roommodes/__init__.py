@@ -11,17 +11,12 @@ The public API, re-exported here, is what the command-line tool uses:
 
 __version__ = "0.1.0"
 
-from .compare import compare_measurements, compare_to_prediction, load_measurement
-from .correction import correct_curve, correct_prediction
-from .explain import explain
-from .fit import fit_room
 from .modes import ModeSet, room_modes
 from .placement import PRESETS, preset_layout
 from .predict import Prediction, predict, response_features, room_schroeder_frequency
 from .response import Response, log_frequencies, smooth_fractional_octave
 from .room import WALLS, Layout, Room, Speaker, Surface, speed_of_sound
 from .roomfile import RoomFileError, demo_room_path, example_rooms, load_room, room_to_toml
-from .search import score_layouts, search_layouts
 from .solvers import transfer_function
 from .summary import room_summary
 
@@ -61,3 +56,21 @@ __all__ = [
     "speed_of_sound",
     "transfer_function",
 ]
+
+# The measurement, search and correction parts pull in scipy.signal and scipy.optimize;
+# they are imported on first use so that `import roommodes` (and every command) starts fast.
+_LAZY = {
+    "compare_measurements": "compare", "compare_to_prediction": "compare", "load_measurement": "compare",
+    "correct_curve": "correction", "correct_prediction": "correction", "explain": "explain",
+    "fit_room": "fit", "score_layouts": "search", "search_layouts": "search",
+}
+
+
+def __getattr__(name):
+    if name in _LAZY:
+        import importlib
+
+        value = getattr(importlib.import_module(f".{_LAZY[name]}", __name__), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'roommodes' has no attribute {name!r}")

@@ -22,7 +22,6 @@ import click
 import numpy as np
 
 from . import __version__
-from .compare import is_wav_file
 from ._cliutil import (CONTEXT, MODEL_CAUTION, UserError, check_output, dump_json, echo_err, fail, json_option,
                        load_or_fail, protect_inputs)
 
@@ -120,6 +119,7 @@ def _channel_message(msg, path, wav_channel):
 
 def _read_wav_or_fail(path, channel_1based, what="recording"):
     """Read one channel of a WAV file; one-line errors naming the file."""
+    from .compare import is_wav_file
     from .measure.wavio import read_wav
 
     p = _require_file(path, what)
@@ -279,6 +279,7 @@ def _load_sweep_spec(path):
     except ValueError as exc:
         fail(f"{desc}: {exc}")
     if wav is not None:
+        from .compare import is_wav_file
         from .measure.wavio import read_wav
 
         if not is_wav_file(wav):

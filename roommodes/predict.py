@@ -12,7 +12,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.signal import find_peaks
 
 from .criteria import sabine_rt60, schroeder_frequency
 from .modes import mode_shapes, room_modes
@@ -139,6 +138,45 @@ def boundary_notches(room, position_m):
     return sorted(out, key=lambda t: t[1])
 
 
+def find_extrema(values, min_prominence):
+    """Local maxima of ``values`` with their topographic prominence, as (indices, prominences).
+
+    The prominence of a peak is its height above the higher of the two lowest points
+    between it and the nearest higher point on each side (or the end of the data); the
+    definition scipy.signal.find_peaks uses, against which tests/test_predict.py checks
+    this function. Written here so that predicting does not import scipy.signal.
+    """
+    y = np.asarray(values, dtype=float)
+    n = y.size
+    idx, prom = [], []
+    i = 1
+    while i < n - 1:
+        if y[i] > y[i - 1]:
+            j = i
+            while j + 1 < n and y[j + 1] == y[i]:  # a plateau counts once, at its middle
+                j += 1
+            if j + 1 < n and y[j + 1] < y[i]:
+                peak = (i + j) // 2
+                left = i - 1
+                left_min = y[i]
+                while left >= 0 and y[left] <= y[i]:
+                    left_min = min(left_min, y[left])
+                    left -= 1
+                right = j + 1
+                right_min = y[i]
+                while right < n and y[right] <= y[i]:
+                    right_min = min(right_min, y[right])
+                    right += 1
+                p = y[i] - max(left_min, right_min)
+                if p >= min_prominence:
+                    idx.append(peak)
+                    prom.append(p)
+            i = j + 1
+        else:
+            i += 1
+    return np.array(idx, dtype=int), np.array(prom, dtype=float)
+
+
 @dataclass(frozen=True)
 class Feature:
     """A peak or dip of a predicted curve and what causes it."""
@@ -154,7 +192,7 @@ def response_features(room, prediction, channel, max_features=8, smoothing=12, m
     """Main peaks and dips of one channel, with the modes or boundary responsible.
 
     Peaks and dips are found on the 1/``smoothing``-octave power-smoothed curve inside
-    the valid band (scipy.signal.find_peaks with a prominence threshold). A peak is
+    the valid band (:func:`find_extrema` with a prominence threshold). A peak is
     attributed to the modes within their half-power bandwidth (or 3 %) of it, strongest
     coupling first (|psi(speaker) psi(seat)|); a dip additionally to the speaker's
     boundary notches ``c / 4d`` within 15 % and to modes with a node at the seat.
@@ -172,8 +210,8 @@ def response_features(room, prediction, channel, max_features=8, smoothing=12, m
     notches = boundary_notches(room, ch.position_m)
     feats = []
     for kind, sign in (("peak", 1.0), ("dip", -1.0)):
-        idx, props = find_peaks(sign * smooth, prominence=min_prominence_db)
-        for i, prom in zip(idx, props["prominences"]):
+        idx, proms = find_extrema(sign * smooth, min_prominence_db)
+        for i, prom in zip(idx, proms):
             if not sel[i]:
                 continue
             fi = f[i]

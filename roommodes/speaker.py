@@ -15,7 +15,6 @@ Two descriptions are supported:
 from __future__ import annotations
 
 import numpy as np
-from scipy import signal
 
 __all__ = ["speaker_response", "highpass_response"]
 
@@ -38,9 +37,14 @@ def highpass_response(freq_hz, lowcut_hz, order):
     """
     if order not in (2, 4):
         raise ValueError(f"lowcut_order must be 2 (sealed) or 4 (vented), got {order}")
-    b, a = signal.butter(order, 2 * np.pi * lowcut_hz, btype="highpass", analog=True)
-    _, h = signal.freqs(b, a, worN=2 * np.pi * np.asarray(freq_hz, dtype=float))
-    return h
+    s = 1j * np.asarray(freq_hz, dtype=float) / float(lowcut_hz)  # normalised Laplace variable
+    # Butterworth high-pass: s^n / B_n(s), with B_n the normalised Butterworth polynomial
+    # (pole pairs with damping 2 sin((2k - 1) pi / (2n)): sqrt(2) for n = 2; 0.7654 and
+    # 1.8478 for n = 4)
+    den = np.ones_like(s)
+    for k in range(1, order // 2 + 1):
+        den = den * (s**2 + 2 * np.sin((2 * k - 1) * np.pi / (2 * order)) * s + 1)
+    return s**order / den
 
 
 def speaker_response(speaker, freq_hz):

@@ -72,14 +72,17 @@ def random_incidence_absorption(zeta):
 
 
 def _bracket_max():
-    # maximum of the London formula: d alpha / d zeta = 0
-    from scipy.optimize import minimize_scalar
-
-    res = minimize_scalar(
-        lambda z: -float(random_incidence_absorption(z)), bounds=(0.5, 5.0), method="bounded",
-        options={"xatol": 1e-12},
-    )
-    return float(res.x), float(-res.fun)
+    # maximum of the London formula, by golden-section search on [0.5, 5] (unimodal there)
+    lo, hi = 0.5, 5.0
+    g = (np.sqrt(5.0) - 1.0) / 2.0
+    for _ in range(80):
+        a, b = hi - g * (hi - lo), lo + g * (hi - lo)
+        if random_incidence_absorption(a) > random_incidence_absorption(b):
+            hi = b
+        else:
+            lo = a
+    z = 0.5 * (lo + hi)
+    return float(z), float(random_incidence_absorption(z))
 
 
 ZETA_AT_ALPHA_MAX, ALPHA_MAX = _bracket_max()
