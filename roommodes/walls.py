@@ -35,6 +35,7 @@ __all__ = [
     "admittance_from_absorption",
     "normal_incidence_absorption",
     "reflection_factor",
+    "impedance_table",
 ]
 
 
@@ -166,3 +167,16 @@ def reflection_factor(zeta, cos_theta):
     with np.errstate(invalid="ignore"):
         r = (z * c - 1.0) / (z * c + 1.0)
     return np.where(np.isinf(z), 1.0, r)
+
+
+def impedance_table(zeta, n_freq):
+    """Wall impedances as a (6, F) table: ``zeta`` given per wall (6,) or per wall and
+    frequency (6, F); positive, ``inf`` for a rigid wall. Raises ValueError otherwise."""
+    z = np.asarray(zeta, dtype=float)
+    if z.shape == (6,):
+        z = np.repeat(z[:, None], n_freq, axis=1)
+    if z.shape != (6, n_freq):
+        raise ValueError(f"zeta must have shape (6,) or (6, {n_freq}) (walls x frequencies), got {z.shape}")
+    if np.any(np.isnan(z)) or np.any(z <= 0):
+        raise ValueError("zeta must be positive normalised impedances (np.inf for a rigid wall)")
+    return z

@@ -110,7 +110,7 @@ import math
 
 import numpy as np
 
-from ..walls import random_incidence_absorption
+from ..walls import impedance_table, random_incidence_absorption
 from ._kernels import spread_shells
 
 __all__ = ["KERNEL_RELATIVE_ERROR", "image_count", "image_source_transfer", "images_up_to",
@@ -559,13 +559,7 @@ def _validate(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound, ref
     f = np.asarray(freq_hz, dtype=float)
     if f.ndim != 1 or f.size == 0 or not np.all(np.isfinite(f)) or np.any(f <= 0):
         raise ValueError("freq_hz must be a non-empty 1-D array of positive frequencies in Hz")
-    z = np.asarray(zeta, dtype=float)
-    if z.shape == (6,):
-        z = np.repeat(z[:, None], f.size, axis=1)
-    if z.shape != (6, f.size):
-        raise ValueError(f"zeta must have shape (6,) or (6, {f.size}) (walls x frequencies), got {z.shape}")
-    if np.any(np.isnan(z)) or np.any(z <= 0):
-        raise ValueError("zeta must be positive normalised impedances (np.inf for a rigid wall)")
+    z = impedance_table(zeta, f.size)
     c = float(speed_of_sound)
     if not (np.isfinite(c) and c > 0):
         raise ValueError(f"speed_of_sound must be positive and finite (m/s), got {speed_of_sound!r}")

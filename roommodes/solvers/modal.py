@@ -36,6 +36,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..modes import mode_indices, mode_shapes, wall_weights
+from ..walls import impedance_table
 
 __all__ = ["modal_transfer", "modal_transfer_direct", "static_green", "DEFAULT_CUTOFF_FACTOR",
            "modal_weights", "modal_sum_block", "static_green_pairs", "static_green_block", "static_tail_term"]
@@ -166,11 +167,7 @@ def modal_weights(size_m, zeta, freq_hz, speed_of_sound, *, cutoff_hz=None):
     c = float(speed_of_sound)
     if f.ndim != 1 or np.any(~np.isfinite(f)) or np.any(f <= 0):
         raise ValueError("freq_hz must be a 1-D array of positive frequencies in Hz")
-    z = np.asarray(zeta, dtype=float)
-    if z.shape == (6,):
-        z = np.repeat(z[:, None], f.size, axis=1)
-    if z.shape != (6, f.size):
-        raise ValueError(f"zeta must have shape (6,) or (6, {f.size}), got {z.shape}")
+    z = impedance_table(zeta, f.size)
     fc = DEFAULT_CUTOFF_FACTOR * f.max() if cutoff_hz is None else float(cutoff_hz)
     idx, fn = mode_indices(size, fc, c)
     kn2 = (2 * np.pi * fn / c) ** 2
