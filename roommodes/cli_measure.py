@@ -732,6 +732,38 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
 
 
 # ---------------------------------------------------------------------------- fit
+def _measured_files_options(f):
+    """FILES of one speaker (--channel, --at) and --measure CHANNEL X,Y,Z FILE; for fit and report."""
+    f = click.option("--measure", "measure", multiple=True, nargs=3, metavar="CHANNEL X,Y,Z FILE",
+                     help="One more measurement with its own speaker and position (repeatable); X,Y,Z may be "
+                          "'seat'.")(f)
+    f = click.option("--at", multiple=True, metavar="X,Y,Z",
+                     help="Microphone position of FILES, m (default: the seat); once for all or once per file.")(f)
+    return click.option("--channel", help="The speaker measured in FILES (a name in the room file).")(f)
+
+
+def _measurement_specs(room, files, channel, at, measure):
+    """(speaker name, microphone position, path) of every measurement given on the command line."""
+    from .compare import speaker_by_name
+
+    specs = []
+    if files:
+        try:
+            name = speaker_by_name(room, channel).name
+        except ValueError as exc:
+            fail(str(exc))
+        for p, pos in zip(files, _positions(room, at, len(files))):
+            specs.append((name, pos, Path(p)))
+    elif at or channel:
+        fail("--channel and --at describe FILES; with --measure each measurement carries its own")
+    for ch, where, p in measure:
+        try:
+            name = speaker_by_name(room, ch).name
+        except ValueError as exc:
+            fail(str(exc))
+        specs.append((name, _positions(room, (where,), 1, "--measure position")[0], Path(p)))
+    return specs
+
 
 
 @click.command(context_settings=CONTEXT)
@@ -739,11 +771,7 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
 @click.argument("files", nargs=-1, type=click.Path(path_type=Path))
 @click.option("-o", "--out", "out", type=click.Path(path_type=Path), required=True,
               help="Calibrated room file to write (never the input).")
-@click.option("--channel", help="The speaker measured in FILES (a name in the room file).")
-@click.option("--at", multiple=True, metavar="X,Y,Z",
-              help="Microphone position of FILES, m (default: the seat); once for all or once per file.")
-@click.option("--measure", "measure", multiple=True, nargs=3, metavar="CHANNEL X,Y,Z FILE",
-              help="One more measurement with its own speaker and position (repeatable); X,Y,Z may be 'seat'.")
+@_measured_files_options
 @_wav_channel_option
 @_window_option
 @click.option("--band", default="20,200", show_default=True, metavar="LOW,HIGH", help="Fit band, Hz.")
@@ -780,7 +808,6 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
     value, how far it moved, an approximate standard error, and the error before and after.
     Then `predict` and `place` on the calibrated file.
     """
-    from .compare import speaker_by_name
     from .fit import FitTarget, fit_room
     from .response import log_frequencies
     from .roomfile import room_to_toml, write_text_atomic
@@ -803,22 +830,7 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
         protect_inputs(plot_path, *inputs, outp)
         check_output(plot_path, force)
     grid = log_frequencies(lo, hi, points_per_octave)
-    specs = []
-    if files:
-        try:
-            name = speaker_by_name(room, channel).name
-        except ValueError as exc:
-            fail(str(exc))
-        for p, pos in zip(files, _positions(room, at, len(files))):
-            specs.append((name, pos, p))
-    elif at or channel:
-        fail("--channel and --at describe FILES; with --measure each measurement carries its own")
-    for ch, where, p in measure:
-        try:
-            name = speaker_by_name(room, ch).name
-        except ValueError as exc:
-            fail(str(exc))
-        specs.append((name, _positions(room, (where,), 1, "--measure position")[0], Path(p)))
+    specs = _measurement_specs(room, files, channel, at, measure)
     meas = _load_measurements([s[2] for s in specs], wav_channel, window_s, grid)
     targets = [FitTarget(ch, pos, m.freq_hz, m.level_db, f"{Path(p).name} ({ch})")
                for (ch, pos, p), m in zip(specs, meas)]

@@ -28,7 +28,8 @@ import numpy as np
 from . import __version__
 from ._cliutil import (CONTEXT, MODEL_CAUTION, UserError, check_output, dump_json, echo_err, fail, json_option,
                        layouts_for, load_or_fail, method_option, protect_inputs)
-from .cli_measure import _guard, _wav_channel_option, _window_option
+from .cli_measure import (_guard, _measured_files_options, _measurement_specs, _wav_channel_option,
+                          _window_option)
 from .report import EMBED_FORMATS, SEARCH_MODES
 from .units import UNITS, format_length, parse_length, parse_lengths, walls_text
 
@@ -117,11 +118,7 @@ def write_report(out, rep, force):
 @click.argument("files", nargs=-1, type=click.Path(path_type=Path))
 @click.option("-o", "--out", "out", type=click.Path(path_type=Path), required=True,
               help="The HTML report to write; its figures (PNG, SVG) and tables (CSV) go to NAME_files/ beside it.")
-@click.option("--channel", help="The speaker measured in FILES (a name in the room file).")
-@click.option("--at", multiple=True, metavar="X,Y,Z",
-              help="Microphone position of FILES, m (default: the seat); once for all or once per file.")
-@click.option("--measure", "measure", multiple=True, nargs=3, metavar="CHANNEL X,Y,Z FILE",
-              help="One more measurement with its own speaker and position (repeatable); X,Y,Z may be 'seat'.")
+@_measured_files_options
 @click.option("--fit", "do_fit", is_flag=True,
               help="Also calibrate the model to the measurements (as `roommodes fit` does) and report what changed.")
 @_wav_channel_option
@@ -151,8 +148,7 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
     reproduce it. It opens offline in any browser and prints on A4 or Letter. Every figure
     is also written as PNG and SVG, and every table as CSV, into NAME_files/ beside it.
     """
-    from .compare import speaker_by_name
-    from .cli_measure import _load_measurements, _positions, _require_file
+    from .cli_measure import _load_measurements, _require_file
     from .fit import FitTarget
     from .report import MeasuredCurve, build_report
     from .response import log_frequencies
@@ -180,19 +176,7 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
     if files or measure:
         if room.layout is None:
             fail(f"{room_file}: the room file has no [speakers] and [seat]; measurements need the measured speakers")
-        if files:
-            try:
-                name = speaker_by_name(room, channel).name
-            except ValueError as exc:
-                fail(str(exc))
-            for p, pos in zip(files, _positions(room, at, len(files))):
-                specs.append((name, pos, Path(p)))
-        for ch, where, p in measure:
-            try:
-                name = speaker_by_name(room, ch).name
-            except ValueError as exc:
-                fail(str(exc))
-            specs.append((name, _positions(room, (where,), 1, "--measure position")[0], Path(p)))
+        specs = _measurement_specs(room, files, channel, at, measure)
     band = (20.0, 200.0)
     grid = log_frequencies(max(5.0, band[0] / 2 ** 0.5), min(2000.0, band[1] * 2 ** 0.5), 48)
     meas = _load_measurements([s[2] for s in specs], wav_channel, window_s, grid) if specs else []
