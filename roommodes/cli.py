@@ -283,6 +283,11 @@ def demo(out_dir):
                f"report_files/, and {', '.join(sorted(p.name for p in out_dir.glob('*.png')))}")
     click.echo(f"Next: copy {path.name} from rooms/, edit it for your room (docs/room-file.md), and run "
                "`roommodes predict YOUR-ROOM.toml --plot curves.png`, `roommodes place`, `roommodes eq`.")
+    from .eq import CAUTIONS
+
+    echo_err("Before applying any bass correction:")
+    for caution in CAUTIONS:
+        echo_err(f"  - {caution}")
     echo_err(MODEL_CAUTION)
 
 
