@@ -11,14 +11,14 @@ The public API, re-exported here, is what the command-line tool uses:
 
 __version__ = "0.1.0"
 
-from .modes import ModeSet, room_modes
-from .placement import PRESETS, preset_layout
-from .predict import Prediction, predict, response_features, room_schroeder_frequency
-from .response import Response, log_frequencies, smooth_fractional_octave
-from .room import WALLS, Layout, Room, Speaker, Surface, speed_of_sound
-from .roomfile import RoomFileError, demo_room_path, example_rooms, load_room, room_to_toml
+from .model.modes import ModeSet, room_modes
+from .model.placement import PRESETS, preset_layout
+from .analysis.predict import Prediction, predict, response_features, room_schroeder_frequency
+from .dsp.response import Response, log_frequencies, smooth_fractional_octave
+from .model.room import WALLS, Layout, Room, Speaker, Surface, speed_of_sound
+from .io.roomfile import RoomFileError, demo_room_path, example_rooms, load_room, room_to_toml
 from .solvers import transfer_function
-from .summary import room_summary
+from .analysis.summary import room_summary
 
 __all__ = [
     "__version__",
@@ -60,9 +60,10 @@ __all__ = [
 # The measurement, search and correction parts pull in scipy.signal and scipy.optimize;
 # they are imported on first use so that `import roommodes` (and every command) starts fast.
 _LAZY = {
-    "compare_measurements": "compare", "compare_to_prediction": "compare", "load_measurement": "compare",
-    "correct_curve": "correction", "correct_prediction": "correction", "explain": "explain",
-    "fit_room": "fit", "score_layouts": "search", "search_layouts": "search",
+    "compare_measurements": "analysis.compare", "compare_to_prediction": "analysis.compare",
+    "load_measurement": "analysis.compare", "correct_curve": "analysis.correction",
+    "correct_prediction": "analysis.correction", "explain": "analysis.explain",
+    "fit_room": "analysis.fit", "score_layouts": "analysis.search", "search_layouts": "analysis.search",
 }
 
 

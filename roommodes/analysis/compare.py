@@ -29,7 +29,7 @@ from pathlib import Path
 import numpy as np
 from scipy.signal import find_peaks, peak_widths
 
-from .response import Response, align_level, log_frequencies, smooth_fractional_octave
+from ..dsp.response import Response, align_level, log_frequencies, smooth_fractional_octave
 
 __all__ = [
     "DEFAULT_BAND_HZ",
@@ -174,7 +174,7 @@ def load_measurement(path, channel=None, window_s=DEFAULT_WINDOW_S, freq_hz=None
     ``H(f) = sum_k w[k] h[n0 + k] exp(-2 pi j f k / fs)`` evaluated directly at each
     frequency (:func:`roommodes.measure.deconvolve.frequency_response`), ``w`` the window.
     """
-    from .measure.importers import MeasurementFileError, read_response_text
+    from ..io.importers import MeasurementFileError, read_response_text
 
     p = Path(path)
     name = str(path)
@@ -205,10 +205,10 @@ def load_measurement(path, channel=None, window_s=DEFAULT_WINDOW_S, freq_hz=None
 
 
 def _load_ir_wav(p, name, channel, window_s, f, taper_fraction):
-    from .measure.decay import onset_index
-    from .measure.deconvolve import frequency_response
-    from .measure.importers import MeasurementFileError
-    from .measure.wavio import read_wav
+    from ..measure.decay import onset_index
+    from ..measure.deconvolve import frequency_response
+    from ..io.importers import MeasurementFileError
+    from ..io.wavio import read_wav
 
     try:
         ir, fs, _info = read_wav(p, channel)
@@ -251,7 +251,7 @@ def average_measurements(measurements, mode="power", label=None):
         On the first curve's grid points that lie inside every curve's range, with
         ``std_db``, ``min_db`` and ``max_db`` (:func:`roommodes.measure.importers.average_curves`).
     """
-    from .measure.importers import average_curves
+    from ..io.importers import average_curves
 
     ms = list(measurements)
     if not ms:
@@ -314,8 +314,8 @@ def predicted_level(room, channel, positions_m, freq_hz, method="modal", include
     level_db : ndarray (F,)
         ``10 log10(mean_m |H_m|^2)``, dB re the free-field level at 1 m.
     """
-    from .solvers import transfer_function
-    from .speaker import speaker_response
+    from ..solvers import transfer_function
+    from ..model.speaker import speaker_response
 
     sp = speaker_by_name(room, channel)
     pos = np.atleast_2d(np.asarray(room.layout.seat_m if positions_m is None else positions_m, dtype=float))
@@ -564,7 +564,7 @@ class _Explainer:
     """
 
     def __init__(self, room, source_m, receivers_m, fmax_hz):
-        from .modes import mode_shapes, room_modes
+        from ..model.modes import mode_shapes, room_modes
         from .predict import boundary_notches
 
         self.modes = room_modes(room, fmax_hz * 1.25)

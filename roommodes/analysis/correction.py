@@ -15,8 +15,8 @@ import numpy as np
 
 from . import eq
 from .predict import predict
-from .response import log_frequencies, smooth_fractional_octave
-from .room import Layout
+from ..dsp.response import log_frequencies, smooth_fractional_octave
+from ..model.room import Layout
 
 __all__ = ["ChannelCorrection", "correct_curve", "correct_prediction", "default_band",
            "NEIGHBOUR_STEP_M"]
@@ -175,8 +175,8 @@ def correct_prediction(room, layout=None, freq_hz=None, method="modal", area_m=N
     out = []
     if area_m is not None:
         from .search import area_offsets
-        from .speaker import speaker_response
-        from .solvers import transfer_function
+        from ..model.speaker import speaker_response
+        from ..solvers import transfer_function
 
         pts = np.asarray(layout.seat_m) + area_offsets(area_m, area_points)
         if not np.all(room.contains(pts, 0.02)):

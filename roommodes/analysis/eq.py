@@ -44,7 +44,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from . import _eqfit
-from .response import align_level
+from ..dsp.response import align_level
 
 __all__ = [
     "FILTER_TYPES",

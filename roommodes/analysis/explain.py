@@ -39,13 +39,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .modes import KINDS, mode_shapes
+from ..model.modes import KINDS, mode_shapes
 from .predict import boundary_notches, room_schroeder_frequency
-from .response import level_db, log_frequencies, smooth_fractional_octave
-from .room import WALL_AXIS, WALL_FAR, WALLS
-from .solvers import transfer_function
-from .solvers.modal import modal_weights, static_tail_term
-from .speaker import speaker_response
+from ..dsp.response import level_db, log_frequencies, smooth_fractional_octave
+from ..model.room import WALL_AXIS, WALL_FAR, WALLS
+from ..solvers import transfer_function
+from ..solvers.modal import modal_weights, static_tail_term
+from ..model.speaker import speaker_response
 
 __all__ = ["Cause", "Move", "Region", "Explanation", "explain", "modal_decomposition"]
 

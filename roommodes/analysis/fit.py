@@ -26,9 +26,9 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from scipy.optimize import least_squares
 
-from .response import log_frequencies, smooth_fractional_octave
-from .room import WALLS, Surface
-from .roomfile import WALL_MARGIN_M
+from ..dsp.response import log_frequencies, smooth_fractional_octave
+from ..model.room import WALLS, Surface
+from ..io.roomfile import WALL_MARGIN_M
 
 __all__ = ["ABSORPTION_GROUPS", "FitParameter", "FitResult", "FitTarget", "fit_error", "fit_room"]
 
@@ -274,8 +274,8 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
     Surfaces on opposite sides of the room enter the modal model's damping only through
     their sum, so with ``absorption="each"`` the split between them follows the file.
     """
-    from .solvers import transfer_function
-    from .speaker import speaker_response
+    from ..solvers import transfer_function
+    from ..model.speaker import speaker_response
 
     targets = list(targets)
     if not targets:

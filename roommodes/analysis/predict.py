@@ -13,12 +13,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .criteria import sabine_rt60, schroeder_frequency
-from .modes import mode_shapes, room_modes
-from .response import level_db, log_frequencies, smooth_fractional_octave
-from .room import WALL_AXIS, WALL_FAR, WALLS
-from .solvers import transfer_function
-from .speaker import speaker_response
+from ..model.criteria import sabine_rt60, schroeder_frequency
+from ..model.modes import mode_shapes, room_modes
+from ..dsp.response import level_db, log_frequencies, smooth_fractional_octave
+from ..model.room import WALL_AXIS, WALL_FAR, WALLS
+from ..solvers import transfer_function
+from ..model.speaker import speaker_response
 
 __all__ = ["Channel", "Prediction", "predict", "room_schroeder_frequency", "response_features",
            "boundary_notches", "Feature", "usable_band", "band_figures"]

@@ -45,12 +45,12 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from .predict import usable_band
-from .placement import PRESETS, SEAT_HEIGHT_M, preset_layout
-from .response import log_frequencies, smooth_fractional_octave
-from .room import Layout, Speaker
-from .roomfile import WALL_MARGIN_M
-from .solvers.modal import modal_sum_block, modal_weights, static_green_block, static_green_pairs
-from .speaker import speaker_response
+from ..model.placement import PRESETS, SEAT_HEIGHT_M, preset_layout
+from ..dsp.response import log_frequencies, smooth_fractional_octave
+from ..model.room import Layout, Speaker
+from ..io.roomfile import WALL_MARGIN_M
+from ..solvers.modal import modal_sum_block, modal_weights, static_green_block, static_green_pairs
+from ..model.speaker import speaker_response
 
 __all__ = [
     "PARTS", "DEFAULT_WEIGHTS", "KeepOut", "SearchSpace", "ScoredLayout", "SearchResult",

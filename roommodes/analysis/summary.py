@@ -6,9 +6,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .criteria import (bonello_checks, eyring_rt60, integer_ratio_check, proportion_rule_check,
+from ..model.criteria import (bonello_checks, eyring_rt60, integer_ratio_check, proportion_rule_check,
                        sabine_rt60)
-from .modes import mode_indices
+from ..model.modes import mode_indices
 from .predict import room_schroeder_frequency
 
 __all__ = ["RoomSummary", "room_summary", "SUMMARY_BANDS_HZ"]

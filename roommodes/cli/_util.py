@@ -8,7 +8,7 @@ from pathlib import Path
 import click
 import numpy as np
 
-from .roomfile import RoomFileError, load_room
+from ..io.roomfile import RoomFileError, load_room
 
 CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
 
@@ -108,7 +108,7 @@ json_option = click.option("--json", "as_json", is_flag=True, help="Print one JS
 
 
 def layouts_for(room, layout):
-    from .placement import PRESETS, preset_layout
+    from ..model.placement import PRESETS, preset_layout
 
     names = (["file"] if room.layout is not None else []) + list(PRESETS) if layout == "all" else [layout]
     out = []
@@ -138,7 +138,7 @@ units_option = click.option(
 
 def walls_text(room, pos):
     """Where a point is, from named walls, in the units chosen with --units (default cm)."""
-    from .units import walls_text as _walls_text
+    from ..present.units import walls_text as _walls_text
 
     ctx = click.get_current_context(silent=True)
     units = ctx.meta.get("roommodes_units", "cm") if ctx is not None else "cm"
@@ -147,14 +147,14 @@ def walls_text(room, pos):
 
 def usable_band(layout, top_hz=200.0):
     """Band judged by the summary figures: from max(20 Hz, the speakers' low cut) to 200 Hz."""
-    from .predict import usable_band as _usable
+    from ..analysis.predict import usable_band as _usable
 
     return _usable(layout.speakers, top_hz)
 
 
 def band_figures(f, level, band=(20.0, 200.0)):
     """Summary figures of a curve in a band (see :func:`roommodes.predict.band_figures`)."""
-    from .predict import band_figures as _figures
+    from ..analysis.predict import band_figures as _figures
 
     return _figures(f, level, band)
 

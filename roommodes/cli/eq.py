@@ -7,15 +7,15 @@ from pathlib import Path
 import click
 import numpy as np
 
-from . import __version__
-from ._cliutil import (CONTEXT, check_output, dump_json, echo_err, fail, freq_range_option, json_option,
+from .. import __version__
+from ._util import (CONTEXT, check_output, dump_json, echo_err, fail, freq_range_option, json_option,
                        layouts_for, load_or_fail, method_option, parse_range, ppo_option, protect_inputs)
 
 _SPL_TABLE_HZ = (31.5, 40.0, 50.0, 63.0, 80.0, 100.0, 125.0, 160.0, 200.0)
 
 
 def _read_target(path):
-    from .measure.importers import read_response_text
+    from ..io.importers import read_response_text
 
     curve = read_response_text(path)
     if any("sorted" in note for note in curve.notes):
@@ -49,7 +49,7 @@ def _channel_json(corr):
 
 
 def _print_channel(corr, room_layout_speaker):
-    from .eq import q_at_3db_below_peak
+    from ..analysis.eq import q_at_3db_below_peak
 
     p = corr.parametric
     click.echo(f"Channel {corr.name}  (band {p.band_hz[0]:g}-{p.band_hz[1]:g} Hz, curve smoothed 1/12 octave)")
@@ -104,8 +104,8 @@ def _print_channel(corr, room_layout_speaker):
 
 def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, options):
     """Corrections of measured curves: CHANNEL=FILE items, several files of a channel averaged."""
-    from .compare import average_measurements, load_measurement
-    from .correction import correct_curve
+    from ..analysis.compare import average_measurements, load_measurement
+    from ..analysis.correction import correct_curve
 
     files = {}
     for item in measured:
@@ -174,9 +174,9 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
     boosted up to --max-boost; peaks are cut. Offered: parametric filters, a single low
     shelf (for a bass tone control), and 31-band and 10-band graphic-EQ slider settings.
     """
-    from .correction import correct_prediction
-    from .eq import CAUTIONS, EXPORT_SAMPLE_RATES, channel_headroom_warnings, render_text
-    from .response import log_frequencies
+    from ..analysis.correction import correct_prediction
+    from ..analysis.eq import CAUTIONS, EXPORT_SAMPLE_RATES, channel_headroom_warnings, render_text
+    from ..dsp.response import log_frequencies
 
     lo, hi = parse_range(freq_range)
     qlo, qhi = _parse_pair(q_range, "--q-range")
@@ -226,7 +226,7 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
         for w in head_warn:
             click.echo(f"warning: {w.message}")
     if export_path:
-        from .roomfile import write_text_atomic
+        from ..io.roomfile import write_text_atomic
 
         text = "\n".join(
             render_text(c.parametric.filters, __version__, sample_rates=EXPORT_SAMPLE_RATES,
@@ -237,7 +237,7 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
         write_text_atomic(export_path, text, overwrite=force)
         echo_err(f"wrote {export_path}")
     if plot_path:
-        from .plots import plot_correction
+        from ..present.plots import plot_correction
 
         plot_correction(corrections, title=f"{room.name}: bass correction", path=plot_path)
         echo_err(f"wrote {plot_path}")

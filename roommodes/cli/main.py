@@ -14,11 +14,11 @@ from pathlib import Path
 import click
 import numpy as np
 
-from . import __version__
-from ._cliutil import (CONTEXT, MODEL_CAUTION, UserError, band_figures, check_output, dump_json, echo_err,
+from .. import __version__
+from ._util import (CONTEXT, MODEL_CAUTION, UserError, band_figures, check_output, dump_json, echo_err,
                        fail, freq_range_option, json_option, layouts_for, load_or_fail, method_option,
                        parse_range, ppo_option, protect_inputs, units_option, usable_band, walls_text)
-from .roomfile import demo_room_path, load_room
+from ..io.roomfile import demo_room_path, load_room
 
 class _Group(click.Group):
     """Turns input problems raised below the CLI into one line and exit code 2."""
@@ -65,9 +65,9 @@ def modes(room_file, freq_range, plot_path, force, as_json):
     half-power bandwidth from the surfaces' absorption. Summary: volume, area, Sabine and
     Eyring RT60 at 63/125/250 Hz, Schroeder frequency, and room-proportion checks.
     """
-    from .criteria import note_name
-    from .modes import room_modes
-    from .summary import room_summary
+    from ..model.criteria import note_name
+    from ..model.modes import room_modes
+    from ..analysis.summary import room_summary
 
     lo, hi = parse_range(freq_range, allow_zero=True)
     room = load_or_fail(room_file)
@@ -99,7 +99,7 @@ def modes(room_file, freq_range, plot_path, force, as_json):
         click.echo("")
         _print_summary(summ)
     if plot_path:
-        from .plots import plot_modes
+        from ..present.plots import plot_modes
 
         plot_modes(ms, hi, title=f"Room modes: {room.name}", path=plot_path)
         echo_err(f"wrote {plot_path}")
@@ -150,10 +150,10 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
     Levels are in dB relative to the free-field level the same speaker gives at 1 m, so
     0 dB means "as loud as at 1 m outdoors"; room gain shows as positive values.
     """
-    from .modes import room_modes
-    from .predict import predict as run_predict
-    from .predict import response_features
-    from .response import log_frequencies
+    from ..model.modes import room_modes
+    from ..analysis.predict import predict as run_predict
+    from ..analysis.predict import response_features
+    from ..dsp.response import log_frequencies
 
     lo, hi = parse_range(freq_range)
     room = load_or_fail(room_file)
@@ -207,7 +207,7 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
         click.echo("")
     echo_err(MODEL_CAUTION)
     if plot_path:
-        from .plots import plot_prediction
+        from ..present.plots import plot_prediction
 
         ms = room_modes(room, hi)
         plot_prediction(preds, ms, title=f"{room.name}: predicted level at the seat", path=plot_path)
@@ -226,12 +226,12 @@ def demo(out_dir):
     placements, searches for a better placement, explains the left/right differences,
     designs the bass correction, and writes the figures and a full HTML report into OUT.
     """
-    from .modes import room_modes
-    from .placement import PRESETS, preset_layout
-    from .plots import plot_modes, plot_prediction
-    from .predict import predict as run_predict
-    from .predict import response_features
-    from .summary import room_summary
+    from ..model.modes import room_modes
+    from ..model.placement import PRESETS, preset_layout
+    from ..present.plots import plot_modes, plot_prediction
+    from ..analysis.predict import predict as run_predict
+    from ..analysis.predict import response_features
+    from ..analysis.summary import room_summary
 
     path = demo_room_path()
     room = load_room(path)
@@ -268,8 +268,8 @@ def demo(out_dir):
     plot_prediction(preds, ms, title=f"{room.name}: layouts compared", path=out_dir / "predict-layouts.png")
     click.echo("")
     click.echo("Placement search, left/right explanation and bass correction (the full report):")
-    from .cli_report import write_report
-    from .report import build_report
+    from .report import write_report
+    from ..present.report import build_report
 
     t0 = time.perf_counter()
     rep = build_report(room, room_text=path.read_text(encoding="utf-8"), command="roommodes demo",
@@ -283,7 +283,7 @@ def demo(out_dir):
                f"report_files/, and {', '.join(sorted(p.name for p in out_dir.glob('*.png')))}")
     click.echo(f"Next: copy {path.name} from rooms/, edit it for your room (docs/room-file.md), and run "
                "`roommodes predict YOUR-ROOM.toml --plot curves.png`, `roommodes place`, `roommodes eq`.")
-    from .eq import CAUTIONS
+    from ..analysis.eq import CAUTIONS
 
     echo_err("Before applying any bass correction:")
     for caution in CAUTIONS:
@@ -292,10 +292,10 @@ def demo(out_dir):
 
 
 # Commands of later features live in their own modules and are registered here.
-from .cli_eq import eq  # noqa: E402
-from .cli_measure import COMMANDS as _MEASURE_COMMANDS  # noqa: E402
-from .cli_place import explain, place  # noqa: E402
-from .cli_report import COMMANDS as _REPORT_COMMANDS  # noqa: E402
+from .eq import eq  # noqa: E402
+from .measure import COMMANDS as _MEASURE_COMMANDS  # noqa: E402
+from .place import explain, place  # noqa: E402
+from .report import COMMANDS as _REPORT_COMMANDS  # noqa: E402
 
 main.add_command(place)
 main.add_command(explain)

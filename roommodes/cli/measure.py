@@ -21,8 +21,8 @@ from pathlib import Path
 import click
 import numpy as np
 
-from . import __version__
-from ._cliutil import (CONTEXT, MODEL_CAUTION, UserError, check_output, dump_json, echo_err, fail, json_option,
+from .. import __version__
+from ._util import (CONTEXT, MODEL_CAUTION, UserError, check_output, dump_json, echo_err, fail, json_option,
                        load_or_fail, protect_inputs)
 
 __all__ = ["CAUTIONS", "COMMANDS", "GUIDANCE", "bands", "compare", "decay", "fit", "ir", "noise", "sweep"]
@@ -119,8 +119,8 @@ def _channel_message(msg, path, wav_channel):
 
 def _read_wav_or_fail(path, channel_1based, what="recording"):
     """Read one channel of a WAV file; one-line errors naming the file."""
-    from .compare import is_wav_file
-    from .measure.wavio import read_wav
+    from ..analysis.compare import is_wav_file
+    from ..io.wavio import read_wav
 
     p = _require_file(path, what)
     if not is_wav_file(p):
@@ -179,7 +179,7 @@ def _positions(room, at, n_files, name="--at"):
 
 
 def _load_measurements(paths, wav_channel, window_s, freq_hz):
-    from .compare import load_measurement
+    from ..analysis.compare import load_measurement
 
     out = []
     for p in paths:
@@ -229,9 +229,9 @@ def sweep(out, fs_hz, duration_s, f1_hz, f2_hz, level_dbfs, fade_in_s, fade_out_
     needs to turn a recording of the sweep into an impulse response. The default level is
     -12 dBFS peak: set the loudness with the playback volume, starting low.
     """
-    from .measure.sweep import exponential_sweep
-    from .measure.wavio import write_wav_atomic
-    from .roomfile import write_text_atomic
+    from ..measure.sweep import exponential_sweep
+    from ..io.wavio import write_wav_atomic
+    from ..io.roomfile import write_text_atomic
 
     wav = _wav_output(out, force)
     desc = _sweep_json_path(wav)
@@ -261,7 +261,7 @@ def sweep(out, fs_hz, duration_s, f1_hz, f2_hz, level_dbfs, fade_in_s, fade_out_
 
 
 def _load_sweep_spec(path):
-    from .measure.sweep import SweepSpec
+    from ..measure.sweep import SweepSpec
 
     p = _require_file(path, "sweep file from `roommodes sweep`")
     if p.name.endswith(".json"):
@@ -279,8 +279,8 @@ def _load_sweep_spec(path):
     except ValueError as exc:
         fail(f"{desc}: {exc}")
     if wav is not None:
-        from .compare import is_wav_file
-        from .measure.wavio import read_wav
+        from ..analysis.compare import is_wav_file
+        from ..io.wavio import read_wav
 
         if not is_wav_file(wav):
             fail(f"{wav}: not a WAV file (no RIFF/WAVE header); give --sweep the sweep's WAV or its .sweep.json")
@@ -316,8 +316,8 @@ def ir(recording, sweep_path, out, wav_channel, loopback, ir_length_s, plot_path
     recording that is too short, and says what to do. Reports the delay, the
     signal-to-noise ratio and the harmonic distortion at low frequency per octave band.
     """
-    from .measure.deconvolve import RecordingError, deconvolve
-    from .measure.wavio import write_wav_atomic
+    from ..measure.deconvolve import RecordingError, deconvolve
+    from ..io.wavio import write_wav_atomic
 
     spec, desc = _load_sweep_spec(sweep_path)
     y, fs, _ = _read_wav_or_fail(recording, wav_channel)
@@ -365,7 +365,7 @@ def ir(recording, sweep_path, out, wav_channel, loopback, ir_length_s, plot_path
         click.echo("")
         click.echo(f"Next: roommodes compare ROOM.toml {wav.name} --channel NAME   (or roommodes decay {wav.name})")
     if plot_path:
-        from .plots_measure import plot_impulse_response
+        from ..present.plots_measure import plot_impulse_response
 
         plot_impulse_response(res.ir, res.fs_hz, title=f"Impulse response: {Path(recording).name}", path=plot_path)
         echo_err(f"wrote {plot_path}")
@@ -396,8 +396,8 @@ def noise(out, fs_hz, duration_s, level_dbfs, band, seed, subtype, force, as_jso
     recording of it at the seat (`roommodes bands`) are the room's response. Default
     -20 dBFS rms; set the loudness with the playback volume, starting low.
     """
-    from .measure.signals import crest_factor_db, pink_noise
-    from .measure.wavio import write_wav_atomic
+    from ..measure.signals import crest_factor_db, pink_noise
+    from ..io.wavio import write_wav_atomic
 
     lo, hi = _parse_band(band) if band else (20.0, min(20000.0, 0.45 * fs_hz))
     wav = _wav_output(out, force)
@@ -448,8 +448,8 @@ def bands(recording, wav_channel, fraction, band, out, force, as_json):
     Because pink noise has equal power per band, the band levels are the response at the
     seat up to a constant; `-o` writes them as a curve `compare`, `fit` and `eq` accept.
     """
-    from .measure.signals import band_levels
-    from .roomfile import write_text_atomic
+    from ..measure.signals import band_levels
+    from ..io.roomfile import write_text_atomic
 
     lo, hi = _parse_band(band)
     x, fs, _ = _read_wav_or_fail(recording, wav_channel)
@@ -513,7 +513,7 @@ def decay(ir_file, wav_channel, band_set, freq_range, n_modes, modal_range, wate
     flags bands whose decay range is too small; then the decay time (T60) and Q of the
     strongest low-frequency peaks; optionally a waterfall figure.
     """
-    from .measure.decay import cumulative_spectral_decay, modal_decay_times, reverberation_times
+    from ..measure.decay import cumulative_spectral_decay, modal_decay_times, reverberation_times
 
     lo, hi = _parse_band(freq_range)
     mlo, mhi = _parse_band(modal_range)
@@ -560,7 +560,7 @@ def decay(ir_file, wav_channel, band_set, freq_range, n_modes, modal_range, wate
         for m in notes:
             click.echo(f"Note: {m}")
     if waterfall_path:
-        from .plots_measure import plot_waterfall
+        from ..present.plots_measure import plot_waterfall
 
         sd = cumulative_spectral_decay(h, fs, window_s=window_s)
         plot_waterfall(sd, title=f"Cumulative spectral decay: {Path(ir_file).name}", path=waterfall_path)
@@ -636,8 +636,8 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
     table pairing measured peaks and dips with predicted ones (and the mode or boundary
     behind them) with their frequency ratios, and what a consistent difference suggests.
     """
-    from .compare import average_measurements, compare_measurements, compare_to_prediction
-    from .response import log_frequencies
+    from ..analysis.compare import average_measurements, compare_measurements, compare_to_prediction
+    from ..dsp.response import log_frequencies
 
     files = list(files)
     room_file = files.pop(0) if files and files[0].suffix.lower() == ".toml" else None
@@ -721,7 +721,7 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
         for line in rep.interpretation:
             click.echo(f"* {line}")
     if plot_path:
-        from .plots_measure import plot_comparison
+        from ..present.plots_measure import plot_comparison
 
         title = (f"{room.name}: {rep.channel}, measured against predicted" if room is not None
                  else f"{names[0]} against {names[1]}")
@@ -744,7 +744,7 @@ def _measured_files_options(f):
 
 def _measurement_specs(room, files, channel, at, measure):
     """(speaker name, microphone position, path) of every measurement given on the command line."""
-    from .compare import speaker_by_name
+    from ..analysis.compare import speaker_by_name
 
     specs = []
     if files:
@@ -808,9 +808,9 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
     value, how far it moved, an approximate standard error, and the error before and after.
     Then `predict` and `place` on the calibrated file.
     """
-    from .fit import FitTarget, fit_room
-    from .response import log_frequencies
-    from .roomfile import room_to_toml, write_text_atomic
+    from ..analysis.fit import FitTarget, fit_room
+    from ..dsp.response import log_frequencies
+    from ..io.roomfile import room_to_toml, write_text_atomic
 
     room = load_or_fail(room_file)
     if room.layout is None:
@@ -899,7 +899,7 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
         click.echo(f"Wrote {outp} (the seat is unchanged; microphone offsets are reported, not written).")
         click.echo(f"Next: roommodes predict {outp.name}   and   roommodes compare {outp.name} MEAS... --channel NAME")
     if plot_path:
-        from .plots_measure import plot_fit
+        from ..present.plots_measure import plot_fit
 
         plot_fit(res, title=f"{room.name}: fit to measurements", path=plot_path)
         echo_err(f"wrote {plot_path}")

@@ -16,8 +16,8 @@ from pathlib import Path
 import click
 import numpy as np
 
-from . import __version__
-from ._cliutil import (
+from .. import __version__
+from ._util import (
     CONTEXT,
     MODEL_CAUTION,
     check_output,
@@ -99,7 +99,7 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
     would need, and robustness to 5 cm moves. The four standard placements and the file's
     own layout are scored the same way and shown in the same table.
     """
-    from .search import PARTS, search_layouts, search_space
+    from ..analysis.search import PARTS, search_layouts, search_space
 
     room = load_or_fail(room_file)
     w = _parse_weights(weights)
@@ -178,7 +178,7 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
         click.echo("")
     echo_err(MODEL_CAUTION)
     if layout_path:
-        from .roomfile import room_to_toml, write_text_atomic
+        from ..io.roomfile import room_to_toml, write_text_atomic
 
         new_room = room.with_layout(replace(best.layout, name="file"))
         text = room_to_toml(new_room, comment=(
@@ -195,9 +195,9 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
 
 
 def _place_plot(room, space, res, path):
-    from .plots_place import plot_place
-    from .predict import predict
-    from .search import front_distance_profile, seat_score_map
+    from ..present.plots_place import plot_place
+    from ..analysis.predict import predict
+    from ..analysis.search import front_distance_profile, seat_score_map
 
     best = res.ranked[0].layout
     preds = [("best", predict(room, best))]
@@ -242,9 +242,9 @@ def explain(room_file, channels, threshold, band, freq_range, points_per_octave,
     seat's coupling to them; boundaries with their quarter-wave notches c/4d), and
     predicts the effect of the single speaker move that reduces the difference most.
     """
-    from .explain import explain as run_explain
-    from .response import log_frequencies
-    from .search import search_space
+    from ..analysis.explain import explain as run_explain
+    from ..dsp.response import log_frequencies
+    from ..analysis.search import search_space
 
     if not math.isfinite(threshold) or threshold <= 0:
         fail(f"--threshold must be a positive number of dB, got {threshold:g}")
@@ -326,7 +326,7 @@ def explain(room_file, channels, threshold, band, freq_range, points_per_octave,
         click.echo(f"Schroeder frequency {e.schroeder_hz:.0f} Hz: results above it are indicative only.")
     echo_err(MODEL_CAUTION)
     if plot_path:
-        from .plots_place import plot_explain
+        from ..present.plots_place import plot_explain
 
         plot_explain(e, title=f"{room.name}: {n1} and {n2} at the seat", path=plot_path)
         echo_err(f"wrote {plot_path}")

@@ -25,13 +25,13 @@ from pathlib import Path
 import click
 import numpy as np
 
-from . import __version__
-from ._cliutil import (CONTEXT, MODEL_CAUTION, UserError, check_output, dump_json, echo_err, fail, json_option,
+from .. import __version__
+from ._util import (CONTEXT, MODEL_CAUTION, UserError, check_output, dump_json, echo_err, fail, json_option,
                        layouts_for, load_or_fail, method_option, protect_inputs)
-from .cli_measure import (_guard, _measured_files_options, _measurement_specs, _wav_channel_option,
+from .measure import (_guard, _measured_files_options, _measurement_specs, _wav_channel_option,
                           _window_option)
-from .report import EMBED_FORMATS, SEARCH_MODES
-from .units import UNITS, format_length, parse_length, parse_lengths, walls_text
+from ..present.report import EMBED_FORMATS, SEARCH_MODES
+from ..present.units import UNITS, format_length, parse_length, parse_lengths, walls_text
 
 __all__ = ["report", "map_", "init", "COMMANDS", "room_sketch", "commented_room_toml"]
 
@@ -148,10 +148,10 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
     reproduce it. It opens offline in any browser and prints on A4 or Letter. Every figure
     is also written as PNG and SVG, and every table as CSV, into NAME_files/ beside it.
     """
-    from .cli_measure import _load_measurements, _require_file
-    from .fit import FitTarget
-    from .report import MeasuredCurve, build_report
-    from .response import log_frequencies
+    from .measure import _load_measurements, _require_file
+    from ..analysis.fit import FitTarget
+    from ..present.report import MeasuredCurve, build_report
+    from ..dsp.response import log_frequencies
 
     out = Path(out)
     if out.suffix.lower() not in (".html", ".htm"):
@@ -292,7 +292,7 @@ def map_(room_file, freq_hz, height, channels, layout, step, units, method, plot
     character map (front wall at the top, left wall on the left; ' ' quietest to '@'
     loudest); --plot draws it with the speakers, the seat and the nearest mode's nodal lines.
     """
-    from .report import floor_level_map
+    from ..present.report import floor_level_map
 
     room = load_or_fail(room_file)
     (lay,) = layouts_for(room, layout)
@@ -348,7 +348,7 @@ def map_(room_file, freq_hz, height, channels, layout, step, units, method, plot
             click.echo("  " + line)
         click.echo("  back wall     (speakers by initial, S = seat; ' ' quietest to '@' loudest)")
     if plot_path:
-        from .plots_report import plot_floor_map
+        from ..present.plots_report import plot_floor_map
 
         plot_floor_map(fm, room, lay, units, path=plot_path)
         echo_err(f"wrote {plot_path}")
@@ -364,7 +364,7 @@ _SURFACE_PROMPTS = {
 
 def _surface_value(text):
     """A material name, a number from the library list, or an absorption coefficient."""
-    from .materials import get_material, material_names
+    from ..model.materials import get_material, material_names
 
     names = material_names()
     t = str(text).strip()
@@ -391,7 +391,7 @@ def _surface_value(text):
 
 
 def _material_list():
-    from .materials import get_material, material_names
+    from ..model.materials import get_material, material_names
 
     lines = ["Surface materials (type the number or the name, or an absorption coefficient 0 to 0.99):"]
     for i, n in enumerate(material_names(), 1):
@@ -428,8 +428,8 @@ def commented_room_toml(name, size_m, surfaces, speakers=(), seat_m=None, temper
     header : str, optional
         First comment lines.
     """
-    from .materials import get_material
-    from .room import Room, Surface
+    from ..model.materials import get_material
+    from ..model.room import Room, Surface
 
     def num(v):
         return repr(float(v))
@@ -557,7 +557,7 @@ class _Answer:
 
 
 def _dimension(text, label):
-    from .roomfile import MAX_DIMENSION_M, MIN_DIMENSION_M
+    from ..io.roomfile import MAX_DIMENSION_M, MIN_DIMENSION_M
 
     v = _rounded(parse_length(text))
     if not MIN_DIMENSION_M <= v <= MAX_DIMENSION_M:
@@ -574,7 +574,7 @@ def _coordinate(text, length_m, near, far, what):
 
     E.g. "60 cm", "60 cm from right", "1.2 m from the back wall".
     """
-    from .roomfile import WALL_MARGIN_M
+    from ..io.roomfile import WALL_MARGIN_M
 
     low = str(text).strip().lower()
     from_far = re.search(rf"\b{far}\b", low) is not None
@@ -590,7 +590,7 @@ def _coordinate(text, length_m, near, far, what):
 
 
 def _point(text, size_m, what):
-    from .roomfile import WALL_MARGIN_M
+    from ..io.roomfile import WALL_MARGIN_M
 
     try:
         p = tuple(_rounded(v) for v in parse_lengths(text, 3))
@@ -711,7 +711,7 @@ def init(out, name, size, temperature, walls, front, back, left, right, floor, c
     number is in metres. A wrong answer is explained and asked again. Values given as
     options are not asked; with --yes nothing is asked at all.
     """
-    from .roomfile import RoomFileError, parse_room, write_text_atomic
+    from ..io.roomfile import RoomFileError, parse_room, write_text_atomic
 
     out = Path(out)
     if out.suffix.lower() != ".toml":

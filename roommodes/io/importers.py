@@ -44,6 +44,8 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from ..dsp.response import Response, log_frequencies
+
 __all__ = [
     "CurveAverage",
     "MeasuredCurve",
@@ -111,8 +113,6 @@ class MeasuredCurve:
 
     def to_response(self, label=None):
         """The curve as a :class:`roommodes.response.Response` (level only, no transfer)."""
-        from roommodes.response import Response
-
         return Response(np.asarray(self.freq_hz, float), np.asarray(self.level_db, float),
                         self.source if label is None else label)
 
@@ -823,8 +823,6 @@ def average_curves(curves, mode="power", *, points_per_octave=48, freq_hz=None):
         raise ValueError(f"the curves do not overlap in frequency (common range "
                          f"{lo:g}-{hi:g} Hz is empty)")
     if freq_hz is None:
-        from roommodes.response import log_frequencies
-
         grid = log_frequencies(lo, hi, points_per_octave)
     else:
         grid = np.asarray(freq_hz, float)

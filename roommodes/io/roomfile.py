@@ -18,7 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .room import WALLS, Layout, Room, Speaker, Surface
+from ..model.room import WALLS, Layout, Room, Speaker, Surface
 
 __all__ = ["RoomFileError", "load_room", "parse_room", "room_to_toml", "demo_room_path",
            "example_rooms", "write_text_atomic"]
@@ -43,11 +43,11 @@ class RoomFileError(ValueError):
 def _rooms_folder():
     # Installed: the repository's rooms/ folder is package data inside the package
     # (roommodes/rooms). Editable or source checkout: the folder beside the package.
-    here = Path(__file__).resolve().parent
-    for folder in (here / "rooms", here.parent / "rooms"):
+    package = Path(__file__).resolve().parent.parent
+    for folder in (package / "rooms", package.parent / "rooms"):
         if (folder / "demo-studio.toml").is_file():
             return folder
-    raise RoomFileError(f"the bundled example rooms are missing (looked in {here / 'rooms'}); reinstall roommodes")
+    raise RoomFileError(f"the bundled example rooms are missing (looked in {package / 'rooms'}); reinstall roommodes")
 
 
 def demo_room_path():
@@ -98,7 +98,7 @@ class _Ctx:
 
 def _parse_surface(ctx, name, value):
     key = f"[surfaces] {name}"
-    from .materials import get_material
+    from ..model.materials import get_material
 
     if isinstance(value, str) or (isinstance(value, dict) and "material" in value):
         mat_name = value if isinstance(value, str) else value["material"]
@@ -261,7 +261,7 @@ def _read_speaker_curve(ctx, key, rfile, base_dir):
     if not path.is_absolute() and base_dir is not None:
         path = Path(base_dir) / path
     try:
-        from .measure.importers import read_response_text
+        from .importers import read_response_text
     except ImportError:  # pragma: no cover - importers are part of the package
         ctx.fail(key, "reading response files needs roommodes.measure.importers")
     try:

@@ -18,7 +18,8 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import signal
 
-from roommodes.measure.signals import OCTAVE_RATIO_G, band_centres
+from ..dsp.response import log_frequencies
+from .signals import OCTAVE_RATIO_G, band_centres
 
 __all__ = [
     "DecayCurve",
@@ -936,8 +937,6 @@ def cumulative_spectral_decay(ir, fs, freqs_hz=None, times_s=None, *, window_s=0
     """
     h, fs = _check_ir(ir, fs)
     if freqs_hz is None:
-        from roommodes.response import log_frequencies
-
         freqs = log_frequencies(15.0, min(300.0, 0.45 * fs), 24)
     else:
         freqs = np.atleast_1d(np.asarray(freqs_hz, dtype=float))

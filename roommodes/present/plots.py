@@ -154,7 +154,7 @@ def plot_correction(corrections, title=None, path=None):
     One row of two panels per channel: left, the levels with the classified regions
     shaded (nulls are not boosted); right, the combined correction curve and each filter.
     """
-    from .eq import correction_db
+    from ..analysis.eq import correction_db
 
     n = len(corrections)
     fig, axes = new_figure(11.0, 3.6 * n, n, 2, squeeze=False)

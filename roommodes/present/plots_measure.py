@@ -123,8 +123,8 @@ def plot_impulse_response(ir, fs_hz, title=None, path=None, freq_range_hz=(15.0,
     -------
     matplotlib.figure.Figure
     """
-    from .measure.deconvolve import frequency_response
-    from .response import log_frequencies
+    from ..measure.deconvolve import frequency_response
+    from ..dsp.response import log_frequencies
 
     h = np.asarray(ir, dtype=float)
     t = np.arange(h.size) / fs_hz

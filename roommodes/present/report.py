@@ -33,9 +33,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import __version__
-from .modes import mode_shapes, room_modes
-from .predict import DEFAULT_RANGE_HZ, room_schroeder_frequency
+from .. import __version__
+from ..model.modes import mode_shapes, room_modes
+from ..analysis.predict import DEFAULT_RANGE_HZ, room_schroeder_frequency
 from .units import UNITS, format_length, wall_distances, walls_text
 
 __all__ = [
@@ -293,8 +293,8 @@ def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=0.05, chan
     speakers, so the map shows ``|cos(nx pi x / Lx) cos(ny pi y / Ly)|`` (Rayleigh; Kuttruff
     2009, sec. 3.3): loud along the walls its pressure maxima lie on, quiet on its nodal lines.
     """
-    from .solvers import transfer_function
-    from .speaker import speaker_response
+    from ..solvers import transfer_function
+    from ..model.speaker import speaker_response
 
     layout = room.layout if layout is None else layout
     if layout is None:
@@ -634,7 +634,7 @@ def _val(key, value, text):
 # ======================================================================================
 def _analysis_layout(room):
     """The file's layout, or the first preset that fits a room without one."""
-    from .placement import PRESETS, preset_layout
+    from ..model.placement import PRESETS, preset_layout
 
     if room.layout is not None:
         return room.layout, None
@@ -734,8 +734,8 @@ def build_report(room, measurements=(), fit_targets=None, *, units="cm", search=
     that prints it with ``--json`` (``modes``, ``predict``, ``place``, ``explain``, ``eq``,
     ``compare``, ``fit``), so the page and those commands agree.
     """
-    from .response import log_frequencies
-    from .search import search_space
+    from ..dsp.response import log_frequencies
+    from ..analysis.search import search_space
 
     if units not in UNITS:
         raise ValueError(f"units must be one of {', '.join(UNITS)}, got {units!r}")
@@ -791,7 +791,7 @@ class _Run:
 def _section_room(run):
     """The room drawn to scale, its surfaces, figures and proportion checks."""
     from .plots_report import plot_room_views
-    from .summary import room_summary
+    from ..analysis.summary import room_summary
 
     doc, values, glance, step, L = run.doc, run.values, run.glance, run.step, run.L
     room, layout, preset_used, units, keep_out = run.room, run.layout, run.preset_used, run.units, run.keep_out
@@ -829,7 +829,7 @@ def _section_room(run):
         a = s.absorption_at([63.0, 125.0, 250.0])
         desc = ""
         if s.material:
-            from .materials import get_material
+            from ..model.materials import get_material
 
             desc = get_material(s.material).description
         rows.append([s.name, _num(area, ".2f"), s.describe(), desc, _num(a[0], ".2f"), _num(a[1], ".2f"),
@@ -867,7 +867,7 @@ def _section_room(run):
 def _section_modes(run):
     """The modes that matter at the seat, and the floor maps."""
     from .plots_report import plot_floor_map, plot_mode_coupling
-    from .predict import predict, response_features
+    from ..analysis.predict import predict, response_features
 
     doc, values, glance, step, L = run.doc, run.values, run.glance, run.step, run.L
     room, layout, units, method, f = run.room, run.layout, run.units, run.method, run.f
@@ -943,10 +943,10 @@ def _section_modes(run):
 
 def _section_responses(run):
     """Predicted responses of the file's layout and the presets."""
-    from .predict import band_figures, usable_band
-    from .placement import PRESETS, preset_layout
+    from ..analysis.predict import band_figures, usable_band
+    from ..model.placement import PRESETS, preset_layout
     from .plots import plot_prediction
-    from .predict import predict
+    from ..analysis.predict import predict
 
     doc, glance, room, layout, preset_used = run.doc, run.glance, run.room, run.layout, run.preset_used
     method, f, ms300, pred, feats = run.method, run.f, run.ms300, run.pred, run.feats
@@ -1003,7 +1003,7 @@ def _section_responses(run):
 
 def _section_placement(run):
     """The placement search and the left/right explanation."""
-    from .search import PARTS
+    from ..analysis.search import PARTS
 
     doc, values, glance, step, L = run.doc, run.values, run.glance, run.step, run.L
     room, layout, preset_used, units, method = run.room, run.layout, run.preset_used, run.units, run.method
@@ -1014,7 +1014,7 @@ def _section_placement(run):
               "file, or make the report again with --search full.")
     else:
         step(f"placement search ({search})")
-        from .search import search_layouts
+        from ..analysis.search import search_layouts
 
         res = search_layouts(room, space, refine=(search == "full"))
         best = res.ranked[0]
@@ -1073,7 +1073,7 @@ def _section_placement(run):
     if len(layout.speakers) < 2:
         doc.p("The layout has one speaker: nothing to compare.")
     else:
-        from .explain import explain as run_explain
+        from ..analysis.explain import explain as run_explain
         from .plots_place import plot_explain
 
         e = run_explain(room, layout, freq_hz=f, keep_out=keep_out)
@@ -1112,8 +1112,8 @@ def _section_placement(run):
 
 def _section_eq(run):
     """Bass correction and headroom, channel by channel."""
-    from . import eq as eqmod
-    from .correction import correct_prediction
+    from ..analysis import eq as eqmod
+    from ..analysis.correction import correct_prediction
     from .plots import plot_correction
 
     doc, values, glance, step, room = run.doc, run.values, run.glance, run.step, run.room
@@ -1190,7 +1190,7 @@ def _section_measurements(run):
     compare_band_hz, compare_smoothing = run.compare_band_hz, run.compare_smoothing
     fit_res = None
     if measurements or fit_targets:
-        from .compare import average_measurements, compare_to_prediction
+        from ..analysis.compare import average_measurements, compare_to_prediction
         from .plots_measure import plot_comparison, plot_fit
 
         doc.section("measurements", "Measured against predicted")
@@ -1240,7 +1240,7 @@ def _section_measurements(run):
                           f"{cmp.band_hz[0]:g}-{cmp.band_hz[1]:g} Hz.")
         if fit_targets:
             step("fit")
-            from .fit import fit_room
+            from ..analysis.fit import fit_room
 
             fit_res = fit_room(room, list(fit_targets))
             eb, ea = fit_res.error_before, fit_res.error_after
@@ -1272,7 +1272,7 @@ def _section_measurements(run):
 
 def _section_validity(run):
     """What the model assumes, where it stops being trustworthy; the cautions."""
-    from . import eq as eqmod
+    from ..analysis import eq as eqmod
 
     doc, step, L, room, layout = run.doc, run.step, run.L, run.room, run.layout
     measurements, summ, fs, fit_res = run.measurements, run.summ, run.fs, run.fit_res
@@ -1361,7 +1361,7 @@ def _section_reproduce(run):
 
 def _section_appendix(run):
     """Every mode up to 200 Hz."""
-    from .criteria import note_name
+    from ..model.criteria import note_name
     from .plots import plot_modes
 
     doc, room, ms300 = run.doc, run.room, run.ms300
@@ -1382,8 +1382,8 @@ def _section_appendix(run):
 def _placement_figure(room, space, res, current, method):
     """The ``place`` command's figure for a search result."""
     from .plots_place import plot_place
-    from .predict import predict
-    from .search import front_distance_profile, seat_score_map
+    from ..analysis.predict import predict
+    from ..analysis.search import front_distance_profile, seat_score_map
 
     best = res.ranked[0].layout
     preds = [("best", predict(room, best, method=method))]

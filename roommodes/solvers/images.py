@@ -110,7 +110,7 @@ import math
 
 import numpy as np
 
-from ..walls import impedance_table, random_incidence_absorption
+from ..model.walls import impedance_table, random_incidence_absorption
 from ._kernels import spread_shells
 
 __all__ = ["KERNEL_RELATIVE_ERROR", "image_count", "image_source_transfer", "images_up_to",

@@ -35,8 +35,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..modes import mode_indices, mode_shapes, wall_weights
-from ..walls import impedance_table
+from ..model.modes import mode_indices, mode_shapes, wall_weights
+from ..model.walls import impedance_table
 
 __all__ = ["modal_transfer", "modal_transfer_direct", "static_green", "DEFAULT_CUTOFF_FACTOR",
            "modal_weights", "modal_sum_block", "static_green_pairs", "static_green_block", "static_tail_term"]

@@ -17,7 +17,7 @@ import pytest
 from scipy import signal
 
 from roommodes import log_frequencies
-from roommodes.compare import (
+from roommodes.analysis.compare import (
     Measurement,
     average_measurements,
     compare_curves,
@@ -28,11 +28,11 @@ from roommodes.compare import (
     match_features,
     predicted_level,
 )
-from roommodes.measure.importers import MeasurementFileError
-from roommodes.measure.wavio import write_wav_atomic
-from roommodes.modes import mode_frequencies
-from roommodes.predict import predict
-from roommodes.roomfile import parse_room
+from roommodes.io.importers import MeasurementFileError
+from roommodes.io.wavio import write_wav_atomic
+from roommodes.model.modes import mode_frequencies
+from roommodes.analysis.predict import predict
+from roommodes.io.roomfile import parse_room
 
 WALLS6 = ("front", "back", "left", "right", "floor", "ceiling")
 

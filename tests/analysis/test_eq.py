@@ -1,4 +1,4 @@
-"""Filters, bands, conversions, targets, headroom and export of roommodes.eq.
+"""Filters, bands, conversions, targets, headroom and export of roommodes.analysis.eq.
 
 Reference values come from /work/shared/CHECKS.md ("EQ filters and bands") unless a
 test names another source. Cookbook = R. Bristow-Johnson, "Cookbook formulae for audio
@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 from scipy import signal
 
-from roommodes import eq
+from roommodes.analysis import eq
 
 RATES = (44100, 48000, 88200, 96000, 176400, 192000)
 F_BASS = np.geomspace(20.0, 250.0, 300)

@@ -1,4 +1,4 @@
-"""Dip classification and the three correction designs of roommodes.eq.
+"""Dip classification and the three correction designs of roommodes.analysis.eq.
 
 The room-like curves below are invented test data: a flat direct part plus five modal
 resonances (one of them in antiphase), a sealed-speaker roll-off, and a deep narrow notch
@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 from scipy import signal
 
-from roommodes import eq
-from roommodes.response import log_frequencies
+from roommodes.analysis import eq
+from roommodes.dsp.response import log_frequencies
 
 BAND = (20.0, 250.0)
 F = log_frequencies(15.0, 300.0, 48)

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 from scipy.signal import find_peaks
 
-from roommodes.predict import band_figures, find_extrema
+from roommodes.analysis.predict import band_figures, find_extrema
 
 
 @pytest.mark.parametrize("seed", range(6))

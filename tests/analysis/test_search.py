@@ -3,7 +3,7 @@
 References named beside each check. The independent path used as reference throughout is
 the modal solver as the rest of the package calls it (``roommodes.transfer_function``, one
 layout at a time, itself checked in tests/test_modal.py against the eigenfunction series
-and closed forms), the speaker response of ``roommodes.speaker`` and plain NumPy.
+and closed forms), the speaker response of ``roommodes.model.speaker`` and plain NumPy.
 """
 
 import itertools
@@ -13,11 +13,11 @@ import numpy as np
 import pytest
 
 from roommodes import demo_room_path, load_room, log_frequencies, preset_layout, transfer_function
-from roommodes.modes import mode_shapes
-from roommodes.response import smooth_fractional_octave
-from roommodes.room import Layout
-from roommodes.roomfile import parse_room
-from roommodes.search import (
+from roommodes.model.modes import mode_shapes
+from roommodes.dsp.response import smooth_fractional_octave
+from roommodes.model.room import Layout
+from roommodes.io.roomfile import parse_room
+from roommodes.analysis.search import (
     DEFAULT_WEIGHTS,
     PARTS,
     _Scorer,
@@ -43,8 +43,8 @@ from roommodes.solvers.modal import (
     static_green_block,
     static_green_pairs,
 )
-from roommodes.speaker import speaker_response
-from roommodes.walls import impedance_from_absorption
+from roommodes.model.speaker import speaker_response
+from roommodes.model.walls import impedance_from_absorption
 
 SIZE = np.array([5.0, 4.0, 2.6])
 C = 343.0

@@ -17,7 +17,7 @@ import time
 import numpy as np
 
 import roommodes
-from roommodes.modes import mode_shapes
+from roommodes.model.modes import mode_shapes
 from roommodes.solvers.modal import modal_sum_block, modal_weights
 
 
@@ -68,7 +68,7 @@ def main():
     print(f"  its core matrix product alone: {t_core * 1e3:.1f} ms, {flops / t_core / 1e9:.1f} GFLOP/s "
           f"= {flops / t_core / 1e9 / gflops:.0%} of the machine's GEMM rate measured above")
 
-    t_pred = best_of(lambda: roommodes.predict(room), 3)
+    t_pred = best_of(lambda: roommodes.analysis.predict(room), 3)
     print(f"predict (both channels, demo layout): {t_pred * 1e3:.0f} ms")
 
 

@@ -23,7 +23,7 @@ import numpy as np
 from bench import best_of, matmul_gflops  # tests/bench/bench.py (this script's folder is on sys.path)
 
 import roommodes
-from roommodes.search import (
+from roommodes.analysis.search import (
     _choose_step,
     _Scorer,
     area_offsets,
@@ -33,7 +33,7 @@ from roommodes.search import (
     search_space,
 )
 from roommodes.solvers.modal import modal_sum_block
-from roommodes.speaker import speaker_response
+from roommodes.model.speaker import speaker_response
 
 
 def gemm_rates(n=1500):

@@ -13,7 +13,7 @@ from scipy import signal
 
 from roommodes import demo_room_path, load_room
 from roommodes.cli import main
-from roommodes.correction import correct_prediction
+from roommodes.analysis.correction import correct_prediction
 
 DEMO = str(demo_room_path())
 

@@ -18,13 +18,13 @@ import pytest
 from click.testing import CliRunner
 
 from roommodes import demo_room_path, load_room, room_modes, transfer_function
-from roommodes.cli_measure import COMMANDS, bands, compare, decay, fit, ir, noise, sweep
-from roommodes.compare import predicted_level
-from roommodes.measure.importers import read_response_text
-from roommodes.measure.wavio import read_wav, write_wav_atomic
-from roommodes.response import log_frequencies
-from roommodes.room import Surface
-from roommodes.speaker import speaker_response
+from roommodes.cli.measure import COMMANDS, bands, compare, decay, fit, ir, noise, sweep
+from roommodes.analysis.compare import predicted_level
+from roommodes.io.importers import read_response_text
+from roommodes.io.wavio import read_wav, write_wav_atomic
+from roommodes.dsp.response import log_frequencies
+from roommodes.model.room import Surface
+from roommodes.model.speaker import speaker_response
 
 DEMO = str(demo_room_path())
 ROOM = load_room(DEMO)

@@ -10,9 +10,10 @@ import numpy as np
 import pytest
 from click.testing import CliRunner
 
-from roommodes import cli_place, demo_room_path, example_rooms, load_room, predict
+from roommodes import demo_room_path, example_rooms, load_room, predict
+from roommodes.cli import place as cli_place
 from roommodes.cli import main
-from roommodes.search import PARTS
+from roommodes.analysis.search import PARTS
 
 DEMO = str(demo_room_path())
 

@@ -21,15 +21,15 @@ from pathlib import Path
 import numpy as np
 import pytest
 from click.testing import CliRunner
-from test_report import PNG_SIGNATURE, check_page, data_values
+from pagecheck import PNG_SIGNATURE, check_page, data_values
 
 from roommodes import demo_room_path, load_room, log_frequencies, predict
 from roommodes.cli import main
-from roommodes.cli_report import init, map_, report
-from roommodes.compare import predicted_level
-from roommodes.materials import material_names
-from roommodes.report import Report, ReportFigure, Table
-from roommodes.room import Surface
+from roommodes.cli.report import init, map_, report
+from roommodes.analysis.compare import predicted_level
+from roommodes.model.materials import material_names
+from roommodes.present.report import Report, ReportFigure, Table
+from roommodes.model.room import Surface
 
 DEMO = str(demo_room_path())
 
@@ -228,9 +228,9 @@ def _fake_report(*args, **kwargs):
 
 
 def test_report_force_replaces_page_and_folder_whole(tmp_path, monkeypatch):
-    import roommodes.report
+    import roommodes.present.report
 
-    monkeypatch.setattr(roommodes.report, "build_report", _fake_report)
+    monkeypatch.setattr(roommodes.present.report, "build_report", _fake_report)
     out = tmp_path / "r.html"
     out.write_text("old")
     (tmp_path / "r_files").mkdir()
@@ -245,9 +245,9 @@ def test_report_force_replaces_page_and_folder_whole(tmp_path, monkeypatch):
 
 
 def test_report_failure_while_writing_leaves_the_old_report(tmp_path, monkeypatch):
-    import roommodes.report
+    import roommodes.present.report
 
-    monkeypatch.setattr(roommodes.report, "build_report", _fake_report)
+    monkeypatch.setattr(roommodes.present.report, "build_report", _fake_report)
 
     def full_disk(self):
         raise OSError(28, "No space left on device")

@@ -11,7 +11,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from roommodes.measure.importers import (
+from roommodes.io.importers import (
     MeasuredCurve,
     MeasurementFileError,
     apply_mic_calibration,
@@ -248,7 +248,7 @@ def test_c_and_a_weighting_against_iec_61672_table():
         assert float(weighting_db(f, "Z")) == 0.0
     # the standard's pole frequencies f1 = 20.60 Hz, f4 = 12194 Hz, f2 = 107.7, f3 = 737.9
     # and the 1 kHz offsets C1000 = -0.062 dB, A1000 = -2.000 dB (memory)
-    from roommodes.measure.importers import _weighting_poles
+    from roommodes.io.importers import _weighting_poles
 
     f1, f2, f3, f4 = _weighting_poles()
     assert (f1, f2, f3, f4) == pytest.approx((20.60, 107.7, 737.9, 12194), rel=5e-4)

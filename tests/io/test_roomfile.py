@@ -1,7 +1,7 @@
 """Room files: every example loads; every kind of bad input gets one clear message.
 
 No outside check values here apart from the speed of sound (Kinsler et al. 2000,
-reference for roommodes.room.speed_of_sound): these tests hold the room-file reader to
+reference for roommodes.model.room.speed_of_sound): these tests hold the room-file reader to
 the format documented in docs/room-file.md.
 """
 
@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from roommodes import RoomFileError, example_rooms, load_room, room_to_toml
-from roommodes.roomfile import write_text_atomic
+from roommodes.io.roomfile import write_text_atomic
 
 GOOD = """
 [room]

@@ -10,8 +10,8 @@ import wave
 import numpy as np
 import pytest
 
-from roommodes.measure import wavio
-from roommodes.measure.wavio import SUBTYPES, read_wav, write_wav_atomic
+from roommodes.io import wavio
+from roommodes.io.wavio import SUBTYPES, read_wav, write_wav_atomic
 
 FS = 44100
 

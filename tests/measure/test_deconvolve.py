@@ -20,7 +20,7 @@ from roommodes.measure.deconvolve import (
     window_resolution_hz,
 )
 from roommodes.measure.sweep import exponential_sweep
-from roommodes.response import log_frequencies, smooth_fractional_octave
+from roommodes.dsp.response import log_frequencies, smooth_fractional_octave
 
 FS = 8000
 MODES = [  # (frequency Hz, amplitude, T60 s)

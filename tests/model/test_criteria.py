@@ -9,7 +9,7 @@ import math
 import numpy as np
 import pytest
 
-from roommodes import criteria as C
+from roommodes.model import criteria as C
 
 FT = 0.3048  # metres per foot (exact)
 

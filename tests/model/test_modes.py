@@ -8,8 +8,8 @@ import numpy as np
 import pytest
 
 from roommodes import load_room
-from roommodes.modes import mode_indices, mode_shapes, room_modes, wall_weights
-from roommodes.room import Room, Surface, WALLS
+from roommodes.model.modes import mode_indices, mode_shapes, room_modes, wall_weights
+from roommodes.model.room import Room, Surface, WALLS
 
 FT = 0.3048
 

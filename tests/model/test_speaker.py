@@ -6,8 +6,8 @@ Source: the Butterworth magnitude |H|^2 = 1 / (1 + (fc/f)^(2n)) (Butterworth 193
 import numpy as np
 import pytest
 
-from roommodes.room import Speaker
-from roommodes.speaker import highpass_response, speaker_response
+from roommodes.model.room import Speaker
+from roommodes.model.speaker import highpass_response, speaker_response
 
 
 @pytest.mark.parametrize("order", [2, 4])

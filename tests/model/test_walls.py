@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 from scipy.integrate import quad
 
-from roommodes.walls import (ALPHA_MAX, admittance_from_absorption, impedance_from_absorption,
+from roommodes.model.walls import (ALPHA_MAX, admittance_from_absorption, impedance_from_absorption,
                              normal_incidence_absorption, random_incidence_absorption,
                              reflection_factor)
 

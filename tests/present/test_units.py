@@ -10,8 +10,8 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from roommodes import demo_room_path, load_room
-from roommodes._cliutil import walls_text as cli_walls_text
-from roommodes.units import FOOT_M, INCH_M, format_length, parse_length, parse_lengths, walls_text
+from roommodes.cli._util import walls_text as cli_walls_text
+from roommodes.present.units import FOOT_M, INCH_M, format_length, parse_length, parse_lengths, walls_text
 
 
 def test_foot_and_inch_are_the_international_ones():

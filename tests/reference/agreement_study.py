@@ -71,7 +71,7 @@ WIDE_ABSORPTION = {
 
 def frequencies():
     """20-200 Hz at 1/24 octave (81 points), the grid of the prediction bar."""
-    from roommodes.response import log_frequencies
+    from roommodes.dsp.response import log_frequencies
 
     return log_frequencies(20.0, 200.0, 24)
 
@@ -125,7 +125,7 @@ def wide_positions(size_m, rng):
 
 def zeta_of(absorption):
     """Return the wall impedances for random-incidence absorption coefficients."""
-    from roommodes.walls import impedance_from_absorption
+    from roommodes.model.walls import impedance_from_absorption
 
     return impedance_from_absorption(np.asarray(absorption, dtype=float))
 
@@ -199,7 +199,7 @@ def print_table(rows, pooled, n_freq):
 
 def convergence():
     """Print the FEM mesh-convergence table."""
-    from roommodes.walls import impedance_from_absorption
+    from roommodes.model.walls import impedance_from_absorption
 
     freq = frequencies()
     h_ref = 0.04

@@ -9,7 +9,7 @@ The wave-based solution is the finite-element reference of tests/reference/fem_b
 (27-node hexahedra, 20 per wavelength at 200 Hz; itself checked against closed forms in
 tests/test_fem_reference.py; mesh error <= 0.02 dB). Both sides use the same walls: the
 real normalised impedance whose random-incidence absorption is the room's coefficient
-(roommodes.walls.impedance_from_absorption, London 1950).
+(roommodes.model.walls.impedance_from_absorption, London 1950).
 
 Cases (tests/reference/agreement_study.py defines them; ``python
 tests/reference/agreement_study.py`` runs a wider set): rooms 5.0 x 4.0 x 2.6 m and

@@ -24,7 +24,7 @@ from reference.fem_box import (
     fem_transfer,
 )
 
-from roommodes.walls import impedance_from_absorption
+from roommodes.model.walls import impedance_from_absorption
 
 C = 343.0
 INF = np.inf

@@ -17,10 +17,10 @@ import numpy as np
 import pytest
 from scipy.integrate import quad
 
-from roommodes.response import log_frequencies
+from roommodes.dsp.response import log_frequencies
 from roommodes.solvers import images as im
 from roommodes.solvers._kernels import spread_shells
-from roommodes.walls import (
+from roommodes.model.walls import (
     impedance_from_absorption,
     random_incidence_absorption,
     reflection_factor,

@@ -1,0 +1,1 @@
+"""Signal helpers on frequency grids: log grids, fractional-octave smoothing, curves."""
