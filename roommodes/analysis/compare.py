@@ -30,6 +30,7 @@ import numpy as np
 from scipy.signal import find_peaks, peak_widths
 
 from ..dsp.response import Response, align_level, log_frequencies, smooth_fractional_octave
+from .levels import speaker_levels
 
 __all__ = [
     "DEFAULT_BAND_HZ",
@@ -314,16 +315,10 @@ def predicted_level(room, channel, positions_m, freq_hz, method="modal", include
     level_db : ndarray (F,)
         ``10 log10(mean_m |H_m|^2)``, dB re the free-field level at 1 m.
     """
-    from ..solvers import transfer_function
-    from ..model.speaker import speaker_response
-
     sp = speaker_by_name(room, channel)
     pos = np.atleast_2d(np.asarray(room.layout.seat_m if positions_m is None else positions_m, dtype=float))
-    f = np.asarray(freq_hz, dtype=float)
-    h = transfer_function(room, [sp.position_m], pos, f, method=method, **options)[0]
-    if include_speaker:
-        h = h * speaker_response(sp, f)[None, :]
-    return 10.0 * np.log10(np.maximum(np.mean(np.abs(h) ** 2, axis=0), 1e-30))
+    return speaker_levels(room, [sp], pos, freq_hz, method=method, include_speaker=include_speaker,
+                          **options).power_mean_db()[0]
 
 
 # ----------------------------------------------------------------------------- statistics

@@ -14,6 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import eq
+from .levels import speaker_levels
 from .predict import predict
 from ..dsp.response import log_frequencies, smooth_fractional_octave
 from ..model.room import Layout
@@ -175,17 +176,13 @@ def correct_prediction(room, layout=None, freq_hz=None, method="modal", area_m=N
     out = []
     if area_m is not None:
         from .search import area_offsets
-        from ..model.speaker import speaker_response
-        from ..solvers import transfer_function
 
         pts = np.asarray(layout.seat_m) + area_offsets(area_m, area_points)
         if not np.all(room.contains(pts, 0.02)):
             raise ValueError(f"the listening area {area_m[0]:g} x {area_m[1]:g} m around the seat reaches "
                              "outside the room; choose a smaller area")
-        h = transfer_function(room, layout.source_positions_m, pts, f, method=method)
-        for sp, hs in zip(layout.speakers, h):
-            levels = 20 * np.log10(np.maximum(np.abs(hs * speaker_response(sp, f)), 1e-15))
-            mean = 10 * np.log10(np.mean(10 ** (levels / 10), axis=0))
+        lv = speaker_levels(room, layout.speakers, pts, f, method=method)
+        for sp, levels, mean in zip(layout.speakers, lv.level_db, lv.power_mean_db()):
             out.append(correct_curve(sp.name, f, mean, neighbour_levels_db=levels, lowcut_hz=sp.lowcut_hz,
                                      lowcut_order=sp.lowcut_order if sp.lowcut_hz else None, speaker=sp,
                                      **options))

@@ -35,15 +35,15 @@ H. Kuttruff, Room Acoustics, 5th ed., 2009, sec. 3.4-3.5 (modal sum).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from ..model.modes import KINDS, mode_shapes
+from .levels import speaker_levels
 from .predict import boundary_notches, room_schroeder_frequency
 from ..dsp.response import level_db, log_frequencies, smooth_fractional_octave
 from ..model.room import WALL_AXIS, WALL_FAR, WALLS
-from ..solvers import transfer_function
 from ..solvers.modal import modal_weights, static_tail_term
 from ..model.speaker import speaker_response
 
@@ -126,6 +126,8 @@ class Explanation:
     regions : tuple of Region
     mono_cancelled : tuple of dict
         Modes the two speakers drive in opposite phase (cancelling in the mono sum).
+    method : str
+        The solver of the curves.
     """
 
     freq_hz: np.ndarray
@@ -145,6 +147,7 @@ class Explanation:
     band_mismatch_db: float
     regions: tuple
     mono_cancelled: tuple
+    method: str = "modal"
 
 
 def modal_decomposition(room, sources_m, receiver_m, freq_hz):
@@ -297,7 +300,7 @@ def _mode_causes(f, h, weight, resp, psi, idx, mode_freq, rows, fraction, mean_a
 
 
 def explain(room, layout=None, channels=None, freq_hz=None, threshold_db=DEFAULT_THRESHOLD_DB, band_hz=None,
-            smoothing=6, move_steps_m=MOVE_STEPS_M, keep_out=()):
+            smoothing=6, move_steps_m=MOVE_STEPS_M, keep_out=(), method="modal"):
     """Explain why two channels differ at the seat.
 
     Parameters
@@ -320,6 +323,10 @@ def explain(room, layout=None, channels=None, freq_hz=None, threshold_db=DEFAULT
         Move lengths tried for each speaker along each axis, both ways.
     keep_out : sequence of KeepOut
         Boxes a moved speaker may not enter (the ``[search]`` keep-out boxes).
+    method : str
+        The solver of the curves, the difference and the suggested moves
+        (:data:`roommodes.solvers.METHODS`). The causes are always read from the modal
+        decomposition: each mode's term of the modal sum.
 
     Returns
     -------
@@ -362,10 +369,9 @@ def explain(room, layout=None, channels=None, freq_hz=None, threshold_db=DEFAULT
     seat = np.asarray(layout.seat_m, dtype=float)
     pos = np.array([s.position_m for s in chosen], dtype=float)
     resp = np.stack([speaker_response(s, f) for s in chosen])
-    idx, weight, sw = modal_weights(room.size_m, room.impedance(f), f, room.speed_of_sound)
+    idx, weight, _ = modal_weights(room.size_m, room.impedance(f), f, room.speed_of_sound)
     psi = np.vstack([mode_shapes(idx, room.size_m, pos), mode_shapes(idx, room.size_m, [seat])])  # (3, N)
-    rest = static_tail_term(room.size_m, pos, [seat], idx, sw)[:, 0]
-    h = ((psi[:2] * psi[2]) @ weight + rest[:, None]) * resp
+    h = speaker_levels(room, chosen, [seat], f, method=method).transfer[:, 0, :]
     level = level_db(h)
     smooth = np.stack([_smooth_db(f, h[c], smoothing) for c in range(2)])
     diff_s = smooth[0] - smooth[1]
@@ -373,7 +379,7 @@ def explain(room, layout=None, channels=None, freq_hz=None, threshold_db=DEFAULT
     mode_freq = 0.5 * room.speed_of_sound * np.sqrt(np.sum((idx / np.asarray(room.size_m)) ** 2, axis=1))
     fs = room_schroeder_frequency(room)
     band_rms = float(np.sqrt(np.mean(diff_s[sel] ** 2)))
-    moves = _candidate_moves(room, chosen, pos, seat, f, h, smoothing, move_steps_m, keep_out)
+    moves = _candidate_moves(room, chosen, pos, seat, f, h, smoothing, move_steps_m, keep_out, method)
     names2 = (chosen[0].name, chosen[1].name)
     regions = []
     for i0, i1 in _regions(f, diff_s, sel, threshold_db):
@@ -398,10 +404,10 @@ def explain(room, layout=None, channels=None, freq_hz=None, threshold_db=DEFAULT
                               "psi_speakers": [float(psi[0, n]), float(psi[1, n])], "psi_seat": float(psi[2, n])})
     return Explanation(f, names2, (tuple(pos[0]), tuple(pos[1])), tuple(seat), level, smooth, level[0] - level[1],
                        diff_s, level_db(mono), _smooth_db(f, mono, smoothing), band, float(threshold_db),
-                       int(smoothing), float(fs), band_rms, tuple(regions), tuple(cancelled))
+                       int(smoothing), float(fs), band_rms, tuple(regions), tuple(cancelled), method)
 
 
-def _candidate_moves(room, speakers, pos, seat, f, h, smoothing, steps, keep_out):
+def _candidate_moves(room, speakers, pos, seat, f, h, smoothing, steps, keep_out, method):
     """Every single-speaker move along one axis, with its smoothed difference curve."""
     size = np.asarray(room.size_m, dtype=float)
     cands = []
@@ -420,11 +426,10 @@ def _candidate_moves(room, speakers, pos, seat, f, h, smoothing, steps, keep_out
                     cands.append((c, axis, sgn * step, p))
     if not cands:
         return []
-    new_pos = np.array([p for *_, p in cands])
-    hn = transfer_function(room, new_pos, [seat], f)[:, 0, :]
+    moved = [replace(speakers[c], position_m=tuple(float(v) for v in p)) for c, *_, p in cands]
+    hn = speaker_levels(room, moved, [seat], f, method=method).transfer[:, 0, :]
     out = []
     for (c, axis, delta, p), hc in zip(cands, hn):
-        hc = hc * speaker_response(speakers[c], f)
         pair = [hc, h[1]] if c == 0 else [h[0], hc]
         d = _smooth_db(f, pair[0], smoothing) - _smooth_db(f, pair[1], smoothing)
         out.append((speakers[c].name, axis, delta, tuple(float(v) for v in p), d))

@@ -28,7 +28,8 @@ from scipy.optimize import least_squares
 
 from ..dsp.response import log_frequencies, smooth_fractional_octave
 from ..model.room import WALLS, Surface
-from ..io.roomfile import WALL_MARGIN_M
+from ..model.room import WALL_MARGIN_M
+from .levels import speaker_levels
 
 __all__ = ["ABSORPTION_GROUPS", "FitParameter", "FitResult", "FitTarget", "fit_error", "fit_room"]
 
@@ -201,7 +202,7 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
              absorption="axes", size_tolerance=0.05, position_tolerance_m=0.05, fit_speaker_positions=True,
              fit_mic_positions=True, fit_lowcut=True, lowcut_tolerance=0.3, absolute=False,
              regularization_db=0.5, robust_scale_db=3.0, cutoff_factor=2.0, max_iterations=40,
-             progress=None):
+             method="modal", progress=None):
     """Adjust absorption, dimensions, positions and roll-off so the model fits measurements.
 
     Parameters
@@ -242,6 +243,9 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
         solver's static tail accounts for the rest).
     max_iterations : int
         Jacobian evaluations (iterations) at most, 1..500.
+    method : str
+        The solver of the model (:data:`roommodes.solvers.METHODS`); ``cutoff_factor``
+        applies to the modal one.
     progress : callable, optional
         ``progress(iteration, max_iterations, cost)`` after each iteration.
 
@@ -274,9 +278,6 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
     Surfaces on opposite sides of the room enter the modal model's damping only through
     their sum, so with ``absorption="each"`` the split between them follows the file.
     """
-    from ..solvers import transfer_function
-    from ..model.speaker import speaker_response
-
     targets = list(targets)
     if not targets:
         raise ValueError("fit_room needs at least one measured curve")
@@ -380,12 +381,12 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
         r = replace(room, size_m=tuple(float(v) for v in size), surfaces=surfaces)
         return r, spk, sps, mic
 
+    solver_options = {"cutoff_hz": cut * hi} if method == "modal" else {}
+
     def predict_all(u):
-        r, spk, sps, mic = build(u)
-        h = transfer_function(r, spk, mic, f, cutoff_hz=cut * hi)
-        resp = [speaker_response(s, f) for s in sps]
-        return np.array([_smooth(f, 20 * np.log10(np.maximum(np.abs(h[s, m] * resp[s]), 1e-15)), smoothing)
-                         for s, m in pairs])
+        r, _, sps, mic = build(u)
+        lv = speaker_levels(r, sps, mic, f, method=method, **solver_options).level_db
+        return np.array([_smooth(f, lv[s, m], smoothing) for s, m in pairs])
 
     def differences(u):
         pred = predict_all(u)

@@ -13,12 +13,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .levels import speaker_levels
+
 from ..model.criteria import sabine_rt60, schroeder_frequency
 from ..model.modes import mode_shapes, room_modes
 from ..dsp.response import level_db, log_frequencies, smooth_fractional_octave
 from ..model.room import WALL_AXIS, WALL_FAR, WALLS
-from ..solvers import transfer_function
-from ..model.speaker import speaker_response
 
 __all__ = ["Channel", "Prediction", "predict", "room_schroeder_frequency", "response_features",
            "boundary_notches", "Feature", "usable_band", "band_figures"]
@@ -99,7 +99,8 @@ def predict(room, layout=None, freq_hz=None, method="modal", include_speaker=Tru
         Default: the room file's own layout.
     freq_hz : array_like, optional
         Default: 15-300 Hz, 48 points per octave.
-    method : {"modal", "image"}
+    method : str
+        The solver (:data:`roommodes.solvers.METHODS`).
     include_speaker : bool
         Apply each speaker's own low-frequency response.
 
@@ -112,12 +113,9 @@ def predict(room, layout=None, freq_hz=None, method="modal", include_speaker=Tru
         raise ValueError(f"{room.source or room.name}: the room file has no [speakers] and [seat]; "
                          "add them or choose a layout (corner, wall, mid-room, desk)")
     f = log_frequencies(*DEFAULT_RANGE_HZ, DEFAULT_POINTS_PER_OCTAVE) if freq_hz is None else np.asarray(freq_hz, float)
-    h = transfer_function(room, layout.source_positions_m, [layout.seat_m], f, method=method, **options)[:, 0, :]
-    channels = []
-    for sp, hs in zip(layout.speakers, h):
-        if include_speaker:
-            hs = hs * speaker_response(sp, f)
-        channels.append(Channel(sp.name, tuple(sp.position_m), hs, level_db(hs)))
+    h = speaker_levels(room, layout.speakers, [layout.seat_m], f, method=method, include_speaker=include_speaker,
+                       **options).transfer[:, 0, :]
+    channels = [Channel(sp.name, tuple(sp.position_m), hs, level_db(hs)) for sp, hs in zip(layout.speakers, h)]
     fs = room_schroeder_frequency(room)
     return Prediction(f, tuple(channels), tuple(layout.seat_m), layout.name, method, fs, f <= fs)
 

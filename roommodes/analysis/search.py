@@ -48,7 +48,7 @@ from .predict import usable_band
 from ..model.placement import PRESETS, SEAT_HEIGHT_M, preset_layout
 from ..dsp.response import log_frequencies, smooth_fractional_octave
 from ..model.room import Layout, Speaker
-from ..io.roomfile import WALL_MARGIN_M
+from ..model.room import WALL_MARGIN_M
 from ..solvers.modal import modal_sum_block, modal_weights, static_green_block, static_green_pairs
 from ..model.speaker import speaker_response
 

@@ -6,6 +6,8 @@ import json
 from pathlib import Path
 
 import click
+
+from ..solvers import DEFAULT_METHOD, METHODS
 import numpy as np
 
 from ..io.roomfile import RoomFileError, load_room
@@ -102,8 +104,8 @@ ppo_option = click.option(
     "--points-per-octave", type=click.IntRange(1, 384), default=48, show_default=True,
     help="Frequency-grid density.")
 method_option = click.option(
-    "--method", type=click.Choice(["modal", "image"]), default="modal", show_default=True,
-    help="Solver: modal sum (fast, default) or image sources.")
+    "--method", type=click.Choice(list(METHODS)), default=DEFAULT_METHOD, show_default=True,
+    help="Solver of the predicted levels (docs/methods.md): " + "; ".join(f"{k}: {v}" for k, v in METHODS.items()) + ".")
 json_option = click.option("--json", "as_json", is_flag=True, help="Print one JSON object on stdout.")
 
 

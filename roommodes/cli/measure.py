@@ -23,7 +23,7 @@ import numpy as np
 
 from .. import __version__
 from ._util import (CONTEXT, MODEL_CAUTION, UserError, check_output, dump_json, echo_err, fail, json_option,
-                       load_or_fail, protect_inputs)
+                       load_or_fail, method_option, protect_inputs)
 
 __all__ = ["CAUTIONS", "COMMANDS", "GUIDANCE", "bands", "compare", "decay", "fit", "ir", "noise", "sweep"]
 
@@ -616,8 +616,7 @@ def _print_features(matches, names):
 @click.option("--align-band", metavar="LOW,HIGH", help="Align the levels over this band instead, Hz.")
 @click.option("--absolute", is_flag=True, help="Do not align the levels (a calibrated chain).")
 @_smoothing_option
-@click.option("--method", type=click.Choice(["modal", "image"]), default="modal", show_default=True,
-              help="Solver of the prediction.")
+@method_option
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write the overlay and residual (PNG/SVG).")
 @click.option("--force", is_flag=True, help="Overwrite an existing figure.")
 @json_option
@@ -790,9 +789,10 @@ def _measurement_specs(room, files, channel, at, measure):
               help="Pull toward the file's values, dB per tolerance step.")
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write measured, before and after (PNG/SVG).")
 @click.option("--force", is_flag=True, help="Overwrite existing output files.")
+@method_option
 @json_option
 @_guard
-def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band, smoothing, points_per_octave,
+def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band, smoothing, points_per_octave, method,
         absorption, size_tolerance, position_tolerance, no_lowcut, absolute, regularization, plot_path, force,
         as_json):
     """Calibrate the room file to measurements and write the calibrated room file.
@@ -849,7 +849,7 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
         res = fit_room(room, targets, band_hz=(lo, hi), points_per_octave=points_per_octave, smoothing=smoothing,
                        absorption=absorption, size_tolerance=size_tolerance,
                        position_tolerance_m=position_tolerance, fit_lowcut=not no_lowcut, absolute=absolute,
-                       regularization_db=regularization, progress=progress)
+                       regularization_db=regularization, method=method, progress=progress)
         if "bar" in bar:
             bar["bar"].update(bar["bar"].length - bar["done"])
     elapsed = time.perf_counter() - t0

@@ -26,6 +26,7 @@ from ._util import (
     fail,
     json_option,
     load_or_fail,
+    method_option,
     parse_range,
     protect_inputs,
     units_option,
@@ -230,10 +231,11 @@ def _place_plot(room, space, res, path):
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path),
               help="Write the figure: both channels and the mono sum, the difference with its regions.")
 @click.option("--force", is_flag=True, help="Overwrite an existing plot file.")
+@method_option
 @json_option
 @units_option
 def explain(room_file, channels, threshold, band, freq_range, points_per_octave, smoothing, plot_path, force,
-            as_json):
+            method, as_json):
     """Explain why the two channels differ at the seat, and what to move.
 
     Shows each channel's level at the seat, their difference (first minus second) and the
@@ -264,13 +266,14 @@ def explain(room_file, channels, threshold, band, freq_range, points_per_octave,
     try:
         keep = search_space(room).keep_out
         e = run_explain(room, channels=names, freq_hz=log_frequencies(lo, hi, points_per_octave),
-                        threshold_db=threshold, band_hz=band_hz, smoothing=smoothing, keep_out=keep)
+                        threshold_db=threshold, band_hz=band_hz, smoothing=smoothing, keep_out=keep,
+                        method=method)
     except ValueError as exc:
         fail(str(exc))
     n1, n2 = e.names
     if as_json:
         dump_json({
-            "roommodes_version": __version__, "room": room.name, "channels": list(e.names),
+            "roommodes_version": __version__, "room": room.name, "method": e.method, "channels": list(e.names),
             "positions_m": list(e.positions_m), "seat_m": e.seat_m, "frequencies_hz": e.freq_hz,
             "level_db": {n1: e.level_db[0], n2: e.level_db[1]},
             "smoothed_db": {n1: e.smoothed_db[0], n2: e.smoothed_db[1]}, "smoothing_octave_fraction": e.smoothing,

@@ -292,7 +292,7 @@ def map_(room_file, freq_hz, height, channels, layout, step, units, method, plot
     character map (front wall at the top, left wall on the left; ' ' quietest to '@'
     loudest); --plot draws it with the speakers, the seat and the nearest mode's nodal lines.
     """
-    from ..present.report import floor_level_map
+    from ..analysis.maps import floor_level_map
 
     room = load_or_fail(room_file)
     (lay,) = layouts_for(room, layout)
@@ -557,7 +557,7 @@ class _Answer:
 
 
 def _dimension(text, label):
-    from ..io.roomfile import MAX_DIMENSION_M, MIN_DIMENSION_M
+    from ..model.room import MAX_DIMENSION_M, MIN_DIMENSION_M
 
     v = _rounded(parse_length(text))
     if not MIN_DIMENSION_M <= v <= MAX_DIMENSION_M:
@@ -574,7 +574,7 @@ def _coordinate(text, length_m, near, far, what):
 
     E.g. "60 cm", "60 cm from right", "1.2 m from the back wall".
     """
-    from ..io.roomfile import WALL_MARGIN_M
+    from ..model.room import WALL_MARGIN_M
 
     low = str(text).strip().lower()
     from_far = re.search(rf"\b{far}\b", low) is not None
@@ -590,7 +590,7 @@ def _coordinate(text, length_m, near, far, what):
 
 
 def _point(text, size_m, what):
-    from ..io.roomfile import WALL_MARGIN_M
+    from ..model.room import WALL_MARGIN_M
 
     try:
         p = tuple(_rounded(v) for v in parse_lengths(text, 3))

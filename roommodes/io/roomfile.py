@@ -18,15 +18,11 @@ from pathlib import Path
 
 import numpy as np
 
-from ..model.room import WALLS, Layout, Room, Speaker, Surface
+from ..model.room import MAX_DIMENSION_M, MIN_DIMENSION_M, WALL_MARGIN_M, WALLS, Layout, Room, Speaker, Surface
 
 __all__ = ["RoomFileError", "load_room", "parse_room", "room_to_toml", "demo_room_path",
            "example_rooms", "write_text_atomic"]
 
-MAX_DIMENSION_M = 100.0
-MIN_DIMENSION_M = 0.5
-#: Speakers and the seat must be at least this far from every surface (m).
-WALL_MARGIN_M = 0.02
 
 _TOP_KEYS = {"room", "surfaces", "speakers", "seat", "search", "format"}
 _ROOM_KEYS = {"name", "size_m", "temperature_c"}

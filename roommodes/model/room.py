@@ -45,6 +45,13 @@ WALL_AXIS = (0, 0, 1, 1, 2, 2)
 WALL_FAR = (False, True, False, True, False, True)
 
 
+#: Plausible room dimensions, m (what a room file may give).
+MAX_DIMENSION_M = 100.0
+MIN_DIMENSION_M = 0.5
+#: Speakers and the seat must be at least this far from every surface, m.
+WALL_MARGIN_M = 0.02
+
+
 def speed_of_sound(temperature_c=20.0):
     """Speed of sound in dry air, m/s.
 

@@ -214,7 +214,7 @@ def plot_mode_coupling(coupling, schroeder_hz=None, title=None, path=None, max_l
 
     Parameters
     ----------
-    coupling : roommodes.report.ModeCoupling
+    coupling : roommodes.analysis.maps.ModeCoupling
     schroeder_hz : float, optional
         Frequencies above it are shaded (default the one stored in ``coupling``).
     title, path : optional
@@ -299,7 +299,7 @@ def plot_floor_map(floor_map, room, layout=None, units="cm", title=None, path=No
 
     Parameters
     ----------
-    floor_map : roommodes.report.FloorMap
+    floor_map : roommodes.analysis.maps.FloorMap
     room : Room
     layout : Layout, optional
         For the seat and speaker markers; default the room file's own.

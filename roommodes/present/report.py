@@ -11,14 +11,7 @@ The page has no external references: figures are embedded as ``data:`` URIs, sty
 inline, fonts are the reader's system fonts. A print style sheet breaks pages before each
 section and never inside a figure or a table row, so the page prints on A4 or Letter.
 
-Two computations live here because the report and the ``map`` command share them:
-
-* :func:`mode_coupling`: for every room mode, the mode shape at each speaker and at the
-  seat, and the coupling ``|psi(speaker) psi(seat)|``: the factor by which the mode's
-  resonance term enters that speaker's transfer to the seat in the modal sum
-  ``H = sum_n psi_n(r_speaker) psi_n(r_seat) W_n(f)`` (Kuttruff, Room Acoustics, 5th ed.,
-  2009, sec. 3.4);
-* :func:`floor_level_map`: the predicted level over a horizontal plane at one frequency.
+The mode coupling and the floor map it shows are computed in :mod:`roommodes.analysis.maps`.
 """
 
 from __future__ import annotations
@@ -34,25 +27,19 @@ from dataclasses import dataclass
 import numpy as np
 
 from .. import __version__
-from ..model.modes import mode_shapes, room_modes
-from ..analysis.predict import DEFAULT_RANGE_HZ, room_schroeder_frequency
+from ..model.modes import room_modes
+from ..analysis.maps import floor_level_map, mode_coupling
 from .units import UNITS, format_length, wall_distances, walls_text
 
 __all__ = [
-    "MATTERS_COUPLING", "SEARCH_MODES", "EMBED_FORMATS", "MODEL_ASSUMPTIONS", "SAFETY_NOTES",
-    "ModeCoupling", "FloorMap", "MeasuredCurve", "Table", "ReportFigure", "Report",
-    "mode_coupling", "floor_level_map", "build_report",
+    "SEARCH_MODES", "EMBED_FORMATS", "MODEL_ASSUMPTIONS", "SAFETY_NOTES",
+    "MeasuredCurve", "Table", "ReportFigure", "Report", "build_report",
 ]
 
-#: A mode "matters" at the seat when a speaker's coupling ``|psi_s psi_seat|`` reaches this
-#: (our choice: a quarter of the coupling between two corners, -12 dB).
-MATTERS_COUPLING = 0.25
 #: Placement search done by the report: as ``place`` does, without the refinement, or none.
 SEARCH_MODES = ("full", "quick", "off")
 #: How figures are embedded in the page.
 EMBED_FORMATS = ("svg", "png")
-#: Near a node: |psi| below this (the threshold :func:`roommodes.predict.response_features` uses).
-_NODE_PSI = 0.3
 
 #: What the model assumes (the validity section).
 MODEL_ASSUMPTIONS = (
@@ -80,274 +67,6 @@ SAFETY_NOTES = (
     "Speakers on stands, shelves or walls must be secured as their makers and local building codes "
     "require; this report says where sound is best, not what a wall or shelf can carry.",
 )
-
-
-# ======================================================================================
-# Modes at the seat
-# ======================================================================================
-@dataclass(frozen=True)
-class ModeCoupling:
-    """Every mode up to ``fmax_hz`` with its shape at the speakers and the seat.
-
-    Attributes
-    ----------
-    indices : ndarray of int (N, 3)
-    freq_hz, t60_s, bandwidth_hz : ndarray (N,)
-    kind : ndarray of str (N,)
-    names : tuple of str
-        Speaker names.
-    psi_speakers : ndarray (S, N)
-        Mode shape at each speaker, -1..1.
-    psi_seat : ndarray (N,)
-    coupling : ndarray (S, N)
-        ``|psi_speaker psi_seat|``, 0..1.
-    matters : ndarray of bool (N,)
-        Some speaker's coupling reaches ``threshold``.
-    threshold, fmax_hz, schroeder_hz : float
-    """
-
-    indices: np.ndarray
-    freq_hz: np.ndarray
-    kind: np.ndarray
-    t60_s: np.ndarray
-    bandwidth_hz: np.ndarray
-    names: tuple
-    psi_speakers: np.ndarray
-    psi_seat: np.ndarray
-    coupling: np.ndarray
-    matters: np.ndarray
-    threshold: float
-    fmax_hz: float
-    schroeder_hz: float
-
-    def note(self, i):
-        """Short words on mode ``i``: seat or speakers near a node, speakers in opposite phase."""
-        out = []
-        if abs(self.psi_seat[i]) < _NODE_PSI:
-            out.append("seat near a node")
-        ps = self.psi_speakers[:, i]
-        if ps.size and np.max(np.abs(ps)) < _NODE_PSI:
-            out.append("speakers near a node")
-        if ps.size >= 2 and ps[0] * ps[1] < 0 and min(abs(ps[0]), abs(ps[1])) >= _NODE_PSI:
-            out.append(f"{self.names[0]} and {self.names[1]} in opposite phase (weakened in the mono sum)")
-        return "; ".join(out)
-
-
-def mode_coupling(room, layout=None, fmax_hz=None, threshold=MATTERS_COUPLING):
-    """List the room's modes with their shape at each speaker and at the seat.
-
-    Parameters
-    ----------
-    room : Room
-    layout : Layout, optional
-        Default the room file's own.
-    fmax_hz : float, optional
-        Highest mode, Hz, 1..1000; default the lower of the Schroeder frequency and 200 Hz
-        (above it single modes no longer describe the response).
-    threshold : float
-        Coupling from which a mode "matters", 0..1 (default :data:`MATTERS_COUPLING`).
-
-    Returns
-    -------
-    ModeCoupling
-
-    Notes
-    -----
-    ``psi_n(r) = cos(nx pi x / Lx) cos(ny pi y / Ly) cos(nz pi z / Lz)`` (Rayleigh; Kuttruff
-    2009, sec. 3.3). In the modal sum the mode's term in the transfer from a speaker at
-    ``r_s`` to the seat at ``r_r`` carries the factor ``psi_n(r_s) psi_n(r_r)``; its magnitude
-    is the coupling shown. A speaker in a corner has ``|psi| = 1`` for every mode.
-    """
-    layout = room.layout if layout is None else layout
-    if layout is None:
-        raise ValueError(f"{room.source or room.name}: no speakers and seat to couple the modes to")
-    fs = room_schroeder_frequency(room)
-    fmax = min(200.0, fs) if fmax_hz is None else float(fmax_hz)
-    if not (math.isfinite(fmax) and 1.0 <= fmax <= 1000.0):
-        raise ValueError(f"fmax_hz must be 1 to 1000 Hz, got {fmax_hz!r}")
-    thr = float(threshold)
-    if not 0.0 <= thr <= 1.0:
-        raise ValueError(f"threshold must be 0 to 1, got {threshold!r}")
-    ms = room_modes(room, fmax)
-    psi_s = mode_shapes(ms.indices, room.size_m, layout.source_positions_m)  # (S, N)
-    psi_r = mode_shapes(ms.indices, room.size_m, [layout.seat_m])[0]
-    coupling = np.abs(psi_s * psi_r[None, :])
-    matters = np.any(coupling >= thr, axis=0) if coupling.size else np.zeros(len(ms), bool)
-    return ModeCoupling(ms.indices, ms.freq_hz, ms.kind, ms.t60_s, ms.bandwidth_hz,
-                        tuple(s.name for s in layout.speakers), psi_s, psi_r, coupling, matters, thr, fmax, fs)
-
-
-# ======================================================================================
-# Level over the floor
-# ======================================================================================
-@dataclass(frozen=True)
-class FloorMap:
-    """Predicted level over a horizontal plane at one frequency.
-
-    Attributes
-    ----------
-    freq_hz, height_m : float
-    x_m : ndarray (X,)
-        Distances from the front wall of the grid's cell centres, m.
-    y_m : ndarray (Y,)
-        Distances from the left wall, m.
-    level_db : ndarray (X, Y)
-        dB re the free-field level of one speaker at 1 m (the speakers summed in phase).
-    channels : tuple of str
-    sources_m : ndarray (S, 3)
-    seat_m : tuple or None
-    seat_level_db : float or None
-        The same quantity at the seat, with the modes :func:`roommodes.predict` keeps on its
-        default grid, so that it equals the predicted curve at ``freq_hz`` (the grid's cells
-        use the solver's cutoff for ``freq_hz`` alone; the two differ by hundredths of a dB).
-    near_modes : tuple of dict
-        Modes within their half-power bandwidth (or 3 %) of the frequency, nearest first:
-        ``indices``, ``freq_hz``, ``kind``, ``bandwidth_hz``.
-    method : str
-    """
-
-    freq_hz: float
-    height_m: float
-    x_m: np.ndarray
-    y_m: np.ndarray
-    level_db: np.ndarray
-    channels: tuple
-    sources_m: np.ndarray
-    seat_m: tuple | None
-    seat_level_db: float | None
-    near_modes: tuple
-    method: str
-
-    def extreme(self, which="max"):
-        """(x_m, y_m, level_db) of the loudest (``"max"``) or quietest (``"min"``) cell."""
-        i = np.nanargmax(self.level_db) if which == "max" else np.nanargmin(self.level_db)
-        ix, iy = np.unravel_index(i, self.level_db.shape)
-        return float(self.x_m[ix]), float(self.y_m[iy]), float(self.level_db[ix, iy])
-
-
-#: Map cells closer than this to a speaker are left out, m.
-_MAP_CLEARANCE_M = 0.08
-
-
-def _separated_groups(source_m, points_m, mask, gap_m=0.05):
-    """Split ``points_m[mask]`` into groups the solver sums at once.
-
-    Each group lies on one side of the source along one axis, further from it along that
-    axis than every point is along the others.
-    The modal solver sums its static tail for a whole group at once along the axis of the
-    group's largest separation from the source; mixing sides makes it go pair by pair, and a
-    small separation along the chosen axis makes every term count. For a plane of points
-    ``dz`` above or below the source, the groups beside the source (along x or y) are kept
-    further than ``dz`` from it, so the solver sums along x or y, where most points are
-    far; the few points over or under the source form the last groups. The values do not
-    depend on the grouping.
-    """
-    idx = np.flatnonzero(mask)
-    if idx.size == 0:
-        return []
-    d = points_m[idx] - np.asarray(source_m)[None, :]
-    least = np.abs(d).min(axis=0)  # the smallest separation along each axis
-    left = np.ones(idx.size, bool)
-    groups = []
-    for axis in range(3):
-        others = max(least[b] for b in range(3) if b != axis)
-        threshold = max(gap_m, 1.05 * others + 0.005)
-        for sign in (1.0, -1.0):
-            g = left & (sign * d[:, axis] >= threshold)
-            if g.any():
-                groups.append(idx[g])
-                left &= ~g
-    if left.any():
-        groups.append(idx[left])
-    return groups
-
-
-def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=0.05, channels=None, method="modal",
-                    include_speaker=True):
-    """Predicted level over the floor plan at ear height at one frequency.
-
-    Parameters
-    ----------
-    room : Room
-    freq_hz : float
-        Hz, 5..1000.
-    layout : Layout, optional
-        Speakers and seat; default the room file's own.
-    height_m : float, optional
-        Height of the plane, m, inside the room; default the seat's (ear) height.
-    step_m : float
-        Grid step, m, 0.01..0.5 (cells of equal size filling the plan).
-    channels : sequence of str, optional
-        Speakers that play (summed in phase); default all.
-    method : {"modal", "image"}
-    include_speaker : bool
-        Apply each speaker's own low-frequency response.
-
-    Returns
-    -------
-    FloorMap
-
-    Notes
-    -----
-    At a mode's frequency in a lightly damped room that mode dominates away from the
-    speakers, so the map shows ``|cos(nx pi x / Lx) cos(ny pi y / Ly)|`` (Rayleigh; Kuttruff
-    2009, sec. 3.3): loud along the walls its pressure maxima lie on, quiet on its nodal lines.
-    """
-    from ..solvers import transfer_function
-    from ..model.speaker import speaker_response
-
-    layout = room.layout if layout is None else layout
-    if layout is None:
-        raise ValueError(f"{room.source or room.name}: the room file has no [speakers] and [seat]; "
-                         "a map needs at least one speaker")
-    f = float(freq_hz)
-    if not (math.isfinite(f) and 5.0 <= f <= 1000.0):
-        raise ValueError(f"frequency must be 5 to 1000 Hz, got {freq_hz!r}")
-    lx, ly, lz = room.size_m
-    h_m = float(layout.seat_m[2] if height_m is None else height_m)
-    if not (math.isfinite(h_m) and 0.0 < h_m < lz):
-        raise ValueError(f"height must lie inside the room (0 < z < {lz:g} m), got {height_m!r} m")
-    step = float(step_m)
-    if not (math.isfinite(step) and 0.01 <= step <= 0.5):
-        raise ValueError(f"step must be 0.01 to 0.5 m, got {step_m!r}")
-    names = [s.name for s in layout.speakers]
-    chosen = names if channels is None else list(channels)
-    for c in chosen:
-        if c not in names:
-            raise ValueError(f"no speaker named '{c}'; the layout has {', '.join(names)}")
-    if not chosen:
-        raise ValueError("choose at least one speaker")
-    speakers = [layout.speakers[names.index(c)] for c in chosen]
-    nx, ny = max(2, math.ceil(lx / step)), max(2, math.ceil(ly / step))
-    x = (np.arange(nx) + 0.5) * lx / nx
-    y = (np.arange(ny) + 0.5) * ly / ny
-    xx, yy = np.meshgrid(x, y, indexing="ij")
-    pts = np.stack([xx.ravel(), yy.ravel(), np.full(xx.size, h_m)], axis=1)
-    src = np.array([s.position_m for s in speakers], dtype=float)
-    seat = tuple(layout.seat_m)
-    # cells within _MAP_CLEARANCE_M of a speaker are left out (NaN): the marker covers them
-    # and the level there is the source's own 1/r near field
-    near_src = np.min(np.linalg.norm(pts[:, None, :] - src[None, :, :], axis=-1), axis=1) < _MAP_CLEARANCE_M
-    gain = np.array([speaker_response(s, [f])[0] for s in speakers]) if include_speaker else np.ones(len(speakers))
-    h = np.full((src.shape[0], pts.shape[0]), np.nan + 0j)
-    for i in range(src.shape[0]):
-        for group in _separated_groups(src[i], pts, ~near_src):
-            # [f, f]: the solver's own mode cutoff for this frequency (and its block form
-            # cannot take a single frequency yet; reported)
-            h[i, group] = transfer_function(room, src[i:i + 1], pts[group], [f, f], method=method)[0, :, 0]
-    total = np.abs((h * gain[:, None]).sum(axis=0))
-    with np.errstate(invalid="ignore"):
-        level = np.where(np.isfinite(total), 20.0 * np.log10(np.maximum(total, 1e-12)), np.nan)
-    # the seat on a grid reaching the prediction's top frequency: the modal solver then keeps
-    # the same modes as `predict`, so this value equals the predicted curve's at f
-    hs = transfer_function(room, src, [seat], [f, max(f, DEFAULT_RANGE_HZ[1])], method=method)[:, 0, 0]
-    seat_level = float(20.0 * np.log10(max(abs(np.sum(hs * gain)), 1e-12)))
-    ms = room_modes(room, f * 1.3 + 10.0)
-    near = np.flatnonzero(np.abs(ms.freq_hz - f) <= np.maximum(ms.bandwidth_hz, 0.03 * f))
-    near = near[np.argsort(np.abs(ms.freq_hz[near] - f))][:3]
-    modes = tuple({"indices": tuple(int(v) for v in ms.indices[i]), "freq_hz": float(ms.freq_hz[i]),
-                   "kind": str(ms.kind[i]), "bandwidth_hz": float(ms.bandwidth_hz[i])} for i in near)
-    return FloorMap(f, h_m, x, y, level.reshape(nx, ny), tuple(chosen), src, seat, seat_level, modes, method)
 
 
 # ======================================================================================
@@ -1076,7 +795,7 @@ def _section_placement(run):
         from ..analysis.explain import explain as run_explain
         from .plots_place import plot_explain
 
-        e = run_explain(room, layout, freq_hz=f, keep_out=keep_out)
+        e = run_explain(room, layout, freq_hz=f, keep_out=keep_out, method=method)
         n1, n2 = e.names
         values["band_mismatch_db"] = e.band_mismatch_db
         doc.p(f"The two channels of the {'file' if not preset_used else preset_used} layout at the seat differ by "
@@ -1242,7 +961,7 @@ def _section_measurements(run):
             step("fit")
             from ..analysis.fit import fit_room
 
-            fit_res = fit_room(room, list(fit_targets))
+            fit_res = fit_room(room, list(fit_targets), method=method)
             eb, ea = fit_res.error_before, fit_res.error_after
             values["fit"] = {"error_before": eb, "error_after": ea,
                              "parameters": {p.name: p.value for p in fit_res.parameters}}

@@ -17,13 +17,19 @@ import numpy as np
 
 from .modal import modal_transfer
 
-__all__ = ["transfer_function", "METHODS", "SolverConvergenceWarning"]
+__all__ = ["transfer_function", "METHODS", "DEFAULT_METHOD", "SolverConvergenceWarning"]
 
 
 class SolverConvergenceWarning(UserWarning):
     """A solver stopped before its result converged to the requested tolerance."""
 
-METHODS = ("modal", "image")
+#: The solvers, with a few words on each (the ``--method`` help lists them).
+METHODS = {
+    "modal": "modal sum of the rigid-wall modes with perturbation damping and a closed-form tail (fast)",
+    "image": "image sources with the walls' angle-dependent reflection (slow in hard rooms)",
+}
+#: The solver used where none is chosen.
+DEFAULT_METHOD = "modal"
 
 
 def _check_points(room, name, pts):

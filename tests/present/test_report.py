@@ -22,8 +22,8 @@ import pytest
 
 from roommodes import WALLS, example_rooms, load_room, log_frequencies, predict, transfer_function
 from roommodes.model.modes import room_modes
-from roommodes.present.report import (MATTERS_COUPLING, build_report, floor_level_map, mode_coupling,
-                              _separated_groups)
+from roommodes.analysis.maps import MATTERS_COUPLING, _separated_groups, floor_level_map, mode_coupling
+from roommodes.present.report import build_report
 from roommodes.model.room import Layout, Room, Speaker, Surface
 from roommodes.analysis.search import search_space
 from roommodes.analysis.summary import room_summary
