@@ -29,7 +29,7 @@ from pathlib import Path
 import numpy as np
 from scipy.signal import find_peaks, peak_widths
 
-from ..dsp.response import Response, align_level, log_frequencies, smooth_fractional_octave
+from ..dsp.response import Response, align_level, log_frequencies, smooth_db
 from .levels import speaker_levels
 
 __all__ = [
@@ -368,12 +368,6 @@ class Comparison:
     in_band: np.ndarray
 
 
-def _smooth_db(f, level, fraction):
-    if not fraction:
-        return np.asarray(level, dtype=float).copy()
-    return 10.0 * np.log10(np.maximum(smooth_fractional_octave(f, 10 ** (np.asarray(level) / 10), fraction), 1e-30))
-
-
 def _check_band(f, band_hz, name):
     lo, hi = (float(v) for v in band_hz)
     if not (math.isfinite(lo) and math.isfinite(hi) and 0 < lo < hi):
@@ -425,8 +419,8 @@ def compare_curves(freq_hz, measured_db, reference_db, *, band_hz=DEFAULT_BAND_H
     if not (np.all(np.isfinite(m)) and np.all(np.isfinite(r))):
         raise ValueError("levels must be finite numbers in dB")
     band, sel = _check_band(f, band_hz, "band_hz")
-    ms = _smooth_db(f, m, smoothing)
-    rs = _smooth_db(f, r, smoothing)
+    ms = smooth_db(f, m, smoothing)
+    rs = smooth_db(f, r, smoothing)
     if absolute:
         offset, abd = 0.0, None
     else:

@@ -44,6 +44,8 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from . import _eqfit
+from ..dsp.bands import BandSet, band_label, iec_bands
+from ..dsp.checks import check_range
 from ..dsp.response import align_level
 
 __all__ = [
@@ -146,24 +148,7 @@ def _finite_float(name, value, lo=None, hi=None, lo_open=False, unit=""):
     return v
 
 
-def _pair(name, value, lo=None, hi=None, unit=""):
-    try:
-        a, b = (float(v) for v in value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{name} must be a pair (low, high), got {value!r}") from None
-    ok = np.isfinite(a) and np.isfinite(b) and a < b
-    if lo is not None:
-        ok = ok and a > lo
-    if hi is not None:
-        ok = ok and b <= hi
-    if not ok:
-        rng = "low < high"
-        if lo is not None:
-            rng = f"{lo:g}{unit} < " + rng
-        if hi is not None:
-            rng += f" <= {hi:g}{unit}"
-        raise ValueError(f"{name} must satisfy {rng}, got ({a:g}, {b:g})")
-    return a, b
+_pair = check_range
 
 
 def _grid(freq_hz, name="freq_hz"):
@@ -583,94 +568,6 @@ def cascade_max_db(filters, sample_rate=None, freq_range_hz=(2.0, 20000.0)):
 # ========================================================================================
 # IEC 61260-1 / ISO 266 bands
 # ========================================================================================
-_R10 = (1.0, 1.25, 1.6, 2.0, 2.5, 3.15, 4.0, 5.0, 6.3, 8.0)
-_G10 = 10.0 ** 0.3
-
-
-@dataclass(frozen=True)
-class BandSet:
-    """Fractional-octave bands of IEC 61260-1 (base 10) with ISO 266 nominal labels.
-
-    Attributes
-    ----------
-    fraction : int
-        1 for octave bands, 3 for one-third-octave bands.
-    index : ndarray of int
-        Band number x (x = 0 is 1 kHz).
-    exact_hz, lower_hz, upper_hz : ndarray
-        Exact midband frequency and band edges, Hz.
-    nominal_hz : ndarray
-        ISO 266 nominal midband frequency, Hz.
-    """
-
-    fraction: int
-    index: np.ndarray
-    exact_hz: np.ndarray
-    lower_hz: np.ndarray
-    upper_hz: np.ndarray
-    nominal_hz: np.ndarray
-
-    @property
-    def labels(self):
-        """Nominal frequencies as short labels ("31.5", "1k", "12.5k")."""
-        return tuple(band_label(f) for f in self.nominal_hz)
-
-    def __len__(self):
-        return int(self.index.size)
-
-
-def band_label(nominal_hz):
-    """Short label of a nominal frequency: 31.5 -> "31.5", 1000 -> "1k", 12500 -> "12.5k"."""
-    f = float(nominal_hz)
-    if f >= 1000:
-        return f"{f / 1000:g}k"
-    return f"{f:g}"
-
-
-def iec_bands(bands="third", fmin_hz=20.0, fmax_hz=20000.0):
-    """Base-10 octave or one-third-octave bands with nominal centres in a range.
-
-    Parameters
-    ----------
-    bands : {"third", "octave"}
-    fmin_hz, fmax_hz : float
-        Keep bands whose ISO 266 nominal centre lies in ``[fmin_hz, fmax_hz]``.
-
-    Returns
-    -------
-    BandSet
-        20 Hz-20 kHz gives 31 one-third-octave bands (20 ... 20k) or 10 octave bands
-        (31.5 ... 16k).
-
-    Notes
-    -----
-    ``G = 10^(3/10)``, midband ``f_m = 1000 G^(x/b)`` for ``b`` = 1 or 3 (odd ``b``),
-    edges ``f_m G^(-1/(2b))`` and ``f_m G^(1/(2b))`` [1]_; x = -12 (one-third octave) gives
-    63.096 Hz with edges 56.234 and 70.795 Hz. Nominal values are the ISO 266 R10 series
-    (1, 1.25, 1.6, 2, 2.5, 3.15, 4, 5, 6.3, 8 times powers of ten) [2]_.
-
-    References
-    ----------
-    .. [1] IEC 61260-1:2014, eqs. (1), (3), (4) and (5).
-    .. [2] ISO 266:1997, Table 1.
-    """
-    if bands not in ("third", "octave"):
-        raise ValueError(f"bands must be 'third' or 'octave', got {bands!r}")
-    lo, hi = _pair("(fmin_hz, fmax_hz)", (fmin_hz, fmax_hz), lo=0.0, unit=" Hz")
-    b = 3 if bands == "third" else 1
-    step = 3 // b  # one-third-octave steps per band
-    n_lo = int(np.floor(3 * np.log10(lo / 1000) / 0.3)) - 3
-    n_hi = int(np.ceil(3 * np.log10(hi / 1000) / 0.3)) + 3
-    n = np.arange(n_lo, n_hi + 1)
-    n = n[n % step == 0]
-    nominal = np.array([_R10[(k + 30) % 10] * 10.0 ** ((k + 30) // 10) for k in n])
-    keep = (nominal >= lo * (1 - 1e-9)) & (nominal <= hi * (1 + 1e-9))
-    n, nominal = n[keep], nominal[keep]
-    x = n // step
-    exact = 1000.0 * _G10 ** (x / b)
-    half = _G10 ** (1.0 / (2 * b))
-    return BandSet(b, x, exact, exact / half, exact * half, nominal)
-
 
 # ========================================================================================
 # Targets

@@ -41,8 +41,8 @@ import numpy as np
 
 from ..model.modes import KINDS, mode_shapes
 from .levels import speaker_levels
-from .predict import boundary_notches, room_schroeder_frequency
-from ..dsp.response import level_db, log_frequencies, smooth_fractional_octave
+from .predict import boundary_notches, room_schroeder_frequency, usable_band
+from ..dsp.response import level_db, log_frequencies, smooth_db
 from ..model.room import WALL_AXIS, WALL_FAR, WALLS
 from ..solvers.modal import modal_weights, static_tail_term
 from ..model.speaker import speaker_response
@@ -181,10 +181,7 @@ def modal_decomposition(room, sources_m, receiver_m, freq_hz):
 
 
 def _smooth_db(f, h, fraction):
-    p = np.abs(h) ** 2
-    if fraction:
-        p = smooth_fractional_octave(f, p, fraction)
-    return 10 * np.log10(np.maximum(p, _TINY))
+    return smooth_db(f, level_db(h), fraction)
 
 
 def _where_in_mode(psi):
@@ -337,8 +334,6 @@ def explain(room, layout=None, channels=None, freq_hz=None, threshold_db=DEFAULT
     ValueError
         Unknown channel names, a layout with fewer than two speakers, a bad threshold or band.
     """
-    from .search import default_band
-
     layout = room.layout if layout is None else layout
     if layout is None:
         raise ValueError(f"{room.source or room.name}: the room file has no [speakers] and [seat] to explain")
@@ -359,7 +354,7 @@ def explain(room, layout=None, channels=None, freq_hz=None, threshold_db=DEFAULT
     if smoothing and not 1 <= smoothing <= 48:
         raise ValueError(f"smoothing must be 0 (none) or 1..48 (1/N octave), got {smoothing}")
     f = log_frequencies(15.0, 300.0, 48) if freq_hz is None else np.asarray(freq_hz, dtype=float)
-    band = default_band(chosen) if band_hz is None else tuple(float(v) for v in band_hz)
+    band = usable_band(chosen) if band_hz is None else tuple(float(v) for v in band_hz)
     if not 0 < band[0] < band[1]:
         raise ValueError(f"band must satisfy 0 < low < high, got {band[0]:g}-{band[1]:g} Hz")
     sel = (f >= band[0]) & (f <= band[1])

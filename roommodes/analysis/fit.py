@@ -26,7 +26,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from scipy.optimize import least_squares
 
-from ..dsp.response import log_frequencies, smooth_fractional_octave
+from ..dsp.response import log_frequencies, smooth_db
 from ..model.room import WALLS, Surface
 from ..model.room import WALL_MARGIN_M
 from .levels import speaker_levels
@@ -178,13 +178,6 @@ def fit_error(difference_db):
             "rms_db": float(np.sqrt(np.mean(a**2)))}
 
 
-def _smooth(f, level_db, fraction):
-    if not fraction:
-        return np.asarray(level_db, dtype=float)
-    p = smooth_fractional_octave(f, 10 ** (np.asarray(level_db) / 10), fraction)
-    return 10 * np.log10(np.maximum(p, 1e-30))
-
-
 def _soft_l1(d, scale):
     """Residual whose square is the soft-L1 loss ``2 s^2 (sqrt(1 + (d/s)^2) - 1)``."""
     z = (d / scale) ** 2
@@ -319,7 +312,7 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
         if pos not in mic_list:
             mic_list.append(pos)
         pairs.append((spk_names.index(t.channel), mic_list.index(pos)))
-        meas.append(_smooth(f, np.interp(np.log(f), np.log(tf), np.asarray(t.level_db, float)), smoothing))
+        meas.append(smooth_db(f, np.interp(np.log(f), np.log(tf), np.asarray(t.level_db, float)), smoothing))
     meas = np.array(meas)
     mic0 = np.array(mic_list)
     spk0 = np.array([speakers[n].position_m for n in spk_names], dtype=float)
@@ -386,7 +379,7 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
     def predict_all(u):
         r, _, sps, mic = build(u)
         lv = speaker_levels(r, sps, mic, f, method=method, **solver_options).level_db
-        return np.array([_smooth(f, lv[s, m], smoothing) for s, m in pairs])
+        return np.array([smooth_db(f, lv[s, m], smoothing) for s, m in pairs])
 
     def differences(u):
         pred = predict_all(u)

@@ -17,7 +17,7 @@ from .levels import speaker_levels
 
 from ..model.criteria import sabine_rt60, schroeder_frequency
 from ..model.modes import mode_shapes, room_modes
-from ..dsp.response import level_db, log_frequencies, smooth_fractional_octave
+from ..dsp.response import level_db, log_frequencies, smooth_db
 from ..model.room import WALL_AXIS, WALL_FAR, WALLS
 
 __all__ = ["Channel", "Prediction", "predict", "room_schroeder_frequency", "response_features",
@@ -38,7 +38,7 @@ def band_figures(freq_hz, level_db, band_hz=(20.0, 200.0), smoothing=6):
     level inside ``band_hz``: the summary figures the commands print for a curve."""
     f = np.asarray(freq_hz, dtype=float)
     sel = (f >= band_hz[0]) & (f <= band_hz[1])
-    seg = (10 * np.log10(smooth_fractional_octave(f, 10 ** (np.asarray(level_db) / 10), smoothing)))[sel]
+    seg = smooth_db(f, level_db, smoothing)[sel]
     return {"spread_db": float(seg.max() - seg.min()), "std_db": float(seg.std()),
             "max_db": float(seg.max()), "min_db": float(seg.min())}
 
@@ -198,7 +198,7 @@ def response_features(room, prediction, channel, max_features=8, smoothing=12, m
     f = prediction.freq_hz
     ch = prediction.channels[channel] if isinstance(channel, int) else next(
         c for c in prediction.channels if c.name == channel)
-    smooth = 10 * np.log10(smooth_fractional_octave(f, 10 ** (ch.level_db / 10), smoothing))
+    smooth = smooth_db(f, ch.level_db, smoothing)
     sel = prediction.valid
     fmax = float(f[sel].max()) if sel.any() else float(f.max())
     modes = room_modes(room, fmax * 1.1)

@@ -147,17 +147,3 @@ def walls_text(room, pos):
     return _walls_text(room, pos, units)
 
 
-def usable_band(layout, top_hz=200.0):
-    """Band judged by the summary figures: from max(20 Hz, the speakers' low cut) to 200 Hz."""
-    from ..analysis.predict import usable_band as _usable
-
-    return _usable(layout.speakers, top_hz)
-
-
-def band_figures(f, level, band=(20.0, 200.0)):
-    """Summary figures of a curve in a band (see :func:`roommodes.predict.band_figures`)."""
-    from ..analysis.predict import band_figures as _figures
-
-    return _figures(f, level, band)
-
-

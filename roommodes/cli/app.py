@@ -15,9 +15,10 @@ import click
 import numpy as np
 
 from .. import __version__
-from ._util import (CONTEXT, MODEL_CAUTION, UserError, band_figures, check_output, dump_json, echo_err,
+from ..analysis.predict import band_figures, usable_band
+from ._util import (CONTEXT, MODEL_CAUTION, UserError, check_output, dump_json, echo_err,
                        fail, freq_range_option, json_option, layouts_for, load_or_fail, method_option,
-                       parse_range, ppo_option, protect_inputs, units_option, usable_band, walls_text)
+                       parse_range, ppo_option, protect_inputs, units_option, walls_text)
 from ..io.roomfile import demo_room_path, load_room
 
 class _Group(click.Group):
@@ -175,8 +176,8 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
             lay_objs.append({
                 "name": lay.name, "seat_m": lay.seat_m,
                 "channels": [{"name": c.name, "position_m": c.position_m, "level_db": c.level_db,
-                              "band_figures": band_figures(f, c.level_db, usable_band(lay))} for c in p.channels],
-                "band_hz": usable_band(lay),
+                              "band_figures": band_figures(f, c.level_db, usable_band(lay.speakers))} for c in p.channels],
+                "band_hz": usable_band(lay.speakers),
             })
         dump_json({
             "roommodes_version": __version__, "room": room.name, "method": method,
@@ -193,7 +194,7 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
             click.echo("")
             click.echo(f"Layout: {lay.name}.  Seat: {walls_text(room, lay.seat_m)}")
             for ch in p.channels:
-                band = usable_band(lay)
+                band = usable_band(lay.speakers)
                 fig = band_figures(f, ch.level_db, band)
                 click.echo(f"  {ch.name}: {walls_text(room, ch.position_m)}")
                 click.echo(f"    {band[0]:g}-{band[1]:g} Hz (1/6-octave smoothed): {fig['min_db']:+.1f} to {fig['max_db']:+.1f} dB, "
@@ -251,7 +252,7 @@ def demo(out_dir):
     click.echo("")
     click.echo(f"Predicted level at the seat for the file's layout ({time.perf_counter() - t0:.2f} s):")
     for ch in file_pred.channels:
-        band = usable_band(room.layout)
+        band = usable_band(room.layout.speakers)
         fig = band_figures(file_pred.freq_hz, ch.level_db, band)
         click.echo(f"  {ch.name}: spread {fig['spread_db']:.1f} dB over {band[0]:g}-{band[1]:g} Hz (1/6 octave)")
         for ft in response_features(room, file_pred, ch.name, max_features=4):
@@ -260,7 +261,7 @@ def demo(out_dir):
                     path=out_dir / "predict-file-layout.png")
     preds = [file_pred] + [run_predict(room, preset_layout(room, n)) for n in PRESETS]
     click.echo("")
-    band = usable_band(room.layout)
+    band = usable_band(room.layout.speakers)
     click.echo(f"Standard placements compared ({band[0]:g}-{band[1]:g} Hz, 1/6-octave smoothed spread, left / right):")
     for p in preds:
         spreads = " / ".join(f"{band_figures(p.freq_hz, c.level_db, band)['spread_db']:4.1f}" for c in p.channels)

@@ -126,6 +126,18 @@ def smooth_fractional_octave(freq_hz, power, fraction):
     return np.where(width > 0, out, p)
 
 
+def smooth_db(freq_hz, level_db, fraction):
+    """Fractional-octave power smoothing of a level in dB (the one used for every curve).
+
+    ``10 log10(smooth(10^(L/10)))`` with :func:`smooth_fractional_octave`, floored at
+    -300 dB; ``fraction`` 0 or None returns a copy of the level.
+    """
+    level = np.asarray(level_db, dtype=float)
+    if not fraction:
+        return level.copy()
+    return 10.0 * np.log10(np.maximum(smooth_fractional_octave(freq_hz, 10.0 ** (level / 10.0), fraction), _TINY))
+
+
 def align_level(level_db_a, level_db_b, freq_hz, band_hz):
     """Offset (dB) to add to ``level_db_b`` so its power mean over ``band_hz`` matches ``a``.
 

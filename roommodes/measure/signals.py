@@ -20,6 +20,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import signal as sps
 
+from ..dsp.bands import OCTAVE_RATIO_G, band_centres
+
 __all__ = [
     "OCTAVE_RATIO_G",
     "BandLevels",
@@ -29,12 +31,6 @@ __all__ = [
     "level_dbfs",
     "pink_noise",
 ]
-
-#: Base-10 octave frequency ratio of IEC 61260-1:2014, ``G = 10**(3/10)``.
-OCTAVE_RATIO_G = 10.0 ** 0.3
-
-#: ISO 266 preferred numbers (R10 series) naming the 1/3-octave bands of one decade.
-_R10 = (1.0, 1.25, 1.6, 2.0, 2.5, 3.15, 4.0, 5.0, 6.3, 8.0)
 
 _SINE_RMS = 1.0 / np.sqrt(2.0)
 
@@ -65,70 +61,6 @@ def crest_factor_db(x):
     if rms == 0:
         raise ValueError("crest factor of an all-zero signal is undefined")
     return float(20.0 * np.log10(np.max(np.abs(x)) / rms))
-
-
-def _nominal_label(fm, fraction):
-    """ISO 266 label of an exact base-10 band centre (octave and 1/3 octave only)."""
-    if fraction not in (1, 3):
-        return float(f"{fm:.3g}")
-    e = np.log10(fm)
-    k = int(np.round(e * 10))  # 1/3-octave index in tenths of a decade
-    decade, i = divmod(k, 10)
-    return float(_R10[i] * 10.0**decade)
-
-
-def band_centres(fraction=3, f_low_hz=20.0, f_high_hz=20000.0):
-    """IEC 61260-1 base-10 fractional-octave bands with centres in a frequency range.
-
-    Parameters
-    ----------
-    fraction : int
-        ``b`` of 1/b-octave bands: 1, 2, 3, 6, 12 or 24.
-    f_low_hz, f_high_hz : float
-        Range for the band centres in Hz, 0 < low < high. A band is kept when its exact
-        centre lies within the range widened by a quarter of a band on each side, so
-        ``f_low_hz = 20`` keeps the band labelled 20 Hz (exact centre 19.953 Hz).
-
-    Returns
-    -------
-    center_hz, nominal_hz, lower_hz, upper_hz : ndarray
-        Exact mid-band frequencies, ISO 266 labels (for ``fraction`` 1 and 3; else the
-        centre to 3 significant figures) and band-edge frequencies, in Hz.
-
-    Notes
-    -----
-    ``f_m = 1000 G**(x/b)`` for odd ``b`` and ``1000 G**((2x+1)/(2b))`` for even ``b``,
-    edges ``f_m G**(-1/(2b))`` and ``f_m G**(1/(2b))``, ``G = 10**0.3``
-    (IEC 61260-1:2014, sec. 5.2-5.4).
-
-    References
-    ----------
-    .. [1] IEC 61260-1:2014, Electroacoustics - Octave-band and fractional-octave-band
-       filters - Part 1: Specifications.
-    .. [2] ISO 266:1997, Acoustics - Preferred frequencies.
-    """
-    if fraction not in (1, 2, 3, 6, 12, 24):
-        raise ValueError(f"fraction must be one of 1, 2, 3, 6, 12, 24, got {fraction!r}")
-    f_low_hz, f_high_hz = float(f_low_hz), float(f_high_hz)
-    if not (np.isfinite(f_low_hz) and np.isfinite(f_high_hz) and 0 < f_low_hz < f_high_hz):
-        raise ValueError(
-            f"band range must satisfy 0 < f_low_hz < f_high_hz, got {f_low_hz:g}..{f_high_hz:g} Hz"
-        )
-    b = int(fraction)
-    g = OCTAVE_RATIO_G
-    tol = g ** (1.0 / (4 * b))
-    # band index range from the inverse of the centre formula
-    def x_of(f):
-        if b % 2:
-            return b * np.log(f / 1000.0) / np.log(g)
-        return (2 * b * np.log(f / 1000.0) / np.log(g) - 1) / 2
-    x = np.arange(int(np.floor(x_of(f_low_hz / tol))), int(np.ceil(x_of(f_high_hz * tol))) + 1)
-    fm = 1000.0 * g ** (x / b) if b % 2 else 1000.0 * g ** ((2 * x + 1) / (2 * b))
-    keep = (fm >= f_low_hz / tol) & (fm <= f_high_hz * tol)
-    fm = fm[keep]
-    half = g ** (1.0 / (2 * b))
-    nominal = np.array([_nominal_label(f, b) for f in fm])
-    return fm, nominal, fm / half, fm * half
 
 
 @dataclass(frozen=True)
