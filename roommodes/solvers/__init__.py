@@ -6,7 +6,10 @@ and compared:
 
 * ``"modal"``: the modal sum of :mod:`roommodes.solvers.modal` (default; accurate and
   fast at low frequency);
-* ``"image"``: the image-source sum of :mod:`roommodes.solvers.images`.
+* ``"image"``: the image-source sum of :mod:`roommodes.solvers.images`;
+* ``"exact"``: the frequency-domain solution of :mod:`roommodes.solvers.exact`, exact
+  for locally reacting walls (Robin eigenfunctions on two axes, a closed-form 1-D
+  impedance Green's function on the third).
 """
 
 from __future__ import annotations
@@ -23,7 +26,7 @@ __all__ = ["transfer_function", "METHODS", "SolverConvergenceWarning"]
 class SolverConvergenceWarning(UserWarning):
     """A solver stopped before its result converged to the requested tolerance."""
 
-METHODS = ("modal", "image")
+METHODS = ("modal", "image", "exact")
 
 
 def _check_points(room, name, pts):
@@ -54,11 +57,12 @@ def transfer_function(room, sources_m, receivers_m, freq_hz, method="modal", **o
         Receiver positions, metres, inside the room.
     freq_hz : array_like, shape (F,)
         Frequencies, Hz.
-    method : {"modal", "image"}
+    method : {"modal", "image", "exact"}
         Solver.
     **options
         Passed to the solver (``cutoff_hz`` for the modal sum; ``tol_db``,
-        ``max_order``, ``reflection`` for image sources).
+        ``max_order``, ``reflection`` for image sources; ``tol_db``, ``near_m`` for
+        the exact solver).
 
     Returns
     -------
@@ -93,4 +97,8 @@ def transfer_function(room, sources_m, receivers_m, freq_hz, method="modal", **o
                 f"(remainder up to {np.max(info['remainder_db']):.2f} dB); the walls are too hard for "
                 "image sources to be practical: use the modal solver"), stacklevel=2)
         return h
+    if method == "exact":
+        from .exact import exact_transfer
+
+        return exact_transfer(room.size_m, zeta, src, rec, f, room.speed_of_sound, **options)
     raise ValueError(f"method must be one of {', '.join(METHODS)}, got {method!r}")
