@@ -49,9 +49,8 @@ error is thus at most ``eps`` times the free-field transfer of the pair, i.e. be
 every axis are truncated at ``d = near_m`` and get the rigid static tail instead: the
 terms outside the rectangle are replaced by their rigid-wall, zero-frequency values,
 summed in closed form (:func:`roommodes.solvers.modal.static_green_pairs`). That
-replacement errs by a fraction of order ``k^2 / k_t^2 + |beta| k / k_t`` of the tail
-(about ``exp(-Lambda d / near_m)`` of the level), a few thousandths of a dB at the
-defaults (tests/test_exact.py measures it).
+replacement errs by a fraction of order ``k^2 / k_t^2 + |beta| k / k_t`` of the tail;
+measured, a few thousandths of a dB at the defaults (tests/test_exact.py).
 
 References
 ----------
