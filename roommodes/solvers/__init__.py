@@ -6,7 +6,10 @@ and compared:
 
 * ``"modal"``: the modal sum of :mod:`roommodes.solvers.modal` (default; accurate and
   fast at low frequency);
-* ``"image"``: the image-source sum of :mod:`roommodes.solvers.images`.
+* ``"image"``: the image-source sum of :mod:`roommodes.solvers.images`;
+* ``"exact"``: the frequency-domain solution of :mod:`roommodes.solvers.exact`, exact
+  for locally reacting walls (Robin eigenfunctions on two axes, a closed-form 1-D
+  impedance Green's function on the third).
 """
 
 from __future__ import annotations
@@ -27,6 +30,7 @@ class SolverConvergenceWarning(UserWarning):
 METHODS = {
     "modal": "modal sum of the rigid-wall modes with perturbation damping and a closed-form tail (fast)",
     "image": "image sources with the walls' angle-dependent reflection (slow in hard rooms)",
+    "exact": "separable wave solution of the box with impedance walls (the reference)",
 }
 #: The solver used where none is chosen.
 DEFAULT_METHOD = "modal"
@@ -60,11 +64,12 @@ def transfer_function(room, sources_m, receivers_m, freq_hz, method="modal", **o
         Receiver positions, metres, inside the room.
     freq_hz : array_like, shape (F,)
         Frequencies, Hz.
-    method : {"modal", "image"}
+    method : {"modal", "image", "exact"}
         Solver.
     **options
         Passed to the solver (``cutoff_hz`` for the modal sum; ``tol_db``,
-        ``max_order``, ``reflection`` for image sources).
+        ``max_order``, ``reflection`` for image sources; ``tol_db``, ``near_m`` for
+        the exact solver).
 
     Returns
     -------
@@ -99,4 +104,8 @@ def transfer_function(room, sources_m, receivers_m, freq_hz, method="modal", **o
                 f"(remainder up to {np.max(info['remainder_db']):.2f} dB); the walls are too hard for "
                 "image sources to be practical: use the modal solver"), stacklevel=2)
         return h
+    if method == "exact":
+        from .exact import exact_transfer
+
+        return exact_transfer(room.size_m, zeta, src, rec, f, room.speed_of_sound, **options)
     raise ValueError(f"method must be one of {', '.join(METHODS)}, got {method!r}")
