@@ -169,14 +169,26 @@ def reflection_factor(zeta, cos_theta):
     return np.where(np.isinf(z), 1.0, r)
 
 
-def impedance_table(zeta, n_freq):
+def impedance_table(zeta, n_freq, allow_complex=False):
     """Wall impedances as a (6, F) table: ``zeta`` given per wall (6,) or per wall and
-    frequency (6, F); positive, ``inf`` for a rigid wall. Raises ValueError otherwise."""
-    z = np.asarray(zeta, dtype=float)
+    frequency (6, F); ``inf`` for a rigid wall. Real impedances must be positive; with
+    ``allow_complex`` a complex impedance must be passive (``Re(zeta) >= 0``) and non-zero.
+    Raises ValueError otherwise."""
+    z = np.asarray(zeta)
+    if not np.issubdtype(z.dtype, np.number):
+        raise ValueError(f"zeta must be numeric normalised impedances, got dtype {z.dtype}")
+    z = z.astype(complex if allow_complex else float)
     if z.shape == (6,):
         z = np.repeat(z[:, None], n_freq, axis=1)
     if z.shape != (6, n_freq):
         raise ValueError(f"zeta must have shape (6,) or (6, {n_freq}) (walls x frequencies), got {z.shape}")
-    if np.any(np.isnan(z)) or np.any(z <= 0):
-        raise ValueError("zeta must be positive normalised impedances (np.inf for a rigid wall)")
+    if not allow_complex:
+        if np.any(np.isnan(z)) or np.any(z <= 0):
+            raise ValueError("zeta must be positive normalised impedances (np.inf for a rigid wall)")
+        return z
+    rigid = np.isinf(z.real) & (z.real > 0)
+    fin = z[~rigid]
+    if np.any(~np.isfinite(fin)) or np.any(fin == 0) or np.any(fin.real < 0) or np.any(np.isinf(z.imag)):
+        raise ValueError("zeta must be finite non-zero impedances with Re(zeta) >= 0 (passive walls), "
+                         "or +inf for a rigid wall")
     return z

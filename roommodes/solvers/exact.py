@@ -63,6 +63,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..model.walls import impedance_table
 from .modal import static_green_pairs
 
 __all__ = [
@@ -442,21 +443,10 @@ def truncation_wavenumber(sep_m, k_max, tol_db=DEFAULT_TOL_DB):
 
 def _admittance(zeta, n_freq):
     """Wall admittances (6, F) complex from impedances (6,) or (6, F); checks passivity."""
-    z = np.asarray(zeta)
-    if not (np.issubdtype(z.dtype, np.number)):
-        raise ValueError(f"zeta must be numeric normalised impedances, got dtype {z.dtype}")
-    z = z.astype(complex)
-    if z.shape == (6,):
-        z = np.repeat(z[:, None], n_freq, axis=1)
-    if z.shape != (6, n_freq):
-        raise ValueError(f"zeta must have shape (6,) or (6, {n_freq}) (walls x frequencies), got {z.shape}")
-    rigid = np.isinf(z.real) & (z.real > 0)
-    fin = z[~rigid]
-    if np.any(~np.isfinite(fin)) or np.any(fin == 0) or np.any(fin.real < 0) or np.any(np.isinf(z.imag)):
-        raise ValueError("zeta must be finite non-zero impedances with Re(zeta) >= 0 (passive walls), "
-                         "or +inf for a rigid wall")
+    z = impedance_table(zeta, n_freq, allow_complex=True)
+    rigid = np.isinf(z.real)
     beta = np.zeros(z.shape, dtype=complex)
-    beta[~rigid] = 1.0 / fin
+    beta[~rigid] = 1.0 / z[~rigid]
     return beta
 
 
