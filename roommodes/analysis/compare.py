@@ -31,6 +31,7 @@ from scipy.signal import find_peaks, peak_widths
 
 from ..dsp.response import Response, align_level, log_frequencies, smooth_db
 from .levels import speaker_levels
+from ..solvers import DEFAULT_METHOD
 
 __all__ = [
     "DEFAULT_BAND_HZ",
@@ -292,7 +293,7 @@ def speaker_by_name(room, channel):
     raise ValueError(f"channel '{channel}' is not a speaker of the room file; choose one of {', '.join(names)}")
 
 
-def predicted_level(room, channel, positions_m, freq_hz, method="modal", include_speaker=True, **options):
+def predicted_level(room, channel, positions_m, freq_hz, method=DEFAULT_METHOD, include_speaker=True, **options):
     """Predicted level of one speaker, power-averaged over microphone positions.
 
     Parameters
@@ -780,7 +781,7 @@ def _common_grid(a, b):
 
 
 def compare_to_prediction(room, measured, channel=None, positions_m=None, *, band_hz=DEFAULT_BAND_HZ,
-                          smoothing=DEFAULT_SMOOTHING, align_band_hz=None, absolute=False, method="modal",
+                          smoothing=DEFAULT_SMOOTHING, align_band_hz=None, absolute=False, method=DEFAULT_METHOD,
                           min_prominence_db=3.0, max_distance_octaves=0.25, **options):
     """Compare a measurement with the model's prediction for the same speaker and position.
 

@@ -18,6 +18,7 @@ from .levels import speaker_levels
 from .predict import predict
 from ..dsp.response import log_frequencies, smooth_fractional_octave
 from ..model.room import Layout
+from ..solvers import DEFAULT_METHOD
 
 __all__ = ["ChannelCorrection", "correct_curve", "correct_prediction", "default_band",
            "NEIGHBOUR_STEP_M"]
@@ -140,7 +141,7 @@ def _neighbour_layouts(layout, index, step_m):
     return out
 
 
-def correct_prediction(room, layout=None, freq_hz=None, method="modal", area_m=None, area_points=(3, 3),
+def correct_prediction(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, area_m=None, area_points=(3, 3),
                        **options):
     """Predict every channel at the seat and design its correction.
 

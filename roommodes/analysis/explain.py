@@ -46,6 +46,7 @@ from ..dsp.response import level_db, log_frequencies, smooth_db
 from ..model.room import WALL_AXIS, WALL_FAR, WALLS
 from ..solvers.modal import modal_weights, static_tail_term
 from ..model.speaker import speaker_response
+from ..solvers import DEFAULT_METHOD
 
 __all__ = ["Cause", "Move", "Region", "Explanation", "explain", "modal_decomposition"]
 
@@ -297,7 +298,7 @@ def _mode_causes(f, h, weight, resp, psi, idx, mode_freq, rows, fraction, mean_a
 
 
 def explain(room, layout=None, channels=None, freq_hz=None, threshold_db=DEFAULT_THRESHOLD_DB, band_hz=None,
-            smoothing=6, move_steps_m=MOVE_STEPS_M, keep_out=(), method="modal"):
+            smoothing=6, move_steps_m=MOVE_STEPS_M, keep_out=(), method=DEFAULT_METHOD):
     """Explain why two channels differ at the seat.
 
     Parameters

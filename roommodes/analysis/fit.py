@@ -30,6 +30,7 @@ from ..dsp.response import log_frequencies, smooth_db
 from ..model.room import WALLS, Surface
 from ..model.room import WALL_MARGIN_M
 from .levels import speaker_levels
+from ..solvers import DEFAULT_METHOD
 
 __all__ = ["ABSORPTION_GROUPS", "FitParameter", "FitResult", "FitTarget", "fit_error", "fit_room"]
 
@@ -195,7 +196,7 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
              absorption="axes", size_tolerance=0.05, position_tolerance_m=0.05, fit_speaker_positions=True,
              fit_mic_positions=True, fit_lowcut=True, lowcut_tolerance=0.3, absolute=False,
              regularization_db=0.5, robust_scale_db=3.0, cutoff_factor=2.0, max_iterations=40,
-             method="modal", progress=None):
+             method=DEFAULT_METHOD, progress=None):
     """Adjust absorption, dimensions, positions and roll-off so the model fits measurements.
 
     Parameters

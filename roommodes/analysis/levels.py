@@ -15,7 +15,7 @@ import numpy as np
 
 from ..dsp.response import level_db as _level_db
 from ..model.speaker import speaker_response
-from ..solvers import METHODS, transfer_function
+from ..solvers import DEFAULT_METHOD, METHODS, transfer_function
 
 __all__ = ["Levels", "speaker_levels", "METHODS"]
 
@@ -58,7 +58,7 @@ class Levels:
         return 10.0 * np.log10(np.maximum(np.mean(np.abs(self.transfer) ** 2, axis=1), 1e-30))
 
 
-def speaker_levels(room, speakers, points_m, freq_hz, *, method="modal", include_speaker=True, **options):
+def speaker_levels(room, speakers, points_m, freq_hz, *, method=DEFAULT_METHOD, include_speaker=True, **options):
     """Level of each speaker at each point: the room's transfer times the speaker's response.
 
     Parameters

@@ -19,6 +19,7 @@ from ..model.criteria import sabine_rt60, schroeder_frequency
 from ..model.modes import mode_shapes, room_modes
 from ..dsp.response import level_db, log_frequencies, smooth_db
 from ..model.room import WALL_AXIS, WALL_FAR, WALLS
+from ..solvers import DEFAULT_METHOD
 
 __all__ = ["Channel", "Prediction", "predict", "room_schroeder_frequency", "response_features",
            "boundary_notches", "Feature", "usable_band", "band_figures"]
@@ -89,7 +90,7 @@ def room_schroeder_frequency(room, band_hz=125.0):
     return float(schroeder_frequency(float(np.atleast_1d(t)[0]), room.volume_m3))
 
 
-def predict(room, layout=None, freq_hz=None, method="modal", include_speaker=True, **options):
+def predict(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, include_speaker=True, **options):
     """Predict each speaker's level at the seat.
 
     Parameters

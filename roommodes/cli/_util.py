@@ -2,11 +2,11 @@
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 import click
 
+from ..present.serialise import dumps
 from ..solvers import DEFAULT_METHOD, METHODS
 import numpy as np
 
@@ -38,25 +38,9 @@ def echo_err(msg=""):
     click.echo(msg, err=True)
 
 
-def dump_json(obj):
-    click.echo(json.dumps(jsonable(obj), indent=1, allow_nan=False))
-
-
-def jsonable(o):
-    if isinstance(o, dict):
-        return {str(k): jsonable(v) for k, v in o.items()}
-    if isinstance(o, (list, tuple)):
-        return [jsonable(v) for v in o]
-    if isinstance(o, np.ndarray):
-        return jsonable(o.tolist())
-    if isinstance(o, (np.floating, float)):
-        v = float(o)
-        return v if np.isfinite(v) else None  # full precision: filter coefficients need it
-    if isinstance(o, (np.integer,)):
-        return int(o)
-    if isinstance(o, np.bool_):
-        return bool(o)
-    return o
+def dump_json(payload):
+    """Print one JSON document (:func:`roommodes.present.serialise.document`) on stdout."""
+    click.echo(dumps(payload))
 
 
 def load_or_fail(path):

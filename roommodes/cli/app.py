@@ -7,6 +7,7 @@ stderr and exit code 2.
 
 from __future__ import annotations
 
+import os
 import sys
 import time
 from pathlib import Path
@@ -35,6 +36,11 @@ class _Group(click.Group):
             return super().invoke(ctx)
         except (ValueError, FileExistsError) as exc:  # RoomFileError is a ValueError
             raise UserError(str(exc)) from None
+        except BrokenPipeError:
+            # the reader of stdout went away (e.g. `| head`): stop quietly, as shell tools do
+            devnull = os.open(os.devnull, os.O_WRONLY)
+            os.dup2(devnull, sys.stdout.fileno())
+            sys.exit(1)
         except OSError as exc:
             name = f" {exc.filename}" if getattr(exc, "filename", None) else ""
             raise UserError(f"cannot read or write{name}: {exc.strerror or exc}") from None
@@ -79,7 +85,7 @@ def modes(room_file, freq_range, plot_path, force, as_json):
         check_output(plot_path, force)
     if as_json:
         dump_json({
-            "roommodes_version": __version__, "room": room.name, "size_m": room.size_m,
+            "room": room.name, "size_m": room.size_m,
             "modes": [
                 {"indices": ms.indices[i], "freq_hz": ms.freq_hz[i], "kind": ms.kind[i],
                  "note": note_name(ms.freq_hz[i]), "t60_s": ms.t60_s[i],
@@ -180,7 +186,7 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
                 "band_hz": usable_band(lay.speakers),
             })
         dump_json({
-            "roommodes_version": __version__, "room": room.name, "method": method,
+            "room": room.name, "method": method,
             "frequencies_hz": f, "schroeder_hz": fs, "valid": preds[0].valid,
             "level_reference": "dB re free-field pressure of the same source at 1 m",
             "channels": lay_objs[0]["channels"], "layout": lay_objs[0]["name"], "seat_m": lay_objs[0]["seat_m"],

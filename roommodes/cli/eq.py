@@ -212,7 +212,7 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
         source = f"predicted, {method} solver" + (f", average over {area[0]:g} x {area[1]:g} m" if area else "")
     head_warn = channel_headroom_warnings({c.name: c.headroom.max_boost_db for c in corrections})
     if as_json:
-        dump_json({"roommodes_version": __version__, "room": room.name, "layout": lay.name, "source": source,
+        dump_json({"room": room.name, "layout": lay.name, "source": source,
                    "frequencies_hz": corrections[0].parametric.freq_hz,
                    "channels": [_channel_json(c) for c in corrections],
                    "warnings": [w.to_dict() for w in head_warn], "cautions": list(CAUTIONS)})

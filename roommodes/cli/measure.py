@@ -244,7 +244,7 @@ def sweep(out, fs_hz, duration_s, f1_hz, f2_hz, level_dbfs, fade_in_s, fade_out_
     write_wav_atomic(wav, x, spec.fs_hz, subtype, overwrite=force)
     write_text_atomic(desc, json.dumps(d, indent=1) + "\n", overwrite=force)
     if as_json:
-        dump_json({"roommodes_version": __version__, "wav": str(wav), "description": str(desc), "sweep": d})
+        dump_json({"wav": str(wav), "description": str(desc), "sweep": d})
     else:
         click.echo(f"Wrote {wav}: exponential sweep {spec.f1_hz:g}-{spec.f2_hz:g} Hz, {spec.duration_s:.2f} s "
                    f"(+{spec.silence_before_s:g} s silence before, {spec.silence_after_s:g} s after), "
@@ -340,7 +340,7 @@ def ir(recording, sweep_path, out, wav_channel, loopback, ir_length_s, plot_path
     dist = res.distortion
     if as_json:
         dump_json({
-            "roommodes_version": __version__, "recording": str(recording), "output": str(wav),
+            "recording": str(recording), "output": str(wav),
             "fs_hz": res.fs_hz, "delay_s": res.delay_s, "onset_s": res.onset_s,
             "peak_to_noise_db": res.peak_to_noise_db, "loopback_delay_s": res.loopback_delay_s,
             "distortion": None if dist is None else {
@@ -405,7 +405,7 @@ def noise(out, fs_hz, duration_s, level_dbfs, band, seed, subtype, force, as_jso
     write_wav_atomic(wav, x, fs_hz, subtype, overwrite=force)
     crest = crest_factor_db(x)
     if as_json:
-        dump_json({"roommodes_version": __version__, "output": str(wav), "fs_hz": fs_hz, "duration_s": duration_s,
+        dump_json({"output": str(wav), "fs_hz": fs_hz, "duration_s": duration_s,
                    "level_dbfs_rms": level_dbfs, "band_hz": [lo, hi], "crest_factor_db": crest, "seed": seed})
     else:
         click.echo(f"Wrote {wav}: pink noise {lo:g}-{hi:g} Hz, {duration_s:g} s at {fs_hz} Hz, {level_dbfs:g} dBFS "
@@ -469,7 +469,7 @@ def bands(recording, wav_channel, fraction, band, out, force, as_json):
         lines += [f"{c:.4f}, {v:.3f}" for c, v in zip(bl.center_hz, bl.level_db)]
         write_text_atomic(out, "\n".join(lines) + "\n", overwrite=force)
     if as_json:
-        dump_json({"roommodes_version": __version__, "recording": str(recording), "fraction": int(fraction),
+        dump_json({"recording": str(recording), "fraction": int(fraction),
                    "center_hz": bl.center_hz, "nominal_hz": bl.nominal_hz, "level_db": bl.level_db,
                    "frequencies_hz": bl.center_hz, "averaging_s": bl.averaging_s,
                    "output": None if out is None else str(out)})
@@ -531,7 +531,7 @@ def decay(ir_file, wav_channel, band_set, freq_range, n_modes, modal_range, wate
         notes += [m for flags in md.flags for m in flags]
     if as_json:
         dump_json({
-            "roommodes_version": __version__, "ir": str(ir_file), "fs_hz": fs, "bands": band_set,
+            "ir": str(ir_file), "fs_hz": fs, "bands": band_set,
             "reverberation": [{"center_hz": c, "nominal_hz": n, "edt_s": e, "t20_s": t2, "t30_s": t3,
                                "decay_range_db": r, "edt_ok": eo, "t20_ok": t2o, "t30_ok": t3o}
                               for c, n, e, t2, t3, r, eo, t2o, t3o in zip(
@@ -675,7 +675,7 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
     names = rep.names
     if as_json:
         obj = {
-            "roommodes_version": __version__, "mode": "prediction" if room else "measurements",
+            "mode": "prediction" if room else "measurements",
             "frequencies_hz": c.freq_hz, "measured_db": c.measured_db, "reference_db": c.reference_db,
             "difference_db": c.difference_db, "median_abs_diff_db": c.median_abs_diff_db,
             "p90_abs_diff_db": c.p90_abs_diff_db, "rms_diff_db": c.rms_diff_db, "mean_diff_db": c.mean_diff_db,
@@ -862,7 +862,7 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
     write_text_atomic(outp, room_to_toml(res.room, comment=comment), overwrite=force)
     if as_json:
         dump_json({
-            "roommodes_version": __version__, "room": room.name, "output": str(outp), "elapsed_s": elapsed,
+            "room": room.name, "output": str(outp), "elapsed_s": elapsed,
             "iterations": res.iterations, "evaluations": res.evaluations, "success": res.success,
             "message": res.message, "band_hz": [lo, hi], "smoothing_octave_fraction": smoothing,
             "absorption_reference_hz": res.reference_hz,

@@ -138,7 +138,7 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
     best = res.ranked[0]
     if as_json:
         dump_json({
-            "roommodes_version": __version__, "room": room.name, "size_m": room.size_m,
+            "room": room.name, "size_m": room.size_m,
             "band_hz": res.band_hz, "weights": res.weights, "parts": list(PARTS),
             "score_definition": "sum of weight x part, each part in dB; lower is better (docs/placement.md)",
             "search": {"coarse_step_m": res.step_m, "candidates": res.n_candidates,
@@ -273,7 +273,7 @@ def explain(room_file, channels, threshold, band, freq_range, points_per_octave,
     n1, n2 = e.names
     if as_json:
         dump_json({
-            "roommodes_version": __version__, "room": room.name, "method": e.method, "channels": list(e.names),
+            "room": room.name, "method": e.method, "channels": list(e.names),
             "positions_m": list(e.positions_m), "seat_m": e.seat_m, "frequencies_hz": e.freq_hz,
             "level_db": {n1: e.level_db[0], n2: e.level_db[1]},
             "smoothed_db": {n1: e.smoothed_db[0], n2: e.smoothed_db[1]}, "smoothing_octave_fraction": e.smoothing,

@@ -316,7 +316,7 @@ def map_(room_file, freq_hz, height, channels, layout, step, units, method, plot
     xn, yn, low = fm.extreme("min")
     if as_json:
         dump_json({
-            "roommodes_version": __version__, "room": room.name, "layout": lay.name, "method": method,
+            "room": room.name, "layout": lay.name, "method": method,
             "freq_hz": fm.freq_hz, "height_m": fm.height_m, "channels": list(fm.channels),
             "speakers": [{"name": n, "position_m": p} for n, p in zip(fm.channels, fm.sources_m)],
             "x_m": fm.x_m, "y_m": fm.y_m, "level_db": fm.level_db,

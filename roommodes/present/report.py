@@ -29,7 +29,9 @@ import numpy as np
 from .. import __version__
 from ..model.modes import room_modes
 from ..analysis.maps import floor_level_map, mode_coupling
+from .serialise import document
 from .units import UNITS, format_length, wall_distances, walls_text
+from ..solvers import DEFAULT_METHOD
 
 __all__ = [
     "SEARCH_MODES", "EMBED_FORMATS", "MODEL_ASSUMPTIONS", "SAFETY_NOTES",
@@ -395,7 +397,7 @@ def _map_frequencies(coupling, features):
     return out
 
 
-def build_report(room, measurements=(), fit_targets=None, *, units="cm", search="full", method="modal",
+def build_report(room, measurements=(), fit_targets=None, *, units="cm", search="full", method=DEFAULT_METHOD,
                  embed="svg", room_text=None, inputs=(), command=None, created=None, files_folder=None,
                  map_freqs_hz=None, compare_band_hz=(20.0, 200.0), compare_smoothing=12, progress=None):
     """Run the whole tool on a room and lay the results out as one self-contained HTML page.
@@ -469,7 +471,7 @@ def build_report(room, measurements=(), fit_targets=None, *, units="cm", search=
     space = search_space(room)
     run = _Run(room=room, layout=layout, preset_used=preset_used, units=units, method=method, search=search,
                space=space, keep_out=space.keep_out, f=log_frequencies(15.0, 300.0, 48), doc=_Doc(embed),
-               values={"roommodes_version": __version__, "units": units}, glance=[], progress=progress,
+               values=document({"units": units}), glance=[], progress=progress,
                measurements=measurements, fit_targets=fit_targets, compare_band_hz=compare_band_hz,
                compare_smoothing=compare_smoothing, created=created, command=command, files_folder=files_folder,
                inputs=inputs, room_text=room_text, map_freqs_hz=map_freqs_hz, fit_res=None)

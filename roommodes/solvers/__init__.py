@@ -1,15 +1,17 @@
 """Solvers for the low-frequency transfer from a loudspeaker to a listener.
 
-Both solvers share one signature and one normalisation (``H = 4 pi G``: pressure
+The solvers share one signature and one normalisation (``H = 4 pi G``: pressure
 relative to the free-field pressure of the same source at 1 m), so they can be swapped
 and compared:
 
-* ``"modal"``: the modal sum of :mod:`roommodes.solvers.modal` (default; accurate and
-  fast at low frequency);
+* ``"modal"``: the modal sum of :mod:`roommodes.solvers.modal` (fast; its perturbation
+  damping drifts from the wave solution as absorption grows);
 * ``"image"``: the image-source sum of :mod:`roommodes.solvers.images`;
 * ``"exact"``: the frequency-domain solution of :mod:`roommodes.solvers.exact`, exact
   for locally reacting walls (Robin eigenfunctions on two axes, a closed-form 1-D
-  impedance Green's function on the third).
+  impedance Green's function on the third); the default (:data:`DEFAULT_METHOD`), as
+  its single predictions and floor maps cost about as much as the modal sum's
+  (tests/bench/bench_exact.py).
 """
 
 from __future__ import annotations
@@ -33,7 +35,7 @@ METHODS = {
     "exact": "separable wave solution of the box with impedance walls (the reference)",
 }
 #: The solver used where none is chosen.
-DEFAULT_METHOD = "modal"
+DEFAULT_METHOD = "exact"
 
 
 def _check_points(room, name, pts):
@@ -51,7 +53,7 @@ def _check_points(room, name, pts):
     return p
 
 
-def transfer_function(room, sources_m, receivers_m, freq_hz, method="modal", **options):
+def transfer_function(room, sources_m, receivers_m, freq_hz, method=None, **options):
     """Complex transfer from point sources to receivers in ``room``.
 
     Parameters
@@ -64,8 +66,8 @@ def transfer_function(room, sources_m, receivers_m, freq_hz, method="modal", **o
         Receiver positions, metres, inside the room.
     freq_hz : array_like, shape (F,)
         Frequencies, Hz.
-    method : {"modal", "image", "exact"}
-        Solver.
+    method : {"modal", "image", "exact"}, optional
+        Solver; default :data:`DEFAULT_METHOD`.
     **options
         Passed to the solver (``cutoff_hz`` for the modal sum; ``tol_db``,
         ``max_order``, ``reflection`` for image sources; ``tol_db``, ``near_m`` for
@@ -92,6 +94,7 @@ def transfer_function(room, sources_m, receivers_m, freq_hz, method="modal", **o
     if f.ndim != 1 or not np.all(np.isfinite(f)) or np.any(f <= 0):
         raise ValueError("freq_hz must be a 1-D array of positive frequencies in Hz")
     zeta = room.impedance(f)
+    method = DEFAULT_METHOD if method is None else method
     if method == "modal":
         return modal_transfer(room.size_m, zeta, src, rec, f, room.speed_of_sound, **options)
     if method == "image":

@@ -49,7 +49,7 @@ def test_modal_decomposition_sums_to_the_transfer():
     f = np.geomspace(30, 150, 30)
     src = [[0.5, 0.62, 1.15], [0.5, 2.27, 1.15]]
     idx, terms, rest = modal_decomposition(DEMO, src, [1.85, 1.45, 1.2], f)
-    h = transfer_function(DEMO, src, [[1.85, 1.45, 1.2]], f)[:, 0]
+    h = transfer_function(DEMO, src, [[1.85, 1.45, 1.2]], f, method="modal")[:, 0]
     np.testing.assert_allclose(terms.sum(axis=1) + rest[:, None], h, rtol=1e-6)
     assert tuple(idx[0]) == (0, 0, 0)
 

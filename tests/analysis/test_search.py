@@ -101,7 +101,7 @@ def test_scorer_transfers_equal_transfer_function():
     vec = np.array([0.5, 0.62, 1.15, 0.5, 2.27, 1.15, 1.85, 1.45, 1.2])
     h = sc.transfer_layouts(vec[None])[0]  # (2, A, F)
     rec = vec[6:9] + area_offsets((0.6, 0.6), (3, 3))
-    ref = transfer_function(DEMO, vec[:6].reshape(2, 3), rec, sc.freq_hz)
+    ref = transfer_function(DEMO, vec[:6].reshape(2, 3), rec, sc.freq_hz, method="modal")
     np.testing.assert_allclose(h, ref, rtol=1e-6)
     block = sc.transfer_block(vec[:6].reshape(2, 3), rec)
     np.testing.assert_allclose(block, ref, rtol=1e-6)
@@ -180,7 +180,7 @@ def test_score_parts_from_transfer_function_equal_the_batched_scores():
     got = score_layouts(room, [layout], weights=w)[0]
     f = log_frequencies(48 / 2 ** (1 / 6), 200 * 2 ** (1 / 6), 24)  # the documented search grid
     rec = np.asarray(layout.seat_m) + area_offsets((0.6, 0.6), (3, 3))
-    h = transfer_function(room, layout.source_positions_m, rec, f)
+    h = transfer_function(room, layout.source_positions_m, rec, f, method="modal")
     lv = [20 * np.log10(np.abs(h[c] * speaker_response(layout.speakers[c], f))) for c in range(2)]
     ref = score_parts(f, lv[0], lv[1], (48.0, 200.0))
     for k in PARTS[:4]:
@@ -213,7 +213,7 @@ def test_mirror_symmetric_pair_has_zero_mismatch_and_robustness_is_its_mean_wors
     for move in perturbations():
         v = np.clip(base + move.ravel(), 0.02, np.tile(DEMO.size_m, 3) - 0.02)
         rec = v[6:9] + area_offsets((0.6, 0.6), (3, 3))
-        h = transfer_function(DEMO, v[:6].reshape(2, 3), rec, f)
+        h = transfer_function(DEMO, v[:6].reshape(2, 3), rec, f, method="modal")
         lv = [20 * np.log10(np.abs(h[c, 4] * speaker_response(lay.speakers[c], f))) for c in range(2)]
         worse.append(float(mismatch_db(f, lv[0], lv[1], (48.0, 200.0))))
     assert got.parts["robustness"] == pytest.approx(np.mean(worse), rel=1e-6)
@@ -240,7 +240,7 @@ def _grid(lo, hi, step):  # the documented rule: n = round((hi - lo) / step) + 1
 def _reference_score(room, vec, speakers, f, band, offsets):
     def s4(v):
         rec = v[6:9] + offsets
-        h = transfer_function(room, v[:6].reshape(2, 3), rec, f)
+        h = transfer_function(room, v[:6].reshape(2, 3), rec, f, method="modal")
         lv = [20 * np.log10(np.abs(h[c] * speaker_response(speakers[c], f))) for c in range(2)]
         parts = score_parts(f, lv[0], lv[1], band)
         return sum(DEFAULT_WEIGHTS[k] * parts[k] for k in PARTS[:4])
