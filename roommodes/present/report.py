@@ -31,7 +31,7 @@ from ..model.modes import room_modes
 from ..analysis.maps import floor_level_map, mode_coupling
 from .serialise import document
 from .units import UNITS, format_length, wall_distances, walls_text
-from ..solvers import DEFAULT_METHOD
+from ..solvers import ACCURACY_DB, ASSUMPTIONS, DEFAULT_METHOD
 
 __all__ = [
     "SEARCH_MODES", "EMBED_FORMATS", "MODEL_ASSUMPTIONS", "SAFETY_NOTES",
@@ -52,9 +52,7 @@ MODEL_ASSUMPTIONS = (
     "(plasterboard, timber) enter only through that coefficient.",
     "Each loudspeaker is a point source at its woofer centre; its own low-frequency roll-off is a "
     "Butterworth high-pass at lowcut_hz (2nd order sealed, 4th order vented) or an imported curve.",
-    "The transfer is the modal sum of the rigid-wall modes with perturbation damping and a closed-form "
-    "static tail for the modes above the cutoff (docs/methods.md). Levels are in dB relative to the "
-    "free-field level of the same speaker at 1 m.",
+    "Levels are in dB relative to the free-field level of the same speaker at 1 m.",
     "Speakers play the same signal in phase when they are summed (the mono sum and the floor maps).",
 )
 
@@ -1000,7 +998,7 @@ def _section_validity(run):
     step("validity, cautions, reproduction")
     doc.section("validity", "How far to trust this report")
     doc.h3("What the model assumes")
-    doc.ul(MODEL_ASSUMPTIONS)
+    doc.ul(MODEL_ASSUMPTIONS + (ASSUMPTIONS[run.method] + " (docs/methods.md)",))
     doc.h3("Where it stops being trustworthy")
     limits = [f"Above the Schroeder frequency, {fs:.0f} Hz here (shaded in every figure): modes overlap and details "
               "of the real room the box model does not know (furniture, openings, the walls' construction) decide "
@@ -1014,15 +1012,17 @@ def _section_validity(run):
         limits.append(f"The seat is {L(dmin)} from the nearest speaker: close to a real cabinet the point-source "
                       "model and the woofer's size matter.")
     hi_abs = [s.name for s in room.surfaces if float(s.absorption_at([125.0])[0]) > 0.45]
-    if hi_abs:
+    if hi_abs and run.method == "modal":
         limits.append("Strongly absorbing surfaces (" + ", ".join(hi_abs) + ", alpha above 0.45 at 125 Hz): the "
                       "perturbation damping of the modes is least accurate there.")
     limits.append("Positions are as accurate as the tape measure: at 200 Hz a 5 cm error moves a mode's pattern by "
                   "about a tenth of the distance between its node and its maximum. The placement score's "
                   "robustness part accounts for 5 cm moves.")
-    limits.append("In the project's comparison with a finite-element wave solution of the same box (docs/methods.md), "
-                  "the modal sum differs by a median 0.08 dB (90th percentile 0.68 dB) over 20-200 Hz: the model is "
-                  "far more exact than the room is a box.")
+    med, p90 = ACCURACY_DB[run.method]
+    limits.append(f"In the project's comparison with a finite-element wave solution of the same box "
+                  f"(docs/validation.md), the {run.method} solver used here differs by a median {med:.2g} dB "
+                  f"(90th percentile {p90:.2g} dB) over 20-200 Hz: the model is solved far more exactly than the "
+                  "room is a box.")
     doc.ul(limits)
     doc.h3("What the measurements and the fit changed")
     if fit_res is not None:
