@@ -11,14 +11,14 @@ The public API, re-exported here, is what the command-line tool uses:
 
 __version__ = "0.1.0"
 
+from .analysis.predict import Prediction, predict, response_features, room_schroeder_frequency
+from .analysis.summary import room_summary
+from .dsp.response import Response, log_frequencies, smooth_fractional_octave
+from .io.roomfile import RoomFileError, demo_room_path, example_rooms, load_room, room_to_toml
 from .model.modes import ModeSet, room_modes
 from .model.placement import PRESETS, preset_layout
-from .analysis.predict import Prediction, predict, response_features, room_schroeder_frequency
-from .dsp.response import Response, log_frequencies, smooth_fractional_octave
 from .model.room import WALLS, Layout, Room, Speaker, Surface, speed_of_sound
-from .io.roomfile import RoomFileError, demo_room_path, example_rooms, load_room, room_to_toml
 from .solvers import transfer_function
-from .analysis.summary import room_summary
 
 __all__ = [
     "__version__",

@@ -30,8 +30,14 @@ import numpy as np
 from scipy.signal import find_peaks, peak_widths
 
 from ..dsp.response import Response, align_level, log_frequencies, smooth_db
-from .levels import speaker_levels
+from ..io.importers import MeasurementFileError, average_curves, read_response_text
+from ..io.wavio import read_wav
+from ..measure.decay import onset_index
+from ..measure.deconvolve import frequency_response
+from ..model.modes import mode_shapes, room_modes
 from ..solvers import DEFAULT_METHOD
+from .levels import speaker_levels
+from .predict import boundary_notches
 
 __all__ = [
     "DEFAULT_BAND_HZ",
@@ -97,7 +103,6 @@ class Measurement:
     transfer, valid
         As in :class:`~roommodes.response.Response`: None for measurements.
     """
-
     freq_hz: np.ndarray
     level_db: np.ndarray
     label: str = ""
@@ -176,8 +181,6 @@ def load_measurement(path, channel=None, window_s=DEFAULT_WINDOW_S, freq_hz=None
     ``H(f) = sum_k w[k] h[n0 + k] exp(-2 pi j f k / fs)`` evaluated directly at each
     frequency (:func:`roommodes.measure.deconvolve.frequency_response`), ``w`` the window.
     """
-    from ..io.importers import MeasurementFileError, read_response_text
-
     p = Path(path)
     name = str(path)
     if not p.exists():
@@ -207,10 +210,6 @@ def load_measurement(path, channel=None, window_s=DEFAULT_WINDOW_S, freq_hz=None
 
 
 def _load_ir_wav(p, name, channel, window_s, f, taper_fraction):
-    from ..measure.decay import onset_index
-    from ..measure.deconvolve import frequency_response
-    from ..io.importers import MeasurementFileError
-    from ..io.wavio import read_wav
 
     try:
         ir, fs, _info = read_wav(p, channel)
@@ -253,8 +252,6 @@ def average_measurements(measurements, mode="power", label=None):
         On the first curve's grid points that lie inside every curve's range, with
         ``std_db``, ``min_db`` and ``max_db`` (:func:`roommodes.measure.importers.average_curves`).
     """
-    from ..io.importers import average_curves
-
     ms = list(measurements)
     if not ms:
         raise ValueError("average_measurements needs at least one measurement")
@@ -352,7 +349,6 @@ class Comparison:
         Pearson correlation of the two smoothed dB curves in ``band_hz``.
     in_band : ndarray of bool (F,)
     """
-
     freq_hz: np.ndarray
     measured_db: np.ndarray
     reference_db: np.ndarray
@@ -454,7 +450,6 @@ class CurveFeature:
     width_octaves : float
         Width at half the prominence, in octaves.
     """
-
     kind: str
     freq_hz: float
     level_db: float
@@ -535,7 +530,6 @@ class FeatureMatch:
     axis : str or None
         ``"length"``, ``"width"`` or ``"height"`` when that mode is axial.
     """
-
     kind: str
     measured: CurveFeature | None
     reference: CurveFeature | None
@@ -552,10 +546,7 @@ class _Explainer:
     most strongly to the source and the receivers (``|psi(source)| rms(psi(receivers))``);
     a dip to a first boundary notch ``c / 4d`` of the source within 15 %.
     """
-
     def __init__(self, room, source_m, receivers_m, fmax_hz):
-        from ..model.modes import mode_shapes, room_modes
-        from .predict import boundary_notches
 
         self.modes = room_modes(room, fmax_hz * 1.25)
         idx = self.modes.indices
@@ -663,7 +654,6 @@ def interpret(matches, comparison=None, room=None, names=("measured", "predicted
     Notes
     -----
     Rules (thresholds are common practice, not from a standard):
-
     * Frequency shift: with at least three paired peaks (else all pairs), a median
       ratio at least 1.5 % from 1 with three quarters or more of the pairs on the same
       side. Lower measured frequencies mean the room behaves larger than the file says:
@@ -756,7 +746,6 @@ class ComparisonReport:
         Microphone positions the prediction used.
     channel : str or None
     """
-
     comparison: Comparison
     matches: list
     interpretation: tuple

@@ -13,12 +13,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import eq
-from .levels import speaker_levels
-from .predict import predict
 from ..dsp.response import log_frequencies, smooth_fractional_octave
 from ..model.room import Layout
 from ..solvers import DEFAULT_METHOD
+from . import eq
+from .levels import speaker_levels
+from .predict import predict
 
 __all__ = ["ChannelCorrection", "correct_curve", "correct_prediction", "default_band",
            "NEIGHBOUR_STEP_M"]

@@ -43,10 +43,10 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from . import _eqfit
 from ..dsp.bands import BandSet, band_label, iec_bands
 from ..dsp.checks import check_range
 from ..dsp.response import align_level
+from . import _eqfit
 
 __all__ = [
     "FILTER_TYPES",

@@ -39,14 +39,14 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from ..model.modes import KINDS, mode_shapes
-from .levels import speaker_levels
-from .predict import boundary_notches, room_schroeder_frequency, usable_band
 from ..dsp.response import level_db, log_frequencies, smooth_db
+from ..model.modes import KINDS, mode_shapes
 from ..model.room import WALL_AXIS, WALL_FAR, WALLS
-from ..solvers.modal import modal_weights, static_tail_term
 from ..model.speaker import speaker_response
 from ..solvers import DEFAULT_METHOD
+from ..solvers.modal import modal_weights, static_tail_term
+from .levels import speaker_levels
+from .predict import boundary_notches, room_schroeder_frequency, usable_band
 
 __all__ = ["Cause", "Move", "Region", "Explanation", "explain", "modal_decomposition"]
 

@@ -27,10 +27,9 @@ import numpy as np
 from scipy.optimize import least_squares
 
 from ..dsp.response import log_frequencies, smooth_db
-from ..model.room import WALLS, Surface
-from ..model.room import WALL_MARGIN_M
-from .levels import speaker_levels
+from ..model.room import WALL_MARGIN_M, WALLS, Surface
 from ..solvers import DEFAULT_METHOD
+from .levels import speaker_levels
 
 __all__ = ["ABSORPTION_GROUPS", "FitParameter", "FitResult", "FitTarget", "fit_error", "fit_room"]
 

@@ -16,9 +16,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..model.modes import mode_shapes, room_modes
+from ..solvers import DEFAULT_METHOD
 from .levels import speaker_levels
 from .predict import DEFAULT_RANGE_HZ, room_schroeder_frequency
-from ..solvers import DEFAULT_METHOD
 
 __all__ = ["MATTERS_COUPLING", "ModeCoupling", "FloorMap", "mode_coupling", "floor_level_map"]
 

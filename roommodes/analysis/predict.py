@@ -13,13 +13,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .levels import speaker_levels
-
+from ..dsp.response import level_db, log_frequencies, smooth_db
 from ..model.criteria import sabine_rt60, schroeder_frequency
 from ..model.modes import mode_shapes, room_modes
-from ..dsp.response import level_db, log_frequencies, smooth_db
 from ..model.room import WALL_AXIS, WALL_FAR, WALLS
 from ..solvers import DEFAULT_METHOD
+from .levels import speaker_levels
 
 __all__ = ["Channel", "Prediction", "predict", "room_schroeder_frequency", "response_features",
            "boundary_notches", "Feature", "usable_band", "band_figures"]

@@ -44,13 +44,12 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from .predict import usable_band
-from ..model.placement import PRESETS, SEAT_HEIGHT_M, preset_layout
 from ..dsp.response import log_frequencies, smooth_fractional_octave
-from ..model.room import Layout, Speaker
-from ..model.room import WALL_MARGIN_M
-from ..solvers.modal import modal_sum_block, modal_weights, static_green_block, static_green_pairs
+from ..model.placement import PRESETS, SEAT_HEIGHT_M, preset_layout
+from ..model.room import WALL_MARGIN_M, Layout, Speaker
 from ..model.speaker import speaker_response
+from ..solvers.modal import modal_sum_block, modal_weights, static_green_block, static_green_pairs
+from .predict import usable_band
 
 __all__ = [
     "PARTS", "DEFAULT_WEIGHTS", "KeepOut", "SearchSpace", "ScoredLayout", "SearchResult",

@@ -6,8 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..model.criteria import (bonello_checks, eyring_rt60, integer_ratio_check, proportion_rule_check,
-                       sabine_rt60)
+from ..model.criteria import bonello_checks, eyring_rt60, integer_ratio_check, proportion_rule_check, sabine_rt60
 from ..model.modes import mode_indices
 from .predict import room_schroeder_frequency
 

@@ -5,12 +5,11 @@ from __future__ import annotations
 from pathlib import Path
 
 import click
-
-from ..present.serialise import dumps
-from ..solvers import DEFAULT_METHOD, METHODS
 import numpy as np
 
 from ..io.roomfile import RoomFileError, load_room
+from ..present.serialise import dumps
+from ..solvers import DEFAULT_METHOD, METHODS
 
 CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
 

@@ -17,10 +17,27 @@ import numpy as np
 
 from .. import __version__
 from ..analysis.predict import band_figures, usable_band
-from ._util import (CONTEXT, MODEL_CAUTION, UserError, check_output, dump_json, echo_err,
-                       fail, freq_range_option, json_option, layouts_for, load_or_fail, method_option,
-                       parse_range, ppo_option, protect_inputs, units_option, walls_text)
 from ..io.roomfile import demo_room_path, load_room
+from ._util import (
+    CONTEXT,
+    MODEL_CAUTION,
+    UserError,
+    check_output,
+    dump_json,
+    echo_err,
+    fail,
+    freq_range_option,
+    json_option,
+    layouts_for,
+    load_or_fail,
+    method_option,
+    parse_range,
+    ppo_option,
+    protect_inputs,
+    units_option,
+    walls_text,
+)
+
 
 class _Group(click.Group):
     """Turns input problems raised below the CLI into one line and exit code 2."""
@@ -72,9 +89,9 @@ def modes(room_file, freq_range, plot_path, force, as_json):
     half-power bandwidth from the surfaces' absorption. Summary: volume, area, Sabine and
     Eyring RT60 at 63/125/250 Hz, Schroeder frequency, and room-proportion checks.
     """
+    from ..analysis.summary import room_summary
     from ..model.criteria import note_name
     from ..model.modes import room_modes
-    from ..analysis.summary import room_summary
 
     lo, hi = parse_range(freq_range, allow_zero=True)
     room = load_or_fail(room_file)
@@ -157,10 +174,10 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
     Levels are in dB relative to the free-field level the same speaker gives at 1 m, so
     0 dB means "as loud as at 1 m outdoors"; room gain shows as positive values.
     """
-    from ..model.modes import room_modes
     from ..analysis.predict import predict as run_predict
     from ..analysis.predict import response_features
     from ..dsp.response import log_frequencies
+    from ..model.modes import room_modes
 
     lo, hi = parse_range(freq_range)
     room = load_or_fail(room_file)
@@ -233,12 +250,12 @@ def demo(out_dir):
     placements, searches for a better placement, explains the left/right differences,
     designs the bass correction, and writes the figures and a full HTML report into OUT.
     """
-    from ..model.modes import room_modes
-    from ..model.placement import PRESETS, preset_layout
-    from ..present.plots import plot_modes, plot_prediction
     from ..analysis.predict import predict as run_predict
     from ..analysis.predict import response_features
     from ..analysis.summary import room_summary
+    from ..model.modes import room_modes
+    from ..model.placement import PRESETS, preset_layout
+    from ..present.plots import plot_modes, plot_prediction
 
     path = demo_room_path()
     room = load_room(path)
@@ -275,8 +292,8 @@ def demo(out_dir):
     plot_prediction(preds, ms, title=f"{room.name}: layouts compared", path=out_dir / "predict-layouts.png")
     click.echo("")
     click.echo("Placement search, left/right explanation and bass correction (the full report):")
-    from .report import write_report
     from ..present.report import build_report
+    from .report import write_report
 
     t0 = time.perf_counter()
     rep = build_report(room, room_text=path.read_text(encoding="utf-8"), command="roommodes demo",

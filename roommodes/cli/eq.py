@@ -8,8 +8,21 @@ import click
 import numpy as np
 
 from .. import __version__
-from ._util import (CONTEXT, check_output, dump_json, echo_err, fail, freq_range_option, json_option,
-                       layouts_for, load_or_fail, method_option, parse_range, ppo_option, protect_inputs)
+from ._util import (
+    CONTEXT,
+    check_output,
+    dump_json,
+    echo_err,
+    fail,
+    freq_range_option,
+    json_option,
+    layouts_for,
+    load_or_fail,
+    method_option,
+    parse_range,
+    ppo_option,
+    protect_inputs,
+)
 
 _SPL_TABLE_HZ = (31.5, 40.0, 50.0, 63.0, 80.0, 100.0, 125.0, 160.0, 200.0)
 

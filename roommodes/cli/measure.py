@@ -22,8 +22,19 @@ import click
 import numpy as np
 
 from .. import __version__
-from ._util import (CONTEXT, MODEL_CAUTION, UserError, check_output, dump_json, echo_err, fail, json_option,
-                       load_or_fail, method_option, protect_inputs)
+from ._util import (
+    CONTEXT,
+    MODEL_CAUTION,
+    UserError,
+    check_output,
+    dump_json,
+    echo_err,
+    fail,
+    json_option,
+    load_or_fail,
+    method_option,
+    protect_inputs,
+)
 
 __all__ = ["CAUTIONS", "COMMANDS", "GUIDANCE", "bands", "compare", "decay", "fit", "ir", "noise", "sweep"]
 
@@ -229,9 +240,9 @@ def sweep(out, fs_hz, duration_s, f1_hz, f2_hz, level_dbfs, fade_in_s, fade_out_
     needs to turn a recording of the sweep into an impulse response. The default level is
     -12 dBFS peak: set the loudness with the playback volume, starting low.
     """
-    from ..measure.sweep import exponential_sweep
-    from ..io.wavio import write_wav_atomic
     from ..io.roomfile import write_text_atomic
+    from ..io.wavio import write_wav_atomic
+    from ..measure.sweep import exponential_sweep
 
     wav = _wav_output(out, force)
     desc = _sweep_json_path(wav)
@@ -316,8 +327,8 @@ def ir(recording, sweep_path, out, wav_channel, loopback, ir_length_s, plot_path
     recording that is too short, and says what to do. Reports the delay, the
     signal-to-noise ratio and the harmonic distortion at low frequency per octave band.
     """
-    from ..measure.deconvolve import RecordingError, deconvolve
     from ..io.wavio import write_wav_atomic
+    from ..measure.deconvolve import RecordingError, deconvolve
 
     spec, desc = _load_sweep_spec(sweep_path)
     y, fs, _ = _read_wav_or_fail(recording, wav_channel)
@@ -396,8 +407,8 @@ def noise(out, fs_hz, duration_s, level_dbfs, band, seed, subtype, force, as_jso
     recording of it at the seat (`roommodes bands`) are the room's response. Default
     -20 dBFS rms; set the loudness with the playback volume, starting low.
     """
-    from ..measure.signals import crest_factor_db, pink_noise
     from ..io.wavio import write_wav_atomic
+    from ..measure.signals import crest_factor_db, pink_noise
 
     lo, hi = _parse_band(band) if band else (20.0, min(20000.0, 0.45 * fs_hz))
     wav = _wav_output(out, force)
@@ -448,8 +459,8 @@ def bands(recording, wav_channel, fraction, band, out, force, as_json):
     Because pink noise has equal power per band, the band levels are the response at the
     seat up to a constant; `-o` writes them as a curve `compare`, `fit` and `eq` accept.
     """
-    from ..measure.signals import band_levels
     from ..io.roomfile import write_text_atomic
+    from ..measure.signals import band_levels
 
     lo, hi = _parse_band(band)
     x, fs, _ = _read_wav_or_fail(recording, wav_channel)

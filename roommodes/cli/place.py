@@ -196,9 +196,9 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
 
 
 def _place_plot(room, space, res, path):
-    from ..present.plots_place import plot_place
     from ..analysis.predict import predict
     from ..analysis.search import front_distance_profile, seat_score_map
+    from ..present.plots_place import plot_place
 
     best = res.ranked[0].layout
     preds = [("best", predict(room, best))]
@@ -245,8 +245,8 @@ def explain(room_file, channels, threshold, band, freq_range, points_per_octave,
     predicts the effect of the single speaker move that reduces the difference most.
     """
     from ..analysis.explain import explain as run_explain
-    from ..dsp.response import log_frequencies
     from ..analysis.search import search_space
+    from ..dsp.response import log_frequencies
 
     if not math.isfinite(threshold) or threshold <= 0:
         fail(f"--threshold must be a positive number of dB, got {threshold:g}")

@@ -26,12 +26,23 @@ import click
 import numpy as np
 
 from .. import __version__
-from ._util import (CONTEXT, MODEL_CAUTION, UserError, check_output, dump_json, echo_err, fail, json_option,
-                       layouts_for, load_or_fail, method_option, protect_inputs)
-from .measure import (_guard, _measured_files_options, _measurement_specs, _wav_channel_option,
-                          _window_option)
 from ..present.report import EMBED_FORMATS, SEARCH_MODES
 from ..present.units import UNITS, format_length, parse_length, parse_lengths, walls_text
+from ._util import (
+    CONTEXT,
+    MODEL_CAUTION,
+    UserError,
+    check_output,
+    dump_json,
+    echo_err,
+    fail,
+    json_option,
+    layouts_for,
+    load_or_fail,
+    method_option,
+    protect_inputs,
+)
+from .measure import _guard, _measured_files_options, _measurement_specs, _wav_channel_option, _window_option
 
 __all__ = ["report", "map_", "init", "COMMANDS", "room_sketch", "commented_room_toml"]
 
@@ -148,10 +159,10 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
     reproduce it. It opens offline in any browser and prints on A4 or Letter. Every figure
     is also written as PNG and SVG, and every table as CSV, into NAME_files/ beside it.
     """
-    from .measure import _load_measurements, _require_file
     from ..analysis.fit import FitTarget
-    from ..present.report import MeasuredCurve, build_report
     from ..dsp.response import log_frequencies
+    from ..present.report import MeasuredCurve, build_report
+    from .measure import _load_measurements, _require_file
 
     out = Path(out)
     if out.suffix.lower() not in (".html", ".htm"):

@@ -2,7 +2,6 @@
 
 Every problem is reported as a :class:`RoomFileError` naming the file, the key path and
 what is allowed, e.g.::
-
     studio.toml: [speakers.left] position_m: y = 3.75 m lies outside the room (0 < y < 3.60 m)
 
 The format is documented key by key in docs/room-file.md.
@@ -18,7 +17,9 @@ from pathlib import Path
 
 import numpy as np
 
+from ..model.materials import get_material
 from ..model.room import MAX_DIMENSION_M, MIN_DIMENSION_M, WALL_MARGIN_M, WALLS, Layout, Room, Speaker, Surface
+from .importers import read_response_text
 
 __all__ = ["RoomFileError", "load_room", "parse_room", "room_to_toml", "demo_room_path",
            "example_rooms", "write_text_atomic"]
@@ -94,7 +95,6 @@ class _Ctx:
 
 def _parse_surface(ctx, name, value):
     key = f"[surfaces] {name}"
-    from ..model.materials import get_material
 
     if isinstance(value, str) or (isinstance(value, dict) and "material" in value):
         mat_name = value if isinstance(value, str) else value["material"]
@@ -256,10 +256,6 @@ def _read_speaker_curve(ctx, key, rfile, base_dir):
     path = Path(rfile)
     if not path.is_absolute() and base_dir is not None:
         path = Path(base_dir) / path
-    try:
-        from .importers import read_response_text
-    except ImportError:  # pragma: no cover - importers are part of the package
-        ctx.fail(key, "reading response files needs roommodes.measure.importers")
     try:
         curve = read_response_text(path)
     except (OSError, ValueError) as exc:

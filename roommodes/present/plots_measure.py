@@ -8,6 +8,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..dsp.response import log_frequencies
+from ..measure.deconvolve import frequency_response
 from .plots import PALETTE, new_figure, save_figure, style_frequency_axis
 
 __all__ = ["plot_comparison", "plot_fit", "plot_impulse_response", "plot_waterfall"]
@@ -123,9 +125,6 @@ def plot_impulse_response(ir, fs_hz, title=None, path=None, freq_range_hz=(15.0,
     -------
     matplotlib.figure.Figure
     """
-    from ..measure.deconvolve import frequency_response
-    from ..dsp.response import log_frequencies
-
     h = np.asarray(ir, dtype=float)
     t = np.arange(h.size) / fs_hz
     fig, (ax, ax2) = new_figure(10.0, 3.8, 1, 2)

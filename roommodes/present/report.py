@@ -27,11 +27,27 @@ from dataclasses import dataclass
 import numpy as np
 
 from .. import __version__
-from ..model.modes import room_modes
+from ..analysis import eq as eqmod
+from ..analysis.compare import average_measurements, compare_to_prediction
+from ..analysis.correction import correct_prediction
+from ..analysis.explain import explain as run_explain
+from ..analysis.fit import fit_room
 from ..analysis.maps import floor_level_map, mode_coupling
+from ..analysis.predict import band_figures, predict, response_features, usable_band
+from ..analysis.search import PARTS, front_distance_profile, search_layouts, search_space, seat_score_map
+from ..analysis.summary import room_summary
+from ..dsp.response import log_frequencies
+from ..model.criteria import note_name
+from ..model.materials import get_material
+from ..model.modes import room_modes
+from ..model.placement import PRESETS, preset_layout
+from ..solvers import ACCURACY_DB, ASSUMPTIONS, DEFAULT_METHOD
+from .plots import plot_correction, plot_modes, plot_prediction
+from .plots_measure import plot_comparison, plot_fit
+from .plots_place import plot_explain, plot_place
+from .plots_report import plot_floor_map, plot_mode_coupling, plot_room_views
 from .serialise import document
 from .units import UNITS, format_length, wall_distances, walls_text
-from ..solvers import ACCURACY_DB, ASSUMPTIONS, DEFAULT_METHOD
 
 __all__ = [
     "SEARCH_MODES", "EMBED_FORMATS", "MODEL_ASSUMPTIONS", "SAFETY_NOTES",
@@ -84,7 +100,6 @@ class MeasuredCurve:
         Microphone position, m.
     measurement : roommodes.compare.Measurement
     """
-
     channel: str
     position_m: tuple
     measurement: object
@@ -109,7 +124,6 @@ class Table:
         page's ``data-value`` attributes.
     note : str
     """
-
     name: str
     number: int
     title: str
@@ -141,7 +155,6 @@ class ReportFigure:
     title, caption : str
     png, svg : bytes
     """
-
     name: str
     number: int
     title: str
@@ -166,7 +179,6 @@ class Report:
     glance : tuple of str
         The "At a glance" sentences of the page, for printing.
     """
-
     html: str
     figures: tuple
     tables: tuple
@@ -255,7 +267,6 @@ code { font-size: 0.9em; }
 
 class _Doc:
     """Accumulates the page's sections, figures and tables, numbering them."""
-
     def __init__(self, embed):
         self.embed = embed
         self.parts = []
@@ -353,8 +364,6 @@ def _val(key, value, text):
 # ======================================================================================
 def _analysis_layout(room):
     """The file's layout, or the first preset that fits a room without one."""
-    from ..model.placement import PRESETS, preset_layout
-
     if room.layout is not None:
         return room.layout, None
     for name in PRESETS:
@@ -453,9 +462,6 @@ def build_report(room, measurements=(), fit_targets=None, *, units="cm", search=
     that prints it with ``--json`` (``modes``, ``predict``, ``place``, ``explain``, ``eq``,
     ``compare``, ``fit``), so the page and those commands agree.
     """
-    from ..dsp.response import log_frequencies
-    from ..analysis.search import search_space
-
     if units not in UNITS:
         raise ValueError(f"units must be one of {', '.join(UNITS)}, got {units!r}")
     if search not in SEARCH_MODES:
@@ -495,7 +501,6 @@ class _Run:
     The inputs, the page being built, the headline sentences, and what earlier sections
     computed.
     """
-
     def __init__(self, **kw):
         self.__dict__.update(kw)
 
@@ -509,9 +514,6 @@ class _Run:
 
 def _section_room(run):
     """The room drawn to scale, its surfaces, figures and proportion checks."""
-    from .plots_report import plot_room_views
-    from ..analysis.summary import room_summary
-
     doc, values, glance, step, L = run.doc, run.values, run.glance, run.step, run.L
     room, layout, preset_used, units, keep_out = run.room, run.layout, run.preset_used, run.units, run.keep_out
     lx, ly, lz = room.size_m
@@ -548,8 +550,6 @@ def _section_room(run):
         a = s.absorption_at([63.0, 125.0, 250.0])
         desc = ""
         if s.material:
-            from ..model.materials import get_material
-
             desc = get_material(s.material).description
         rows.append([s.name, _num(area, ".2f"), s.describe(), desc, _num(a[0], ".2f"), _num(a[1], ".2f"),
                      _num(a[2], ".2f"),
@@ -585,9 +585,6 @@ def _section_room(run):
 
 def _section_modes(run):
     """The modes that matter at the seat, and the floor maps."""
-    from .plots_report import plot_floor_map, plot_mode_coupling
-    from ..analysis.predict import predict, response_features
-
     doc, values, glance, step, L = run.doc, run.values, run.glance, run.step, run.L
     room, layout, units, method, f = run.room, run.layout, run.units, run.method, run.f
     map_freqs_hz, coupling = run.map_freqs_hz, run.coupling
@@ -662,11 +659,6 @@ def _section_modes(run):
 
 def _section_responses(run):
     """Predicted responses of the file's layout and the presets."""
-    from ..analysis.predict import band_figures, usable_band
-    from ..model.placement import PRESETS, preset_layout
-    from .plots import plot_prediction
-    from ..analysis.predict import predict
-
     doc, glance, room, layout, preset_used = run.doc, run.glance, run.room, run.layout, run.preset_used
     method, f, ms300, pred, feats = run.method, run.f, run.ms300, run.pred, run.feats
     first_feats = run.first_feats
@@ -722,8 +714,6 @@ def _section_responses(run):
 
 def _section_placement(run):
     """The placement search and the left/right explanation."""
-    from ..analysis.search import PARTS
-
     doc, values, glance, step, L = run.doc, run.values, run.glance, run.step, run.L
     room, layout, preset_used, units, method = run.room, run.layout, run.preset_used, run.units, run.method
     f, space, keep_out, search = run.f, run.space, run.keep_out, run.search
@@ -733,7 +723,6 @@ def _section_placement(run):
               "file, or make the report again with --search full.")
     else:
         step(f"placement search ({search})")
-        from ..analysis.search import search_layouts
 
         res = search_layouts(room, space, refine=(search == "full"))
         best = res.ranked[0]
@@ -792,9 +781,6 @@ def _section_placement(run):
     if len(layout.speakers) < 2:
         doc.p("The layout has one speaker: nothing to compare.")
     else:
-        from ..analysis.explain import explain as run_explain
-        from .plots_place import plot_explain
-
         e = run_explain(room, layout, freq_hz=f, keep_out=keep_out, method=method)
         n1, n2 = e.names
         values["band_mismatch_db"] = e.band_mismatch_db
@@ -831,10 +817,6 @@ def _section_placement(run):
 
 def _section_eq(run):
     """Bass correction and headroom, channel by channel."""
-    from ..analysis import eq as eqmod
-    from ..analysis.correction import correct_prediction
-    from .plots import plot_correction
-
     doc, values, glance, step, room = run.doc, run.values, run.glance, run.step, run.room
     layout, method, f = run.layout, run.method, run.f
     step("bass correction")
@@ -909,9 +891,6 @@ def _section_measurements(run):
     compare_band_hz, compare_smoothing = run.compare_band_hz, run.compare_smoothing
     fit_res = None
     if measurements or fit_targets:
-        from ..analysis.compare import average_measurements, compare_to_prediction
-        from .plots_measure import plot_comparison, plot_fit
-
         doc.section("measurements", "Measured against predicted")
         by_channel = {}
         for m in measurements:
@@ -959,7 +938,6 @@ def _section_measurements(run):
                           f"{cmp.band_hz[0]:g}-{cmp.band_hz[1]:g} Hz.")
         if fit_targets:
             step("fit")
-            from ..analysis.fit import fit_room
 
             fit_res = fit_room(room, list(fit_targets), method=method)
             eb, ea = fit_res.error_before, fit_res.error_after
@@ -991,8 +969,6 @@ def _section_measurements(run):
 
 def _section_validity(run):
     """What the model assumes, where it stops being trustworthy; the cautions."""
-    from ..analysis import eq as eqmod
-
     doc, step, L, room, layout = run.doc, run.step, run.L, run.room, run.layout
     measurements, summ, fs, fit_res = run.measurements, run.summ, run.fs, run.fit_res
     step("validity, cautions, reproduction")
@@ -1082,9 +1058,6 @@ def _section_reproduce(run):
 
 def _section_appendix(run):
     """Every mode up to 200 Hz."""
-    from ..model.criteria import note_name
-    from .plots import plot_modes
-
     doc, room, ms300 = run.doc, run.room, run.ms300
     doc.section("appendix", "Appendix: room modes up to 200 Hz")
     rows = []
@@ -1102,10 +1075,6 @@ def _section_appendix(run):
 
 def _placement_figure(room, space, res, current, method):
     """The ``place`` command's figure for a search result."""
-    from .plots_place import plot_place
-    from ..analysis.predict import predict
-    from ..analysis.search import front_distance_profile, seat_score_map
-
     best = res.ranked[0].layout
     preds = [("best", predict(room, best, method=method))]
     if current is not None and len(current.speakers) >= 2:

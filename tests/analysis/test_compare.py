@@ -28,11 +28,11 @@ from roommodes.analysis.compare import (
     match_features,
     predicted_level,
 )
+from roommodes.analysis.predict import predict
 from roommodes.io.importers import MeasurementFileError
+from roommodes.io.roomfile import parse_room
 from roommodes.io.wavio import write_wav_atomic
 from roommodes.model.modes import mode_frequencies
-from roommodes.analysis.predict import predict
-from roommodes.io.roomfile import parse_room
 
 WALLS6 = ("front", "back", "left", "right", "floor", "ceiling")
 

@@ -11,9 +11,9 @@ import pytest
 
 from roommodes import demo_room_path, load_room, predict, preset_layout, transfer_function
 from roommodes.analysis.explain import explain, modal_decomposition
-from roommodes.model.modes import mode_shapes, room_modes
 from roommodes.dsp.response import smooth_fractional_octave
 from roommodes.io.roomfile import parse_room
+from roommodes.model.modes import mode_shapes, room_modes
 
 DEMO = load_room(demo_room_path())
 

@@ -20,9 +20,9 @@ import pytest
 from roommodes import demo_room_path, load_room, log_frequencies, transfer_function
 from roommodes.analysis.compare import compare_curves, predicted_level
 from roommodes.analysis.fit import FitTarget, fit_error, fit_room
-from roommodes.solvers import DEFAULT_METHOD
 from roommodes.model.room import Surface
 from roommodes.model.speaker import speaker_response
+from roommodes.solvers import DEFAULT_METHOD
 
 ROOM = load_room(demo_room_path())
 F = log_frequencies(20, 200, 24)

@@ -13,10 +13,6 @@ import numpy as np
 import pytest
 
 from roommodes import demo_room_path, load_room, log_frequencies, preset_layout, transfer_function
-from roommodes.model.modes import mode_shapes
-from roommodes.dsp.response import smooth_fractional_octave
-from roommodes.model.room import Layout
-from roommodes.io.roomfile import parse_room
 from roommodes.analysis.search import (
     DEFAULT_WEIGHTS,
     PARTS,
@@ -35,6 +31,12 @@ from roommodes.analysis.search import (
     search_space,
     seat_score_map,
 )
+from roommodes.dsp.response import smooth_fractional_octave
+from roommodes.io.roomfile import parse_room
+from roommodes.model.modes import mode_shapes
+from roommodes.model.room import Layout
+from roommodes.model.speaker import speaker_response
+from roommodes.model.walls import impedance_from_absorption
 from roommodes.solvers.modal import (
     modal_transfer,
     modal_transfer_direct,
@@ -43,8 +45,6 @@ from roommodes.solvers.modal import (
     static_green_block,
     static_green_pairs,
 )
-from roommodes.model.speaker import speaker_response
-from roommodes.model.walls import impedance_from_absorption
 
 SIZE = np.array([5.0, 4.0, 2.6])
 C = 343.0

@@ -32,8 +32,8 @@ from roommodes.analysis.search import (
     search_layouts,
     search_space,
 )
-from roommodes.solvers.modal import modal_sum_block
 from roommodes.model.speaker import speaker_response
+from roommodes.solvers.modal import modal_sum_block
 
 
 def gemm_rates(n=1500):

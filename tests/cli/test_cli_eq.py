@@ -12,8 +12,8 @@ from click.testing import CliRunner
 from scipy import signal
 
 from roommodes import demo_room_path, load_room
-from roommodes.cli import main
 from roommodes.analysis.correction import correct_prediction
+from roommodes.cli import main
 
 DEMO = str(demo_room_path())
 

@@ -18,11 +18,11 @@ import pytest
 from click.testing import CliRunner
 
 from roommodes import demo_room_path, load_room, room_modes, transfer_function
-from roommodes.cli.measure import COMMANDS, bands, compare, decay, fit, ir, noise, sweep
 from roommodes.analysis.compare import predicted_level
+from roommodes.cli.measure import COMMANDS, bands, compare, decay, fit, ir, noise, sweep
+from roommodes.dsp.response import log_frequencies
 from roommodes.io.importers import read_response_text
 from roommodes.io.wavio import read_wav, write_wav_atomic
-from roommodes.dsp.response import log_frequencies
 from roommodes.model.room import Surface
 from roommodes.model.speaker import speaker_response
 

@@ -11,9 +11,9 @@ import pytest
 from click.testing import CliRunner
 
 from roommodes import demo_room_path, example_rooms, load_room, predict
-from roommodes.cli import place as cli_place
-from roommodes.cli import main
 from roommodes.analysis.search import PARTS
+from roommodes.cli import main
+from roommodes.cli import place as cli_place
 
 DEMO = str(demo_room_path())
 

@@ -24,12 +24,12 @@ from click.testing import CliRunner
 from pagecheck import PNG_SIGNATURE, check_page, data_values
 
 from roommodes import demo_room_path, load_room, log_frequencies, predict
+from roommodes.analysis.compare import predicted_level
 from roommodes.cli import main
 from roommodes.cli.report import init, map_, report
-from roommodes.analysis.compare import predicted_level
 from roommodes.model.materials import material_names
-from roommodes.present.report import Report, ReportFigure, Table
 from roommodes.model.room import Surface
+from roommodes.present.report import Report, ReportFigure, Table
 
 DEMO = str(demo_room_path())
 

@@ -7,8 +7,7 @@ definitions of the means; named beside each test.
 import numpy as np
 import pytest
 
-from roommodes.dsp.response import (align_level, fractional_octave_edges, log_frequencies,
-                                smooth_fractional_octave)
+from roommodes.dsp.response import align_level, fractional_octave_edges, log_frequencies, smooth_fractional_octave
 
 
 def test_third_octave_window_at_50_hz():

@@ -12,6 +12,7 @@ import numpy as np
 import pytest
 from scipy import signal as sps
 
+from roommodes.dsp.response import log_frequencies, smooth_fractional_octave
 from roommodes.measure.deconvolve import (
     RecordingError,
     check_recording,
@@ -20,7 +21,6 @@ from roommodes.measure.deconvolve import (
     window_resolution_hz,
 )
 from roommodes.measure.sweep import exponential_sweep
-from roommodes.dsp.response import log_frequencies, smooth_fractional_octave
 
 FS = 8000
 MODES = [  # (frequency Hz, amplitude, T60 s)

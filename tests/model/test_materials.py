@@ -6,7 +6,8 @@ import numpy as np
 import pytest
 from scipy.interpolate import interp1d
 
-from roommodes.model import criteria, materials as M
+from roommodes.model import criteria
+from roommodes.model import materials as M
 
 OCTAVES_125_4K = (125.0, 250.0, 500.0, 1000.0, 2000.0, 4000.0)
 

@@ -9,7 +9,7 @@ import pytest
 
 from roommodes import load_room
 from roommodes.model.modes import mode_indices, mode_shapes, room_modes, wall_weights
-from roommodes.model.room import Room, Surface, WALLS
+from roommodes.model.room import WALLS, Room, Surface
 
 FT = 0.3048
 

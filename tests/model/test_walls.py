@@ -4,9 +4,14 @@ import numpy as np
 import pytest
 from scipy.integrate import quad
 
-from roommodes.model.walls import (ALPHA_MAX, admittance_from_absorption, impedance_from_absorption,
-                             normal_incidence_absorption, random_incidence_absorption,
-                             reflection_factor)
+from roommodes.model.walls import (
+    ALPHA_MAX,
+    admittance_from_absorption,
+    impedance_from_absorption,
+    normal_incidence_absorption,
+    random_incidence_absorption,
+    reflection_factor,
+)
 
 
 @pytest.mark.parametrize("zeta", [1.2, 2.0, 5.0, 20.0, 80.0, 700.0])

@@ -21,12 +21,12 @@ import numpy as np
 import pytest
 
 from roommodes import WALLS, example_rooms, load_room, log_frequencies, predict, transfer_function
-from roommodes.model.modes import room_modes
 from roommodes.analysis.maps import MATTERS_COUPLING, _separated_groups, floor_level_map, mode_coupling
-from roommodes.present.report import build_report
-from roommodes.model.room import Layout, Room, Speaker, Surface
 from roommodes.analysis.search import search_space
 from roommodes.analysis.summary import room_summary
+from roommodes.model.modes import room_modes
+from roommodes.model.room import Layout, Room, Speaker, Surface
+from roommodes.present.report import build_report
 
 ROOMS = example_rooms()
 BOOTH = next(p for p in ROOMS if "booth" in p.name)

@@ -4,6 +4,7 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
+from roommodes.model.walls import impedance_from_absorption
 from roommodes.solvers.exact import (
     exact_transfer,
     impedance_green_1d,
@@ -15,7 +16,6 @@ from roommodes.solvers.exact import (
     robin_wavenumbers,
 )
 from roommodes.solvers.modal import modal_transfer, static_green
-from roommodes.model.walls import impedance_from_absorption
 
 SIZE = np.array([5.0, 4.0, 2.6])
 C = 343.0

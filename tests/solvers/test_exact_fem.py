@@ -29,8 +29,8 @@ import pytest
 from reference.agreement_study import ABSORPTION, ROOMS, SPEED_OF_SOUND, frequencies, level_db, positions, stats, zeta_of
 from reference.fem_box import fem_transfer
 
-from roommodes.solvers.exact import exact_transfer
 from roommodes.model.walls import impedance_from_absorption
+from roommodes.solvers.exact import exact_transfer
 
 pytestmark = pytest.mark.slow
 

@@ -18,13 +18,13 @@ import pytest
 from scipy.integrate import quad
 
 from roommodes.dsp.response import log_frequencies
-from roommodes.solvers import images as im
-from roommodes.solvers._kernels import spread_shells
 from roommodes.model.walls import (
     impedance_from_absorption,
     random_incidence_absorption,
     reflection_factor,
 )
+from roommodes.solvers import images as im
+from roommodes.solvers._kernels import spread_shells
 
 C = 343.0
 SIZE = np.array([5.0, 4.0, 2.6])

@@ -4,8 +4,8 @@ import numpy as np
 import pytest
 
 from roommodes.model.modes import mode_indices, mode_shapes
-from roommodes.solvers.modal import modal_transfer, static_green
 from roommodes.model.walls import impedance_from_absorption
+from roommodes.solvers.modal import modal_transfer, static_green
 
 SIZE = np.array([5.0, 4.0, 2.6])
 C = 343.0
