@@ -23,7 +23,7 @@ why comparisons align levels by default.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -78,51 +78,9 @@ _AXES = ("length", "width", "height")
 # ----------------------------------------------------------------------------- reading
 
 
-@dataclass(frozen=True, eq=False)
-class Measurement:
-    """A measured curve on a frequency grid (a :class:`~roommodes.response.Response` in shape).
-
-    Attributes
-    ----------
-    freq_hz : ndarray, shape (F,)
-        Frequencies, Hz, rising.
-    level_db : ndarray, shape (F,)
-        Level, dB (relative to whatever the measurement chain gave).
-    label : str
-        Short name for tables and legends.
-    sources : tuple of str
-        The file(s) behind the curve.
-    resolution_hz : float or None
-        For an impulse response, about ``1 / window`` (Hz): narrower detail is smeared.
-        None for a text curve (its own resolution is unknown).
-    std_db, min_db, max_db : ndarray or None
-        For an average of several curves: the spread across them at each frequency
-        (population standard deviation of the dB levels, lowest and highest level).
-    notes : tuple of str
-        What was done on the way in (window, interpolation, averaging).
-    transfer, valid
-        As in :class:`~roommodes.response.Response`: None for measurements.
-    """
-    freq_hz: np.ndarray
-    level_db: np.ndarray
-    label: str = ""
-    sources: tuple = ()
-    resolution_hz: float | None = None
-    std_db: np.ndarray | None = None
-    min_db: np.ndarray | None = None
-    max_db: np.ndarray | None = None
-    notes: tuple = field(default=())
-    transfer: np.ndarray | None = None
-    valid: np.ndarray | None = None
-
-    @property
-    def count(self):
-        """Number of files averaged into the curve."""
-        return max(1, len(self.sources))
-
-    def to_response(self):
-        """The curve as a :class:`~roommodes.response.Response`."""
-        return Response(self.freq_hz, self.level_db, self.label)
+#: A measured curve is the package's one curve type, :class:`roommodes.dsp.response.Response`,
+#: with its provenance (files, resolution, spread, notes) filled in.
+Measurement = Response
 
 
 def is_wav_file(path):
@@ -206,7 +164,7 @@ def load_measurement(path, channel=None, window_s=DEFAULT_WINDOW_S, freq_hz=None
     note = (f"interpolated onto {fi.size} points, {fi[0]:.4g}-{fi[-1]:.4g} Hz "
             "(linear in dB against log frequency)")
     notes = (*curve.notes, note)
-    return Measurement(fi, level, p.name, (name,), None, notes=notes)
+    return Measurement(fi, level, p.name, sources=(name,), notes=notes)
 
 
 def _load_ir_wav(p, name, channel, window_s, f, taper_fraction):
@@ -232,7 +190,7 @@ def _load_ir_wav(p, name, channel, window_s, f, taper_fraction):
         notes.append(f"window shortened from {window_s:g} s to the response's remaining {n / fs:.3g} s")
     h = frequency_response(seg[:n], fs, f, None, taper_fraction)
     level = 10.0 * np.log10(np.maximum(np.abs(h) ** 2, 1e-30))
-    return Measurement(f, level, p.name, (name,), fs / n, notes=tuple(notes))
+    return Measurement(f, level, p.name, sources=(name,), resolution_hz=fs / n, notes=tuple(notes))
 
 
 def average_measurements(measurements, mode="power", label=None):
@@ -267,8 +225,8 @@ def average_measurements(measurements, mode="power", label=None):
     res = [m.resolution_hz for m in ms if m.resolution_hz is not None]
     notes = tuple(n for m in ms for n in m.notes) + (
         f"{mode} average of {len(ms)} curves; spread: standard deviation of their dB levels",)
-    return Measurement(avg.freq_hz, avg.level_db, label or f"mean of {len(ms)}", sources,
-                       max(res) if res else None, avg.std_db, avg.min_db, avg.max_db, notes)
+    return replace(avg, label=label or f"mean of {len(ms)}", sources=sources, resolution_hz=max(res) if res else None,
+                   notes=notes)
 
 
 # ----------------------------------------------------------------------------- prediction
@@ -837,5 +795,6 @@ def compare_measurements(first, second, *, band_hz=DEFAULT_BAND_HZ, smoothing=DE
     matches = match_features(fm, fr, max_distance_octaves=max_distance_octaves)
     names = (first.label or "first", second.label or "second")
     words = interpret(matches, comp, None, names=("first", "second"))
-    return ComparisonReport(comp, matches, words, Measurement(f, a, names[0], first.sources, first.resolution_hz),
-                            Measurement(f, b, names[1], second.sources, second.resolution_hz), names)
+    shown = [Measurement(f, lv, n, sources=m.sources, resolution_hz=m.resolution_hz)
+             for lv, n, m in ((a, names[0], first), (b, names[1], second))]
+    return ComparisonReport(comp, matches, words, *shown, names)

@@ -2,13 +2,21 @@
 
 from __future__ import annotations
 
+import contextlib
+import functools
+import os
+import sys
+import tempfile
 from pathlib import Path
 
 import click
 import numpy as np
 
 from ..io.roomfile import RoomFileError, load_room
+from ..model.placement import PRESETS, preset_layout
 from ..present.serialise import dumps
+from ..present.units import UNITS
+from ..present.units import walls_text as _walls_text
 from ..solvers import DEFAULT_METHOD, METHODS
 
 CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
@@ -93,7 +101,6 @@ json_option = click.option("--json", "as_json", is_flag=True, help="Print one JS
 
 
 def layouts_for(room, layout):
-    from ..model.placement import PRESETS, preset_layout
 
     names = (["file"] if room.layout is not None else []) + list(PRESETS) if layout == "all" else [layout]
     out = []
@@ -123,10 +130,61 @@ units_option = click.option(
 
 def walls_text(room, pos):
     """Where a point is, from named walls, in the units chosen with --units (default cm)."""
-    from ..present.units import walls_text as _walls_text
 
     ctx = click.get_current_context(silent=True)
     units = ctx.meta.get("roommodes_units", "cm") if ctx is not None else "cm"
     return _walls_text(room, pos, units)
 
+
+@contextlib.contextmanager
+def user_errors():
+    """Turn input problems raised below the CLI into one line on stderr and exit code 2.
+
+    ``ValueError`` (the library's bad-input error, :class:`RoomFileError` included) and
+    ``FileExistsError`` keep their message; other ``OSError`` name the file. A closed stdout
+    (``roommodes ... | head``) ends the command quietly, as shell tools do.
+    """
+    try:
+        yield
+    except click.ClickException:
+        raise
+    except (ValueError, FileExistsError) as exc:
+        raise UserError(str(exc)) from None
+    except BrokenPipeError:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        sys.exit(1)
+    except OSError as exc:
+        name = f" {exc.filename}" if getattr(exc, "filename", None) else ""
+        raise UserError(f"cannot read or write{name}: {exc.strerror or exc}") from None
+
+
+def guard(func):
+    """Run a command under :func:`user_errors` (for commands invoked on their own, as in tests)."""
+
+    @functools.wraps(func)
+    def wrapper(*args, **kwargs):
+        with user_errors():
+            return func(*args, **kwargs)
+
+    return wrapper
+
+
+display_units_option = click.option("--units", type=click.Choice(UNITS), default="cm", show_default=True,
+                             help="Units of the distances shown (centimetres, metres, or feet and inches).")
+
+
+def check_folder_writable(folder):
+    """Fail with a clear message unless files can be created in ``folder``."""
+    folder = Path(folder)
+    if not folder.exists():
+        fail(f"cannot write into {folder}: the folder does not exist")
+    if not folder.is_dir():
+        fail(f"cannot write into {folder}: it is not a folder")
+    try:
+        fd, probe = tempfile.mkstemp(prefix=".roommodes-probe-", dir=folder)
+        os.close(fd)
+        os.unlink(probe)
+    except OSError as exc:
+        fail(f"cannot write into {folder}: the folder is not writable ({exc.strerror or exc})")
 

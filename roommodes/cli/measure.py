@@ -11,9 +11,7 @@ written then. Inputs are never overwritten, and an existing output only with --f
 from __future__ import annotations
 
 import contextlib
-import functools
 import json
-import re
 import sys
 import time
 from pathlib import Path
@@ -22,14 +20,35 @@ import click
 import numpy as np
 
 from .. import __version__
+from ..analysis.compare import average_measurements, compare_measurements, compare_to_prediction, is_wav_file
+from ..analysis.fit import FitTarget, fit_room
+from ..dsp.response import log_frequencies
+from ..io.roomfile import room_to_toml, write_text_atomic
+from ..io.wavio import read_wav, write_wav_atomic
+from ..measure.decay import cumulative_spectral_decay, modal_decay_times, reverberation_times
+from ..measure.deconvolve import RecordingError, deconvolve
+from ..measure.signals import band_levels, crest_factor_db, pink_noise
+from ..measure.sweep import SweepSpec, exponential_sweep
+from ..present.plots_measure import plot_comparison, plot_fit, plot_impulse_response, plot_waterfall
+from ._measured import (
+    load_measurements,
+    measured_files_options,
+    measurement_specs,
+    positions,
+    read_wav_or_fail,
+    require_file,
+    smoothing_option,
+    wav_channel_option,
+    window_option,
+)
 from ._util import (
     CONTEXT,
     MODEL_CAUTION,
-    UserError,
     check_output,
     dump_json,
     echo_err,
     fail,
+    guard,
     json_option,
     load_or_fail,
     method_option,
@@ -65,37 +84,10 @@ GUIDANCE = (
      "as the signal; input gain so the peaks stay below -6 dBFS."),
 )
 _SWEEP_JSON_SUFFIX = ".sweep.json"
-_wav_channel_option = click.option(
-    "--wav-channel", type=click.IntRange(1, 65535),
-    help="Channel of multi-channel WAV files holding the microphone (1 = first).")
-_smoothing_option = click.option(
-    "--smoothing", type=click.IntRange(0, 48), default=12, show_default=True,
-    help="Smoothing of both curves, 1/N octave in power (0: none).")
-_window_option = click.option(
-    "--window", "window_s", type=float, default=1.0, show_default=True,
-    help="Window on impulse responses, s: the frequency resolution is about 1/window.")
 _WAV_FORMATS = ("pcm16", "pcm24", "float32")
 
 
 # ---------------------------------------------------------------------------- helpers
-
-
-def _guard(func):
-    """Turn input problems raised below the CLI into one line and exit code 2."""
-
-    @functools.wraps(func)
-    def wrapper(*args, **kwargs):
-        try:
-            return func(*args, **kwargs)
-        except click.ClickException:
-            raise
-        except (ValueError, FileExistsError) as exc:
-            raise UserError(str(exc)) from None
-        except OSError as exc:
-            name = f" {exc.filename}" if getattr(exc, "filename", None) else ""
-            raise UserError(f"cannot read or write{name}: {exc.strerror or exc}") from None
-
-    return wrapper
 
 
 def _echo_lines(title, lines):
@@ -106,43 +98,6 @@ def _echo_lines(title, lines):
 
 def _cautions():
     _echo_lines("Cautions:", CAUTIONS)
-
-
-def _require_file(path, what):
-    p = Path(path)
-    if not p.exists():
-        fail(f"{p}: no such file ({what})")
-    if p.is_dir():
-        fail(f"{p}: is a folder; give the {what}")
-    return p
-
-
-def _channel_message(msg, path, wav_channel):
-    """Restate a WAV channel error with the command line's 1-based channel numbers."""
-    m = re.search(r"has (\d+) channel", msg)
-    if m is None:
-        return msg
-    n = int(m.group(1))
-    if wav_channel is None:
-        return f"{path}: the file has {n} channels; choose the microphone's with --wav-channel N (1..{n})"
-    return f"{path}: --wav-channel {wav_channel} does not exist; the file has {n} channel(s) (1..{n})"
-
-
-def _read_wav_or_fail(path, channel_1based, what="recording"):
-    """Read one channel of a WAV file; one-line errors naming the file."""
-    from ..analysis.compare import is_wav_file
-    from ..io.wavio import read_wav
-
-    p = _require_file(path, what)
-    if not is_wav_file(p):
-        fail(f"{p}: not a WAV file (no RIFF/WAVE header); give the {what} as a WAV file")
-    try:
-        x, fs, info = read_wav(p, None if channel_1based is None else channel_1based - 1)
-    except ValueError as exc:
-        fail(_channel_message(str(exc), p, channel_1based))
-    if not np.all(np.isfinite(x)):
-        fail(f"{p}: holds non-finite samples (NaN or infinity)")
-    return x, fs, info
 
 
 def _wav_output(path, force, *inputs):
@@ -156,50 +111,6 @@ def _wav_output(path, force, *inputs):
 def _sweep_json_path(wav_path):
     p = Path(wav_path)
     return p.with_name(p.stem + _SWEEP_JSON_SUFFIX)
-
-
-def _parse_point(text, name="--at"):
-    try:
-        v = [float(s) for s in text.replace(";", ",").split(",")]
-    except ValueError:
-        v = []
-    if len(v) != 3 or not all(np.isfinite(v)):
-        fail(f"{name} must be X,Y,Z in metres, e.g. 1.85,1.45,1.20; got '{text}'")
-    return tuple(v)
-
-
-def _positions(room, at, n_files, name="--at"):
-    """Microphone positions: one per file, one for all, or the seat."""
-    if not at:
-        if room.layout is None:
-            fail(f"{room.source}: the room file has no [seat]; give the microphone position with {name} X,Y,Z")
-        return [tuple(room.layout.seat_m)] * n_files
-    pts = [tuple(room.layout.seat_m) if a.strip().lower() == "seat" and room.layout else _parse_point(a, name)
-           for a in at]
-    for p in pts:
-        if not room.contains([p])[0]:
-            lx, ly, lz = room.size_m
-            fail(f"{name} {p[0]:g},{p[1]:g},{p[2]:g} lies outside the room (0 < x < {lx:g}, 0 < y < {ly:g}, "
-                 f"0 < z < {lz:g} m)")
-    if len(pts) == 1:
-        return pts * n_files
-    if len(pts) != n_files:
-        fail(f"give {name} once (all measurements at one position) or once per measurement file "
-             f"({n_files}), got {len(pts)}")
-    return pts
-
-
-def _load_measurements(paths, wav_channel, window_s, freq_hz):
-    from ..analysis.compare import load_measurement
-
-    out = []
-    for p in paths:
-        _require_file(p, "measurement")
-        try:
-            out.append(load_measurement(p, None if wav_channel is None else wav_channel - 1, window_s, freq_hz))
-        except ValueError as exc:
-            fail(_channel_message(str(exc), p, wav_channel))
-    return out
 
 
 def _fmt_time(t):
@@ -231,7 +142,7 @@ def _smoothing_label(b):
               help="Sample format of the WAV file.")
 @click.option("--force", is_flag=True, help="Overwrite existing output files.")
 @json_option
-@_guard
+@guard
 def sweep(out, fs_hz, duration_s, f1_hz, f2_hz, level_dbfs, fade_in_s, fade_out_s, silence_before,
           silence_after, subtype, force, as_json):
     """Write an exponential sine sweep to play through one speaker while recording at the seat.
@@ -240,9 +151,6 @@ def sweep(out, fs_hz, duration_s, f1_hz, f2_hz, level_dbfs, fade_in_s, fade_out_
     needs to turn a recording of the sweep into an impulse response. The default level is
     -12 dBFS peak: set the loudness with the playback volume, starting low.
     """
-    from ..io.roomfile import write_text_atomic
-    from ..io.wavio import write_wav_atomic
-    from ..measure.sweep import exponential_sweep
 
     wav = _wav_output(out, force)
     desc = _sweep_json_path(wav)
@@ -272,9 +180,8 @@ def sweep(out, fs_hz, duration_s, f1_hz, f2_hz, level_dbfs, fade_in_s, fade_out_
 
 
 def _load_sweep_spec(path):
-    from ..measure.sweep import SweepSpec
 
-    p = _require_file(path, "sweep file from `roommodes sweep`")
+    p = require_file(path, "sweep file from `roommodes sweep`")
     if p.name.endswith(".json"):
         desc, wav = p, None
     else:
@@ -290,8 +197,6 @@ def _load_sweep_spec(path):
     except ValueError as exc:
         fail(f"{desc}: {exc}")
     if wav is not None:
-        from ..analysis.compare import is_wav_file
-        from ..io.wavio import read_wav
 
         if not is_wav_file(wav):
             fail(f"{wav}: not a WAV file (no RIFF/WAVE header); give --sweep the sweep's WAV or its .sweep.json")
@@ -311,7 +216,7 @@ def _load_sweep_spec(path):
               help="The sweep that was played (its WAV, with the .sweep.json beside it, or the .sweep.json).")
 @click.option("-o", "--out", "out", type=click.Path(path_type=Path), required=True,
               help="Impulse-response WAV to write (32-bit float).")
-@_wav_channel_option
+@wav_channel_option
 @click.option("--loopback", type=click.IntRange(1, 65535),
               help="Channel of the same recording holding the playback signal wired back (absolute timing).")
 @click.option("--length", "ir_length_s", type=float,
@@ -319,7 +224,7 @@ def _load_sweep_spec(path):
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write a figure of the response (PNG/SVG).")
 @click.option("--force", is_flag=True, help="Overwrite existing output files.")
 @json_option
-@_guard
+@guard
 def ir(recording, sweep_path, out, wav_channel, loopback, ir_length_s, plot_path, force, as_json):
     """Turn a recording of the sweep into an impulse response, with distortion, noise and delay.
 
@@ -327,16 +232,14 @@ def ir(recording, sweep_path, out, wav_channel, loopback, ir_length_s, plot_path
     recording that is too short, and says what to do. Reports the delay, the
     signal-to-noise ratio and the harmonic distortion at low frequency per octave band.
     """
-    from ..io.wavio import write_wav_atomic
-    from ..measure.deconvolve import RecordingError, deconvolve
 
     spec, desc = _load_sweep_spec(sweep_path)
-    y, fs, _ = _read_wav_or_fail(recording, wav_channel)
+    y, fs, _ = read_wav_or_fail(recording, wav_channel)
     lb = None
     if loopback is not None:
         if loopback == wav_channel:
             fail(f"{recording}: --loopback and --wav-channel name the same channel ({loopback})")
-        lb, _, _ = _read_wav_or_fail(recording, loopback)
+        lb, _, _ = read_wav_or_fail(recording, loopback)
     wav = _wav_output(out, force, recording, sweep_path, desc)
     if plot_path:
         check_output(plot_path, force)
@@ -376,7 +279,6 @@ def ir(recording, sweep_path, out, wav_channel, loopback, ir_length_s, plot_path
         click.echo("")
         click.echo(f"Next: roommodes compare ROOM.toml {wav.name} --channel NAME   (or roommodes decay {wav.name})")
     if plot_path:
-        from ..present.plots_measure import plot_impulse_response
 
         plot_impulse_response(res.ir, res.fs_hz, title=f"Impulse response: {Path(recording).name}", path=plot_path)
         echo_err(f"wrote {plot_path}")
@@ -399,7 +301,7 @@ def ir(recording, sweep_path, out, wav_channel, loopback, ir_length_s, plot_path
               help="Sample format of the WAV file.")
 @click.option("--force", is_flag=True, help="Overwrite an existing output file.")
 @json_option
-@_guard
+@guard
 def noise(out, fs_hz, duration_s, level_dbfs, band, seed, subtype, force, as_json):
     """Write band-limited pink noise for a sound-level meter or a real-time analyser.
 
@@ -407,8 +309,6 @@ def noise(out, fs_hz, duration_s, level_dbfs, band, seed, subtype, force, as_jso
     recording of it at the seat (`roommodes bands`) are the room's response. Default
     -20 dBFS rms; set the loudness with the playback volume, starting low.
     """
-    from ..io.wavio import write_wav_atomic
-    from ..measure.signals import crest_factor_db, pink_noise
 
     lo, hi = _parse_band(band) if band else (20.0, min(20000.0, 0.45 * fs_hz))
     wav = _wav_output(out, force)
@@ -442,7 +342,7 @@ def _parse_band(text):
 
 @click.command(context_settings=CONTEXT)
 @click.argument("recording", type=click.Path(path_type=Path))
-@_wav_channel_option
+@wav_channel_option
 @click.option("--fraction", type=click.Choice(["1", "3"]), default="3", show_default=True,
               help="Octave (1) or one-third-octave (3) bands.")
 @click.option("--band", "band", default="20,20000", show_default=True, metavar="LOW,HIGH",
@@ -451,7 +351,7 @@ def _parse_band(text):
               help="Write the band levels as a text curve (frequency, level) the other commands read.")
 @click.option("--force", is_flag=True, help="Overwrite an existing output file.")
 @json_option
-@_guard
+@guard
 def bands(recording, wav_channel, fraction, band, out, force, as_json):
     """Band levels of a recording of pink noise at the seat (IEC 61260-1 base-10 bands).
 
@@ -459,11 +359,9 @@ def bands(recording, wav_channel, fraction, band, out, force, as_json):
     Because pink noise has equal power per band, the band levels are the response at the
     seat up to a constant; `-o` writes them as a curve `compare`, `fit` and `eq` accept.
     """
-    from ..io.roomfile import write_text_atomic
-    from ..measure.signals import band_levels
 
     lo, hi = _parse_band(band)
-    x, fs, _ = _read_wav_or_fail(recording, wav_channel)
+    x, fs, _ = read_wav_or_fail(recording, wav_channel)
     if out:
         protect_inputs(out, recording)
         check_output(out, force)
@@ -499,7 +397,7 @@ def bands(recording, wav_channel, fraction, band, out, force, as_json):
 
 @click.command(context_settings=CONTEXT)
 @click.argument("ir_file", type=click.Path(path_type=Path))
-@_wav_channel_option
+@wav_channel_option
 @click.option("--bands", "band_set", type=click.Choice(["octave", "third"]), default="octave", show_default=True,
               help="Band set for EDT, T20 and T30.")
 @click.option("--freq-range", default="63,4000", show_default=True, metavar="LOW,HIGH",
@@ -514,7 +412,7 @@ def bands(recording, wav_channel, fraction, band, out, force, as_json):
               help="Waterfall slice length, s (frequency resolution about 1/window).")
 @click.option("--force", is_flag=True, help="Overwrite an existing figure.")
 @json_option
-@_guard
+@guard
 def decay(ir_file, wav_channel, band_set, freq_range, n_modes, modal_range, waterfall_path, window_s, force,
           as_json):
     """Reverberation times (EDT, T20, T30) and decay times of the strongest low modes.
@@ -524,11 +422,10 @@ def decay(ir_file, wav_channel, band_set, freq_range, n_modes, modal_range, wate
     flags bands whose decay range is too small; then the decay time (T60) and Q of the
     strongest low-frequency peaks; optionally a waterfall figure.
     """
-    from ..measure.decay import cumulative_spectral_decay, modal_decay_times, reverberation_times
 
     lo, hi = _parse_band(freq_range)
     mlo, mhi = _parse_band(modal_range)
-    h, fs, _ = _read_wav_or_fail(ir_file, wav_channel, "impulse response")
+    h, fs, _ = read_wav_or_fail(ir_file, wav_channel, "impulse response")
     if waterfall_path:
         protect_inputs(waterfall_path, ir_file)
         check_output(waterfall_path, force)
@@ -571,7 +468,6 @@ def decay(ir_file, wav_channel, band_set, freq_range, n_modes, modal_range, wate
         for m in notes:
             click.echo(f"Note: {m}")
     if waterfall_path:
-        from ..present.plots_measure import plot_waterfall
 
         sd = cumulative_spectral_decay(h, fs, window_s=window_s)
         plot_waterfall(sd, title=f"Cumulative spectral decay: {Path(ir_file).name}", path=waterfall_path)
@@ -620,18 +516,18 @@ def _print_features(matches, names):
 @click.option("--channel", help="The speaker that was measured (a name in the room file).")
 @click.option("--at", multiple=True, metavar="X,Y,Z",
               help="Microphone position, m (default: the seat); once for all files or once per file.")
-@_wav_channel_option
-@_window_option
+@wav_channel_option
+@window_option
 @click.option("--band", default="20,200", show_default=True, metavar="LOW,HIGH",
               help="Band of the error figures and the level alignment, Hz.")
 @click.option("--align-band", metavar="LOW,HIGH", help="Align the levels over this band instead, Hz.")
 @click.option("--absolute", is_flag=True, help="Do not align the levels (a calibrated chain).")
-@_smoothing_option
+@smoothing_option
 @method_option
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write the overlay and residual (PNG/SVG).")
 @click.option("--force", is_flag=True, help="Overwrite an existing figure.")
 @json_option
-@_guard
+@guard
 def compare(files, against, channel, at, wav_channel, window_s, band, align_band, absolute, smoothing, method,
             plot_path, force, as_json):
     """Compare measurements with the prediction, or two measurements with each other.
@@ -646,8 +542,6 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
     table pairing measured peaks and dips with predicted ones (and the mode or boundary
     behind them) with their frequency ratios, and what a consistent difference suggests.
     """
-    from ..analysis.compare import average_measurements, compare_measurements, compare_to_prediction
-    from ..dsp.response import log_frequencies
 
     files = list(files)
     room_file = files.pop(0) if files and files[0].suffix.lower() == ".toml" else None
@@ -667,15 +561,15 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
         protect_inputs(plot_path, *files, *against, *([room_file] if room_file else []))
         check_output(plot_path, force)
     room = load_or_fail(room_file) if room_file else None
-    pos = _positions(room, at, len(files)) if room is not None else None
-    meas = _load_measurements(files, wav_channel, window_s, grid)
+    pos = positions(room, at, len(files)) if room is not None else None
+    meas = load_measurements(files, wav_channel, window_s, grid)
     first = average_measurements(meas, label=files[0].name if len(files) == 1 else f"mean of {len(files)}")
     kw = {"band_hz": (lo, hi), "smoothing": smoothing, "align_band_hz": abd, "absolute": absolute}
     if room is not None:
         # the prediction is averaged over the files' positions with the same weights
         rep = compare_to_prediction(room, first, channel, pos, method=method, **kw)
     else:
-        second_list = _load_measurements(against, wav_channel, window_s, grid)
+        second_list = load_measurements(against, wav_channel, window_s, grid)
         second = average_measurements(second_list, label=against[0].name if len(against) == 1
                                       else f"mean of {len(against)}")
         rep = compare_measurements(first, second, **kw)
@@ -731,7 +625,6 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
         for line in rep.interpretation:
             click.echo(f"* {line}")
     if plot_path:
-        from ..present.plots_measure import plot_comparison
 
         title = (f"{room.name}: {rep.channel}, measured against predicted" if room is not None
                  else f"{names[0]} against {names[1]}")
@@ -742,38 +635,6 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
 
 
 # ---------------------------------------------------------------------------- fit
-def _measured_files_options(f):
-    """FILES of one speaker (--channel, --at) and --measure CHANNEL X,Y,Z FILE; for fit and report."""
-    f = click.option("--measure", "measure", multiple=True, nargs=3, metavar="CHANNEL X,Y,Z FILE",
-                     help="One more measurement with its own speaker and position (repeatable); X,Y,Z may be "
-                          "'seat'.")(f)
-    f = click.option("--at", multiple=True, metavar="X,Y,Z",
-                     help="Microphone position of FILES, m (default: the seat); once for all or once per file.")(f)
-    return click.option("--channel", help="The speaker measured in FILES (a name in the room file).")(f)
-
-
-def _measurement_specs(room, files, channel, at, measure):
-    """(speaker name, microphone position, path) of every measurement given on the command line."""
-    from ..analysis.compare import speaker_by_name
-
-    specs = []
-    if files:
-        try:
-            name = speaker_by_name(room, channel).name
-        except ValueError as exc:
-            fail(str(exc))
-        for p, pos in zip(files, _positions(room, at, len(files))):
-            specs.append((name, pos, Path(p)))
-    elif at or channel:
-        fail("--channel and --at describe FILES; with --measure each measurement carries its own")
-    for ch, where, p in measure:
-        try:
-            name = speaker_by_name(room, ch).name
-        except ValueError as exc:
-            fail(str(exc))
-        specs.append((name, _positions(room, (where,), 1, "--measure position")[0], Path(p)))
-    return specs
-
 
 
 @click.command(context_settings=CONTEXT)
@@ -781,11 +642,11 @@ def _measurement_specs(room, files, channel, at, measure):
 @click.argument("files", nargs=-1, type=click.Path(path_type=Path))
 @click.option("-o", "--out", "out", type=click.Path(path_type=Path), required=True,
               help="Calibrated room file to write (never the input).")
-@_measured_files_options
-@_wav_channel_option
-@_window_option
+@measured_files_options
+@wav_channel_option
+@window_option
 @click.option("--band", default="20,200", show_default=True, metavar="LOW,HIGH", help="Fit band, Hz.")
-@_smoothing_option
+@smoothing_option
 @click.option("--points-per-octave", type=click.IntRange(6, 96), default=24, show_default=True,
               help="Density of the fit's frequency grid.")
 @click.option("--absorption", type=click.Choice(["axes", "each", "all", "none"]), default="axes", show_default=True,
@@ -802,7 +663,7 @@ def _measurement_specs(room, files, channel, at, measure):
 @click.option("--force", is_flag=True, help="Overwrite existing output files.")
 @method_option
 @json_option
-@_guard
+@guard
 def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band, smoothing, points_per_octave, method,
         absorption, size_tolerance, position_tolerance, no_lowcut, absolute, regularization, plot_path, force,
         as_json):
@@ -819,9 +680,6 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
     value, how far it moved, an approximate standard error, and the error before and after.
     Then `predict` and `place` on the calibrated file.
     """
-    from ..analysis.fit import FitTarget, fit_room
-    from ..dsp.response import log_frequencies
-    from ..io.roomfile import room_to_toml, write_text_atomic
 
     room = load_or_fail(room_file)
     if room.layout is None:
@@ -841,8 +699,8 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
         protect_inputs(plot_path, *inputs, outp)
         check_output(plot_path, force)
     grid = log_frequencies(lo, hi, points_per_octave)
-    specs = _measurement_specs(room, files, channel, at, measure)
-    meas = _load_measurements([s[2] for s in specs], wav_channel, window_s, grid)
+    specs = measurement_specs(room, files, channel, at, measure)
+    meas = load_measurements([s[2] for s in specs], wav_channel, window_s, grid)
     targets = [FitTarget(ch, pos, m.freq_hz, m.level_db, f"{Path(p).name} ({ch})")
                for (ch, pos, p), m in zip(specs, meas)]
     t0 = time.perf_counter()
@@ -870,7 +728,9 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
                f"{res.error_before['median_abs_db']:.2f} -> {res.error_after['median_abs_db']:.2f} dB\n"
                "Fitted: " + "; ".join(f"{p.name} {p.initial:.4g} -> {p.value:.4g}{(' ' + p.unit) if p.unit else ''}"
                                       for p in res.parameters if p.kind in ("absorption", "size", "lowcut")))
-    write_text_atomic(outp, room_to_toml(res.room, comment=comment), overwrite=force)
+    text = room_to_toml(res.room, comment=comment, original_text=Path(room_file).read_text(encoding="utf-8"),
+                        written_to=outp)
+    write_text_atomic(outp, text, overwrite=force)
     if as_json:
         dump_json({
             "room": room.name, "output": str(outp), "elapsed_s": elapsed,
@@ -910,7 +770,6 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
         click.echo(f"Wrote {outp} (the seat is unchanged; microphone offsets are reported, not written).")
         click.echo(f"Next: roommodes predict {outp.name}   and   roommodes compare {outp.name} MEAS... --channel NAME")
     if plot_path:
-        from ..present.plots_measure import plot_fit
 
         plot_fit(res, title=f"{room.name}: fit to measurements", path=plot_path)
         echo_err(f"wrote {plot_path}")

@@ -6,7 +6,7 @@ a label. Everything here is a pure function over arrays.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -159,22 +159,37 @@ def align_level(level_db_a, level_db_b, freq_hz, band_hz):
     return mean_db(level_db_a) - mean_db(level_db_b)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class Response:
-    """A frequency response at one point: frequencies, complex transfer or level, a label.
+    """A level on a frequency grid, measured or predicted, with where it came from.
+
+    The package's one curve type: a prediction at a point, a measured curve read from a
+    file, an average of several microphone positions (with its spread).
 
     Attributes
     ----------
     freq_hz : ndarray, shape (F,)
         Frequencies in Hz.
     level_db : ndarray, shape (F,)
-        Level in dB (see the level reference in docs/methods.md).
+        Level in dB (see the level reference in docs/methods.md; a measurement carries
+        whatever reference its chain gave).
     label : str
         Free text naming the curve ("left", "measured at seat").
     transfer : ndarray or None
         Complex transfer, when known (a prediction or an impulse response).
     valid : ndarray of bool or None
         Per frequency, whether the model behind the curve is trustworthy there.
+    sources : tuple of str
+        The file(s) behind a measured curve (several for an average).
+    resolution_hz : float or None
+        For a curve from an impulse response, about ``1 / window`` (Hz).
+    std_db, min_db, max_db : ndarray or None
+        For an average of several curves: the population standard deviation of their dB
+        levels, and the lowest and highest level, at each frequency.
+    notes : tuple of str
+        What was done on the way in (layout detected, window, calibration, averaging).
+    phase_deg : ndarray or None
+        Phase in degrees as a measurement file gave it.
     """
 
     freq_hz: np.ndarray
@@ -182,6 +197,27 @@ class Response:
     label: str = ""
     transfer: np.ndarray | None = None
     valid: np.ndarray | None = field(default=None)
+    sources: tuple = ()
+    resolution_hz: float | None = None
+    std_db: np.ndarray | None = None
+    min_db: np.ndarray | None = None
+    max_db: np.ndarray | None = None
+    notes: tuple = ()
+    phase_deg: np.ndarray | None = None
+
+    @property
+    def source(self):
+        """The first file behind the curve, or its label."""
+        return self.sources[0] if self.sources else self.label
+
+    @property
+    def count(self):
+        """Number of curves averaged into this one (1 for a single curve)."""
+        return max(1, len(self.sources))
+
+    def to_response(self, label=None):
+        """The curve itself (relabelled when ``label`` is given)."""
+        return self if label is None else replace(self, label=label)
 
     @classmethod
     def from_transfer(cls, freq_hz, transfer, label="", valid=None):
@@ -191,6 +227,5 @@ class Response:
 
     def smoothed(self, fraction):
         """The level smoothed in power over ``1/fraction`` octave (transfer dropped)."""
-        p = smooth_fractional_octave(self.freq_hz, 10 ** (self.level_db / 10), fraction)
-        return Response(self.freq_hz, 10 * np.log10(np.maximum(p, _TINY)), self.label,
-                        None, self.valid)
+        return Response(self.freq_hz, smooth_db(self.freq_hz, self.level_db, fraction), self.label,
+                        None, self.valid, self.sources, self.resolution_hz, notes=self.notes)

@@ -86,68 +86,12 @@ class MeasurementFileError(ValueError):
         super().__init__(f"{where}: {message}")
 
 
-@dataclass(frozen=True, eq=False)
-class MeasuredCurve:
-    """A measured frequency response read from a file or text.
-
-    Attributes
-    ----------
-    freq_hz : ndarray, shape (F,)
-        Frequencies in Hz, positive and strictly rising.
-    level_db : ndarray, shape (F,)
-        Level in dB (whatever reference the file used; SPL re 20 uPa for meter readings).
-    phase_deg : ndarray or None
-        Phase in degrees as given in the file (wrapped or not), or None.
-    source : str
-        The file name, or the name given with the text.
-    notes : tuple of str
-        What was done on the way in: layout detected, lines skipped, rows sorted,
-        calibration or weighting applied.
-    """
-
-    freq_hz: np.ndarray
-    level_db: np.ndarray
-    phase_deg: np.ndarray | None = None
-    source: str = "<text>"
-    notes: tuple[str, ...] = field(default=())
-
-    def to_response(self, label=None):
-        """The curve as a :class:`roommodes.response.Response` (level only, no transfer)."""
-        return Response(np.asarray(self.freq_hz, float), np.asarray(self.level_db, float),
-                        self.source if label is None else label)
-
-
-@dataclass(frozen=True, eq=False)
-class CurveAverage:
-    """Mean of several measured curves on a common grid and their spread.
-
-    Attributes
-    ----------
-    freq_hz : ndarray, shape (F,)
-        Common log-spaced grid in Hz (the overlap of the inputs).
-    level_db : ndarray, shape (F,)
-        Mean level in dB (mean power, or mean dB, as chosen).
-    std_db : ndarray, shape (F,)
-        Standard deviation of the individual levels in dB across the curves
-        (population form, divisor N).
-    min_db, max_db : ndarray, shape (F,)
-        Lowest and highest individual level at each frequency.
-    count : int
-        Number of curves averaged.
-    mode : str
-        ``"power"`` or ``"db"``.
-    sources : tuple of str
-        The ``source`` of each input curve.
-    """
-
-    freq_hz: np.ndarray
-    level_db: np.ndarray
-    std_db: np.ndarray
-    min_db: np.ndarray
-    max_db: np.ndarray
-    count: int
-    mode: str
-    sources: tuple[str, ...] = ()
+#: A curve read from a file, and an average of several, are the package's one curve type
+#: (:class:`roommodes.dsp.response.Response`): ``sources`` names the file(s), ``notes`` says
+#: what was done on the way in, ``phase_deg`` keeps a phase column, and an average carries its
+#: spread (``std_db``, ``min_db``, ``max_db``).
+MeasuredCurve = Response
+CurveAverage = Response
 
 
 # --------------------------------------------------------------------------- decoding
@@ -526,7 +470,7 @@ def _build_curve(text, source, *, delimiter, decimal, columns, max_columns, min_
         raise MeasurementFileError(
             f"only {freq.size} row(s) of data; at least {min_points} are needed", source,
             int(lines[-1]))
-    return MeasuredCurve(freq, level, phase, source, tuple(notes))
+    return Response(freq, level, source, sources=(source,), notes=tuple(notes), phase_deg=phase)
 
 
 # --------------------------------------------------------------------------- public readers
@@ -795,7 +739,9 @@ def average_curves(curves, mode="power", *, points_per_octave=48, freq_hz=None):
 
     Returns
     -------
-    CurveAverage
+    Response
+        The mean on the common grid, with ``std_db``, ``min_db``, ``max_db`` and the
+        ``sources`` of every input curve (its ``count``).
 
     Notes
     -----
@@ -837,6 +783,7 @@ def average_curves(curves, mode="power", *, points_per_octave=48, freq_hz=None):
         mean = 10 * np.log10(np.mean(10 ** (levels / 10), axis=0))
     else:
         mean = levels.mean(axis=0)
-    sources = tuple(getattr(c, "source", getattr(c, "label", "")) for c in curves)
-    return CurveAverage(grid, mean, levels.std(axis=0), levels.min(axis=0),
-                        levels.max(axis=0), len(curves), mode, sources)
+    sources = tuple(s for c in curves for s in (getattr(c, "sources", ()) or (getattr(c, "label", ""),)))
+    return Response(grid, mean, f"mean of {len(curves)}", sources=sources, std_db=levels.std(axis=0),
+                    min_db=levels.min(axis=0), max_db=levels.max(axis=0),
+                    notes=(f"{mode} average of {len(curves)} curves",))

@@ -16,6 +16,7 @@ import tomllib
 from pathlib import Path
 
 import numpy as np
+import tomlkit
 
 from ..model.materials import get_material
 from ..model.room import MAX_DIMENSION_M, MIN_DIMENSION_M, WALL_MARGIN_M, WALLS, Layout, Room, Speaker, Surface
@@ -305,58 +306,146 @@ def load_room(path):
     return parse_room(data, name, p.parent)
 
 
-def _fmt(v):
-    return f"{v:.4g}" if isinstance(v, float) else repr(v)
+_COORDINATES_NOTE = (
+    "Coordinates are metres from the floor corner where the front wall (behind the speakers)\n"
+    "meets the left wall (as seen from the seat): x toward the back wall, y toward the right\n"
+    "wall, z up. The format is described in docs/room-file.md.")
 
 
-def room_to_toml(room, comment=None):
-    """Text of a room file for ``room`` (the inverse of :func:`load_room`)."""
-    lines = []
-    if comment:
-        lines += [f"# {line}" for line in comment.splitlines()] + [""]
-    lines += ["[room]", f'name = "{room.name}"',
-              "size_m = [" + ", ".join(_fmt(v) for v in room.size_m) + "]   # length (x), width (y), height (z)",
-              f"temperature_c = {_fmt(float(room.temperature_c))}", "", "[surfaces]"]
+def _number(v):
+    v = float(v)
+    return int(v) if v.is_integer() and abs(v) < 1e15 else v
+
+
+def _array(values, note=None):
+    arr = tomlkit.array([_number(v) for v in values])
+    if note:
+        arr.comment(note)
+    return arr
+
+
+def _item(value, note=None):
+    it = tomlkit.item(value)
+    if note:
+        it.comment(note)
+    return it
+
+
+def _table(doc, key, super_table=False):
+    """``doc[key]`` as a table, created (and appended) when missing; a super table holds
+    only sub-tables and has no header of its own."""
+    if key not in doc:
+        doc[key] = tomlkit.table(is_super_table=super_table)
+    return doc[key]
+
+
+def _set(table, key, value):
+    """Set ``table[key]``, keeping the comment that followed the old value."""
+    old = table.get(key) if hasattr(table, "get") else None
+    note = getattr(getattr(old, "trivia", None), "comment", "") if old is not None else ""
+    new = value if isinstance(value, tomlkit.items.Item) else tomlkit.item(value)
+    if note and not getattr(new.trivia, "comment", ""):
+        new.trivia.comment = note
+        new.trivia.comment_ws = old.trivia.comment_ws or "   "
+    table[key] = new
+
+
+def _surface_value(s):
+    if s.material:
+        return s.material
+    if s.bands_hz is None:
+        return _number(s.absorption[0])
+    t = tomlkit.inline_table()
+    t["absorption"] = [_number(a) for a in s.absorption]
+    t["bands_hz"] = [_number(b) for b in s.bands_hz]
+    return t
+
+
+def _relative_path(path_text, from_dir, to_dir):
+    """``path_text`` (relative to ``from_dir``) as a path relative to ``to_dir``."""
+    p = Path(path_text)
+    if p.is_absolute() or from_dir is None or to_dir is None:
+        return str(p)
+    target = (Path(from_dir) / p).resolve()
+    try:
+        return os.path.relpath(target, Path(to_dir).resolve())
+    except ValueError:  # another drive (Windows)
+        return str(target)
+
+
+def room_to_toml(room, comment=None, *, original_text=None, position_note=None, size_note=None, written_to=None):
+    """Text of a room file for ``room`` (the inverse of :func:`load_room`): the one writer.
+
+    Parameters
+    ----------
+    room : Room
+    comment : str, optional
+        Comment lines put first.
+    original_text : str, optional
+        The text of the room file ``room`` came from. Its comments, key order and any keys
+        the writer does not know are kept; only the values that describe ``room`` change.
+    position_note : callable, optional
+        ``position_note(what, position_m) -> str``, ``what`` a speaker's name or ``"seat"``:
+        a comment written beside each position of a new file (e.g. the distances from the
+        walls in the user's units).
+    size_note : str, optional
+        The comment beside ``size_m`` in a new file (default: which length is which).
+    written_to : path, optional
+        Where the text will be written: a relative ``response_file`` is rewritten relative
+        to that file's folder, so that it still points at the same curve.
+
+    Returns
+    -------
+    str
+        TOML text; names, paths and keys are quoted and escaped as TOML requires.
+    """
+    doc = tomlkit.parse(original_text) if original_text else tomlkit.document()
+    if not original_text:
+        for line in _COORDINATES_NOTE.splitlines():
+            doc.add(tomlkit.comment(line))
+        doc.add(tomlkit.nl())
+    rt = _table(doc, "room")
+    _set(rt, "name", room.name)
+    _set(rt, "size_m", _array(room.size_m, None if original_text else (size_note or "length (x), width (y), height (z)")))
+    _set(rt, "temperature_c", _number(room.temperature_c))
+    st = _table(doc, "surfaces")
     for s in room.surfaces:
-        if s.material:
-            val = f'"{s.material}"'
-        elif s.bands_hz is None:
-            val = _fmt(float(s.absorption[0]))
-        else:
-            val = ("{ absorption = [" + ", ".join(_fmt(float(a)) for a in s.absorption) + "], bands_hz = ["
-                   + ", ".join(_fmt(float(b)) for b in s.bands_hz) + "] }")
-        lines.append(f"{s.name} = {val}")
+        note = None
+        if not original_text:
+            note = get_material(s.material).description if s.material else "random-incidence absorption coefficient"
+        _set(st, s.name, _item(_surface_value(s), note))
     if room.layout is not None:
+        speakers = _table(doc, "speakers", super_table=True)
+        names = [sp.name for sp in room.layout.speakers]
+        for old in [k for k in list(speakers.keys()) if k not in names]:
+            del speakers[old]
+        src_dir = Path(room.source).parent if room.source else None
+        out_dir = Path(written_to).parent if written_to is not None else None
         for sp in room.layout.speakers:
-            lines += ["", f"[speakers.{sp.name}]",
-                      "position_m = [" + ", ".join(f"{v:.3f}" for v in sp.position_m) + "]"]
+            if sp.name not in speakers:
+                speakers[sp.name] = tomlkit.table()
+            t = speakers[sp.name]
+            fresh = not original_text
+            note = position_note(sp.name, sp.position_m) if position_note and fresh else None
+            _set(t, "position_m", _array(sp.position_m, note))
             if sp.lowcut_hz:
-                lines += [f"lowcut_hz = {_fmt(float(sp.lowcut_hz))}", f"lowcut_order = {sp.lowcut_order}"]
+                box = "vented box" if sp.lowcut_order == 4 else "sealed box"
+                _set(t, "lowcut_hz", _item(_number(sp.lowcut_hz), "the speaker's own -3 dB point" if fresh else None))
+                _set(t, "lowcut_order", _item(int(sp.lowcut_order), box if fresh else None))
             if sp.response_file:
-                lines.append(f'response_file = "{sp.response_file}"')
+                _set(t, "response_file", _relative_path(sp.response_file, src_dir, out_dir))
             for k in ("sensitivity_db", "amplifier_w", "max_spl_db"):
                 if getattr(sp, k) is not None:
-                    lines.append(f"{k} = {_fmt(float(getattr(sp, k)))}")
-        lines += ["", "[seat]", "position_m = [" + ", ".join(f"{v:.3f}" for v in room.layout.seat_m) + "]"]
-    if room.search:
-        lines += ["", "[search]"]
-        for k, v in room.search.items():
-            lines.append(f"{k} = {_toml_value(v)}")
-    return "\n".join(lines) + "\n"
-
-
-def _toml_value(v):
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, (int, float)):
-        return _fmt(v) if isinstance(v, float) else str(v)
-    if isinstance(v, str):
-        return f'"{v}"'
-    if isinstance(v, list):
-        return "[" + ", ".join(_toml_value(x) for x in v) + "]"
-    if isinstance(v, dict):
-        return "{ " + ", ".join(f"{k} = {_toml_value(x)}" for k, x in v.items()) + " }"
-    raise TypeError(f"cannot write {v!r} to TOML")
+                    _set(t, k, _number(getattr(sp, k)))
+        seat = _table(doc, "seat")
+        note = position_note("seat", room.layout.seat_m) if position_note and not original_text else None
+        _set(seat, "position_m", _array(room.layout.seat_m, note))
+    if room.search and "search" not in doc:
+        doc["search"] = dict(room.search)
+    text = tomlkit.dumps(doc)
+    if comment:
+        text = "".join(f"# {line}".rstrip() + "\n" for line in comment.splitlines()) + "\n" + text
+    return text
 
 
 def write_text_atomic(path, text, overwrite=False):

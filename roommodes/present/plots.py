@@ -14,8 +14,6 @@ from pathlib import Path
 
 import numpy as np
 
-from ..analysis.eq import correction_db
-
 __all__ = ["PALETTE", "new_figure", "save_figure", "plot_prediction", "plot_modes"]
 
 #: Okabe-Ito colour-blind-safe palette (black first for references).
@@ -156,6 +154,9 @@ def plot_correction(corrections, title=None, path=None):
     One row of two panels per channel: left, the levels with the classified regions
     shaded (nulls are not boosted); right, the combined correction curve and each filter.
     """
+    # imported here, not at the top: the EQ pulls in scipy.optimize, which `predict` never needs
+    from ..analysis.eq import correction_db
+
     n = len(corrections)
     fig, axes = new_figure(11.0, 3.6 * n, n, 2, squeeze=False)
     for row, corr in enumerate(corrections):

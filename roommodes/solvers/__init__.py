@@ -20,6 +20,7 @@ import warnings
 
 import numpy as np
 
+from .exact import exact_transfer
 from .modal import modal_transfer
 
 __all__ = ["transfer_function", "METHODS", "DEFAULT_METHOD", "ACCURACY_DB", "ASSUMPTIONS", "SolverConvergenceWarning"]
@@ -121,6 +122,7 @@ def transfer_function(room, sources_m, receivers_m, freq_hz, method=None, **opti
     if method == "modal":
         return modal_transfer(room.size_m, zeta, src, rec, f, room.speed_of_sound, **options)
     if method == "image":
+        # imported on first use: the image kernel loads numba, which costs start-up time
         from .images import image_source_transfer
 
         h, info = image_source_transfer(room.size_m, zeta, src, rec, f, room.speed_of_sound, **options)
@@ -131,7 +133,5 @@ def transfer_function(room, sources_m, receivers_m, freq_hz, method=None, **opti
                 "image sources to be practical: use the modal solver"), stacklevel=2)
         return h
     if method == "exact":
-        from .exact import exact_transfer
-
         return exact_transfer(room.size_m, zeta, src, rec, f, room.speed_of_sound, **options)
     raise ValueError(f"method must be one of {', '.join(METHODS)}, got {method!r}")

@@ -64,7 +64,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..model.walls import impedance_table
-from .modal import static_green_pairs
+from .modal import _g1d, static_green_pairs
 
 __all__ = [
     "exact_transfer",
@@ -606,8 +606,6 @@ def _static_tail(size, s, r, a, tb, tc, mb, mc):
     """``4 pi`` times the rigid static Green's function minus its terms ``m < mb, n < mc``
     summed along axis ``a`` (the same terms the exact sum keeps): the static value of the
     terms it drops."""
-    from .modal import _g1d
-
     full = static_green_pairs(size, s, r)
     m = np.arange(mb)
     n = np.arange(mc)

@@ -250,8 +250,8 @@ def test_load_errors_name_the_file(tmp_path):
 
 def test_average_keeps_power_mean_and_spread():
     base = np.linspace(-5, 5, F.size)
-    a = Measurement(F, base + 3.0, "a", ("a",))
-    b = Measurement(F, base - 3.0, "b", ("b",))
+    a = Measurement(F, base + 3.0, "a", sources=("a",))
+    b = Measurement(F, base - 3.0, "b", sources=("b",))
     avg = average_measurements([a, b])
     expected = 10 * math.log10((10**0.3 + 10**-0.3) / 2)
     np.testing.assert_allclose(avg.level_db, base + expected, atol=1e-9)

@@ -134,3 +134,33 @@ def test_units_of_printed_distances(units, text):
     # 0.50 m = 19.685 in = 1 ft 7 3/4 in to the nearest 1/4 in (international inch, 25.4 mm exactly)
     res = run("predict", DEMO, "--units", units, "--points-per-octave", "6")
     assert res.exit_code == 0 and text in res.stdout
+
+
+# ------------------------------------------------------------------ the command registry
+def test_registry_short_help_is_each_commands_own_first_line():
+    # the group lists commands without importing them; its short help must not drift from
+    # the commands' docstrings (no outside value: the rule is the project's own)
+    from roommodes.cli.app import COMMANDS, _Group
+
+    group = main
+    assert isinstance(group, _Group)
+    for name, (_, _, short) in COMMANDS.items():
+        cmd = group.get_command(None, name)
+        assert cmd is not None, name
+        assert cmd.name == name
+        first = cmd.help.strip().split("\n")[0]
+        assert first == short, (name, first)
+
+
+def test_predict_loads_only_what_it_needs():
+    # roommodes predict must not import the report, the measurement tools or matplotlib
+    import subprocess
+    import sys
+
+    code = ("import sys; from click.testing import CliRunner; from roommodes.cli import main; "
+            "from roommodes import demo_room_path; "
+            "r = CliRunner().invoke(main, ['predict', str(demo_room_path())]); assert r.exit_code == 0, r.output; "
+            "print(sorted(m for m in ('roommodes.present.report', 'roommodes.cli.measure', 'matplotlib', "
+            "'scipy.signal', 'scipy.optimize') if m in sys.modules))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+    assert out.strip() == "[]", out

@@ -26,7 +26,9 @@ from pagecheck import PNG_SIGNATURE, check_page, data_values
 from roommodes import demo_room_path, load_room, log_frequencies, predict
 from roommodes.analysis.compare import predicted_level
 from roommodes.cli import main
-from roommodes.cli.report import init, map_, report
+from roommodes.cli.init import init
+from roommodes.cli.map import map_
+from roommodes.cli.report import report
 from roommodes.model.materials import material_names
 from roommodes.model.room import Surface
 from roommodes.present.report import Report, ReportFigure, Table
@@ -228,9 +230,9 @@ def _fake_report(*args, **kwargs):
 
 
 def test_report_force_replaces_page_and_folder_whole(tmp_path, monkeypatch):
-    import roommodes.present.report
+    import roommodes.cli.report
 
-    monkeypatch.setattr(roommodes.present.report, "build_report", _fake_report)
+    monkeypatch.setattr(roommodes.cli.report, "build_report", _fake_report)
     out = tmp_path / "r.html"
     out.write_text("old")
     (tmp_path / "r_files").mkdir()
@@ -245,9 +247,9 @@ def test_report_force_replaces_page_and_folder_whole(tmp_path, monkeypatch):
 
 
 def test_report_failure_while_writing_leaves_the_old_report(tmp_path, monkeypatch):
-    import roommodes.present.report
+    import roommodes.cli.report
 
-    monkeypatch.setattr(roommodes.present.report, "build_report", _fake_report)
+    monkeypatch.setattr(roommodes.cli.report, "build_report", _fake_report)
 
     def full_disk(self):
         raise OSError(28, "No space left on device")

@@ -1,0 +1,154 @@
+"""Command-line pieces shared by the commands that read measurements (compare, fit, eq,
+report): the measurement options, reading WAV files and measurement files with one-line
+errors, and matching each file to its speaker and microphone position."""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+import click
+import numpy as np
+
+from ..analysis.compare import is_wav_file, load_measurement, speaker_by_name
+from ..io.wavio import read_wav
+from ._util import fail
+
+__all__ = [
+    "wav_channel_option",
+    "smoothing_option",
+    "window_option",
+    "require_file",
+    "channel_message",
+    "read_wav_or_fail",
+    "parse_point",
+    "positions",
+    "load_measurements",
+    "measured_files_options",
+    "measurement_specs",
+]
+
+
+wav_channel_option = click.option(
+    "--wav-channel", type=click.IntRange(1, 65535),
+    help="Channel of multi-channel WAV files holding the microphone (1 = first).")
+
+
+smoothing_option = click.option(
+    "--smoothing", type=click.IntRange(0, 48), default=12, show_default=True,
+    help="Smoothing of both curves, 1/N octave in power (0: none).")
+
+
+window_option = click.option(
+    "--window", "window_s", type=float, default=1.0, show_default=True,
+    help="Window on impulse responses, s: the frequency resolution is about 1/window.")
+
+
+def require_file(path, what):
+    p = Path(path)
+    if not p.exists():
+        fail(f"{p}: no such file ({what})")
+    if p.is_dir():
+        fail(f"{p}: is a folder; give the {what}")
+    return p
+
+
+def channel_message(msg, path, wav_channel):
+    """Restate a WAV channel error with the command line's 1-based channel numbers."""
+    m = re.search(r"has (\d+) channel", msg)
+    if m is None:
+        return msg
+    n = int(m.group(1))
+    if wav_channel is None:
+        return f"{path}: the file has {n} channels; choose the microphone's with --wav-channel N (1..{n})"
+    return f"{path}: --wav-channel {wav_channel} does not exist; the file has {n} channel(s) (1..{n})"
+
+
+def read_wav_or_fail(path, channel_1based, what="recording"):
+    """Read one channel of a WAV file; one-line errors naming the file."""
+
+    p = require_file(path, what)
+    if not is_wav_file(p):
+        fail(f"{p}: not a WAV file (no RIFF/WAVE header); give the {what} as a WAV file")
+    try:
+        x, fs, info = read_wav(p, None if channel_1based is None else channel_1based - 1)
+    except ValueError as exc:
+        fail(channel_message(str(exc), p, channel_1based))
+    if not np.all(np.isfinite(x)):
+        fail(f"{p}: holds non-finite samples (NaN or infinity)")
+    return x, fs, info
+
+
+def parse_point(text, name="--at"):
+    try:
+        v = [float(s) for s in text.replace(";", ",").split(",")]
+    except ValueError:
+        v = []
+    if len(v) != 3 or not all(np.isfinite(v)):
+        fail(f"{name} must be X,Y,Z in metres, e.g. 1.85,1.45,1.20; got '{text}'")
+    return tuple(v)
+
+
+def positions(room, at, n_files, name="--at"):
+    """Microphone positions: one per file, one for all, or the seat."""
+    if not at:
+        if room.layout is None:
+            fail(f"{room.source}: the room file has no [seat]; give the microphone position with {name} X,Y,Z")
+        return [tuple(room.layout.seat_m)] * n_files
+    pts = [tuple(room.layout.seat_m) if a.strip().lower() == "seat" and room.layout else parse_point(a, name)
+           for a in at]
+    for p in pts:
+        if not room.contains([p])[0]:
+            lx, ly, lz = room.size_m
+            fail(f"{name} {p[0]:g},{p[1]:g},{p[2]:g} lies outside the room (0 < x < {lx:g}, 0 < y < {ly:g}, "
+                 f"0 < z < {lz:g} m)")
+    if len(pts) == 1:
+        return pts * n_files
+    if len(pts) != n_files:
+        fail(f"give {name} once (all measurements at one position) or once per measurement file "
+             f"({n_files}), got {len(pts)}")
+    return pts
+
+
+def load_measurements(paths, wav_channel, window_s, freq_hz):
+
+    out = []
+    for p in paths:
+        require_file(p, "measurement")
+        try:
+            out.append(load_measurement(p, None if wav_channel is None else wav_channel - 1, window_s, freq_hz))
+        except ValueError as exc:
+            fail(channel_message(str(exc), p, wav_channel))
+    return out
+
+
+def measured_files_options(f):
+    """FILES of one speaker (--channel, --at) and --measure CHANNEL X,Y,Z FILE; for fit and report."""
+    f = click.option("--measure", "measure", multiple=True, nargs=3, metavar="CHANNEL X,Y,Z FILE",
+                     help="One more measurement with its own speaker and position (repeatable); X,Y,Z may be "
+                          "'seat'.")(f)
+    f = click.option("--at", multiple=True, metavar="X,Y,Z",
+                     help="Microphone position of FILES, m (default: the seat); once for all or once per file.")(f)
+    return click.option("--channel", help="The speaker measured in FILES (a name in the room file).")(f)
+
+
+def measurement_specs(room, files, channel, at, measure):
+    """(speaker name, microphone position, path) of every measurement given on the command line."""
+
+    specs = []
+    if files:
+        try:
+            name = speaker_by_name(room, channel).name
+        except ValueError as exc:
+            fail(str(exc))
+        for p, pos in zip(files, positions(room, at, len(files))):
+            specs.append((name, pos, Path(p)))
+    elif at or channel:
+        fail("--channel and --at describe FILES; with --measure each measurement carries its own")
+    for ch, where, p in measure:
+        try:
+            name = speaker_by_name(room, ch).name
+        except ValueError as exc:
+            fail(str(exc))
+        specs.append((name, positions(room, (where,), 1, "--measure position")[0], Path(p)))
+    return specs

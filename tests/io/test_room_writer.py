@@ -1,0 +1,118 @@
+"""The one room-file writer (roommodes.io.roomfile.room_to_toml).
+
+No outside check values: the properties are the format's own (docs/room-file.md) and TOML's
+(the text must parse with the standard library's tomllib, TOML 1.0): what is written reads
+back to the same room; a file written over another keeps the user's comments and keys;
+names and paths are quoted, never injected as extra keys; a relative response_file still
+points at the same curve from the new file's folder.
+"""
+
+from __future__ import annotations
+
+import tomllib
+from dataclasses import replace
+
+import numpy as np
+import pytest
+from click.testing import CliRunner
+
+from roommodes import example_rooms, load_room
+from roommodes.cli import main
+from roommodes.io.roomfile import parse_room, room_to_toml
+
+
+@pytest.mark.parametrize("path", example_rooms(), ids=lambda p: p.name)
+def test_written_room_reads_back_to_the_same_room(path, tmp_path):
+    room = load_room(path)
+    for text in (room_to_toml(room), room_to_toml(room, original_text=path.read_text(encoding="utf-8"))):
+        back = parse_room(tomllib.loads(text), "x.toml", path.parent)
+        assert back.size_m == room.size_m and back.temperature_c == room.temperature_c
+        for a, b in zip(back.surfaces, room.surfaces):
+            assert (a.name, a.material, a.bands_hz) == (b.name, b.material, b.bands_hz)
+            np.testing.assert_allclose(a.absorption, b.absorption)
+        assert back.layout.seat_m == room.layout.seat_m
+        assert [s.position_m for s in back.layout.speakers] == [s.position_m for s in room.layout.speakers]
+
+
+def test_names_and_paths_are_quoted_not_injected(tmp_path):
+    room = load_room(example_rooms()[0])
+    sp = replace(room.layout.speakers[0], name='le"ft\nsensitivity_db = 119', response_file='a"b\nc = 1.txt')
+    room = room.with_layout(replace(room.layout, speakers=(sp,) + room.layout.speakers[1:]))
+    data = tomllib.loads(room_to_toml(replace(room, name='x"\n[seat]')))
+    assert data["room"]["name"] == 'x"\n[seat]'
+    assert list(data["speakers"])[0] == 'le"ft\nsensitivity_db = 119'
+    assert data["speakers"]['le"ft\nsensitivity_db = 119']["response_file"] == 'a"b\nc = 1.txt'
+    assert data["speakers"]['le"ft\nsensitivity_db = 119'].get("sensitivity_db") == sp.sensitivity_db != 119
+
+
+ROOM = """# My studio, measured 2026-11-02 with a laser meter.
+[room]
+name = "Spare room"
+size_m = [4.9, 3.6, 2.55]   # wall to wall, at skirting height
+
+[surfaces]
+front = 0.1   # bare plaster
+back = 0.3    # bookshelf
+left = 0.1
+right = 0.1
+floor = 0.15  # rug on boards
+ceiling = 0.1
+
+[speakers.left]
+position_m = [0.6, 0.9, 1.2]   # on the desk stands
+lowcut_hz = 45
+lowcut_order = 2
+response_file = "curves/left.txt"
+
+[speakers.right]
+position_m = [0.6, 2.7, 1.2]
+lowcut_hz = 45
+lowcut_order = 2
+
+[seat]
+position_m = [1.9, 1.8, 1.2]   # the office chair
+"""
+
+
+def _room_files(tmp_path):
+    (tmp_path / "curves").mkdir()
+    (tmp_path / "curves" / "left.txt").write_text("20 -12\n45 -3\n100 0\n1000 0\n")
+    path = tmp_path / "spare.toml"
+    path.write_text(ROOM)
+    return path
+
+
+def test_place_write_layout_keeps_comments_and_rewrites_relative_paths(tmp_path):
+    path = _room_files(tmp_path)
+    out_dir = tmp_path / "out"
+    out_dir.mkdir()
+    out = out_dir / "best.toml"
+    res = CliRunner().invoke(main, ["place", str(path), "--write-layout", str(out)], catch_exceptions=False)
+    assert res.exit_code == 0, res.output
+    text = out.read_text()
+    for note in ("# My studio, measured 2026-11-02", "# wall to wall, at skirting height", "# bookshelf",
+                 "# rug on boards"):
+        assert note in text, note
+    data = tomllib.loads(text)
+    assert data["speakers"]["left"]["response_file"] == "../curves/left.txt"
+    assert load_room(out).layout.speakers[0].response is not None  # the curve still loads from the new folder
+    assert path.read_text() == ROOM  # the input is untouched
+
+
+def test_fit_output_keeps_comments(tmp_path):
+    path = _room_files(tmp_path)
+    room = load_room(path)
+    f = np.geomspace(20, 200, 60)
+    from roommodes.analysis.predict import predict
+
+    level = predict(room, freq_hz=f).channels[0].level_db
+    meas = tmp_path / "left.txt"
+    meas.write_text("".join(f"{a:.4f} {b:.4f}\n" for a, b in zip(f, level)))
+    out = tmp_path / "cal.toml"
+    res = CliRunner().invoke(main, ["fit", str(path), str(meas), "--channel", "left", "-o", str(out)],
+                             catch_exceptions=False)
+    assert res.exit_code == 0, res.output
+    text = out.read_text()
+    assert "# wall to wall, at skirting height" in text and "# the office chair" in text
+    assert text.startswith("# Calibrated by roommodes")
+    load_room(out)
