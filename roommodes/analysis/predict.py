@@ -78,6 +78,13 @@ class Prediction:
     schroeder_hz: float
     valid: np.ndarray
 
+    def to_dict(self):
+        """The prediction as JSON-ready values (the keys of ``predict --json``)."""
+        return {"method": self.method, "layout": self.layout_name, "seat_m": list(self.seat_m),
+                "frequencies_hz": self.freq_hz, "schroeder_hz": self.schroeder_hz, "valid": self.valid,
+                "channels": [{"name": c.name, "position_m": list(c.position_m), "level_db": c.level_db}
+                             for c in self.channels]}
+
 
 def room_schroeder_frequency(room, band_hz=125.0):
     """Schroeder frequency (Hz) from the Sabine reverberation time at ``band_hz``.
@@ -184,6 +191,11 @@ class Feature:
     level_db: float
     prominence_db: float
     causes: tuple  # of short strings
+
+    def to_dict(self):
+        """JSON-ready values: kind, freq_hz, level_db, prominence_db, causes."""
+        return {"kind": self.kind, "freq_hz": self.freq_hz, "level_db": self.level_db,
+                "prominence_db": self.prominence_db, "causes": list(self.causes)}
 
 
 def response_features(room, prediction, channel, max_features=8, smoothing=12, min_prominence_db=3.0):

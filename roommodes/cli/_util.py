@@ -22,9 +22,8 @@ from ..solvers import DEFAULT_METHOD, METHODS
 CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
 
 MODEL_CAUTION = (
-    "Model: an idealised rectangular box with locally reacting walls and point-source speakers. "
-    "Treat predictions above the Schroeder frequency as indicative only, and check them against "
-    "a measurement before acting on them."
+    "Model: an idealised rectangular box with locally reacting walls and point-source speakers, "
+    "no furniture: check its predictions against a measurement before acting on them."
 )
 
 

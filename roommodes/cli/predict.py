@@ -150,12 +150,12 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
     if as_json:
         lay_objs = []
         for lay, p in zip(layouts, preds):
-            lay_objs.append({
-                "name": lay.name, "seat_m": lay.seat_m,
-                "channels": [{"name": c.name, "position_m": c.position_m, "level_db": c.level_db,
-                              "band_figures": band_figures(f, c.level_db, usable_band(lay.speakers))} for c in p.channels],
-                "band_hz": usable_band(lay.speakers),
-            })
+            d = p.to_dict()
+            band = usable_band(lay.speakers)
+            for c, ch in zip(p.channels, d["channels"]):
+                ch["band_figures"] = band_figures(f, c.level_db, band)
+                ch["features"] = [ft.to_dict() for ft in response_features(room, p, c.name)]
+            lay_objs.append({"name": lay.name, "seat_m": d["seat_m"], "channels": d["channels"], "band_hz": band})
         dump_json({
             "room": room.name, "method": method,
             "frequencies_hz": f, "schroeder_hz": fs, "valid": preds[0].valid,
@@ -178,14 +178,14 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
                            f"spread {fig['spread_db']:.1f} dB, std {fig['std_db']:.1f} dB")
                 if layout != "all":
                     for ft in response_features(room, p, ch.name):
+                        side = "above" if ft.kind == "peak" else "below"
                         click.echo(f"    {ft.kind:<4} {ft.freq_hz:6.1f} Hz {ft.level_db:+6.1f} dB "
-                                   f"({ft.prominence_db:4.1f} dB): {'; '.join(ft.causes)}")
+                                   f"(stands {ft.prominence_db:4.1f} dB {side} its surroundings): {'; '.join(ft.causes)}")
         click.echo("")
         click.echo(f"Schroeder frequency {fs:.0f} Hz: results above it are indicative only.")
         click.echo("")
     echo_err(MODEL_CAUTION)
     if plot_path:
-
         ms = room_modes(room, hi)
         plot_prediction(preds, ms, title=f"{room.name}: predicted level at the seat", path=plot_path)
         echo_err(f"wrote {plot_path}")

@@ -708,8 +708,10 @@ def _section_responses(run):
                   note="Found on the 1/12-octave smoothed curve below the Schroeder frequency.")
         big = max(first_feats, key=lambda t: t.prominence_db) if first_feats else None
         if big is not None:
-            glance.append(f"Largest feature for {pred.channels[0].name}: a {big.kind} at {big.freq_hz:.0f} Hz "
-                          f"({big.prominence_db:.1f} dB): {'; '.join(big.causes) or 'many modes together'}.")
+            glance.append(f"Largest feature for {pred.channels[0].name}: a {big.kind} at {big.freq_hz:.0f} Hz, "
+                          f"{big.level_db:+.1f} dB, standing {big.prominence_db:.1f} dB "
+                          f"{'above' if big.kind == 'peak' else 'below'} its surroundings: "
+                          f"{'; '.join(big.causes) or 'many modes together'}.")
 
 
 def _section_placement(run):
