@@ -630,6 +630,11 @@ def fit_cuts_and_boosts(f, dev, limits, f_bounds, q_range, gain_bounds, max_filt
             g0 = float(min(-e[i], head[i], gain_bounds[1]))
             q0 = float(np.clip(bandwidth_to_q(width), qmin, bqmax))
             qb = (qmin, bqmax)
+            for na, nb in limits.noboost:  # the boost may not wander into a null
+                if nb < f[i]:
+                    a = max(a, nb)
+                elif na > f[i]:
+                    b = min(b, na)
             fb = (max(f_bounds[0], a), min(f_bounds[1], b))
             gb = (0.0, float(gain_bounds[1]))
             role, basis = "boost", f"broad boost (Q at most {bqmax:g})"
