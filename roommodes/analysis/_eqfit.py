@@ -238,11 +238,16 @@ class Limits:
     ``fit_step_oct`` octaves); below it a boost costs ``below_boost_cost`` as in band.
     Inside the no-boost intervals a cut costs like a deviation above the band (weight
     ``above_weight``): cutting into a cancellation null only deepens it.
+
+    ``ceiling`` ``(freq_hz, ceiling_db)``, optional: a frequency-dependent upper limit on
+    the combined curve over ``freq_hz[0]..freq_hz[-1]`` (interpolated linearly in log
+    frequency), held like the other limits. A correction uses it so that no boost lifts
+    any part of the curve further above the target than it already was.
     """
 
     def __init__(self, max_boost_db, noboost, tol_db, span_lo, span_hi, sample_rate,
                  band=None, fit_step_oct=1.0 / 48, above_weight=0.5, below_boost_cost=0.02,
-                 weight=30.0, per_octave=24):
+                 weight=30.0, per_octave=24, ceiling=None):
         self.max_boost_db = float(max_boost_db)
         self.noboost = [(float(a), float(b)) for a, b in noboost]
         self.tol_db = float(tol_db)
@@ -252,7 +257,13 @@ class Limits:
         grid = [log_grid(span_lo, span_hi, per_octave)]
         for a, b in self.noboost:
             grid.append(log_grid(a, b, per_octave) if b > a else np.array([a]))
+        self.ceiling = None
+        if ceiling is not None:
+            cf, cd = (np.asarray(v, float) for v in ceiling)
+            self.ceiling = (cf, cd)
+            grid.append(cf)
         self.f = np.unique(np.concatenate(grid))
+        self.ceil_db = self.ceiling_at(self.f)
         self.nb = np.zeros(self.f.size, bool)
         for a, b in self.noboost:
             self.nb |= (self.f >= a * (1 - 1e-12)) & (self.f <= b * (1 + 1e-12))
@@ -279,10 +290,21 @@ class Limits:
         """
         over = np.maximum(curve_db - self.max_boost_db, 0.0)
         nb = np.maximum(curve_db[self.nb] - self.tol_db, 0.0)
-        return np.concatenate([self.weight * over, self.weight * nb,
+        ceil = np.maximum(curve_db - self.ceil_db, 0.0)
+        return np.concatenate([self.weight * over, self.weight * nb, self.weight * ceil,
                                self.above_w * np.minimum(curve_db[self.nb_idx], 0.0),
                                self.above_w * curve_db[self.above_idx],
                                self.below_w * np.maximum(curve_db[self.below_idx], 0.0)])
+
+    def ceiling_at(self, f):
+        """The ceiling (dB) at ``f``: interpolated inside its range, ``inf`` outside."""
+        f = np.asarray(f, float)
+        if self.ceiling is None:
+            return np.full(f.shape, np.inf)
+        cf, cd = self.ceiling
+        out = np.interp(np.log(f), np.log(cf), cd)
+        out[(f < cf[0] * (1 - 1e-12)) | (f > cf[-1] * (1 + 1e-12))] = np.inf
+        return out
 
     def set_check_span(self, lo_hz, hi_hz, per_octave=192):
         """Grid on which :meth:`violation` looks for excess boost."""
@@ -291,6 +313,17 @@ class Limits:
         for a, b in self.noboost:
             grids.append(log_grid(a, b, 2 * per_octave) if b > a else np.array([a]))
         self._check_f = grids
+        self._ceil_f = None
+        if self.ceiling is not None:
+            cf = self.ceiling[0]
+            self._ceil_f = np.unique(np.concatenate([log_grid(cf[0], cf[-1], per_octave), cf]))
+            self._ceil_db = self.ceiling_at(self._ceil_f)
+
+    def ceiling_excess(self, specs):
+        """Largest excess (dB) of the cascade over the ceiling; ``-inf`` without one."""
+        if self._ceil_f is None or not specs:
+            return -np.inf
+        return float(np.max(cascade_db(specs, self._ceil_f, self.sample_rate) - self._ceil_db))
 
     def violation(self, specs, exact=False):
         """Largest excess over either limit (dB, <= 0 when both hold).
@@ -307,7 +340,7 @@ class Limits:
                 m = (cascade_max(specs, self.sample_rate, a, b, per_octave=384)[0] if b > a
                      else float(cascade_db(specs, [a], self.sample_rate)[0]))
                 worst = max(worst, m - self.tol_db)
-            return worst
+            return max(worst, self.ceiling_excess(specs))
         grids = self._check_f
         c = cascade_db(specs, np.concatenate(grids), self.sample_rate)
         worst = -np.inf
@@ -320,7 +353,7 @@ class Limits:
             else:
                 m = max(_parabola_peak(g, cg, i)[0] for i in _local_maxima(g, cg, 3))
             worst = max(worst, m - (self.max_boost_db if n == 0 else self.tol_db))
-        return worst
+        return max(worst, self.ceiling_excess(specs))
 
     def in_noboost(self, f_hz):
         """Whether ``f_hz`` lies in one of the no-boost intervals."""
@@ -478,6 +511,158 @@ def _merge_twins(x, resid, cost, lo, hi, best_cost, tol=0.02):
             return x
         x, best_cost = sol.x, cost(sol.x)
     return x
+
+
+def bandwidth_to_q(width_octaves):
+    """Cookbook Q of a peaking filter whose half-gain bandwidth is ``width_octaves``."""
+    return float(1.0 / (2.0 * np.sinh(np.log(2) / 2 * max(float(width_octaves), 1e-3))))
+
+
+def fit_cuts_and_boosts(f, dev, limits, f_bounds, q_range, gain_bounds, max_filters, sample_rate, *,
+                        boostable=(), peaks=(), boost_q_max=2.0, cut_q=None, q_window=1.5,
+                        min_cut_octaves=1.0 / 12.0, boost_cost=0.02,
+                        boost_preference=0.7, stop_db=1.0, weights=None, gain_cost=0.003,
+                        min_gain_db=0.5, min_gain_fraction=0.01):
+    """Greedy-then-joint least-squares fit of peaking cuts and boosts, each kept to its role.
+
+    Like :func:`fit_peaking`, but every filter is placed for one feature of the remaining
+    deviation and keeps that feature's bounds through the joint refinement:
+
+    * a cut (gain <= 0) sits inside the half-height span of the peak it was placed for,
+      with its Q within ``q_window`` of the Q the peak's own bandwidth asks for
+      (``cut_q(freq_hz, gain_db, width_octaves) -> (q, basis)``, default: the Cookbook Q of
+      the half-height width). The width is that of the peak of the original curve
+      (``peaks``: ``(lo_hz, hi_hz, width_octaves)``) the cut lands in, else that of the
+      remaining deviation; a remainder narrower than ``min_cut_octaves`` is not cut;
+    * a boost (gain >= 0) is placed only inside one of the ``boostable`` ``(lo_hz, hi_hz)``
+      intervals, stays inside it, and has a Q of at most ``boost_q_max`` (broad).
+
+    Returns
+    -------
+    list of (spec, meta)
+        ``spec = ("peaking", f0, gain, q)``; ``meta`` a dict with ``role`` ("cut" or
+        "boost"), the bounds ``f_hz``, ``q``, ``gain_db`` and ``basis`` (how Q was chosen).
+        In rising frequency.
+    """
+    f = np.asarray(f, float)
+    dev = np.asarray(dev, float)
+    w = np.sqrt(log_weights(f) if weights is None else np.asarray(weights, float))
+    sqrt_bc = np.sqrt(boost_cost)
+    sqrt_gc = np.sqrt(gain_cost * float(np.sum(w**2)))
+    boostable = [(float(a), float(b)) for a, b in boostable]
+    qmin, qmax = float(q_range[0]), float(q_range[1])
+    bqmax = min(float(boost_q_max), qmax)
+    if cut_q is None:
+        def cut_q(f0, g, width):
+            return bandwidth_to_q(width), "the peak's half-height width"
+
+    def unpack(x):
+        x = x.reshape(-1, 3)
+        return np.exp(x[:, 0]), x[:, 1], np.exp(x[:, 2])
+
+    def curves(x, grid):
+        if not x.size:
+            return np.zeros(np.size(grid))
+        f0, g, q = unpack(x)
+        return response_db("peaking", f0, g, q, grid, sample_rate).sum(axis=0)
+
+    def resid(x, gain_rows=True):
+        c = curves(x, f)
+        cd = curves(x, limits.f)
+        rows = [w * (dev + c), limits.penalty(cd), sqrt_bc * w * np.maximum(c, 0.0)]
+        if gain_rows:
+            rows.append(sqrt_gc * x.reshape(-1, 3)[:, 1])
+        return np.concatenate(rows)
+
+    def cost(x):
+        r = resid(x)
+        return float(r @ r)
+
+    def solve(x0, lo, hi, fn=resid, nfev=200):
+        n = x0.size // 3
+        x0 = np.clip(x0, lo + 1e-9 * (hi - lo), hi - 1e-9 * (hi - lo))
+        return least_squares(fn, x0, bounds=(lo, hi), method="trf", x_scale=np.tile([0.05, 1.0, 0.2], n),
+                             tr_solver="lsmr", max_nfev=nfev * n).x
+
+    def interval_of(v):
+        return next(((a, b) for a, b in boostable if a <= v <= b), None)
+
+    def peak_of(v):
+        return next(((a, b, wd) for a, b, wd in peaks if a <= v <= b), None)
+
+    x, lo, hi, metas = np.zeros(0), np.zeros(0), np.zeros(0), []
+    best_cost = cost_empty = float(np.sum((w * dev) ** 2))
+    tried = np.zeros(f.size, bool)
+    lf = np.log2(f)
+    for _ in range(3 * max_filters):
+        if len(metas) >= max_filters:
+            break
+        e = dev + curves(x, f)
+        cd = curves(x, limits.f)
+        room_db = np.minimum(limits.max_boost_db - cd, limits.ceil_db - cd)
+        head = np.interp(np.log(f), np.log(limits.f), room_db)
+        in_box = np.array([interval_of(v) is not None and not limits.in_noboost(v) for v in f])
+        can_boost = (head > 0.5) & in_box & (gain_bounds[1] > 0)
+        score = np.where(e > 0, e, np.where(can_boost, -e * boost_preference, 0.0))
+        score[tried] = 0.0
+        i = int(np.argmax(score))
+        if score[i] < stop_db:
+            break
+        width = max(run_width_octaves(f, e, i, abs(e[i]) / 2), 0.02)
+        near = np.abs(lf - lf[i]) <= max(width / 2, 1.0 / 48)
+        tried |= near
+        if e[i] > 0:
+            own = peak_of(float(f[i]))
+            if own is None and width < min_cut_octaves:
+                continue
+            if own is not None:  # one cut per peak of the original curve, Q from its width
+                width = own[2]
+                tried |= (f >= own[0]) & (f <= own[1])
+            g0 = float(max(-e[i], gain_bounds[0]))
+            q0, basis = cut_q(float(f[i]), g0, width)
+            q0 = float(np.clip(q0, qmin, qmax))
+            qb = (max(qmin, q0 / q_window), min(qmax, q0 * q_window))
+            fb = (max(f_bounds[0], f[i] * 2 ** (-width / 2)), min(f_bounds[1], f[i] * 2 ** (width / 2)))
+            gb = (float(gain_bounds[0]), 0.0)
+            role = "cut"
+        else:
+            a, b = interval_of(float(f[i]))
+            g0 = float(min(-e[i], head[i], gain_bounds[1]))
+            q0 = float(np.clip(bandwidth_to_q(width), qmin, bqmax))
+            qb = (qmin, bqmax)
+            for na, nb in limits.noboost:  # the boost may not wander into a null
+                if nb < f[i]:
+                    a = max(a, nb)
+                elif na > f[i]:
+                    b = min(b, na)
+            fb = (max(f_bounds[0], a), min(f_bounds[1], b))
+            gb = (0.0, float(gain_bounds[1]))
+            role, basis = "boost", f"broad boost (Q at most {bqmax:g})"
+        if not (fb[1] > fb[0] and qb[1] > qb[0]):
+            continue
+        lo_k = np.array([np.log(fb[0]), gb[0], np.log(qb[0])])
+        hi_k = np.array([np.log(fb[1]), gb[1], np.log(qb[1])])
+        x0 = np.array([np.log(f[i]), g0, np.log(q0)])
+        tlo, thi = np.concatenate([lo, lo_k]), np.concatenate([hi, hi_k])
+        trial = solve(np.concatenate([x, x0]), tlo, thi)
+        new_cost = cost(trial)
+        if new_cost > best_cost - min_gain_fraction * cost_empty:
+            continue
+        if abs(trial[-2]) < min_gain_db:
+            continue
+        x, lo, hi, best_cost = trial, tlo, thi, new_cost
+        metas.append({"role": role, "basis": basis})
+    if x.size:
+        # final polish without the gain price: it chose the filters, it must not bias them
+        x = solve(x, lo, hi, fn=lambda v: resid(v, gain_rows=False), nfev=50)
+    f0, g, q = unpack(x)
+    out = []
+    for k, m in enumerate(metas):
+        m = dict(m, f_hz=(float(np.exp(lo[3 * k])), float(np.exp(hi[3 * k]))),
+                 gain_db=(float(lo[3 * k + 1]), float(hi[3 * k + 1])),
+                 q=(float(np.exp(lo[3 * k + 2])), float(np.exp(hi[3 * k + 2]))))
+        out.append((("peaking", float(f0[k]), float(g[k]), float(q[k])), m))
+    return sorted(out, key=lambda sm: sm[0][1])
 
 
 # ----------------------------------------------------------------------------------------

@@ -1,10 +1,11 @@
 """Bass correction for each channel: from a level curve to EQ settings and headroom.
 
 :func:`correct_curve` works on any level curve (a prediction or a measurement);
-:func:`correct_prediction` predicts each channel of a layout at the seat, adds the levels
-at nearby positions (seat and speaker moved by a few centimetres) that tell a movable
-cancellation null from a broad shortfall, and corrects every channel. The filter design
-itself is :mod:`roommodes.eq`.
+:func:`correct_prediction` predicts each channel of a layout at the seat and at the head
+positions around it (about 15 cm away), adds the levels at nearby positions (seat and
+speaker moved by a few centimetres) that tell a movable cancellation null from a broad
+shortfall, and corrects every channel so that the seat and the head positions all gain.
+The filter design itself is :mod:`roommodes.analysis.eq`.
 """
 
 from __future__ import annotations
@@ -13,18 +14,22 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..dsp.response import level_db as _level_db
 from ..dsp.response import log_frequencies, smooth_fractional_octave
-from ..model.room import Layout
+from ..model.modes import room_modes
 from ..solvers import DEFAULT_METHOD
 from . import eq
 from .levels import speaker_levels
-from .predict import predict
+from .predict import Channel, Prediction, room_schroeder_frequency
 
 __all__ = ["ChannelCorrection", "correct_curve", "correct_prediction", "default_band",
-           "NEIGHBOUR_STEP_M"]
+           "head_positions", "NEIGHBOUR_STEP_M", "HEAD_OFFSET_M"]
 
 #: How far the seat and each speaker are moved to judge whether a dip is a movable null (m).
 NEIGHBOUR_STEP_M = 0.05
+
+#: How far from the seat the head positions a correction must also improve lie (m).
+HEAD_OFFSET_M = 0.15
 
 
 @dataclass(frozen=True)
@@ -43,6 +48,9 @@ class ChannelCorrection:
         Maximum clean SPL at the seat before and after the parametric design, when the
         speaker's amplifier power, sensitivity and maximum SPL are known.
     lowcut_hz, lowcut_order : float or None, int
+    cautions : tuple of str
+        Cautions about the design as a whole (e.g. a band reaching above the Schroeder
+        frequency), to print beside it.
     """
 
     name: str
@@ -54,21 +62,41 @@ class ChannelCorrection:
     clean: object
     lowcut_hz: float | None
     lowcut_order: int | None
+    cautions: tuple = ()
 
 
 def _smooth_db(f, level_db, fraction):
     return 10 * np.log10(smooth_fractional_octave(f, 10 ** (level_db / 10), fraction))
 
 
-def default_band(lowcut_hz=None, top_hz=250.0):
-    """Default correction band: max(speaker low cut, 20 Hz) to 250 Hz."""
-    return (max(20.0, float(lowcut_hz or 0.0)), float(top_hz))
+def default_band(lowcut_hz=None, top_hz=250.0, lowest_mode_hz=None):
+    """Default correction band.
+
+    From the higher of the speaker's own roll-off (its -3 dB point) and the room's lowest
+    mode, at least 20 Hz, to ``top_hz`` (:func:`correct_prediction` passes the room's
+    Schroeder frequency, above which a rectangular-box prediction is indicative only and
+    EQ designed on it does not hold up in the room).
+    """
+    low = max([20.0] + [float(v) for v in (lowcut_hz, lowest_mode_hz) if v])
+    return (low, float(top_hz))
+
+
+def head_positions(seat_m, offset_m=HEAD_OFFSET_M):
+    """Head positions around the seat: ``offset_m`` forward, back, left, right, up and down.
+
+    Returns an (6, 3) array, m. Common practice: a listener's head moves by about a hand's
+    width while listening, so a correction must hold there too.
+    """
+    d = np.vstack([np.eye(3), -np.eye(3)])[[0, 3, 1, 4, 2, 5]] * float(offset_m)
+    return np.asarray(seat_m, dtype=float)[None, :] + d
 
 
 def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_db_per_octave=1.0,
                   tilt_corner_hz=100.0, target_table=None, neighbour_levels_db=None, lowcut_hz=None,
                   lowcut_order=None, max_filters=6, max_boost_db=6.0, q_range=(0.5, 10.0),
-                  speaker=None, sample_rate=48000, smoothing=12):
+                  speaker=None, sample_rate=48000, smoothing=12, position_levels_db=None,
+                  seat_weight=1.0 / 3.0, no_harm_db=0.5, boost_q_max=2.0, modes=None,
+                  schroeder_hz=None, lowest_mode_hz=None):
     """Design the corrections for one level curve.
 
     Parameters
@@ -99,6 +127,16 @@ def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_
     speaker : Speaker, optional
         When it has ``amplifier_w``, ``sensitivity_db`` and ``max_spl_db``, the clean
         level at the seat is computed.
+    position_levels_db : array_like (K, F), optional
+        Levels at head positions around the seat (:func:`head_positions`): the design
+        works on them together with the seat and must not lift any of them further above
+        the target (see :func:`roommodes.analysis.eq.design_parametric`).
+    seat_weight, no_harm_db, boost_q_max, modes :
+        See :func:`roommodes.analysis.eq.design_parametric`.
+    schroeder_hz, lowest_mode_hz : float, optional
+        The room's Schroeder frequency and lowest mode: the default band runs from the
+        speaker's roll-off (or the lowest mode) to the Schroeder frequency; a band that
+        reaches above it earns a caution.
 
     Returns
     -------
@@ -106,17 +144,40 @@ def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_
     """
     f = np.asarray(freq_hz, dtype=float)
     lv = np.asarray(level_db, dtype=float)
+    pos = None
+    if position_levels_db is not None and len(position_levels_db):
+        pos = np.atleast_2d(np.asarray(position_levels_db, dtype=float))
     if smoothing:
         lv = _smooth_db(f, lv, smoothing)
         if neighbour_levels_db is not None and len(neighbour_levels_db):
             neighbour_levels_db = _smooth_db(f, np.asarray(neighbour_levels_db, dtype=float), smoothing)
-    band = default_band(lowcut_hz) if band_hz is None else tuple(float(v) for v in band_hz)
-    tg = eq.make_target(f, lv, band, shape=target, db_per_octave=tilt_db_per_octave,
+        if pos is not None:
+            pos = _smooth_db(f, pos, smoothing)
+    cautions = []
+    top = 250.0 if schroeder_hz is None else float(schroeder_hz)
+    if band_hz is None:
+        band = default_band(lowcut_hz, top, lowest_mode_hz)
+        if band[1] <= band[0] * 1.1:
+            band = (band[0], min(band[0] * 2.0, float(f[-1])))
+            cautions.append(f"the speaker's roll-off lies near the Schroeder frequency ({top:.0f} Hz); the "
+                            f"band was widened to {band[0]:.0f}-{band[1]:.0f} Hz, where the prediction is "
+                            "indicative only")
+    else:
+        band = tuple(float(v) for v in band_hz)
+        if schroeder_hz is not None and band[1] > schroeder_hz * 1.02:
+            cautions.append(f"the band reaches {band[1]:.0f} Hz, above the room's Schroeder frequency "
+                            f"({schroeder_hz:.0f} Hz): there the prediction is indicative only, and filters "
+                            "designed on it may not hold up in the room; measure before using them")
+    sw = float(seat_weight) if pos is not None else 1.0
+    design = lv if pos is None else sw * lv + (1.0 - sw) * np.mean(pos, axis=0)
+    tg = eq.make_target(f, design, band, shape=target, db_per_octave=tilt_db_per_octave,
                         corner_hz=tilt_corner_hz, table=target_table)
-    cls = eq.classify_regions(f, lv, tg, band, neighbour_levels_db)
+    cls = eq.classify_regions(f, design, tg, band, neighbour_levels_db, stability_levels_db=pos)
     common = dict(classification=cls, lowcut_hz=lowcut_hz, lowcut_order=lowcut_order,
-                  max_boost_db=max_boost_db, sample_rate=sample_rate)
-    par = eq.design_parametric(f, lv, tg, band, max_filters=max_filters, q_range=q_range, **common)
+                  max_boost_db=max_boost_db, sample_rate=sample_rate, position_levels_db=pos,
+                  seat_weight=sw, no_harm_db=no_harm_db)
+    par = eq.design_parametric(f, lv, tg, band, max_filters=max_filters, q_range=q_range,
+                               boost_q_max=boost_q_max, modes=modes, **common)
     shelf = eq.design_shelf(f, lv, tg, band, **common)
     g3 = eq.design_graphic(f, lv, tg, band, bands="third", **common)
     g1 = eq.design_graphic(f, lv, tg, band, bands="octave", **common)
@@ -125,29 +186,30 @@ def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_
     if speaker is not None and None not in (speaker.amplifier_w, speaker.sensitivity_db, speaker.max_spl_db):
         clean = eq.max_clean_spl(f, lv, speaker.amplifier_w, speaker.sensitivity_db, speaker.max_spl_db,
                                  correction_db=par.correction_db, preattenuation_db=head.preattenuation_db)
-    return ChannelCorrection(name, par, shelf, g3, g1, head, clean, lowcut_hz, lowcut_order)
+    return ChannelCorrection(name, par, shelf, g3, g1, head, clean, lowcut_hz, lowcut_order,
+                             tuple(cautions))
 
 
-def _neighbour_layouts(layout, index, step_m):
-    """The layout with the seat, then the speaker ``index``, moved by +-step along x and y."""
-    out = []
-    moves = [np.array(v) * step_m for v in ((1, 0, 0), (-1, 0, 0), (0, 1, 0), (0, -1, 0))]
-    for d in moves:
-        out.append(Layout(layout.speakers, tuple(np.add(layout.seat_m, d)), layout.name))
-    for d in moves:
-        sp = list(layout.speakers)
-        sp[index] = sp[index].moved(np.add(sp[index].position_m, d))
-        out.append(Layout(tuple(sp), layout.seat_m, layout.name))
-    return out
+def _mode_list(room, fmax_hz):
+    """The room's modes as (freq_hz, half-power bandwidth_hz, "(nx,ny,nz)")."""
+    ms = room_modes(room, fmax_hz)
+    return [(float(fm), float(bw), "({},{},{})".format(*(int(v) for v in idx)))
+            for fm, bw, idx in zip(ms.freq_hz, ms.bandwidth_hz, ms.indices)]
 
 
 def correct_prediction(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, area_m=None, area_points=(3, 3),
-                       **options):
-    """Predict every channel at the seat and design its correction.
+                       head_offset_m=HEAD_OFFSET_M, **options):
+    """Predict every channel at the seat and the head positions around it, and design its correction.
 
-    The levels at eight nearby positions (the seat, then the channel's speaker, moved by
+    Each channel's correction is designed against the seat and six head positions
+    ``head_offset_m`` forward, back, left, right, up and down (:func:`head_positions`):
+    the fit works on a mean of their curves and no filter may lift any of them further
+    above the target than it already was, anywhere in the computed range. The levels at
+    eight nearby positions (the seat, then the channel's speaker, moved by
     :data:`NEIGHBOUR_STEP_M` forward, back, left and right) go to the dip classification,
     so that a deep dip that moves with position is recognised as a null and not boosted.
+    The default band runs from the speaker's roll-off (or the room's lowest mode) to the
+    room's Schroeder frequency.
 
     Parameters
     ----------
@@ -156,14 +218,18 @@ def correct_prediction(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, a
         Default: the room file's layout.
     freq_hz : array_like, optional
         Default 15-300 Hz at 48 points per octave.
-    method : {"modal", "image"}
+    method : str
+        The solver (:data:`roommodes.solvers.METHODS`).
     area_m : (float, float), optional
         Correct the power average over a listening area of this size (length, width, m)
         around the seat, on an ``area_points`` grid at ear height, instead of the seat
-        alone; the levels at the grid points then serve as the neighbours that tell nulls
-        from broad dips. A correction for an area is less exact at the seat and more
-        useful everywhere else (after Welti & Devantier 2006, J. Audio Eng. Soc.
-        54(5):347, who judge bass by its variation over seats).
+        and its head positions; the levels at the grid points then serve as the
+        neighbours that tell nulls from broad dips and as the positions the correction
+        must not harm (after Welti & Devantier 2006, J. Audio Eng. Soc. 54(5):347, who
+        judge bass by its variation over seats).
+    head_offset_m : float or None
+        Distance of the head positions from the seat, m (default 0.15); ``None`` or 0
+        designs for the seat alone.
     **options
         Passed to :func:`correct_curve` (target, band, limits).
 
@@ -172,30 +238,57 @@ def correct_prediction(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, a
     list of ChannelCorrection, and the Prediction
     """
     layout = layout if layout is not None else room.layout
+    if layout is None:
+        raise ValueError(f"{room.source or room.name}: the room file has no [speakers] and [seat]; "
+                         "add them or choose a layout (corner, wall, mid-room, desk)")
     f = log_frequencies(15.0, 300.0, 48) if freq_hz is None else np.asarray(freq_hz, dtype=float)
-    pred = predict(room, layout, f, method=method)
-    out = []
+    speakers = tuple(layout.speakers)
+    seat = np.asarray(layout.seat_m, dtype=float)
+    schroeder = room_schroeder_frequency(room)
+    modes = _mode_list(room, max(float(f[-1]), 20.0))
+    room_info = dict(schroeder_hz=schroeder, lowest_mode_hz=modes[0][0] if modes else None, modes=modes)
+    room_info.update(options)
+    steps = np.array([(1, 0, 0), (-1, 0, 0), (0, 1, 0), (0, -1, 0)], dtype=float) * NEIGHBOUR_STEP_M
+    heads = np.zeros((0, 3))
     if area_m is not None:
         from .search import area_offsets
 
-        pts = np.asarray(layout.seat_m) + area_offsets(area_m, area_points)
-        if not np.all(room.contains(pts, 0.02)):
+        heads = seat + area_offsets(area_m, area_points)
+        if not np.all(room.contains(heads, 0.02)):
             raise ValueError(f"the listening area {area_m[0]:g} x {area_m[1]:g} m around the seat reaches "
                              "outside the room; choose a smaller area")
-        lv = speaker_levels(room, layout.speakers, pts, f, method=method)
-        for sp, levels, mean in zip(layout.speakers, lv.level_db, lv.power_mean_db()):
-            out.append(correct_curve(sp.name, f, mean, neighbour_levels_db=levels, lowcut_hz=sp.lowcut_hz,
-                                     lowcut_order=sp.lowcut_order if sp.lowcut_hz else None, speaker=sp,
-                                     **options))
-        return out, pred
-    for i, (sp, ch) in enumerate(zip(layout.speakers, pred.channels)):
-        neighbours = []
-        for lay in _neighbour_layouts(layout, i, NEIGHBOUR_STEP_M):
-            if not (room.contains([lay.seat_m], 0.02)[0] and room.contains([lay.speakers[i].position_m], 0.02)[0]):
-                continue
-            p = predict(room, Layout((lay.speakers[i],), lay.seat_m, lay.name), f, method=method)
-            neighbours.append(p.channels[0].level_db)
-        out.append(correct_curve(sp.name, f, ch.level_db, neighbour_levels_db=np.array(neighbours),
-                                 lowcut_hz=sp.lowcut_hz, lowcut_order=sp.lowcut_order if sp.lowcut_hz else None,
-                                 speaker=sp, **options))
+    elif head_offset_m:
+        heads = head_positions(seat, head_offset_m)
+        heads = heads[room.contains(heads, 0.02)]
+    near = seat + steps
+    near = near[room.contains(near, 0.02)]
+    pts = np.vstack([seat[None, :], heads, near])
+    lv = speaker_levels(room, speakers, pts, f, method=method)
+    moved = []
+    for sp in speakers:
+        for d in steps:
+            q = np.add(sp.position_m, d)
+            if room.contains([q], 0.02)[0]:
+                moved.append((sp.name, sp.moved(q)))
+    lv_moved = None
+    if moved:
+        lv_moved = speaker_levels(room, [m for _, m in moved], [seat], f, method=method).level_db[:, 0, :]
+    nh = len(heads)
+    channels = []
+    out = []
+    for i, sp in enumerate(speakers):
+        levels = lv.level_db[i]
+        h = lv.transfer[i, 0]
+        channels.append(Channel(sp.name, tuple(sp.position_m), h, _level_db(h)))
+        extra = [lv_moved[k] for k, (name, _) in enumerate(moved) if name == sp.name] if moved else []
+        neighbours = np.array(list(levels[1 + nh:]) + extra) if (len(levels) > 1 + nh or extra) else None
+        kw = dict(lowcut_hz=sp.lowcut_hz, lowcut_order=sp.lowcut_order if sp.lowcut_hz else None, speaker=sp)
+        if area_m is not None:
+            mean = 10.0 * np.log10(np.maximum(np.mean(np.abs(lv.transfer[i, 1:1 + nh]) ** 2, axis=0), 1e-30))
+            out.append(correct_curve(sp.name, f, mean, neighbour_levels_db=levels[1:1 + nh],
+                                     position_levels_db=levels[1:1 + nh], seat_weight=1.0, **kw, **room_info))
+        else:
+            out.append(correct_curve(sp.name, f, levels[0], neighbour_levels_db=neighbours,
+                                     position_levels_db=levels[1:1 + nh] if nh else None, **kw, **room_info))
+    pred = Prediction(f, tuple(channels), tuple(layout.seat_m), layout.name, method, schroeder, f <= schroeder)
     return out, pred

@@ -102,7 +102,7 @@ FILTER_TYPES = _eqfit.FILTER_TYPES
 EXPORT_SAMPLE_RATES = (44100, 48000, 96000)
 
 #: Region labels of :func:`classify_regions`.
-REGION_KINDS = ("peak", "broad dip", "narrow null", "ok")
+REGION_KINDS = ("peak", "broad dip", "narrow null", "ok", "narrow dip")
 
 #: Cautions to show beside every correction (exposure figures: NIOSH REL, 3 dB exchange).
 CAUTIONS = (
@@ -125,6 +125,8 @@ _NULL_DEPTH_DB = 6.0
 _DEEP_DB = 15.0
 _SPREAD_DB = 6.0
 _SPLIT_DB = 3.0
+_MIN_BOOST_OCTAVES = 1.0 / 3.0
+_BOOST_Q_MAX = 2.0
 
 
 # ========================================================================================
@@ -433,12 +435,23 @@ class Filter:
     q : float
         Cookbook Q (see the module docstring); for shelves the Cookbook shelf Q (use
         :meth:`shelf` to build one from the slope S).
+    role : str
+        ``"cut"`` or ``"boost"`` for a filter of a correction design, else ``""``.
+    basis : str
+        How the design chose its Q (e.g. the half-power bandwidth of the mode that causes
+        the peak), for the user; ``""`` when not from a design.
+    at_limit : tuple of str
+        The limits the design left this filter at (Q, gain, frequency), each a phrase for
+        the user; empty when it sits inside all of them.
     """
 
     type: str
     freq_hz: float
     gain_db: float = 0.0
     q: float = _SQRT_HALF
+    role: str = field(default="", compare=False)
+    basis: str = field(default="", compare=False)
+    at_limit: tuple = field(default=(), compare=False)
 
     def __post_init__(self):
         if self.type not in FILTER_TYPES:
@@ -493,6 +506,11 @@ class Filter:
     def to_dict(self):
         """Plain dict with ``type``, ``freq_hz``, ``gain_db``, ``q`` and derived figures."""
         d = {"type": self.type, "freq_hz": self.freq_hz, "gain_db": self.gain_db, "q": self.q}
+        if self.role:
+            d["role"] = self.role
+        if self.basis:
+            d["q_basis"] = self.basis
+        d["at_limit"] = list(self.at_limit)
         if self.type == "peaking":
             d["bandwidth_octaves"] = self.bandwidth_octaves
             d["q_3db_below_peak"] = _num(q_at_3db_below_peak(self.q, self.gain_db))
@@ -788,8 +806,9 @@ class Classification:
 def classify_regions(freq_hz, level_db, target_db, band_hz, neighbour_levels_db=None, *,
                      threshold_db=_REGION_THRESHOLD_DB, narrow_octaves=_NARROW_OCTAVES,
                      null_depth_db=_NULL_DEPTH_DB, deep_db=_DEEP_DB, spread_db=_SPREAD_DB,
-                     split_db=_SPLIT_DB):
-    """Classify each stretch of the band as peak, broad dip, narrow null or ok.
+                     split_db=_SPLIT_DB, min_boost_octaves=_MIN_BOOST_OCTAVES,
+                     stability_levels_db=None):
+    """Classify each stretch of the band as peak, broad dip, narrow dip, narrow null or ok.
 
     Parameters
     ----------
@@ -813,6 +832,15 @@ def classify_regions(freq_hz, level_db, target_db, band_hz, neighbour_levels_db=
     split_db : float
         A run beyond the threshold holding two extremes is split into two regions where
         the deviation recovers by at least this between them (default 3 dB).
+    min_boost_octaves : float
+        A dip that is not a null is a "broad dip" (may be boosted) only when it is at
+        least this wide at half its depth and present, at least a quarter as deep, at every
+        nearby position; otherwise it is a "narrow dip" (left alone, still counted in the
+        error). Default 1/3 octave (common practice: a boost narrower than about 1/3
+        octave buys little audible gain and lands on a peak when the listener moves).
+    stability_levels_db : array_like, shape (M, F), optional
+        Levels at the positions a boost must also help (head positions about 15 cm
+        around the seat); default ``neighbour_levels_db``.
 
     Returns
     -------
@@ -827,7 +855,8 @@ def classify_regions(freq_hz, level_db, target_db, band_hz, neighbour_levels_db=
     (not to be boosted) if any of: narrow and deep (half-depth width <= narrow_octaves
     and depth >= null_depth_db); very deep (depth >= deep_db); moves with position
     (spread across the positions >= spread_db). Otherwise it is a "broad dip" and may be
-    boosted up to the boost limit. These thresholds are common practice, not a standard:
+    boosted up to the boost limit, when it is wide and present at every position (see
+    ``min_boost_octaves``), or a "narrow dip" that is not boosted. These thresholds are common practice, not a standard:
     cancellation nulls from boundary interference or a seat on a modal node are narrow,
     deep and shift when the seat or speaker moves a few centimetres, whereas a shortfall
     from roll-off or a broad pressure minimum is wide and stable, and boosting a null
@@ -846,6 +875,13 @@ def classify_regions(freq_hz, level_db, target_db, band_hz, neighbour_levels_db=
     deep = _finite_float("deep_db", deep_db, lo=0.0, hi=100.0, unit=" dB")
     spr = _finite_float("spread_db", spread_db, lo=0.0, lo_open=True, hi=60.0, unit=" dB")
     spl = _finite_float("split_db", split_db, lo=0.0, lo_open=True, hi=60.0, unit=" dB")
+    mbo = _finite_float("min_boost_octaves", min_boost_octaves, lo=0.0, hi=4.0)
+    stab = None
+    if stability_levels_db is not None:
+        stab = np.atleast_2d(np.asarray(stability_levels_db, dtype=float))
+        if stab.shape[1] != f.size:
+            raise ValueError(f"stability_levels_db must have shape (M, {f.size}), "
+                             f"got {np.shape(stability_levels_db)}")
     nb = None
     if neighbour_levels_db is not None:
         nb = np.asarray(neighbour_levels_db, dtype=float)
@@ -879,7 +915,9 @@ def classify_regions(freq_hz, level_db, target_db, band_hz, neighbour_levels_db=
         fr, dr = fb[a:b], db[a:b]
         j = int(np.argmax(s * dr))
         extreme = float(dr[j])
-        width = _eqfit.run_width_octaves(fr, dr, j, abs(extreme) / 2)
+        # width at half height on the whole band's curve, not only the part beyond the
+        # threshold (a 2 dB peak 1 grid point above 1.5 dB is not 0 octaves wide)
+        width = _eqfit.run_width_octaves(fb, db, a + j, abs(extreme) / 2)
         spread = float("nan")
         if nb is not None:
             spread = float(np.ptp(np.concatenate([[lv[idx[a + j]]], nb[:, idx[a + j]]])))
@@ -898,10 +936,22 @@ def classify_regions(freq_hz, level_db, target_db, band_hz, neighbour_levels_db=
             if reasons:
                 kind = "narrow null"
             else:
-                kind = "broad dip"
-                reasons.append(f"{depth:.1f} dB deep over {width:.2f} oct"
-                               + ("" if not np.isfinite(spread)
-                                  else f", stable across positions ({spread:.1f} dB)"))
+                others = stab if stab is not None else nb
+                absent = others is not None and len(others) > 0 and bool(
+                    np.any(tg[idx[a + j]] - others[:, idx[a + j]] < depth / 4))
+                if width < mbo:
+                    kind = "narrow dip"
+                    reasons.append(f"{depth:.1f} dB deep but only {width:.2f} oct wide (< {mbo:.2f}): "
+                                   "too narrow to boost")
+                elif absent:
+                    kind = "narrow dip"
+                    reasons.append(f"{depth:.1f} dB deep over {width:.2f} oct, but less than a quarter as "
+                                   "deep at a nearby position: not stable enough to boost")
+                else:
+                    kind = "broad dip"
+                    reasons.append(f"{depth:.1f} dB deep over {width:.2f} oct"
+                                   + ("" if not np.isfinite(spread)
+                                      else f", stable across positions ({spread:.1f} dB)"))
         labels[idx[a:b]] = kind
         regions.append(Region(kind, float(fr[0]), float(fr[-1]), float(fr[j]), extreme, width,
                               spread, tuple(reasons)))
@@ -1025,6 +1075,10 @@ class EqDesign:
     sample_rate : float or None
         Rate of the realised responses used for the design (``None``: analog).
     warnings : tuple of EqWarning
+    positions_before_db, positions_after_db : ndarray (K, F)
+        The head positions around the seat the design also worked on (K = 0 without).
+    positions_error_before, positions_error_after : tuple of FitError
+        Their deviation from the target where EQ may act, before and after.
     """
 
     method: str
@@ -1043,6 +1097,10 @@ class EqDesign:
     max_boost_freq_hz: float
     sample_rate: float | None
     warnings: tuple
+    positions_before_db: np.ndarray = field(default_factory=lambda: np.zeros((0, 0)))
+    positions_after_db: np.ndarray = field(default_factory=lambda: np.zeros((0, 0)))
+    positions_error_before: tuple = ()
+    positions_error_after: tuple = ()
 
     def sos(self, sample_rates=EXPORT_SAMPLE_RATES):
         """:func:`sos_export` of the filters."""
@@ -1075,7 +1133,11 @@ class EqDesign:
              "regions": [r.to_dict() for r in self.classification.regions],
              "error_before": err(self.error_before), "error_after": err(self.error_after),
              "warnings": [w.to_dict() for w in self.warnings],
-             "sample_rate": None if self.sample_rate is None else float(self.sample_rate)}
+             "sample_rate": None if self.sample_rate is None else float(self.sample_rate),
+             "positions": {"before_db": [curve(v) for v in self.positions_before_db],
+                           "after_db": [curve(v) for v in self.positions_after_db],
+                           "error_before": [err(e) for e in self.positions_error_before],
+                           "error_after": [err(e) for e in self.positions_error_after]}}
         if isinstance(self, ShelfDesign):
             d["slope"] = _num(self.slope)
         if isinstance(self, GraphicDesign):
@@ -1126,13 +1188,77 @@ class GraphicDesign(EqDesign):
     naive_error: FitError | None = None
 
 
+def _annotated(spec, meta, scale=1.0):
+    """A :class:`Filter` from a fitted spec, with its role, Q basis and the limits it sits at."""
+    kind, f0, g, q = spec
+    if not meta:
+        return Filter(kind, f0, g, q)
+    at = []
+
+    def near(v, bound):
+        return abs(np.log(v / bound)) < 0.01 if v > 0 and bound > 0 else abs(v - bound) < 0.05
+
+    qlo, qhi = meta["q"]
+    if near(q, qhi):
+        at.append(f"Q {q:.2f} at its upper limit ({meta.get('q_limit_hi', 'the allowed range')})")
+    elif near(q, qlo):
+        at.append(f"Q {q:.2f} at its lower limit ({meta.get('q_limit_lo', 'the allowed range')})")
+    glo, ghi = meta["gain_db"]
+    if meta["role"] == "cut" and glo < 0 and abs(g - glo) < 0.05:
+        at.append(f"gain {g:+.1f} dB at the deepest cut allowed ({glo:+g} dB)")
+    if meta["role"] == "boost" and (abs(g - ghi) < 0.05 or scale < 0.98):
+        at.append(f"gain {g:+.1f} dB held down by the boost limits (at most {ghi:+g} dB, and no part of "
+                  "the curve lifted above the target)")
+    flo, fhi = meta["f_hz"]
+    if near(f0, flo) or near(f0, fhi):
+        at.append(f"frequency {f0:.1f} Hz at the edge of {meta.get('f_limit', 'its range')} "
+                  f"({flo:.1f}-{fhi:.1f} Hz)")
+    return Filter(kind, f0, g, q, role=meta["role"], basis=meta.get("basis", ""), at_limit=tuple(at))
+
+
+def _mode_cut_q(modes, q_width_fn):
+    """``cut_q(f0, gain, width)``: Q from the peak's own width, or from the half-power
+    bandwidth of the mode that causes it when one lies inside the peak."""
+    def cut_q(f0, gain_db, width_oct):
+        q_w = q_width_fn(width_oct)
+        basis = f"the peak's own width ({width_oct:.2f} oct at half height)"
+        if modes:
+            fm = np.array([m[0] for m in modes])
+            k = int(np.argmin(np.abs(np.log2(fm / f0))))
+            if abs(np.log2(fm[k] / f0)) <= max(width_oct / 2, 1.0 / 24) and modes[k][1] > 0:
+                # a peaking cut whose zeros sit on the mode's poles: zero Q = Q / A = f/B
+                # (Audio EQ Cookbook peaking prototype, A = 10^(gain/40))
+                q_m = 10 ** (gain_db / 40.0) * modes[k][0] / modes[k][1]
+                if q_m < q_w:
+                    label = f" {modes[k][2]}" if len(modes[k]) > 2 and modes[k][2] else ""
+                    return q_m, (f"the half-power bandwidth of the mode{label} at {modes[k][0]:.1f} Hz "
+                                 f"({modes[k][1]:.1f} Hz)")
+        return q_w, basis
+    return cut_q
+
+
 class _Problem:
     """Validated inputs and the shared limits of one design."""
 
     def __init__(self, freq_hz, level_db, target_db, band_hz, max_boost_db, classification,
-                 neighbour_levels_db, lowcut_hz, lowcut_order, sample_rate, null_tolerance_db):
+                 neighbour_levels_db, lowcut_hz, lowcut_order, sample_rate, null_tolerance_db,
+                 position_levels_db=None, seat_weight=1.0 / 3.0, no_harm_db=0.5):
         self.f = _grid(freq_hz)
         self.level = _curve(level_db, self.f, "level_db")
+        self.positions = np.zeros((0, self.f.size))
+        if position_levels_db is not None:
+            pos = np.asarray(position_levels_db, dtype=float)
+            pos = pos[None, :] if pos.ndim == 1 else pos
+            if pos.ndim != 2 or pos.shape[1] != self.f.size:
+                raise ValueError(f"position_levels_db must have shape (K, {self.f.size}), "
+                                 f"got {np.shape(position_levels_db)}")
+            self.positions = pos
+        sw = _finite_float("seat_weight", seat_weight, lo=0.0, hi=1.0)
+        if len(self.positions):
+            # the curve the fit works on: the seat and the head positions around it, in dB
+            self.design = sw * self.level + (1.0 - sw) * np.mean(self.positions, axis=0)
+        else:
+            self.design = self.level
         self.target = _curve(target_db, self.f, "target_db")
         self.band, self.sel = _band(band_hz, self.f)
         if not np.all(np.isfinite(self.level[self.sel])):
@@ -1149,8 +1275,9 @@ class _Problem:
         if lowcut_hz is not None:
             lowcut_hz = _finite_float("lowcut_hz", lowcut_hz, lo=0.0, lo_open=True, unit=" Hz")
         if classification is None:
-            classification = classify_regions(self.f, self.level, self.target, self.band,
-                                              neighbour_levels_db)
+            classification = classify_regions(
+                self.f, self.design, self.target, self.band, neighbour_levels_db,
+                stability_levels_db=self.positions if len(self.positions) else None)
         elif not isinstance(classification, Classification):
             raise ValueError("classification must come from classify_regions")
         elif classification.freq_hz.shape != self.f.shape or not np.allclose(
@@ -1180,6 +1307,18 @@ class _Problem:
         hi_check = 20000.0 if self.fs is None else min(20000.0, 0.45 * self.fs)
         self.noboost = noboost
         self.hi_check = hi_check
+        self.no_harm = None if no_harm_db is None else _finite_float(
+            "no_harm_db", no_harm_db, lo=0.0, hi=6.0, unit=" dB")
+        self.ceiling = None
+        if self.no_harm is not None:
+            # Nowhere on the whole grid (not only the band) may the correction lift the
+            # seat or a head position further above the target than it already was.
+            tg = self.target.copy()
+            ok = np.isfinite(tg)
+            tg[~ok] = np.interp(self.f[~ok], self.f[ok], tg[ok])  # a table target, held flat
+            curves = np.vstack([self.level[None, :], self.positions])
+            room_db = np.min(np.maximum(tg[None, :] - curves, 0.0), axis=0)
+            self.ceiling = (self.f, np.where(np.isfinite(room_db), room_db, 0.0) + self.no_harm)
         self.limits = self.make_limits()  # used for the checks in finish()
         self.check_span = (1.0, hi_check)
 
@@ -1189,11 +1328,13 @@ class _Problem:
         return _eqfit.Limits(self.max_boost, self.noboost, self.tol,
                              max(self.band[0] / 4, 1.0), min(self.band[1] * 4, self.hi_check),
                              self.fs, band=self.band, fit_step_oct=step,
-                             above_weight=above_weight, below_boost_cost=boost_cost)
+                             above_weight=above_weight, below_boost_cost=boost_cost,
+                             ceiling=self.ceiling)
 
-    def finish(self, method, specs, boost_idx, **extra):
+    def finish(self, method, specs, boost_idx, metas=None, **extra):
         """Enforce the limits, build the result and its warnings."""
         warnings = list(self.warnings)
+        metas = list(metas) if metas is not None else [None] * len(specs)
         # no boost filter centred inside a no-boost interval (a graphic slider goes to 0)
         keep = []
         specs = list(specs)
@@ -1211,16 +1352,27 @@ class _Problem:
                 keep.append(k)
         boost_idx = [keep.index(k) for k in boost_idx if k in keep and specs[k][2] > 0]
         specs = [specs[k] for k in keep]
+        metas = [metas[k] for k in keep]
         self.limits.set_check_span(*self.check_span)
         specs, scale = self.limits.enforce(specs, boost_idx)
         if scale < 0.98:
             warnings.append(EqWarning(
                 "boost_scaled",
                 f"boost gains were scaled by {scale:.2f} to keep the combined boost within "
-                f"{self.max_boost:g} dB and out of nulls"))
+                f"{self.max_boost:g} dB, out of nulls and below the target wherever the curve "
+                "was not above it"))
         if method != "graphic":
-            specs = [s for s in specs if abs(s[2]) >= 0.05 or s[0] == "highpass"]
-        filters = tuple(Filter(*s) for s in specs)
+            kept = [k for k, s in enumerate(specs) if abs(s[2]) >= 0.05 or s[0] == "highpass"]
+            specs, metas = [specs[k] for k in kept], [metas[k] for k in kept]
+            order = sorted(range(len(specs)), key=lambda k: specs[k][1])  # one order everywhere
+            specs, metas = [specs[k] for k in order], [metas[k] for k in order]
+        filters = tuple(_annotated(s, m, scale) for s, m in zip(specs, metas))
+        for flt in filters:
+            if flt.at_limit:
+                warnings.append(EqWarning(
+                    "filter_at_limit",
+                    f"the {flt.gain_db:+.1f} dB filter at {flt.freq_hz:.1f} Hz sits at a limit: "
+                    + "; ".join(flt.at_limit), (flt.freq_hz, flt.freq_hz)))
         corr = _eqfit.cascade_db(specs, self.f, self.fs)
         after = self.level + corr
         top, top_f = _eqfit.cascade_max(specs, self.fs, *self.check_span)
@@ -1238,16 +1390,22 @@ class _Problem:
                 f"{max(top, 0.0):.1f} dB "
                 f"(limit {self.max_boost:g} dB)", (float(fs_[0]), float(fs_[-1]))))
         cls = {"shelf": ShelfDesign, "graphic": GraphicDesign}.get(method, EqDesign)
+        pos_before = self.positions
+        pos_after = self.positions + corr[None, :]
+        errs_b = tuple(_fit_error(self.f, v - self.target, self.allowed) for v in pos_before)
+        errs_a = tuple(_fit_error(self.f, v - self.target, self.allowed) for v in pos_after)
         return cls(method, filters, self.f, self.level, self.target, corr, after, self.band,
                    self.allowed, self.cls, err_b, err_a, float(top), float(top_f), self.fs,
-                   tuple(warnings), **extra)
+                   tuple(warnings), positions_before_db=pos_before, positions_after_db=pos_after,
+                   positions_error_before=errs_b, positions_error_after=errs_a, **extra)
 
 
 def design_parametric(freq_hz, level_db, target_db, band_hz, *, max_filters=6,
                       max_boost_db=6.0, q_range=(0.5, 10.0), gain_range=(-15.0, 6.0),
                       classification=None, neighbour_levels_db=None, lowcut_hz=None,
                       lowcut_order=None, sample_rate=48000, null_tolerance_db=0.5,
-                      stop_db=1.0, boost_cost=0.02):
+                      stop_db=1.0, boost_cost=0.02, boost_q_max=_BOOST_Q_MAX,
+                      position_levels_db=None, seat_weight=1.0 / 3.0, no_harm_db=0.5, modes=None):
     """Fit up to ``max_filters`` peaking filters that bring the level toward the target.
 
     Parameters
@@ -1284,6 +1442,22 @@ def design_parametric(freq_hz, level_db, target_db, band_hz, *, max_filters=6,
         Stop adding filters once no deviation exceeds this, dB.
     boost_cost : float
         Weight of the small penalty on any boost that makes cuts preferred, >= 0.
+    boost_q_max : float
+        Largest Q of a boost (default 2, a bandwidth of 0.67 octave: boosts stay broad,
+        common practice).
+    position_levels_db : array_like, shape (K, F), optional
+        Levels at head positions around the seat (about +-15 cm). The fit then works on
+        ``seat_weight`` x the seat's level plus the rest x the positions' mean (dB), and
+        the no-harm ceiling holds at every position.
+    seat_weight : float
+        Weight of the seat in that mean, 0..1 (default 1/3).
+    no_harm_db : float or None
+        The combined curve may lift the seat, or any position, at most this far (dB)
+        further above the target than it already was, anywhere on the grid (not only in
+        the band); default 0.5 dB. ``None`` drops this limit.
+    modes : sequence of (freq_hz, bandwidth_hz[, label]), optional
+        The room's modes; a cut on a peak that a mode causes takes its Q from the mode's
+        half-power bandwidth when that is broader than the peak's own width.
 
     Returns
     -------
@@ -1291,7 +1465,12 @@ def design_parametric(freq_hz, level_db, target_db, band_hz, *, max_filters=6,
 
     Notes
     -----
-    Minimises ``sum_i w_i (L_i - T_i + C_i)^2`` over the allowed frequencies (``C`` the
+    Every filter has a role. A cut is placed on a peak, stays inside its half-height
+    span and keeps its Q within a factor 1.5 of the Q of the peak's own bandwidth (or the
+    mode's: a cut with gain ``-G`` and Cookbook Q ``10^(-G/40) f_m/B_m`` puts its zeros on
+    the poles of a mode of half-power bandwidth ``B_m``). A boost is placed only in a
+    broad dip (see :func:`classify_regions`), stays inside it and has a Q of at most
+    ``boost_q_max``. The fit minimises ``sum_i w_i (L_i - T_i + C_i)^2`` over the allowed frequencies (``C`` the
     combined realised filter curve in dB, ``w_i`` uniform weight per octave) plus
     ``boost_cost * sum_i w_i max(C_i, 0)^2`` (the same boost cost also applies below the
     band), ``0.5 * sum C^2`` per octave above the band (the correction should leave the
@@ -1308,7 +1487,8 @@ def design_parametric(freq_hz, level_db, target_db, band_hz, *, max_filters=6,
     are removed.
     """
     p = _Problem(freq_hz, level_db, target_db, band_hz, max_boost_db, classification,
-                 neighbour_levels_db, lowcut_hz, lowcut_order, sample_rate, null_tolerance_db)
+                 neighbour_levels_db, lowcut_hz, lowcut_order, sample_rate, null_tolerance_db,
+                 position_levels_db, seat_weight, no_harm_db)
     nf = int(_finite_float("max_filters", max_filters, lo=1, hi=20))
     if nf != max_filters:
         raise ValueError(f"max_filters must be a whole number 1..20, got {max_filters!r}")
@@ -1319,20 +1499,40 @@ def design_parametric(freq_hz, level_db, target_db, band_hz, *, max_filters=6,
     bc = _finite_float("boost_cost", boost_cost, lo=0.0, hi=100.0)
     sd = _finite_float("stop_db", stop_db, lo=0.0, lo_open=True, hi=20.0, unit=" dB")
     gain_bounds = (gr[0], max(min(gr[1], p.max_boost), 0.0))
-    specs = []
+    bq = _finite_float("boost_q_max", boost_q_max, lo=0.0, lo_open=True, hi=100.0)
+    fitted = []
     if p.allowed.sum() >= 3:
-        dev = (p.level - p.target)[p.allowed]
-        specs = _eqfit.fit_peaking(p.f[p.allowed], dev, p.make_limits(boost_cost=bc), p.band,
-                                   qr, gain_bounds, nf, p.fs, boost_cost=bc, stop_db=sd,
-                                   weights=p.weights)
+        dev = (p.design - p.target)[p.allowed]
+        # a boost may move over the dip's half-depth span, a cut's Q follows its peak's width
+        boostable = [(min(r.freq_lo_hz, r.freq_extreme_hz * 2 ** (-r.width_octaves / 2)),
+                      max(r.freq_hi_hz, r.freq_extreme_hz * 2 ** (r.width_octaves / 2)))
+                     for r in p.cls.regions if r.kind == "broad dip"]
+        peaks = [(r.freq_lo_hz, r.freq_hi_hz, r.width_octaves) for r in p.cls.regions if r.kind == "peak"]
+        fitted = _eqfit.fit_cuts_and_boosts(
+            p.f[p.allowed], dev, p.make_limits(boost_cost=bc), p.band, qr, gain_bounds, nf, p.fs,
+            boostable=boostable, peaks=peaks, boost_q_max=bq,
+            cut_q=_mode_cut_q(modes, bandwidth_octaves_to_q),
+            boost_cost=bc, stop_db=sd, weights=p.weights)
+    specs = [sp for sp, _ in fitted]
+    metas = []
+    for _, m in fitted:
+        m = dict(m, f_limit="the peak" if m["role"] == "cut" else "the broad dip")
+        qlo, qhi = m["q"]
+        m["q_limit_hi"] = ("the boost limit: boosts stay broad" if m["role"] == "boost" and qhi >= bq * 0.999
+                           else f"--q-range top {qr[1]:g}" if qhi >= qr[1] * 0.999
+                           else "x1.5 of the Q its width asks for")
+        m["q_limit_lo"] = (f"--q-range bottom {qr[0]:g}" if qlo <= qr[0] * 1.001
+                           else "/1.5 of the Q its width asks for")
+        metas.append(m)
     boost_idx = [k for k, s in enumerate(specs) if s[2] > 0]
-    return p.finish("parametric", specs, boost_idx)
+    return p.finish("parametric", specs, boost_idx, metas)
 
 
 def design_shelf(freq_hz, level_db, target_db, band_hz, *, max_boost_db=6.0,
                  gain_range=(-15.0, 6.0), slope_range=(0.3, 1.0), corner_range_hz=None,
                  classification=None, neighbour_levels_db=None, lowcut_hz=None,
-                 lowcut_order=None, sample_rate=48000, null_tolerance_db=0.5, boost_cost=0.02):
+                 lowcut_order=None, sample_rate=48000, null_tolerance_db=0.5, boost_cost=0.02,
+                 position_levels_db=None, seat_weight=1.0 / 3.0, no_harm_db=0.5):
     """The best single low shelf (a bass tone control): corner, gain and slope S.
 
     Parameters
@@ -1362,7 +1562,8 @@ def design_shelf(freq_hz, level_db, target_db, band_hz, *, max_boost_db=6.0,
     unit shape), then bounded least squares on corner, gain and slope.
     """
     p = _Problem(freq_hz, level_db, target_db, band_hz, max_boost_db, classification,
-                 neighbour_levels_db, lowcut_hz, lowcut_order, sample_rate, null_tolerance_db)
+                 neighbour_levels_db, lowcut_hz, lowcut_order, sample_rate, null_tolerance_db,
+                 position_levels_db, seat_weight, no_harm_db)
     gr = _pair("gain_range", gain_range, lo=-60.0, hi=60.0, unit=" dB")
     if gr[0] >= 0:
         raise ValueError(f"gain_range low end must be negative (cuts), got {gr[0]:g} dB")
@@ -1373,7 +1574,7 @@ def design_shelf(freq_hz, level_db, target_db, band_hz, *, max_boost_db=6.0,
     gain_bounds = (gr[0], max(min(gr[1], p.max_boost), 1e-6))
     specs, slope = [], 1.0
     if p.allowed.sum() >= 3:
-        dev = (p.level - p.target)[p.allowed]
+        dev = (p.design - p.target)[p.allowed]
         fc, g, slope = _eqfit.fit_low_shelf(p.f[p.allowed], dev, p.make_limits(boost_cost=bc),
                                             cr, sr, gain_bounds,
                                             p.fs, boost_cost=bc, weights=p.weights)
@@ -1386,7 +1587,8 @@ def design_shelf(freq_hz, level_db, target_db, band_hz, *, max_boost_db=6.0,
 def design_graphic(freq_hz, level_db, target_db, band_hz, *, bands="third", band_q=None,
                    slider_range_db=(-12.0, 12.0), max_boost_db=6.0, classification=None,
                    neighbour_levels_db=None, lowcut_hz=None, lowcut_order=None,
-                   sample_rate=48000, null_tolerance_db=0.5, boost_cost=0.02):
+                   sample_rate=48000, null_tolerance_db=0.5, boost_cost=0.02,
+                   position_levels_db=None, seat_weight=1.0 / 3.0, no_harm_db=0.5):
     """Graphic-EQ slider settings fitted with the realised band shapes.
 
     Parameters
@@ -1421,7 +1623,8 @@ def design_graphic(freq_hz, level_db, target_db, band_hz, *, bands="third", band
     deviation at its centre overshoots where bands overlap; ``naive_error`` shows it.
     """
     p = _Problem(freq_hz, level_db, target_db, band_hz, max_boost_db, classification,
-                 neighbour_levels_db, lowcut_hz, lowcut_order, sample_rate, null_tolerance_db)
+                 neighbour_levels_db, lowcut_hz, lowcut_order, sample_rate, null_tolerance_db,
+                 position_levels_db, seat_weight, no_harm_db)
     if bands not in ("third", "octave"):
         raise ValueError(f"bands must be 'third' or 'octave', got {bands!r}")
     frac = 3 if bands == "third" else 1
@@ -1440,7 +1643,7 @@ def design_graphic(freq_hz, level_db, target_db, band_hz, *, bands="third", band
                  allb.upper_hz[use], allb.nominal_hz[use])
     centres = bs.exact_hz
     hi_g = max(min(sl[1], p.max_boost), 0.0)
-    dev_all = p.level - p.target
+    dev_all = p.design - p.target
     # naive: minus the deviation at each centre (log-f interpolation over the band)
     fb, db = p.f[p.sel], dev_all[p.sel]
     naive = np.clip(-np.interp(np.log(centres), np.log(fb), db), sl[0], hi_g)

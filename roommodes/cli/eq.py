@@ -48,6 +48,7 @@ def _parse_pair(text, name):
 def _channel_json(corr):
     d = {"name": corr.name}
     d.update(corr.parametric.to_dict())
+    d["cautions"] = list(corr.cautions)
     d["shelf"] = corr.shelf.to_dict()
     d["graphic_third_octave"] = corr.graphic_third.to_dict()
     d["graphic_octave"] = corr.graphic_octave.to_dict()
@@ -65,24 +66,40 @@ def _print_channel(corr, room_layout_speaker):
     from ..analysis.eq import q_at_3db_below_peak
 
     p = corr.parametric
-    click.echo(f"Channel {corr.name}  (band {p.band_hz[0]:g}-{p.band_hz[1]:g} Hz, curve smoothed 1/12 octave)")
+    npos = len(p.positions_error_before)
+    design_for = f"seat and {npos} head positions around it" if npos else "the seat"
+    click.echo(f"Channel {corr.name}  (band {p.band_hz[0]:.0f}-{p.band_hz[1]:.0f} Hz, designed for {design_for}, "
+               "curves smoothed 1/12 octave)")
+    for c in corr.cautions:
+        click.echo(f"  caution: {c}")
     click.echo("  What the curve does, and what EQ may do about it:")
     for r in p.classification.regions:
         if r.kind == "ok":
             continue
-        action = {"peak": "cut", "broad dip": "may be boosted", "narrow null": "NOT boosted"}[r.kind]
+        action = {"peak": "cut", "broad dip": "may be boosted", "narrow null": "NOT boosted",
+                  "narrow dip": "not boosted"}.get(r.kind, "")
         click.echo(f"    {r.kind:<11} {r.freq_lo_hz:6.1f}-{r.freq_hi_hz:6.1f} Hz  {r.deviation_db:+6.1f} dB: "
                    f"{action} ({'; '.join(r.reasons)})")
-    click.echo("  Parametric EQ (peaking filters; Q as in the Audio EQ Cookbook, bandwidth between the "
-               "half-gain points):")
-    click.echo(f"    {'#':>2} {'freq Hz':>8} {'gain dB':>8} {'Q':>6} {'BW oct':>7} {'Q at -3 dB':>10}")
-    for i, flt in enumerate(sorted(p.filters, key=lambda x: x.freq_hz), 1):
+    click.echo("  Parametric EQ (peaking filters in rising frequency, the order of --export and the report; "
+               "Q as in the Audio EQ Cookbook, bandwidth between the half-gain points):")
+    click.echo(f"    {'#':>2} {'freq Hz':>8} {'gain dB':>8} {'Q':>6} {'BW oct':>7} {'Q at -3 dB':>10}  Q from")
+    for i, flt in enumerate(p.filters, 1):
         q3 = q_at_3db_below_peak(flt.q, flt.gain_db) if abs(flt.gain_db) > 3.0 else float("nan")
         q3s = f"{q3:10.2f}" if np.isfinite(q3) else f"{'-':>10}"
-        click.echo(f"    {i:>2} {flt.freq_hz:8.1f} {flt.gain_db:+8.1f} {flt.q:6.2f} {flt.bandwidth_octaves:7.2f} {q3s}")
+        click.echo(f"    {i:>2} {flt.freq_hz:8.1f} {flt.gain_db:+8.1f} {flt.q:6.2f} {flt.bandwidth_octaves:7.2f} {q3s}"
+                   f"  {flt.basis}")
+        for note in flt.at_limit:
+            click.echo(f"       ^ at a limit: {note}")
+    if not p.filters:
+        click.echo("    (no filter: nothing within the limits would help without lifting part of the curve above "
+                   "the target)")
     eb, ea = p.error_before, p.error_after
-    click.echo(f"    deviation from target where EQ may act: rms {eb.rms_db:.1f} -> {ea.rms_db:.1f} dB, "
+    click.echo(f"    deviation from target where EQ may act, at the seat: rms {eb.rms_db:.1f} -> {ea.rms_db:.1f} dB, "
                f"max {eb.max_abs_db:.1f} -> {ea.max_abs_db:.1f} dB, within +-3 dB {eb.within_3db:.0%} -> {ea.within_3db:.0%}")
+    if npos:
+        pairs = ", ".join(f"{b.rms_db:.1f}->{a.rms_db:.1f}"
+                          for b, a in zip(p.positions_error_before, p.positions_error_after))
+        click.echo(f"    at the head positions around the seat (rms dB): {pairs}")
     s = corr.shelf
     sf = s.filters[0]
     click.echo(f"  Bass (tone) control only: low shelf at {sf.freq_hz:.0f} Hz, {sf.gain_db:+.1f} dB (slope S {s.slope:.2f}); "
@@ -108,6 +125,8 @@ def _print_channel(corr, room_layout_speaker):
         click.echo("    " + " ".join(f"{corr.clean.before_db[i]:6.0f}" for i in idx) + "  before EQ")
         click.echo("    " + " ".join(f"{corr.clean.after_db[i]:6.0f}" for i in idx) + "  after EQ")
     for w in p.warnings:
+        if w.code == "filter_at_limit":
+            continue  # shown under the filter it concerns
         click.echo(f"  warning: {w.message}")
         if w.recommended is not None:
             r = w.recommended
@@ -119,6 +138,7 @@ def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, opti
     """Corrections of measured curves: CHANNEL=FILE items, several files of a channel averaged."""
     from ..analysis.compare import average_measurements, load_measurement
     from ..analysis.correction import correct_curve
+    from ..analysis.predict import room_schroeder_frequency
 
     files = {}
     for item in measured:
@@ -140,8 +160,10 @@ def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, opti
         if len(ms) > 1:
             neighbours = np.array([np.interp(np.log(f), np.log(m.freq_hz), m.level_db) for m in ms])
         out.append(correct_curve(sp.name, f, avg.level_db, neighbour_levels_db=neighbours,
+                                 position_levels_db=neighbours,
                                  lowcut_hz=sp.lowcut_hz, lowcut_order=sp.lowcut_order if sp.lowcut_hz else None,
-                                 **options))  # no clean-SPL table: a measured level has no known reference
+                                 schroeder_hz=room_schroeder_frequency(room), **options))
+        # no clean-SPL table: a measured level has no known reference
     return out
 
 
@@ -154,7 +176,9 @@ def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, opti
 @click.option("--tilt", "tilt_db", type=float, default=1.0, show_default=True,
               help="With --target tilt: rise in dB per octave below the corner.")
 @click.option("--tilt-corner", type=float, default=100.0, show_default=True, help="With --target tilt: corner, Hz.")
-@click.option("--band", "band_text", metavar="LOW,HIGH", help="Correction band in Hz [default: max(speaker low cut, 20),250].")
+@click.option("--band", "band_text", metavar="LOW,HIGH",
+              help="Correction band in Hz [default: from the speaker's roll-off (or the room's lowest mode) to the "
+                   "room's Schroeder frequency]. A band above the Schroeder frequency prints a caution.")
 @click.option("--max-filters", type=click.IntRange(1, 20), default=6, show_default=True, help="Peaking filters per channel.")
 @click.option("--max-boost", type=float, default=6.0, show_default=True,
               help="Largest boost of the combined curve at any frequency, dB.")
@@ -238,6 +262,9 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
             f"{c.name} max boost {c.headroom.max_boost_db:+.1f} dB" for c in corrections))
         for w in head_warn:
             click.echo(f"warning: {w.message}")
+    for c in corrections:
+        for text in c.cautions:
+            echo_err(f"caution ({c.name}): {text}")
     if export_path:
         from ..io.roomfile import write_text_atomic
 
@@ -245,7 +272,7 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
             render_text(c.parametric.filters, __version__, sample_rates=EXPORT_SAMPLE_RATES,
                         title=f"{room.name}: channel {c.name} (layout {lay.name})",
                         preattenuation_db=c.headroom.preattenuation_db,
-                        notes=[w.message for w in c.parametric.warnings])
+                        notes=list(c.cautions) + [w.message for w in c.parametric.warnings])
             for c in corrections)
         write_text_atomic(export_path, text, overwrite=force)
         echo_err(f"wrote {export_path}")

@@ -145,14 +145,16 @@ def plot_modes(modes, fmax, title=None, path=None):
     return fig
 
 
-_REGION_COLOURS = {"narrow null": "#CC79A7", "broad dip": "#56B4E9", "peak": "#E69F00"}
+_REGION_COLOURS = {"narrow null": "#CC79A7", "broad dip": "#56B4E9", "peak": "#E69F00", "narrow dip": "#999999"}
 
 
 def plot_correction(corrections, title=None, path=None):
     """Before, target, after and the individual filters of each channel's parametric EQ.
 
-    One row of two panels per channel: left, the levels with the classified regions
-    shaded (nulls are not boosted); right, the combined correction curve and each filter.
+    One row of two panels per channel: left, the levels at the seat (and, faint, at the
+    head positions around it) with the classified regions shaded (nulls and narrow dips
+    are not boosted) and the design band between dotted lines; right, the combined
+    correction curve and each filter.
     """
     # imported here, not at the top: the EQ pulls in scipy.optimize, which `predict` never needs
     from ..analysis.eq import correction_db
@@ -166,7 +168,13 @@ def plot_correction(corrections, title=None, path=None):
         for reg in d.classification.regions:
             if reg.kind in _REGION_COLOURS:
                 ax.axvspan(reg.freq_lo_hz, reg.freq_hi_hz, color=_REGION_COLOURS[reg.kind], alpha=0.18, lw=0)
-        ax.plot(f, d.before_db, color=PALETTE[0], lw=1.3, label="before")
+        for k, (pb, pa) in enumerate(zip(d.positions_before_db, d.positions_after_db)):
+            # the head positions the design also answers to, faint
+            ax.plot(f, pb, color=PALETTE[0], lw=0.5, alpha=0.35, label="head positions, before" if k == 0 else None)
+            ax.plot(f, pa, color=PALETTE[1], lw=0.5, alpha=0.35, label="head positions, after" if k == 0 else None)
+        ax.axvline(d.band_hz[0], color="0.6", lw=0.7, ls=":")
+        ax.axvline(d.band_hz[1], color="0.6", lw=0.7, ls=":")
+        ax.plot(f, d.before_db, color=PALETTE[0], lw=1.3, label="before (seat)")
         ax.plot(f, d.after_db, color=PALETTE[1], lw=1.6, label="after (parametric)")
         ax.plot(f, d.target_db, color="0.2", lw=1.0, ls="--", label="target")
         for kind, colour in _REGION_COLOURS.items():

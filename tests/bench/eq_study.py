@@ -1,0 +1,110 @@
+"""Before/after study of the bass correction, judged in the room rather than in the model.
+
+For each bundled room (rooms/) and the spare-bedroom case (4.9 x 3.6 x 2.55 m, sealed
+speakers rolling off at 45 Hz, the room's (1,0,0) mode at 35 Hz below the roll-off), the
+correction is designed on the modal prediction at the seat and the head positions around
+it, then applied to references it was not designed from:
+
+* ``model``     the design model itself (modal solver, the room as given);
+* ``perturbed`` the room with length +1 %, width -1 %, height +1 %, absorption x1.3;
+* ``image``     the image-source solver on the room as given (``--image``; very slow: more
+                than 5 minutes per room on 2 cores);
+* ``exact``     the exact solver, when this checkout has one.
+
+Printed per channel and position (seat, then head positions 15 cm forward, back, left,
+right, up, down): rms deviation from the target (deep dips left out) before -> after,
+the fall in per cent, and the largest amount the correction lifts the curve further
+above the target anywhere in 15-300 Hz.
+
+    python tests/bench/eq_study.py [--image]
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+
+import numpy as np
+
+import roommodes
+from roommodes.analysis.correction import correct_prediction
+from roommodes.analysis.eqcheck import judge_in_room, perturbed_room
+from roommodes.dsp.response import log_frequencies
+from roommodes.io.roomfile import example_rooms, parse_room
+from roommodes.solvers import METHODS
+
+POSITIONS = ("seat", "+x", "-x", "+y", "-y", "+z", "-z")
+
+BEDROOM = """
+[room]
+name = "Spare-bedroom studio (4.9 x 3.6 x 2.55 m)"
+size_m = [4.90, 3.60, 2.55]
+[surfaces]
+front = "plasterboard-on-studs"
+back = "plasterboard-on-studs"
+left = "plasterboard-on-studs"
+right = "plasterboard-on-studs"
+floor = "carpet-on-underlay"
+ceiling = "plasterboard-on-studs"
+[speakers.left]
+position_m = [0.45, 1.10, 1.15]
+lowcut_hz = 45
+lowcut_order = 2
+[speakers.right]
+position_m = [0.45, 2.50, 1.15]
+lowcut_hz = 45
+lowcut_order = 2
+[seat]
+position_m = [1.70, 1.80, 1.20]
+"""
+
+
+def bedroom_room():
+    import tomllib
+
+    return parse_room(tomllib.loads(BEDROOM), name="bedroom")
+
+
+def study_rooms():
+    rooms = [(p.stem, roommodes.load_room(p)) for p in example_rooms()]
+    return rooms + [("bedroom", bedroom_room())]
+
+
+def references(room, with_image):
+    refs = [("model", room, "modal"), ("perturbed", perturbed_room(room), "modal")]
+    if with_image:
+        refs.append(("image", room, "image"))
+    if "exact" in METHODS:
+        refs.append(("exact", room, "exact"))
+    return refs
+
+
+def main(argv):
+    with_image = "--image" in argv
+    f = log_frequencies(15.0, 300.0, 48)
+    for key, room in study_rooms():
+        t0 = time.perf_counter()
+        corr, _ = correct_prediction(room, freq_hz=f)
+        t_design = time.perf_counter() - t0
+        print(f"\n=== {key}: {room.name}  (design {t_design:.1f} s)")
+        for c in corr:
+            p = c.parametric
+            fl = ", ".join(f"{x.freq_hz:.0f} Hz {x.gain_db:+.1f} dB Q {x.q:.1f}" for x in p.filters)
+            print(f"  {c.name}: band {p.band_hz[0]:.0f}-{p.band_hz[1]:.0f} Hz; filters: {fl or 'none'}")
+        for ref, rroom, method in references(room, with_image):
+            t0 = time.perf_counter()
+            res = judge_in_room(rroom, room.layout, corr, f, method=method)
+            dt = time.perf_counter() - t0
+            print(f"  reference {ref} ({dt:.1f} s)")
+            for name, js in res.items():
+                cells = [f"{pos} {j.rms_before_db:.1f}->{j.rms_after_db:.1f} ({100 * j.reduction:+.0f}%)"
+                         for pos, j in zip(POSITIONS, js)]
+                worst = max(j.worst_raise_db for j in js)
+                print(f"    {name:<6} " + "  ".join(cells) + f"  | worst lift above target {worst:+.2f} dB")
+                heads = [j.reduction for j in js[1:]]
+                print(f"           seat {100 * js[0].reduction:.0f}% lower; head positions {100 * min(heads):.0f}%"
+                      f" to {100 * max(heads):.0f}% lower (mean {100 * np.mean(heads):.0f}%)")
+
+
+if __name__ == "__main__":
+    main(sys.argv[1:])
