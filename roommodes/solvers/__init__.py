@@ -32,7 +32,7 @@ class SolverConvergenceWarning(UserWarning):
 #: The solvers, with a few words on each (the ``--method`` help lists them).
 METHODS = {
     "modal": "modal sum of the rigid-wall modes with perturbation damping and a closed-form tail (fast)",
-    "image": "image sources with the walls' angle-dependent reflection (slow in hard rooms)",
+    "image": "image sources reflected by sqrt(1 - alpha) at every wall (slow in hard rooms)",
     "exact": "separable wave solution of the box with impedance walls (the reference)",
 }
 #: The solver used where none is chosen.
@@ -44,7 +44,7 @@ DEFAULT_METHOD = "exact"
 #: gives the same figures; tests/solvers/test_validation_figures.py holds the two together).
 ACCURACY_DB = {
     "modal": (0.10, 0.88),
-    "image": (0.49, 1.98),
+    "image": (0.40, 1.39),
     "exact": (0.0001, 0.0023),
 }
 
@@ -54,8 +54,8 @@ ASSUMPTIONS = {
     "modal": "The transfer is the modal sum of the rigid-wall modes with perturbation damping and a closed-form "
              "static tail for the modes above the cutoff; its damping is least accurate on strongly absorbing "
              "surfaces.",
-    "image": "The transfer is the sum of image sources, each reflected with the plane-wave reflection factor of "
-             "the wall impedance at its angle of incidence.",
+    "image": "The transfer is the sum of image sources, each reflection scaled by sqrt(1 - alpha) with alpha "
+             "the wall's random-incidence absorption.",
     "exact": "The transfer is the exact wave solution of the box with locally reacting walls: Robin "
              "eigenfunctions along two axes and the closed-form Green's function along the third, summed to a "
              "stated error bound.",

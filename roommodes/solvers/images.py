@@ -14,7 +14,7 @@ pressure reflection factors of the walls the image's path meets (Allen & Berkley
 
 Reflection factors
 ------------------
-``reflection="impedance"`` (default): every wall is locally reacting with real
+``reflection="impedance"``: every wall is locally reacting with real
 normalised impedance ``zeta`` and reflects like an infinite plane wall hit by a plane
 wave (Kuttruff, Room Acoustics, ch. 2; see :func:`roommodes.walls.reflection_factor`),
 
@@ -25,11 +25,16 @@ to x (``d`` the image-to-receiver vector; all x-wall reflections of one image sh
 the angle, likewise y and z). Exact for one plane wall only in the plane-wave limit;
 near grazing the factor tends to -1.
 
-``reflection="energy"``: an angle-independent factor ``R = sqrt(1 - alpha)``, alpha the
-random-incidence absorption of the wall
+``reflection="energy"`` (default): an angle-independent factor ``R = sqrt(1 - alpha)``,
+alpha the random-incidence absorption of the wall
 (:func:`roommodes.walls.random_incidence_absorption`, London 1950). This is the
 factor general time-domain room simulators use; note that ``(1 + R)^3 < 8``: it gives
-less than the +9 dB corner gain of a hard corner.
+less than the +9 dB corner gain of a hard corner. Against the exact solution of the same
+box (tests/reference/image_reflection_study.py, the acceptance cases: two rooms, four
+absorption sets, 18 pairs, 20-200 Hz) it is the closer of the two, median 0.40 dB and 90th
+percentile 1.39 dB against 0.49 and 1.98 dB for the plane-wave factor, and about twice as
+fast; the plane-wave factor is the worse approximation for a point source near a wall at
+low frequency, where the field is far from a plane wave.
 
 Evaluation (fast and exact to a stated bound)
 ---------------------------------------------
@@ -597,7 +602,7 @@ def _validate(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound, ref
 
 
 def image_source_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound, *,
-                          reflection="impedance", tol_db=0.05, max_order=400):
+                          reflection="energy", tol_db=0.05, max_order=400):
     """Transfer functions of a rectangular room by the image-source method.
 
     Parameters
@@ -614,9 +619,10 @@ def image_source_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_o
         Frequencies, Hz, > 0 (any spacing).
     speed_of_sound : float
         m/s, > 0.
-    reflection : {"impedance", "energy"}
-        Angle-dependent plane-wave factor from ``zeta``, or ``sqrt(1 - alpha)`` with the
-        random-incidence absorption ``alpha(zeta)`` (see the module docstring).
+    reflection : {"energy", "impedance"}
+        ``sqrt(1 - alpha)`` with the random-incidence absorption ``alpha(zeta)`` (default,
+        the closer to the exact solution), or the angle-dependent plane-wave factor from
+        ``zeta`` (see the module docstring).
     tol_db : float
         Truncation tolerance, dB, > 0: the estimated remainder of the image sum moves
         the level by less than this at every frequency.

@@ -113,7 +113,7 @@ def test_first_order_images_by_hand():
 
     # order-1 transfer = direct + six images weighted by R(theta), cos theta = |d_normal| / R
     z = impedance_from_absorption(MIXED_ALPHA)
-    h, _ = im.image_source_transfer(SIZE, z, [SRC], [REC], F, C, tol_db=1e-9, max_order=1)
+    h, _ = im.image_source_transfer(SIZE, z, [SRC], [REC], F, C, reflection="impedance", tol_db=1e-9, max_order=1)
     k = 2 * np.pi * F / C
     hand = np.exp(-1j * k * np.linalg.norm(SRC - REC)) / np.linalg.norm(SRC - REC)
     for w, pos in expected.items():

@@ -20,7 +20,7 @@ def test_every_solver_has_figures_and_an_assumption():
 
 def test_report_figures_equal_the_validation_document():
     text = DOC.read_text(encoding="utf-8")
-    rows = {"exact": r"\| exact \(default", "modal": r"\| modal sum", "image": r"\| image sources \(impedance"}
+    rows = {"exact": r"\| exact \(default", "modal": r"\| modal sum", "image": r"\| image sources \(energy reflection, default"}
     for method, start in rows.items():
         m = re.search(start + r"[^|]*\| ([0-9.]+) dB \| ([0-9.]+) dB \|", text)
         assert m, f"no row for {method} in {DOC.name}"
