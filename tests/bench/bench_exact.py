@@ -9,6 +9,10 @@ Cases, all on the demo room (rooms/demo-studio.toml, its own wall impedances):
   frequency and at three;
 - a search batch: 2,000 sources x 1 receiver x 200 frequencies (15-300 Hz).
 
+- the image-source solver per receiver: 1 receiver against 100 receivers (alpha 0.3 on
+  every wall of the demo room's box, 30-150 Hz), time per receiver and the ratio
+  (a sum that reused its lattice across receivers would make 100 far cheaper than 100 x 1).
+
 Each round times every solver on every case once, in turn (interleaved), so that
 machine-load drift hits both alike; the figure is the median over rounds. A warm-up round
 is run first and not counted (the 2,000-source case gets two counted rounds).
@@ -48,6 +52,7 @@ def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--rounds", type=int, default=7)
     ap.add_argument("--skip-large", action="store_true", help="leave out the 2,000-source case")
+    ap.add_argument("--skip-image", action="store_true", help="leave out the image-source receivers case")
     args = ap.parse_args(argv)
     room = roommodes.load_room(roommodes.demo_room_path())
     size, c = room.size_m, room.speed_of_sound
@@ -75,6 +80,32 @@ def main(argv=None):
         tm = np.median(times[(i, "modal")]) * 1e3
         te = np.median(times[(i, "exact")]) * 1e3
         print(f"{name:30s} {tm:10.1f} {te:10.1f} {te / tm:7.2f}   {diff[i][0]:.3f} / {diff[i][1]:.3f}")
+    if not args.skip_image:
+        image_receivers(size, c, rounds=max(2, args.rounds // 3))
+
+
+def image_receivers(size, c, rounds=3):
+    """Image-source time for 1 receiver and for 100, interleaved rounds, medians."""
+    from roommodes.model.walls import impedance_from_absorption
+    from roommodes.solvers.images import image_source_transfer
+
+    zeta = impedance_from_absorption(np.full(6, 0.3))
+    f = roommodes.log_frequencies(30, 150, 12)
+    src = np.array([[0.5, 0.62, 1.15]])
+    rng = np.random.default_rng(3)
+    rec = 0.3 + rng.random((100, 3)) * (np.asarray(size) - 0.6)
+    image_source_transfer(size, zeta, src, rec[:1], f, c)  # compile / load the kernel
+    t1, t100 = [], []
+    for _ in range(rounds):
+        t0 = time.perf_counter()
+        image_source_transfer(size, zeta, src, rec[:1], f, c)
+        t1.append(time.perf_counter() - t0)
+        t0 = time.perf_counter()
+        image_source_transfer(size, zeta, src, rec, f, c)
+        t100.append(time.perf_counter() - t0)
+    a, b = np.median(t1), np.median(t100)
+    print(f"image sources, alpha 0.3, 30-150 Hz: 1 receiver {a * 1e3:.0f} ms; 100 receivers {b:.2f} s "
+          f"({b / 100 * 1e3:.0f} ms per receiver); 100 / 1 = {b / a:.0f}")
 
 
 if __name__ == "__main__":
