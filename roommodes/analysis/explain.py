@@ -40,6 +40,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..dsp.response import level_db, log_frequencies, smooth_db
+from ..dsp.text import range_text
 from ..model.modes import KINDS, mode_shapes
 from ..model.room import WALL_AXIS, WALL_FAR, WALLS
 from ..model.speaker import speaker_response
@@ -454,7 +455,7 @@ def _best_move(moves, diff_s, rows, sel, band_rms, tolerance_db=0.5):
 def _sentence(region, names):
     lo, hi = region.freq_hz
     louder = "louder" if region.difference_db > 0 else "quieter"
-    s = (f"{lo:.0f}-{hi:.0f} Hz: {names[0]} is up to {abs(region.difference_db):.1f} dB {louder} than {names[1]} "
+    s = (f"{range_text(lo, hi)}: {names[0]} is up to {abs(region.difference_db):.1f} dB {louder} than {names[1]} "
          f"(at {region.peak_hz:.0f} Hz).")
     if not region.valid:
         s += " This is above the Schroeder frequency: indicative only."

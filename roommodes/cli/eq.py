@@ -8,6 +8,7 @@ import click
 import numpy as np
 
 from .. import __version__
+from ..dsp.text import boost_text
 from ._util import (
     CONTEXT,
     check_output,
@@ -112,9 +113,12 @@ def _print_channel(corr, room_layout_speaker):
     h = corr.headroom
     pf = 10 ** (max(h.max_boost_db, 0) / 10)
     xf = 10 ** (max(h.max_boost_db, 0) / 20)
-    click.echo(f"  Headroom: the combined curve peaks at {h.max_boost_db:+.1f} dB at {h.max_boost_freq_hz:.0f} Hz: "
-               f"pre-attenuate digital input by {h.preattenuation_db:.1f} dB; there the amplifier needs "
-               f"x{pf:.1f} the power and the cone x{xf:.1f} the excursion")
+    if h.max_boost_db < 0.05:
+        click.echo("  Headroom: the correction only cuts; no pre-attenuation and no extra amplifier power are needed")
+    else:
+        click.echo(f"  Headroom: the combined curve peaks at {h.max_boost_db:+.1f} dB at {h.max_boost_freq_hz:.0f} Hz: "
+                   f"pre-attenuate digital input by {h.preattenuation_db:.1f} dB; there the amplifier needs "
+                   f"x{pf:.1f} the power and the cone x{xf:.1f} the excursion")
     if corr.clean is not None:
         f = p.freq_hz
         cols = [fr for fr in _SPL_TABLE_HZ if p.band_hz[0] * 0.9 <= fr <= p.band_hz[1]]
@@ -259,7 +263,7 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
         for c in corrections:
             _print_channel(c, None)
         click.echo("Side by side: " + ", ".join(
-            f"{c.name} max boost {c.headroom.max_boost_db:+.1f} dB" for c in corrections))
+            f"{c.name} {boost_text(c.headroom.max_boost_db)}" for c in corrections))
         for w in head_warn:
             click.echo(f"warning: {w.message}")
     for c in corrections:

@@ -14,6 +14,8 @@ from pathlib import Path
 
 import numpy as np
 
+from ..dsp.text import boost_text
+
 __all__ = ["PALETTE", "new_figure", "save_figure", "plot_prediction", "plot_modes"]
 
 #: Okabe-Ito colour-blind-safe palette (black first for references).
@@ -192,7 +194,7 @@ def plot_correction(corrections, title=None, path=None):
         ax2.axhline(d.max_boost_db, color=PALETTE[1], lw=0.8, ls=":")
         style_frequency_axis(ax2, f[0], f[-1])
         ax2.set_ylabel("Correction (dB)")
-        ax2.set_title(f"{corr.name}: filters (max boost {d.max_boost_db:+.1f} dB)", fontsize=10)
+        ax2.set_title(f"{corr.name}: filters ({boost_text(d.max_boost_db)})", fontsize=10)
         ax2.legend(fontsize=7, ncol=2, loc="lower center")
     if title:
         fig.suptitle(title, fontsize=11)

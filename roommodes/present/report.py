@@ -37,6 +37,7 @@ from ..analysis.predict import band_figures, predict, response_features, usable_
 from ..analysis.search import PARTS, front_distance_profile, search_layouts, search_space, seat_score_map
 from ..analysis.summary import room_summary
 from ..dsp.response import log_frequencies
+from ..dsp.text import boost_text, range_text
 from ..model.criteria import note_name
 from ..model.materials import get_material
 from ..model.modes import room_modes
@@ -848,7 +849,7 @@ def _section_eq(run):
                            f"{p.error_after.max_abs_db:.1f} dB.", key=f"eq-{c.name}")
         else:
             doc.p("No filter is needed within the limits.")
-        regs = [f"{r.kind} {r.freq_lo_hz:.0f}-{r.freq_hi_hz:.0f} Hz ({r.deviation_db:+.1f} dB): "
+        regs = [f"{r.kind} {range_text(r.freq_lo_hz, r.freq_hi_hz)} ({r.deviation_db:+.1f} dB): "
                 + {"peak": "cut", "broad dip": "may be boosted", "narrow null": "not boosted"}.get(r.kind, "")
                 for r in p.classification.regions if r.kind != "ok"]
         if regs:
@@ -875,7 +876,7 @@ def _section_eq(run):
     for w in eqmod.channel_headroom_warnings({c.name: c.headroom.max_boost_db for c in corrections}):
         doc.p(f"Warning: {w.message}", cls="caution")
     glance.append("Bass correction: " + "; ".join(
-        f"{c.name} {len(c.parametric.filters)} filter(s), max boost {c.headroom.max_boost_db:+.1f} dB "
+        f"{c.name} {len(c.parametric.filters)} filter(s), {boost_text(c.headroom.max_boost_db)} "
         f"(pre-attenuate {c.headroom.preattenuation_db:.1f} dB)" for c in corrections) + ".")
     fig = plot_correction(corrections, title=f"{room.name}: bass correction")
     doc.figure(fig, "eq", "Bass correction, channel by channel",
