@@ -12,6 +12,7 @@ import numpy as np
 
 from ..analysis.compare import is_wav_file, load_measurement, speaker_by_name
 from ..io.wavio import read_wav
+from ..present.units import parse_lengths
 from ._util import fail
 
 __all__ = [
@@ -80,13 +81,16 @@ def read_wav_or_fail(path, channel_1based, what="recording"):
 
 
 def parse_point(text, name="--at"):
+    """X,Y,Z from the command line: metres, or lengths with units ("185 cm, 145 cm, 1.2 m",
+    "6 ft, 4 ft 9 in, 4 ft"), read as everywhere else (:func:`roommodes.present.units.parse_lengths`)."""
     try:
-        v = [float(s) for s in text.replace(";", ",").split(",")]
+        v = parse_lengths(text, 3)
     except ValueError:
-        v = []
+        v = ()
     if len(v) != 3 or not all(np.isfinite(v)):
-        fail(f"{name} must be X,Y,Z in metres, e.g. 1.85,1.45,1.20; got '{text}'")
-    return tuple(v)
+        fail(f"{name} must be X,Y,Z: metres (1.85,1.45,1.20) or lengths with units (185 cm, 145 cm, 120 cm); "
+             f"got '{text}'")
+    return tuple(float(x) for x in v)
 
 
 def positions(room, at, n_files, name="--at"):
@@ -128,7 +132,8 @@ def measured_files_options(f):
                      help="One more measurement with its own speaker and position (repeatable); X,Y,Z may be "
                           "'seat'.")(f)
     f = click.option("--at", multiple=True, metavar="X,Y,Z",
-                     help="Microphone position of FILES, m (default: the seat); once for all or once per file.")(f)
+                     help="Microphone position of FILES: metres or lengths with units (185 cm, 145 cm, 120 cm); "
+                          "default the seat; once for all or once per file.")(f)
     return click.option("--channel", help="The speaker measured in FILES (a name in the room file).")(f)
 
 

@@ -515,7 +515,8 @@ def _print_features(matches, names):
               help="Compare with this measurement instead of a prediction (repeat to average several).")
 @click.option("--channel", help="The speaker that was measured (a name in the room file).")
 @click.option("--at", multiple=True, metavar="X,Y,Z",
-              help="Microphone position, m (default: the seat); once for all files or once per file.")
+              help="Microphone position: metres or lengths with units (185 cm, 145 cm, 120 cm); default the "
+                   "seat; once for all files or once per file.")
 @wav_channel_option
 @window_option
 @click.option("--band", default="20,200", show_default=True, metavar="LOW,HIGH",
