@@ -29,6 +29,7 @@ from pathlib import Path
 import numpy as np
 from scipy.signal import find_peaks, peak_widths
 
+from ..dsp.bands import band_average_matrix, band_centres, band_fraction_of
 from ..dsp.response import Response, align_level, log_frequencies, smooth_db
 from ..io.importers import MeasurementFileError, average_curves, read_response_text
 from ..io.wavio import read_wav
@@ -154,6 +155,10 @@ def load_measurement(path, channel=None, window_s=DEFAULT_WINDOW_S, freq_hz=None
     if p.suffix.lower() in (".wav", ".wave"):
         raise MeasurementFileError("has a .wav name but no RIFF/WAVE header: not a WAV file", name)
     curve = read_response_text(p)
+    b = band_fraction_of(curve.freq_hz)
+    if b is not None:  # band levels stay band levels: interpolating them would invent detail
+        return Measurement(curve.freq_hz, curve.level_db, p.name, sources=(name,), band_fraction=b,
+                           notes=(*curve.notes, f"band data: 1/{b}-octave band levels at the band centres"))
     inside = (f >= curve.freq_hz[0]) & (f <= curve.freq_hz[-1])
     if inside.sum() < 2:
         raise MeasurementFileError(
@@ -225,8 +230,9 @@ def average_measurements(measurements, mode="power", label=None):
     res = [m.resolution_hz for m in ms if m.resolution_hz is not None]
     notes = tuple(n for m in ms for n in m.notes) + (
         f"{mode} average of {len(ms)} curves; spread: standard deviation of their dB levels",)
+    bands = {m.band_fraction for m in ms}
     return replace(avg, label=label or f"mean of {len(ms)}", sources=sources, resolution_hz=max(res) if res else None,
-                   notes=notes)
+                   notes=notes, band_fraction=bands.pop() if len(bands) == 1 else None)
 
 
 # ----------------------------------------------------------------------------- prediction
@@ -275,6 +281,25 @@ def predicted_level(room, channel, positions_m, freq_hz, method=DEFAULT_METHOD, 
     pos = np.atleast_2d(np.asarray(room.layout.seat_m if positions_m is None else positions_m, dtype=float))
     return speaker_levels(room, [sp], pos, freq_hz, method=method, include_speaker=include_speaker,
                           **options).power_mean_db()[0]
+
+
+def predicted_band_levels(room, channel, positions_m, centres_hz, fraction, method=DEFAULT_METHOD,
+                          points_per_octave=72, **options):
+    """Predicted 1/``fraction``-octave band levels at the band centres ``centres_hz``.
+
+    The level on a fine log grid that runs from each band's lower edge to its upper edge
+    (:func:`predicted_level`, power-averaged over the positions) is averaged in power over each band's IEC 61260-1 edges with equal weight
+    per log frequency (:func:`roommodes.dsp.bands.band_average_matrix`): the band level a
+    meter reads with pink noise.
+    """
+    c = np.asarray(centres_hz, dtype=float)
+    exact, _, lower, upper = band_centres(int(fraction), float(c.min()) / 1.1, float(c.max()) * 1.1)
+    idx = np.abs(np.log(c[:, None] / exact[None, :])).argmin(axis=1)
+    lo, hi = lower[idx], upper[idx]
+    per_band = max(3, int(np.ceil(points_per_octave / fraction)) + 1)  # points from edge to edge
+    fine = np.unique(np.concatenate([np.geomspace(a, b, per_band) for a, b in zip(lo, hi)]))
+    level = predicted_level(room, channel, positions_m, fine, method=method, **options)
+    return 10.0 * np.log10(band_average_matrix(fine, lo, hi) @ 10.0 ** (level / 10.0))
 
 
 # ----------------------------------------------------------------------------- statistics
@@ -757,6 +782,17 @@ def compare_to_prediction(room, measured, channel=None, positions_m=None, *, ban
     sp = speaker_by_name(room, channel)
     pos = np.atleast_2d(np.asarray(room.layout.seat_m if positions_m is None else positions_m, dtype=float))
     f = measured.freq_hz
+    if measured.band_fraction:
+        pred = predicted_band_levels(room, sp.name, pos, f, measured.band_fraction, method=method, **options)
+        comp = compare_curves(f, measured.level_db, pred, band_hz=band_hz, smoothing=0,
+                              align_band_hz=align_band_hz, absolute=absolute)
+        words = [f"These are 1/{measured.band_fraction}-octave band levels: they are compared band by band with "
+                 "the prediction integrated into the same bands. Bands are too broad to resolve single modes, so "
+                 "no peaks or dips are matched and no effective dimensions are read from them; measure with a "
+                 "sweep (roommodes sweep, ir) for that. What band levels can show is the broad balance and, "
+                 "through the overall level of the modal region, the mean absorption."]
+        ref = Response(f, pred, f"predicted ({method}), in bands", band_fraction=measured.band_fraction)
+        return ComparisonReport(comp, (), words, measured, ref, ("measured", "predicted"), pos, sp.name)
     pred = predicted_level(room, sp.name, pos, f, method=method, **options)
     comp = compare_curves(f, measured.level_db, pred, band_hz=band_hz, smoothing=smoothing,
                           align_band_hz=align_band_hz, absolute=absolute)

@@ -26,6 +26,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from scipy.optimize import least_squares
 
+from ..dsp.bands import band_average_matrix, band_centres
 from ..dsp.response import log_frequencies, smooth_db
 from ..model.room import WALL_MARGIN_M, WALLS, Surface
 from ..solvers import DEFAULT_METHOD
@@ -64,6 +65,8 @@ class FitTarget:
     level_db : ndarray (F,)
         Measured level, dB (any reference unless the fit is absolute).
     label : str
+    band_fraction : int or None
+        ``b`` when the levels are 1/b-octave band levels at the band centres.
     """
 
     channel: str
@@ -71,6 +74,7 @@ class FitTarget:
     freq_hz: np.ndarray
     level_db: np.ndarray
     label: str = ""
+    band_fraction: int | None = None
 
 
 @dataclass(frozen=True)
@@ -293,6 +297,29 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
     lo, hi = (float(v) for v in band_hz)
     f = log_frequencies(lo, hi, int(points_per_octave))
     f_ref = math.sqrt(lo * hi)
+    fractions = {t.band_fraction for t in targets}
+    if len(fractions) > 1:
+        raise ValueError("the measurements mix band levels and response curves; fit them separately (band levels "
+                         "can only calibrate the absorption)")
+    fraction = fractions.pop()
+    band_note = ""
+    if fraction:
+        # Band levels cannot resolve single modes, so they cannot tell a dimension, a position or a
+        # roll-off: only the overall absorption is fitted, against band levels of the model.
+        centres = np.asarray(targets[0].freq_hz, dtype=float)
+        centres = centres[(centres >= lo * 0.98) & (centres <= hi * 1.02)]
+        if centres.size < 3:
+            raise ValueError(f"{targets[0].label or 'the band levels'}: fewer than three bands lie in the fit band "
+                             f"{lo:g}-{hi:g} Hz; widen the band")
+        exact, _, lower, upper = band_centres(int(fraction), float(centres.min()) / 1.1, float(centres.max()) * 1.1)
+        bi = np.abs(np.log(centres[:, None] / exact[None, :])).argmin(axis=1)
+        f = log_frequencies(float(lower[bi].min()), float(upper[bi].max()), max(24, int(points_per_octave)))
+        band_matrix = band_average_matrix(f, lower[bi], upper[bi])
+        absorption = "all" if absorption != "none" else "none"
+        size_tolerance, position_tolerance_m, fit_lowcut = 0.0, 0.0, False
+        size_tol = pos_tol = 0.0
+        band_note = (f"band data (1/{fraction} octave): only the overall absorption is fitted; the dimensions, "
+                     "positions and roll-off are kept, since band levels cannot resolve the modes that would tell them")
 
     speakers = {s.name: s for s in room.layout.speakers}
     spk_names, mic_list, pairs, meas = [], [], [], []
@@ -312,7 +339,15 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
         if pos not in mic_list:
             mic_list.append(pos)
         pairs.append((spk_names.index(t.channel), mic_list.index(pos)))
-        meas.append(smooth_db(f, np.interp(np.log(f), np.log(tf), np.asarray(t.level_db, float)), smoothing))
+        if fraction:
+            tl = np.asarray(t.level_db, float)
+            at = [int(np.argmin(np.abs(np.log(tf / c)))) for c in centres]
+            if any(abs(tf[i] / c - 1) > 0.03 for i, c in zip(at, centres)):
+                raise ValueError(f"{t.label or 'a target'}: its bands differ from the first measurement's; give band "
+                                 "levels of the same bands")
+            meas.append(tl[at])
+        else:
+            meas.append(smooth_db(f, np.interp(np.log(f), np.log(tf), np.asarray(t.level_db, float)), smoothing))
     meas = np.array(meas)
     mic0 = np.array(mic_list)
     spk0 = np.array([speakers[n].position_m for n in spk_names], dtype=float)
@@ -379,6 +414,8 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
     def predict_all(u):
         r, _, sps, mic = build(u)
         lv = speaker_levels(r, sps, mic, f, method=method, **solver_options).level_db
+        if fraction:
+            return np.array([10.0 * np.log10(band_matrix @ 10.0 ** (lv[s, m] / 10.0)) for s, m in pairs])
         return np.array([smooth_db(f, lv[s, m], smoothing) for s, m in pairs])
 
     def differences(u):
@@ -389,7 +426,7 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
 
     n_data = meas.size
     octaves = math.log2(hi / lo)
-    n_eff = len(targets) * min(f.size, max(1.0, octaves * (smoothing or points_per_octave)))
+    n_eff = len(targets) * (meas.shape[1] if fraction else min(f.size, max(1.0, octaves * (smoothing or points_per_octave))))
     state = {"iter": 0, "calls": 0, "last": None}
 
     def rows(u):
@@ -477,8 +514,9 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
                                     p.scale * se_u[j], at_bound, p.kind))
 
     return FitResult(
-        room=new_room, parameters=tuple(out), freq_hz=f, measured_db=meas,
+        room=new_room, parameters=tuple(out), freq_hz=centres if fraction else f, measured_db=meas,
         before_db=pred_before + off_before[:, None], after_db=pred_after + off_after[:, None],
         level_offsets_db=off_after, error_before=fit_error(d_before), error_after=fit_error(d_after),
         mic_positions_m=mic_fit, iterations=state["iter"], evaluations=state["calls"], success=success,
-        message=message, reference_hz=f_ref, labels=tuple(t.label for t in targets))
+        message="; ".join(m for m in (band_note, message) if m), reference_hz=f_ref,
+        labels=tuple(t.label for t in targets))

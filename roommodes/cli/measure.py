@@ -702,7 +702,7 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
     grid = log_frequencies(lo, hi, points_per_octave)
     specs = measurement_specs(room, files, channel, at, measure)
     meas = load_measurements([s[2] for s in specs], wav_channel, window_s, grid)
-    targets = [FitTarget(ch, pos, m.freq_hz, m.level_db, f"{Path(p).name} ({ch})")
+    targets = [FitTarget(ch, pos, m.freq_hz, m.level_db, f"{Path(p).name} ({ch})", m.band_fraction)
                for (ch, pos, p), m in zip(specs, meas)]
     t0 = time.perf_counter()
     with contextlib.ExitStack() as stack:

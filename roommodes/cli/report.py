@@ -164,7 +164,7 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
     targets = None
     if do_fit:
         fit_meas = load_measurements([s[2] for s in specs], wav_channel, window_s, log_frequencies(*band, 24))
-        targets = [FitTarget(ch, pos, m.freq_hz, m.level_db, f"{p.name} ({ch})")
+        targets = [FitTarget(ch, pos, m.freq_hz, m.level_db, f"{p.name} ({ch})", m.band_fraction)
                    for (ch, pos, p), m in zip(specs, fit_meas)]
     inputs = []
     for p in [Path(room_file)] + [s[2] for s in specs]:

@@ -10,7 +10,8 @@ import numpy as np
 
 from .checks import check_range
 
-__all__ = ["OCTAVE_RATIO_G", "BandSet", "band_centres", "band_label", "iec_bands"]
+__all__ = ["OCTAVE_RATIO_G", "BandSet", "band_centres", "band_label", "iec_bands", "band_fraction_of",
+           "band_average_matrix"]
 
 #: Base-10 octave frequency ratio of IEC 61260-1:2014, ``G = 10**(3/10)``.
 OCTAVE_RATIO_G = 10.0 ** 0.3
@@ -161,3 +162,49 @@ def iec_bands(bands="third", fmin_hz=20.0, fmax_hz=20000.0):
     keep = (nominal >= lo * (1 - 1e-9)) & (nominal <= hi * (1 + 1e-9))
     x = np.rint(b * np.log10(exact[keep] / 1000.0) / 0.3).astype(int)
     return BandSet(b, x, exact[keep], lower[keep], upper[keep], nominal[keep])
+
+
+def band_fraction_of(freq_hz, tolerance=0.03):
+    """The ``b`` of 1/b-octave band data (1 or 3) that ``freq_hz`` lists, or None.
+
+    Band levels (from a sound-level meter or a band analysis of pink noise) are given at
+    the IEC 61260-1 band centres, exact or ISO 266 nominal. A grid is taken for band data
+    when every frequency lies within ``tolerance`` (relative) of a centre of one
+    fraction and consecutive points step by one band; a measured curve on a fine or an
+    arbitrary grid gives None.
+    """
+    f = np.asarray(freq_hz, dtype=float)
+    if f.ndim != 1 or f.size < 2 or np.any(~np.isfinite(f)) or np.any(f <= 0) or np.any(np.diff(f) <= 0):
+        return None
+    for b in (3, 1):
+        exact, nominal, _, _ = band_centres(b, float(f[0]) / 1.1, float(f[-1]) * 1.1)
+        idx = np.abs(np.log(f[:, None] / exact[None, :])).argmin(axis=1)
+        near_exact = np.abs(f / exact[idx] - 1) <= tolerance
+        near_nominal = np.abs(f / nominal[idx] - 1) <= tolerance
+        if np.all(near_exact | near_nominal) and np.all(np.diff(idx) == 1):
+            return b
+    return None
+
+
+def band_average_matrix(freq_hz, lower_hz, upper_hz):
+    """Weights (B, F) that average a power quantity on ``freq_hz`` over each band.
+
+    Each band's row weights the grid points inside ``[lower, upper]`` equally in log
+    frequency (trapezoid rule), which is the band level pink noise gives: equal energy per
+    band, so a flat band reads as its mean level. Raises ValueError for a band holding
+    fewer than two grid points (make the grid finer).
+    """
+    f = np.asarray(freq_hz, dtype=float)
+    u = np.log(f)
+    rows = []
+    for lo, hi in zip(np.atleast_1d(lower_hz), np.atleast_1d(upper_hz)):
+        inside = (f >= lo * (1 - 1e-9)) & (f <= hi * (1 + 1e-9))
+        if inside.sum() < 2:
+            raise ValueError(f"band {lo:.4g}-{hi:.4g} Hz holds fewer than two points of the grid; use a finer grid")
+        w = np.zeros(f.size)
+        idx = np.flatnonzero(inside)
+        du = np.diff(u[idx])
+        w[idx[:-1]] += du / 2
+        w[idx[1:]] += du / 2
+        rows.append(w / w.sum())
+    return np.array(rows)

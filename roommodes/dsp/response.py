@@ -190,6 +190,9 @@ class Response:
         What was done on the way in (layout detected, window, calibration, averaging).
     phase_deg : ndarray or None
         Phase in degrees as a measurement file gave it.
+    band_fraction : int or None
+        ``b`` when the levels are 1/b-octave band levels at the band centres (a meter or
+        a band analysis of pink noise), None for a curve on a frequency grid.
     """
 
     freq_hz: np.ndarray
@@ -204,6 +207,7 @@ class Response:
     max_db: np.ndarray | None = None
     notes: tuple = ()
     phase_deg: np.ndarray | None = None
+    band_fraction: int | None = None
 
     @property
     def source(self):
