@@ -288,15 +288,15 @@ def predicted_band_levels(room, channel, positions_m, centres_hz, fraction, meth
     """Predicted 1/``fraction``-octave band levels at the band centres ``centres_hz``.
 
     The level on a fine log grid that runs from each band's lower edge to its upper edge
-    (:func:`predicted_level`, power-averaged over the positions) is averaged in power over each band's IEC 61260-1 edges with equal weight
-    per log frequency (:func:`roommodes.dsp.bands.band_average_matrix`): the band level a
+    (:func:`predicted_level`, power-averaged over the positions) is averaged in power over
+    each band's IEC 61260-1 edges with equal weight per log frequency (:func:`roommodes.dsp.bands.band_average_matrix`): the band level a
     meter reads with pink noise.
     """
     c = np.asarray(centres_hz, dtype=float)
     exact, _, lower, upper = band_centres(int(fraction), float(c.min()) / 1.1, float(c.max()) * 1.1)
     idx = np.abs(np.log(c[:, None] / exact[None, :])).argmin(axis=1)
     lo, hi = lower[idx], upper[idx]
-    per_band = max(3, int(np.ceil(points_per_octave / fraction)) + 1)  # points from edge to edge
+    per_band = max(3, int(np.ceil(points_per_octave / fraction)) + 1)  # edge to edge
     fine = np.unique(np.concatenate([np.geomspace(a, b, per_band) for a, b in zip(lo, hi)]))
     level = predicted_level(room, channel, positions_m, fine, method=method, **options)
     return 10.0 * np.log10(band_average_matrix(fine, lo, hi) @ 10.0 ** (level / 10.0))
