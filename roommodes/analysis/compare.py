@@ -289,8 +289,9 @@ def predicted_band_levels(room, channel, positions_m, centres_hz, fraction, meth
 
     The level on a fine log grid that runs from each band's lower edge to its upper edge
     (:func:`predicted_level`, power-averaged over the positions) is averaged in power over
-    each band's IEC 61260-1 edges with equal weight per log frequency (:func:`roommodes.dsp.bands.band_average_matrix`): the band level a
-    meter reads with pink noise.
+    each band's IEC 61260-1 edges with equal weight per log frequency
+    (:func:`roommodes.dsp.bands.band_average_matrix`): the band level a meter reads with
+    pink noise.
     """
     c = np.asarray(centres_hz, dtype=float)
     exact, _, lower, upper = band_centres(int(fraction), float(c.min()) / 1.1, float(c.max()) * 1.1)
