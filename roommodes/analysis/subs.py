@@ -590,6 +590,9 @@ def _make_config(pr, label, kind, names, positions, g, rel_d, s, fc, subs_h, *, 
     f = pr.f
     mains_h = pr.mains_h if mains_h is None else mains_h
     delays, mains_delay = _realise(rel_d) if len(names) else (np.zeros(0), 0.0)
+    # the settings as a person types them (0.1 dB, 0.01 ms); the levels are computed from these
+    g = np.round(np.asarray(g, dtype=float), 1)
+    delays, mains_delay = np.round(delays, 2), round(float(mains_delay), 2)
     if full_range:
         a = _mains(mains_h) + 0j
         b = sum((sub_chain(f, gi, di, si, fc) * h for gi, di, si, h in zip(g, delays, s, subs_h)),
@@ -602,10 +605,9 @@ def _make_config(pr, label, kind, names, positions, g, rel_d, s, fc, subs_h, *, 
         parts = score_parts(f, a, t - a, pr.weights, pr.band, fc, pr.target_db)
     level = _level(t)
     dev, flat = _seat_figures(f, level, pr.weights, pr.band)
-    subs = tuple(SubSetting(n, tuple(float(v) for v in p), float(round(gi, 2)), float(round(di, 2)), int(si),
-                            float(round(max(0.0, gi), 2)))
+    subs = tuple(SubSetting(n, tuple(float(v) for v in p), float(gi), float(di), int(si), float(max(0.0, gi)))
                  for n, p, gi, di, si in zip(names, positions, g, delays, s))
-    return SubConfig(label, kind, subs, None if fc is None else float(fc), float(round(mains_delay, 2)),
+    return SubConfig(label, kind, subs, None if fc is None else float(fc), float(mains_delay),
                      {k: float(v) for k, v in parts.items()}, level, dev, flat, full_range=full_range)
 
 
