@@ -115,8 +115,13 @@ def _print(room, res, elapsed):
         click.echo("  ('before' is the mains alone, full range)")
     best = res.ranked[0]
     click.echo("")
-    click.echo(f"Best: {best.label}. Seat-to-seat spread {b.seat_spread_db:.1f} dB before, {best.seat_spread_db:.1f} dB "
-               f"after ({best.perturbed_seat_spread_db:.1f} dB in a room 1 % larger with 1.3 times the absorption).")
+    if len(res.seats) == 1:
+        click.echo(f"Best: {best.label}. One seat: no seat-to-seat spread; flatness at the seat {b.parts['flatness']:.1f} "
+                   f"dB before, {best.parts['flatness']:.1f} dB after. Add [seats.NAME] tables for the other places.")
+    else:
+        click.echo(f"Best: {best.label}. Seat-to-seat spread {b.seat_spread_db:.1f} dB before, "
+                   f"{best.seat_spread_db:.1f} dB after ({best.perturbed_seat_spread_db:.1f} dB in a room 1 % larger "
+                   "with 1.3 times the absorption).")
     by_n = {len(c.subs): c for c in res.ranked if c.kind == "search"}
     if 4 in by_n and 2 in by_n and by_n[2].score - by_n[4].score < 0.25:
         click.echo(f"Four subs gain only {by_n[2].score - by_n[4].score:.2f} dB of score over two here; two will do.")
