@@ -32,6 +32,7 @@ COMMANDS = {
     "predict": ("predict", "predict", "Predict each speaker's level at the seat, with its main peaks and dips."),
     "place": ("place", "place", "Search where to put the two speakers and the seat, and rank the layouts."),
     "explain": ("place", "explain", "Explain why the two channels differ at the seat, and what to move."),
+    "subs": ("subs", "subs", "Find where the subwoofers go, and their gain, delay, polarity and crossover, for every seat."),
     "eq": ("eq", "eq", "Design bass-correction EQ for each channel and show the headroom it costs."),
     "map": ("map", "map_", "Map the level over the floor plan at one frequency: where a mode is loud and where its nodes are."),
     "report": ("report", "report", "Write a self-contained HTML report of the room, for a client or for your notes."),

@@ -19,18 +19,35 @@ import numpy as np
 import tomlkit
 
 from ..model.materials import get_material
-from ..model.room import MAX_DIMENSION_M, MIN_DIMENSION_M, WALL_MARGIN_M, WALLS, Layout, Room, Speaker, Surface
+from ..model.room import (
+    MAX_DIMENSION_M,
+    MIN_DIMENSION_M,
+    ROLES,
+    WALL_MARGIN_M,
+    WALLS,
+    Box,
+    Layout,
+    Room,
+    Seat,
+    Speaker,
+    SubSearch,
+    Surface,
+)
 from .importers import read_response_text
 
 __all__ = ["RoomFileError", "load_room", "parse_room", "room_to_toml", "demo_room_path",
            "example_rooms", "write_text_atomic"]
 
 
-_TOP_KEYS = {"room", "surfaces", "speakers", "seat", "search", "format"}
+_TOP_KEYS = {"room", "surfaces", "speakers", "seat", "seats", "search", "subs", "format"}
 _ROOM_KEYS = {"name", "size_m", "temperature_c"}
 _SPEAKER_KEYS = {"position_m", "lowcut_hz", "lowcut_order", "response_file", "sensitivity_db",
-                 "amplifier_w", "max_spl_db"}
+                 "amplifier_w", "max_spl_db", "role"}
 _SEAT_KEYS = {"position_m"}
+_SEATS_KEYS = {"position_m", "weight"}
+_SUBS_KEYS = {"counts", "crossover_hz", "max_delay_ms", "max_gain_db", "height_m", "step_m", "wall_gap_m",
+              "regions", "wall_band_m", "candidates_m", "keep_out", "band_hz"}
+_SUB_COUNTS = (1, 2, 4)
 _SURFACE_TABLE_KEYS = {"absorption", "bands_hz", "material"}
 
 
@@ -220,7 +237,10 @@ def parse_room(data, name="<room>", base_dir=None):
                           ("max_spl_db", 60.0, 150.0)):
             if k in st:
                 extra[k] = ctx.number(st[k], f"{key} {k}", lo, hi)
-        speakers.append(Speaker(sname, pos, lowcut, int(order), response, rfile, **extra))
+        role = st.get("role", "main")
+        if role not in ROLES:
+            ctx.fail(f"{key} role", f"must be one of {', '.join(repr(r) for r in ROLES)}, got {role!r}")
+        speakers.append(Speaker(sname, pos, lowcut, int(order), response, rfile, role=role, **extra))
     for a in range(len(speakers)):
         for b in range(a + 1, len(speakers)):
             d = np.linalg.norm(np.subtract(speakers[a].position_m, speakers[b].position_m))
@@ -229,6 +249,13 @@ def parse_room(data, name="<room>", base_dir=None):
                          f"is {d * 100:.1f} cm from speaker '{speakers[a].name}'; two speakers cannot share a point "
                          "(keep them at least 5 cm apart)")
     seat = None
+    seats = ()
+    if "seat" in data and "seats" in data:
+        ctx.fail("[seats]", "the file has both [seat] and [seats.NAME] tables; keep one: [seat] for one "
+                            "listening position, or [seats.NAME] for several (the first listed is the main seat)")
+    if "seats" in data:
+        seats = _parse_seats(ctx, data["seats"], size, speakers)
+        seat = seats[0].position_m
     if "seat" in data:
         seat_t = data["seat"]
         if not isinstance(seat_t, dict):
@@ -245,12 +272,129 @@ def parse_room(data, name="<room>", base_dir=None):
         ctx.fail("[seat]", "missing; a room file with speakers needs a [seat] with position_m")
     if seat is not None and not speakers:
         ctx.fail("[speakers]", "missing; a room file with a seat needs at least one [speakers.NAME] table")
+    if speakers and all(s.role == "sub" for s in speakers):
+        ctx.fail("[speakers]", "every speaker has role = \"sub\"; give at least one main speaker "
+                               "(role = \"main\", the default)")
     if speakers:
-        layout = Layout(tuple(speakers), seat, "file")
+        # mains first, then subs (each in file order): code that takes the first two speakers as
+        # the stereo pair keeps working
+        ordered = tuple(s for s in speakers if s.role == "main") + tuple(s for s in speakers if s.role == "sub")
+        layout = Layout(ordered, seat, "file", seats)
     search = data.get("search", {})
     if not isinstance(search, dict):
         ctx.fail("[search]", "must be a table")
-    return Room(room_name, size, surfaces, temp, layout, search, str(name))
+    subs_search = None
+    if "subs" in data:
+        subs_search = _parse_subs(ctx, data["subs"], size)
+    return Room(room_name, size, surfaces, temp, layout, search, str(name), subs_search)
+
+
+def _parse_seats(ctx, table, size, speakers):
+    """The ``[seats.NAME]`` tables as a tuple of :class:`Seat`, in file order."""
+    if not isinstance(table, dict) or not table:
+        ctx.fail("[seats]", "must hold one or more named seats, e.g. [seats.middle] with position_m = [x, y, z]")
+    seats = []
+    for sname, st in table.items():
+        key = f"[seats.{sname}]"
+        if not isinstance(st, dict):
+            ctx.fail(key, "must be a table with position_m and an optional weight")
+        ctx.unknown_keys(st, _SEATS_KEYS, key)
+        if "position_m" not in st:
+            ctx.fail(f"{key} position_m", "missing; give [x, y, z] in metres (z is ear height)")
+        pos = ctx.vector(st["position_m"], f"{key} position_m")
+        _check_inside(ctx, f"{key} position_m", pos, size)
+        for s in speakers:
+            if np.linalg.norm(np.subtract(s.position_m, pos)) < 0.1:
+                ctx.fail(f"{key} position_m", f"is within 10 cm of speaker '{s.name}'; move the seat or the speaker")
+        weight = ctx.number(st.get("weight", 1.0), f"{key} weight", 0.0, 100.0)
+        for other in seats:
+            if np.linalg.norm(np.subtract(other.position_m, pos)) < 0.05:
+                ctx.fail(f"{key} position_m", f"is within 5 cm of seat '{other.name}'; two seats cannot share a point")
+        seats.append(Seat(sname, pos, weight))
+    if seats[0].weight <= 0:
+        ctx.fail(f"[seats.{seats[0].name}] weight", "the first seat listed is the main seat and needs a weight "
+                                                     "above 0; list another seat first or raise its weight")
+    return tuple(seats)
+
+
+def _boxes(ctx, value, key, size, allow_2d=True):
+    """A list of ``{ name, min_m, max_m }`` boxes (``[x, y]`` corners span the full height)."""
+    example = '[{ name = "door", min_m = [3.7, 2.5, 0.0], max_m = [4.6, 3.4, 2.1] }]'
+    if not isinstance(value, list):
+        ctx.fail(key, f"expected a list of boxes, e.g. {example}")
+    out = []
+    for i, box in enumerate(value):
+        k = f"{key}[{i}]"
+        if not isinstance(box, dict) or not {"min_m", "max_m"} <= set(box) or not set(box) <= {"name", "min_m", "max_m"}:
+            ctx.fail(k, f"a box needs min_m and max_m ([x, y, z] in metres) and may have a name, e.g. {example}")
+        corners = []
+        for c in ("min_m", "max_m"):
+            v = box[c]
+            if not isinstance(v, list) or len(v) not in ((2, 3) if allow_2d else (3,)):
+                ctx.fail(f"{k}.{c}", f"expected [x, y, z] (or [x, y] for the full height) in metres, got {v!r}")
+            pt = [ctx.number(x, f"{k}.{c}[{j}]", -1e3, 1e3) for j, x in enumerate(v)]
+            if len(pt) == 2:
+                pt.append(0.0 if c == "min_m" else float(size[2]))
+            corners.append(tuple(pt))
+        if any(a >= b for a, b in zip(*corners)):
+            ctx.fail(k, f"min_m {list(corners[0])} must be below max_m {list(corners[1])} on every axis")
+        name = box.get("name", f"box {i + 1}")
+        if not isinstance(name, str):
+            ctx.fail(f"{k}.name", f"expected text, got {name!r}")
+        out.append(Box(name, corners[0], corners[1]))
+    return tuple(out)
+
+
+def _parse_subs(ctx, t, size):
+    """The ``[subs]`` table as a :class:`SubSearch` (defaults documented in docs/room-file.md)."""
+    if not isinstance(t, dict):
+        ctx.fail("[subs]", "must be a table of subwoofer search settings (see docs/room-file.md)")
+    ctx.unknown_keys(t, _SUBS_KEYS, "[subs]")
+    d = SubSearch()
+    kw = {}
+    if "counts" in t:
+        c = t["counts"]
+        if not isinstance(c, list) or not c or any(isinstance(v, bool) or v not in _SUB_COUNTS for v in c) \
+                or len(set(c)) != len(c):
+            ctx.fail("[subs] counts", f"expected a list of distinct sub counts from 1, 2, 4, e.g. [1, 2, 4], got {c!r}")
+        kw["counts"] = tuple(sorted(int(v) for v in c))
+    for k, lo, hi, default in (("crossover_hz", 30.0, 200.0, d.crossover_hz), ("band_hz", 10.0, 300.0, d.band_hz)):
+        if k in t:
+            v = t[k]
+            if not isinstance(v, list) or len(v) != 2:
+                ctx.fail(f"[subs] {k}", f"expected [low, high] in Hz, e.g. {list(default)}, got {v!r}")
+            a, b = (ctx.number(x, f"[subs] {k}[{i}]", lo, hi) for i, x in enumerate(v))
+            if a > b:
+                ctx.fail(f"[subs] {k}", f"low {a:g} Hz is above high {b:g} Hz; give [low, high]")
+            kw[k] = (a, b)
+    band = kw.get("band_hz", d.band_hz)
+    xo = kw.get("crossover_hz", d.crossover_hz)
+    if band[1] < xo[1] or band[0] > xo[0] / 2:
+        ctx.fail("[subs] band_hz", f"the scored band {band[0]:g}-{band[1]:g} Hz must reach from half the lowest "
+                                   f"crossover ({xo[0] / 2:g} Hz) to the highest ({xo[1]:g} Hz)")
+    for k, lo, hi in (("max_delay_ms", 0.0, 100.0), ("max_gain_db", 0.0, 12.0),
+                      ("step_m", 0.05, 2.0), ("wall_gap_m", WALL_MARGIN_M, 1.0), ("wall_band_m", 0.1, 5.0)):
+        if k in t:
+            kw[k] = ctx.number(t[k], f"[subs] {k}", lo, hi)
+    if "height_m" in t:
+        kw["height_m"] = ctx.number(t["height_m"], "[subs] height_m", WALL_MARGIN_M, size[2] - WALL_MARGIN_M)
+    if "regions" in t:
+        kw["regions"] = _boxes(ctx, t["regions"], "[subs] regions", size)
+        if not kw["regions"]:
+            ctx.fail("[subs] regions", "is empty; leave it out for the default band along the walls, or give boxes")
+    if "keep_out" in t:
+        kw["keep_out"] = _boxes(ctx, t["keep_out"], "[subs] keep_out", size)
+    if "candidates_m" in t:
+        c = t["candidates_m"]
+        if not isinstance(c, list):
+            ctx.fail("[subs] candidates_m", "expected a list of [x, y, z] positions in metres, e.g. [[0.3, 1.7, 0.3]]")
+        pts = []
+        for i, v in enumerate(c):
+            p = ctx.vector(v, f"[subs] candidates_m[{i}]")
+            _check_inside(ctx, f"[subs] candidates_m[{i}]", p, size)
+            pts.append(p)
+        kw["candidates_m"] = tuple(pts)
+    return SubSearch(**kw)
 
 
 def _read_speaker_curve(ctx, key, rfile, base_dir):
@@ -437,15 +581,70 @@ def room_to_toml(room, comment=None, *, original_text=None, position_note=None, 
             for k in ("sensitivity_db", "amplifier_w", "max_spl_db"):
                 if getattr(sp, k) is not None:
                     _set(t, k, _number(getattr(sp, k)))
-        seat = _table(doc, "seat")
-        note = position_note("seat", room.layout.seat_m) if position_note and not original_text else None
-        _set(seat, "position_m", _array(room.layout.seat_m, note))
+            if sp.role != "main" or "role" in t:
+                _set(t, "role", sp.role)
+        if room.layout.seats:
+            _write_seats(doc, room.layout.seats, position_note if not original_text else None)
+        elif "seats" in doc:
+            # a layout with one seat written over a file with [seats.NAME]: the main seat (the
+            # first listed) moves, the others stay
+            first = next(iter(doc["seats"].keys()))
+            _set(doc["seats"][first], "position_m", _array(room.layout.seat_m))
+        else:
+            seat = _table(doc, "seat")
+            note = position_note("seat", room.layout.seat_m) if position_note and not original_text else None
+            _set(seat, "position_m", _array(room.layout.seat_m, note))
     if room.search and "search" not in doc:
         doc["search"] = dict(room.search)
+    if room.subs_search is not None and "subs" not in doc:
+        doc["subs"] = _subs_table(room.subs_search)
     text = tomlkit.dumps(doc)
     if comment:
         text = "".join(f"# {line}".rstrip() + "\n" for line in comment.splitlines()) + "\n" + text
     return text
+
+
+def _write_seats(doc, seats, position_note=None):
+    table = _table(doc, "seats", super_table=True)
+    names = [st.name for st in seats]
+    for old in [k for k in list(table.keys()) if k not in names]:
+        del table[old]
+    for st in seats:
+        if st.name not in table:
+            table[st.name] = tomlkit.table()
+        t = table[st.name]
+        note = position_note(st.name, st.position_m) if position_note else None
+        _set(t, "position_m", _array(st.position_m, note))
+        if st.weight != 1.0 or "weight" in t:
+            _set(t, "weight", _number(st.weight))
+
+
+def _subs_table(ss):
+    """``[subs]`` as a TOML table: the keys whose values differ from the defaults."""
+    default = SubSearch()
+    t = tomlkit.table()
+
+    def box_list(boxes):
+        arr = tomlkit.array()
+        for b in boxes:
+            it = tomlkit.inline_table()
+            it["name"] = b.name
+            it["min_m"] = [_number(v) for v in b.min_m]
+            it["max_m"] = [_number(v) for v in b.max_m]
+            arr.append(it)
+        return arr
+
+    for k in ("counts", "crossover_hz", "band_hz", "max_delay_ms", "max_gain_db", "height_m", "step_m",
+              "wall_gap_m", "wall_band_m"):
+        v = getattr(ss, k)
+        if v != getattr(default, k):
+            t[k] = [_number(x) for x in v] if isinstance(v, tuple) else _number(v)
+    for k in ("regions", "keep_out"):
+        if getattr(ss, k):
+            t[k] = box_list(getattr(ss, k))
+    if ss.candidates_m:
+        t["candidates_m"] = [[_number(x) for x in p] for p in ss.candidates_m]
+    return t
 
 
 def write_text_atomic(path, text, overwrite=False):

@@ -32,7 +32,11 @@ __all__ = [
     "WALL_AXIS",
     "Surface",
     "Speaker",
+    "Seat",
     "Layout",
+    "SubSearch",
+    "Box",
+    "ROLES",
     "Room",
     "speed_of_sound",
 ]
@@ -50,6 +54,8 @@ MAX_DIMENSION_M = 100.0
 MIN_DIMENSION_M = 0.5
 #: Speakers and the seat must be at least this far from every surface, m.
 WALL_MARGIN_M = 0.02
+#: What a speaker does: a full-range "main" or a "sub" (subwoofer, fed the bass only).
+ROLES = ("main", "sub")
 
 
 def speed_of_sound(temperature_c=20.0):
@@ -131,7 +137,9 @@ class Speaker:
     amplifier_w : float or None
         Amplifier power per channel, watts.
     max_spl_db : float or None
-        Maker's maximum SPL at 1 m, dB.
+        Maker's maximum SPL at 1 m, dB (for a sub: its maximum output).
+    role : str
+        "main" (full range, the default) or "sub" (a subwoofer); see :data:`ROLES`.
     """
 
     name: str
@@ -143,10 +151,95 @@ class Speaker:
     sensitivity_db: float | None = None
     amplifier_w: float | None = None
     max_spl_db: float | None = None
+    role: str = "main"
 
     def moved(self, position_m):
         """The same speaker at another position."""
         return replace(self, position_m=tuple(float(v) for v in position_m))
+
+    @property
+    def is_sub(self):
+        """True for a subwoofer."""
+        return self.role == "sub"
+
+
+@dataclass(frozen=True)
+class Seat:
+    """One listening position and how much it counts.
+
+    Attributes
+    ----------
+    name : str
+    position_m : tuple of float
+        Ear position (x, y, z), metres.
+    weight : float
+        Relative weight (>= 0) in seat-averaged figures; weights need not sum to 1.
+    """
+
+    name: str
+    position_m: tuple
+    weight: float = 1.0
+
+
+@dataclass(frozen=True)
+class Box:
+    """An axis-aligned box (a region allowed to subs, or a keep-out), metres."""
+
+    name: str
+    min_m: tuple
+    max_m: tuple
+
+    def contains(self, points_m):
+        """Boolean mask of the points (..., 3) inside the box (edges included)."""
+        p = np.asarray(points_m, dtype=float)
+        return np.all((p >= np.asarray(self.min_m)) & (p <= np.asarray(self.max_m)), axis=-1)
+
+
+@dataclass(frozen=True)
+class SubSearch:
+    """Constraints of the subwoofer search (the room file's ``[subs]`` table).
+
+    Attributes
+    ----------
+    counts : tuple of int
+        How many subs to consider (each of 1, 2, 4).
+    crossover_hz : tuple of float
+        (low, high) range searched for the crossover frequency, Hz.
+    max_delay_ms : float
+        Largest delay the DSP can add to a sub (or to the mains), ms.
+    max_gain_db : float
+        Largest boost of a sub's level, dB (cuts are not limited).
+    height_m : float
+        Woofer-centre height of the candidate positions that regions generate, m.
+    step_m : float
+        Grid step of the candidate positions inside the regions, m.
+    wall_gap_m : float
+        Distance of the woofer centre from the walls on the grid, m.
+    regions : tuple of Box
+        Where subs may go; empty means along the walls (within ``wall_band_m`` of a side,
+        front or back wall).
+    wall_band_m : float
+        Width of the default band along the walls, m.
+    candidates_m : tuple of tuple
+        Extra candidate positions given one by one, m.
+    keep_out : tuple of Box
+        Boxes no sub may enter.
+    band_hz : tuple of float
+        Frequency band the score is computed over, Hz.
+    """
+
+    counts: tuple = (1, 2, 4)
+    crossover_hz: tuple = (50.0, 120.0)
+    max_delay_ms: float = 20.0
+    max_gain_db: float = 6.0
+    height_m: float = 0.3
+    step_m: float = 0.25
+    wall_gap_m: float = 0.2
+    regions: tuple = ()
+    wall_band_m: float = 0.8
+    candidates_m: tuple = ()
+    keep_out: tuple = ()
+    band_hz: tuple = (20.0, 160.0)
 
 
 @dataclass(frozen=True)
@@ -157,14 +250,41 @@ class Layout:
     ----------
     speakers : tuple of Speaker
     seat_m : tuple of float
-        Listening position (ear height), metres.
+        Listening position (ear height), metres: the main seat.
     name : str
         "file" for the room file's own layout, or a preset name.
+    seats : tuple of Seat
+        All listening positions when the file lists several (``[seats.NAME]``), the main
+        seat first; empty when there is one seat (``[seat]``). Use :attr:`all_seats`.
+
+    Notes
+    -----
+    ``speakers`` holds every speaker, mains first and subs after them (the room file puts
+    them in that order), so code that takes the first two as the stereo pair keeps working;
+    :attr:`mains` and :attr:`subs` tell them apart.
     """
 
     speakers: tuple
     seat_m: tuple
     name: str = "file"
+    seats: tuple = ()
+
+    @property
+    def mains(self):
+        """The full-range speakers (role "main")."""
+        return tuple(s for s in self.speakers if not s.is_sub)
+
+    @property
+    def subs(self):
+        """The subwoofers (role "sub")."""
+        return tuple(s for s in self.speakers if s.is_sub)
+
+    @property
+    def all_seats(self):
+        """Every seat with its weight, the main seat first; the single seat as one."""
+        if self.seats:
+            return tuple(self.seats)
+        return (Seat("seat", tuple(self.seat_m), 1.0),)
 
     @property
     def source_positions_m(self):
@@ -190,6 +310,8 @@ class Room:
         The room file's raw ``[search]`` table (placement constraints), if any.
     source : str or None
         The file the room was read from.
+    subs_search : SubSearch or None
+        The room file's ``[subs]`` table (subwoofer search constraints), if any.
     """
 
     name: str
@@ -199,6 +321,12 @@ class Room:
     layout: Layout | None = None
     search: dict = field(default_factory=dict)
     source: str | None = None
+    subs_search: SubSearch | None = None
+
+    @property
+    def seats(self):
+        """Every seat with its weight (:attr:`Layout.all_seats`); empty without a layout."""
+        return () if self.layout is None else self.layout.all_seats
 
     @property
     def speed_of_sound(self):
