@@ -18,7 +18,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ..model.room import MAX_DIMENSION_M, MIN_DIMENSION_M, WALL_MARGIN_M, WALLS, Layout, Room, Speaker, Surface
+from ..model.placement import search_space
+from ..model.room import MAX_DIMENSION_M, MIN_DIMENSION_M, WALL_MARGIN_M, WALLS, Cabinet, Layout, Room, Speaker, Surface
 
 __all__ = ["RoomFileError", "load_room", "parse_room", "room_to_toml", "demo_room_path",
            "example_rooms", "write_text_atomic"]
@@ -27,7 +28,7 @@ __all__ = ["RoomFileError", "load_room", "parse_room", "room_to_toml", "demo_roo
 _TOP_KEYS = {"room", "surfaces", "speakers", "seat", "search", "format"}
 _ROOM_KEYS = {"name", "size_m", "temperature_c"}
 _SPEAKER_KEYS = {"position_m", "lowcut_hz", "lowcut_order", "response_file", "sensitivity_db",
-                 "amplifier_w", "max_spl_db"}
+                 "amplifier_w", "max_spl_db", "cabinet_m", "woofer_on_face_m", "tweeter_on_face_m"}
 _SEAT_KEYS = {"position_m"}
 _SURFACE_TABLE_KEYS = {"absorption", "bands_hz", "material"}
 
@@ -219,6 +220,9 @@ def parse_room(data, name="<room>", base_dir=None):
                           ("max_spl_db", 60.0, 150.0)):
             if k in st:
                 extra[k] = ctx.number(st[k], f"{key} {k}", lo, hi)
+        cabinet = _parse_cabinet(ctx, key, st)
+        if cabinet is not None:
+            extra["cabinet"] = cabinet
         speakers.append(Speaker(sname, pos, lowcut, int(order), response, rfile, **extra))
     for a in range(len(speakers)):
         for b in range(a + 1, len(speakers)):
@@ -249,7 +253,40 @@ def parse_room(data, name="<room>", base_dir=None):
     search = data.get("search", {})
     if not isinstance(search, dict):
         ctx.fail("[search]", "must be a table")
-    return Room(room_name, size, surfaces, temp, layout, search, str(name))
+    room = Room(room_name, size, surfaces, temp, layout, search, str(name))
+    try:  # the placement constraints are checked now, not when a search first reads them
+        search_space(room)
+    except ValueError as exc:
+        raise RoomFileError(str(exc)) from None
+    return room
+
+
+def _parse_cabinet(ctx, key, st):
+    """The speaker's box from ``cabinet_m``, ``woofer_on_face_m`` and ``tweeter_on_face_m``."""
+    if "cabinet_m" not in st:
+        for k in ("woofer_on_face_m", "tweeter_on_face_m"):
+            if k in st:
+                ctx.fail(f"{key} {k}", "needs cabinet_m = [width, height, depth] (metres) beside it")
+        return None
+    v = st["cabinet_m"]
+    if not isinstance(v, list) or len(v) != 3:
+        ctx.fail(f"{key} cabinet_m", f"expected [width, height, depth] in metres, e.g. [0.2, 0.32, 0.25], got {v!r}")
+    size = tuple(ctx.number(x, f"{key} cabinet_m[{i}]", 0.05, 2.5) for i, x in enumerate(v))
+    faces = {}
+    for k in ("woofer_on_face_m", "tweeter_on_face_m"):
+        if k not in st:
+            if k == "woofer_on_face_m":
+                ctx.fail(f"{key} woofer_on_face_m", "missing; give [across, up] in metres: the woofer centre's "
+                         "offset from the front face's vertical centre line (positive toward the listener's axis) "
+                         "and its height above the box's bottom, e.g. [0.0, 0.1]")
+            continue
+        w = st[k]
+        if not isinstance(w, list) or len(w) != 2:
+            ctx.fail(f"{key} {k}", f"expected [across, up] in metres, e.g. [0.0, 0.1], got {w!r}")
+        across = ctx.number(w[0], f"{key} {k}[0]", -size[0] / 2, size[0] / 2)
+        up = ctx.number(w[1], f"{key} {k}[1]", 0.0, size[1])
+        faces[k] = (across, up)
+    return Cabinet(size, faces["woofer_on_face_m"], faces.get("tweeter_on_face_m"))
 
 
 def _read_speaker_curve(ctx, key, rfile, base_dir):
@@ -341,6 +378,12 @@ def room_to_toml(room, comment=None):
             for k in ("sensitivity_db", "amplifier_w", "max_spl_db"):
                 if getattr(sp, k) is not None:
                     lines.append(f"{k} = {_fmt(float(getattr(sp, k)))}")
+            if sp.cabinet is not None:
+                cab = sp.cabinet
+                lines.append("cabinet_m = [" + ", ".join(_fmt(float(x)) for x in cab.size_m) + "]   # width, height, depth")
+                lines.append("woofer_on_face_m = [" + ", ".join(_fmt(float(x)) for x in cab.woofer_m) + "]")
+                if cab.tweeter_m is not None:
+                    lines.append("tweeter_on_face_m = [" + ", ".join(_fmt(float(x)) for x in cab.tweeter_m) + "]")
         lines += ["", "[seat]", "position_m = [" + ", ".join(f"{v:.3f}" for v in room.layout.seat_m) + "]"]
     if room.search:
         lines += ["", "[search]"]
