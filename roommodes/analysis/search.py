@@ -848,7 +848,7 @@ def _choose_step(room, space, flop_per_pair):
     return step, _coarse_plan(room, space, step)
 
 
-def _coarse_pass(scorer, plan, keep_per_seat, progress):
+def _coarse_pass(scorer, plan, keep_per_seat, progress, distinct_m=0.0):
     """Score every candidate of the plan by the first four parts; keep the best per seat."""
     vecs, s4s, n_cand = [], [], 0
     mirror = scorer.mirror_rows()
@@ -885,8 +885,16 @@ def _coarse_pass(scorer, plan, keep_per_seat, progress):
                                  mismatch_ms=mm[li, ri])
         s4 = scorer.base_score(parts)
         n_cand += s4.size
-        top = np.argsort(s4)[:keep_per_seat]
-        v = np.concatenate([left[li[top]], right[ri[top]], np.repeat(seat[None], top.size, axis=0)], axis=1)
+        v = np.concatenate([left[li], right[ri], np.repeat(seat[None], li.size, axis=0)], axis=1)
+        # the best of this seat, and the best of those that differ from them (so that a
+        # fixed seat still yields distinct layouts)
+        order = np.argsort(s4)
+        top = order[:keep_per_seat]
+        if distinct_m > 0:
+            head = order[:4000]
+            spread = head[np.array(_distinct(v[head], s4[head], distinct_m, limit=keep_per_seat), dtype=int)]
+            top = np.union1d(top, spread)
+        v = v[top]
         vecs.append(v)
         s4s.append(s4[top])
         if progress:
@@ -1111,7 +1119,7 @@ def search_layouts(room, space=None, weights=None, band_hz=None, top=5, points_p
     def report(lo, hi):
         return (lambda i, n: progress(lo + (hi - lo) * i / max(n, 1))) if progress else None
 
-    vecs, s4, n_cand = _coarse_pass(scorer, plan, max(32, 4 * top), report(0.0, 0.6))
+    vecs, s4, n_cand = _coarse_pass(scorer, plan, max(32, 4 * top), report(0.0, 0.6), space.distinct_m)
     pool = np.array(_distinct(vecs, s4, max(space.distinct_m, step), limit=max(3 * top, 12)))
     _, full_pool = scorer.score_vecs(vecs[pool])
     if progress:
