@@ -205,10 +205,25 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
             click.echo(_row("file", res.current, PARTS))
         for s in res.presets:
             click.echo(_row(s.name, s, PARTS))
-        ref = min([s.score for s in res.presets] + ([res.current.score] if res.current is not None else []))
+        others = list(res.presets) + ([res.current] if res.current is not None else [])
+        inside = [s for s in others if s.in_region]
         click.echo("")
-        click.echo(f"The best layout scores {best.score:.2f} dB, {ref - best.score:.2f} dB better than the best of the "
-                   "file's layout and the standard placements.")
+        if inside:
+            ref = min(inside, key=lambda s: s.score)
+            gain = ref.score - best.score
+            click.echo(f"The best layout scores {best.score:.2f} dB, {abs(gain):.2f} dB "
+                       f"{'better' if gain >= 0 else 'worse'} than the best of the file's layout and the standard "
+                       "placements that meet the constraints"
+                       f" ({'the file' if ref is res.current else ref.name}, {ref.score:.2f} dB).")
+        else:
+            click.echo(f"The best layout scores {best.score:.2f} dB; neither the file's layout nor any standard "
+                       "placement meets the constraints.")
+        lower = [s for s in others if not s.in_region and s.score < best.score]
+        if lower:
+            s_ = min(lower, key=lambda s: s.score)
+            click.echo(f"{'The file' if s_ is res.current else 'The ' + s_.name} layout scores lower ({s_.score:.2f} dB) "
+                       "but breaks the [search] constraints (box clearance, ear height, spacing or triangle); "
+                       "relax them in [search] if it is what you want.")
         if len(res.ranked) < top:
             click.echo(f"Only {len(res.ranked)} layouts {space.distinct_m * 100:.0f} cm or more apart fit the region.")
         for other, label in ([(res.current, "the file's layout")] if res.current is not None else []) + \
