@@ -891,7 +891,7 @@ def _coarse_pass(scorer, plan, keep_per_seat, progress, distinct_m=0.0):
         order = np.argsort(s4)
         top = order[:keep_per_seat]
         if distinct_m > 0:
-            head = order[:4000]
+            head = order[:1000]
             spread = head[np.array(_distinct(v[head], s4[head], distinct_m, limit=keep_per_seat), dtype=int)]
             top = np.union1d(top, spread)
         v = v[top]
@@ -1006,10 +1006,17 @@ def _polish(scorer, cons, vecs, scores):
         v, _, ok = _line(cons, out[i], d)
         if ok.sum() < 2:
             continue
-        _, full = scorer.score_vecs(v[ok])
+        v = v[ok]
+        # robustness is never negative: only points whose other parts already beat the
+        # current score can beat it in full
+        p4, _ = scorer.score_vecs(v, robustness=False)
+        cand = v[scorer.base_score(p4) < out_s[i] - 1e-12]
+        if cand.shape[0] == 0:
+            continue
+        _, full = scorer.score_vecs(cand)
         j = int(np.argmin(full))
         if full[j] < out_s[i] - 1e-12:
-            out[i], out_s[i] = v[ok][j], full[j]
+            out[i], out_s[i] = cand[j], full[j]
     return out, out_s
 
 
@@ -1023,9 +1030,10 @@ def layout_distance_m(a, b):
 def _distinct(vecs, scores, min_m, limit=None):
     """Indices of layouts, best first, each at least ``min_m`` (:func:`layout_distance_m`)
     from every better one kept."""
+    v = np.asarray(vecs, dtype=float)
     kept = []
     for i in np.argsort(scores, kind="stable"):
-        if all(layout_distance_m(vecs[i], vecs[j]) >= min_m - 1e-9 for j in kept):
+        if not kept or np.min(layout_distance_m(v[kept], v[i])) >= min_m - 1e-9:
             kept.append(int(i))
             if limit is not None and len(kept) >= limit:
                 break

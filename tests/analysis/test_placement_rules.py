@@ -14,6 +14,7 @@ Check values and their sources:
 
 from __future__ import annotations
 
+import re
 from dataclasses import replace
 from pathlib import Path
 
@@ -24,6 +25,7 @@ from roommodes import demo_room_path, load_room, log_frequencies
 from roommodes.analysis.correction import correct_curve
 from roommodes.analysis.levels import speaker_levels
 from roommodes.analysis.search import (
+    ScoredLayout,
     _Constraints,
     area_offsets,
     flatness_db,
@@ -33,6 +35,7 @@ from roommodes.analysis.search import (
     score_layouts,
     search_layouts,
     search_space,
+    why_it_wins,
 )
 from roommodes.io.roomfile import RoomFileError, parse_room
 from roommodes.model.placement import PRESETS, cabinet_corners, preset_layout
@@ -219,3 +222,21 @@ def test_search_table_is_checked_when_the_file_is_read(table, message):
             "search": table}
     with pytest.raises(RoomFileError, match=r"^x\.toml: " + message):
         parse_room(data, "x.toml")
+
+
+def test_one_sentence_says_why_a_spikier_layout_wins():
+    # the case: the winner's raw flatness 4.05 dB against 3.95 dB for the current layout
+    lay = DEMO.layout
+    w = {"flatness": 1.0, "mismatch": 1.0, "area": 1.0, "boost": 0.25, "robustness": 1.0}
+    best = ScoredLayout("1", lay, 6.0, {"flatness": 2.0, "mismatch": 0.0, "area": 1.8, "boost": 2.0,
+                                        "robustness": 1.7}, True, {"flatness_raw": 4.05})
+    cur = ScoredLayout("file", lay, 8.0, {"flatness": 2.1, "mismatch": 0.0, "area": 3.0, "boost": 4.0,
+                                          "robustness": 1.9}, True, {"flatness_raw": 3.95})
+    text = why_it_wins(best, cur, w)
+    assert text.endswith(".") and not re.search(r"\.\s+[A-Z]", text)  # one sentence
+    assert "4.05 against 3.95 dB" in text and "varies less over the listening area (1.80 against 3.00 dB)" in text
+    # the largest weighted gain comes first: area (1.2) before boost (0.5) and robustness (0.2)
+    assert text.index("listening area") < text.index("less boost") < text.index("5 cm")
+    assert why_it_wins(cur, best, w) is None  # does not score better
+    smooth = replace(best, figures={"flatness_raw": 3.0})
+    assert why_it_wins(smooth, cur, w) is None  # its raw curve is not spikier: nothing to explain
