@@ -218,6 +218,9 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
         else:
             click.echo(f"The best layout scores {best.score:.2f} dB; neither the file's layout nor any standard "
                        "placement meets the constraints.")
+        if res.current is not None and not res.current.in_region:
+            click.echo(f"Against the room file's own layout ({res.current.score:.2f} dB, outside the constraints): "
+                       f"{res.current.score - best.score:.2f} dB better.")
         lower = [s for s in others if not s.in_region and s.score < best.score]
         if lower:
             s_ = min(lower, key=lambda s: s.score)

@@ -81,6 +81,7 @@ def _absorbent_room():
     return parse_room(data, "absorbent.toml")
 
 
+@pytest.mark.slow
 def test_winner_beats_the_presets_on_the_image_source_solver():
     room = _absorbent_room()
     res = search_layouts(room, top=1)

@@ -72,6 +72,7 @@ def _deep_box_room(**search):
     return replace(DEMO, layout=Layout(tuple(sp), DEMO.layout.seat_m), search={"step_m": 0.1, **search})
 
 
+@pytest.mark.slow
 def test_boxes_clear_the_front_wall_and_stay_out_of_keep_outs():
     desk = {"name": "cupboard", "min_m": [0.0, 0.0, 0.0], "max_m": [0.6, 0.9, 2.0]}
     room = _deep_box_room(rear_clearance_m=0.15, keep_out=[desk])
@@ -109,6 +110,7 @@ def test_a_woofer_clear_of_the_wall_whose_box_is_not_is_refused():
     assert not cons.valid(v)[0]
 
 
+@pytest.mark.slow
 def test_listening_triangle_and_ear_height_hold_for_every_result(demo_result):
     space = search_space(DEMO)
     for s in demo_result.ranked:
@@ -145,6 +147,7 @@ def demo_result():
     return search_layouts(DEMO)
 
 
+@pytest.mark.slow
 def test_results_are_distinct(demo_result):
     space = search_space(DEMO)
     vecs = [np.concatenate([*[sp.position_m for sp in s.layout.speakers], s.layout.seat_m])
@@ -155,6 +158,7 @@ def test_results_are_distinct(demo_result):
             assert layout_distance_m(vecs[i], vecs[j]) >= space.distinct_m - 1e-9
 
 
+@pytest.mark.slow
 def test_the_winner_is_the_lowest_allowed_point_of_its_sweep(demo_result):
     best = demo_result.ranked[0]
     space = search_space(DEMO)
@@ -167,6 +171,7 @@ def test_the_winner_is_the_lowest_allowed_point_of_its_sweep(demo_result):
         assert (~allowed).any()  # the shaded stretch ends somewhere inside the sweep
 
 
+@pytest.mark.slow
 def test_fixed_seat_stays_and_the_pair_is_mirrored_about_it():
     res = search_layouts(BEDROOM, top=3)
     seat = BEDROOM.layout.seat_m
@@ -184,6 +189,7 @@ def test_fixed_seat_stays_and_the_pair_is_mirrored_about_it():
     assert a[1] + b[1] == pytest.approx(2 * DEMO.layout.seat_m[1])
 
 
+@pytest.mark.slow
 def test_eq_proxy_follows_the_real_eq_design():
     # The search's stand-in for the EQ against the package's parametric design, on the same
     # levels (the power mean over the listening area; the levels at its points as the
