@@ -17,6 +17,7 @@ import numpy as np
 from ..dsp.response import level_db as _level_db
 from ..dsp.response import log_frequencies, smooth_fractional_octave
 from ..model.modes import room_modes
+from ..model.room import SubSearch
 from ..solvers import DEFAULT_METHOD
 from . import eq
 from .levels import speaker_levels
@@ -283,12 +284,18 @@ def correct_prediction(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, a
         extra = [lv_moved[k] for k, (name, _) in enumerate(moved) if name == sp.name] if moved else []
         neighbours = np.array(list(levels[1 + nh:]) + extra) if (len(levels) > 1 + nh or extra) else None
         kw = dict(lowcut_hz=sp.lowcut_hz, lowcut_order=sp.lowcut_order if sp.lowcut_hz else None, speaker=sp)
+        info = dict(room_info)
+        if sp.role == "sub" and info.get("band_hz") is None:
+            # a subwoofer plays only below its crossover: correct it there, not up to the
+            # Schroeder frequency (the top of the crossover range the sub search may choose)
+            top = min(schroeder, (room.subs_search or SubSearch()).crossover_hz[1])
+            info["band_hz"] = default_band(sp.lowcut_hz, top, room_info["lowest_mode_hz"])
         if area_m is not None:
             mean = 10.0 * np.log10(np.maximum(np.mean(np.abs(lv.transfer[i, 1:1 + nh]) ** 2, axis=0), 1e-30))
             out.append(correct_curve(sp.name, f, mean, neighbour_levels_db=levels[1:1 + nh],
-                                     position_levels_db=levels[1:1 + nh], seat_weight=1.0, **kw, **room_info))
+                                     position_levels_db=levels[1:1 + nh], seat_weight=1.0, **kw, **info))
         else:
             out.append(correct_curve(sp.name, f, levels[0], neighbour_levels_db=neighbours,
-                                     position_levels_db=levels[1:1 + nh] if nh else None, **kw, **room_info))
+                                     position_levels_db=levels[1:1 + nh] if nh else None, **kw, **info))
     pred = Prediction(f, tuple(channels), tuple(layout.seat_m), layout.name, method, schroeder, f <= schroeder)
     return out, pred

@@ -40,12 +40,20 @@ defaults and units); :func:`search_space` reads them.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from ..dsp.response import log_frequencies, smooth_fractional_octave
-from ..model.placement import PRESETS, SEAT_HEIGHT_M, preset_layout
+from ..model.placement import (
+    PRESETS,
+    KeepOut,
+    SearchSpace,
+    _where,
+    cabinet_corners,
+    preset_layout,
+    search_space,
+)
 from ..model.room import WALL_MARGIN_M, Layout, Speaker
 from ..model.speaker import speaker_response
 from ..solvers.modal import modal_sum_block, modal_weights, static_green_block, static_green_pairs
@@ -55,7 +63,8 @@ __all__ = [
     "PARTS", "DEFAULT_WEIGHTS", "KeepOut", "SearchSpace", "ScoredLayout", "SearchResult",
     "search_space", "check_weights", "default_band", "flatness_db", "mismatch_db", "area_spread_db",
     "eq_boost_db", "score_parts", "score_layouts", "search_layouts", "seat_score_map",
-    "front_distance_profile", "perturbations", "area_offsets",
+    "front_distance_profile", "perturbations", "area_offsets", "eq_proxy_db", "layout_sweep", "layout_curves",
+    "layout_geometry", "layout_distance_m", "sweep_direction", "why_it_wins", "EQ_MAX_BOOST_DB", "EQ_MAX_CUT_DB",
 ]
 
 #: Names of the score parts, in display order.
@@ -77,229 +86,6 @@ MIN_STEP_M = 0.01
 _SMOOTH_FRACTION = 6  # 1/6 octave for the level curves
 _BROAD_FRACTION = 3  # 1/3 octave for "broad" dips
 _TINY = 1e-30
-
-_SEARCH_KEYS = {
-    "speaker_front_m", "speaker_side_m", "speaker_height_m", "symmetric", "spacing_m", "triangle",
-    "triangle_tolerance", "seat_on_centre_line", "seat_height_m", "seat_front_m", "seat_side_m", "area_m",
-    "area_points", "keep_out", "step_m",
-}
-
-
-# ------------------------------------------------------------------------------ constraints
-@dataclass(frozen=True)
-class KeepOut:
-    """An axis-aligned box no speaker and no seat may enter (a desk, a door swing, a sofa).
-
-    Attributes
-    ----------
-    name : str
-    min_m, max_m : tuple of float
-        Opposite corners (x, y, z), m, ``min_m < max_m`` on every axis.
-    """
-
-    name: str
-    min_m: tuple
-    max_m: tuple
-
-    def contains(self, points_m):
-        """Boolean mask of the points (..., 3) inside the box (edges included)."""
-        p = np.asarray(points_m, dtype=float)
-        return np.all((p >= np.asarray(self.min_m)) & (p <= np.asarray(self.max_m)), axis=-1)
-
-
-@dataclass(frozen=True)
-class SearchSpace:
-    """Where the speakers and the seat may go (see docs/placement.md for every key).
-
-    Distances are of the woofer centre (speakers) or the ear (seat), in metres.
-
-    Attributes
-    ----------
-    speaker_front_m : (float, float)
-        Distance range of the speakers from the front wall.
-    speaker_side_m : (float, float)
-        Distance range of each speaker from its own side wall (left speaker from the left
-        wall, right speaker from the right wall).
-    speaker_height_m : (float, float)
-        Woofer height range.
-    symmetric : bool
-        The pair is mirror-symmetric about the centre line ``y = Ly / 2``.
-    spacing_m : (float, float)
-        Distance range between the two speakers.
-    triangle : bool
-        Each speaker-seat distance equals the spacing within ``triangle_tolerance``.
-    triangle_tolerance : float
-        Allowed relative difference, 0..1.
-    seat_on_centre_line : bool
-        The seat lies on ``y = Ly / 2``.
-    seat_height_m : float
-        Ear height.
-    seat_front_m : (float, float)
-        Distance range of the seat from the front wall.
-    seat_side_m : float
-        Smallest distance of the seat from either side wall (when off the centre line).
-    area_m : (float, float)
-        Listening area, depth (x) by width (y), centred on the seat at ear height.
-    area_points : (int, int)
-        Odd numbers of grid points along x and y (1 = the seat alone).
-    keep_out : tuple of KeepOut
-    step_m : float or None
-        Coarse grid step; None chooses it from :data:`COARSE_STEPS_M` and the budget.
-    """
-
-    speaker_front_m: tuple
-    speaker_side_m: tuple
-    speaker_height_m: tuple
-    symmetric: bool
-    spacing_m: tuple
-    triangle: bool
-    triangle_tolerance: float
-    seat_on_centre_line: bool
-    seat_height_m: float
-    seat_front_m: tuple
-    seat_side_m: float
-    area_m: tuple
-    area_points: tuple
-    keep_out: tuple = ()
-    step_m: float | None = None
-
-
-def default_space(room):
-    """The documented defaults of every ``[search]`` key for ``room`` (see docs/placement.md)."""
-    lx, ly, lz = room.size_m
-    return SearchSpace(
-        speaker_front_m=(0.2, round(0.4 * lx, 2)),
-        speaker_side_m=(0.25, round(ly / 2, 2)),
-        speaker_height_m=(0.7, round(min(1.5, lz - 0.3), 2)),
-        symmetric=True,
-        spacing_m=(1.0, round(min(3.0, ly - 0.5), 2)),
-        triangle=True,
-        triangle_tolerance=0.15,
-        seat_on_centre_line=True,
-        seat_height_m=min(SEAT_HEIGHT_M, lz - 0.3),
-        seat_front_m=(1.0, round(lx - 0.5, 2)),
-        seat_side_m=0.6,
-        area_m=(0.6, 0.6),
-        area_points=(3, 3),
-    )
-
-
-def _where(room):
-    return f"{room.source or room.name}: [search]"
-
-
-def search_space(room, table=None):
-    """Read the placement constraints from a ``[search]`` table, with defaults.
-
-    Parameters
-    ----------
-    room : Room
-    table : dict, optional
-        The table; default ``room.search`` (the room file's own).
-
-    Returns
-    -------
-    SearchSpace
-
-    Raises
-    ------
-    ValueError
-        Naming the key, the value and what is allowed.
-    """
-    t = dict(room.search if table is None else table)
-    where = _where(room)
-    for k in t:
-        if k not in _SEARCH_KEYS:
-            raise ValueError(f"{where} unknown key '{k}'; allowed: {', '.join(sorted(_SEARCH_KEYS))}")
-    base = default_space(room)
-    lx, ly, lz = room.size_m
-    m = WALL_MARGIN_M
-
-    def number(key, value, lo, hi):
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-            raise ValueError(f"{where} {key}: expected a number, got {value!r}")
-        if not lo <= value <= hi:
-            raise ValueError(f"{where} {key}: {value:g} is out of range; allowed {lo:g} to {hi:g}")
-        return float(value)
-
-    def rng(key, lo_ok, hi_ok, what):
-        if key not in t:
-            return getattr(base, key)
-        v = t[key]
-        if not isinstance(v, list) or len(v) != 2:
-            raise ValueError(f"{where} {key}: expected [low, high] in metres, got {v!r}")
-        lo, hi = (number(key, x, -1e9, 1e9) for x in v)
-        if lo > hi:
-            raise ValueError(f"{where} {key}: the range {lo:g}-{hi:g} m is empty (low > high)")
-        if lo < lo_ok or hi > hi_ok:
-            raise ValueError(f"{where} {key}: {lo:g}-{hi:g} m reaches outside the room; {what} must lie "
-                             f"within {lo_ok:g}-{hi_ok:g} m")
-        return (lo, hi)
-
-    def flag(key):
-        if key not in t:
-            return getattr(base, key)
-        if not isinstance(t[key], bool):
-            raise ValueError(f"{where} {key}: expected true or false, got {t[key]!r}")
-        return t[key]
-
-    front = rng("speaker_front_m", m, lx - m, f"the speakers' distance from the front wall (room length {lx:g} m)")
-    side = rng("speaker_side_m", m, ly / 2, f"a speaker's distance from its side wall (half the width, {ly / 2:g} m)")
-    height = rng("speaker_height_m", m, lz - m, f"the woofer height (room height {lz:g} m)")
-    spacing = rng("spacing_m", 0.1, ly + lx, "the spacing")
-    seat_front = rng("seat_front_m", m, lx - m, f"the seat's distance from the front wall (room length {lx:g} m)")
-    tol = number("triangle_tolerance", t["triangle_tolerance"], 0.0, 1.0) if "triangle_tolerance" in t \
-        else base.triangle_tolerance
-    seat_h = number("seat_height_m", t["seat_height_m"], m, lz - m) if "seat_height_m" in t else base.seat_height_m
-    seat_side = number("seat_side_m", t["seat_side_m"], m, ly / 2) if "seat_side_m" in t else base.seat_side_m
-    area = base.area_m
-    if "area_m" in t:
-        v = t["area_m"]
-        if not isinstance(v, list) or len(v) != 2:
-            raise ValueError(f"{where} area_m: expected [depth, width] in metres, got {v!r}")
-        area = (number("area_m", v[0], 0.0, lx), number("area_m", v[1], 0.0, ly))
-    points = base.area_points
-    if "area_points" in t:
-        v = t["area_points"]
-        if not isinstance(v, list) or len(v) != 2 or not all(isinstance(x, int) and not isinstance(x, bool) for x in v):
-            raise ValueError(f"{where} area_points: expected two whole numbers [along x, along y], got {v!r}")
-        if any(x < 1 or x > 9 or x % 2 == 0 for x in v):
-            raise ValueError(f"{where} area_points: {v} not allowed; use odd numbers 1 to 9 so the seat is a point "
-                             "of the grid")
-        points = tuple(v)
-    step = None
-    if "step_m" in t:
-        step = number("step_m", t["step_m"], 0.02, 1.0)
-    keep = []
-    ko = t.get("keep_out", [])
-    if not isinstance(ko, list):
-        raise ValueError(f"{where} keep_out: expected a list of boxes, e.g. "
-                         "[{ name = \"desk\", min_m = [0.3, 0.8, 0], max_m = [1.1, 2.6, 0.75] }]")
-    for i, box in enumerate(ko):
-        key = f"keep_out[{i}]"
-        if not isinstance(box, dict) or not {"min_m", "max_m"} <= set(box) \
-                or not set(box) <= {"name", "min_m", "max_m"}:
-            raise ValueError(f"{where} {key}: a box needs min_m and max_m ([x, y, z] in metres) and may have a name")
-        corners = []
-        for c in ("min_m", "max_m"):
-            v = box[c]
-            if not isinstance(v, list) or len(v) != 3:
-                raise ValueError(f"{where} {key}.{c}: expected [x, y, z] in metres, got {v!r}")
-            corners.append(tuple(number(f"{key}.{c}", x, -1e9, 1e9) for x in v))
-        if any(a >= b for a, b in zip(*corners)):
-            raise ValueError(f"{where} {key}: min_m {list(corners[0])} must be below max_m {list(corners[1])} "
-                             "on every axis")
-        keep.append(KeepOut(str(box.get("name", f"box {i + 1}")), corners[0], corners[1]))
-    space = SearchSpace(front, side, height, flag("symmetric"), spacing, flag("triangle"), tol,
-                        flag("seat_on_centre_line"), seat_h, seat_front, seat_side, area, points, tuple(keep), step)
-    for i, x in enumerate((area[0] / 2, area[1] / 2)):
-        lim = (seat_front[0], lx - seat_front[1]) if i == 0 else (
-            (ly / 2, ly / 2) if space.seat_on_centre_line else (seat_side, seat_side))
-        if x > min(lim) - m:
-            raise ValueError(f"{where} area_m: a listening area {area[0]:g} x {area[1]:g} m around the seat would "
-                             "reach a wall from the allowed seat positions; make it smaller or move seat_front_m")
-    return space
-
 
 def check_weights(weights):
     """Full weights (defaults for the parts not given), validated.
@@ -464,8 +250,66 @@ def eq_boost_db(freq_hz, level_db, band_hz):
     return np.maximum(0.0, np.max(trend - broad, axis=-1))
 
 
+#: Largest boost and cut of the EQ proxy, dB: the correction's default boost limit
+#: (:func:`roommodes.analysis.correction.correct_curve`, 6 dB) and a cut limit of our choice.
+EQ_MAX_BOOST_DB = 6.0
+EQ_MAX_CUT_DB = 15.0
+
+
+def _proxy_from_smoothed(level3_db, proj, points3_db=None):
+    """Correction toward the line of ``level3_db`` (..., Fb): cuts follow the mean; a boost
+    is only as large as the shortfall every point (..., A, Fb) shares."""
+    trend = level3_db - level3_db @ proj
+    corr = trend - level3_db
+    if points3_db is not None:
+        short = trend[..., None, :] - points3_db
+        corr = np.where(corr > 0, np.clip(np.min(short, axis=-2), 0.0, None),
+                        0.5 * (corr + np.clip(np.max(short, axis=-2), None, 0.0)))
+    return np.clip(corr, -EQ_MAX_CUT_DB, EQ_MAX_BOOST_DB)
+
+
+def eq_proxy_db(freq_hz, levels_db, band_hz):
+    """The correction the search assumes a layout gets: a fast stand-in for the EQ design.
+
+    Parameters
+    ----------
+    freq_hz : array_like (F,)
+        Log-spaced grid, Hz, reaching 1/6 octave beyond the band.
+    levels_db : array_like (..., A, F)
+        Unsmoothed levels of one channel at the A points of the listening area, dB.
+    band_hz : (float, float)
+        Band corrected, Hz.
+
+    Returns
+    -------
+    ndarray (..., Fb)
+        Correction at the band's grid frequencies, dB (positive: boost).
+
+    Notes
+    -----
+    The EQ is designed, as :func:`roommodes.analysis.correction.correct_prediction` does
+    with a listening area, on the power average over the area; it follows that average
+    smoothed over 1/3 octave (what a handful of broad filters can follow; narrow nulls are
+    filled in by the smoothing and so are not boosted, common practice) toward its
+    least-squares line in log frequency, cutting at most :data:`EQ_MAX_CUT_DB` and
+    boosting only where every point of the area falls short of the line, by the smallest
+    of those shortfalls and at most :data:`EQ_MAX_BOOST_DB` (a boost must help at every
+    head position, not only on average). One correction per channel applies at every
+    point of the area. tests/analysis/test_search_eq.py holds it to the real parametric
+    design for several layouts.
+    """
+    f = np.asarray(freq_hz, dtype=float)
+    sel = _band_mask(f, band_hz)
+    p3 = smooth_fractional_octave(f, 10 ** (np.asarray(levels_db, dtype=float) / 10), _BROAD_FRACTION)[..., sel]
+    m3 = 10 * np.log10(np.maximum(np.mean(p3, axis=-2), _TINY))
+    return _proxy_from_smoothed(m3, _line_projection(f[sel]), 10 * np.log10(np.maximum(p3, _TINY)))
+
+
 def score_parts(freq_hz, left_db, right_db, band_hz, seat_index=None):
     """The first four score parts from the two channels' levels over the listening area.
+
+    Written plainly (one channel, one layout at a time) from the part functions above; the
+    batched scorer of the search is held to it.
 
     Parameters
     ----------
@@ -481,18 +325,29 @@ def score_parts(freq_hz, left_db, right_db, band_hz, seat_index=None):
     Returns
     -------
     dict
-        ``flatness``, ``mismatch``, ``area``, ``boost`` in dB.
+        ``flatness`` (after each channel's EQ, :func:`eq_proxy_db`), ``mismatch`` (after
+        EQ), ``area``, ``boost`` (the EQ's largest boost) and the unweighted
+        ``flatness_raw`` (before EQ), in dB.
     """
     left = np.atleast_2d(left_db)
     right = np.atleast_2d(right_db)
     i = left.shape[0] // 2 if seat_index is None else seat_index
-    fl = flatness_db(freq_hz, np.stack([left[i], right[i]]), band_hz)
-    ar = area_spread_db(freq_hz, np.stack([left, right]), band_hz)
+    f = np.asarray(freq_hz, dtype=float)
+    sel = _band_mask(f, band_hz)
+    after, boost = [], []
+    for lv in (left, right):
+        corr = eq_proxy_db(f, lv, band_hz)
+        after.append(_smoothed_db(f, lv[i], _SMOOTH_FRACTION)[sel] + corr)
+        boost.append(max(0.0, float(np.max(corr))))
+    resid = np.stack(after) @ _line_projection(f[sel])
+    raw = flatness_db(f, np.stack([left[i], right[i]]), band_hz)
+    ar = area_spread_db(f, np.stack([left, right]), band_hz)
     return {
-        "flatness": float(np.sqrt(np.mean(fl**2))),
-        "mismatch": float(mismatch_db(freq_hz, left[i], right[i], band_hz)),
+        "flatness": float(np.sqrt(np.mean(resid**2))),
+        "mismatch": float(np.sqrt(np.mean((after[0] - after[1]) ** 2))),
         "area": float(np.sqrt(np.mean(ar**2))),
-        "boost": float(np.max(eq_boost_db(freq_hz, np.stack([left[i], right[i]]), band_hz))),
+        "boost": max(boost),
+        "flatness_raw": float(np.sqrt(np.mean(raw**2))),
     }
 
 
@@ -597,18 +452,29 @@ class _Scorer:
         return out
 
     # -- score parts from transfers
-    def features(self, h, channel):
-        """Per-source features from transfers ``h`` (..., A, F) of one channel."""
+    def features(self, h, channel, correction_db=None):
+        """Per-source features from transfers ``h`` (..., A, F) of one channel.
+
+        The channel's correction (:func:`eq_proxy_db`) is designed on the power average
+        over the listening area, unless ``correction_db`` (..., Fb) is given: the EQ of the
+        nominal layout, kept when the objects are moved (robustness).
+        """
         power = (h.real**2 + h.imag**2) * self.speaker_power[channel]
         ls = 10 * np.log10(np.maximum(power @ self.smooth6, _TINY))  # (..., A, Fb)
         seat = ls[..., self.seat_row, :]
-        resid = seat @ self.proj
-        broad = 10 * np.log10(np.maximum(power[..., self.seat_row, :] @ self.smooth3, _TINY))
+        if correction_db is None:
+            p3 = power @ self.smooth3
+            mean3 = 10 * np.log10(np.maximum(p3.mean(axis=-2), _TINY))
+            correction_db = _proxy_from_smoothed(mean3, self.proj, 10 * np.log10(np.maximum(p3, _TINY)))
+        after = seat + correction_db
+        resid = after @ self.proj
         return {
-            "seat": seat,
+            "seat": after,
+            "correction": correction_db,
             "flat_ms": np.mean(resid**2, axis=-1),
+            "flat_raw_ms": np.mean((seat @ self.proj) ** 2, axis=-1),
             "area_var": np.mean(np.var(ls, axis=-2), axis=-1),
-            "boost": np.maximum(0.0, np.max(seat - resid - broad, axis=-1)),
+            "boost": np.maximum(0.0, np.max(correction_db, axis=-1)),
         }
 
     def parts(self, fl, fr, mismatch_ms=None):
@@ -618,26 +484,46 @@ class _Scorer:
             "mismatch": np.sqrt(np.maximum(mm, 0.0)),
             "area": np.sqrt(0.5 * (fl["area_var"] + fr["area_var"])),
             "boost": np.maximum(fl["boost"], fr["boost"]),
+            "flatness_raw": np.sqrt(0.5 * (fl["flat_raw_ms"] + fr["flat_raw_ms"])),
         }
 
     def base_score(self, parts):
         return sum(self.weights[k] * parts[k] for k in PARTS[:4])
 
     def score_vecs(self, vecs, robustness=True):
-        """Parts (dict of (K,) arrays, with ``robustness``) and scores (K,) of K layouts."""
+        """Parts (dict of (K,) arrays, with ``robustness`` and the unweighted
+        ``flatness_raw``) and scores (K,) of K layouts."""
         v = np.atleast_2d(np.asarray(vecs, dtype=float))
         h = self.transfer_layouts(v)
-        parts = self.parts(self.features(h[:, 0], 0), self.features(h[:, 1], 1))
+        fl, fr = self.features(h[:, 0], 0), self.features(h[:, 1], 1)
+        parts = self.parts(fl, fr)
         s4 = self.base_score(parts)
         if robustness and self.weights["robustness"] > 0:
             moves = perturbations().reshape(8, 9)
             pv = self.clip_inside(v[:, None, :] + moves[None]).reshape(-1, 9)
             hp = self.transfer_layouts(pv)
-            sp = self.base_score(self.parts(self.features(hp[:, 0], 0), self.features(hp[:, 1], 1)))
+            # the EQ set up for the planned layout stays when the objects land 5 cm off
+            cl, cr = (np.repeat(f["correction"], 8, axis=0) for f in (fl, fr))
+            sp = self.base_score(self.parts(self.features(hp[:, 0], 0, cl), self.features(hp[:, 1], 1, cr)))
             parts["robustness"] = np.mean(np.maximum(0.0, sp.reshape(-1, 8) - s4[:, None]), axis=1)
         else:
             parts["robustness"] = np.zeros(v.shape[0])
         return parts, s4 + self.weights["robustness"] * parts["robustness"]
+
+    def curves(self, vec):
+        """Seat levels of one layout on the band's grid: (freq_hz (Fb,), before (2, Fb),
+        correction (2, Fb), after (2, Fb)), 1/6-octave smoothed, dB."""
+        h = self.transfer_layouts(np.asarray(vec, dtype=float)[None])[0]
+        out = []
+        for c in range(2):
+            power = (h[c].real**2 + h[c].imag**2) * self.speaker_power[c]
+            seat = 10 * np.log10(np.maximum(power[self.seat_row] @ self.smooth6, _TINY))
+            p3 = power @ self.smooth3
+            mean3 = 10 * np.log10(np.maximum(p3.mean(axis=0), _TINY))
+            corr = _proxy_from_smoothed(mean3, self.proj, 10 * np.log10(np.maximum(p3, _TINY)))
+            out.append((seat, corr, seat + corr))
+        b, c_, a = (np.stack([o[i] for o in out]) for i in range(3))
+        return self.freq_hz[self.sel], b, c_, a
 
     def clip_inside(self, vecs):
         size3 = np.tile(self.size, 3)
@@ -658,6 +544,10 @@ class ScoredLayout:
         One value per name of :data:`PARTS`.
     in_region : bool
         Whether the layout satisfies the ``[search]`` constraints.
+    figures : dict
+        Unweighted figures beside the score: ``flatness_raw`` (the flatness part before
+        EQ, dB) and :func:`layout_geometry`'s ``spacing_m``, ``seat_distance_m`` and
+        ``angle_deg``.
     """
 
     name: str
@@ -665,6 +555,7 @@ class ScoredLayout:
     score: float
     parts: dict
     in_region: bool = True
+    figures: dict = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -723,7 +614,7 @@ def _vec(layout):
 
 
 def _layout(vec, speakers, name):
-    v = [round(float(x), 4) for x in vec]
+    v = [round(float(x), 9) for x in vec]
     return Layout((speakers[0].moved(v[0:3]), speakers[1].moved(v[3:6])), tuple(v[6:9]), name)
 
 
@@ -739,13 +630,22 @@ class _Constraints:
         self.room, self.space = room, space
         self.size = np.asarray(room.size_m, dtype=float)
 
+    def height_range(self, side):
+        """Woofer heights of speaker ``side`` (0 left, 1 right): speaker_height_m and the
+        tweeter (or acoustic centre) within ear_height_tolerance_m of the ear."""
+        sp = self.space
+        c = sp.seat_height_m - sp.cabinets[side].centre_above_woofer_m
+        return max(sp.speaker_height_m[0], c - sp.ear_height_tolerance_m), \
+            min(sp.speaker_height_m[1], c + sp.ear_height_tolerance_m)
+
     def speaker_ok(self, p, side):
-        """Region and keep-out test of speaker positions (..., 3); side 0 left, 1 right."""
+        """Region, ear-height and keep-out test of woofer positions (..., 3); side 0 left, 1 right."""
         sp, ly = self.space, self.size[1]
         y_wall = p[..., 1] if side == 0 else ly - p[..., 1]
+        zlo, zhi = self.height_range(side)
         ok = ((p[..., 0] >= sp.speaker_front_m[0] - 1e-9) & (p[..., 0] <= sp.speaker_front_m[1] + 1e-9)
               & (y_wall >= sp.speaker_side_m[0] - 1e-9) & (y_wall <= sp.speaker_side_m[1] + 1e-9)
-              & (p[..., 2] >= sp.speaker_height_m[0] - 1e-9) & (p[..., 2] <= sp.speaker_height_m[1] + 1e-9))
+              & (p[..., 2] >= zlo - 1e-9) & (p[..., 2] <= zhi + 1e-9))
         return ok & ~self.in_keep_out(p)
 
     def in_keep_out(self, p):
@@ -756,6 +656,8 @@ class _Constraints:
 
     def seat_ok(self, p):
         sp, ly = self.space, self.size[1]
+        if sp.seat_fixed_m is not None:
+            return np.all(np.abs(p - np.asarray(sp.seat_fixed_m)) < 1e-6, axis=-1)
         ok = (p[..., 0] >= sp.seat_front_m[0] - 1e-9) & (p[..., 0] <= sp.seat_front_m[1] + 1e-9)
         if sp.seat_on_centre_line:
             ok &= np.abs(p[..., 1] - ly / 2) < 1e-6
@@ -764,8 +666,20 @@ class _Constraints:
         ok &= np.abs(p[..., 2] - sp.seat_height_m) < 1e-6
         return ok & ~self.in_keep_out(p)
 
+    def cabinet_ok(self, p, seat, side):
+        """The box of speaker ``side`` at woofer ``p`` facing ``seat``: its back clears the
+        front wall by rear_clearance_m, it stays inside the room and out of the keep-out boxes."""
+        sp = self.space
+        c = cabinet_corners(p, sp.cabinets[side], seat, sp.toe_in)  # (..., 8, 3)
+        lo, hi = c.min(axis=-2), c.max(axis=-2)
+        ok = (lo[..., 0] >= sp.rear_clearance_m - 1e-9) & np.all(lo >= -1e-9, axis=-1) \
+            & np.all(hi <= self.size + 1e-9, axis=-1)
+        for box in sp.keep_out:
+            ok &= ~box.overlaps(lo, hi)
+        return ok, lo, hi
+
     def pair_ok(self, left, right, seat):
-        """Spacing and listening-triangle tests of arrays of positions (..., 3)."""
+        """Spacing, listening-triangle, symmetry and cabinet tests of arrays of positions (..., 3)."""
         sp = self.space
         spacing = np.linalg.norm(left - right, axis=-1)
         ok = (spacing >= sp.spacing_m[0] - 1e-9) & (spacing <= sp.spacing_m[1] + 1e-9)
@@ -777,10 +691,13 @@ class _Constraints:
         else:
             ok &= (dl >= 0.5) & (dr >= 0.5)
         ok &= (seat[..., 0] > left[..., 0]) & (seat[..., 0] > right[..., 0])
-        if sp.symmetric:
+        if sp.symmetric:  # mirror images about the seat's axis
             ok &= (np.abs(left[..., 0] - right[..., 0]) < 1e-6) & (np.abs(left[..., 2] - right[..., 2]) < 1e-6) & (
-                np.abs(left[..., 1] + right[..., 1] - self.size[1]) < 1e-6)
-        return ok
+                np.abs(left[..., 1] + right[..., 1] - 2 * seat[..., 1]) < 1e-6)
+        okl, lol, hil = self.cabinet_ok(left, seat, 0)
+        okr, lor, hir = self.cabinet_ok(right, seat, 1)
+        apart = np.any((hil < lor) | (hir < lol), axis=-1)
+        return ok & okl & okr & apart
 
     def valid(self, vecs):
         v = np.atleast_2d(vecs)
@@ -791,6 +708,8 @@ class _Constraints:
 
 # ------------------------------------------------------------------------------ coarse pass
 def _seat_grid(space, size, step):
+    if space.seat_fixed_m is not None:
+        return np.array([space.seat_fixed_m], dtype=float)
     sx = _grid(*space.seat_front_m, step)
     if space.seat_on_centre_line:
         sy = np.array([size[1] / 2])
@@ -800,23 +719,44 @@ def _seat_grid(space, size, step):
     return np.stack([xx.ravel(), yy.ravel(), np.full(xx.size, space.seat_height_m)], axis=1)
 
 
-def _speaker_grid(space, size, step, side):
+def _z_grid(cons, step):
+    lo = max(cons.height_range(0)[0], cons.height_range(1)[0])
+    hi = min(cons.height_range(0)[1], cons.height_range(1)[1])
+    if hi < lo:
+        lo, hi = cons.height_range(0)
+    return _grid(lo, hi, step) if hi >= lo else np.zeros(0)
+
+
+def _speaker_grid(cons, step, side):
+    """Woofer positions of one side for a free (not mirrored) pair."""
+    space, size = cons.space, cons.size
     x = _grid(*space.speaker_front_m, step)
     lo, hi = space.speaker_side_m
-    # a mirrored pair needs its spacing from the centre line; a free one only stays on its side
-    hi = min(hi, size[1] / 2 - 0.5 * space.spacing_m[0]) if space.symmetric else min(hi, size[1] / 2)
+    hi = min(hi, size[1] / 2)
     if hi < lo:
         return np.zeros((0, 3))
     w = _grid(lo, hi, step)
     y = w if side == 0 else size[1] - w
-    z = _grid(*space.speaker_height_m, step)
-    xx, yy, zz = np.meshgrid(x, y, z, indexing="ij")
+    zlo, zhi = cons.height_range(side)
+    if zhi < zlo:
+        return np.zeros((0, 3))
+    xx, yy, zz = np.meshgrid(x, y, _grid(zlo, zhi, step), indexing="ij")
     return np.stack([xx.ravel(), yy.ravel(), zz.ravel()], axis=1)
 
 
-def _mirror(p, ly):
+def _pair_grid(cons, step, seat):
+    """Left woofer positions of a pair mirrored about the seat's axis (the right is the mirror)."""
+    space = cons.space
+    x = _grid(*space.speaker_front_m, step)
+    half = _grid(space.spacing_m[0] / 2, space.spacing_m[1] / 2, step)
+    z = _z_grid(cons, step)
+    xx, hh, zz = np.meshgrid(x, half, z, indexing="ij")
+    return np.stack([xx.ravel(), seat[1] - hh.ravel(), zz.ravel()], axis=1)
+
+
+def _mirror(p, y_axis):
     q = np.array(p, dtype=float, copy=True)
-    q[..., 1] = ly - q[..., 1]
+    q[..., 1] = 2 * y_axis - q[..., 1]
     return q
 
 
@@ -829,58 +769,62 @@ def _coarse_plan(room, space, step, count_only=False):
     size = cons.size
     seats = _seat_grid(space, size, step)
     seats = seats[cons.seat_ok(seats)]
-    left = _speaker_grid(space, size, step, 0)
-    if left.size == 0:
-        raise ValueError(f"{_where(room)} no speaker position fits: the spacing range starts at "
-                         f"{space.spacing_m[0]:g} m, but speaker_side_m {space.speaker_side_m[0]:g}-"
-                         f"{space.speaker_side_m[1]:g} m leaves at most {size[1] - 2 * space.speaker_side_m[0]:g} m "
-                         f"between the speakers in a room {size[1]:g} m wide")
-    n_region = left.shape[0]
-    left = left[cons.speaker_ok(left, 0)]
-    right = _speaker_grid(space, size, step, 1)
-    right = right[cons.speaker_ok(right, 1)]
-    if space.symmetric:
-        keep = cons.speaker_ok(_mirror(left, size[1]), 1)
-        left = left[keep]
-        right = _mirror(left, size[1])
-    if left.size == 0 or right.size == 0:
-        names = ", ".join(b.name for b in space.keep_out)
-        raise ValueError(f"{_where(room)} the keep-out boxes ({names}) cover every allowed speaker position "
-                         f"({n_region} grid positions); shrink or move them, or widen the speaker ranges")
     if seats.size == 0:
         raise ValueError(f"{_where(room)} no seat position is allowed: seat_front_m {space.seat_front_m[0]:g}-"
                          f"{space.seat_front_m[1]:g} m, seat height {space.seat_height_m:g} m"
                          + (" (the keep-out boxes cover them)" if space.keep_out else ""))
-    if count_only:  # mirrored pairs with the seat on the centre line cost one speaker each
-        if space.symmetric:
-            per = 1 if space.seat_on_centre_line else 2
-            return int(sum(per * np.count_nonzero(cons.pair_ok(left, right, seat[None, :])) for seat in seats))
-        return int(sum(np.count_nonzero(_distance_possible(left, seat, space))
-                       + np.count_nonzero(_distance_possible(right, seat, space)) for seat in seats))
-    plan = []
+    if _z_grid(cons, step).size == 0:
+        raise ValueError(f"{_where(room)} ear_height_tolerance_m: the two speakers' boxes put their tweeters at "
+                         "different heights and no woofer height suits both; widen ear_height_tolerance_m")
+    free_l = free_r = None
+    if not space.symmetric:
+        free_l = _speaker_grid(cons, step, 0)
+        free_r = _speaker_grid(cons, step, 1)
+        n_region = free_l.shape[0]
+        free_l, free_r = free_l[cons.speaker_ok(free_l, 0)], free_r[cons.speaker_ok(free_r, 1)]
+    plan, count, n_region, n_ok = [], 0, 0, 0
     for seat in seats:
         if space.symmetric:
+            left = _pair_grid(cons, step, seat)
+            n_region += left.shape[0]
+            right = _mirror(left, seat[1])
+            keep = cons.speaker_ok(left, 0) & cons.speaker_ok(right, 1)
+            left, right = left[keep], right[keep]
+            n_ok += left.shape[0]
             ok = cons.pair_ok(left, right, seat[None, :])
             if ok.any():
+                per = 1 if abs(seat[1] - size[1] / 2) < 1e-9 else 2
+                count += per * int(ok.sum())
                 plan.append((seat, left[ok], right[ok], None))
         else:
-            d_ok_l = _distance_possible(left, seat, space)
-            d_ok_r = _distance_possible(right, seat, space)
-            li, ri = np.flatnonzero(d_ok_l), np.flatnonzero(d_ok_r)
+            n_ok += free_l.shape[0]
+            li = np.flatnonzero(_distance_possible(free_l, seat, space))
+            ri = np.flatnonzero(_distance_possible(free_r, seat, space))
             if li.size and ri.size:
-                mask = cons.pair_ok(left[li][:, None, :], right[ri][None, :, :], seat[None, None, :])
+                mask = cons.pair_ok(free_l[li][:, None, :], free_r[ri][None, :, :], seat[None, None, :])
                 if mask.any():
                     keep_l, keep_r = mask.any(axis=1), mask.any(axis=0)
-                    plan.append((seat, left[li][keep_l], right[ri][keep_r], mask[np.ix_(keep_l, keep_r)]))
+                    count += int(keep_l.sum() + keep_r.sum())
+                    plan.append((seat, free_l[li][keep_l], free_r[ri][keep_r], mask[np.ix_(keep_l, keep_r)]))
+    if n_ok == 0:
+        if space.keep_out and n_region:
+            names = ", ".join(b.name for b in space.keep_out)
+            raise ValueError(f"{_where(room)} the keep-out boxes ({names}) cover every allowed speaker position "
+                             f"({n_region} grid positions); shrink or move them, or widen the speaker ranges")
+        raise ValueError(f"{_where(room)} no speaker position fits: spacing_m {space.spacing_m[0]:g}-"
+                         f"{space.spacing_m[1]:g} m, speaker_side_m {space.speaker_side_m[0]:g}-"
+                         f"{space.speaker_side_m[1]:g} m and a room {size[1]:g} m wide leave no place for the pair; "
+                         "narrow the spacing or the side distances")
     if not plan:
         what = (f"the listening triangle (speaker-seat distances within {space.triangle_tolerance:.0%} of the "
                 f"spacing {space.spacing_m[0]:g}-{space.spacing_m[1]:g} m)" if space.triangle
                 else f"the spacing range {space.spacing_m[0]:g}-{space.spacing_m[1]:g} m")
-        raise ValueError(f"{_where(room)} no layout satisfies every constraint: with the speakers "
-                         f"{space.speaker_front_m[0]:g}-{space.speaker_front_m[1]:g} m from the front wall and the "
-                         f"seat {space.seat_front_m[0]:g}-{space.seat_front_m[1]:g} m from it, {what} cannot be "
+        raise ValueError(f"{_where(room)} no layout satisfies every constraint: with the woofers "
+                         f"{space.speaker_front_m[0]:g}-{space.speaker_front_m[1]:g} m from the front wall, each box "
+                         f"{space.rear_clearance_m * 100:g} cm or more off it and the seat "
+                         f"{space.seat_front_m[0]:g}-{space.seat_front_m[1]:g} m from it, {what} cannot be "
                          "met; widen the ranges")
-    return plan
+    return count if count_only else plan
 
 
 def _distance_possible(points, seat, space):
@@ -904,7 +848,7 @@ def _choose_step(room, space, flop_per_pair):
     return step, _coarse_plan(room, space, step)
 
 
-def _coarse_pass(scorer, plan, keep_per_seat, progress):
+def _coarse_pass(scorer, plan, keep_per_seat, progress, distinct_m=0.0):
     """Score every candidate of the plan by the first four parts; keep the best per seat."""
     vecs, s4s, n_cand = [], [], 0
     mirror = scorer.mirror_rows()
@@ -941,8 +885,16 @@ def _coarse_pass(scorer, plan, keep_per_seat, progress):
                                  mismatch_ms=mm[li, ri])
         s4 = scorer.base_score(parts)
         n_cand += s4.size
-        top = np.argsort(s4)[:keep_per_seat]
-        v = np.concatenate([left[li[top]], right[ri[top]], np.repeat(seat[None], top.size, axis=0)], axis=1)
+        v = np.concatenate([left[li], right[ri], np.repeat(seat[None], li.size, axis=0)], axis=1)
+        # the best of this seat, and the best of those that differ from them (so that a
+        # fixed seat still yields distinct layouts)
+        order = np.argsort(s4)
+        top = order[:keep_per_seat]
+        if distinct_m > 0:
+            head = order[:1000]
+            spread = head[np.array(_distinct(v[head], s4[head], distinct_m, limit=keep_per_seat), dtype=int)]
+            top = np.union1d(top, spread)
+        v = v[top]
         vecs.append(v)
         s4s.append(s4[top])
         if progress:
@@ -958,18 +910,37 @@ def _row_keys(points):
 
 
 def _directions(space):
+    """Coordinate moves of the pattern search (rows of 9-vectors: left, right, seat xyz)."""
     dirs = []
+    seat_free = space.seat_fixed_m is None
     if space.symmetric:
-        dirs += [[1, 0, 0, 1, 0, 0, 0, 0, 0], [0, 1, 0, 0, -1, 0, 0, 0, 0], [0, 0, 1, 0, 0, 1, 0, 0, 0]]
+        dirs += [[1, 0, 0, 1, 0, 0, 0, 0, 0], [0, -1, 0, 0, 1, 0, 0, 0, 0], [0, 0, 1, 0, 0, 1, 0, 0, 0]]
+        if seat_free and not space.seat_on_centre_line:  # the pair follows the seat's axis
+            dirs.append([0, 1, 0, 0, 1, 0, 0, 1, 0])
     else:
         for i in range(6):
             e = [0] * 9
             e[i] = 1
             dirs.append(e)
-    dirs.append([0] * 6 + [1, 0, 0])
-    if not space.seat_on_centre_line:
-        dirs.append([0] * 7 + [1, 0])
+        if seat_free and not space.seat_on_centre_line:
+            dirs.append([0] * 7 + [1, 0])
+    if seat_free:
+        dirs.append([0] * 6 + [1, 0, 0])
+        dirs.append(list(sweep_direction(space)))
     return np.array(dirs, dtype=float)
+
+
+def sweep_direction(space):
+    """The one-variable move of the figure's sweep and of the final line search (9-vector).
+
+    With a free seat the whole layout moves along x (speakers and seat together, so the
+    listening triangle is kept); with a fixed seat both speakers move along x.
+    """
+    d = np.zeros(9)
+    d[[0, 3]] = 1.0
+    if space.seat_fixed_m is None:
+        d[6] = 1.0
+    return d
 
 
 def _refine(scorer, cons, seeds, seed_scores, step0, progress=None, max_iter=80, per_seed=2):
@@ -1016,13 +987,86 @@ def _refine(scorer, cons, seeds, seed_scores, step0, progress=None, max_iter=80,
     return cur, score
 
 
-def _dedupe(vecs, scores, tol_m=0.02):
-    order = np.argsort(scores)
+def _line(cons, vec, direction, step_m=MIN_STEP_M, reach_m=3.0):
+    """Layouts ``vec + k step direction`` (k integer, ``|k step| <= reach``) and which are allowed."""
+    k = np.arange(-int(round(reach_m / step_m)), int(round(reach_m / step_m)) + 1)
+    v = vec[None, :] + (k * step_m)[:, None] * direction[None, :]
+    inside = np.all((v > WALL_MARGIN_M) & (v < np.tile(cons.size, 3) - WALL_MARGIN_M), axis=1)
+    v, k = v[inside], k[inside]
+    return v, k * step_m, cons.valid(v)
+
+
+def _polish(scorer, cons, vecs, scores):
+    """Line search along :func:`sweep_direction` at 1 cm over every allowed position: each
+    layout moves to the best point of its own line, so the figure's sweep through it has
+    its minimum there."""
+    d = sweep_direction(cons.space)
+    out, out_s = np.array(vecs, dtype=float), np.array(scores, dtype=float)
+    for i in range(out.shape[0]):
+        v, _, ok = _line(cons, out[i], d)
+        if ok.sum() < 2:
+            continue
+        v = v[ok]
+        # robustness is never negative: only points whose other parts already beat the
+        # current score can beat it in full
+        p4, _ = scorer.score_vecs(v, robustness=False)
+        cand = v[scorer.base_score(p4) < out_s[i] - 1e-12]
+        if cand.shape[0] == 0:
+            continue
+        _, full = scorer.score_vecs(cand)
+        j = int(np.argmin(full))
+        if full[j] < out_s[i] - 1e-12:
+            out[i], out_s[i] = cand[j], full[j]
+    return out, out_s
+
+
+def layout_distance_m(a, b):
+    """How far apart two layouts are: the largest move of one object (a speaker or the
+    seat) between them, m. ``a``, ``b``: 9-vectors (..., 9)."""
+    d = np.asarray(a, dtype=float) - np.asarray(b, dtype=float)
+    return np.max(np.linalg.norm(d.reshape(*d.shape[:-1], 3, 3), axis=-1), axis=-1)
+
+
+def _distinct(vecs, scores, min_m, limit=None):
+    """Indices of layouts, best first, each at least ``min_m`` (:func:`layout_distance_m`)
+    from every better one kept."""
+    v = np.asarray(vecs, dtype=float)
     kept = []
-    for i in order:
-        if all(np.max(np.abs(vecs[i] - vecs[j])) > tol_m for j in kept):
-            kept.append(i)
+    for i in np.argsort(scores, kind="stable"):
+        if not kept or np.min(layout_distance_m(v[kept], v[i])) >= min_m - 1e-9:
+            kept.append(int(i))
+            if limit is not None and len(kept) >= limit:
+                break
     return kept
+
+
+def layout_geometry(layout):
+    """Spacing, seat distance and listening angle of a stereo layout.
+
+    Parameters
+    ----------
+    layout : Layout
+        The first two speakers are the pair.
+
+    Returns
+    -------
+    dict
+        ``spacing_m`` (woofer to woofer), ``seat_distance_m`` (mean of the two
+        woofer-to-ear distances), ``angle_deg`` (angle at the ear between the two speakers;
+        60 degrees in an equilateral listening triangle, common practice).
+    """
+    p = np.asarray([s.position_m for s in layout.speakers[:2]], dtype=float)
+    seat = np.asarray(layout.seat_m, dtype=float)
+    a, b = p[0] - seat, p[1] - seat
+    cosang = float(np.dot(a, b) / (np.linalg.norm(a) * np.linalg.norm(b)))
+    return {"spacing_m": float(np.linalg.norm(p[0] - p[1])),
+            "seat_distance_m": float(0.5 * (np.linalg.norm(a) + np.linalg.norm(b))),
+            "angle_deg": float(np.degrees(np.arccos(np.clip(cosang, -1.0, 1.0))))}
+
+
+def _scored(name, layout, score, parts, i, in_region=True):
+    figs = {"flatness_raw": float(parts["flatness_raw"][i]), **layout_geometry(layout)}
+    return ScoredLayout(name, layout, float(score), {k: float(parts[k][i]) for k in PARTS}, in_region, figs)
 
 
 def search_layouts(room, space=None, weights=None, band_hz=None, top=5, points_per_octave=DEFAULT_POINTS_PER_OCTAVE,
@@ -1049,11 +1093,14 @@ def search_layouts(room, space=None, weights=None, band_hz=None, top=5, points_p
     n_seeds : int
         Distinct starting points of the refinement.
     refine : bool
-        Run the local refinement (off: the coarse grid's best, scored in full).
+        Run the local refinement and the final line search (off: the coarse grid's best,
+        scored in full).
 
     Returns
     -------
     SearchResult
+        ``ranked`` holds up to ``top`` layouts, each at least ``space.distinct_m`` from
+        every better one (:func:`layout_distance_m`); fewer when the region holds fewer.
 
     Raises
     ------
@@ -1062,9 +1109,10 @@ def search_layouts(room, space=None, weights=None, band_hz=None, top=5, points_p
 
     Notes
     -----
-    The coarse pass ranks by the first four parts; its best ``max(4 top, 24)`` layouts get
-    the robustness part, and ``n_seeds`` distinct ones among them (more than one coarse step
-    apart) start the pattern search, which scores every accepted move in full.
+    The coarse pass ranks by the first four parts; the best distinct layouts among them
+    (``max(3 top, 12)``) get the robustness part, the best ``n_seeds`` start the pattern
+    search, which scores every accepted move in full, and each refined layout finishes
+    with a line search along :func:`sweep_direction` at 1 cm.
     """
     space = search_space(room) if space is None else space
     w = check_weights(weights)
@@ -1079,32 +1127,23 @@ def search_layouts(room, space=None, weights=None, band_hz=None, top=5, points_p
     def report(lo, hi):
         return (lambda i, n: progress(lo + (hi - lo) * i / max(n, 1))) if progress else None
 
-    vecs, s4, n_cand = _coarse_pass(scorer, plan, max(32, 4 * top), report(0.0, 0.6))
-    pool = np.argsort(s4)[:max(4 * top, 24)]
+    vecs, s4, n_cand = _coarse_pass(scorer, plan, max(32, 4 * top), report(0.0, 0.6), space.distinct_m)
+    pool = np.array(_distinct(vecs, s4, max(space.distinct_m, step), limit=max(3 * top, 12)))
     _, full_pool = scorer.score_vecs(vecs[pool])
     if progress:
         progress(0.65)
-    order = np.argsort(full_pool)
-    seeds = []
-    for i in order:
-        if len(seeds) >= n_seeds:
-            break
-        if all(np.max(np.abs(vecs[pool[i]] - vecs[pool[j]])) > 1.01 * step for j in seeds):
-            seeds.append(i)
+    seeds = np.argsort(full_pool)[:n_seeds]
     final_vecs, final_scores = vecs[pool], full_pool
-    if refine and seeds:
-        rv, rs = _refine(scorer, cons, vecs[pool[seeds]], full_pool[seeds], step / 2, report(0.65, 0.95))
+    if refine and seeds.size:
+        rv, rs = _refine(scorer, cons, vecs[pool[seeds]], full_pool[seeds], step / 2, report(0.65, 0.9))
+        rv, rs = _polish(scorer, cons, rv, rs)
         final_vecs = np.concatenate([rv, final_vecs])
         final_scores = np.concatenate([rs, final_scores])
-    keep = _dedupe(final_vecs, final_scores, max(0.02, step / 2))[:top]
+    keep = _distinct(final_vecs, final_scores, space.distinct_m, limit=top)
     parts, scores = scorer.score_vecs(final_vecs[keep])
-    ranked = tuple(
-        ScoredLayout(str(r + 1), _layout(final_vecs[i], speakers, f"search {r + 1}"), float(scores[r]),
-                     {k: float(parts[k][r]) for k in PARTS}, True)
-        for r, i in enumerate(keep))
-    ranked = tuple(sorted(ranked, key=lambda s: s.score))
-    ranked = tuple(replace(s, name=str(r + 1), layout=replace(s.layout, name=f"search {r + 1}"))
-                   for r, s in enumerate(ranked))
+    order = np.argsort(scores, kind="stable")
+    ranked = tuple(_scored(str(r + 1), _layout(final_vecs[keep[i]], speakers, f"search {r + 1}"), scores[i], parts, i)
+                   for r, i in enumerate(order))
     presets, current = _reference_layouts(room, scorer, cons)
     if progress:
         progress(1.0)
@@ -1126,9 +1165,41 @@ def _reference_layouts(room, scorer, cons):
     vecs = np.array([_vec(lay) for lay in all_l])
     parts, scores = scorer.score_vecs(vecs)
     inside = cons.valid(vecs)
-    out = [ScoredLayout(lay.name, Layout(tuple(lay.speakers[:2]), lay.seat_m, lay.name), float(scores[i]),
-                        {k: float(parts[k][i]) for k in PARTS}, bool(inside[i])) for i, lay in enumerate(all_l)]
+    out = [_scored(lay.name, Layout(tuple(lay.speakers[:2]), lay.seat_m, lay.name), scores[i], parts, i,
+                   bool(inside[i])) for i, lay in enumerate(all_l)]
     return tuple(out[:len(layouts)]), (out[-1] if current is not None else None)
+
+
+def why_it_wins(best, other, weights, other_label="the file's layout"):
+    """One sentence on why ``best`` ranks above ``other`` although its raw curve is spikier.
+
+    Parameters
+    ----------
+    best, other : ScoredLayout
+    weights : dict
+        The score's weights.
+    other_label : str
+        How the sentence names ``other``.
+
+    Returns
+    -------
+    str or None
+        None when ``best``'s raw (before-EQ) flatness at the seat is not worse than
+        ``other``'s, or ``best`` does not score better.
+    """
+    raw_b, raw_o = best.figures.get("flatness_raw"), other.figures.get("flatness_raw")
+    if raw_b is None or raw_o is None or raw_b <= raw_o or best.score >= other.score:
+        return None
+    words = {"flatness": "after its EQ it is flatter at the seat", "mismatch": "the two channels agree better",
+             "area": "it varies less over the listening area", "boost": "its EQ needs less boost",
+             "robustness": "it holds up better when things land 5 cm off"}
+    gains = sorted(((weights[k] * (other.parts[k] - best.parts[k]), k) for k in PARTS), reverse=True)
+    reasons = [f"{words[k]} ({best.parts[k]:.2f} against {other.parts[k]:.2f} dB)" for g, k in gains if g > 0.05]
+    if not reasons:
+        return None
+    text = reasons[0] if len(reasons) == 1 else ", ".join(reasons[:-1]) + " and " + reasons[-1]
+    return (f"The raw curve of the best layout looks spikier at the seat than {other_label}'s (flatness "
+            f"{raw_b:.2f} against {raw_o:.2f} dB before EQ), but it ranks higher because {text}.")
 
 
 def score_layouts(room, layouts, weights=None, band_hz=None, area_m=(0.6, 0.6), area_points=(3, 3),
@@ -1160,8 +1231,7 @@ def score_layouts(room, layouts, weights=None, band_hz=None, area_m=(0.6, 0.6), 
     vecs = np.array([_vec(lay) for lay in layouts])
     _check_inside(room, scorer, vecs)
     parts, scores = scorer.score_vecs(vecs, robustness=robustness)
-    return [ScoredLayout(lay.name, lay, float(scores[i]), {k: float(parts[k][i]) for k in PARTS})
-            for i, lay in enumerate(layouts)]
+    return [_scored(lay.name, lay, scores[i], parts, i) for i, lay in enumerate(layouts)]
 
 
 def _scorer_for(room, layout, weights, band_hz, area_m, area_points, points_per_octave):
@@ -1265,3 +1335,60 @@ def front_distance_profile(room, layout, weights=None, band_hz=None, area_m=(0.6
     parts, scores = scorer.score_vecs(v)
     allowed = None if space is None else _Constraints(room, space).valid(v)
     return d, scores, parts, allowed
+
+
+def layout_sweep(room, layout, space, weights=None, band_hz=None, points_per_octave=DEFAULT_POINTS_PER_OCTAVE,
+                 step_m=0.02, reach_m=1.5):
+    """Score and parts along :func:`sweep_direction` through a layout, with the allowed stretch.
+
+    With a free seat the whole layout moves along x (the listening triangle kept); with a
+    fixed seat both speakers move along x. The points are ``layout + k step`` (k integer),
+    so the layout itself is one of them; the search's final line search (1 cm) makes a
+    ranked layout the lowest allowed point of its own line.
+
+    Parameters
+    ----------
+    room : Room
+    layout : Layout
+    space : SearchSpace
+        The constraints (``allowed``) and the listening area.
+    weights, band_hz, points_per_octave
+        As in :func:`search_layouts`.
+    step_m, reach_m : float
+        Step of the sweep and how far it reaches each way, m.
+
+    Returns
+    -------
+    distance_m : ndarray (D,)
+        The speakers' (woofers') distance from the front wall at each point, m.
+    score : ndarray (D,)
+    parts : dict of ndarray (D,)
+    allowed : ndarray of bool (D,)
+        Points that meet every constraint.
+    """
+    scorer = _scorer_for(room, layout, weights, band_hz, space.area_m, space.area_points, points_per_octave)
+    cons = _Constraints(room, space)
+    vec = _vec(layout)
+    v, _, ok = _line(cons, vec, sweep_direction(space), step_m, reach_m)
+    # points whose listening area would leave the room are not scored
+    pts = v[:, None, 6:9] + scorer.offsets[None]
+    inside = np.all(room.contains(pts.reshape(-1, 3), WALL_MARGIN_M).reshape(pts.shape[:2]), axis=1)
+    inside &= np.all(room.contains(v[:, :6].reshape(-1, 3), WALL_MARGIN_M).reshape(-1, 2), axis=1)
+    v, ok = v[inside], ok[inside]
+    parts, scores = scorer.score_vecs(v)
+    return v[:, 0].copy(), scores, parts, ok
+
+
+def layout_curves(room, layout, space, band_hz=None, points_per_octave=DEFAULT_POINTS_PER_OCTAVE):
+    """A layout's level at the seat before and after the EQ the search assumes.
+
+    Returns
+    -------
+    freq_hz : ndarray (Fb,)
+        The band's grid, Hz.
+    before_db, correction_db, after_db : ndarray (2, Fb)
+        Left and right at the seat, 1/6-octave smoothed, dB; the correction is
+        :func:`eq_proxy_db` designed over the listening area of ``space``.
+    """
+    scorer = _scorer_for(room, layout, None, band_hz, space.area_m, space.area_points, points_per_octave)
+    return scorer.curves(_vec(layout))

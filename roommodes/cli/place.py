@@ -56,20 +56,37 @@ def _parse_weights(text):
     return out
 
 
+#: Printed with every placement: where the speakers go, something has to hold them.
+MOUNTING_CAUTION = (
+    "Safety: speakers on stands, shelves, desks or walls must be secured as their makers and your local "
+    "building codes require; a heavy box on a tall stand or a wall bracket can fall (docs/cautions.md)."
+)
+
+
 def _layout_obj(room, scored):
     lay = scored.layout
+    fig = scored.figures
     return {
         "name": scored.name,
         "speakers": [{"name": s.name, "position_m": s.position_m, "walls": walls_text(room, s.position_m)}
                      for s in lay.speakers],
         "seat_m": lay.seat_m, "seat_walls": walls_text(room, lay.seat_m),
         "score": scored.score, "parts": scored.parts, "in_region": scored.in_region,
+        "spacing_m": fig.get("spacing_m"), "seat_distance_m": fig.get("seat_distance_m"),
+        "angle_deg": fig.get("angle_deg"), "flatness_before_eq_db": fig.get("flatness_raw"),
+        "flatness_after_eq_db": scored.parts["flatness"], "eq_boost_db": scored.parts["boost"],
     }
+
+
+_EXTRA = (("raw", "flatness_raw", "{:5.2f}"), ("spacing", "spacing_m", "{:5.2f} m"),
+          ("distance", "seat_distance_m", "{:5.2f} m"), ("angle", "angle_deg", "{:4.0f} deg"))
 
 
 def _row(label, s, parts):
     note = "" if s.in_region else "  (outside the [search] region)"
-    return f"  {label:<10} {s.score:7.2f}  " + "  ".join(f"{s.parts[p]:>{max(len(p), 5)}.2f}" for p in parts) + note
+    extra = "  ".join(f"{fmt.format(s.figures[k]):>{max(len(h), 7)}}" for h, k, fmt in _EXTRA)
+    return (f"  {label:<10} {s.score:7.2f}  " + "  ".join(f"{s.parts[p]:>{max(len(p), 5)}.2f}" for p in parts)
+            + "  " + extra + note)
 
 
 # ---------------------------------------------------------------------------- place
@@ -100,7 +117,7 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
     would need, and robustness to 5 cm moves. The four standard placements and the file's
     own layout are scored the same way and shown in the same table.
     """
-    from ..analysis.search import PARTS, search_layouts, search_space
+    from ..analysis.search import PARTS, search_layouts, search_space, why_it_wins
 
     room = load_or_fail(room_file)
     w = _parse_weights(weights)
@@ -144,7 +161,13 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
             "search": {"coarse_step_m": res.step_m, "candidates": res.n_candidates,
                        "layout_evaluations": res.n_layout_evaluations, "frequencies": res.n_frequencies,
                        "area_points": int(np.prod(space.area_points)), "area_m": space.area_m,
-                       "symmetric": space.symmetric, "elapsed_s": elapsed},
+                       "symmetric": space.symmetric, "elapsed_s": elapsed, "distinct_m": space.distinct_m,
+                       "seat_fixed": space.seat_fixed_m is not None, "cabinet_assumed": space.cabinet_assumed,
+                       "rear_clearance_m": space.rear_clearance_m,
+                       "ear_height_tolerance_m": space.ear_height_tolerance_m, "spacing_m": space.spacing_m},
+            "why": next((t for t in (why_it_wins(best, o, res.weights) for o in
+                                     ([res.current] if res.current is not None else []) + list(res.presets)) if t),
+                        None),
             "ranked": [_layout_obj(room, s) for s in res.ranked],
             "presets": [_layout_obj(room, s) for s in res.presets],
             "current": _layout_obj(room, res.current) if res.current is not None else None,
@@ -158,26 +181,73 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
         click.echo(f"Scored {res.n_candidates} layouts on a {res.step_m * 100:g} cm grid, then refined the best "
                    f"({res.n_layout_evaluations} layouts in all, {elapsed:.1f} s).")
         click.echo("Score (dB, lower is better) = " + " + ".join(f"{res.weights[p]:g} {p}" for p in PARTS))
+        click.echo("Each layout is judged after the EQ it needs (one correction per channel, designed over the "
+                   "listening area): flatness and mismatch after EQ, boost = the EQ's largest boost; "
+                   "raw = flatness before EQ.")
+        cab = space.cabinets[0]
+        cab_text = (f"{cab.size_m[0] * 100:.0f} x {cab.size_m[1] * 100:.0f} x {cab.size_m[2] * 100:.0f} cm "
+                    "(w x h x d)")
+        click.echo(("Boxes: none described in the room file, so a " + cab_text + " box is assumed"
+                    if space.cabinet_assumed else "Boxes: " + cab_text)
+                   + f", back at least {space.rear_clearance_m * 100:.0f} cm off the front wall"
+                   + (", turned to face the seat" if space.toe_in else "")
+                   + f"; tweeter within {space.ear_height_tolerance_m * 100:.0f} cm of ear height; spacing "
+                   f"{space.spacing_m[0]:g}-{space.spacing_m[1]:g} m"
+                   + (f"; listening triangle within {space.triangle_tolerance:.0%}" if space.triangle else "")
+                   + ("; seat fixed" if space.seat_fixed_m is not None else "")
+                   + f"; results at least {space.distinct_m * 100:.0f} cm apart.")
         click.echo("")
-        click.echo(f"  {'layout':<10} {'score':>7}  " + "  ".join(f"{p:>{max(len(p), 5)}}" for p in PARTS))
+        click.echo(f"  {'layout':<10} {'score':>7}  " + "  ".join(f"{p:>{max(len(p), 5)}}" for p in PARTS)
+                   + "  " + "  ".join(f"{h:>{max(len(h), 7)}}" for h, _, _ in _EXTRA))
         for s in res.ranked:
             click.echo(_row(f"#{s.name}", s, PARTS))
         if res.current is not None:
             click.echo(_row("file", res.current, PARTS))
         for s in res.presets:
             click.echo(_row(s.name, s, PARTS))
-        ref = min([s.score for s in res.presets] + ([res.current.score] if res.current is not None else []))
+        others = list(res.presets) + ([res.current] if res.current is not None else [])
+        inside = [s for s in others if s.in_region]
         click.echo("")
-        click.echo(f"The best layout scores {best.score:.2f} dB, {ref - best.score:.2f} dB better than the best of the "
-                   "file's layout and the standard placements.")
+        if inside:
+            ref = min(inside, key=lambda s: s.score)
+            gain = ref.score - best.score
+            click.echo(f"The best layout scores {best.score:.2f} dB, {abs(gain):.2f} dB "
+                       f"{'better' if gain >= 0 else 'worse'} than the best of the file's layout and the standard "
+                       "placements that meet the constraints"
+                       f" ({'the file' if ref is res.current else ref.name}, {ref.score:.2f} dB).")
+        else:
+            click.echo(f"The best layout scores {best.score:.2f} dB; neither the file's layout nor any standard "
+                       "placement meets the constraints.")
+        if res.current is not None and not res.current.in_region:
+            click.echo(f"Against the room file's own layout ({res.current.score:.2f} dB, outside the constraints): "
+                       f"{res.current.score - best.score:.2f} dB better.")
+        lower = [s for s in others if not s.in_region and s.score < best.score]
+        if lower:
+            s_ = min(lower, key=lambda s: s.score)
+            click.echo(f"{'The file' if s_ is res.current else 'The ' + s_.name} layout scores lower ({s_.score:.2f} dB) "
+                       "but breaks the [search] constraints (box clearance, ear height, spacing or triangle); "
+                       "relax them in [search] if it is what you want.")
+        if len(res.ranked) < top:
+            click.echo(f"Only {len(res.ranked)} layouts {space.distinct_m * 100:.0f} cm or more apart fit the region.")
+        for other, label in ([(res.current, "the file's layout")] if res.current is not None else []) + \
+                [(p, f"the {p.name} placement") for p in res.presets]:
+            sentence = why_it_wins(best, other, res.weights, label)
+            if sentence:
+                click.echo(sentence)
+                break
         for s in list(res.ranked) + ([res.current] if res.current is not None else []) + list(res.presets):
             click.echo("")
-            click.echo(f"{'#' + s.name if s in res.ranked else s.name}:")
+            g = s.figures
+            click.echo(f"{'#' + s.name if s in res.ranked else s.name}: spacing {g['spacing_m'] * 100:.0f} cm, "
+                       f"seat {g['seat_distance_m'] * 100:.0f} cm from the speakers, listening angle "
+                       f"{g['angle_deg']:.0f} degrees; flatness at the seat {g['flatness_raw']:.2f} dB before EQ, "
+                       f"{s.parts['flatness']:.2f} dB after, EQ boost {s.parts['boost']:.1f} dB")
             for sp in s.layout.speakers:
-                click.echo(f"  {sp.name} speaker: {walls_text(room, sp.position_m)}")
-            click.echo(f"  seat: {walls_text(room, s.layout.seat_m)}")
+                click.echo(f"  {sp.name} speaker (woofer): {walls_text(room, sp.position_m)}")
+            click.echo(f"  seat (ears): {walls_text(room, s.layout.seat_m)}")
         click.echo("")
     echo_err(MODEL_CAUTION)
+    echo_err(MOUNTING_CAUTION)
     if layout_path:
         from ..io.roomfile import room_to_toml, write_text_atomic
 
@@ -198,7 +268,7 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
 
 def _place_plot(room, space, res, path):
     from ..analysis.predict import predict
-    from ..analysis.search import front_distance_profile, seat_score_map
+    from ..analysis.search import layout_curves, layout_sweep, seat_score_map
     from ..present.plots_place import plot_place
 
     best = res.ranked[0].layout
@@ -208,11 +278,14 @@ def _place_plot(room, space, res, path):
         preds.append(("current", predict(room, current)))
     kw = {"weights": res.weights, "band_hz": res.band_hz, "area_m": space.area_m, "area_points": space.area_points}
     seat_map = seat_score_map(room, best, **kw)
-    lo = max(0.05, min(space.speaker_front_m[0], best.speakers[0].position_m[0]) - 0.15)
-    hi = min(best.seat_m[0] - 0.5, max(space.speaker_front_m[1], best.speakers[0].position_m[0]) + 0.15)
-    profile = front_distance_profile(room, best, distances_m=np.arange(lo, hi + 1e-9, 0.02), space=space, **kw)
+    profile = layout_sweep(room, best, space, weights=res.weights, band_hz=res.band_hz)
+    eq_curves = [("best", layout_curves(room, best, space, res.band_hz))]
+    if current is not None:
+        eq_curves.append(("current", layout_curves(room, current, space, res.band_hz)))
     plot_place(room, best, current, preds, res.band_hz, preds[0][1].schroeder_hz, seat_map, profile,
-               space.keep_out, path=path)
+               space.keep_out, path=path, eq_curves=eq_curves, space=space,
+               sweep_label="speakers' distance from the front wall (cm)"
+               + ("" if space.seat_fixed_m is not None else "; the seat moves with them"))
 
 
 # ---------------------------------------------------------------------------- explain

@@ -19,6 +19,7 @@ import numpy as np
 import tomlkit
 
 from ..model.materials import get_material
+from ..model.placement import search_space
 from ..model.room import (
     MAX_DIMENSION_M,
     MIN_DIMENSION_M,
@@ -26,6 +27,7 @@ from ..model.room import (
     WALL_MARGIN_M,
     WALLS,
     Box,
+    Cabinet,
     Layout,
     Room,
     Seat,
@@ -42,7 +44,7 @@ __all__ = ["RoomFileError", "load_room", "parse_room", "room_to_toml", "demo_roo
 _TOP_KEYS = {"room", "surfaces", "speakers", "seat", "seats", "search", "subs", "format"}
 _ROOM_KEYS = {"name", "size_m", "temperature_c"}
 _SPEAKER_KEYS = {"position_m", "lowcut_hz", "lowcut_order", "response_file", "sensitivity_db",
-                 "amplifier_w", "max_spl_db", "role"}
+                 "amplifier_w", "max_spl_db", "role", "cabinet_m", "woofer_on_face_m", "tweeter_on_face_m"}
 _SEAT_KEYS = {"position_m"}
 _SEATS_KEYS = {"position_m", "weight"}
 _SUBS_KEYS = {"counts", "crossover_hz", "max_delay_ms", "max_gain_db", "height_m", "step_m", "wall_gap_m",
@@ -240,6 +242,9 @@ def parse_room(data, name="<room>", base_dir=None):
         role = st.get("role", "main")
         if role not in ROLES:
             ctx.fail(f"{key} role", f"must be one of {', '.join(repr(r) for r in ROLES)}, got {role!r}")
+        cabinet = _parse_cabinet(ctx, key, st)
+        if cabinet is not None:
+            extra["cabinet"] = cabinet
         speakers.append(Speaker(sname, pos, lowcut, int(order), response, rfile, role=role, **extra))
     for a in range(len(speakers)):
         for b in range(a + 1, len(speakers)):
@@ -286,7 +291,12 @@ def parse_room(data, name="<room>", base_dir=None):
     subs_search = None
     if "subs" in data:
         subs_search = _parse_subs(ctx, data["subs"], size)
-    return Room(room_name, size, surfaces, temp, layout, search, str(name), subs_search)
+    room = Room(room_name, size, surfaces, temp, layout, search, str(name), subs_search)
+    try:  # the placement constraints are checked now, not when a search first reads them
+        search_space(room)
+    except ValueError as exc:
+        raise RoomFileError(str(exc)) from None
+    return room
 
 
 def _parse_seats(ctx, table, size, speakers):
@@ -395,6 +405,34 @@ def _parse_subs(ctx, t, size):
             pts.append(p)
         kw["candidates_m"] = tuple(pts)
     return SubSearch(**kw)
+
+
+def _parse_cabinet(ctx, key, st):
+    """The speaker's box from ``cabinet_m``, ``woofer_on_face_m`` and ``tweeter_on_face_m``."""
+    if "cabinet_m" not in st:
+        for k in ("woofer_on_face_m", "tweeter_on_face_m"):
+            if k in st:
+                ctx.fail(f"{key} {k}", "needs cabinet_m = [width, height, depth] (metres) beside it")
+        return None
+    v = st["cabinet_m"]
+    if not isinstance(v, list) or len(v) != 3:
+        ctx.fail(f"{key} cabinet_m", f"expected [width, height, depth] in metres, e.g. [0.2, 0.32, 0.25], got {v!r}")
+    size = tuple(ctx.number(x, f"{key} cabinet_m[{i}]", 0.05, 2.5) for i, x in enumerate(v))
+    faces = {}
+    for k in ("woofer_on_face_m", "tweeter_on_face_m"):
+        if k not in st:
+            if k == "woofer_on_face_m":
+                ctx.fail(f"{key} woofer_on_face_m", "missing; give [across, up] in metres: the woofer centre's "
+                         "offset from the front face's vertical centre line (positive toward the listener's axis) "
+                         "and its height above the box's bottom, e.g. [0.0, 0.1]")
+            continue
+        w = st[k]
+        if not isinstance(w, list) or len(w) != 2:
+            ctx.fail(f"{key} {k}", f"expected [across, up] in metres, e.g. [0.0, 0.1], got {w!r}")
+        across = ctx.number(w[0], f"{key} {k}[0]", -size[0] / 2, size[0] / 2)
+        up = ctx.number(w[1], f"{key} {k}[1]", 0.0, size[1])
+        faces[k] = (across, up)
+    return Cabinet(size, faces["woofer_on_face_m"], faces.get("tweeter_on_face_m"))
 
 
 def _read_speaker_curve(ctx, key, rfile, base_dir):
@@ -583,6 +621,12 @@ def room_to_toml(room, comment=None, *, original_text=None, position_note=None, 
                     _set(t, k, _number(getattr(sp, k)))
             if sp.role != "main" or "role" in t:
                 _set(t, "role", sp.role)
+            if sp.cabinet is not None:
+                cab = sp.cabinet
+                _set(t, "cabinet_m", _array(cab.size_m, "width, height, depth" if fresh else None))
+                _set(t, "woofer_on_face_m", _array(cab.woofer_m))
+                if cab.tweeter_m is not None:
+                    _set(t, "tweeter_on_face_m", _array(cab.tweeter_m))
         if room.layout.seats:
             _write_seats(doc, room.layout.seats, position_note if not original_text else None)
         elif "seats" in doc:

@@ -31,6 +31,7 @@ __all__ = [
     "WALLS",
     "WALL_AXIS",
     "Surface",
+    "Cabinet",
     "Speaker",
     "Seat",
     "Layout",
@@ -117,6 +118,36 @@ class Surface:
 
 
 @dataclass(frozen=True)
+class Cabinet:
+    """A speaker's box: its outer size and where the drivers sit on its front face.
+
+    The speaker's ``position_m`` is the woofer's centre, on the front face; the box
+    extends ``depth`` behind it. Positions on the front face are measured from the face's
+    vertical centre line (``across``, positive toward the listener's axis, i.e. inboard,
+    so that a mirrored pair has mirrored boxes) and from the box's bottom (``up``).
+
+    Attributes
+    ----------
+    size_m : tuple of float
+        (width, height, depth) of the box, m, each > 0.
+    woofer_m : tuple of float
+        (across, up) of the woofer's centre on the front face, m.
+    tweeter_m : tuple of float or None
+        (across, up) of the tweeter's centre, m; None when the speaker has one driver
+        (or the acoustic centre is the woofer's).
+    """
+
+    size_m: tuple
+    woofer_m: tuple
+    tweeter_m: tuple | None = None
+
+    @property
+    def centre_above_woofer_m(self):
+        """Height of the tweeter (or the woofer, without one) above the woofer's centre, m."""
+        return 0.0 if self.tweeter_m is None else float(self.tweeter_m[1] - self.woofer_m[1])
+
+
+@dataclass(frozen=True)
 class Speaker:
     """A loudspeaker, modelled at low frequency as a point monopole.
 
@@ -140,6 +171,8 @@ class Speaker:
         Maker's maximum SPL at 1 m, dB (for a sub: its maximum output).
     role : str
         "main" (full range, the default) or "sub" (a subwoofer); see :data:`ROLES`.
+    cabinet : Cabinet or None
+        The box, when the room file describes it (used by the placement search).
     """
 
     name: str
@@ -152,6 +185,7 @@ class Speaker:
     amplifier_w: float | None = None
     max_spl_db: float | None = None
     role: str = "main"
+    cabinet: Cabinet | None = None
 
     def moved(self, position_m):
         """The same speaker at another position."""

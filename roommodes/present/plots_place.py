@@ -15,9 +15,10 @@ __all__ = ["plot_place", "plot_explain"]
 
 def _curves(ax, predictions, band_hz, schroeder_hz):
     styles = ("-", "--")
+    colors = (PALETTE[1], "0.45")  # best, current: as on the floor plan
     for i, (label, pred) in enumerate(predictions):
         for j, ch in enumerate(pred.channels[:2]):
-            ax.plot(pred.freq_hz, ch.level_db, color=PALETTE[i % len(PALETTE)], ls=styles[j % 2], lw=1.4,
+            ax.plot(pred.freq_hz, ch.level_db, color=colors[i % 2], ls=styles[j % 2], lw=1.4,
                     label=f"{label}: {ch.name}")
     f = predictions[0][1].freq_hz
     if band_hz[0] > f[0]:
@@ -33,7 +34,40 @@ def _curves(ax, predictions, band_hz, schroeder_hz):
     ax.set_title(f"(a) Predicted level at the seat; score band {band_hz[0]:g}-{band_hz[1]:g} Hz", fontsize=10)
 
 
-def _floor_plan(ax, room, best, current, keep_out, seat_map):
+def _eq_curves(ax, eq_curves, band_hz):
+    """Each layout's level at the seat before (thin) and after (thick) the EQ it needs."""
+    if not eq_curves:
+        ax.set_axis_off()
+        return
+    colors = (PALETTE[1], "0.45")
+    lv = []
+    for i, (label, (f, before, _corr, after)) in enumerate(eq_curves):
+        for c, (ls, name) in enumerate((("-", "left"), ("--", "right"))):
+            ax.plot(f, before[c], color=colors[i % 2], ls=ls, lw=0.9, alpha=0.55,
+                    label=f"{label}, {name}: before EQ")
+            ax.plot(f, after[c], color=colors[i % 2], ls=ls, lw=2.0, label=f"{label}, {name}: after EQ")
+            lv += [before[c], after[c]]
+    style_frequency_axis(ax, band_hz[0], band_hz[1])
+    v = np.concatenate(lv)
+    ax.set_ylim(np.floor(v.min() / 5) * 5 - 2, np.ceil(v.max() / 5) * 5 + 6)
+    ax.set_ylabel("Level at seat, 1/6 octave (dB)")
+    ax.legend(fontsize=6.5, ncol=2, loc="upper center")
+    ax.set_title("(b) Before and after each layout's EQ (the score judges 'after')", fontsize=10)
+
+
+def _draw_boxes(ax, lay, space, color):
+    from matplotlib.patches import Polygon
+
+    from ..model.placement import cabinet_corners
+
+    for k, sp in enumerate(lay.speakers[:2]):
+        cab = sp.cabinet or space.cabinets[k]
+        c = cabinet_corners(sp.position_m, cab, lay.seat_m, space.toe_in)
+        foot = c[[0, 2, 6, 4], :2]  # front-left, front-right, back-right, back-left (bottom corners)
+        ax.add_patch(Polygon(foot[:, ::-1], closed=True, fill=True, fc=color, ec="white", alpha=0.55, lw=0.8))
+
+
+def _floor_plan(ax, room, best, current, keep_out, seat_map, space=None):
     from matplotlib.patches import Rectangle
 
     lx, ly, _ = room.size_m
@@ -58,6 +92,8 @@ def _floor_plan(ax, room, best, current, keep_out, seat_map):
     for lay, color, label, marker in ((current, "0.45", "current", "s"), (best, PALETTE[1], "best", "o")):
         if lay is None:
             continue
+        if space is not None:
+            _draw_boxes(ax, lay, space, color)
         sp = np.array([s.position_m for s in lay.speakers])
         ax.plot(sp[:, 1], sp[:, 0], marker, color=color, ms=9, mec="white", label=f"{label}: speakers")
         ax.plot(lay.seat_m[1], lay.seat_m[0], "*", color=color, ms=13, mec="white", label=f"{label}: seat")
@@ -70,12 +106,14 @@ def _floor_plan(ax, room, best, current, keep_out, seat_map):
     ax.set_ylabel("from the front wall (m)")
     ax.text(ly / 2, 0.04, "front wall", ha="center", va="top", fontsize=7.5, color="0.2")
     ax.legend(fontsize=7, loc="lower left", framealpha=0.85)
-    ax.set_title("(b) Floor plan and the score as the seat moves", fontsize=10)
+    ax.set_title("(c) Floor plan (boxes drawn) and the score as the seat moves", fontsize=10)
 
 
-def _profile(ax, profile, chosen_m):
+def _profile(ax, profile, chosen_m, xlabel=None):
     d, score, parts, allowed = profile
     ax.plot(d * 100, score, color="0.1", lw=1.8, label="score")
+    k = int(np.argmin(np.abs(d - chosen_m)))
+    ax.plot([d[k] * 100], [score[k]], "o", color=PALETTE[1], ms=7, zorder=5, label="best layout")
     for i, name in enumerate(("flatness", "mismatch", "area", "boost", "robustness")):
         ax.plot(d * 100, parts[name], color=PALETTE[i % len(PALETTE)], lw=1.0, ls="--", label=name)
     if allowed is not None and allowed.any():
@@ -86,16 +124,17 @@ def _profile(ax, profile, chosen_m):
                        label="meets every constraint" if k == 0 else None)
     ax.set_xlim(d[0] * 100, d[-1] * 100)
     ax.axvline(chosen_m * 100, color=PALETTE[1], lw=1.0)
-    ax.set_xlabel("speakers' distance from the front wall (cm)")
+    ax.set_xlabel(xlabel or "speakers' distance from the front wall (cm)", fontsize=8.5)
     ax.set_ylabel("dB (lower is better)")
     ax.grid(True, alpha=0.3)
     ax.legend(fontsize=7, ncol=2)
-    ax.set_title("(c) Score as the speakers move from the front wall", fontsize=10)
+    ax.set_title("(d) Score along one variable through the best layout", fontsize=10)
 
 
 def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map, profile, keep_out=(),
-               title=None, path=None):
-    """The placement figure: (a) curves, (b) floor plan with the seat-score map, (c) profile.
+               title=None, path=None, eq_curves=None, space=None, sweep_label=None):
+    """The placement figure: (a) predicted levels, (b) before/after EQ, (c) floor plan with
+    the seat-score map and the boxes, (d) the score along one variable through the best layout.
 
     Parameters
     ----------
@@ -109,18 +148,21 @@ def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map
     seat_map : (x_m, y_m, score)
         From :func:`roommodes.search.seat_score_map`.
     profile : (distance_m, score, parts, allowed)
-        From :func:`roommodes.search.front_distance_profile`; the distances where every
-        constraint holds (``allowed``, may be None) are shaded.
+        From :func:`roommodes.analysis.search.layout_sweep` (or ``front_distance_profile``);
+        the distances where every constraint holds (``allowed``, may be None) are shaded.
     keep_out : sequence of KeepOut
+    eq_curves : list of (label, (freq_hz, before_db, correction_db, after_db)), optional
+        From :func:`roommodes.analysis.search.layout_curves`, drawn in (b).
+    space : SearchSpace, optional
+        When given, the boxes are drawn on the floor plan.
+    sweep_label : str, optional
+        The x label of (d).
     """
-    fig, axes = new_figure(11.0, 9.0, 2, 2)
-    gs = axes[0, 0].get_gridspec()
-    for ax in axes[0]:
-        ax.remove()
-    top = fig.add_subplot(gs[0, :])
-    _curves(top, predictions, band_hz, schroeder_hz)
-    _floor_plan(axes[1, 0], room, best, current, keep_out, seat_map)
-    _profile(axes[1, 1], profile, best.speakers[0].position_m[0])
+    fig, axes = new_figure(12.0, 10.0, 2, 2)
+    _curves(axes[0, 0], predictions, band_hz, schroeder_hz)
+    _eq_curves(axes[0, 1], eq_curves, band_hz)
+    _floor_plan(axes[1, 0], room, best, current, keep_out, seat_map, space)
+    _profile(axes[1, 1], profile, best.speakers[0].position_m[0], sweep_label)
     fig.suptitle(title or f"Placement search: {room.name}", fontsize=11)
     if path is not None:
         save_figure(fig, path)

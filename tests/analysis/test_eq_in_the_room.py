@@ -204,13 +204,20 @@ def test_a_filter_at_a_limit_says_so():
 def test_default_band_runs_from_the_rolloff_to_schroeder(designs):
     from roommodes.analysis.predict import room_schroeder_frequency
 
+    from roommodes.model.modes import room_modes
+    from roommodes.model.room import SubSearch
+
     for key, corr in designs.items():
         room = ROOMS[key]
         fs = room_schroeder_frequency(room)
+        ms = room_modes(room, 300.0)
+        lowest = float(ms.freq_hz[ms.freq_hz > 0][0])
         for c in corr:
             sp = next(s for s in room.layout.speakers if s.name == c.name)
-            assert c.parametric.band_hz == pytest.approx(default_band(sp.lowcut_hz, fs, None))
-            assert c.parametric.band_hz[1] == pytest.approx(fs)
+            # a subwoofer is corrected only below the top of its crossover range (docs/eq.md)
+            top = min(fs, (room.subs_search or SubSearch()).crossover_hz[1]) if sp.role == "sub" else fs
+            assert c.parametric.band_hz == pytest.approx(default_band(sp.lowcut_hz, top, lowest))
+            assert c.parametric.band_hz[1] == pytest.approx(top)
             assert not c.cautions
     assert default_band(None, 180.0, 35.0) == (35.0, 180.0)
 

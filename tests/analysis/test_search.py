@@ -21,6 +21,7 @@ from roommodes.analysis.search import (
     area_spread_db,
     check_weights,
     eq_boost_db,
+    eq_proxy_db,
     flatness_db,
     front_distance_profile,
     mismatch_db,
@@ -229,12 +230,22 @@ def test_perturbations_move_every_object_by_5_cm_in_every_diagonal_direction():
 
 
 # ------------------------------------------------------------------ the search
-SMALL = {"speaker_front_m": [0.4, 0.8], "speaker_side_m": [0.6, 0.9], "speaker_height_m": [1.1, 1.1],
+SMALL = {"speaker_front_m": [0.4, 0.8], "spacing_m": [1.6, 2.0], "speaker_height_m": [1.1, 1.1],
          "seat_front_m": [1.8, 2.2], "step_m": 0.2}
 
 
 def _grid(lo, hi, step):  # the documented rule: n = round((hi - lo) / step) + 1 points, ends included
     return np.linspace(lo, hi, int(round((hi - lo) / step)) + 1)
+
+
+def _box_clear_of_front_wall(woofer, seat, inboard_sign, width=0.25, depth=0.30, clearance=0.10):
+    # The default box (docs/placement.md: 25 cm wide, 30 cm deep, woofer centred on its
+    # front face) turned to face the seat: its two rear corners lie depth behind the woofer
+    # along the facing direction and half a width to each side of it (plane geometry).
+    f = (seat - woofer)[:2] / np.linalg.norm((seat - woofer)[:2])
+    across = inboard_sign * np.array([-f[1], f[0]])
+    rear = [woofer[:2] - depth * f + s * width / 2 * across for s in (-1, 1)]
+    return min(r[0] for r in rear) >= clearance
 
 
 def _reference_score(room, vec, speakers, f, band, offsets):
@@ -243,28 +254,51 @@ def _reference_score(room, vec, speakers, f, band, offsets):
         h = transfer_function(room, v[:6].reshape(2, 3), rec, f, method="modal")
         lv = [20 * np.log10(np.abs(h[c] * speaker_response(speakers[c], f))) for c in range(2)]
         parts = score_parts(f, lv[0], lv[1], band)
-        return sum(DEFAULT_WEIGHTS[k] * parts[k] for k in PARTS[:4])
+        return sum(DEFAULT_WEIGHTS[k] * parts[k] for k in PARTS[:4]), lv
 
-    base = s4(vec)
-    moved = [s4(np.clip(vec + m.ravel(), 0.02, np.tile(room.size_m, 3) - 0.02)) for m in perturbations()]
+    base, lv0 = s4(vec)
+
+    def s4_fixed_eq(v):  # robustness keeps the planned layout's EQ (docs/placement.md)
+        rec = v[6:9] + offsets
+        h = transfer_function(room, v[:6].reshape(2, 3), rec, f, method="modal")
+        lv = [20 * np.log10(np.abs(h[c] * speaker_response(speakers[c], f))) for c in range(2)]
+        sel = (f >= band[0] * (1 - 1e-9)) & (f <= band[1] * (1 + 1e-9))
+        after = []
+        for c in range(2):
+            corr = eq_proxy_db(f, lv0[c], band)
+            seat = 10 * np.log10(smooth_fractional_octave(f, 10 ** (lv[c][4] / 10), 6))[sel]
+            after.append(seat + corr)
+        x = np.stack([np.ones(sel.sum()), np.log(f[sel])], axis=1)
+        resid = [a - x @ np.linalg.lstsq(x, a, rcond=None)[0] for a in after]
+        flat = np.sqrt(np.mean(np.square(resid)))
+        mism = np.sqrt(np.mean((after[0] - after[1]) ** 2))
+        ar = np.sqrt(np.mean(area_spread_db(f, np.stack(lv), band) ** 2))
+        boost = max(max(0.0, float(np.max(eq_proxy_db(f, lv0[c], band)))) for c in range(2))
+        return (DEFAULT_WEIGHTS["flatness"] * flat + DEFAULT_WEIGHTS["mismatch"] * mism
+                + DEFAULT_WEIGHTS["area"] * ar + DEFAULT_WEIGHTS["boost"] * boost)
+
+    moved = [s4_fixed_eq(np.clip(vec + m.ravel(), 0.02, np.tile(room.size_m, 3) - 0.02)) for m in perturbations()]
     return base + DEFAULT_WEIGHTS["robustness"] * np.mean(np.maximum(0.0, np.array(moved) - base))
 
 
 def test_search_finds_the_brute_force_best_of_a_small_grid():
     room = replace(DEMO, search=SMALL)
     lx, ly, lz = room.size_m
-    # brute force: every grid layout that meets the documented constraints (mirrored pair,
-    # seat on the centre line at 1.20 m, |distance - spacing| <= 15 % of the spacing),
-    # scored one by one through transfer_function
+    # brute force: every grid layout that meets the documented constraints (mirrored pair
+    # about the seat's axis, seat on the centre line at 1.20 m, |distance - spacing| <= 15 %
+    # of the spacing, the default box's back 10 cm or more off the front wall), scored one
+    # by one through transfer_function
     f = log_frequencies(48 / 2 ** (1 / 6), 200 * 2 ** (1 / 6), 24)
     offsets = area_offsets((0.6, 0.6), (3, 3))
     cands = []
-    for x, y, z, sx in itertools.product(_grid(0.4, 0.8, 0.2), _grid(0.6, 0.9, 0.2), [1.1], _grid(1.8, 2.2, 0.2)):
-        left, right, seat = np.array([x, y, z]), np.array([x, ly - y, z]), np.array([sx, ly / 2, 1.2])
-        spacing = ly - 2 * y
-        if all(abs(np.linalg.norm(p - seat) - spacing) <= 0.15 * spacing for p in (left, right)):
+    for x, half, z, sx in itertools.product(_grid(0.4, 0.8, 0.2), _grid(0.8, 1.0, 0.2), [1.1], _grid(1.8, 2.2, 0.2)):
+        left, right, seat = np.array([x, ly / 2 - half, z]), np.array([x, ly / 2 + half, z]), np.array([sx, ly / 2, 1.2])
+        spacing = 2 * half
+        if not all(abs(np.linalg.norm(p - seat) - spacing) <= 0.15 * spacing for p in (left, right)):
+            continue
+        if _box_clear_of_front_wall(left, seat, 1) and _box_clear_of_front_wall(right, seat, -1):
             cands.append(np.concatenate([left, right, seat]))
-    assert 6 <= len(cands) <= 30
+    assert 4 <= len(cands) <= 30
     ref = [_reference_score(room, v, room.layout.speakers, f, (48.0, 200.0), offsets) for v in cands]
     best = cands[int(np.argmin(ref))]
     res = search_layouts(room, top=10, refine=False)
@@ -299,7 +333,10 @@ def test_search_beats_every_preset_and_the_file_layout_on_the_demo_room(demo_sea
         assert l_[0] == pytest.approx(r_[0]) and l_[1] == pytest.approx(ly - r_[1]) and seat[1] == pytest.approx(ly / 2)
         spacing = np.linalg.norm(l_ - r_)
         assert abs(np.linalg.norm(l_ - seat) - spacing) <= 0.15 * spacing + 1e-6
-        assert 0.2 <= l_[0] <= 0.4 * lx + 1e-6 and 0.7 <= l_[2] <= 1.5 + 1e-6
+        assert 0.2 <= l_[0] <= 0.4 * lx + 1e-6
+        # the default box's tweeter sits 18 cm above its woofer; within 10 cm of the ear
+        assert abs(l_[2] + 0.18 - 1.2) <= 0.10 + 1e-6
+        assert 1.0 - 1e-6 <= spacing <= 2.0 + 1e-6
     # the reported score is the layout's own score (re-scored on its own)
     again = score_layouts(DEMO, [best.layout])[0]
     assert again.score == pytest.approx(best.score, rel=1e-6)
@@ -319,7 +356,10 @@ def test_free_placement_searches_both_speakers_independently():
 def test_search_space_defaults_are_the_documented_ones():
     sp = search_space(DEMO)
     lx, ly, lz = DEMO.size_m
-    assert sp.speaker_front_m == (0.2, round(0.4 * lx, 2)) and sp.spacing_m == (1.0, min(3.0, ly - 0.5))
+    # the default box is 40 cm tall: a near-field pair 1.0-2.0 m apart (common practice)
+    assert sp.speaker_front_m == (0.2, round(0.4 * lx, 2)) and sp.spacing_m == (1.0, 2.0)
+    assert sp.cabinet_assumed and sp.rear_clearance_m == 0.10 and sp.ear_height_tolerance_m == 0.10
+    assert sp.distinct_m == 0.25 and sp.seat_fixed_m is None and sp.toe_in
     assert sp.symmetric and sp.triangle and sp.seat_on_centre_line and sp.triangle_tolerance == 0.15
     assert sp.area_m == (0.6, 0.6) and sp.area_points == (3, 3) and sp.seat_height_m == 1.2
 
@@ -339,7 +379,8 @@ def test_bad_search_tables(table, message):
 
 @pytest.mark.parametrize("table,message", [
     ({"spacing_m": [3.3, 3.4]}, "no speaker position fits"),
-    ({"keep_out": [{"name": "desk", "min_m": [0, 0, 0], "max_m": [4.6, 3.4, 2.45]}]}, "cover every allowed speaker"),
+    ({"speaker_front_m": [0.2, 0.9], "keep_out": [{"name": "desk", "min_m": [0, 0, 0], "max_m": [0.95, 3.4, 2.45]}]},
+     "cover every allowed speaker"),
     ({"seat_front_m": [4.0, 4.1], "speaker_front_m": [0.2, 0.3]}, "no layout satisfies every constraint"),
 ])
 def test_impossible_regions(table, message):
@@ -379,7 +420,8 @@ def test_seat_map_and_front_distance_profile_are_the_same_figure_of_merit():
     ref = score_layouts(DEMO, [moved], robustness=False)[0].score
     assert score[i, j] == pytest.approx(ref, rel=1e-6)
     assert np.isnan(score[np.argmin(np.abs(x - 0.5)), np.argmin(np.abs(y - 1.2))])  # at a speaker
-    d, prof, parts, allowed = front_distance_profile(DEMO, lay, distances_m=[0.3, 0.55], space=search_space(DEMO))
+    space = search_space(replace(DEMO, search={"ear_height_tolerance_m": 0.3}))
+    d, prof, parts, allowed = front_distance_profile(DEMO, lay, distances_m=[0.3, 0.55], space=space)
     for k, dist in enumerate(d):
         sp = tuple(s_.moved((dist, s_.position_m[1], s_.position_m[2])) for s_ in lay.speakers)
         assert prof[k] == pytest.approx(score_layouts(DEMO, [Layout(sp, lay.seat_m)])[0].score, rel=1e-6)

@@ -49,6 +49,8 @@ def test_help():
 def test_place_json_keys_and_values(place_json):
     data, res = place_json
     assert "Model:" in res.stderr  # cautions on stderr, stdout is the JSON alone
+    assert "must be secured" in res.stderr
+    assert "why" in data and data["search"]["distinct_m"] == 0.25
     assert len(data["ranked"]) == 5
     assert [p["name"] for p in data["presets"]] == ["corner", "wall", "mid-room", "desk"]
     assert data["current"]["name"] == "file"
@@ -58,11 +60,18 @@ def test_place_json_keys_and_values(place_json):
         assert [s["name"] for s in lay["speakers"]] == ["left", "right"]
         assert all(len(s["position_m"]) == 3 for s in lay["speakers"]) and len(lay["seat_m"]) == 3
         assert set(lay["parts"]) == set(PARTS)
+        # geometry from the positions themselves (the angle by the law of cosines)
+        a, b = (np.array(sp["position_m"]) for sp in lay["speakers"])
+        seat = np.array(lay["seat_m"])
+        da, db, ab = np.linalg.norm(a - seat), np.linalg.norm(b - seat), np.linalg.norm(a - b)
+        assert lay["spacing_m"] == pytest.approx(ab) and lay["seat_distance_m"] == pytest.approx((da + db) / 2)
+        assert lay["angle_deg"] == pytest.approx(np.degrees(np.arccos((da**2 + db**2 - ab**2) / (2 * da * db))))
+        assert lay["flatness_after_eq_db"] == lay["parts"]["flatness"] and lay["flatness_before_eq_db"] > 0
         # the score is the documented weighted sum of the parts (docs/placement.md)
         assert lay["score"] == pytest.approx(sum(weights[k] * lay["parts"][k] for k in PARTS), abs=1e-5)
     scores = [lay["score"] for lay in data["ranked"]]
     assert scores == sorted(scores)
-    assert scores[0] < min(p["score"] for p in data["presets"] + [data["current"]])
+    assert scores[0] < min(p["score"] for p in data["presets"] + [data["current"]] if p["in_region"])
     assert data["band_hz"] == [48.0, 200.0]
 
 
@@ -73,7 +82,9 @@ def test_place_text_plot_and_write_layout(tmp_path):
     out, plot = tmp_path / "best.toml", tmp_path / "place.png"
     res = run("place", room, "--write-layout", out, "--plot", plot, "--top", "3")
     assert res.exit_code == 0, res.stderr
-    assert "left speaker:" in res.stdout and "cm from the front wall" in res.stdout
+    assert "left speaker (woofer):" in res.stdout and "cm from the front wall" in res.stdout
+    assert "listening angle" in res.stdout and "before EQ" in res.stdout
+    assert "must be secured as their makers and your local building codes require" in res.stderr
     for name in ("#1", "#3", "file", "corner", "wall", "mid-room", "desk"):
         assert f"\n  {name} " in res.stdout
     assert plot.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
@@ -81,9 +92,12 @@ def test_place_text_plot_and_write_layout(tmp_path):
     written = load_room(out)
     assert written.search["step_m"] == 0.3 and written.search["keep_out"][0]["name"] == "door"
     # the written layout is the best one listed (positions to the millimetre)
-    best_line = res.stdout.split("#1:\n")[1].splitlines()[0]
+    head, best_line = res.stdout.split("\n#1: ")[1].splitlines()[:2]
     left = written.layout.speakers[0].position_m
-    assert best_line.strip() == (f"left speaker: {left[0] * 100:.0f} cm from the front wall, "
+    right = written.layout.speakers[1].position_m
+    # the header's spacing is the written pair's (woofer to woofer)
+    assert head.startswith(f"spacing {np.linalg.norm(np.subtract(left, right)) * 100:.0f} cm")
+    assert best_line.strip() == (f"left speaker (woofer): {left[0] * 100:.0f} cm from the front wall, "
                                  f"{left[1] * 100:.0f} cm from the left wall, {left[2] * 100:.0f} cm high")
     assert written.layout.speakers[0].lowcut_hz == 48 and written.layout.speakers[0].lowcut_order == 4
     again = run("place", room, "--write-layout", out)
@@ -99,7 +113,11 @@ def test_place_works_on_every_example_room(tmp_path, path):
     res = run("place", room, "--json", "--top", "2")
     assert res.exit_code == 0, res.stderr
     data = json.loads(res.stdout)
-    assert data["ranked"][0]["score"] < min(p["score"] for p in data["presets"])
+    # the search beats every standard placement that meets the same constraints (a preset
+    # that breaks them, e.g. a box against the wall, may score lower and is named as such)
+    inside = [p["score"] for p in data["presets"] if p["in_region"]]
+    assert not inside or data["ranked"][0]["score"] < min(inside)
+    assert all(lay["in_region"] for lay in data["ranked"])
     assert data["current"]["name"] == "file"
 
 
@@ -136,8 +154,10 @@ def test_explain_text_and_plot(tmp_path):
 @pytest.mark.parametrize("search,args,message", [
     (["speaker_front_m = [1.0, 0.5]"], [], "is empty"),
     (["spacing_m = [3.3, 3.4]"], [], "no speaker position fits"),
-    (["keep_out = [{ name = \"everything\", min_m = [0, 0, 0], max_m = [4.6, 3.4, 2.45] }]"], [],
+    (["speaker_front_m = [0.2, 0.9]",
+      "keep_out = [{ name = \"everything\", min_m = [0, 0, 0], max_m = [0.95, 3.4, 2.45] }]"], [],
      "cover every allowed speaker position"),
+    (["rear_clearance_m = -1"], [], "[search] rear_clearance_m: -1 is out of range"),
     (["seat_front_m = [4.0, 4.1]", "speaker_front_m = [0.2, 0.3]"], [], "no layout satisfies every constraint"),
     ([], ["--weights", "mismatch=-1"], "must be >= 0"),
     ([], ["--weights", "flatness=0,mismatch=0,area=0,boost=0"], "all zero"),

@@ -144,3 +144,40 @@ def test_speaker_response_file_sets_the_speaker_roll_off(tmp_path):
     bad = text.replace('"curve.txt"', '"missing.txt"')
     with pytest.raises(RoomFileError, match=r"\[speakers.left\] response_file: cannot read 'missing.txt'"):
         load_room(_write(tmp_path, bad, "bad.toml"))
+
+
+BOX = 'lowcut_order = 2\ncabinet_m = [0.2, 0.32, 0.25]\nwoofer_on_face_m = [0.0, 0.1]\ntweeter_on_face_m = [0.0, 0.24]'
+
+
+def test_cabinet_keys_are_read_and_written_back(tmp_path):
+    room = load_room(_write(tmp_path, GOOD.replace("lowcut_order = 2", BOX)))
+    cab = room.layout.speakers[0].cabinet
+    assert cab.size_m == (0.2, 0.32, 0.25) and cab.woofer_m == (0.0, 0.1) and cab.tweeter_m == (0.0, 0.24)
+    assert cab.centre_above_woofer_m == pytest.approx(0.14)
+    assert room.layout.speakers[1].cabinet is None
+    again = load_room(_write(tmp_path, room_to_toml(room), "again.toml"))
+    assert again.layout.speakers[0].cabinet == cab
+
+
+@pytest.mark.parametrize("new,message", [
+    ("cabinet_m = [0.2, 0.32]", r"\[speakers.left\] cabinet_m: expected \[width, height, depth\]"),
+    ("cabinet_m = [0.2, 0.32, 0.25]", r"\[speakers.left\] woofer_on_face_m: missing"),
+    ("woofer_on_face_m = [0.0, 0.1]", r"\[speakers.left\] woofer_on_face_m: needs cabinet_m"),
+    ("cabinet_m = [0.2, 0.32, 0.25]\nwoofer_on_face_m = [0.0, 0.4]", r"woofer_on_face_m\[1\]: 0.4 is out of range"),
+    ("cabinet_m = [0.2, 0.32, 0.01]\nwoofer_on_face_m = [0.0, 0.1]", r"cabinet_m\[2\]: 0.01 is out of range"),
+])
+def test_bad_cabinet_keys(tmp_path, new, message):
+    with pytest.raises(RoomFileError, match=r"^" + str(tmp_path / "room.toml").replace(".", r"\.") + ": .*" + message):
+        load_room(_write(tmp_path, GOOD.replace("lowcut_order = 2", "lowcut_order = 2\n" + new)))
+
+
+@pytest.mark.parametrize("search,message", [
+    ("spacing = [1, 2]", r"\[search\] unknown key 'spacing'"),
+    ("speaker_front_m = [1.0, 0.5]", r"\[search\] speaker_front_m: the range 1-0.5 m is empty"),
+    ("toe_in = 1", r"\[search\] toe_in: expected true or false"),
+    ("seat_fixed = true\nseat_front_m = [1, 2]", r"\[search\] seat_front_m: has no effect when seat_fixed"),
+])
+def test_search_table_errors_at_load_time(tmp_path, search, message):
+    # one line naming the file, the key path and what is allowed, like every other key
+    with pytest.raises(RoomFileError, match=r"^.*room\.toml: " + message):
+        load_room(_write(tmp_path, GOOD + "\n[search]\n" + search + "\n"))
