@@ -56,7 +56,9 @@ from ..model.placement import (
 )
 from ..model.room import WALL_MARGIN_M, Layout, Speaker
 from ..model.speaker import speaker_response
+from ..solvers import DEFAULT_METHOD
 from ..solvers.modal import modal_sum_block, modal_weights, static_green_block, static_green_pairs
+from .levels import speaker_levels
 from .predict import usable_band
 
 __all__ = [
@@ -530,6 +532,32 @@ class _Scorer:
         return np.clip(vecs, WALL_MARGIN_M, size3 - WALL_MARGIN_M)
 
 
+class _ChainScorer(_Scorer):
+    """The same scorer, its transfers taken from the one chain with a chosen solver.
+
+    The coarse pass and the refinement score tens of thousands of layouts with the batched
+    modal sum; the finalists, the presets and the file's layout are scored again this way,
+    so that the ranking the user sees rests on the default (exact) solver.
+    """
+
+    def __init__(self, base, method):
+        self.__dict__.update(base.__dict__)
+        self.method = method
+
+    def transfer_layouts(self, vecs, chunk=None):
+        v = np.atleast_2d(vecs)
+        a = self.offsets.shape[0]
+        out = np.empty((v.shape[0], 2, a, self.freq_hz.size), dtype=complex)
+        for i, vi in enumerate(v):
+            rec = np.clip(vi[6:9] + self.offsets, WALL_MARGIN_M, self.size - WALL_MARGIN_M)
+            pair = [Speaker("left", tuple(vi[:3])), Speaker("right", tuple(vi[3:6]))]
+            out[i] = speaker_levels(self.room, pair, rec, self.freq_hz, method=self.method,
+                                    include_speaker=False).transfer
+        self.pair_evaluations += 2 * a * v.shape[0]
+        self.layout_evaluations += v.shape[0]
+        return out
+
+
 @dataclass(frozen=True)
 class ScoredLayout:
     """A layout with its score (lower is better) and the score's parts (dB).
@@ -582,6 +610,8 @@ class SearchResult:
     n_pair_evaluations : int
         (source position, listening point) pairs evaluated, each at every frequency.
     n_frequencies : int
+    method : str
+        The solver that scored ``ranked``, ``presets`` and ``current``.
         Frequencies of the search grid.
     """
 
@@ -596,6 +626,7 @@ class SearchResult:
     n_layout_evaluations: int
     n_pair_evaluations: int
     n_frequencies: int
+    method: str = "modal"
 
 
 # ------------------------------------------------------------------------------ layouts <-> vectors
@@ -1070,7 +1101,7 @@ def _scored(name, layout, score, parts, i, in_region=True):
 
 
 def search_layouts(room, space=None, weights=None, band_hz=None, top=5, points_per_octave=DEFAULT_POINTS_PER_OCTAVE,
-                   progress=None, n_seeds=6, refine=True):
+                   progress=None, n_seeds=6, refine=True, method=DEFAULT_METHOD):
     """Search the allowed region for the best stereo-pair-and-seat layouts.
 
     Parameters
@@ -1095,6 +1126,10 @@ def search_layouts(room, space=None, weights=None, band_hz=None, top=5, points_p
     refine : bool
         Run the local refinement and the final line search (off: the coarse grid's best,
         scored in full).
+    method : str
+        The solver that scores the finalists, the presets and the file's layout
+        (:data:`roommodes.solvers.METHODS`); the search itself scans with the batched modal
+        sum.
 
     Returns
     -------
@@ -1140,15 +1175,17 @@ def search_layouts(room, space=None, weights=None, band_hz=None, top=5, points_p
         final_vecs = np.concatenate([rv, final_vecs])
         final_scores = np.concatenate([rs, final_scores])
     keep = _distinct(final_vecs, final_scores, space.distinct_m, limit=top)
-    parts, scores = scorer.score_vecs(final_vecs[keep])
+    final = scorer if method == "modal" else _ChainScorer(scorer, method)
+    parts, scores = final.score_vecs(final_vecs[keep])
     order = np.argsort(scores, kind="stable")
     ranked = tuple(_scored(str(r + 1), _layout(final_vecs[keep[i]], speakers, f"search {r + 1}"), scores[i], parts, i)
                    for r, i in enumerate(order))
-    presets, current = _reference_layouts(room, scorer, cons)
+    presets, current = _reference_layouts(room, final, cons)
     if progress:
         progress(1.0)
     return SearchResult(ranked, presets, current, band, w, space, float(step), int(n_cand),
-                        int(scorer.layout_evaluations), int(scorer.pair_evaluations), int(scorer.freq_hz.size))
+                        int(scorer.layout_evaluations), int(scorer.pair_evaluations), int(scorer.freq_hz.size),
+                        method)
 
 
 def _reference_layouts(room, scorer, cons):

@@ -105,9 +105,10 @@ def _row(label, s, parts):
 @click.option("--write-layout", "layout_path", type=click.Path(path_type=Path), metavar="FILE.toml",
               help="Write the room file again with the best layout (a new file, never the input).")
 @click.option("--force", is_flag=True, help="Overwrite an existing output file (never the input).")
+@method_option
 @json_option
 @units_option
-def place(room_file, top, weights, band, points_per_octave, plot_path, layout_path, force, as_json):
+def place(room_file, top, weights, band, points_per_octave, plot_path, layout_path, force, method, as_json):
     """Search where to put the two speakers and the seat, and rank the layouts.
 
     The allowed region, symmetry, listening triangle, listening area and keep-out boxes
@@ -145,7 +146,7 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
                 state["done"] = n
 
         try:
-            res = search_layouts(room, space, w, band_hz, top, points_per_octave, progress=progress)
+            res = search_layouts(room, space, w, band_hz, top, points_per_octave, progress=progress, method=method)
         finally:
             if state["bar"] is not None:
                 state["bar"].__exit__(None, None, None)
@@ -155,7 +156,7 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
     best = res.ranked[0]
     if as_json:
         dump_json({
-            "room": room.name, "size_m": room.size_m,
+            "room": room.name, "size_m": room.size_m, "method": res.method,
             "band_hz": res.band_hz, "weights": res.weights, "parts": list(PARTS),
             "score_definition": "sum of weight x part, each part in dB; lower is better (docs/placement.md)",
             "search": {"coarse_step_m": res.step_m, "candidates": res.n_candidates,
@@ -179,7 +180,9 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
                    f"({space.area_points[0]} x {space.area_points[1]} points), "
                    f"{'mirror-symmetric pair' if space.symmetric else 'pair placed freely'}")
         click.echo(f"Scored {res.n_candidates} layouts on a {res.step_m * 100:g} cm grid, then refined the best "
-                   f"({res.n_layout_evaluations} layouts in all, {elapsed:.1f} s).")
+                   f"({res.n_layout_evaluations} layouts in all, {elapsed:.1f} s), with the modal sum; the "
+                   f"results below, the standard placements and the file's layout are scored with the {res.method} "
+                   "solver.")
         click.echo("Score (dB, lower is better) = " + " + ".join(f"{res.weights[p]:g} {p}" for p in PARTS))
         click.echo("Each layout is judged after the EQ it needs (one correction per channel, designed over the "
                    "listening area): flatness and mismatch after EQ, boost = the EQ's largest boost; "

@@ -203,7 +203,6 @@ def test_a_filter_at_a_limit_says_so():
 
 def test_default_band_runs_from_the_rolloff_to_schroeder(designs):
     from roommodes.analysis.predict import room_schroeder_frequency
-
     from roommodes.model.modes import room_modes
     from roommodes.model.room import SubSearch
 

@@ -248,10 +248,10 @@ def _box_clear_of_front_wall(woofer, seat, inboard_sign, width=0.25, depth=0.30,
     return min(r[0] for r in rear) >= clearance
 
 
-def _reference_score(room, vec, speakers, f, band, offsets):
+def _reference_score(room, vec, speakers, f, band, offsets, method="modal"):
     def s4(v):
         rec = v[6:9] + offsets
-        h = transfer_function(room, v[:6].reshape(2, 3), rec, f, method="modal")
+        h = transfer_function(room, v[:6].reshape(2, 3), rec, f, method=method)
         lv = [20 * np.log10(np.abs(h[c] * speaker_response(speakers[c], f))) for c in range(2)]
         parts = score_parts(f, lv[0], lv[1], band)
         return sum(DEFAULT_WEIGHTS[k] * parts[k] for k in PARTS[:4]), lv
@@ -260,7 +260,7 @@ def _reference_score(room, vec, speakers, f, band, offsets):
 
     def s4_fixed_eq(v):  # robustness keeps the planned layout's EQ (docs/placement.md)
         rec = v[6:9] + offsets
-        h = transfer_function(room, v[:6].reshape(2, 3), rec, f, method="modal")
+        h = transfer_function(room, v[:6].reshape(2, 3), rec, f, method=method)
         lv = [20 * np.log10(np.abs(h[c] * speaker_response(speakers[c], f))) for c in range(2)]
         sel = (f >= band[0] * (1 - 1e-9)) & (f <= band[1] * (1 + 1e-9))
         after = []
@@ -301,14 +301,22 @@ def test_search_finds_the_brute_force_best_of_a_small_grid():
     assert 4 <= len(cands) <= 30
     ref = [_reference_score(room, v, room.layout.speakers, f, (48.0, 200.0), offsets) for v in cands]
     best = cands[int(np.argmin(ref))]
-    res = search_layouts(room, top=10, refine=False)
+    res = search_layouts(room, top=10, refine=False, method="modal")
     assert res.n_candidates == len(cands)
     got = res.ranked[0]
     np.testing.assert_allclose(np.concatenate([np.ravel([s.position_m for s in got.layout.speakers]),
                                                got.layout.seat_m]), best, atol=1e-4)
     assert got.score == pytest.approx(min(ref), rel=1e-6)
-    refined = search_layouts(room, top=1)
+    refined = search_layouts(room, top=1, method="modal")
     assert refined.ranked[0].score <= min(ref) + 1e-9
+    # the finalists are scored again with the default (exact) solver: the same score,
+    # computed independently through transfer_function with that solver
+    exact = search_layouts(room, top=1, refine=False)
+    assert exact.method == "exact"
+    v = np.concatenate([np.ravel([sp.position_m for sp in exact.ranked[0].layout.speakers]),
+                        exact.ranked[0].layout.seat_m])
+    assert exact.ranked[0].score == pytest.approx(
+        _reference_score(room, v, room.layout.speakers, f, (48.0, 200.0), offsets, method="exact"), rel=1e-6)
 
 
 @pytest.fixture(scope="module")
