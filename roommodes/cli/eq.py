@@ -11,6 +11,7 @@ from .. import __version__
 from ._util import (
     CONTEXT,
     check_output,
+    check_plot,
     dump_json,
     echo_err,
     fail,
@@ -22,6 +23,7 @@ from ._util import (
     parse_range,
     ppo_option,
     protect_inputs,
+    room_inputs,
 )
 
 _SPL_TABLE_HZ = (31.5, 40.0, 50.0, 63.0, 80.0, 100.0, 125.0, 160.0, 200.0)
@@ -228,10 +230,13 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
         options.update(target=target, tilt_db_per_octave=tilt_db, tilt_corner_hz=tilt_corner)
     else:
         options.update(target="table", target_table=_read_target(target))
-    for out in (export_path, plot_path):
-        if out:
-            check_output(out, force)
-            protect_inputs(out, room_file)
+    inputs = room_inputs(room_file, room) + [Path(m.partition("=")[2]) for m in measured]
+    if target not in ("flat", "tilt"):
+        inputs.append(Path(target))
+    if export_path:
+        protect_inputs(export_path, *inputs)
+        check_output(export_path, force, what="--export")
+    check_plot(plot_path, force, *inputs, export_path)
     f = log_frequencies(lo, hi, points_per_octave)
     if measured:
         corrections = _correct_measured(room, lay, measured, f, window_s, room_file, options)

@@ -13,7 +13,7 @@ from ..present.units import format_length, parse_length, walls_text
 from ._util import (
     CONTEXT,
     MODEL_CAUTION,
-    check_output,
+    check_plot,
     display_units_option,
     dump_json,
     echo_err,
@@ -23,7 +23,7 @@ from ._util import (
     layouts_for,
     load_or_fail,
     method_option,
-    protect_inputs,
+    room_inputs,
 )
 
 __all__ = ["map_"]
@@ -112,11 +112,7 @@ def map_(room_file, freq_hz, height, channels, layout, step, units, method, plot
         names = [c.strip() for c in channels.split(",") if c.strip()]
         if not names:
             fail("--channel needs speaker names separated by commas, e.g. left or left,right")
-    if plot_path:
-        protect_inputs(plot_path, room_file)
-        check_output(plot_path, force)
-        if Path(plot_path).suffix.lower() not in (".png", ".svg", ".pdf"):
-            fail(f"{plot_path}: the plot must be a .png, .svg or .pdf file")
+    check_plot(plot_path, force, *room_inputs(room_file, room))
     try:
         fm = floor_level_map(room, freq_hz, lay, h_m, step_m, names, method)
     except ValueError as exc:

@@ -45,6 +45,7 @@ from ._util import (
     CONTEXT,
     MODEL_CAUTION,
     check_output,
+    check_plot,
     dump_json,
     echo_err,
     fail,
@@ -53,6 +54,7 @@ from ._util import (
     load_or_fail,
     method_option,
     protect_inputs,
+    room_inputs,
 )
 
 __all__ = ["CAUTIONS", "COMMANDS", "GUIDANCE", "bands", "compare", "decay", "fit", "ir", "noise", "sweep"]
@@ -241,9 +243,7 @@ def ir(recording, sweep_path, out, wav_channel, loopback, ir_length_s, plot_path
             fail(f"{recording}: --loopback and --wav-channel name the same channel ({loopback})")
         lb, _, _ = read_wav_or_fail(recording, loopback)
     wav = _wav_output(out, force, recording, sweep_path, desc)
-    if plot_path:
-        check_output(plot_path, force)
-        protect_inputs(plot_path, recording, sweep_path, desc)
+    check_plot(plot_path, force, recording, sweep_path, desc, wav)
     try:
         res = deconvolve(y, spec, loopback=lb, fs_hz=fs, ir_length_s=ir_length_s)
     except RecordingError as exc:
@@ -364,7 +364,7 @@ def bands(recording, wav_channel, fraction, band, out, force, as_json):
     x, fs, _ = read_wav_or_fail(recording, wav_channel)
     if out:
         protect_inputs(out, recording)
-        check_output(out, force)
+        check_output(out, force, what="-o")
     if x.size < fs:
         fail(f"{recording}: only {x.size / fs:.2f} s long; record at least 10 s of the noise")
     if not np.any(x):
@@ -426,9 +426,7 @@ def decay(ir_file, wav_channel, band_set, freq_range, n_modes, modal_range, wate
     lo, hi = _parse_band(freq_range)
     mlo, mhi = _parse_band(modal_range)
     h, fs, _ = read_wav_or_fail(ir_file, wav_channel, "impulse response")
-    if waterfall_path:
-        protect_inputs(waterfall_path, ir_file)
-        check_output(waterfall_path, force)
+    check_plot(waterfall_path, force, ir_file, what="--waterfall")
     if h.size < 64 or not np.any(h):
         fail(f"{ir_file}: too short or silent to be an impulse response")
     # the range warnings are in the results' flags too; they are printed from there
@@ -557,10 +555,8 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
     if not (0.01 <= window_s <= 60):
         fail(f"--window must be 0.01..60 s, got {window_s:g}")
     grid = log_frequencies(max(5.0, lo / 2 ** 0.5), min(2000.0, hi * 2 ** 0.5), 48)
-    if plot_path:
-        protect_inputs(plot_path, *files, *against, *([room_file] if room_file else []))
-        check_output(plot_path, force)
     room = load_or_fail(room_file) if room_file else None
+    check_plot(plot_path, force, *files, *against, *(room_inputs(room_file, room) if room_file else []))
     pos = positions(room, at, len(files)) if room is not None else None
     meas = load_measurements(files, wav_channel, window_s, grid)
     first = average_measurements(meas, label=files[0].name if len(files) == 1 else f"mean of {len(files)}")
@@ -690,14 +686,12 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
     if not (0.01 <= window_s <= 60):
         fail(f"--window must be 0.01..60 s, got {window_s:g}")
     outp = Path(out)
-    inputs = [room_file, *files, *(Path(m[2]) for m in measure)]
+    inputs = [*room_inputs(room_file, room), *files, *(Path(m[2]) for m in measure)]
     protect_inputs(outp, *inputs)
     if outp.suffix.lower() != ".toml":
         fail(f"{outp}: the calibrated room file must be a .toml file")
-    check_output(outp, force)
-    if plot_path:
-        protect_inputs(plot_path, *inputs, outp)
-        check_output(plot_path, force)
+    check_output(outp, force, what="-o")
+    check_plot(plot_path, force, *inputs, outp)
     grid = log_frequencies(lo, hi, points_per_octave)
     specs = measurement_specs(room, files, channel, at, measure)
     meas = load_measurements([s[2] for s in specs], wav_channel, window_s, grid)
