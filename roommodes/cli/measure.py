@@ -23,6 +23,7 @@ from .. import __version__
 from ..analysis.compare import average_measurements, compare_measurements, compare_to_prediction, is_wav_file
 from ..analysis.fit import FitTarget, fit_room
 from ..dsp.response import log_frequencies
+from ..io.files import JSON_FILE_BYTES, InputFileError, read_regular
 from ..io.roomfile import room_to_toml, write_text_atomic
 from ..io.wavio import read_wav, write_wav_atomic
 from ..measure.decay import cumulative_spectral_decay, modal_decay_times, reverberation_times
@@ -192,10 +193,16 @@ def _load_sweep_spec(path):
             fail(f"{p}: no sweep description {desc.name} beside it; `roommodes sweep` writes one next to the "
                  "sweep (give --sweep the .sweep.json file if it was moved)")
     try:
-        data = json.loads(desc.read_text(encoding="utf-8"))
+        data = json.loads(read_regular(desc, "sweep description (.sweep.json)", JSON_FILE_BYTES).decode("utf-8"))
+        if not isinstance(data, dict):
+            fail(f"{desc}: not a sweep description (a JSON object from `roommodes sweep` was expected)")
         spec = SweepSpec.from_dict(data)
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         fail(f"{desc}: not a sweep description (not JSON: {exc})")
+    except RecursionError:
+        fail(f"{desc}: not a sweep description (nested too deeply)")
+    except InputFileError as exc:
+        fail(str(exc))
     except ValueError as exc:
         fail(f"{desc}: {exc}")
     if wav is not None:

@@ -45,6 +45,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from ..dsp.response import Response, log_frequencies
+from .files import TEXT_FILE_BYTES, InputFileError, read_regular
 
 __all__ = [
     "CurveAverage",
@@ -60,7 +61,7 @@ __all__ = [
 ]
 
 #: Files larger than this are refused before reading (a text response is kilobytes).
-MAX_FILE_BYTES = 64 * 1024 * 1024
+MAX_FILE_BYTES = TEXT_FILE_BYTES
 
 _COMMENT_PREFIXES = ("#", ";", "*", "//", "%")
 _NUM_POINT = re.compile(r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]{1,4})?")
@@ -145,17 +146,9 @@ def _as_text(text, source):
 def _read_bytes(path):
     name = os.fspath(path)
     try:
-        size = os.path.getsize(name)
-        if size > MAX_FILE_BYTES:
-            raise MeasurementFileError(
-                f"the file is {size / 1e6:.0f} MB; a frequency-response text file is far "
-                f"smaller (limit {MAX_FILE_BYTES / 1e6:.0f} MB): is this the right file?", name)
-        with open(name, "rb") as fh:
-            return fh.read(), name
-    except OSError as exc:
-        raise MeasurementFileError(
-            f"cannot read the file ({exc.strerror or exc}); check the path and permissions",
-            name) from None
+        return read_regular(name, "frequency-response text file", MAX_FILE_BYTES), name
+    except InputFileError as exc:
+        raise MeasurementFileError(exc.reason, name) from None
 
 
 # --------------------------------------------------------------------------- layouts

@@ -210,3 +210,123 @@ def test_plot_never_writes_over_an_input(tmp_path, command):
     os.link(room, tmp_path / "alias.png")
     one_line_error(run(*args, "--plot", tmp_path / "alias.png", "--force"), "alias.png")
     assert digest(tmp_path) == {**before, "alias.png": before["room.toml"]}
+
+
+# ============================================================================ files that are not what they seem
+def _special(tmp_path, kind, suffix):
+    """A path of the given kind: a FIFO, a device, a symbolic-link loop or a folder."""
+    p = tmp_path / f"odd{suffix}"
+    if kind == "fifo":
+        os.mkfifo(p)
+    elif kind == "device":
+        return Path("/dev/zero")
+    elif kind == "loop":
+        a, b = tmp_path / f"a{suffix}", tmp_path / f"b{suffix}"
+        a.symlink_to(b)
+        b.symlink_to(a)
+        return a
+    elif kind == "folder":
+        p.mkdir()
+    return p
+
+
+SPECIAL = ["fifo", "device", "loop", "folder"]
+needs_posix = pytest.mark.skipif(not hasattr(os, "mkfifo") or not Path("/dev/zero").exists(), reason="POSIX only")
+
+
+@needs_posix
+@pytest.mark.parametrize("kind", SPECIAL)
+@pytest.mark.parametrize("command", [["modes"], ["predict"], ["explain"], ["eq"], ["map", "--freq", "50"],
+                                     ["place"], ["report", "-o", "{out}"]])
+def test_room_file_that_is_not_a_regular_file(tmp_path, kind, command):
+    bad = _special(tmp_path, kind, ".toml")
+    args = [a.format(out=tmp_path / "r.html") for a in command[1:]]
+    res = run(command[0], bad, *args)
+    one_line_error(res, bad.name)
+
+
+@needs_posix
+@pytest.mark.parametrize("kind", SPECIAL)
+@pytest.mark.parametrize("command", [
+    ["compare", "{room}", "{bad}", "--channel", "left"], ["fit", "{room}", "{bad}", "--channel", "left", "-o", "{out}"],
+    ["eq", "{room}", "--measured", "left={bad}"], ["decay", "{bad}"], ["bands", "{bad}"],
+    ["eq", "{room}", "--target", "{bad}"],
+])
+def test_measurement_that_is_not_a_regular_file(tmp_path, kind, command):
+    room = room_file(tmp_path)
+    bad = _special(tmp_path, kind, ".txt" if command[0] in ("compare", "fit", "eq") else ".wav")
+    res = run(*[a.format(room=room, bad=bad, out=tmp_path / "o.toml") for a in command])
+    one_line_error(res, bad.name)
+
+
+@needs_posix
+def test_response_file_that_is_a_device(tmp_path):
+    room = room_file(tmp_path, left_extra='response_file = "/dev/zero"\n')
+    one_line_error(run("predict", room), "room.toml", "response_file", "device")
+
+
+@pytest.mark.parametrize("name, body, message", [
+    ("header-only.wav", b"RIFF\x04\x00\x00\x00WAVE", "no 'fmt ' or no 'data' chunk"),
+    ("no-data.wav", b"RIFF\x1c\x00\x00\x00WAVEfmt \x10\x00\x00\x00" + struct.pack("<HHIIHH", 1, 1, 48000, 96000, 2, 16),
+     "no 'fmt ' or no 'data' chunk"),
+    ("rate0.wav", wav_bytes(np.r_[1.0, np.zeros(4000)], fs=0), "sample rate 0 Hz"),
+    ("rate1.wav", wav_bytes(np.r_[1.0, np.zeros(4000)], fs=1), "sample rate 1 Hz"),
+    ("rate10M.wav", wav_bytes(np.r_[1.0, np.zeros(4000)], fs=10_000_000), "sample rate 10000000 Hz"),
+])
+@pytest.mark.parametrize("command", [["compare", "{room}", "{wav}", "--channel", "left"], ["decay", "{wav}"],
+                                     ["eq", "{room}", "--measured", "left={wav}"], ["bands", "{wav}"],
+                                     ["fit", "{room}", "{wav}", "--channel", "left", "-o", "{out}"]])
+def test_broken_wav_files(tmp_path, name, body, message, command):
+    room = room_file(tmp_path)
+    wav = tmp_path / name
+    wav.write_bytes(body)
+    res = run(*[a.format(room=room, wav=wav, out=tmp_path / "o.toml") for a in command])
+    one_line_error(res, name, message)
+    assert not (tmp_path / "o.toml").exists()
+
+
+def test_deeply_nested_sweep_description(tmp_path):
+    desc = tmp_path / "s.sweep.json"
+    desc.write_text("[" * 100_000 + "]" * 100_000)
+    rec = tmp_path / "rec.wav"
+    rec.write_bytes(wav_bytes(np.zeros(48000)))
+    one_line_error(run("ir", rec, "--sweep", desc, "-o", tmp_path / "ir.wav"), "s.sweep.json")
+    assert not (tmp_path / "ir.wav").exists()
+
+
+BIG = "4" + "0" * 400  # an integer of 401 digits
+
+
+@pytest.mark.parametrize("edit, where", [
+    ({"size_m = [4.6": f"size_m = [{BIG}"}, "size_m"),
+    ({"lowcut_hz = 48\nlowcut_order = 4\n\n[speakers.right]": f"lowcut_hz = {BIG}\nlowcut_order = 4\n\n"
+                                                              "[speakers.right]"}, "lowcut_hz"),
+    ({'name = "Test room"': f'name = "Test room"\ntemperature_c = {BIG}'}, "temperature_c"),
+    ({"size_m = [4.6, 3.4, 2.45]": "size_m = " + "[" * 5000 + "]" * 5000}, "nested too deeply"),
+    ({"front = 0.1": "front = " + "{a = " * 3000 + "1" + "}" * 3000}, "nested too deeply"),
+    ({'name = "Test room"': 'name = "' + "x" * 1_000_000 + '"'}, "[room] name"),
+])
+@pytest.mark.parametrize("command", [["modes"], ["predict"], ["explain"], ["eq"], ["map", "--freq", "50"],
+                                     ["place"]])
+def test_room_file_with_hostile_values(tmp_path, edit, where, command):
+    room = room_file(tmp_path, **edit)
+    before = digest(tmp_path)
+    res = run(command[0], room, *command[1:])
+    one_line_error(res, "room.toml", where)
+    assert digest(tmp_path) == before
+
+
+@pytest.mark.parametrize("command", [["modes"], ["predict", "--freq-range", "20,100"]])
+def test_room_file_with_a_byte_order_mark_is_read(tmp_path, command):
+    """Some editors start UTF-8 files with the byte-order mark EF BB BF (Unicode 15.0, sec. 23.8)."""
+    room = tmp_path / "room.toml"
+    room.write_bytes(b"\xef\xbb\xbf" + ROOM.format(left_extra="").encode("utf-8"))
+    res = run(*command[:1], room, *command[1:])
+    assert res.exit_code == 0, res.output
+    assert "Test room" in res.stdout
+
+
+@pytest.mark.parametrize("command", [["place"], ["explain"]])
+def test_search_table_with_a_huge_integer(tmp_path, command):
+    room = room_file(tmp_path, **{"[seat]": f"[search]\narea_m = [{BIG}, 1]\n\n[seat]"})
+    one_line_error(run(command[0], room), "room.toml", "area_m")

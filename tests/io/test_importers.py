@@ -91,7 +91,7 @@ def test_read_from_files(tmp_path):
     curve = read_response_text(p)
     np.testing.assert_allclose(curve.level_db, LEVEL)
     assert curve.source == str(p)
-    with pytest.raises(MeasurementFileError, match=r"missing\.txt: cannot read the file"):
+    with pytest.raises(MeasurementFileError, match=r"missing\.txt: no such file"):
         read_response_text(tmp_path / "missing.txt")
     q = tmp_path / "tones.csv"
     q.write_text("31,5;77,0\n63;80,2\n")
