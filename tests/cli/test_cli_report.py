@@ -313,10 +313,10 @@ def test_map_text_plot_units_and_channel(tmp_path):
 
 
 @pytest.mark.parametrize("args, message", [
-    (("--freq", "0"), "frequency must be 5 to 1000 Hz"),
+    (("--freq", "0"), "--freq must be 5 to 1000 Hz"),
     (("--freq", "50", "--height", "3 m"), "height must lie inside the room"),
     (("--freq", "50", "--height", "tall"), "cannot read 'tall' as a length"),
-    (("--freq", "50", "--step", "1 mm"), "step must be 0.01 to 0.5 m"),
+    (("--freq", "50", "--step", "1 mm"), "--step must be 0.01 to 0.5 m"),
     (("--freq", "50", "--channel", "centre"), "no speaker named 'centre'"),
     (("--freq", "50", "--plot", "map.gif"), "must be a .png, .svg or .pdf file"),
 ])
