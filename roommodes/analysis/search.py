@@ -296,8 +296,12 @@ def search_space(room, table=None):
         lim = (seat_front[0], lx - seat_front[1]) if i == 0 else (
             (ly / 2, ly / 2) if space.seat_on_centre_line else (seat_side, seat_side))
         if x > min(lim) - m:
-            raise ValueError(f"{where} area_m: a listening area {area[0]:g} x {area[1]:g} m around the seat would "
-                             "reach a wall from the allowed seat positions; make it smaller or move seat_front_m")
+            given = "area_m" in t
+            raise ValueError(f"{where} area_m: a listening area {area[0]:g} x {area[1]:g} m around the seat"
+                             + ("" if given else " (the default; the file gives no area_m)")
+                             + " would reach a wall from the allowed seat positions; "
+                             + ("make it smaller or move seat_front_m" if given else
+                                "give a smaller area_m in [search], e.g. area_m = [0.1, 0.1]"))
     return space
 
 

@@ -8,6 +8,7 @@ import click
 import numpy as np
 
 from .. import __version__
+from ..dsp.checks import check_number, check_range
 from ._util import (
     CONTEXT,
     check_output,
@@ -103,9 +104,12 @@ def _print_channel(corr, room_layout_speaker):
                           for b, a in zip(p.positions_error_before, p.positions_error_after))
         click.echo(f"    at the head positions around the seat (rms dB): {pairs}")
     s = corr.shelf
-    sf = s.filters[0]
-    click.echo(f"  Bass (tone) control only: low shelf at {sf.freq_hz:.0f} Hz, {sf.gain_db:+.1f} dB (slope S {s.slope:.2f}); "
-               f"leaves rms {s.error_after.rms_db:.1f} dB, max {s.error_after.max_abs_db:.1f} dB")
+    if s.filters:
+        sf = s.filters[0]
+        click.echo(f"  Bass (tone) control only: low shelf at {sf.freq_hz:.0f} Hz, {sf.gain_db:+.1f} dB (slope S "
+                   f"{s.slope:.2f}); leaves rms {s.error_after.rms_db:.1f} dB, max {s.error_after.max_abs_db:.1f} dB")
+    else:
+        click.echo("  Bass (tone) control only: no shelf (the curve needs none)")
     for g, label in ((corr.graphic_third, "31-band 1/3-octave"), (corr.graphic_octave, "10-band octave")):
         sliders = ", ".join(f"{lab} {v:+.1f}" for lab, v in zip(g.bands.labels, g.gains_db) if abs(v) >= 0.05)
         click.echo(f"  {label} graphic EQ (band Q {g.band_q:.2f}): {sliders or 'all sliders at 0'}")
@@ -219,6 +223,15 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
 
     lo, hi = parse_range(freq_range)
     qlo, qhi = _parse_pair(q_range, "--q-range")
+    try:
+        # the limits are the library's own (analysis.eq), named here as the options
+        max_boost = check_number("--max-boost", max_boost, 0.0, 24.0, unit=" dB")
+        qlo, qhi = check_range("--q-range", (qlo, qhi), lo=0.0, hi=100.0)
+        tilt_db = check_number("--tilt", tilt_db, -6.0, 6.0, unit=" dB/octave")
+        tilt_corner = check_number("--tilt-corner", tilt_corner, 0.0, 2000.0, unit=" Hz", lo_open=True)
+        window_s = check_number("--window", window_s, 0.01, 60.0, unit=" s")
+    except ValueError as exc:
+        fail(str(exc))
     band = parse_range(band_text, "--band") if band_text else None
     room = load_or_fail(room_file)
     (lay,) = layouts_for(room, layout)

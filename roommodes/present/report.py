@@ -864,10 +864,11 @@ def _section_eq(run):
                 for r in p.classification.regions if r.kind != "ok"]
         if regs:
             doc.ul(regs)
-        sf = c.shelf.filters[0]
         g = c.graphic_third
         sliders = ", ".join(f"{lab} {v:+.1f}" for lab, v in zip(g.bands.labels, g.gains_db) if abs(v) >= 0.05)
-        doc.p(f"With a bass tone control only: a low shelf at {sf.freq_hz:.0f} Hz, {sf.gain_db:+.1f} dB. With a "
+        shelf = (f"a low shelf at {c.shelf.filters[0].freq_hz:.0f} Hz, {c.shelf.filters[0].gain_db:+.1f} dB"
+                 if c.shelf.filters else "no shelf (the curve needs none)")
+        doc.p(f"With a bass tone control only: {shelf}. With a "
               f"31-band graphic EQ (1/3 octave): {sliders or 'all sliders at 0'} dB.")
         doc.table(f"graphic-{c.name}", f"1/3-octave graphic EQ sliders for {c.name}", ("band (Hz)", "gain (dB)"),
                   [[lab, _num(v, "+.1f")] for lab, v in zip(g.bands.labels, g.gains_db)])

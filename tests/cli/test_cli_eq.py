@@ -102,8 +102,8 @@ def test_bad_target_files(tmp_path):
 
 
 @pytest.mark.parametrize("args,msg", [
-    (["--max-boost", "-3"], "max_boost_db"),
-    (["--q-range", "10,0.5"], "q_range"),
+    (["--max-boost", "-3"], "--max-boost"),
+    (["--q-range", "10,0.5"], "--q-range"),
     (["--band", "10,400"], "outside the computed range"),
     (["--target", "missing-target.txt"], "missing-target.txt"),
 ])
