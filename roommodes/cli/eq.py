@@ -34,7 +34,7 @@ def _read_target(path):
     from ..io.importers import read_response_text
 
     curve = read_response_text(path)
-    if any("sorted" in note for note in curve.notes):
+    if any("reversed" in note for note in curve.notes):
         fail(f"{path}: the target's frequencies do not rise from row to row; list them in rising order "
              "(a target is a curve, and a row out of place is more likely a typing error than intended)")
     return (np.asarray(curve.freq_hz), np.asarray(curve.level_db))

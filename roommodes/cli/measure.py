@@ -376,6 +376,8 @@ def bands(recording, wav_channel, fraction, band, out, force, as_json):
         fail(f"{recording}: only {x.size / fs:.2f} s long; record at least 10 s of the noise")
     if not np.any(x):
         fail(f"{recording}: is silent; check the microphone input and its gain")
+    if np.std(x) <= 1e-3 * np.abs(np.mean(x)):
+        fail(f"{recording}: holds only a constant (DC) level, no sound; check the microphone input and its gain")
     bl = band_levels(x, fs, int(fraction), lo, hi)
     label = "octave" if fraction == "1" else "1/3-octave"
     if out:
@@ -436,6 +438,8 @@ def decay(ir_file, wav_channel, band_set, freq_range, n_modes, modal_range, wate
     check_plot(waterfall_path, force, ir_file, what="--waterfall")
     if h.size < 64 or not np.any(h):
         fail(f"{ir_file}: too short or silent to be an impulse response")
+    if np.std(h) <= 1e-3 * np.abs(np.mean(h)):
+        fail(f"{ir_file}: holds only a constant (DC) level, not an impulse response; give the output of `roommodes ir`")
     # the range warnings are in the results' flags too; they are printed from there
     rt = reverberation_times(h, fs, bands=band_set, freq_range_hz=(lo, hi), warn=False)
     md = modal_decay_times(h, fs, freq_range_hz=(mlo, min(mhi, 0.45 * fs)), count=n_modes) if n_modes else None

@@ -448,9 +448,18 @@ def _build_curve(text, source, *, delimiter, decimal, columns, max_columns, min_
         raise MeasurementFileError(
             f"level {level[k]:g} dB is outside +-{_MAX_ABS_DB:g} dB: is the second column "
             "really a level in dB?", source, int(lines[k]))
+    step = np.diff(freq)
+    if np.any(step < 0) and np.any(step > 0):
+        # a column that falls, then rises (or the reverse) is two curves or a typing error,
+        # not a curve in reverse order
+        k = int(np.flatnonzero(np.sign(step[1:]) * np.sign(step[:-1]) < 0)[0]) + 1 if step.size > 1 else 0
+        raise MeasurementFileError(
+            f"the frequency column changes direction at {freq[k]:g} Hz (it {'falls' if step[k] < 0 else 'rises'} "
+            f"after {'rising' if step[k] < 0 else 'falling'}); a curve lists its frequencies in one order: is this "
+            "two curves in one file?", source, int(lines[k]))
     order = np.argsort(freq, kind="stable")
     if np.any(order != np.arange(order.size)):
-        notes.append("rows were not in rising frequency order; sorted")
+        notes.append("rows were in falling frequency order; reversed")
         freq, level, lines = freq[order], level[order], lines[order]
         phase = phase[order] if phase is not None else None
     dup = np.flatnonzero(np.diff(freq) <= 0)

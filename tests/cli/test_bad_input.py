@@ -21,6 +21,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 from click.testing import CliRunner
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from roommodes import demo_room_path
 from roommodes.cli import main
@@ -330,3 +332,213 @@ def test_room_file_with_a_byte_order_mark_is_read(tmp_path, command):
 def test_search_table_with_a_huge_integer(tmp_path, command):
     room = room_file(tmp_path, **{"[seat]": f"[search]\narea_m = [{BIG}, 1]\n\n[seat]"})
     one_line_error(run(command[0], room), "room.toml", "area_m")
+
+
+# ============================================================================ valid input, bounded work
+def test_eq_on_a_flat_measured_curve(tmp_path):
+    room = room_file(tmp_path)
+    flat = curve_file(tmp_path, "flat.txt", level=lambda f: np.full_like(f, 80.0))
+    res = run("eq", room, "--measured", f"left={flat}")
+    assert res.exit_code == 0, res.output
+    assert "no shelf" in res.stdout
+
+
+RIGID = {f"{w} = {v}": f"{w} = 0" for w, v in
+         (("front", "0.1"), ("back", "0.3"), ("left", "0.1"), ("right", "0.1"), ("floor", "0.15"), ("ceiling", "0.1"))}
+
+
+@pytest.mark.parametrize("command", [["modes"], ["predict"], ["eq"], ["explain"], ["map", "--freq", "50"]])
+def test_rigid_box_is_computed_with_the_stated_minimum_damping(tmp_path, command):
+    """All six surfaces at absorption 0: every command runs, with MIN_ABSORPTION (the project's own rule)."""
+    from roommodes.model.room import MIN_ABSORPTION
+
+    room = room_file(tmp_path, **RIGID)
+    res = run(command[0], room, *command[1:], "--json")
+    assert res.exit_code == 0, res.output
+    if command[0] == "modes":
+        import json
+
+        first = json.loads(res.stdout)["modes"][0]
+        assert np.isfinite(first["t60_s"]) and first["t60_s"] > 10.0
+        assert MIN_ABSORPTION > 0
+
+
+def test_image_solver_refuses_beyond_its_range(tmp_path):
+    room = room_file(tmp_path)
+    one_line_error(run("predict", room, "--method", "image", "--freq-range", "15,2000"), "image-source", "500 Hz")
+
+
+def test_small_cube_modes_and_default_area(tmp_path):
+    text = {"size_m = [4.6, 3.4, 2.45]": "size_m = [0.5, 0.5, 0.5]", "[0.5, 0.62, 1.15]": "[0.1, 0.1, 0.1]",
+            "[0.5, 2.27, 1.15]": "[0.1, 0.4, 0.1]", "[1.85, 1.45, 1.2]": "[0.35, 0.25, 0.3]"}
+    room = room_file(tmp_path, **text)
+    res = run("modes", room)
+    assert res.exit_code == 0, res.output
+    assert "Not applicable" in res.stdout
+    one_line_error(run("explain", room), "area_m", "the default")
+
+
+def test_large_room_modes_are_listed_and_map_step_is_coarsened(tmp_path):
+    room = room_file(tmp_path, **{"size_m = [4.6, 3.4, 2.45]": "size_m = [50, 40, 15]"})
+    res = run("modes", room, "--freq-range", "0,60")
+    assert res.exit_code == 0, res.output
+    one_line_error(run("modes", room, "--freq-range", "0,2000"), "lower the top frequency")
+    from roommodes.analysis.maps import MAP_MAX_POINTS
+
+    res = run("map", room, "--freq", "20", "--json")
+    assert res.exit_code == 0, res.output
+    import json
+
+    d = json.loads(res.stdout)
+    assert len(d["x_m"]) * len(d["y_m"]) <= MAP_MAX_POINTS
+
+
+@pytest.mark.parametrize("args, names", [
+    (["map", "{room}", "--freq", "1000", "--step", "1cm"], ["room.toml", "at least 3 cm"]),
+    (["map", "{room}", "--freq", "0"], ["--freq"]), (["map", "{room}", "--freq", "nan"], ["--freq"]),
+    (["map", "{room}", "--freq", "-5"], ["--freq"]), (["map", "{room}", "--freq", "1e9"], ["--freq"]),
+    (["map", "{room}", "--freq", "50", "--step", "0"], ["--step"]),
+    (["map", "{room}", "--freq", "50", "--step", "1 mm"], ["--step"]),
+    (["eq", "{room}", "--max-boost", "nan"], ["--max-boost"]), (["eq", "{room}", "--max-boost", "-1"], ["--max-boost"]),
+    (["eq", "{room}", "--max-boost", "1e308"], ["--max-boost"]), (["eq", "{room}", "--q-range", "10,0.5"], ["--q-range"]),
+    (["eq", "{room}", "--q-range", "0,0"], ["--q-range"]), (["eq", "{room}", "--target", "tilt", "--tilt", "nan"], ["--tilt"]),
+    (["eq", "{room}", "--target", "tilt", "--tilt-corner", "0"], ["--tilt-corner"]),
+    (["eq", "{room}", "--area", "9,9"], ["--area"]),
+    (["predict", "{room}", "--points-per-octave", "0"], ["--points-per-octave"]),
+    (["compare", "{room}", "{meas}", "--channel", "left", "--smoothing", "99"], ["--smoothing"]),
+    (["modes"], ["ROOM_FILE"]),
+])
+def test_option_errors_name_the_option(tmp_path, args, names):
+    room = room_file(tmp_path)
+    meas = curve_file(tmp_path)
+    one_line_error(run(*[a.format(room=room, meas=meas) for a in args]), *names)
+
+
+@pytest.mark.parametrize("command, make", [
+    (["bands", "{f}"], lambda: wav_bytes(np.full(48000 * 2, 0.5))),
+    (["decay", "{f}"], lambda: wav_bytes(np.full(48000, 0.5))),
+])
+def test_constant_recordings_are_refused(tmp_path, command, make):
+    f = tmp_path / "dc.wav"
+    f.write_bytes(make())
+    one_line_error(run(*[a.format(f=f) for a in command]), "dc.wav", "DC")
+
+
+def test_measurement_whose_frequencies_fall_then_rise(tmp_path):
+    room = room_file(tmp_path)
+    p = tmp_path / "zigzag.txt"
+    p.write_text("100 1\n50 2\n20 0\n200 1\n300 0\n")
+    one_line_error(run("compare", room, p, "--channel", "left"), "zigzag.txt", "changes direction")
+
+
+@pytest.mark.parametrize("suffix", [".bogus", ".gif"])
+@pytest.mark.parametrize("command, main_out", [
+    (["fit", "{room}", "{meas}", "--channel", "left", "-o", "{out}.toml"], ".toml"),
+    (["eq", "{room}", "--export", "{out}.txt"], ".txt"),
+])
+def test_bad_plot_extension_fails_before_the_main_output(tmp_path, suffix, command, main_out):
+    room = room_file(tmp_path)
+    meas = curve_file(tmp_path)
+    out = tmp_path / "main"
+    args = [a.format(room=room, meas=meas, out=out) for a in command]
+    one_line_error(run(*args, "--plot", tmp_path / f"p{suffix}"), f"p{suffix}")
+    assert not out.with_suffix(main_out).exists() and not leftovers(tmp_path)
+
+
+@pytest.mark.parametrize("target", ["folder", "unwritable"])
+def test_output_that_is_a_folder_or_in_an_unwritable_folder(tmp_path, target):
+    room = room_file(tmp_path)
+    if target == "folder":
+        out = tmp_path / "d.png"
+        out.mkdir()
+    else:
+        if os.geteuid() == 0:
+            pytest.skip("root writes anywhere")
+        ro = tmp_path / "ro"
+        ro.mkdir()
+        ro.chmod(0o500)
+        out = ro / "d.png"
+    one_line_error(run("predict", room, "--plot", out), "d.png" if target == "folder" else "ro")
+
+
+@pytest.mark.parametrize("name", ["", "a\nb", "a\x00b", "x" * 300])
+def test_speaker_names_that_cannot_label_anything_are_refused(tmp_path, name):
+    text = ROOM.format(left_extra="").replace("[speakers.left]", "[speakers." + __import__("json").dumps(name) + "]")
+    room = tmp_path / "room.toml"
+    room.write_text(text, encoding="utf-8")
+    one_line_error(run("predict", room), "room.toml", "speakers.")
+
+
+@pytest.mark.parametrize("name", ["front.left", "gauche-avant", "Lautsprecher \u00e4", 'say "hi"'])
+def test_unusual_speaker_names_round_trip_through_write_layout(tmp_path, name):
+    import json
+    import tomllib
+
+    text = ROOM.format(left_extra="").replace("[speakers.left]", "[speakers." + json.dumps(name) + "]")
+    room = tmp_path / "room.toml"
+    room.write_text(text, encoding="utf-8")
+    res = run("place", room, "--write-layout", tmp_path / "out.toml", "--top", "1")
+    assert res.exit_code == 0, res.output
+    back = tomllib.loads((tmp_path / "out.toml").read_text(encoding="utf-8"))
+    assert name in back["speakers"]
+
+
+# ============================================================================ fuzzing
+
+_FUZZ = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+
+_values = st.recursive(
+    st.none() | st.booleans() | st.integers(min_value=-(10 ** 400), max_value=10 ** 400)
+    | st.floats(allow_nan=True, allow_infinity=True) | st.text(max_size=20),
+    lambda inner: st.lists(inner, max_size=4) | st.dictionaries(st.text(max_size=8), inner, max_size=4),
+    max_leaves=12)
+
+
+def _toml_value(v):
+    """A TOML rendering of ``v`` (None becomes a string; TOML has no null)."""
+    import json
+    import math
+
+    if v is None:
+        return '"none"'
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, int):
+        return str(v)
+    if isinstance(v, float):
+        return "nan" if math.isnan(v) else ("inf" if v > 0 else "-inf") if math.isinf(v) else repr(v)
+    if isinstance(v, str):
+        return json.dumps(v)
+    if isinstance(v, list):
+        return "[" + ", ".join(_toml_value(x) for x in v) + "]"
+    return "{" + ", ".join(f"{json.dumps(k)} = {_toml_value(x)}" for k, x in v.items()) + "}"
+
+
+_KEYS = ["size_m = [4.6, 3.4, 2.45]", "front = 0.1", "position_m = [0.5, 0.62, 1.15]", "lowcut_hz = 48",
+         "lowcut_order = 4", "position_m = [1.85, 1.45, 1.2]", 'name = "Test room"']
+
+
+@_FUZZ
+@given(key=st.sampled_from(_KEYS), value=_values)
+def test_fuzz_room_files(tmp_path_factory, key, value):
+    """Any value at any key: the one-line error or a valid result, never a traceback."""
+    folder = tmp_path_factory.mktemp("fuzz")
+    room = room_file(folder, **{key: key.split(" = ")[0] + " = " + _toml_value(value)})
+    res = run("modes", room, "--freq-range", "0,100", "--json")
+    assert res.exit_code in (0, 2), res.output
+    if res.exit_code == 2:
+        one_line_error(res, "room.toml")
+
+
+@_FUZZ
+@given(data=st.binary(max_size=400) | st.text(alphabet="0123456789.,;-+eE \t\n#", max_size=400).map(str.encode))
+def test_fuzz_measurement_files(tmp_path_factory, data):
+    """Any bytes as a text or WAV measurement: the one-line error or a valid comparison."""
+    folder = tmp_path_factory.mktemp("fuzz")
+    room = room_file(folder)
+    for name, body in (("m.txt", data), ("m.wav", b"RIFF" + data[:4] + b"WAVE" + data[4:])):
+        (folder / name).write_bytes(body)
+        res = run("compare", room, folder / name, "--channel", "left", "--json")
+        assert res.exit_code in (0, 2), res.output
+        if res.exit_code == 2:
+            one_line_error(res, name)
