@@ -31,6 +31,7 @@ from scipy.signal import find_peaks, peak_widths
 
 from ..dsp.bands import band_average_matrix, band_centres, band_fraction_of
 from ..dsp.response import Response, align_level, log_frequencies, smooth_db
+from ..io.files import WAV_FILE_BYTES, open_regular
 from ..io.importers import MeasurementFileError, average_curves, read_response_text
 from ..io.wavio import read_wav
 from ..measure.decay import onset_index
@@ -87,9 +88,9 @@ Measurement = Response
 def is_wav_file(path):
     """Whether ``path`` starts with a RIFF/RIFX/RF64 WAVE header (False if it cannot be read)."""
     try:
-        with open(path, "rb") as fh:
+        with open_regular(path, "measurement", WAV_FILE_BYTES) as fh:
             head = fh.read(12)
-    except OSError:
+    except (OSError, ValueError):
         return False
     return len(head) == 12 and head[:4] in (b"RIFF", b"RIFX", b"RF64") and head[8:12] == b"WAVE"
 

@@ -156,6 +156,9 @@ def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_
             pos = _smooth_db(f, pos, smoothing)
     cautions = []
     top = 250.0 if schroeder_hz is None else float(schroeder_hz)
+    # the default band ends at the Schroeder frequency, but never above the computed range
+    # (a nearly rigid room's Schroeder frequency lies in the kHz)
+    top = min(top, float(f[-1]))
     if band_hz is None:
         band = default_band(lowcut_hz, top, lowest_mode_hz)
         if band[1] <= band[0] * 1.1:

@@ -49,6 +49,9 @@ from ..solvers.modal import modal_weights, static_tail_term
 from .levels import speaker_levels
 from .predict import boundary_notches, room_schroeder_frequency, usable_band
 
+#: Modes read for the causes: up to this factor times the top of the band.
+_CAUSE_CUTOFF_FACTOR = 1.5
+
 __all__ = ["Cause", "Move", "Region", "Explanation", "explain", "modal_decomposition"]
 
 DEFAULT_THRESHOLD_DB = 3.0
@@ -366,7 +369,10 @@ def explain(room, layout=None, channels=None, freq_hz=None, threshold_db=DEFAULT
     seat = np.asarray(layout.seat_m, dtype=float)
     pos = np.array([s.position_m for s in chosen], dtype=float)
     resp = np.stack([speaker_response(s, f) for s in chosen])
-    idx, weight, _ = modal_weights(room.size_m, room.impedance(f), f, room.speed_of_sound)
+    # the causes are read from the modes up to 1.5 times the top of the band: modes further up
+    # add only a smooth background there, and bounding them bounds the (modes, F) weights
+    idx, weight, _ = modal_weights(room.size_m, room.impedance(f), f, room.speed_of_sound,
+                                   cutoff_hz=_CAUSE_CUTOFF_FACTOR * band[1])
     psi = np.vstack([mode_shapes(idx, room.size_m, pos), mode_shapes(idx, room.size_m, [seat])])  # (3, N)
     h = speaker_levels(room, chosen, [seat], f, method=method).transfer[:, 0, :]
     level = level_db(h)

@@ -15,6 +15,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..dsp.checks import check_number
 from ..model.modes import mode_shapes, room_modes
 from ..solvers import DEFAULT_METHOD
 from .levels import speaker_levels
@@ -209,7 +210,11 @@ def _separated_groups(source_m, points_m, mask, gap_m=0.05):
     return groups
 
 
-def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=0.05, channels=None, method=DEFAULT_METHOD,
+#: Most grid points a floor map computes (a 4.6 x 3.4 m floor at 2 cm is 39,100 points).
+MAP_MAX_POINTS = 40000
+
+
+def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=None, channels=None, method=DEFAULT_METHOD,
                     include_speaker=True):
     """Predicted level over the floor plan at ear height at one frequency.
 
@@ -223,7 +228,9 @@ def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=0.05, chan
     height_m : float, optional
         Height of the plane, m, inside the room; default the seat's (ear) height.
     step_m : float
-        Grid step, m, 0.01..0.5 (cells of equal size filling the plan).
+        Grid step, m, 0.01..0.5 (cells of equal size filling the plan); at most
+        :data:`MAP_MAX_POINTS` points. None: 5 cm, or coarser in a floor too large for
+        that many points at 5 cm.
     channels : sequence of str, optional
         Speakers that play (summed in phase); default all.
     method : {"modal", "image"}
@@ -251,9 +258,14 @@ def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=0.05, chan
     h_m = float(layout.seat_m[2] if height_m is None else height_m)
     if not (math.isfinite(h_m) and 0.0 < h_m < lz):
         raise ValueError(f"height must lie inside the room (0 < z < {lz:g} m), got {height_m!r} m")
-    step = float(step_m)
-    if not (math.isfinite(step) and 0.01 <= step <= 0.5):
-        raise ValueError(f"step must be 0.01 to 0.5 m, got {step_m!r}")
+    if step_m is None:
+        # 5 cm, or the finest step that keeps the grid within MAP_MAX_POINTS in a large room
+        step = max(0.05, math.sqrt(lx * ly / MAP_MAX_POINTS) * 1.02)
+        if step > 0.5:
+            raise ValueError(f"the floor ({lx:g} x {ly:g} m) is too large to map at a step of 50 cm or less within "
+                             f"{MAP_MAX_POINTS} points")
+    else:
+        step = check_number("step", step_m, 0.01, 0.5, unit=" m")
     names = [s.name for s in layout.speakers]
     chosen = names if channels is None else list(channels)
     for c in chosen:
@@ -263,6 +275,11 @@ def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=0.05, chan
         raise ValueError("choose at least one speaker")
     speakers = [layout.speakers[names.index(c)] for c in chosen]
     nx, ny = max(2, math.ceil(lx / step)), max(2, math.ceil(ly / step))
+    if nx * ny > MAP_MAX_POINTS:
+        least = math.sqrt(lx * ly / MAP_MAX_POINTS) * 1.02
+        raise ValueError(f"step {step * 100:g} cm gives {nx} x {ny} = {nx * ny} points over the {lx:g} x {ly:g} m floor; "
+                         f"a map computes at most {MAP_MAX_POINTS} points: use a step of at least "
+                         f"{math.ceil(least * 100)} cm")
     x = (np.arange(nx) + 0.5) * lx / nx
     y = (np.arange(ny) + 0.5) * ly / ny
     xx, yy = np.meshgrid(x, y, indexing="ij")

@@ -11,6 +11,7 @@ import click
 import numpy as np
 
 from ..analysis.compare import is_wav_file, load_measurement, speaker_by_name
+from ..io.files import WAV_FILE_BYTES, InputFileError, open_regular
 from ..io.wavio import read_wav
 from ..present.units import parse_lengths
 from ._util import fail
@@ -46,11 +47,12 @@ window_option = click.option(
 
 
 def require_file(path, what):
+    """``path`` as a Path if it is a readable regular file; else one line saying why."""
     p = Path(path)
-    if not p.exists():
-        fail(f"{p}: no such file ({what})")
-    if p.is_dir():
-        fail(f"{p}: is a folder; give the {what}")
+    try:
+        open_regular(p, what, WAV_FILE_BYTES).close()
+    except InputFileError as exc:
+        fail(str(exc))
     return p
 
 

@@ -5,8 +5,10 @@ from __future__ import annotations
 import contextlib
 import functools
 import os
+import signal
 import sys
 import tempfile
+import threading
 from pathlib import Path
 
 import click
@@ -69,22 +71,84 @@ def parse_range(text, name="--freq-range", allow_zero=False):
     return tuple(parts)
 
 
-def check_output(path, force=False):
+def check_output(path, force=False, suffixes=None, what="output"):
+    """Check an output path before any computation, so that a bad one fails first.
+
+    Parameters
+    ----------
+    path : path
+        The file to write.
+    force : bool
+        Whether an existing file may be replaced.
+    suffixes : tuple of str, optional
+        Allowed extensions (lower case, with the dot), e.g. ``(".png", ".svg")``.
+    what : str
+        What the file is, for the message (``"--plot"``).
+
+    Returns
+    -------
+    Path
+    """
     p = Path(path)
-    if not p.parent.exists():
-        fail(f"cannot write {p}: folder {p.parent} does not exist")
+    if suffixes is not None and p.suffix.lower() not in suffixes:
+        kinds = ", ".join(suffixes[:-1]) + " or " + suffixes[-1] if len(suffixes) > 1 else suffixes[0]
+        fail(f"{what} {p}: must be a {kinds} file (got '{p.suffix or 'no extension'}')")
+    if p.is_dir():
+        fail(f"{what} {p}: is a folder; give a file name")
+    parent = p.parent if str(p.parent) else Path(".")
+    if not parent.exists():
+        fail(f"cannot write {p}: folder {parent} does not exist")
     if p.exists() and not force:
         fail(f"{p} already exists; choose another name or pass --force")
+    if p.exists() and not p.is_file():
+        fail(f"{what} {p}: exists and is not a regular file; choose another name")
+    check_folder_writable(parent)
     return p
 
 
+#: Figure formats every ``--plot`` writes (from the file's extension).
+PLOT_SUFFIXES = (".png", ".svg", ".pdf")
+
+
+def check_plot(path, force, *inputs, what="--plot"):
+    """Check a figure's path before computing: format, not an input, folder writable."""
+    if not path:
+        return None
+    protect_inputs(path, *inputs)
+    return check_output(path, force, PLOT_SUFFIXES, what)
+
+
+def _same_file(a, b):
+    try:
+        if os.path.samefile(a, b):
+            return True
+    except OSError:
+        pass
+    try:
+        return Path(a).resolve() == Path(b).resolve()
+    except (OSError, RuntimeError):
+        return False
+
+
 def protect_inputs(out, *inputs):
+    """Fail if ``out`` is one of ``inputs`` (same path, symbolic or hard link), with or without --force."""
     for i in inputs:
-        try:
-            if Path(out).resolve() == Path(i).resolve():
-                fail(f"refusing to write over the input file {i}; choose another output name")
-        except OSError:
-            pass
+        if i is not None and _same_file(out, i):
+            alias = "" if str(out) == str(i) else f" (given as {out})"
+            fail(f"refusing to write over the input file {i}{alias}: inputs are never written, with or without "
+                 "--force; choose another output name")
+
+
+def room_inputs(room_file, room=None):
+    """The files a room file brings in: itself and its speakers' response files."""
+    files = [Path(room_file)]
+    if room is not None and room.layout is not None:
+        base = Path(room_file).parent
+        for sp in room.layout.speakers:
+            if sp.response_file:
+                rp = Path(sp.response_file)
+                files.append(rp if rp.is_absolute() else base / rp)
+    return files
 
 
 freq_range_option = click.option(
@@ -135,18 +199,48 @@ def walls_text(room, pos):
     return _walls_text(room, pos, units)
 
 
+def _exit_on_signal(signum, _frame):
+    raise SystemExit(128 + signum)
+
+
+@contextlib.contextmanager
+def _cleanup_on_terminate():
+    """Turn SIGTERM (and SIGHUP) into ``SystemExit`` while a command runs, so that the
+    ``finally`` clauses that remove temporary files run before the process ends."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    saved = {}
+    for name in ("SIGTERM", "SIGHUP"):
+        sig = getattr(signal, name, None)
+        if sig is not None:
+            try:
+                saved[sig] = signal.signal(sig, _exit_on_signal)
+            except (OSError, ValueError):
+                pass
+    try:
+        yield
+    finally:
+        for sig, handler in saved.items():
+            signal.signal(sig, handler)
+
+
 @contextlib.contextmanager
 def user_errors():
     """Turn input problems raised below the CLI into one line on stderr and exit code 2.
 
     ``ValueError`` (the library's bad-input error, :class:`RoomFileError` included) and
-    ``FileExistsError`` keep their message; other ``OSError`` name the file. A closed stdout
+    ``FileExistsError`` keep their message; other ``OSError`` name the file. SIGTERM ends the
+    command through ``SystemExit`` so that temporary files are removed. A closed stdout
     (``roommodes ... | head``) ends the command quietly, as shell tools do.
     """
     try:
-        yield
+        with _cleanup_on_terminate():
+            yield
     except click.ClickException:
         raise
+    except RecursionError:
+        raise UserError("the input is nested too deeply to read; it is not a file roommodes writes or reads") from None
     except (ValueError, FileExistsError) as exc:
         raise UserError(str(exc)) from None
     except BrokenPipeError:

@@ -20,7 +20,7 @@ import warnings
 import click
 
 from .. import __version__
-from ._util import CONTEXT, user_errors
+from ._util import CONTEXT, UserError, user_errors
 
 __all__ = ["main", "COMMANDS"]
 
@@ -71,7 +71,12 @@ class _Group(click.Group):
     def invoke(self, ctx):
         warnings.showwarning = _show_warning
         with user_errors():
-            return super().invoke(ctx)
+            try:
+                return super().invoke(ctx)
+            except click.UsageError as exc:
+                # a bad option value or a missing argument: one line like every other input error
+                name = f"roommodes {exc.ctx.info_name}" if exc.ctx is not None and exc.ctx.info_name else "roommodes"
+                raise UserError(f"{exc.format_message()} (see `{name} --help`)") from None
 
 
 @click.group(cls=_Group, context_settings=CONTEXT)

@@ -8,10 +8,12 @@ import click
 import numpy as np
 
 from .. import __version__
+from ..dsp.checks import check_number, check_range
 from ..dsp.text import boost_text
 from ._util import (
     CONTEXT,
     check_output,
+    check_plot,
     dump_json,
     echo_err,
     fail,
@@ -23,6 +25,7 @@ from ._util import (
     parse_range,
     ppo_option,
     protect_inputs,
+    room_inputs,
 )
 
 _SPL_TABLE_HZ = (31.5, 40.0, 50.0, 63.0, 80.0, 100.0, 125.0, 160.0, 200.0)
@@ -32,7 +35,7 @@ def _read_target(path):
     from ..io.importers import read_response_text
 
     curve = read_response_text(path)
-    if any("sorted" in note for note in curve.notes):
+    if any("reversed" in note for note in curve.notes):
         fail(f"{path}: the target's frequencies do not rise from row to row; list them in rising order "
              "(a target is a curve, and a row out of place is more likely a typing error than intended)")
     return (np.asarray(curve.freq_hz), np.asarray(curve.level_db))
@@ -102,9 +105,12 @@ def _print_channel(corr, room_layout_speaker):
                           for b, a in zip(p.positions_error_before, p.positions_error_after))
         click.echo(f"    at the head positions around the seat (rms dB): {pairs}")
     s = corr.shelf
-    sf = s.filters[0]
-    click.echo(f"  Bass (tone) control only: low shelf at {sf.freq_hz:.0f} Hz, {sf.gain_db:+.1f} dB (slope S {s.slope:.2f}); "
-               f"leaves rms {s.error_after.rms_db:.1f} dB, max {s.error_after.max_abs_db:.1f} dB")
+    if s.filters:
+        sf = s.filters[0]
+        click.echo(f"  Bass (tone) control only: low shelf at {sf.freq_hz:.0f} Hz, {sf.gain_db:+.1f} dB (slope S "
+                   f"{s.slope:.2f}); leaves rms {s.error_after.rms_db:.1f} dB, max {s.error_after.max_abs_db:.1f} dB")
+    else:
+        click.echo("  Bass (tone) control only: no shelf (the curve needs none)")
     for g, label in ((corr.graphic_third, "31-band 1/3-octave"), (corr.graphic_octave, "10-band octave")):
         sliders = ", ".join(f"{lab} {v:+.1f}" for lab, v in zip(g.bands.labels, g.gains_db) if abs(v) >= 0.05)
         click.echo(f"  {label} graphic EQ (band Q {g.band_q:.2f}): {sliders or 'all sliders at 0'}")
@@ -221,6 +227,15 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
 
     lo, hi = parse_range(freq_range)
     qlo, qhi = _parse_pair(q_range, "--q-range")
+    try:
+        # the limits are the library's own (analysis.eq), named here as the options
+        max_boost = check_number("--max-boost", max_boost, 0.0, 24.0, unit=" dB")
+        qlo, qhi = check_range("--q-range", (qlo, qhi), lo=0.0, hi=100.0)
+        tilt_db = check_number("--tilt", tilt_db, -6.0, 6.0, unit=" dB/octave")
+        tilt_corner = check_number("--tilt-corner", tilt_corner, 0.0, 2000.0, unit=" Hz", lo_open=True)
+        window_s = check_number("--window", window_s, 0.01, 60.0, unit=" s")
+    except ValueError as exc:
+        fail(str(exc))
     band = parse_range(band_text, "--band") if band_text else None
     room = load_or_fail(room_file)
     (lay,) = layouts_for(room, layout)
@@ -232,10 +247,13 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
         options.update(target=target, tilt_db_per_octave=tilt_db, tilt_corner_hz=tilt_corner)
     else:
         options.update(target="table", target_table=_read_target(target))
-    for out in (export_path, plot_path):
-        if out:
-            check_output(out, force)
-            protect_inputs(out, room_file)
+    inputs = room_inputs(room_file, room) + [Path(m.partition("=")[2]) for m in measured]
+    if target not in ("flat", "tilt"):
+        inputs.append(Path(target))
+    if export_path:
+        protect_inputs(export_path, *inputs)
+        check_output(export_path, force, what="--export")
+    check_plot(plot_path, force, *inputs, export_path)
     f = log_frequencies(lo, hi, points_per_octave)
     if measured:
         corrections = _correct_measured(room, lay, measured, f, window_s, room_file, options)

@@ -7,13 +7,14 @@ from pathlib import Path
 import click
 import numpy as np
 
-from ..analysis.maps import floor_level_map
+from ..analysis.maps import MAP_MAX_POINTS, floor_level_map
+from ..dsp.checks import check_number
 from ..present.plots_report import plot_floor_map
 from ..present.units import format_length, parse_length, walls_text
 from ._util import (
     CONTEXT,
     MODEL_CAUTION,
-    check_output,
+    check_plot,
     display_units_option,
     dump_json,
     echo_err,
@@ -23,7 +24,7 @@ from ._util import (
     layouts_for,
     load_or_fail,
     method_option,
-    protect_inputs,
+    room_inputs,
 )
 
 __all__ = ["map_"]
@@ -86,7 +87,8 @@ def _length_or_fail(text, name):
               help="Speakers that play, summed in phase [default: all].")
 @click.option("--layout", type=click.Choice(["file", "corner", "wall", "mid-room", "desk"]), default="file",
               show_default=True, help="Speaker and seat positions.")
-@click.option("--step", "step", default="5 cm", show_default=True, metavar="LENGTH", help="Grid step (1 cm to 50 cm).")
+@click.option("--step", "step", metavar="LENGTH",
+              help=f"Grid step (1 cm to 50 cm, at most {MAP_MAX_POINTS} points)  [default: 5 cm, coarser on a large floor].")
 @display_units_option
 @method_option
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write the map (PNG/SVG/PDF).")
@@ -103,24 +105,21 @@ def map_(room_file, freq_hz, height, channels, layout, step, units, method, plot
     loudest); --plot draws it with the speakers, the seat and the nearest mode's nodal lines.
     """
 
+    freq_hz = check_number("--freq", freq_hz, 5.0, 1000.0, unit=" Hz")
     room = load_or_fail(room_file)
     (lay,) = layouts_for(room, layout)
     h_m = None if height is None else _length_or_fail(height, "--height")
-    step_m = _length_or_fail(step, "--step")
+    step_m = None if step is None else check_number("--step", _length_or_fail(step, "--step"), 0.01, 0.5, unit=" m")
     names = None
     if channels is not None:
         names = [c.strip() for c in channels.split(",") if c.strip()]
         if not names:
             fail("--channel needs speaker names separated by commas, e.g. left or left,right")
-    if plot_path:
-        protect_inputs(plot_path, room_file)
-        check_output(plot_path, force)
-        if Path(plot_path).suffix.lower() not in (".png", ".svg", ".pdf"):
-            fail(f"{plot_path}: the plot must be a .png, .svg or .pdf file")
+    check_plot(plot_path, force, *room_inputs(room_file, room))
     try:
         fm = floor_level_map(room, freq_hz, lay, h_m, step_m, names, method)
     except ValueError as exc:
-        fail(str(exc))
+        fail(f"{room_file}: {exc}" if "step" in str(exc) or "floor" in str(exc) else str(exc))
     xm, ym, top = fm.extreme("max")
     xn, yn, low = fm.extreme("min")
     if as_json:

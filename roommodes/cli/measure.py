@@ -23,6 +23,7 @@ from .. import __version__
 from ..analysis.compare import average_measurements, compare_measurements, compare_to_prediction, is_wav_file
 from ..analysis.fit import FitTarget, fit_room
 from ..dsp.response import log_frequencies
+from ..io.files import JSON_FILE_BYTES, InputFileError, read_regular
 from ..io.roomfile import room_to_toml, write_text_atomic
 from ..io.wavio import read_wav, write_wav_atomic
 from ..measure.decay import cumulative_spectral_decay, modal_decay_times, reverberation_times
@@ -45,6 +46,7 @@ from ._util import (
     CONTEXT,
     MODEL_CAUTION,
     check_output,
+    check_plot,
     dump_json,
     echo_err,
     fail,
@@ -53,6 +55,7 @@ from ._util import (
     load_or_fail,
     method_option,
     protect_inputs,
+    room_inputs,
 )
 
 __all__ = ["CAUTIONS", "COMMANDS", "GUIDANCE", "bands", "compare", "decay", "fit", "ir", "noise", "sweep"]
@@ -190,10 +193,16 @@ def _load_sweep_spec(path):
             fail(f"{p}: no sweep description {desc.name} beside it; `roommodes sweep` writes one next to the "
                  "sweep (give --sweep the .sweep.json file if it was moved)")
     try:
-        data = json.loads(desc.read_text(encoding="utf-8"))
+        data = json.loads(read_regular(desc, "sweep description (.sweep.json)", JSON_FILE_BYTES).decode("utf-8"))
+        if not isinstance(data, dict):
+            fail(f"{desc}: not a sweep description (a JSON object from `roommodes sweep` was expected)")
         spec = SweepSpec.from_dict(data)
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         fail(f"{desc}: not a sweep description (not JSON: {exc})")
+    except RecursionError:
+        fail(f"{desc}: not a sweep description (nested too deeply)")
+    except InputFileError as exc:
+        fail(str(exc))
     except ValueError as exc:
         fail(f"{desc}: {exc}")
     if wav is not None:
@@ -241,9 +250,7 @@ def ir(recording, sweep_path, out, wav_channel, loopback, ir_length_s, plot_path
             fail(f"{recording}: --loopback and --wav-channel name the same channel ({loopback})")
         lb, _, _ = read_wav_or_fail(recording, loopback)
     wav = _wav_output(out, force, recording, sweep_path, desc)
-    if plot_path:
-        check_output(plot_path, force)
-        protect_inputs(plot_path, recording, sweep_path, desc)
+    check_plot(plot_path, force, recording, sweep_path, desc, wav)
     try:
         res = deconvolve(y, spec, loopback=lb, fs_hz=fs, ir_length_s=ir_length_s)
     except RecordingError as exc:
@@ -364,11 +371,13 @@ def bands(recording, wav_channel, fraction, band, out, force, as_json):
     x, fs, _ = read_wav_or_fail(recording, wav_channel)
     if out:
         protect_inputs(out, recording)
-        check_output(out, force)
+        check_output(out, force, what="-o")
     if x.size < fs:
         fail(f"{recording}: only {x.size / fs:.2f} s long; record at least 10 s of the noise")
     if not np.any(x):
         fail(f"{recording}: is silent; check the microphone input and its gain")
+    if np.std(x) <= 1e-3 * np.abs(np.mean(x)):
+        fail(f"{recording}: holds only a constant (DC) level, no sound; check the microphone input and its gain")
     bl = band_levels(x, fs, int(fraction), lo, hi)
     label = "octave" if fraction == "1" else "1/3-octave"
     if out:
@@ -426,11 +435,11 @@ def decay(ir_file, wav_channel, band_set, freq_range, n_modes, modal_range, wate
     lo, hi = _parse_band(freq_range)
     mlo, mhi = _parse_band(modal_range)
     h, fs, _ = read_wav_or_fail(ir_file, wav_channel, "impulse response")
-    if waterfall_path:
-        protect_inputs(waterfall_path, ir_file)
-        check_output(waterfall_path, force)
+    check_plot(waterfall_path, force, ir_file, what="--waterfall")
     if h.size < 64 or not np.any(h):
         fail(f"{ir_file}: too short or silent to be an impulse response")
+    if np.std(h) <= 1e-3 * np.abs(np.mean(h)):
+        fail(f"{ir_file}: holds only a constant (DC) level, not an impulse response; give the output of `roommodes ir`")
     # the range warnings are in the results' flags too; they are printed from there
     rt = reverberation_times(h, fs, bands=band_set, freq_range_hz=(lo, hi), warn=False)
     md = modal_decay_times(h, fs, freq_range_hz=(mlo, min(mhi, 0.45 * fs)), count=n_modes) if n_modes else None
@@ -558,10 +567,8 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
     if not (0.01 <= window_s <= 60):
         fail(f"--window must be 0.01..60 s, got {window_s:g}")
     grid = log_frequencies(max(5.0, lo / 2 ** 0.5), min(2000.0, hi * 2 ** 0.5), 48)
-    if plot_path:
-        protect_inputs(plot_path, *files, *against, *([room_file] if room_file else []))
-        check_output(plot_path, force)
     room = load_or_fail(room_file) if room_file else None
+    check_plot(plot_path, force, *files, *against, *(room_inputs(room_file, room) if room_file else []))
     pos = positions(room, at, len(files)) if room is not None else None
     meas = load_measurements(files, wav_channel, window_s, grid)
     first = average_measurements(meas, label=files[0].name if len(files) == 1 else f"mean of {len(files)}")
@@ -691,14 +698,12 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
     if not (0.01 <= window_s <= 60):
         fail(f"--window must be 0.01..60 s, got {window_s:g}")
     outp = Path(out)
-    inputs = [room_file, *files, *(Path(m[2]) for m in measure)]
+    inputs = [*room_inputs(room_file, room), *files, *(Path(m[2]) for m in measure)]
     protect_inputs(outp, *inputs)
     if outp.suffix.lower() != ".toml":
         fail(f"{outp}: the calibrated room file must be a .toml file")
-    check_output(outp, force)
-    if plot_path:
-        protect_inputs(plot_path, *inputs, outp)
-        check_output(plot_path, force)
+    check_output(outp, force, what="-o")
+    check_plot(plot_path, force, *inputs, outp)
     grid = log_frequencies(lo, hi, points_per_octave)
     specs = measurement_specs(room, files, channel, at, measure)
     meas = load_measurements([s[2] for s in specs], wav_channel, window_s, grid)

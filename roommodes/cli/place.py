@@ -21,6 +21,7 @@ from ._util import (
     CONTEXT,
     MODEL_CAUTION,
     check_output,
+    check_plot,
     dump_json,
     echo_err,
     fail,
@@ -29,6 +30,7 @@ from ._util import (
     method_option,
     parse_range,
     protect_inputs,
+    room_inputs,
     units_option,
     walls_text,
 )
@@ -123,10 +125,10 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
     room = load_or_fail(room_file)
     w = _parse_weights(weights)
     band_hz = parse_range(band, "--band") if band else None
-    for out in (plot_path, layout_path):
-        if out:
-            protect_inputs(out, room_file)
-            check_output(out, force)
+    if layout_path:
+        protect_inputs(layout_path, *room_inputs(room_file, room))
+        check_output(layout_path, force, what="--write-layout")
+    check_plot(plot_path, force, *room_inputs(room_file, room), layout_path)
     if layout_path and Path(layout_path).suffix.lower() != ".toml":
         fail(f"--write-layout needs a .toml file name, got {layout_path}")
     try:
@@ -337,9 +339,7 @@ def explain(room_file, channels, threshold, band, freq_range, points_per_octave,
     room = load_or_fail(room_file)
     if room.layout is None:
         fail(f"{room_file}: the room file has no [speakers] and [seat]; add them to explain the difference")
-    if plot_path:
-        protect_inputs(plot_path, room_file)
-        check_output(plot_path, force)
+    check_plot(plot_path, force, *room_inputs(room_file, room))
     try:
         keep = search_space(room).keep_out
         e = run_explain(room, channels=names, freq_hz=log_frequencies(lo, hi, points_per_octave),

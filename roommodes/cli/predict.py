@@ -18,7 +18,7 @@ from ..present.plots import plot_modes, plot_prediction
 from ._util import (
     CONTEXT,
     MODEL_CAUTION,
-    check_output,
+    check_plot,
     dump_json,
     echo_err,
     fail,
@@ -29,7 +29,7 @@ from ._util import (
     method_option,
     parse_range,
     ppo_option,
-    protect_inputs,
+    room_inputs,
     units_option,
     walls_text,
 )
@@ -54,11 +54,10 @@ def modes(room_file, freq_range, plot_path, force, as_json):
 
     lo, hi = parse_range(freq_range, allow_zero=True)
     room = load_or_fail(room_file)
+    check_plot(plot_path, force, *room_inputs(room_file, room))
     ms = room_modes(room, hi)
     sel = ms.freq_hz >= lo
     summ = room_summary(room)
-    if plot_path:
-        check_output(plot_path, force)
     if as_json:
         dump_json({
             "room": room.name, "size_m": room.size_m,
@@ -136,9 +135,7 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
     lo, hi = parse_range(freq_range)
     room = load_or_fail(room_file)
     layouts = layouts_for(room, layout)
-    if plot_path:
-        check_output(plot_path, force)
-        protect_inputs(plot_path, room_file)
+    check_plot(plot_path, force, *room_inputs(room_file, room))
     f = log_frequencies(lo, hi, points_per_octave)
     t0 = time.perf_counter()
     try:

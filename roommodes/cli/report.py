@@ -25,7 +25,7 @@ from ._measured import load_measurements, measured_files_options, measurement_sp
 from ._util import (
     CONTEXT,
     MODEL_CAUTION,
-    check_folder_writable,
+    check_output,
     display_units_option,
     echo_err,
     fail,
@@ -33,6 +33,7 @@ from ._util import (
     load_or_fail,
     method_option,
     protect_inputs,
+    room_inputs,
 )
 
 __all__ = ["report", "write_report"]
@@ -47,12 +48,50 @@ def _sha256(path):
 
 
 # ---------------------------------------------------------------------------- report
+def _refuse_inside(folder, path):
+    """Fail if the input ``path`` lies inside the report folder that --force would replace."""
+    try:
+        inside = Path(path).resolve().is_relative_to(Path(folder).resolve())
+    except (OSError, RuntimeError):
+        inside = False
+    if inside:
+        fail(f"the input {path} lies inside {folder}, which the report replaces; move it out first")
+
+
+#: A file the report writes into its own folder: only a folder holding it is ever replaced.
+REPORT_MARKER = ".roommodes-report"
+
+
 def _files_folder(out):
     return out.with_name(out.stem + "_files")
 
 
+def check_report_folder(folder, force):
+    """Fail unless ``folder`` is absent, or (with ``force``) a report folder this program wrote.
+
+    A folder is replaced only when it is a real folder (not a symbolic link) holding
+    :data:`REPORT_MARKER`; anything else is the user's and is never removed.
+    """
+    folder = Path(folder)
+    if folder.is_symlink():
+        fail(f"{folder} is a symbolic link; roommodes does not replace it: remove it or choose another report name")
+    if not folder.exists():
+        return
+    if not folder.is_dir():
+        fail(f"{folder} exists and is not a folder; remove it or choose another report name")
+    if not force:
+        fail(f"{folder} already exists; choose another report name or pass --force")
+    if not (folder / REPORT_MARKER).is_file():
+        fail(f"{folder} exists and was not written by roommodes report (no {REPORT_MARKER} file in it); it is left "
+             "alone even with --force: move it away or choose another report name")
+
+
 def write_report(out, rep, force):
-    """Write the page and its folder so that either both appear complete or nothing changes."""
+    """Write the page and its folder so that either both appear complete or nothing changes.
+
+    An existing folder is replaced only if :func:`check_report_folder` allows it (checked
+    again here, just before the swap).
+    """
     folder = _files_folder(out)
     parent = out.parent
     tmp_dir = parent / f".{folder.name}.tmp-{os.getpid()}"
@@ -62,15 +101,16 @@ def write_report(out, rep, force):
     tmp_html = parent / f".{out.name}.tmp-{os.getpid()}"
     old = None
     try:
+        (tmp_dir / REPORT_MARKER).write_text(f"written by roommodes {__version__} report; replaced by the next "
+                                             "report of the same name with --force\n", encoding="utf-8")
         for fig in rep.figures:
             (tmp_dir / f"{fig.name}.png").write_bytes(fig.png)
             (tmp_dir / f"{fig.name}.svg").write_bytes(fig.svg)
         for t in rep.tables:
             (tmp_dir / f"{t.name}.csv").write_text(t.csv_text(), encoding="utf-8")
         tmp_html.write_text(rep.html, encoding="utf-8")
+        check_report_folder(folder, force)
         if folder.exists():
-            if not force:
-                fail(f"{folder} already exists; choose another report name or pass --force")
             old = parent / f".{folder.name}.old-{os.getpid()}"
             os.replace(folder, old)
         os.replace(tmp_dir, folder)
@@ -136,15 +176,11 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
     out = Path(out)
     if out.suffix.lower() not in (".html", ".htm"):
         fail(f"{out}: the report must be an .html file")
-    protect_inputs(out, room_file, *files, *(Path(m[2]) for m in measure))
-    check_folder_writable(out.parent if str(out.parent) else Path("."))
+    inputs_given = [Path(room_file), *files, *(Path(m[2]) for m in measure)]
+    protect_inputs(out, *inputs_given)
+    check_output(out, force, what="-o")
     folder = _files_folder(out)
-    if out.exists() and not force:
-        fail(f"{out} already exists; choose another name or pass --force")
-    if folder.exists() and not force:
-        fail(f"{folder} already exists; choose another report name or pass --force")
-    if folder.exists() and not folder.is_dir():
-        fail(f"{folder} exists and is not a folder; remove it or choose another report name")
+    check_report_folder(folder, force)
     if not (0.01 <= window_s <= 60):
         fail(f"--window must be 0.01..60 s, got {window_s:g}")
     if do_fit and not (files or measure):
@@ -152,6 +188,9 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
     if (at or channel) and not files:
         fail("--channel and --at describe measurement FILES; none were given")
     room = load_or_fail(room_file)
+    for p in room_inputs(room_file, room)[1:] + inputs_given:
+        protect_inputs(out, p)
+        _refuse_inside(folder, p)
     specs = []
     if files or measure:
         if room.layout is None:

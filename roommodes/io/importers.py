@@ -45,6 +45,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from ..dsp.response import Response, log_frequencies
+from .files import TEXT_FILE_BYTES, InputFileError, read_regular
 
 __all__ = [
     "CurveAverage",
@@ -60,7 +61,7 @@ __all__ = [
 ]
 
 #: Files larger than this are refused before reading (a text response is kilobytes).
-MAX_FILE_BYTES = 64 * 1024 * 1024
+MAX_FILE_BYTES = TEXT_FILE_BYTES
 
 _COMMENT_PREFIXES = ("#", ";", "*", "//", "%")
 _NUM_POINT = re.compile(r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]{1,4})?")
@@ -145,17 +146,9 @@ def _as_text(text, source):
 def _read_bytes(path):
     name = os.fspath(path)
     try:
-        size = os.path.getsize(name)
-        if size > MAX_FILE_BYTES:
-            raise MeasurementFileError(
-                f"the file is {size / 1e6:.0f} MB; a frequency-response text file is far "
-                f"smaller (limit {MAX_FILE_BYTES / 1e6:.0f} MB): is this the right file?", name)
-        with open(name, "rb") as fh:
-            return fh.read(), name
-    except OSError as exc:
-        raise MeasurementFileError(
-            f"cannot read the file ({exc.strerror or exc}); check the path and permissions",
-            name) from None
+        return read_regular(name, "frequency-response text file", MAX_FILE_BYTES), name
+    except InputFileError as exc:
+        raise MeasurementFileError(exc.reason, name) from None
 
 
 # --------------------------------------------------------------------------- layouts
@@ -455,9 +448,18 @@ def _build_curve(text, source, *, delimiter, decimal, columns, max_columns, min_
         raise MeasurementFileError(
             f"level {level[k]:g} dB is outside +-{_MAX_ABS_DB:g} dB: is the second column "
             "really a level in dB?", source, int(lines[k]))
+    step = np.diff(freq)
+    if np.any(step < 0) and np.any(step > 0):
+        # a column that falls, then rises (or the reverse) is two curves or a typing error,
+        # not a curve in reverse order
+        k = int(np.flatnonzero(np.sign(step[1:]) * np.sign(step[:-1]) < 0)[0]) + 1 if step.size > 1 else 0
+        raise MeasurementFileError(
+            f"the frequency column changes direction at {freq[k]:g} Hz (it {'falls' if step[k] < 0 else 'rises'} "
+            f"after {'rising' if step[k] < 0 else 'falling'}); a curve lists its frequencies in one order: is this "
+            "two curves in one file?", source, int(lines[k]))
     order = np.argsort(freq, kind="stable")
     if np.any(order != np.arange(order.size)):
-        notes.append("rows were not in rising frequency order; sorted")
+        notes.append("rows were in falling frequency order; reversed")
         freq, level, lines = freq[order], level[order], lines[order]
         phase = phase[order] if phase is not None else None
     dup = np.flatnonzero(np.diff(freq) <= 0)

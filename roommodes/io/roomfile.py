@@ -35,6 +35,7 @@ from ..model.room import (
     SubSearch,
     Surface,
 )
+from .files import ROOM_FILE_BYTES, InputFileError, read_regular
 from .importers import read_response_text
 
 __all__ = ["RoomFileError", "load_room", "parse_room", "room_to_toml", "demo_room_path",
@@ -55,6 +56,22 @@ _SURFACE_TABLE_KEYS = {"absorption", "bands_hz", "material"}
 
 class RoomFileError(ValueError):
     """A room file that cannot be used; the message says where and how to fix it."""
+
+
+#: Longest room or speaker name accepted (a name is a label, not a document).
+MAX_NAME_CHARS = 200
+
+
+def _shown(value, limit=60):
+    """``repr(value)`` cut to ``limit`` characters, for messages."""
+    text = repr(value)
+    return text if len(text) <= limit else text[:limit - 3] + "..."
+
+
+def _label(name, limit=40):
+    """A name as it goes into a message: as written if printable, else quoted; cut to ``limit``."""
+    text = name if name.isprintable() else repr(name)
+    return text if len(text) <= limit else text[:limit - 3] + "..."
 
 
 def _rooms_folder():
@@ -97,10 +114,13 @@ class _Ctx:
 
     def number(self, value, key, lo=None, hi=None, what="a number"):
         if isinstance(value, bool) or not isinstance(value, (int, float)):
-            self.fail(key, f"expected {what}, got {value!r}")
-        v = float(value)
+            self.fail(key, f"expected {what}, got {_shown(value)}")
+        try:
+            v = float(value)
+        except OverflowError:  # an integer of hundreds of digits
+            v = math.inf
         if not math.isfinite(v):
-            self.fail(key, f"expected a finite number, got {value!r}")
+            self.fail(key, f"expected a finite number, got {_shown(value)}")
         if (lo is not None and v < lo) or (hi is not None and v > hi):
             rng = f"{lo:g} to {hi:g}" if lo is not None and hi is not None else (
                 f">= {lo:g}" if lo is not None else f"<= {hi:g}")
@@ -109,7 +129,7 @@ class _Ctx:
 
     def vector(self, value, key, n=3):
         if not isinstance(value, list) or len(value) != n:
-            self.fail(key, f"expected a list of {n} numbers in metres, e.g. [1.0, 2.0, 1.2], got {value!r}")
+            self.fail(key, f"expected a list of {n} numbers in metres, e.g. [1.0, 2.0, 1.2], got {_shown(value)}")
         return tuple(self.number(v, f"{key}[{i}]") for i, v in enumerate(value))
 
 
@@ -196,7 +216,9 @@ def parse_room(data, name="<room>", base_dir=None):
     temp = ctx.number(room_t.get("temperature_c", 20.0), "[room] temperature_c", -20.0, 50.0)
     room_name = room_t.get("name", Path(name).stem)
     if not isinstance(room_name, str):
-        ctx.fail("[room] name", f"expected text, got {room_name!r}")
+        ctx.fail("[room] name", f"expected text, got {_shown(room_name)}")
+    if len(room_name) > MAX_NAME_CHARS:
+        ctx.fail("[room] name", f"is {len(room_name)} characters long; a name has at most {MAX_NAME_CHARS}")
 
     surf_t = data["surfaces"]
     if not isinstance(surf_t, dict):
@@ -214,7 +236,8 @@ def parse_room(data, name="<room>", base_dir=None):
         ctx.fail("[speakers]", "must be a table of named speakers, e.g. [speakers.left]")
     speakers = []
     for sname, st in speakers_t.items():
-        key = f"[speakers.{sname}]"
+        key = f"[speakers.{_label(sname)}]"
+        _check_speaker_name(ctx, sname)
         if not isinstance(st, dict):
             ctx.fail(key, "must be a table with at least position_m")
         ctx.unknown_keys(st, _SPEAKER_KEYS, key)
@@ -227,7 +250,7 @@ def parse_room(data, name="<room>", base_dir=None):
             lowcut = ctx.number(lowcut, f"{key} lowcut_hz", 5.0, 500.0)
         order = st.get("lowcut_order", 2)
         if order not in (2, 4) or isinstance(order, bool):
-            ctx.fail(f"{key} lowcut_order", f"must be 2 (sealed box) or 4 (vented box), got {order!r}")
+            ctx.fail(f"{key} lowcut_order", f"must be 2 (sealed box) or 4 (vented box), got {_shown(order)}")
         response = None
         rfile = st.get("response_file")
         if rfile is not None:
@@ -291,6 +314,7 @@ def parse_room(data, name="<room>", base_dir=None):
     subs_search = None
     if "subs" in data:
         subs_search = _parse_subs(ctx, data["subs"], size)
+    _check_numbers_fit(ctx, search, "[search]")
     room = Room(room_name, size, surfaces, temp, layout, search, str(name), subs_search)
     try:  # the placement constraints are checked now, not when a search first reads them
         search_space(room)
@@ -435,6 +459,36 @@ def _parse_cabinet(ctx, key, st):
     return Cabinet(size, faces["woofer_on_face_m"], faces.get("tweeter_on_face_m"))
 
 
+def _check_numbers_fit(ctx, value, key, depth=0):
+    """Refuse numbers no float holds (integers of hundreds of digits) and deep nesting in a
+    table read by another part of the package (``[search]``); its own checks do the rest."""
+    if depth > 4:
+        ctx.fail(key, "is nested too deeply; see docs/placement.md for what the table holds")
+    if isinstance(value, dict):
+        for k, v in value.items():
+            _check_numbers_fit(ctx, v, f"{key} {k}" if depth == 0 else f"{key}.{k}", depth + 1)
+    elif isinstance(value, list):
+        for i, v in enumerate(value):
+            _check_numbers_fit(ctx, v, f"{key}[{i}]", depth + 1)
+    elif isinstance(value, int) and not isinstance(value, bool):
+        try:
+            float(value)
+        except OverflowError:
+            ctx.fail(key, f"expected a number of sensible size, got an integer of {len(str(abs(value)))} digits")
+
+
+def _check_speaker_name(ctx, name):
+    """A speaker's name is a label printed in tables, plots and file names: printable, one line."""
+    key = f"[speakers.{_label(name)}]"
+    if not name.strip():
+        ctx.fail(key, "the speaker's name is empty; name it, e.g. [speakers.left]")
+    if len(name) > MAX_NAME_CHARS:
+        ctx.fail(key, f"the speaker's name is {len(name)} characters long; a name has at most {MAX_NAME_CHARS}")
+    if not name.isprintable():
+        ctx.fail(key, "the speaker's name holds a control character (a line break, tab or NUL); use a "
+                      "name on one line, e.g. [speakers.left]")
+
+
 def _read_speaker_curve(ctx, key, rfile, base_dir):
     path = Path(rfile)
     if not path.is_absolute() and base_dir is not None:
@@ -442,7 +496,9 @@ def _read_speaker_curve(ctx, key, rfile, base_dir):
     try:
         curve = read_response_text(path)
     except (OSError, ValueError) as exc:
-        ctx.fail(key, f"cannot read '{rfile}': {exc}")
+        reason = getattr(exc, "reason", None) or str(exc)
+        line = getattr(exc, "line", None)
+        ctx.fail(key, f"cannot read '{rfile}'" + (f" (line {line})" if line else "") + f": {reason}")
     return (np.asarray(curve.freq_hz), np.asarray(curve.level_db))
 
 
@@ -466,14 +522,11 @@ def load_room(path):
     """
     p = Path(path)
     name = str(path)
-    if not p.exists():
-        raise RoomFileError(f"{name}: no such file")
-    if p.is_dir():
-        raise RoomFileError(f"{name}: is a directory; give the path of a .toml room file")
     try:
-        raw = p.read_bytes()
-    except OSError as exc:
-        raise RoomFileError(f"{name}: cannot be read ({exc.strerror})") from None
+        raw = read_regular(p, "room file (.toml)", ROOM_FILE_BYTES)
+    except InputFileError as exc:
+        raise RoomFileError(str(exc)) from None
+    raw = raw.removeprefix(b"\xef\xbb\xbf")  # a UTF-8 byte-order mark, as some editors write
     if not raw.strip():
         raise RoomFileError(f"{name}: the file is empty; it needs at least [room] and [surfaces] tables "
                             "(see docs/room-file.md or copy rooms/demo-studio.toml)")
@@ -485,6 +538,9 @@ def load_room(path):
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise RoomFileError(f"{name}: is not valid TOML: {exc}") from None
+    except RecursionError:
+        raise RoomFileError(f"{name}: arrays or tables are nested too deeply; a room file nests at most two "
+                            "levels (see docs/room-file.md)") from None
     return parse_room(data, name, p.parent)
 
 
@@ -581,7 +637,7 @@ def room_to_toml(room, comment=None, *, original_text=None, position_note=None, 
     str
         TOML text; names, paths and keys are quoted and escaped as TOML requires.
     """
-    doc = tomlkit.parse(original_text) if original_text else tomlkit.document()
+    doc = tomlkit.parse(original_text.removeprefix("\ufeff")) if original_text else tomlkit.document()
     if not original_text:
         for line in _COORDINATES_NOTE.splitlines():
             doc.add(tomlkit.comment(line))

@@ -30,7 +30,14 @@ from pathlib import Path
 import numpy as np
 from scipy.io import wavfile
 
-__all__ = ["SUBTYPES", "WavInfo", "read_wav", "write_wav_atomic"]
+from .files import WAV_FILE_BYTES, InputFileError, open_regular
+
+__all__ = ["SUBTYPES", "MIN_RATE_HZ", "MAX_RATE_HZ", "WavInfo", "read_wav", "write_wav_atomic"]
+
+#: Sample rates read: a recording of the low frequencies needs 1 kHz at least, and the
+#: rates of audio interfaces stop at 768 kHz.
+MIN_RATE_HZ = 1000
+MAX_RATE_HZ = 768000
 
 #: Sample formats :func:`write_wav_atomic` writes: name -> (format tag, bits per sample).
 SUBTYPES = {
@@ -120,22 +127,26 @@ def read_wav(path, channel=None):
 
     Raises
     ------
-    FileNotFoundError
-        No such file.
     ValueError
         Not a readable WAV file, or the channel does not exist (the message names the
         file).
     """
     p = Path(path)
-    if not p.is_file():
-        raise FileNotFoundError(f"{p}: no such file")
     try:
-        with warnings.catch_warnings():
+        with open_regular(p, "WAV file", WAV_FILE_BYTES) as fh, warnings.catch_warnings():
             # chunks scipy does not interpret (LIST, bext, ...) are harmless here
             warnings.simplefilter("ignore", wavfile.WavFileWarning)
-            fs, raw = wavfile.read(str(p))
+            fs, raw = wavfile.read(fh)
+    except InputFileError:
+        raise
     except (ValueError, EOFError, struct.error, OSError, IndexError) as exc:
         raise ValueError(f"{p}: not a readable WAV file ({exc})") from None
+    except UnboundLocalError:  # the reader found no 'fmt ' or no 'data' chunk before the end
+        raise ValueError(f"{p}: not a readable WAV file (it has no 'fmt ' or no 'data' chunk: the header alone, "
+                         "or a file cut short)") from None
+    if not MIN_RATE_HZ <= int(fs) <= MAX_RATE_HZ:
+        raise ValueError(f"{p}: sample rate {int(fs)} Hz is not a recording's; roommodes reads {MIN_RATE_HZ} to "
+                         f"{MAX_RATE_HZ} Hz (check the file's header)")
     fmt = _read_format(p)
     n_ch = 1 if raw.ndim == 1 else raw.shape[1]
     if channel is None:

@@ -25,6 +25,7 @@ an oblique mode then decays at Sabine's rate ``c A / (8 V)``. The decay time is
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -38,6 +39,10 @@ __all__ = [
     "wall_weights",
     "room_modes",
 ]
+
+#: Most index triples :func:`mode_indices` examines (the box around the sphere of modes,
+#: 6 / pi times the mode count): 8 million triples take about 0.4 GB while they are sorted.
+MAX_MODE_CANDIDATES = 8_000_000
 
 #: Mode kinds by number of non-zero indices (0 is the uniform term).
 KINDS = ("uniform", "axial", "tangential", "oblique")
@@ -64,6 +69,14 @@ def mode_indices(size_m, fmax_hz, speed_of_sound):
     size = np.asarray(size_m, dtype=float)
     c = float(speed_of_sound)
     nmax = np.floor(2.0 * fmax_hz * size / c).astype(int)
+    candidates = int(np.prod(nmax + 1.0))
+    if candidates > MAX_MODE_CANDIDATES:
+        # Weyl's estimate of the count, (4 pi / 3) V (f / c)^3, for the message
+        n_est = 4.0 * np.pi / 3.0 * np.prod(size) * (fmax_hz / c) ** 3
+        raise ValueError(f"a {size[0]:g} x {size[1]:g} x {size[2]:g} m room has about {n_est:.3g} modes up to "
+                         f"{fmax_hz:g} Hz; roommodes handles about {MAX_MODE_CANDIDATES * np.pi / 6:.2g} at most "
+                         f"(up to about {fmax_hz * (MAX_MODE_CANDIDATES / candidates) ** (1 / 3):.0f} Hz in this room): "
+                         "lower the top frequency")
     nx, ny, nz = np.meshgrid(*(np.arange(m + 1) for m in nmax), indexing="ij")
     idx = np.stack([nx.ravel(), ny.ravel(), nz.ravel()], axis=1)
     f = mode_frequencies(idx, size, c)
@@ -125,23 +138,26 @@ class ModeSet:
     freq_hz: np.ndarray
     decay_constant: np.ndarray
 
-    @property
+    # order, kind, t60_s and bandwidth_hz are computed once, on first use, and kept: a table
+    # printed row by row reads them once per row
+
+    @functools.cached_property
     def order(self):
         """Number of non-zero indices: 0 uniform, 1 axial, 2 tangential, 3 oblique."""
         return np.count_nonzero(self.indices, axis=1)
 
-    @property
+    @functools.cached_property
     def kind(self):
         """Kind names (:data:`KINDS`) of every mode."""
         return np.array(KINDS)[self.order]
 
-    @property
+    @functools.cached_property
     def t60_s(self):
         """Modal decay time ``3 ln 10 / delta`` (s); inf for an undamped mode."""
         with np.errstate(divide="ignore"):
             return 3.0 * np.log(10.0) / self.decay_constant
 
-    @property
+    @functools.cached_property
     def bandwidth_hz(self):
         """Half-power bandwidth ``delta / pi`` (Hz)."""
         return self.decay_constant / np.pi

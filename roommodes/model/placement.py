@@ -449,8 +449,12 @@ def search_space(room, table=None):
             lim = (seat_front[0], lx - seat_front[1]) if i == 0 else (
                 (ly / 2, ly / 2) if space.seat_on_centre_line else (seat_side, seat_side))
         if x > min(lim) - m:
-            raise ValueError(f"{where} area_m: a listening area {area[0]:g} x {area[1]:g} m around the seat would "
-                             "reach a wall from the allowed seat positions; make it smaller or move the seat")
+            given = "area_m" in t
+            raise ValueError(f"{where} area_m: a listening area {area[0]:g} x {area[1]:g} m around the seat"
+                             + ("" if given else " (the default; the file gives no area_m)")
+                             + " would reach a wall from the allowed seat positions; "
+                             + ("make it smaller or move the seat" if given else
+                                "give a smaller area_m in [search], e.g. area_m = [0.1, 0.1]"))
     lo, hi = space.woofer_height_range_m()
     if lo > hi:
         raise ValueError(f"{where} ear_height_tolerance_m: no woofer height in speaker_height_m "

@@ -52,6 +52,11 @@ WALL_FAR = (False, True, False, True, False, True)
 
 #: Plausible room dimensions, m (what a room file may give).
 MAX_DIMENSION_M = 100.0
+#: Least absorption coefficient used: a surface given 0 (rigid, lossless) is taken at this
+#: minimum, so that every mode has a finite decay (T60 of the order of 100 s in a small room)
+#: and every command treats a rigid box alike. Real walls absorb more (painted concrete
+#: about 0.01 at low frequencies, common practice).
+MIN_ABSORPTION = 0.001
 MIN_DIMENSION_M = 0.5
 #: Speakers and the seat must be at least this far from every surface, m.
 WALL_MARGIN_M = 0.02
@@ -384,9 +389,15 @@ class Room:
         return float(self.surface_areas_m2.sum())
 
     def absorption(self, freq_hz):
-        """(6, F) random-incidence absorption of each surface at ``freq_hz``."""
+        """(6, F) random-incidence absorption of each surface at ``freq_hz``, at least
+        :data:`MIN_ABSORPTION` (a rigid surface, given as 0, is taken at that minimum)."""
         f = np.atleast_1d(np.asarray(freq_hz, dtype=float))
-        return np.stack([s.absorption_at(f) for s in self.surfaces])
+        return np.maximum(np.stack([s.absorption_at(f) for s in self.surfaces]), MIN_ABSORPTION)
+
+    @property
+    def rigid_surfaces(self):
+        """Names of the surfaces given less absorption than :data:`MIN_ABSORPTION` somewhere."""
+        return tuple(s.name for s in self.surfaces if min(s.absorption) < MIN_ABSORPTION)
 
     def impedance(self, freq_hz):
         """(6, F) real normalised wall impedance (see :mod:`roommodes.walls`)."""

@@ -22,6 +22,7 @@ import html
 import io
 import math
 import platform
+import re
 from dataclasses import dataclass
 
 import numpy as np
@@ -191,6 +192,16 @@ def _esc(text):
     return html.escape(str(text), quote=True)
 
 
+_UNSAFE_IN_NAME = re.compile(r"[^A-Za-z0-9_-]+")
+
+
+def safe_stem(text, limit=40):
+    """A file-name stem from user text (a speaker's name): ASCII letters, digits, '-' and '_'
+    only, at most ``limit`` characters; never empty, never a path."""
+    stem = _UNSAFE_IN_NAME.sub("-", str(text)).strip("-_")[:limit].strip("-_")
+    return stem or "x"
+
+
 def _fmt(v, spec):
     if v is None or (isinstance(v, float) and not math.isfinite(v)):
         return "-"
@@ -299,7 +310,7 @@ class _Doc:
     def figure(self, fig, stem, title, caption=""):
         number = len(self.figures) + 1
         png, svg = _render(fig)
-        name = f"f{number:02d}-{stem}"
+        name = f"f{number:02d}-{safe_stem(stem)}"
         self.figures.append(ReportFigure(name, number, title, caption, png, svg))
         data, mime = (svg, "image/svg+xml") if self.embed == "svg" else (png, "image/png")
         b64 = base64.b64encode(data).decode("ascii")
@@ -307,13 +318,13 @@ class _Doc:
         self.parts.append(
             f'<figure id="fig-{number}"><img src="data:{mime};base64,{b64}" alt="Figure {number}: {_esc(title)}" '
             f'style="width:{width}px"><figcaption><strong>Figure {number}.</strong> {_esc(title)}. '
-            f'{_esc(caption)} <span class="note">(files {name}.png, {name}.svg)</span></figcaption></figure>')
+            f'{_esc(caption)} <span class="note">(files {_esc(name)}.png, {_esc(name)}.svg)</span></figcaption></figure>')
         return number
 
     def table(self, stem, title, columns, rows, note="", key=None):
         """Rows of cells: str, or (value, text) for a number (right-aligned, with data-value)."""
         number = len(self.tables) + 1
-        name = f"t{number:02d}-{stem}"
+        name = f"t{number:02d}-{safe_stem(stem)}"
         text_rows, value_rows = [], []
         body = []
         for row in rows:
@@ -338,8 +349,8 @@ class _Doc:
         self.tables.append(t)
         head = "".join(f"<th>{_esc(c)}</th>" for c in columns)
         k = f' data-key="{_esc(key)}"' if key else ""
-        note_html = f'<p class="note">{_esc(note)} (file {name}.csv)</p>' if note else \
-            f'<p class="note">(file {name}.csv)</p>'
+        note_html = f'<p class="note">{_esc(note)} (file {_esc(name)}.csv)</p>' if note else \
+            f'<p class="note">(file {_esc(name)}.csv)</p>'
         self.parts.append(f'<table id="table-{number}"{k}><caption>Table {number}. {_esc(title)}</caption>'
                           f"<thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>{note_html}")
         return number
@@ -854,10 +865,11 @@ def _section_eq(run):
                 for r in p.classification.regions if r.kind != "ok"]
         if regs:
             doc.ul(regs)
-        sf = c.shelf.filters[0]
         g = c.graphic_third
         sliders = ", ".join(f"{lab} {v:+.1f}" for lab, v in zip(g.bands.labels, g.gains_db) if abs(v) >= 0.05)
-        doc.p(f"With a bass tone control only: a low shelf at {sf.freq_hz:.0f} Hz, {sf.gain_db:+.1f} dB. With a "
+        shelf = (f"a low shelf at {c.shelf.filters[0].freq_hz:.0f} Hz, {c.shelf.filters[0].gain_db:+.1f} dB"
+                 if c.shelf.filters else "no shelf (the curve needs none)")
+        doc.p(f"With a bass tone control only: {shelf}. With a "
               f"31-band graphic EQ (1/3 octave): {sliders or 'all sliders at 0'} dB.")
         doc.table(f"graphic-{c.name}", f"1/3-octave graphic EQ sliders for {c.name}", ("band (Hz)", "gain (dB)"),
                   [[lab, _num(v, "+.1f")] for lab, v in zip(g.bands.labels, g.gains_db)])

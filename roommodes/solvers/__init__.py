@@ -77,6 +77,11 @@ def _check_points(room, name, pts):
     return p
 
 
+#: Highest frequency the image-source solver is asked for (about 10 s per source and
+#: receiver at 300 Hz in the demo room; its work grows with the cube of the frequency).
+IMAGE_MAX_HZ = 500.0
+
+
 def transfer_function(room, sources_m, receivers_m, freq_hz, method=None, **options):
     """Complex transfer from point sources to receivers in ``room``.
 
@@ -122,6 +127,11 @@ def transfer_function(room, sources_m, receivers_m, freq_hz, method=None, **opti
     if method == "modal":
         return modal_transfer(room.size_m, zeta, src, rec, f, room.speed_of_sound, **options)
     if method == "image":
+        if f.max() > IMAGE_MAX_HZ:
+            raise ValueError(
+                f"the image-source solver computes up to {IMAGE_MAX_HZ:g} Hz (its images, and its time, grow "
+                f"with the cube of the frequency), got frequencies up to {f.max():g} Hz; use the exact solver "
+                "(--method exact, the default) or lower the top of --freq-range")
         # imported on first use: the image kernel loads numba, which costs start-up time
         from .images import image_source_transfer
 

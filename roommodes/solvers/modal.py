@@ -43,6 +43,8 @@ __all__ = ["modal_transfer", "modal_transfer_direct", "static_green", "DEFAULT_C
 
 #: The modal sum runs to ``DEFAULT_CUTOFF_FACTOR`` times the highest frequency asked for.
 DEFAULT_CUTOFF_FACTOR = 3.0
+#: Modes times frequencies per block of the modal sum's weights (2**22 complex: 64 MiB).
+_BLOCK_ELEMENTS = 1 << 22
 #: Terms of the static series are kept while exp(-kappa |d|) > exp(-_STATIC_DECAY).
 _STATIC_DECAY = 18.0
 #: Cap on the number of 2-D modes per axis in the static series.
@@ -420,9 +422,20 @@ def modal_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound
     size = np.asarray(size_m, dtype=float)
     src = _as_points("sources_m", sources_m)
     rec = _as_points("receivers_m", receivers_m)
-    idx, weight, sw = modal_weights(size, zeta, freq_hz, speed_of_sound, cutoff_hz=cutoff_hz)
+    f = np.atleast_1d(np.asarray(freq_hz, dtype=float))
+    z = impedance_table(zeta, f.size)
+    fc = DEFAULT_CUTOFF_FACTOR * f.max() if cutoff_hz is None else float(cutoff_hz)
+    # the same modes for every frequency; the (modes, F) weights are made a block of
+    # frequencies at a time, so memory stays bounded however many modes the band needs
+    idx, weight, sw = modal_weights(size, z[:, :1], f[:1], speed_of_sound, cutoff_hz=fc)
     shapes = (mode_shapes(idx, size, src), mode_shapes(idx, size, rec))
-    h = modal_sum_block(*shapes, weight)
+    block = max(1, _BLOCK_ELEMENTS // max(idx.shape[0], 1))
+    h = np.empty((src.shape[0], rec.shape[0], f.size), dtype=complex)
+    h[:, :, :1] = modal_sum_block(*shapes, weight)
+    for i0 in range(1, f.size, block):
+        sl = slice(i0, min(i0 + block, f.size))
+        _, weight, _ = modal_weights(size, z[:, sl], f[sl], speed_of_sound, cutoff_hz=fc)
+        h[:, :, sl] = modal_sum_block(*shapes, weight)
     if static_tail:
         h += static_tail_term(size, src, rec, idx, sw, shapes=shapes)[:, :, None]
     return h

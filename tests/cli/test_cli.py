@@ -88,7 +88,7 @@ def test_demo_writes_figures(tmp_path):
     (("predict", "nope.toml"), "no such file"),
     (("predict", DEMO, "--freq-range", "300,15"), "--freq-range must be LOW,HIGH"),
     (("predict", DEMO, "--freq-range", "abc"), "--freq-range must be LOW,HIGH"),
-    (("modes", "."), "is a directory"),
+    (("modes", "."), "is a folder"),
 ])
 def test_bad_input_one_line_exit_2(args, message):
     res = run(*args)

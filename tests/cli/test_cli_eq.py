@@ -96,14 +96,14 @@ def test_bad_target_files(tmp_path):
     unsorted.write_text("20 3\n100 0\n50 1\n250 0\n")
     short = tmp_path / "short.txt"
     short.write_text("20 3\n")
-    for path, msg in ((unsorted, "do not rise"), (short, "at least 3")):
+    for path, msg in ((unsorted, "changes direction"), (short, "at least 3")):
         r = CliRunner().invoke(main, ["eq", DEMO, "--target", str(path)])
         assert r.exit_code == 2 and msg in r.stderr and str(path.name) in r.stderr
 
 
 @pytest.mark.parametrize("args,msg", [
-    (["--max-boost", "-3"], "max_boost_db"),
-    (["--q-range", "10,0.5"], "q_range"),
+    (["--max-boost", "-3"], "--max-boost"),
+    (["--q-range", "10,0.5"], "--q-range"),
     (["--band", "10,400"], "outside the computed range"),
     (["--target", "missing-target.txt"], "missing-target.txt"),
 ])

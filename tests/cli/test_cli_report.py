@@ -28,7 +28,7 @@ from roommodes.analysis.compare import predicted_level
 from roommodes.cli import main
 from roommodes.cli.init import init
 from roommodes.cli.map import map_
-from roommodes.cli.report import report
+from roommodes.cli.report import REPORT_MARKER, report
 from roommodes.model.materials import material_names
 from roommodes.model.room import Surface
 from roommodes.present.report import Report, ReportFigure, Table
@@ -236,12 +236,13 @@ def test_report_force_replaces_page_and_folder_whole(tmp_path, monkeypatch):
     out = tmp_path / "r.html"
     out.write_text("old")
     (tmp_path / "r_files").mkdir()
+    (tmp_path / "r_files" / REPORT_MARKER).write_text("")  # the folder of an earlier report
     (tmp_path / "r_files" / "stale.png").write_bytes(b"old figure")
     res = run(report, DEMO, "-o", out, "--force")
     assert res.exit_code == 0, res.output
     assert "new" in out.read_text()
-    assert sorted(p.name for p in (tmp_path / "r_files").iterdir()) == ["f01-fake.png", "f01-fake.svg",
-                                                                       "t01-fake.csv"]
+    assert sorted(p.name for p in (tmp_path / "r_files").iterdir()) == [REPORT_MARKER, "f01-fake.png",
+                                                                       "f01-fake.svg", "t01-fake.csv"]
     assert (tmp_path / "r_files" / "t01-fake.csv").read_text() == "a,b\n1.0,x\n"
     assert not leftovers(tmp_path)
 
@@ -258,12 +259,13 @@ def test_report_failure_while_writing_leaves_the_old_report(tmp_path, monkeypatc
     out = tmp_path / "r.html"
     out.write_text("old")
     (tmp_path / "r_files").mkdir()
+    (tmp_path / "r_files" / REPORT_MARKER).write_text("")
     (tmp_path / "r_files" / "old.png").write_bytes(b"old figure")
     res = run(report, DEMO, "-o", out, "--force")
     assert res.exit_code == 2
     assert "No space left on device" in res.stderr
     assert out.read_text() == "old"
-    assert [p.name for p in (tmp_path / "r_files").iterdir()] == ["old.png"]
+    assert sorted(p.name for p in (tmp_path / "r_files").iterdir()) == [REPORT_MARKER, "old.png"]
     assert not leftovers(tmp_path)
     # and without an old report, nothing at all remains
     out2 = tmp_path / "s.html"
@@ -311,10 +313,10 @@ def test_map_text_plot_units_and_channel(tmp_path):
 
 
 @pytest.mark.parametrize("args, message", [
-    (("--freq", "0"), "frequency must be 5 to 1000 Hz"),
+    (("--freq", "0"), "--freq must be 5 to 1000 Hz"),
     (("--freq", "50", "--height", "3 m"), "height must lie inside the room"),
     (("--freq", "50", "--height", "tall"), "cannot read 'tall' as a length"),
-    (("--freq", "50", "--step", "1 mm"), "step must be 0.01 to 0.5 m"),
+    (("--freq", "50", "--step", "1 mm"), "--step must be 0.01 to 0.5 m"),
     (("--freq", "50", "--channel", "centre"), "no speaker named 'centre'"),
     (("--freq", "50", "--plot", "map.gif"), "must be a .png, .svg or .pdf file"),
 ])

@@ -49,7 +49,7 @@ LAYOUTS = [
     ("cr-only", "20 -3.5\r25.5 -2\r31.5 0.25\r", False),
     ("exponents", "2.0e1,-3.5E0\n2.55e+1,-2\n3.15e1,2.5e-1\n", False),
     ("quoted-csv", '"Freq","SPL"\n"20","-3,5"\n"25,5","-2"\n"31,5","0,25"\n', False),
-    ("unsorted", "31.5 0.25 12\n20 -3.5 10\n25.5 -2 -11.5\n", True),
+    ("falling", "31.5 0.25 12\n25.5 -2 -11.5\n20 -3.5 10\n", True),
     ("radians", "Freq\tdB\tPhase [rad]\n20\t-3.5\t" + repr(math.radians(10)) + "\n25.5\t-2\t"
      + repr(math.radians(-11.5)) + "\n31.5\t0.25\t" + repr(math.radians(12)) + "\n", True),
 ]
@@ -65,8 +65,14 @@ def test_layouts_read_to_the_same_numbers(name, text, has_phase):
     else:
         assert curve.phase_deg is None
     assert curve.source == f"{name}.txt"
-    if name == "unsorted":
-        assert any("sorted" in n for n in curve.notes)
+    if name == "falling":
+        assert any("reversed" in n for n in curve.notes)
+
+
+def test_frequencies_that_fall_then_rise_are_refused():
+    """The project's own rule: a column out of order in the middle is not a curve to sort silently."""
+    with pytest.raises(MeasurementFileError, match=r"x\.txt, line 3: the frequency column changes direction at 20 Hz"):
+        parse_response_text("31.5 0.25\n25.5 -2\n20 -3.5\n40 1\n", "x.txt")
 
 
 @pytest.mark.parametrize("name,text,has_phase", LAYOUTS[:6], ids=[x[0] for x in LAYOUTS[:6]])
@@ -91,7 +97,7 @@ def test_read_from_files(tmp_path):
     curve = read_response_text(p)
     np.testing.assert_allclose(curve.level_db, LEVEL)
     assert curve.source == str(p)
-    with pytest.raises(MeasurementFileError, match=r"missing\.txt: cannot read the file"):
+    with pytest.raises(MeasurementFileError, match=r"missing\.txt: no such file"):
         read_response_text(tmp_path / "missing.txt")
     q = tmp_path / "tones.csv"
     q.write_text("31,5;77,0\n63;80,2\n")

@@ -110,7 +110,7 @@ def test_not_toml_empty_missing_directory(tmp_path):
         load_room(_write(tmp_path, "  \n"))
     with pytest.raises(RoomFileError, match="no such file"):
         load_room(tmp_path / "nope.toml")
-    with pytest.raises(RoomFileError, match="is a directory"):
+    with pytest.raises(RoomFileError, match="is a folder"):
         load_room(tmp_path)
     p = tmp_path / "bin.toml"
     p.write_bytes(b"\xff\xfe\x00\x01")

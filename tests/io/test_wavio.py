@@ -117,7 +117,7 @@ def test_not_a_wav_and_missing_file(tmp_path):
     p.write_text("frequency,level\n20,80\n")
     with pytest.raises(ValueError, match=r"notes\.wav: not a readable WAV file"):
         read_wav(p)
-    with pytest.raises(FileNotFoundError, match=r"nothere\.wav"):
+    with pytest.raises(ValueError, match=r"nothere\.wav: no such file"):
         read_wav(tmp_path / "nothere.wav")
 
 
