@@ -1240,7 +1240,7 @@ def why_it_wins(best, other, weights, other_label="the file's layout"):
 
 
 def score_layouts(room, layouts, weights=None, band_hz=None, area_m=(0.6, 0.6), area_points=(3, 3),
-                  points_per_octave=DEFAULT_POINTS_PER_OCTAVE, robustness=True):
+                  points_per_octave=DEFAULT_POINTS_PER_OCTAVE, robustness=True, method="modal"):
     """Score given layouts with the search's figure of merit (batched).
 
     Parameters
@@ -1255,6 +1255,9 @@ def score_layouts(room, layouts, weights=None, band_hz=None, area_m=(0.6, 0.6), 
         The listening area (see :class:`SearchSpace`).
     robustness : bool
         Compute the robustness part (else it is 0).
+    method : str
+        The solver (default the batched modal sum, as the search's scan; the search's
+        finalists are scored with :data:`roommodes.solvers.DEFAULT_METHOD`).
 
     Returns
     -------
@@ -1265,6 +1268,8 @@ def score_layouts(room, layouts, weights=None, band_hz=None, area_m=(0.6, 0.6), 
     if not layouts:
         raise ValueError("no layouts to score")
     scorer = _scorer_for(room, layouts[0], weights, band_hz, area_m, area_points, points_per_octave)
+    if method != "modal":
+        scorer = _ChainScorer(scorer, method)
     vecs = np.array([_vec(lay) for lay in layouts])
     _check_inside(room, scorer, vecs)
     parts, scores = scorer.score_vecs(vecs, robustness=robustness)

@@ -316,10 +316,11 @@ def parse_room(data, name="<room>", base_dir=None):
         subs_search = _parse_subs(ctx, data["subs"], size)
     _check_numbers_fit(ctx, search, "[search]")
     room = Room(room_name, size, surfaces, temp, layout, search, str(name), subs_search)
-    try:  # the placement constraints are checked now, not when a search first reads them
-        search_space(room)
-    except ValueError as exc:
-        raise RoomFileError(str(exc)) from None
+    if search:  # the user's placement constraints are checked now, not when a search first reads them
+        try:
+            search_space(room)
+        except ValueError as exc:
+            raise RoomFileError(str(exc)) from None
     return room
 
 
