@@ -103,6 +103,22 @@ class Region:
     move: Move | None
     sentence: str
 
+    def to_dict(self):
+        """JSON-ready values (the ``regions`` entries of ``explain --json``)."""
+        m = self.move
+        return {
+            "freq_hz": list(self.freq_hz), "peak_hz": self.peak_hz, "difference_db": self.difference_db,
+            "valid": self.valid,
+            "causes": [{**c.data, "contribution_db": c.contribution_db, "text": c.text} for c in self.causes],
+            "notches": list(self.notches),
+            "move": None if m is None else {
+                "speaker": m.speaker, "axis": "xyz"[m.axis], "delta_m": m.delta_m, "direction": m.direction,
+                "position_m": m.position_m, "region_before_db": m.region_before_db,
+                "region_after_db": m.region_after_db, "band_before_db": m.band_before_db,
+                "band_after_db": m.band_after_db},
+            "sentence": self.sentence,
+        }
+
 
 @dataclass(frozen=True)
 class Explanation:
@@ -153,6 +169,23 @@ class Explanation:
     regions: tuple
     mono_cancelled: tuple
     method: str = "modal"
+
+    def to_dict(self):
+        """JSON-ready values: the keys of ``explain --json`` (shared/ARCHITECTURE.md)."""
+        n1, n2 = self.names
+        return {
+            "method": self.method, "channels": list(self.names), "positions_m": list(self.positions_m),
+            "seat_m": self.seat_m, "frequencies_hz": self.freq_hz,
+            "level_db": {n1: self.level_db[0], n2: self.level_db[1]},
+            "smoothed_db": {n1: self.smoothed_db[0], n2: self.smoothed_db[1]},
+            "smoothing_octave_fraction": self.smoothing,
+            "difference_db": self.difference_db, "difference_smoothed_db": self.difference_smoothed_db,
+            "mono_db": self.mono_db, "mono_smoothed_db": self.mono_smoothed_db,
+            "band_hz": self.band_hz, "threshold_db": self.threshold_db, "schroeder_hz": self.schroeder_hz,
+            "band_mismatch_db": self.band_mismatch_db,
+            "regions": [r.to_dict() for r in self.regions],
+            "mono_cancelled_modes": list(self.mono_cancelled),
+        }
 
 
 def modal_decomposition(room, sources_m, receiver_m, freq_hz):

@@ -349,18 +349,7 @@ def explain(room_file, channels, threshold, band, freq_range, points_per_octave,
         fail(str(exc))
     n1, n2 = e.names
     if as_json:
-        dump_json({
-            "room": room.name, "method": e.method, "channels": list(e.names),
-            "positions_m": list(e.positions_m), "seat_m": e.seat_m, "frequencies_hz": e.freq_hz,
-            "level_db": {n1: e.level_db[0], n2: e.level_db[1]},
-            "smoothed_db": {n1: e.smoothed_db[0], n2: e.smoothed_db[1]}, "smoothing_octave_fraction": e.smoothing,
-            "difference_db": e.difference_db, "difference_smoothed_db": e.difference_smoothed_db,
-            "mono_db": e.mono_db, "mono_smoothed_db": e.mono_smoothed_db,
-            "band_hz": e.band_hz, "threshold_db": e.threshold_db, "schroeder_hz": e.schroeder_hz,
-            "band_mismatch_db": e.band_mismatch_db,
-            "regions": [_region_obj(r) for r in e.regions],
-            "mono_cancelled_modes": list(e.mono_cancelled),
-        })
+        dump_json({"room": room.name, **e.to_dict()})
     else:
         click.echo(f"Why {n1} and {n2} differ at the seat, '{room.name}'")
         click.echo(f"  {n1}: {walls_text(room, e.positions_m[0])}")
@@ -410,17 +399,3 @@ def explain(room_file, channels, threshold, band, freq_range, points_per_octave,
 
         plot_explain(e, title=f"{room.name}: {n1} and {n2} at the seat", path=plot_path)
         echo_err(f"wrote {plot_path}")
-
-
-def _region_obj(r):
-    return {
-        "freq_hz": list(r.freq_hz), "peak_hz": r.peak_hz, "difference_db": r.difference_db, "valid": r.valid,
-        "causes": [{**c.data, "contribution_db": c.contribution_db, "text": c.text} for c in r.causes],
-        "notches": list(r.notches),
-        "move": None if r.move is None else {
-            "speaker": r.move.speaker, "axis": "xyz"[r.move.axis], "delta_m": r.move.delta_m,
-            "direction": r.move.direction, "position_m": r.move.position_m,
-            "region_before_db": r.move.region_before_db, "region_after_db": r.move.region_after_db,
-            "band_before_db": r.move.band_before_db, "band_after_db": r.move.band_after_db},
-        "sentence": r.sentence,
-    }
