@@ -166,6 +166,21 @@ class FloorMap:
     near_modes: tuple
     method: str
 
+    def to_dict(self):
+        """JSON-ready values: the keys of ``map --json``."""
+        (xm, ym, top), (xn, yn, low) = self.extreme("max"), self.extreme("min")
+        return {
+            "method": self.method, "freq_hz": self.freq_hz, "height_m": self.height_m,
+            "channels": list(self.channels),
+            "speakers": [{"name": n, "position_m": p} for n, p in zip(self.channels, self.sources_m)],
+            "x_m": self.x_m, "y_m": self.y_m, "level_db": self.level_db,
+            "level_reference": "dB re free-field pressure of one speaker at 1 m; speakers summed in phase",
+            "seat_m": self.seat_m, "seat_level_db": self.seat_level_db,
+            "max": {"position_m": [xm, ym, self.height_m], "level_db": top},
+            "min": {"position_m": [xn, yn, self.height_m], "level_db": low},
+            "near_modes": [dict(m) for m in self.near_modes],
+        }
+
     def extreme(self, which="max"):
         """(x_m, y_m, level_db) of the loudest (``"max"``) or quietest (``"min"``) cell."""
         i = np.nanargmax(self.level_db) if which == "max" else np.nanargmin(self.level_db)

@@ -120,21 +120,11 @@ def map_(room_file, freq_hz, height, channels, layout, step, units, method, plot
         fm = floor_level_map(room, freq_hz, lay, h_m, step_m, names, method)
     except ValueError as exc:
         fail(f"{room_file}: {exc}" if "step" in str(exc) or "floor" in str(exc) else str(exc))
-    xm, ym, top = fm.extreme("max")
-    xn, yn, low = fm.extreme("min")
     if as_json:
-        dump_json({
-            "room": room.name, "layout": lay.name, "method": method,
-            "freq_hz": fm.freq_hz, "height_m": fm.height_m, "channels": list(fm.channels),
-            "speakers": [{"name": n, "position_m": p} for n, p in zip(fm.channels, fm.sources_m)],
-            "x_m": fm.x_m, "y_m": fm.y_m, "level_db": fm.level_db,
-            "level_reference": "dB re free-field pressure of one speaker at 1 m; speakers summed in phase",
-            "seat_m": fm.seat_m, "seat_level_db": fm.seat_level_db,
-            "max": {"position_m": [xm, ym, fm.height_m], "level_db": top},
-            "min": {"position_m": [xn, yn, fm.height_m], "level_db": low},
-            "near_modes": [dict(m) for m in fm.near_modes],
-        })
+        dump_json({"room": room.name, "layout": lay.name, **fm.to_dict()})
     else:
+        xm, ym, top = fm.extreme("max")
+        xn, yn, low = fm.extreme("min")
         who = "all speakers in phase" if len(fm.channels) > 1 else f"the {fm.channels[0]} speaker"
         click.echo(f"Level over the floor of '{room.name}' at {fm.freq_hz:g} Hz, {format_length(fm.height_m, units)} "
                    f"high ({who}, {lay.name} layout, {method} solver)")
