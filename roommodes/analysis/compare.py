@@ -32,7 +32,7 @@ from scipy.signal import find_peaks, peak_widths
 from ..dsp.bands import band_average_matrix, band_centres, band_fraction_of
 from ..dsp.response import Response, align_level, log_frequencies, smooth_db
 from ..io.files import WAV_FILE_BYTES, open_regular
-from ..io.importers import MeasurementFileError, average_curves, read_response_text
+from ..io.importers import MeasurementFileError, apply_mic_calibration, average_curves, read_response_text
 from ..io.wavio import read_wav
 from ..measure.decay import onset_index
 from ..measure.deconvolve import frequency_response
@@ -104,7 +104,8 @@ def _grid(freq_hz):
     return f
 
 
-def load_measurement(path, channel=None, window_s=DEFAULT_WINDOW_S, freq_hz=None, *, taper_fraction=0.1):
+def load_measurement(path, channel=None, window_s=DEFAULT_WINDOW_S, freq_hz=None, *, taper_fraction=0.1,
+                     mic_cal=None):
     """Read one measured curve: an impulse-response WAV or a frequency-response text file.
 
     Parameters
@@ -126,6 +127,11 @@ def load_measurement(path, channel=None, window_s=DEFAULT_WINDOW_S, freq_hz=None
         grid points inside its own range are kept.
     taper_fraction : float
         Fraction of the window faded out by a half-Hann at its end, 0..1.
+    mic_cal : Response, optional
+        The microphone's calibration: its deviation from flat in dB against frequency
+        (:func:`roommodes.io.importers.read_response_text`), subtracted from the measured
+        level (:func:`roommodes.io.importers.apply_mic_calibration`; outside its range its
+        end values are held, and the notes say so).
 
     Returns
     -------
@@ -141,6 +147,13 @@ def load_measurement(path, channel=None, window_s=DEFAULT_WINDOW_S, freq_hz=None
     ``H(f) = sum_k w[k] h[n0 + k] exp(-2 pi j f k / fs)`` evaluated directly at each
     frequency (:func:`roommodes.measure.deconvolve.frequency_response`), ``w`` the window.
     """
+    m = _load_raw(path, channel, window_s, freq_hz, taper_fraction)
+    if mic_cal is None:
+        return m
+    return apply_mic_calibration(m, mic_cal, outside="hold")
+
+
+def _load_raw(path, channel, window_s, freq_hz, taper_fraction):
     p = Path(path)
     name = str(path)
     if not p.exists():

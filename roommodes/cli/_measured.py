@@ -12,11 +12,14 @@ import numpy as np
 
 from ..analysis.compare import is_wav_file, load_measurement, speaker_by_name
 from ..io.files import WAV_FILE_BYTES, InputFileError, open_regular
+from ..io.importers import read_response_text
 from ..io.wavio import read_wav
 from ..present.units import parse_lengths
 from ._util import fail
 
 __all__ = [
+    "mic_cal_option",
+    "read_mic_cal",
     "wav_channel_option",
     "smoothing_option",
     "window_option",
@@ -116,16 +119,35 @@ def positions(room, at, n_files, name="--at"):
     return pts
 
 
-def load_measurements(paths, wav_channel, window_s, freq_hz):
-
+def load_measurements(paths, wav_channel, window_s, freq_hz, mic_cal=None):
+    """Every measurement file, with the microphone calibration (a path or None) removed."""
+    cal = read_mic_cal(mic_cal)
     out = []
     for p in paths:
         require_file(p, "measurement")
         try:
-            out.append(load_measurement(p, None if wav_channel is None else wav_channel - 1, window_s, freq_hz))
+            out.append(load_measurement(p, None if wav_channel is None else wav_channel - 1, window_s, freq_hz,
+                                        mic_cal=cal))
         except ValueError as exc:
             fail(channel_message(str(exc), p, wav_channel))
     return out
+
+
+def read_mic_cal(path):
+    """The ``--mic-cal`` file as a curve (None when not given); one-line errors naming it."""
+    if path is None:
+        return None
+    require_file(path, "microphone calibration")
+    try:
+        return read_response_text(path)
+    except ValueError as exc:
+        fail(f"--mic-cal: {exc}")
+
+
+mic_cal_option = click.option(
+    "--mic-cal", "mic_cal", type=click.Path(path_type=Path), metavar="FILE",
+    help="Microphone calibration: frequency (Hz) and the microphone's deviation from flat (dB), as text; "
+         "subtracted from every measurement.")
 
 
 def measured_files_options(f):

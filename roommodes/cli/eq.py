@@ -10,6 +10,7 @@ import numpy as np
 from .. import __version__
 from ..dsp.checks import check_number, check_range
 from ..dsp.text import boost_text
+from ._measured import mic_cal_option, read_mic_cal
 from ._util import (
     CONTEXT,
     check_output,
@@ -144,7 +145,7 @@ def _print_channel(corr, room_layout_speaker):
     click.echo("")
 
 
-def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, options):
+def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, options, mic_cal=None):
     """Corrections of measured curves: CHANNEL=FILE items, several files of a channel averaged."""
     from ..analysis.compare import average_measurements, load_measurement
     from ..analysis.correction import correct_curve
@@ -163,7 +164,7 @@ def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, opti
     for sp in layout.speakers:
         if sp.name not in files:
             continue
-        ms = [load_measurement(path, window_s=window_s, freq_hz=freq_hz) for path in files[sp.name]]
+        ms = [load_measurement(path, window_s=window_s, freq_hz=freq_hz, mic_cal=mic_cal) for path in files[sp.name]]
         avg = average_measurements(ms)
         f = np.asarray(avg.freq_hz)
         neighbours = None
@@ -210,9 +211,10 @@ def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, opti
               help="Write the filters and second-order sections (44.1, 48, 96 kHz) to a text file.")
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write before/after curves and filters (PNG/SVG).")
 @click.option("--force", is_flag=True, help="Overwrite existing output files.")
+@mic_cal_option
 @json_option
 def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, max_boost, q_range, freq_range,
-       points_per_octave, method, measured, window_s, area_text, export_path, plot_path, force, as_json):
+       points_per_octave, method, measured, window_s, area_text, export_path, plot_path, force, as_json, mic_cal):
     """Design bass-correction EQ for each channel and show the headroom it costs.
 
     Every dip is classified before it is touched: a deep narrow dip that moves when the
@@ -248,6 +250,8 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
     else:
         options.update(target="table", target_table=_read_target(target))
     inputs = room_inputs(room_file, room) + [Path(m.partition("=")[2]) for m in measured]
+    if mic_cal:
+        inputs.append(Path(mic_cal))
     if target not in ("flat", "tilt"):
         inputs.append(Path(target))
     if export_path:
@@ -256,7 +260,7 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
     check_plot(plot_path, force, *inputs, export_path)
     f = log_frequencies(lo, hi, points_per_octave)
     if measured:
-        corrections = _correct_measured(room, lay, measured, f, window_s, room_file, options)
+        corrections = _correct_measured(room, lay, measured, f, window_s, room_file, options, read_mic_cal(mic_cal))
         source = "measured"
     else:
         area = None

@@ -35,6 +35,7 @@ from ._measured import (
     load_measurements,
     measured_files_options,
     measurement_specs,
+    mic_cal_option,
     positions,
     read_wav_or_fail,
     require_file,
@@ -536,10 +537,11 @@ def _print_features(matches, names):
 @method_option
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write the overlay and residual (PNG/SVG).")
 @click.option("--force", is_flag=True, help="Overwrite an existing figure.")
+@mic_cal_option
 @json_option
 @guard
 def compare(files, against, channel, at, wav_channel, window_s, band, align_band, absolute, smoothing, method,
-            plot_path, force, as_json):
+            plot_path, force, as_json, mic_cal):
     """Compare measurements with the prediction, or two measurements with each other.
 
     \b
@@ -568,16 +570,17 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
         fail(f"--window must be 0.01..60 s, got {window_s:g}")
     grid = log_frequencies(max(5.0, lo / 2 ** 0.5), min(2000.0, hi * 2 ** 0.5), 48)
     room = load_or_fail(room_file) if room_file else None
-    check_plot(plot_path, force, *files, *against, *(room_inputs(room_file, room) if room_file else []))
+    check_plot(plot_path, force, *files, *against, *(room_inputs(room_file, room) if room_file else []),
+               *([mic_cal] if mic_cal else []))
     pos = positions(room, at, len(files)) if room is not None else None
-    meas = load_measurements(files, wav_channel, window_s, grid)
+    meas = load_measurements(files, wav_channel, window_s, grid, mic_cal)
     first = average_measurements(meas, label=files[0].name if len(files) == 1 else f"mean of {len(files)}")
     kw = {"band_hz": (lo, hi), "smoothing": smoothing, "align_band_hz": abd, "absolute": absolute}
     if room is not None:
         # the prediction is averaged over the files' positions with the same weights
         rep = compare_to_prediction(room, first, channel, pos, method=method, **kw)
     else:
-        second_list = load_measurements(against, wav_channel, window_s, grid)
+        second_list = load_measurements(against, wav_channel, window_s, grid, mic_cal)
         second = average_measurements(second_list, label=against[0].name if len(against) == 1
                                       else f"mean of {len(against)}")
         rep = compare_measurements(first, second, **kw)
@@ -670,11 +673,12 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write measured, before and after (PNG/SVG).")
 @click.option("--force", is_flag=True, help="Overwrite existing output files.")
 @method_option
+@mic_cal_option
 @json_option
 @guard
 def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band, smoothing, points_per_octave, method,
         absorption, size_tolerance, position_tolerance, no_lowcut, absolute, regularization, plot_path, force,
-        as_json):
+        as_json, mic_cal):
     """Calibrate the room file to measurements and write the calibrated room file.
 
     \b
@@ -698,7 +702,7 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
     if not (0.01 <= window_s <= 60):
         fail(f"--window must be 0.01..60 s, got {window_s:g}")
     outp = Path(out)
-    inputs = [*room_inputs(room_file, room), *files, *(Path(m[2]) for m in measure)]
+    inputs = [*room_inputs(room_file, room), *files, *(Path(m[2]) for m in measure), *([Path(mic_cal)] if mic_cal else [])]
     protect_inputs(outp, *inputs)
     if outp.suffix.lower() != ".toml":
         fail(f"{outp}: the calibrated room file must be a .toml file")
@@ -706,7 +710,7 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
     check_plot(plot_path, force, *inputs, outp)
     grid = log_frequencies(lo, hi, points_per_octave)
     specs = measurement_specs(room, files, channel, at, measure)
-    meas = load_measurements([s[2] for s in specs], wav_channel, window_s, grid)
+    meas = load_measurements([s[2] for s in specs], wav_channel, window_s, grid, mic_cal)
     targets = [FitTarget(ch, pos, m.freq_hz, m.level_db, f"{Path(p).name} ({ch})", m.band_fraction)
                for (ch, pos, p), m in zip(specs, meas)]
     t0 = time.perf_counter()

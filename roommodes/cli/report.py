@@ -21,7 +21,15 @@ from .. import __version__
 from ..analysis.fit import FitTarget
 from ..dsp.response import log_frequencies
 from ..present.report import EMBED_FORMATS, SEARCH_MODES, MeasuredCurve, build_report
-from ._measured import load_measurements, measured_files_options, measurement_specs, require_file, wav_channel_option, window_option
+from ._measured import (
+    load_measurements,
+    measured_files_options,
+    measurement_specs,
+    mic_cal_option,
+    require_file,
+    wav_channel_option,
+    window_option,
+)
 from ._util import (
     CONTEXT,
     MODEL_CAUTION,
@@ -154,9 +162,10 @@ def write_report(out, rep, force):
 @click.option("--embed", type=click.Choice(EMBED_FORMATS), default="svg", show_default=True,
               help="Format of the figures inside the page (both are written to the folder).")
 @click.option("--force", is_flag=True, help="Overwrite an existing report and its folder (never an input).")
+@mic_cal_option
 @guard
 def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, window_s, units, search, method, embed,
-           force):
+           force, mic_cal):
     """Write a self-contained HTML report of the room, for a client or for your notes.
 
     \b
@@ -176,7 +185,7 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
     out = Path(out)
     if out.suffix.lower() not in (".html", ".htm"):
         fail(f"{out}: the report must be an .html file")
-    inputs_given = [Path(room_file), *files, *(Path(m[2]) for m in measure)]
+    inputs_given = [Path(room_file), *files, *(Path(m[2]) for m in measure), *([Path(mic_cal)] if mic_cal else [])]
     protect_inputs(out, *inputs_given)
     check_output(out, force, what="-o")
     folder = _files_folder(out)
@@ -198,11 +207,12 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
         specs = measurement_specs(room, files, channel, at, measure)
     band = (20.0, 200.0)
     grid = log_frequencies(max(5.0, band[0] / 2 ** 0.5), min(2000.0, band[1] * 2 ** 0.5), 48)
-    meas = load_measurements([s[2] for s in specs], wav_channel, window_s, grid) if specs else []
+    meas = load_measurements([s[2] for s in specs], wav_channel, window_s, grid, mic_cal) if specs else []
     curves = [MeasuredCurve(ch, pos, m) for (ch, pos, _), m in zip(specs, meas)]
     targets = None
     if do_fit:
-        fit_meas = load_measurements([s[2] for s in specs], wav_channel, window_s, log_frequencies(*band, 24))
+        fit_meas = load_measurements([s[2] for s in specs], wav_channel, window_s, log_frequencies(*band, 24),
+                                     mic_cal)
         targets = [FitTarget(ch, pos, m.freq_hz, m.level_db, f"{p.name} ({ch})", m.band_fraction)
                    for (ch, pos, p), m in zip(specs, fit_meas)]
     inputs = []
