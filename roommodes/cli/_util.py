@@ -14,6 +14,7 @@ from pathlib import Path
 import click
 import numpy as np
 
+from ..analysis.uncertainty import DEFAULT_SAMPLES, DEFAULT_SEED, MAX_SAMPLES
 from ..io.roomfile import RoomFileError, load_room
 from ..model.placement import PRESETS, preset_layout
 from ..present.serialise import dumps
@@ -161,6 +162,17 @@ method_option = click.option(
     "--method", type=click.Choice(list(METHODS)), default=DEFAULT_METHOD, show_default=True,
     help="Solver of the predicted levels (docs/methods.md): " + "; ".join(f"{k}: {v}" for k, v in METHODS.items()) + ".")
 json_option = click.option("--json", "as_json", is_flag=True, help="Print one JSON object on stdout.")
+
+
+def uncertainty_options(func):
+    """``--uncertainty``, ``--samples`` and ``--seed``: the Monte Carlo over the room file's [uncertainty]."""
+    func = click.option("--seed", type=click.IntRange(0, 2**32 - 1), default=DEFAULT_SEED, show_default=True,
+                        help="Seed of the drawn rooms (the same seed gives the same result).")(func)
+    func = click.option("--samples", type=click.IntRange(2, MAX_SAMPLES), default=DEFAULT_SAMPLES, show_default=True,
+                        help="How many rooms --uncertainty draws.")(func)
+    return click.option("--uncertainty", is_flag=True,
+                        help="Draw rooms from the room file's [uncertainty] table (positions, size, absorption, "
+                             "temperature) and give the 10-90 % band of the result.")(func)
 
 
 def layouts_for(room, layout):

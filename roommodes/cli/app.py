@@ -35,6 +35,7 @@ COMMANDS = {
     "subs": ("subs", "subs", "Find where the subwoofers go, and their gain, delay, polarity and crossover, for every seat."),
     "eq": ("eq", "eq", "Design bass-correction EQ for each channel and show the headroom it costs."),
     "map": ("map", "map_", "Map the level over the floor plan at one frequency: where a mode is loud and where its nodes are."),
+    "study": ("study", "study", "Rank candidate room sizes by their predicted bass after their own EQ, on a Dask cluster."),
     "report": ("report", "report", "Write a self-contained HTML report of the room, for a client or for your notes."),
     "sweep": ("measure", "sweep", "Write an exponential sine sweep to play through one speaker while recording at the seat."),
     "ir": ("measure", "ir", "Turn a recording of the sweep into an impulse response, with distortion, noise and delay."),

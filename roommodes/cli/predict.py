@@ -11,6 +11,7 @@ import numpy as np
 from ..analysis.predict import band_figures, response_features, usable_band
 from ..analysis.predict import predict as run_predict
 from ..analysis.summary import room_summary
+from ..analysis.uncertainty import predict_bands
 from ..dsp.response import log_frequencies
 from ..model.criteria import note_name
 from ..model.modes import room_modes
@@ -30,6 +31,7 @@ from ._util import (
     parse_range,
     ppo_option,
     room_inputs,
+    uncertainty_options,
     units_option,
     walls_text,
 )
@@ -123,13 +125,17 @@ def print_summary(s):
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write the curves to a PNG/SVG file.")
 @click.option("--force", is_flag=True, help="Overwrite an existing plot file.")
 @click.option("--no-speaker", is_flag=True, help="Leave out the speakers' own low-frequency roll-off.")
+@uncertainty_options
 @json_option
 @units_option
-def predict(room_file, layout, freq_range, points_per_octave, method, plot_path, force, no_speaker, as_json):
+def predict(room_file, layout, freq_range, points_per_octave, method, plot_path, force, no_speaker, uncertainty,
+            samples, seed, as_json):
     """Predict each speaker's level at the seat, with its main peaks and dips.
 
     Levels are in dB relative to the free-field level the same speaker gives at 1 m, so
-    0 dB means "as loud as at 1 m outdoors"; room gain shows as positive values.
+    0 dB means "as loud as at 1 m outdoors"; room gain shows as positive values. With
+    --uncertainty, each channel gets the 10th, 50th and 90th percentiles of its level over
+    rooms drawn from the room file's [uncertainty] table (docs/uncertainty.md).
     """
 
     lo, hi = parse_range(freq_range)
@@ -140,21 +146,29 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
     t0 = time.perf_counter()
     try:
         preds = [run_predict(room, lay, f, method=method, include_speaker=not no_speaker) for lay in layouts]
+        bands = [predict_bands(room, lay, f, n_samples=samples, seed=seed, method=method,
+                               include_speaker=not no_speaker) if uncertainty else None for lay in layouts]
     except ValueError as exc:
         fail(str(exc))
     elapsed = time.perf_counter() - t0
     fs = preds[0].schroeder_hz
     if as_json:
         lay_objs = []
-        for lay, p in zip(layouts, preds):
+        for lay, p, bd in zip(layouts, preds, bands):
             d = p.to_dict()
             band = usable_band(lay.speakers)
             for c, ch in zip(p.channels, d["channels"]):
                 ch["band_figures"] = band_figures(f, c.level_db, band)
                 ch["features"] = [ft.to_dict() for ft in response_features(room, p, c.name)]
+            if bd is not None:
+                for ch, bch in zip(d["channels"], bd.to_dict()["channels"]):
+                    ch.update({k: v for k, v in bch.items() if k != "name"})
             lay_objs.append({"name": lay.name, "seat_m": d["seat_m"], "channels": d["channels"], "band_hz": band})
+        extra = {}
+        if uncertainty:
+            extra["uncertainty"] = {k: v for k, v in bands[0].to_dict().items() if k not in ("channels", "frequencies_hz")}
         dump_json({
-            "room": room.name, "method": method,
+            "room": room.name, "method": method, **extra,
             "frequencies_hz": f, "schroeder_hz": fs, "valid": preds[0].valid,
             "level_reference": "dB re free-field pressure of the same source at 1 m",
             "channels": lay_objs[0]["channels"], "layout": lay_objs[0]["name"], "seat_m": lay_objs[0]["seat_m"],
@@ -164,15 +178,26 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
         click.echo(f"Predicted level at the seat, '{room.name}', {lo:g}-{hi:g} Hz, {method} solver "
                    f"({elapsed:.2f} s)")
         click.echo("Level: dB relative to the same speaker's free-field level at 1 m.")
-        for lay, p in zip(layouts, preds):
+        if uncertainty:
+            u = room.uncertainty
+            click.echo(f"Uncertainty: {samples} rooms drawn (seed {seed}); sd {u.position_m * 100:g} cm on positions, "
+                       f"{u.size_m * 100:g} cm on dimensions, {u.absorption_rel:.0%} on absorption, "
+                       f"{u.temperature_c:g} C on temperature.")
+        for lay, p, bd in zip(layouts, preds, bands):
             click.echo("")
             click.echo(f"Layout: {lay.name}.  Seat: {walls_text(room, lay.seat_m)}")
-            for ch in p.channels:
+            for ci, ch in enumerate(p.channels):
                 band = usable_band(lay.speakers)
                 fig = band_figures(f, ch.level_db, band)
                 click.echo(f"  {ch.name}: {walls_text(room, ch.position_m)}")
                 click.echo(f"    {band[0]:g}-{band[1]:g} Hz (1/6-octave smoothed): {fig['min_db']:+.1f} to {fig['max_db']:+.1f} dB, "
                            f"spread {fig['spread_db']:.1f} dB, std {fig['std_db']:.1f} dB")
+                if bd is not None:
+                    sel = (f >= band[0]) & (f <= band[1])
+                    w = bd.width_db[ci][sel]
+                    i = int(np.argmax(w))
+                    click.echo(f"    10-90 % band over the drawn rooms: median width {np.median(w):.1f} dB, "
+                               f"widest {w[i]:.1f} dB at {f[sel][i]:.0f} Hz")
                 if layout != "all":
                     for ft in response_features(room, p, ch.name):
                         side = "above" if ft.kind == "peak" else "below"
@@ -184,6 +209,7 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
     echo_err(MODEL_CAUTION)
     if plot_path:
         ms = room_modes(room, hi)
-        plot_prediction(preds, ms, title=f"{room.name}: predicted level at the seat", path=plot_path)
+        plot_prediction(preds, ms, title=f"{room.name}: predicted level at the seat", path=plot_path,
+                        bands=bands if uncertainty else None)
         echo_err(f"wrote {plot_path}")
 

@@ -34,6 +34,7 @@ from ..model.room import (
     Speaker,
     SubSearch,
     Surface,
+    Uncertainty,
 )
 from .files import ROOM_FILE_BYTES, InputFileError, read_regular
 from .importers import read_response_text
@@ -42,7 +43,10 @@ __all__ = ["RoomFileError", "load_room", "parse_room", "room_to_toml", "demo_roo
            "example_rooms", "write_text_atomic"]
 
 
-_TOP_KEYS = {"room", "surfaces", "speakers", "seat", "seats", "search", "subs", "format"}
+_TOP_KEYS = {"room", "surfaces", "speakers", "seat", "seats", "search", "subs", "format", "uncertainty"}
+#: ``[uncertainty]`` keys and the largest standard deviation each accepts (a survey that knows a
+#: position to worse than half a metre, or the temperature to worse than 10 C, is no survey).
+_UNCERTAINTY_LIMITS = {"position_m": 0.5, "size_m": 0.5, "absorption_rel": 2.0, "temperature_c": 10.0}
 _ROOM_KEYS = {"name", "size_m", "temperature_c"}
 _SPEAKER_KEYS = {"position_m", "lowcut_hz", "lowcut_order", "response_file", "sensitivity_db",
                  "amplifier_w", "max_spl_db", "role", "cabinet_m", "woofer_on_face_m", "tweeter_on_face_m"}
@@ -315,13 +319,24 @@ def parse_room(data, name="<room>", base_dir=None):
     if "subs" in data:
         subs_search = _parse_subs(ctx, data["subs"], size)
     _check_numbers_fit(ctx, search, "[search]")
-    room = Room(room_name, size, surfaces, temp, layout, search, str(name), subs_search)
+    uncertainty = _parse_uncertainty(ctx, data["uncertainty"]) if "uncertainty" in data else Uncertainty()
+    room = Room(room_name, size, surfaces, temp, layout, search, str(name), subs_search, uncertainty)
     if search:  # the user's placement constraints are checked now, not when a search first reads them
         try:
             search_space(room)
         except ValueError as exc:
             raise RoomFileError(str(exc)) from None
     return room
+
+
+def _parse_uncertainty(ctx, table):
+    """The ``[uncertainty]`` table: standard deviations, each optional (defaults of :class:`Uncertainty`)."""
+    if not isinstance(table, dict):
+        ctx.fail("[uncertainty]", "must be a table of standard deviations, e.g. position_m = 0.02")
+    ctx.unknown_keys(table, set(_UNCERTAINTY_LIMITS), "[uncertainty]")
+    kw = {k: ctx.number(table[k], f"[uncertainty] {k}", 0.0, hi, what="a standard deviation (a number >= 0)")
+          for k, hi in _UNCERTAINTY_LIMITS.items() if k in table}
+    return Uncertainty(**kw)
 
 
 def _parse_seats(ctx, table, size, speakers):
@@ -699,6 +714,10 @@ def room_to_toml(room, comment=None, *, original_text=None, position_note=None, 
         doc["search"] = dict(room.search)
     if room.subs_search is not None and "subs" not in doc:
         doc["subs"] = _subs_table(room.subs_search)
+    if "uncertainty" in doc or room.uncertainty != Uncertainty():
+        ut = _table(doc, "uncertainty")
+        for k, v in room.uncertainty.to_dict().items():
+            _set(ut, k, _number(v))
     text = tomlkit.dumps(doc)
     if comment:
         text = "".join(f"# {line}".rstrip() + "\n" for line in comment.splitlines()) + "\n" + text

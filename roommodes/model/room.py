@@ -39,6 +39,7 @@ __all__ = [
     "Box",
     "ROLES",
     "Room",
+    "Uncertainty",
     "speed_of_sound",
 ]
 
@@ -332,6 +333,38 @@ class Layout:
 
 
 @dataclass(frozen=True)
+class Uncertainty:
+    """How well the room file knows the room: standard deviations (the ``[uncertainty]`` table).
+
+    The defaults are conservative figures for a tape-measure survey and handbook absorption
+    values: 2 cm on each measured coordinate, 1 cm on each room dimension, 25 % on each
+    surface's absorption, 1.5 C on the air temperature.
+
+    Attributes
+    ----------
+    position_m : float
+        Standard deviation of each coordinate of every speaker and seat position, m.
+    size_m : float
+        Standard deviation of each room dimension, m.
+    absorption_rel : float
+        Relative standard deviation of each surface's absorption (a log-normal factor of mean
+        1 applied to all of the surface's band values).
+    temperature_c : float
+        Standard deviation of the air temperature, C.
+    """
+
+    position_m: float = 0.02
+    size_m: float = 0.01
+    absorption_rel: float = 0.25
+    temperature_c: float = 1.5
+
+    def to_dict(self):
+        """JSON-ready values, keyed as in the room file."""
+        return {"position_m": self.position_m, "size_m": self.size_m, "absorption_rel": self.absorption_rel,
+                "temperature_c": self.temperature_c}
+
+
+@dataclass(frozen=True)
 class Room:
     """A rectangular room: its size, surfaces, air and (optionally) a layout.
 
@@ -351,6 +384,8 @@ class Room:
         The file the room was read from.
     subs_search : SubSearch or None
         The room file's ``[subs]`` table (subwoofer search constraints), if any.
+    uncertainty : Uncertainty
+        How well the file knows the room (``[uncertainty]``; conservative defaults).
     """
 
     name: str
@@ -361,6 +396,7 @@ class Room:
     search: dict = field(default_factory=dict)
     source: str | None = None
     subs_search: SubSearch | None = None
+    uncertainty: Uncertainty = Uncertainty()
 
     @property
     def seats(self):

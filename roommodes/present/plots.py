@@ -82,7 +82,7 @@ def mark_modes(ax, modes, fmin, fmax, max_order=2):
                     transform=trans, clip_on=False)
 
 
-def plot_prediction(predictions, modes=None, title=None, path=None):
+def plot_prediction(predictions, modes=None, title=None, path=None, bands=None):
     """Predicted level at the seat for one or more predictions (layouts).
 
     Parameters
@@ -92,6 +92,9 @@ def plot_prediction(predictions, modes=None, title=None, path=None):
         (layout) and line style (channel).
     modes : ModeSet, optional
         Drawn as ticks along the top (long: axial, short: tangential).
+    bands : list of Bands or None, optional
+        One per prediction (:func:`roommodes.analysis.uncertainty.predict_bands`): each
+        channel's 10-90 % band over the drawn rooms is shaded in the channel's colour.
     """
     preds = predictions if isinstance(predictions, (list, tuple)) else [predictions]
     fig, ax = new_figure()
@@ -108,6 +111,11 @@ def plot_prediction(predictions, modes=None, title=None, path=None):
             else:
                 color, ls, label = PALETTE[i % len(PALETTE)], styles[j % 4], f"{p.layout_name}: {ch.name}"
             ax.plot(p.freq_hz, ch.level_db, color=color, ls=ls, lw=1.4, label=label)
+            band = bands[i] if bands is not None else None
+            if band is not None and ch.name in band.names:
+                lo, _, hi = band.channel(ch.name)
+                ax.fill_between(band.freq_hz, lo, hi, color=color, alpha=0.18, lw=0,
+                                label=f"{ch.name}: 10-90 % of drawn rooms" if len(preds) == 1 else None)
     shade_invalid(ax, preds[0].schroeder_hz, f[-1])
     if modes is not None:
         mark_modes(ax, modes, f[0], f[-1])

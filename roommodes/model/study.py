@@ -1,0 +1,89 @@
+"""What a design study compares: ranges of room dimensions, wall constructions, a placement
+rule, a seat area and the uncertainty (the ``[study]`` file, docs/study.md)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .room import Uncertainty
+
+__all__ = ["StudySpec", "STUDY_LAYOUTS", "MAX_CANDIDATES"]
+
+#: Placement rules a study may use: a standard preset, or "best-preset" (each room gets the
+#: preset that scores best on its nominal prediction).
+STUDY_LAYOUTS = ("corner", "wall", "mid-room", "desk", "best-preset")
+#: Most candidate rooms one study may hold.
+MAX_CANDIDATES = 100_000
+
+
+@dataclass(frozen=True)
+class StudySpec:
+    """A design study over candidate rooms.
+
+    Attributes
+    ----------
+    length_m, width_m, height_m : (float, float)
+        Ranges (low, high) of the room's dimensions, m.
+    steps : int
+        Grid points per dimension (1 takes the low end only).
+    walls : tuple of str
+        Library materials tried for the four walls, one candidate room per material and size.
+    floor, ceiling : str
+        Library materials of the floor and the ceiling.
+    layout : str
+        Placement rule (:data:`STUDY_LAYOUTS`).
+    seat_area_m : (float, float)
+        Depth (x) and width (y) of the seat area centred on the rule's seat, m.
+    seat_area_points : (int, int)
+        Grid points of the seat area along x and y.
+    band_hz : (float, float)
+        Band scored and equalised, Hz.
+    points_per_octave : int
+        Frequency-grid density.
+    samples : int
+        Rooms drawn per candidate from ``uncertainty``.
+    seed : int
+        Seed of the study; candidate ``i`` draws from ``(seed, i)``.
+    uncertainty : Uncertainty
+    temperature_c : float
+    """
+
+    length_m: tuple
+    width_m: tuple
+    height_m: tuple
+    steps: int
+    walls: tuple = ("plasterboard-on-studs",)
+    floor: str = "wood-floor-on-joists"
+    ceiling: str = "plasterboard-on-studs"
+    layout: str = "desk"
+    seat_area_m: tuple = (0.6, 0.6)
+    seat_area_points: tuple = (3, 3)
+    band_hz: tuple = (25.0, 160.0)
+    points_per_octave: int = 24
+    samples: int = 32
+    seed: int = 1
+    uncertainty: Uncertainty = Uncertainty()
+    temperature_c: float = 20.0
+
+    def sizes_m(self):
+        """(K, 3) candidate sizes, length fastest-varying last: the grid in a fixed order."""
+        axes = [np.linspace(lo, hi, self.steps) if self.steps > 1 else np.array([lo])
+                for lo, hi in (self.length_m, self.width_m, self.height_m)]
+        grid = np.stack(np.meshgrid(*axes, indexing="ij"), axis=-1).reshape(-1, 3)
+        return np.round(grid, 6)
+
+    @property
+    def n_candidates(self):
+        """Number of candidate rooms: sizes times wall materials."""
+        return self.steps**3 * len(self.walls)
+
+    def to_dict(self):
+        """JSON-ready values, keyed as in the study file."""
+        return {"length_m": list(self.length_m), "width_m": list(self.width_m), "height_m": list(self.height_m),
+                "steps": self.steps, "walls": list(self.walls), "floor": self.floor, "ceiling": self.ceiling,
+                "layout": self.layout, "seat_area_m": list(self.seat_area_m),
+                "seat_area_points": list(self.seat_area_points), "band_hz": list(self.band_hz),
+                "points_per_octave": self.points_per_octave, "samples": self.samples, "seed": self.seed,
+                "uncertainty": self.uncertainty.to_dict(), "temperature_c": self.temperature_c}
