@@ -266,7 +266,7 @@ def ir(recording, sweep_path, out, wav_channel, loopback, ir_length_s, plot_path
             "fs_hz": res.fs_hz, "delay_s": res.delay_s, "onset_s": res.onset_s,
             "peak_to_noise_db": res.peak_to_noise_db, "loopback_delay_s": res.loopback_delay_s,
             "distortion": None if dist is None else {
-                "center_hz": dist.center_hz, "thd_percent": dist.thd_percent, "thd_db": dist.thd_db,
+                "center_hz": dist.center_hz, "nominal_hz": dist.nominal_hz, "thd_percent": dist.thd_percent, "thd_db": dist.thd_db,
                 "noise_db": dist.noise_db, "detected": dist.detected, "orders": list(dist.orders),
                 "harmonic_db": dist.harmonic_db},
             "problems": [{"code": p.code, "message": p.message, "action": p.action} for p in res.problems],
@@ -279,9 +279,9 @@ def ir(recording, sweep_path, out, wav_channel, loopback, ir_length_s, plot_path
         click.echo("Peak-to-noise ratio " + (f"{pnr:.0f} dB" if np.isfinite(pnr) else "unknown (no noise-only tail)"))
         if dist is not None:
             click.echo("Harmonic distortion (orders " + ", ".join(str(o) for o in dist.orders) + ") per octave:")
-            for c, t, _nd, det in zip(dist.center_hz, dist.thd_percent, dist.noise_db, dist.detected):
+            for c, t, _nd, det in zip(dist.nominal_hz, dist.thd_percent, dist.noise_db, dist.detected):
                 note = "" if det else "  (not above the noise: an upper bound)"
-                click.echo(f"  {c:7.1f} Hz  THD {t:6.2f} %{note}")
+                click.echo(f"  {c:>7g} Hz  THD {t:6.2f} %{note}")
         for p in res.problems:
             click.echo(f"Warning: {p.message}. {p.action[:1].upper() + p.action[1:]}.")
         click.echo("")
@@ -420,11 +420,14 @@ def bands(recording, wav_channel, fraction, band, out, force, as_json):
               help="Write a cumulative-spectral-decay (waterfall) figure (PNG/SVG).")
 @click.option("--window", "window_s", type=float, default=0.3, show_default=True,
               help="Waterfall slice length, s (frequency resolution about 1/window).")
+@click.option("--filtering", type=click.Choice(["forward", "reverse"]), default="forward", show_default=True,
+              help="Band filters run forward in time, or on the time-reversed response (less smearing of short "
+                   "decays in narrow bands).")
 @click.option("--force", is_flag=True, help="Overwrite an existing figure.")
 @json_option
 @guard
 def decay(ir_file, wav_channel, band_set, freq_range, n_modes, modal_range, waterfall_path, window_s, force,
-          as_json):
+          as_json, filtering):
     """Reverberation times (EDT, T20, T30) and decay times of the strongest low modes.
 
     Reads an impulse response (from `roommodes ir`). Per band it gives EDT, T20 and T30 from
@@ -442,7 +445,7 @@ def decay(ir_file, wav_channel, band_set, freq_range, n_modes, modal_range, wate
     if np.std(h) <= 1e-3 * np.abs(np.mean(h)):
         fail(f"{ir_file}: holds only a constant (DC) level, not an impulse response; give the output of `roommodes ir`")
     # the range warnings are in the results' flags too; they are printed from there
-    rt = reverberation_times(h, fs, bands=band_set, freq_range_hz=(lo, hi), warn=False)
+    rt = reverberation_times(h, fs, bands=band_set, freq_range_hz=(lo, hi), filtering=filtering, warn=False)
     md = modal_decay_times(h, fs, freq_range_hz=(mlo, min(mhi, 0.45 * fs)), count=n_modes) if n_modes else None
     notes = [m for flags in rt.flags for m in flags]
     if md is not None:

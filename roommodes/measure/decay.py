@@ -725,7 +725,8 @@ def reverberation_times(ir, fs, *, bands="octave", freq_range_hz=(63.0, 4000.0),
             if bw * t_ref < limit:
                 notes.append(f"{label}: bandwidth x decay time = {bw * t_ref:.1f} < {limit:g}: "
                              "the band filter may distort the decay"
-                             + ("; try filtering='reverse'" if filtering == "forward" else ""))
+                             + ("; time-reversed filtering reduces that (decay --filtering reverse)" if filtering == "forward"
+                                else ""))
         flags.append(tuple(notes))
     result = ReverberationTimes(
         centers, nominal, out["edt_s"], out["t20_s"], out["t30_s"], out["edt_r"],
@@ -886,7 +887,7 @@ def modal_decay_times(ir, fs, freqs_hz=None, *, bandwidth_hz=None, fraction=6.0,
                          f"only {rng[i]:.1f} dB available")
         if filtering == "forward" and np.isfinite(t60[i]) and bw[i] * t60[i] < 16:
             notes.append(f"{f0:.1f} Hz: bandwidth x T60 = {bw[i] * t60[i]:.1f} < 16: the "
-                         "filter may distort the decay; use filtering='reverse'")
+                         "filter may distort the decay; time-reversed filtering reduces that")
         flags.append(tuple(notes))
     q = freqs * t60 / MODE_BANDWIDTH_T60
     return ModalDecay(freqs, t60, q, bw, rng, rr, ok, tuple(flags))

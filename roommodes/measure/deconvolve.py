@@ -121,6 +121,8 @@ class Distortion:
         ``thd_db`` at least 6 dB above ``noise_db``.
     window_s : float
         Length of the windows on the linear and harmonic IRs.
+    nominal_hz : ndarray, shape (B,)
+        ISO 266 nominal labels of the bands (31.5, 63, 125 ...).
     """
 
     orders: tuple
@@ -133,6 +135,7 @@ class Distortion:
     noise_db: np.ndarray
     detected: np.ndarray
     window_s: float
+    nominal_hz: np.ndarray | None = None
 
 
 @dataclass(frozen=True)
@@ -439,7 +442,7 @@ def _minimum_phase_correction(band_limit, n_fft, floor=1e-8):
 
 def _octave_distortion(spec, ir, harm, orders, w, noise_seg, band_hz):
     fs = spec.fs_hz
-    fc, _, lo, hi = band_centres(1, band_hz[0], band_hz[1])
+    fc, nominal, lo, hi = band_centres(1, band_hz[0], band_hz[1])
     f_start = spec.f1_hz * np.exp(spec.fade_in_s / spec.time_constant_s)
     f_stop = spec.f2_hz / max(orders)
     taper = _taper(w, 0.2)
@@ -474,7 +477,8 @@ def _octave_distortion(spec, ir, harm, orders, w, noise_seg, band_hz):
     return Distortion(
         orders=tuple(orders), center_hz=fc[keep], lower_hz=lo[keep], upper_hz=hi[keep],
         harmonic_db=np.array(rows).T, thd_percent=100 * thd, thd_db=thd_db, noise_db=noise,
-        detected=np.where(np.isnan(noise), False, thd_db >= noise + 6.0), window_s=w / fs)
+        detected=np.where(np.isnan(noise), False, thd_db >= noise + 6.0), window_s=w / fs,
+        nominal_hz=nominal[keep])
 
 
 def deconvolve(recording, spec, loopback=None, fs_hz=None, ir_length_s=None,
@@ -685,7 +689,7 @@ def deconvolve(recording, spec, loopback=None, fs_hz=None, ir_length_s=None,
         problems.append(Problem(
             "high_distortion",
             f"harmonic distortion reaches {dist.thd_percent[b]:.1f} % in the octave around "
-            f"{dist.center_hz[b]:.0f} Hz",
+            f"{dist.nominal_hz[b]:g} Hz",
             "lower the playback level; loudspeakers distort most at low frequencies"))
 
     return IRResult(
