@@ -14,6 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ..dsp.response import smooth_db
 from ..dsp.text import boost_text
 
 __all__ = ["PALETTE", "new_figure", "save_figure", "plot_prediction", "plot_modes"]
@@ -82,6 +83,10 @@ def mark_modes(ax, modes, fmin, fmax, max_order=2):
                     transform=trans, clip_on=False)
 
 
+#: Fractional-octave smoothing of the curves drawn in bold (the one the commands' figures use).
+_SHOWN_SMOOTHING = 6
+
+
 def plot_prediction(predictions, modes=None, title=None, path=None, bands=None):
     """Predicted level at the seat for one or more predictions (layouts).
 
@@ -103,14 +108,20 @@ def plot_prediction(predictions, modes=None, title=None, path=None, bands=None):
     for i, p in enumerate(preds):
         same = len(p.channels) > 1 and all(np.allclose(c.level_db, p.channels[0].level_db, atol=0.01)
                                            for c in p.channels[1:])
-        for j, ch in enumerate(p.channels[:1] if same and len(preds) > 1 else p.channels):
+        for j, ch in enumerate(p.channels[:1] if same else p.channels):
             if len(preds) == 1:
-                color, ls, label = PALETTE[j % len(PALETTE)], "-", ch.name
+                color, ls = PALETTE[j % len(PALETTE)], "-"
+                label = " = ".join(c.name for c in p.channels) + " (identical)" if same else ch.name
             elif same:
                 color, ls, label = PALETTE[i % len(PALETTE)], "-", f"{p.layout_name} (all channels alike)"
             else:
                 color, ls, label = PALETTE[i % len(PALETTE)], styles[j % 4], f"{p.layout_name}: {ch.name}"
-            ax.plot(p.freq_hz, ch.level_db, color=color, ls=ls, lw=1.4, label=label)
+            # the curve the printed figures come from (1/6-octave power smoothing), over the
+            # unsmoothed one, drawn thin
+            if len(preds) == 1:
+                ax.plot(p.freq_hz, ch.level_db, color=color, ls=ls, lw=0.6, alpha=0.45)
+            ax.plot(p.freq_hz, smooth_db(p.freq_hz, ch.level_db, _SHOWN_SMOOTHING), color=color, ls=ls, lw=1.6,
+                    label=f"{label}, 1/{_SHOWN_SMOOTHING}-octave smoothed")
             band = bands[i] if bands is not None else None
             if band is not None and ch.name in band.names:
                 lo, _, hi = band.channel(ch.name)
@@ -124,6 +135,8 @@ def plot_prediction(predictions, modes=None, title=None, path=None, bands=None):
     lv = np.concatenate([c.level_db for p in preds for c in p.channels])
     lo, hi = np.percentile(lv, 1), lv.max()
     ax.set_ylim(np.floor(lo / 5) * 5 - 5, np.ceil(hi / 5) * 5 + 5)
+    if len(preds) == 1:
+        ax.plot([], [], color="0.4", lw=0.6, alpha=0.6, label="thin: unsmoothed")
     if modes is not None:
         ax.plot([], [], color="0.25", lw=0.8, label="| room mode (tick at top;\n  long axial, short tangential)")
     if len(preds) > 1:
