@@ -33,22 +33,26 @@ free-field pressure the same source gives at 1 m.
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
 from ..model.modes import mode_indices, mode_shapes, wall_weights
 from ..model.walls import impedance_table
 
 __all__ = ["modal_transfer", "modal_transfer_direct", "static_green", "DEFAULT_CUTOFF_FACTOR",
-           "modal_weights", "modal_sum_block", "static_green_pairs", "static_green_block", "static_tail_term"]
+           "modal_weights", "modal_sum_block", "static_green_pairs", "static_green_block", "static_tail_term",
+           "block_sizes", "BLOCK_BYTES"]
 
 #: The modal sum runs to ``DEFAULT_CUTOFF_FACTOR`` times the highest frequency asked for.
 DEFAULT_CUTOFF_FACTOR = 3.0
-#: Modes times frequencies per block of the modal sum's weights (2**22 complex: 64 MiB).
-_BLOCK_ELEMENTS = 1 << 22
 #: Terms of the static series are kept while exp(-kappa |d|) > exp(-_STATIC_DECAY).
 _STATIC_DECAY = 18.0
 #: Cap on the number of 2-D modes per axis in the static series.
 _STATIC_MAX_INDEX = 4000
+#: Memory budget of one block of :func:`modal_transfer` (mode shapes of a block of points,
+#: folded weights, the block's product), bytes. Any number of points runs in blocks of it.
+BLOCK_BYTES = 96 * 2**20
 
 
 def _as_points(name, pts):
@@ -171,16 +175,73 @@ def modal_weights(size_m, zeta, freq_hz, speed_of_sound, *, cutoff_hz=None):
         raise ValueError("freq_hz must be a 1-D array of positive frequencies in Hz")
     z = impedance_table(zeta, f.size)
     fc = DEFAULT_CUTOFF_FACTOR * f.max() if cutoff_hz is None else float(cutoff_hz)
-    idx, fn = mode_indices(size, fc, c)
-    kn2 = (2 * np.pi * fn / c) ** 2
-    k = 2 * np.pi * f / c
-    eps = np.prod(np.where(idx != 0, 2.0, 1.0), axis=1)
-    damp = wall_weights(idx, size) @ (1.0 / z)
-    denom = kn2[:, None] - k[None, :] ** 2 + 1j * k[None, :] * damp
-    weight = (4 * np.pi * eps / np.prod(size))[:, None] / denom
-    static_weight = np.zeros(idx.shape[0])
-    static_weight[1:] = 4 * np.pi * eps[1:] / np.prod(size) / kn2[1:]
-    return idx, weight, static_weight
+    table = _mode_table(tuple(size.tolist()), fc, c)
+    weight = _weights(table, z, 2 * np.pi * f / c, fold=None)
+    return table.indices.copy(), weight, table.static_weight.copy()
+
+
+class _ModeTable:
+    """The frequency-independent part of the modal sum for one room, cutoff and speed of
+    sound: indices (N, 3), ``k_n^2``, wall weights (N, 6), ``4 pi eps_n / V`` and the static
+    weights ``4 pi eps_n / (V k_n^2)`` (0 for the (0, 0, 0) term). Arrays are read-only."""
+
+    def __init__(self, size, fc, c):
+        idx, fn = mode_indices(size, fc, c)
+        self.indices = idx
+        self.kn2 = (2 * np.pi * fn / c) ** 2
+        eps = np.prod(np.where(idx != 0, 2.0, 1.0), axis=1)
+        self.walls = np.ascontiguousarray(wall_weights(idx, size))
+        self.scale = 4 * np.pi * eps / np.prod(size)
+        sw = np.zeros(idx.shape[0])
+        sw[1:] = 4 * np.pi * eps[1:] / np.prod(size) / self.kn2[1:]
+        self.static_weight = sw
+        # per-axis wavenumbers n pi / L of the indices in use, for the shape tables
+        self.axis_k = [np.pi * np.arange(idx[:, a].max(initial=0) + 1) / size[a] for a in range(3)]
+        for arr in (self.indices, self.kn2, self.walls, self.scale, self.static_weight, *self.axis_k):
+            arr.flags.writeable = False
+
+
+@functools.lru_cache(maxsize=16)
+def _mode_table(size, fc, c):
+    """Cached :class:`_ModeTable` (the key is plain floats: size tuple, cutoff, c)."""
+    return _ModeTable(np.asarray(size, dtype=float), fc, c)
+
+
+def _weights(table, z, k, fold=None, minus_static=False):
+    """Modal weights ``W[n, f]`` (N, F) complex, or, with ``fold`` (R, N), the folded weights
+    ``B[n, r, f] = fold[r, n] (W[n, f] - [minus_static] W_static[n])`` (N, R, F), C order.
+
+    The same arithmetic as the formula (``scale / (k_n^2 - k^2 + j k b_n)``, so the
+    weights equal :func:`modal_weights`' to the last bit), with the temporaries written in place.
+    """
+    damp = table.walls @ (1.0 / z)  # (N, F)
+    damp *= k
+    w = np.empty(damp.shape, dtype=complex)
+    w.real = table.kn2[:, None] - (k * k)[None, :]
+    w.imag = damp
+    np.divide(table.scale[:, None], w, out=w)
+    if minus_static:
+        w -= table.static_weight[:, None]
+    if fold is None:
+        return w
+    out = np.empty((w.shape[0], fold.shape[0], w.shape[1]), dtype=complex)
+    np.multiply(fold.T[:, :, None], w[:, None, :], out=out)
+    return out
+
+
+def _shapes(table, size, points):
+    """Mode shapes (P, N) in C order: per-axis cosine tables and three gathers (the same
+    values as :func:`roommodes.model.modes.mode_shapes`)."""
+    p = np.asarray(points, dtype=float)
+    idx = table.indices
+    out = np.empty((p.shape[0], idx.shape[0]))
+    for a in range(3):
+        cos = np.cos(p[:, a, None] * table.axis_k[a])  # (P, n_a)
+        if a == 0:
+            np.take(cos, idx[:, 0], axis=1, out=out)
+        else:
+            out *= np.take(cos, idx[:, a], axis=1)
+    return out
 
 
 def modal_sum_block(psi_src, psi_rec, weight):
@@ -423,19 +484,54 @@ def modal_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound
     src = _as_points("sources_m", sources_m)
     rec = _as_points("receivers_m", receivers_m)
     f = np.atleast_1d(np.asarray(freq_hz, dtype=float))
+    c = float(speed_of_sound)
+    if f.ndim != 1 or np.any(~np.isfinite(f)) or np.any(f <= 0):
+        raise ValueError("freq_hz must be a 1-D array of positive frequencies in Hz")
     z = impedance_table(zeta, f.size)
     fc = DEFAULT_CUTOFF_FACTOR * f.max() if cutoff_hz is None else float(cutoff_hz)
-    # the same modes for every frequency; the (modes, F) weights are made a block of
-    # frequencies at a time, so memory stays bounded however many modes the band needs
-    idx, weight, sw = modal_weights(size, z[:, :1], f[:1], speed_of_sound, cutoff_hz=fc)
-    shapes = (mode_shapes(idx, size, src), mode_shapes(idx, size, rec))
-    block = max(1, _BLOCK_ELEMENTS // max(idx.shape[0], 1))
+    table = _mode_table(tuple(size.tolist()), fc, c)
+    k = 2 * np.pi * f / c
     h = np.empty((src.shape[0], rec.shape[0], f.size), dtype=complex)
-    h[:, :, :1] = modal_sum_block(*shapes, weight)
-    for i0 in range(1, f.size, block):
-        sl = slice(i0, min(i0 + block, f.size))
-        _, weight, _ = modal_weights(size, z[:, sl], f[sl], speed_of_sound, cutoff_hz=fc)
-        h[:, :, sl] = modal_sum_block(*shapes, weight)
-    if static_tail:
-        h += static_tail_term(size, src, rec, idx, sw, shapes=shapes)[:, :, None]
+    # The smaller point set is folded into the weights; the larger one multiplies the fold
+    # as a real (rows x N) by (N x 2 R F) product. With the static tail the static limit of
+    # the modes kept is subtracted from the weights (W - W_static) inside the same product,
+    # and the closed-form static Green's function is added per block.
+    swap = src.shape[0] < rec.shape[0]
+    rows, folds = (rec, src) if swap else (src, rec)
+    hv = h.transpose(1, 0, 2) if swap else h
+    # the static Green's function of every pair at once (rows x folds reals, less than the
+    # result), so that its series does not depend on the blocks
+    gs_all = 4 * np.pi * static_green_block(size, rows, folds) if static_tail else None
+    rb, gb, fb = block_sizes(rows.shape[0], folds.shape[0], f.size, table.indices.shape[0])
+    for r0 in range(0, rows.shape[0], rb):
+        r1 = min(r0 + rb, rows.shape[0])
+        psi_rows = _shapes(table, size, rows[r0:r1])
+        for g0 in range(0, folds.shape[0], gb):
+            g1 = min(g0 + gb, folds.shape[0])
+            psi_fold = _shapes(table, size, folds[g0:g1])
+            gs = gs_all[r0:r1, g0:g1] if static_tail else None
+            for f0 in range(0, f.size, fb):
+                f1 = min(f0 + fb, f.size)
+                fold = _weights(table, z[:, f0:f1], k[f0:f1], fold=psi_fold, minus_static=static_tail)
+                res = psi_rows @ fold.reshape(fold.shape[0], -1).view(np.float64)  # (rows, 2 R F) real
+                out = hv[r0:r1, g0:g1, f0:f1]
+                out[...] = res.view(np.complex128).reshape(r1 - r0, g1 - g0, f1 - f0)
+                if gs is not None:
+                    out += gs[:, :, None]
     return h
+
+
+def block_sizes(n_rows, n_fold, n_freq, n_modes, budget_bytes=None):
+    """Block sizes ``(rows, folded points, frequencies)`` of :func:`modal_transfer`.
+
+    Half of the budget (default :data:`BLOCK_BYTES`) goes to the folded weights
+    (``16 N R F`` bytes plus the ``(N, F)`` weights), half to a block of rows (``8 N`` bytes
+    of shapes and ``16 R F`` of product per row), so that a call's temporaries stay within
+    about the budget for any number of points.
+    """
+    half = (BLOCK_BYTES if budget_bytes is None else budget_bytes) // 2
+    n = max(int(n_modes), 1)
+    fb = max(1, min(n_freq, half // (32 * n)))
+    gb = max(1, min(n_fold, half // (16 * n * fb) - 1))
+    rb = max(1, min(n_rows, half // (8 * n + 16 * gb * fb)))
+    return rb, gb, fb

@@ -1,75 +1,208 @@
-"""Benchmark of the solvers on the demo room. Prints figures; asserts nothing.
+"""Benchmark of the solvers against the code before the speed work and against plain BLAS.
 
-    python tests/bench/bench.py
+    python tests/bench/bench.py [--rounds 7] [--skip-memory] [--skip-exact-large]
 
-Reports, for the demo room:
-- time per transfer function (1 source x 1 receiver, 15-300 Hz at 48 points per octave)
-  for the modal and the image-source solver (first call, with any compilation, separately);
-- throughput of the modal solver for 2,000 sources x 1 receiver;
-- the machine's own matrix-multiply rate measured in the same run, so the modal figure can
-  be read as a fraction of it.
+Prints figures; asserts nothing. Every timed figure is the median, over interleaved rounds,
+of a ratio (or a fraction) formed inside one round, so that load drift on a shared machine
+hits both sides alike. In each round, in turn:
+
+- ``gemm``: a real float64 GEMM of the modal product's own shape (2,000 x N modes times
+  N x 400), the machine's GEMM rate in that round;
+- ``plain``: the plain NumPy/BLAS modal product with modes to 600 Hz (mode shapes and
+  folded weights given, C order, one ``@``), the issue's reference;
+- the modal solver, 2,000 sources x 1 receiver x 200 frequencies (20-200 Hz, so modes to
+  600 Hz), old code (``tests/bench/baseline``) and current code;
+- one prediction, 1 x 1 x 209 (15-300 Hz at 48 per octave), exact (the default) and
+  modal, old and current;
+- the image-source solver at alpha 0.3 (30-150 Hz), 1 receiver and 100 receivers, old
+  and current; the per-image cost of the current code.
+
+Then, once (not in rounds): the exact solver's 2,000-source case, old and current, and the
+peak memory (tracemalloc, which sees NumPy's buffers) of 1 source x 100,000 receivers x 50
+frequencies (15-300 Hz) for each solver that can run it.
 """
 
 from __future__ import annotations
 
+import argparse
 import time
+import tracemalloc
 
 import numpy as np
+from baseline import exact as old_exact
+from baseline import images as old_images
+from baseline import modal as old_modal
 
 import roommodes
-from roommodes.model.modes import mode_shapes
-from roommodes.solvers.modal import modal_sum_block, modal_weights
+from roommodes.model.modes import mode_indices, mode_shapes
+from roommodes.model.walls import impedance_from_absorption
+from roommodes.solvers.exact import exact_transfer
+from roommodes.solvers.images import image_count, image_source_transfer
+from roommodes.solvers.modal import modal_transfer
 
 
-def best_of(fn, repeat=5):
-    times = []
-    for _ in range(repeat):
-        t = time.perf_counter()
+def timed(fn):
+    t0 = time.perf_counter()
+    out = fn()
+    return time.perf_counter() - t0, out
+
+
+def peak_bytes(fn):
+    """Peak traced allocation (bytes) while ``fn`` runs."""
+    tracemalloc.start()
+    tracemalloc.reset_peak()
+    try:
         fn()
-        times.append(time.perf_counter() - t)
-    return min(times)
+        return tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
 
 
-def matmul_gflops(n=1500, m=1500, k=1500):
-    """Real double-precision GEMM rate of this machine's BLAS, GFLOP/s."""
-    a = np.random.default_rng(0).standard_normal((n, k))
-    b = np.random.default_rng(1).standard_normal((k, m))
-    t = best_of(lambda: a @ b, 3)
-    return 2 * n * m * k / t / 1e9
+def max_db(a, b):
+    """Largest level difference, dB."""
+    return float(np.max(np.abs(20 * np.log10(np.abs(a) / np.abs(b)))))
 
 
-def main():
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--rounds", type=int, default=7)
+    ap.add_argument("--skip-memory", action="store_true", help="leave out the 100,000-receiver case")
+    ap.add_argument("--skip-exact-large", action="store_true", help="leave out the exact 2,000-source case")
+    ap.add_argument("--skip-old-memory", action="store_true", help="memory of the current code only")
+    args = ap.parse_args(argv)
+
     room = roommodes.load_room(roommodes.demo_room_path())
-    f = roommodes.log_frequencies(15, 300, 48)
+    size, c = np.asarray(room.size_m), room.speed_of_sound
     src = np.array([[0.5, 0.62, 1.15]])
     rec = np.array([[1.85, 1.45, 1.2]])
-    print(f"roommodes {roommodes.__version__} benchmark, demo room {room.size_m} m, {f.size} frequencies")
+    many = 0.1 + np.random.default_rng(7).random((2000, 3)) * (size - 0.2)
+    f200 = np.geomspace(20.0, 200.0, 200)
+    z200 = room.impedance(f200)
+    f_pred = roommodes.log_frequencies(15, 300, 48)
+    z_pred = room.impedance(f_pred)
 
-    gflops = matmul_gflops()
-    print(f"machine matrix multiply (float64 GEMM 1500^3): {gflops:.1f} GFLOP/s")
+    # the plain modal product: modes to 600 Hz, shapes and folded weights given
+    idx, fn = mode_indices(size, 600.0, c)
+    n_modes = idx.shape[0]
+    psi = np.ascontiguousarray(mode_shapes(idx, size, many))
+    _, w, _ = old_modal.modal_weights(size, z200, f200, c, cutoff_hz=600.0)
+    fold = np.ascontiguousarray(mode_shapes(idx, size, rec)[0][:, None] * w).view(np.float64)
+    rng = np.random.default_rng(1)
+    ga, gb = rng.standard_normal(psi.shape), rng.standard_normal(fold.shape)
+    flops = 2.0 * psi.shape[0] * n_modes * fold.shape[1]
 
-    for method in ("modal", "image"):
-        t0 = time.perf_counter()
-        roommodes.transfer_function(room, src, rec, f, method=method)
-        first = time.perf_counter() - t0
-        t = best_of(lambda m=method: roommodes.transfer_function(room, src, rec, f, method=m), 3)
-        print(f"{method:>5} solver, 1 x 1 transfer: {t * 1e3:8.1f} ms (first call {first * 1e3:.0f} ms)")
+    # the image case
+    zeta_img = impedance_from_absorption(np.full(6, 0.3))
+    f_img = roommodes.log_frequencies(30, 150, 12)
+    rec_img = 0.3 + np.random.default_rng(3).random((100, 3)) * (size - 0.6)
 
-    rng = np.random.default_rng(2)
-    many = rng.uniform(0.1, 0.9, (2000, 3)) * np.asarray(room.size_m)
-    t = best_of(lambda: roommodes.transfer_function(room, many, rec, f, method="modal"), 2)
-    idx, weight, _ = modal_weights(room.size_m, room.impedance(f), f, room.speed_of_sound)
-    psi_s, psi_r = mode_shapes(idx, room.size_m, many), mode_shapes(idx, room.size_m, rec)
-    t_core = best_of(lambda: modal_sum_block(psi_s, psi_r, weight), 3)
-    # the core product: (2000 x N modes) real times (N x 2F) real
-    flops = 2 * many.shape[0] * len(idx) * 2 * f.size
-    print(f"modal solver, 2000 sources x 1 receiver: {t:.3f} s for the whole call, {2000 / t:,.0f} transfers/s "
-          f"({len(idx)} modes, static tail included)")
-    print(f"  its core matrix product alone: {t_core * 1e3:.1f} ms, {flops / t_core / 1e9:.1f} GFLOP/s "
-          f"= {flops / t_core / 1e9 / gflops:.0%} of the machine's GEMM rate measured above")
+    print(f"roommodes {roommodes.__version__}, demo room {size} m, c = {c:.1f} m/s; "
+          f"{args.rounds} rounds after one warm-up round; medians over rounds")
 
-    t_pred = best_of(lambda: roommodes.analysis.predict(room), 3)
-    print(f"predict (both channels, demo layout): {t_pred * 1e3:.0f} ms")
+    cases = {
+        "gemm": lambda: ga @ gb,
+        "plain": lambda: psi @ fold,
+        "modal2000_old": lambda: old_modal.modal_transfer(size, z200, many, rec, f200, c),
+        "modal2000_new": lambda: modal_transfer(size, z200, many, rec, f200, c),
+        "pred_exact_old": lambda: old_exact.exact_transfer(size, z_pred, src, rec, f_pred, c),
+        "pred_exact_new": lambda: exact_transfer(size, z_pred, src, rec, f_pred, c),
+        "pred_modal_old": lambda: old_modal.modal_transfer(size, z_pred, src, rec, f_pred, c),
+        "pred_modal_new": lambda: modal_transfer(size, z_pred, src, rec, f_pred, c),
+        "img1_old": lambda: old_images.image_source_transfer(size, zeta_img, src, rec_img[:1], f_img, c),
+        "img1_new": lambda: image_source_transfer(size, zeta_img, src, rec_img[:1], f_img, c),
+        "img100_old": lambda: old_images.image_source_transfer(size, zeta_img, src, rec_img, f_img, c),
+        "img100_new": lambda: image_source_transfer(size, zeta_img, src, rec_img, f_img, c),
+    }
+    times = {k: [] for k in cases}
+    results = {}
+    for rnd in range(args.rounds + 1):
+        for key, fn_case in cases.items():
+            dt, out = timed(fn_case)
+            if rnd == 0:
+                results[key] = out
+            else:
+                times[key].append(dt)
+    t = {k: np.array(v) for k, v in times.items()}
+    med = {k: float(np.median(v)) for k, v in t.items()}
+
+    def ratio(a, b):
+        return float(np.median(t[a] / t[b]))
+
+    def gemm_fraction(key):
+        # the modal product's flops over the case's time, as a fraction of the same round's GEMM rate
+        return float(np.median(t["gemm"] / t[key]))
+
+    print(f"\nGEMM (float64, {psi.shape[0]} x {n_modes} times {n_modes} x {fold.shape[1]}): "
+          f"{flops / med['gemm'] / 1e9:.1f} GFLOP/s; plain modal product {med['plain'] * 1e3:.1f} ms "
+          f"({gemm_fraction('plain'):.0%} of the GEMM rate)")
+
+    d_modal = max_db(results["modal2000_new"], results["modal2000_old"])
+    d_pred = max_db(results["pred_exact_new"], results["pred_exact_old"])
+    d_pm = max_db(results["pred_modal_new"], results["pred_modal_old"])
+    h1o, i1o = results["img1_old"]
+    h1n, i1n = results["img1_new"]
+    hno, ino = results["img100_old"]
+    hnn, inn = results["img100_new"]
+    d_img = max(max_db(h1n, h1o), max_db(hnn, hno))
+    per_image_ns = med["img100_new"] / inn["images"] * 1e9
+    per_image_old_ns = med["img100_old"] / ino["images"] * 1e9
+
+    rows = [
+        ("modal 2000x1x200 / plain BLAS product", "<= 1.2",
+         ratio("modal2000_old", "plain"), ratio("modal2000_new", "plain"), d_modal),
+        ("modal 2000x1x200, fraction of GEMM rate", ">= 0.70",
+         gemm_fraction("modal2000_old"), gemm_fraction("modal2000_new"), None),
+        ("one prediction, exact (default), ms", "<= 3",
+         med["pred_exact_old"] * 1e3, med["pred_exact_new"] * 1e3, d_pred),
+        ("one prediction, modal, ms", "(<= 3)",
+         med["pred_modal_old"] * 1e3, med["pred_modal_new"] * 1e3, d_pm),
+        ("image alpha 0.3: 100 receivers / 1", "<= 20",
+         ratio("img100_old", "img1_old"), ratio("img100_new", "img1_new"), d_img),
+        ("image: ns per image and pair (100 receivers)", "",
+         per_image_old_ns, per_image_ns, None),
+    ]
+    print(f"\n{'target':46s} {'goal':>8s} {'before':>10s} {'after':>10s} {'after/before':>13s}  max |dL| dB")
+    for name, goal, before, after, d in rows:
+        dd = "" if d is None else f"{d:.1e}"
+        print(f"{name:46s} {goal:>8s} {before:10.3g} {after:10.3g} {after / before:13.3f}  {dd}")
+    print("speed-ups measured as medians of per-round ratios, current / old: "
+          f"modal 2000x1x200 {ratio('modal2000_new', 'modal2000_old'):.3f}, "
+          f"prediction exact {ratio('pred_exact_new', 'pred_exact_old'):.3f}, "
+          f"modal {ratio('pred_modal_new', 'pred_modal_old'):.3f}, "
+          f"image 100 receivers {ratio('img100_new', 'img100_old'):.3f}")
+    print(f"image sum: {inn['images']:,} images over 100 pairs (order {inn['order']}; "
+          f"{image_count(inn['order']):,} images at that order), {per_image_ns:.1f} ns per image and pair")
+
+    if not args.skip_exact_large:
+        t_old, h_old = timed(lambda: old_exact.exact_transfer(size, z200, many, rec, f200, c))
+        t_new, h_new = timed(lambda: exact_transfer(size, z200, many, rec, f200, c))
+        print(f"\nexact 2000x1x200 (one run each): before {t_old:.2f} s, after {t_new:.2f} s, "
+              f"after/before {t_new / t_old:.3f}; max |dL| {max_db(h_new, h_old):.1e} dB")
+
+    if not args.skip_memory:
+        f50 = np.geomspace(15.0, 300.0, 50)
+        z50 = room.impedance(f50)
+        gx, gy = np.meshgrid(np.linspace(0.05, size[0] - 0.05, 400), np.linspace(0.05, size[1] - 0.05, 250),
+                             indexing="ij")
+        grid = np.column_stack([gx.ravel(), gy.ravel(), np.full(gx.size, 1.2)])
+        out_mb = grid.shape[0] * f50.size * 16 / 1e6
+        print(f"\npeak memory, 1 source x {grid.shape[0]:,} receivers x 50 frequencies (15-300 Hz), "
+              f"goal <= 2 GB (the result alone is {out_mb:.0f} MB):")
+        todo = [("modal", old_modal.modal_transfer, modal_transfer),
+                ("exact", old_exact.exact_transfer, exact_transfer)]
+        for name, old, new in todo:
+            line = f"  {name:6s}"
+            if not args.skip_old_memory:
+                t0 = time.perf_counter()
+                try:
+                    pk = peak_bytes(lambda o=old: o(size, z50, src, grid, f50, c))
+                    line += f" before {pk / 1e9:5.2f} GB ({time.perf_counter() - t0:5.1f} s)"
+                except MemoryError:
+                    line += " before: MemoryError"
+            t0 = time.perf_counter()
+            pk = peak_bytes(lambda n=new: n(size, z50, src, grid, f50, c))
+            line += f"  after {pk / 1e9:5.2f} GB ({time.perf_counter() - t0:5.1f} s)"
+            print(line)
 
 
 if __name__ == "__main__":

@@ -1,0 +1,441 @@
+"""Modal-sum solver: the room's Green's function as a sum over rigid-wall modes.
+
+For a point source at ``r0`` the pressure Green's function of the damped box is
+
+.. math:: G(r, r_0, k) = \\sum_n \\frac{\\psi_n(r)\\,\\psi_n(r_0)}
+          {K_n\\,(k_n^2 - k^2 + j k\\,b_n(k))},\\qquad
+          K_n = \\frac{V}{\\varepsilon_x\\varepsilon_y\\varepsilon_z},\\quad
+          b_n = \\sum_w \\beta_w\\,\\frac{\\varepsilon_{n,w}}{L_w},
+
+(time factor ``e^{+j w t}``; Kuttruff, Room Acoustics, 5th ed., 2009, sec. 3.4-3.5;
+Morse & Ingard, Theoretical Acoustics, 1968, sec. 9.5). ``eps = 2`` for a non-zero
+index and 1 otherwise; ``b_n = 2 delta_n / c`` is the perturbation damping of
+:mod:`roommodes.modes`. The ``(0, 0, 0)`` term is kept: it is the pressure rise of a
+closed room below its first mode.
+
+Convergence. Far from the source the sum converges quickly, but the singular near
+field ``1 / (4 pi R)`` lives in the high-order modes. The modes above the cutoff
+``k_N`` are therefore not dropped but replaced by their static limit
+
+.. math:: S_0(r, r_0) = \\sum_{k_n > k_N} \\frac{\\psi_n\\psi_n}{K_n k_n^2}
+          = G_s(r, r_0) - \\sum_{0 < k_n \\le k_N} \\frac{\\psi_n\\psi_n}{K_n k_n^2},
+
+where ``G_s`` is the static (Laplace, rigid-wall, zero-mean) Green's function of the
+box, summed in closed form along one axis (a 1-D Green's function) over the 2-D modes of
+the other two; that series converges exponentially, like ``exp(-kappa |x - x0|)``.
+The error left is of order ``(k / k_N)^2`` of the tail; the default cutoff
+``k_N = 3 k_max`` keeps it below 0.02 dB for points more than 0.3 m apart (see
+tests/test_modal.py for the convergence study).
+
+Normalisation: ``H = 4 pi G``, so ``20 log10 |H|`` is the level relative to the
+free-field pressure the same source gives at 1 m.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from roommodes.model.modes import mode_indices, mode_shapes, wall_weights
+from roommodes.model.walls import impedance_table
+
+__all__ = ["modal_transfer", "modal_transfer_direct", "static_green", "DEFAULT_CUTOFF_FACTOR",
+           "modal_weights", "modal_sum_block", "static_green_pairs", "static_green_block", "static_tail_term"]
+
+#: The modal sum runs to ``DEFAULT_CUTOFF_FACTOR`` times the highest frequency asked for.
+DEFAULT_CUTOFF_FACTOR = 3.0
+#: Modes times frequencies per block of the modal sum's weights (2**22 complex: 64 MiB).
+_BLOCK_ELEMENTS = 1 << 22
+#: Terms of the static series are kept while exp(-kappa |d|) > exp(-_STATIC_DECAY).
+_STATIC_DECAY = 18.0
+#: Cap on the number of 2-D modes per axis in the static series.
+_STATIC_MAX_INDEX = 4000
+
+
+def _as_points(name, pts):
+    p = np.atleast_2d(np.asarray(pts, dtype=float))
+    if p.ndim != 2 or p.shape[1] != 3:
+        raise ValueError(f"{name} must be an (N, 3) array of positions in metres, got shape {p.shape}")
+    return p
+
+
+def static_green(size_m, source_m, receiver_m):
+    """Static rigid-wall Green's function of the box, zero-mean part.
+
+    ``G_s = sum_{n != 0} psi_n(r) psi_n(r0) / (K_n k_n^2)``, summed as a closed-form 1-D
+    Green's function along the axis of largest separation times the 2-D modes of the
+    other two axes.
+
+    Parameters
+    ----------
+    size_m : array_like (3,)
+    source_m, receiver_m : array_like (3,)
+        Two distinct points inside the box, m.
+
+    Returns
+    -------
+    float
+    """
+    size = np.asarray(size_m, dtype=float)
+    s = np.asarray(source_m, dtype=float)
+    r = np.asarray(receiver_m, dtype=float)
+    d = np.abs(s - r)
+    a = int(np.argmax(d))
+    b, c = [i for i in range(3) if i != a]
+    sep = max(d[a], 1e-3)
+    kmax = _STATIC_DECAY / sep
+    mb = min(int(kmax * size[b] / np.pi) + 1, _STATIC_MAX_INDEX)
+    mc = min(int(kmax * size[c] / np.pi) + 1, _STATIC_MAX_INDEX)
+    m = np.arange(mb + 1)[:, None]
+    p = np.arange(mc + 1)[None, :]
+    kb = m * np.pi / size[b]
+    kc = p * np.pi / size[c]
+    kappa = np.sqrt(kb**2 + kc**2)
+    weight = (np.where(m > 0, 2.0, 1.0) * np.where(p > 0, 2.0, 1.0)) / (size[b] * size[c])
+    shape = np.cos(kb * s[b]) * np.cos(kb * r[b]) * np.cos(kc * s[c]) * np.cos(kc * r[c])
+    keep = kappa <= kmax
+    g = _g1d(min(s[a], r[a]), max(s[a], r[a]), kappa[keep], size[a])
+    return float(np.sum((weight * shape)[keep] * g))
+
+
+def modal_transfer_direct(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound, *,
+                          cutoff_hz=None, static_tail=True):
+    """The modal sum evaluated term by term: one receiver and one pair at a time.
+
+    Same arguments and result as :func:`modal_transfer`; slower, and written to be read
+    next to the formula in the module docstring. Tests hold the fast form to it.
+    """
+    size = np.asarray(size_m, dtype=float)
+    src = _as_points("sources_m", sources_m)
+    rec = _as_points("receivers_m", receivers_m)
+    idx, weight, static_w = modal_weights(size, zeta, freq_hz, speed_of_sound, cutoff_hz=cutoff_hz)
+    psi_s = mode_shapes(idx, size, src)  # (S, N)
+    psi_r = mode_shapes(idx, size, rec)  # (M, N)
+    out = np.empty((src.shape[0], rec.shape[0], weight.shape[1]), dtype=complex)
+    for j in range(rec.shape[0]):
+        out[:, j, :] = (psi_s * psi_r[j]) @ weight
+    if static_tail:
+        low = (psi_s * static_w) @ psi_r.T  # (S, M): the static limit of the modes kept
+        for i in range(src.shape[0]):
+            for j in range(rec.shape[0]):
+                out[i, j, :] += 4 * np.pi * static_green(size, src[i], rec[j]) - low[i, j]
+    return out
+
+
+# ---------------------------------------------------------------------------------------
+# Batched evaluation: the same modal sum written as matrix products, for many sources and
+# receivers at once (placement search). Results equal modal_transfer's to round-off.
+# ---------------------------------------------------------------------------------------
+
+#: Largest temporary array (elements) the batched functions build at once.
+_BATCH_ELEMENTS = 8_000_000
+
+
+def modal_weights(size_m, zeta, freq_hz, speed_of_sound, *, cutoff_hz=None):
+    """The frequency part of the modal sum: ``H = psi_s^T diag(.) psi_r`` factors.
+
+    ``H(r_s, r_r, f) = sum_n psi_n(r_s) psi_n(r_r) W[n, f] + T(r_s, r_r)``, where
+    ``W[n, f] = 4 pi eps_n / (V (k_n^2 - k^2 + j k b_n))`` is the modal weight and ``T``
+    the static tail (:func:`static_tail_term`). Same modes, damping and cutoff as
+    :func:`modal_transfer`.
+
+    Parameters
+    ----------
+    size_m : array_like (3,)
+        Room dimensions, m.
+    zeta : array_like (6,) or (6, F)
+        Real normalised wall impedances (``inf`` rigid).
+    freq_hz : array_like (F,)
+        Frequencies, Hz, > 0.
+    speed_of_sound : float
+        m/s.
+    cutoff_hz : float, optional
+        Highest mode in the sum; default ``DEFAULT_CUTOFF_FACTOR * max(freq_hz)``.
+
+    Returns
+    -------
+    indices : ndarray of int (N, 3)
+        Mode indices, starting with (0, 0, 0).
+    weight : ndarray, complex (N, F)
+        ``W[n, f]`` (normalised as ``H = 4 pi G``).
+    static_weight : ndarray (N,)
+        ``4 pi eps_n / (V k_n^2)``, the static limit of ``W``; 0 for the (0, 0, 0) term.
+
+    Notes
+    -----
+    Kuttruff, Room Acoustics, 5th ed., 2009, sec. 3.4-3.5 (see the module docstring).
+    """
+    size = np.asarray(size_m, dtype=float)
+    f = np.atleast_1d(np.asarray(freq_hz, dtype=float))
+    c = float(speed_of_sound)
+    if f.ndim != 1 or np.any(~np.isfinite(f)) or np.any(f <= 0):
+        raise ValueError("freq_hz must be a 1-D array of positive frequencies in Hz")
+    z = impedance_table(zeta, f.size)
+    fc = DEFAULT_CUTOFF_FACTOR * f.max() if cutoff_hz is None else float(cutoff_hz)
+    idx, fn = mode_indices(size, fc, c)
+    kn2 = (2 * np.pi * fn / c) ** 2
+    k = 2 * np.pi * f / c
+    eps = np.prod(np.where(idx != 0, 2.0, 1.0), axis=1)
+    damp = wall_weights(idx, size) @ (1.0 / z)
+    denom = kn2[:, None] - k[None, :] ** 2 + 1j * k[None, :] * damp
+    weight = (4 * np.pi * eps / np.prod(size))[:, None] / denom
+    static_weight = np.zeros(idx.shape[0])
+    static_weight[1:] = 4 * np.pi * eps[1:] / np.prod(size) / kn2[1:]
+    return idx, weight, static_weight
+
+
+def modal_sum_block(psi_src, psi_rec, weight):
+    """``H[s, r, f] = sum_n psi_src[s, n] psi_rec[r, n] weight[n, f]`` as one real GEMM.
+
+    The smaller of the two point sets is folded into the weights
+    (``B[n, (r, f)] = psi_rec[r, n] W[n, f]``), and the other multiplies it as a real
+    (points x N) by (N x 2 R F) matrix product (complex numbers viewed as pairs of reals).
+
+    Parameters
+    ----------
+    psi_src : ndarray (S, N)
+        Mode shapes at the sources (:func:`roommodes.modes.mode_shapes`).
+    psi_rec : ndarray (R, N)
+        Mode shapes at the receivers.
+    weight : ndarray, complex (N, F)
+        Modal weights (:func:`modal_weights`).
+
+    Returns
+    -------
+    ndarray, complex (S, R, F)
+    """
+    a = np.ascontiguousarray(psi_src, dtype=float)
+    b = np.ascontiguousarray(psi_rec, dtype=float)
+    w = np.ascontiguousarray(weight, dtype=complex)
+    swap = a.shape[0] < b.shape[0]
+    if swap:
+        a, b = b, a
+    n_rows, n_modes = a.shape
+    n_fold, n_freq = b.shape[0], w.shape[1]
+    out = np.empty((n_rows, n_fold, n_freq), dtype=complex)
+    chunk = max(1, _BATCH_ELEMENTS // max(1, 2 * n_modes * n_freq))
+    for j0 in range(0, n_fold, chunk):
+        j1 = min(n_fold, j0 + chunk)
+        fold = np.ascontiguousarray((b[j0:j1].T[:, :, None] * w[:, None, :]).reshape(n_modes, (j1 - j0) * n_freq))
+        res = a @ fold.view(np.float64)  # (rows, 2 * (j1 - j0) * F) real
+        out[:, j0:j1, :] = res.view(np.complex128).reshape(n_rows, j1 - j0, n_freq)
+    return out.transpose(1, 0, 2) if swap else out
+
+
+def _terms_2d(kmax, lb, lc):
+    """The 2-D modes (m, p) of the two transverse axes (lengths lb, lc) with ``kappa <= kmax``:
+    their indices, ``kappa = pi sqrt((m/lb)^2 + (p/lc)^2)`` and weights ``eps_m eps_p / (lb lc)``."""
+    mb = min(int(kmax * lb / np.pi) + 1, _STATIC_MAX_INDEX)
+    mc = min(int(kmax * lc / np.pi) + 1, _STATIC_MAX_INDEX)
+    m, p = np.meshgrid(np.arange(mb + 1), np.arange(mc + 1), indexing="ij")
+    kappa = np.pi * np.sqrt((m / lb) ** 2 + (p / lc) ** 2)
+    keep = kappa <= kmax
+    weight = np.where(m > 0, 2.0, 1.0) * np.where(p > 0, 2.0, 1.0) / (lb * lc)
+    return m[keep], p[keep], kappa[keep], weight[keep]
+
+
+def static_green_pairs(size_m, sources_m, receivers_m):
+    """:func:`static_green` for many (source, receiver) pairs, vectorised.
+
+    Each pair is summed along its axis of largest separation, as :func:`static_green`
+    does; pairs are processed in groups of similar separation, and each group keeps the
+    2-D terms that its closest pair needs (so every pair keeps at least the terms
+    :func:`static_green` keeps for it).
+
+    Parameters
+    ----------
+    size_m : array_like (3,)
+    sources_m, receivers_m : array_like (P, 3)
+        Paired points inside the box, m.
+
+    Returns
+    -------
+    ndarray (P,)
+    """
+    size = np.asarray(size_m, dtype=float)
+    s = np.atleast_2d(np.asarray(sources_m, dtype=float))
+    r = np.atleast_2d(np.asarray(receivers_m, dtype=float))
+    if s.shape != r.shape or s.ndim != 2 or s.shape[1] != 3:
+        raise ValueError(f"sources_m and receivers_m must both be (P, 3), got {s.shape} and {r.shape}")
+    d = np.abs(s - r)
+    axis = np.argmax(d, axis=1)
+    out = np.empty(s.shape[0])
+    for a in range(3):
+        sel = np.flatnonzero(axis == a)
+        if sel.size == 0:
+            continue
+        b, c = [i for i in range(3) if i != a]
+        sep = np.maximum(d[sel, a], 1e-3)
+        # bins of separation a factor 1.25 wide; each bin keeps the terms its closest pair needs
+        bins = np.floor(np.log(sep) / np.log(1.25)).astype(int)
+        for key in np.unique(bins):
+            members = sel[bins == key]
+            m, p, kappa, w = _terms_2d(_STATIC_DECAY / sep[bins == key].min(), size[b], size[c])
+            mb, mc = np.arange(m.max() + 1) * np.pi / size[b], np.arange(p.max() + 1) * np.pi / size[c]
+            rows = max(1, _BATCH_ELEMENTS // (4 * kappa.size))
+            for i0 in range(0, members.size, rows):
+                grp = members[i0:i0 + rows]
+                lo = np.minimum(s[grp, a], r[grp, a])[:, None]
+                hi = np.maximum(s[grp, a], r[grp, a])[:, None]
+                # the transverse shapes from per-axis cosine tables (one cosine per index, not per term)
+                cos_b = np.cos(mb * s[grp, b][:, None]) * np.cos(mb * r[grp, b][:, None])
+                cos_c = np.cos(mc * s[grp, c][:, None]) * np.cos(mc * r[grp, c][:, None])
+                shape = cos_b[:, m] * cos_c[:, p]
+                shape *= _g1d(lo, hi, kappa, size[a])
+                out[grp] = shape @ w
+    return out
+
+
+def _g1d(lo, hi, kappa, length):
+    """1-D Neumann Green's function of ``-d2/dx2 + kappa^2`` on [0, L], broadcast over
+    ``lo <= hi`` (P, 1) and ``kappa`` (K,); the kappa = 0 column is the zero-mean form."""
+    k = np.where(kappa > 0, kappa, 1.0)
+    num = (np.exp(k * (lo - hi)) + np.exp(k * (lo + hi - 2 * length)) + np.exp(-k * (lo + hi))
+           + np.exp(-k * (2 * length + lo - hi)))
+    g = num / (2.0 * k * (1.0 - np.exp(-2.0 * k * length)))
+    zero = length / 3.0 - hi + (lo**2 + hi**2) / (2.0 * length)
+    return np.where(kappa > 0, g, zero)
+
+
+def static_green_block(size_m, sources_m, receivers_m, min_gap_m=0.3):
+    """:func:`static_green` for every source and every receiver, shape (S, R).
+
+    When, along some axis, every source lies on one side of every receiver (at least
+    ``min_gap_m`` apart), the closed-form 1-D Green's function factorises,
+    ``cosh(kappa x_<) (e^{-kappa x_>} + e^{kappa (x_> - 2L)}) / (kappa (1 - e^{-2 kappa L}))``,
+    and the whole block is one matrix product over the 2-D modes of the other two axes.
+    Otherwise every pair is summed separately (:func:`static_green_pairs`).
+
+    Parameters
+    ----------
+    size_m : array_like (3,)
+    sources_m : array_like (S, 3)
+    receivers_m : array_like (R, 3)
+    min_gap_m : float
+        Smallest separation for the factorised form, m.
+
+    Returns
+    -------
+    ndarray (S, R)
+    """
+    size = np.asarray(size_m, dtype=float)
+    s = np.atleast_2d(np.asarray(sources_m, dtype=float))
+    r = np.atleast_2d(np.asarray(receivers_m, dtype=float))
+    gaps = np.maximum(r.min(axis=0) - s.max(axis=0), s.min(axis=0) - r.max(axis=0))  # (3,)
+    a = int(np.argmax(gaps))
+    if gaps[a] < min_gap_m:
+        ss = np.repeat(s, r.shape[0], axis=0)
+        rr = np.tile(r, (s.shape[0], 1))
+        return static_green_pairs(size, ss, rr).reshape(s.shape[0], r.shape[0])
+    b, c = [i for i in range(3) if i != a]
+    src_low = s[:, a].max() < r[:, a].min()
+    low, high = (s, r) if src_low else (r, s)
+    length = size[a]
+    # the points of the larger set are binned by their own gap to the other set (bins a
+    # factor 1.5 wide), so that each bin keeps only the 2-D terms its closest point needs
+    big_is_low = low.shape[0] >= high.shape[0]
+    gap_each = (high[:, a].min() - low[:, a]) if big_is_low else (high[:, a] - low[:, a].max())
+    bins = np.floor(np.log(np.maximum(gap_each, min_gap_m)) / np.log(1.5)).astype(int)
+    g = np.empty((low.shape[0], high.shape[0]))
+    for key in np.unique(bins):
+        part = bins == key
+        lo_pts, hi_pts = (low[part], high) if big_is_low else (low, high[part])
+        gap = hi_pts[:, a].min() - lo_pts[:, a].max()
+        m, p, kappa, w = _terms_2d(_STATIC_DECAY / gap, size[b], size[c])
+        pos = kappa > 0
+        m, p, kp, wp = m[pos], p[pos], kappa[pos], w[pos]
+        kb, kc = np.arange(m.max() + 1) * np.pi / size[b], np.arange(p.max() + 1) * np.pi / size[c]
+        mid = 0.5 * (lo_pts[:, a].max() + hi_pts[:, a].min())  # scaling point keeps every factor <= 2
+        lo_x, hi_x = lo_pts[:, a][:, None], hi_pts[:, a][:, None]
+        # transverse shapes from per-axis cosine tables (one cosine per index, not per term)
+        u = (np.cos(kb * lo_pts[:, b][:, None])[:, m] * np.cos(kc * lo_pts[:, c][:, None])[:, p]
+             * (wp * 0.5) * (np.exp(kp * (lo_x - mid)) + np.exp(-kp * (lo_x + mid))))
+        v = (np.cos(kb * hi_pts[:, b][:, None])[:, m] * np.cos(kc * hi_pts[:, c][:, None])[:, p]
+             * (np.exp(kp * (mid - hi_x)) + np.exp(kp * (hi_x + mid - 2 * length)))
+             / (kp * (1.0 - np.exp(-2.0 * kp * length))))
+        gb = u @ v.T  # (low, high)
+        w0 = w[~pos][0]  # the (0, 0) term: zero-mean 1-D Green's function
+        gb += w0 * (length / 3.0 - hi_x.T + (lo_x**2 + hi_x.T**2) / (2.0 * length))
+        if big_is_low:
+            g[part] = gb
+        else:
+            g[:, part] = gb
+    return g if src_low else g.T
+
+
+def static_tail_term(size_m, sources_m, receivers_m, indices, static_weight, *, pairs=False,
+                     shapes=None):
+    """The static limit of the modes above the cutoff, ``4 pi G_s - sum psi psi W_static``.
+
+    Parameters
+    ----------
+    size_m : array_like (3,)
+    sources_m, receivers_m : array_like (S, 3) and (R, 3), or both (P, 3) when ``pairs``
+    indices, static_weight : from :func:`modal_weights`
+    pairs : bool
+        Paired points (result (P,)) instead of every source with every receiver (S, R).
+    shapes : (ndarray, ndarray), optional
+        Mode shapes of ``indices`` at the sources and receivers, when already computed.
+
+    Returns
+    -------
+    ndarray (S, R) or (P,)
+        Real, frequency independent; add it to every frequency of the modal sum.
+    """
+    size = np.asarray(size_m, dtype=float)
+    if shapes is None:
+        shapes = (mode_shapes(indices, size, sources_m), mode_shapes(indices, size, receivers_m))
+    psi_s, psi_r = shapes[0][:, 1:], shapes[1][:, 1:]
+    sw = np.asarray(static_weight, dtype=float)[1:]
+    if pairs:
+        return 4 * np.pi * static_green_pairs(size, sources_m, receivers_m) - np.sum(psi_s * sw * psi_r, axis=1)
+    return 4 * np.pi * static_green_block(size, sources_m, receivers_m) - (psi_s * sw) @ psi_r.T
+
+
+def modal_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound, *,
+                   cutoff_hz=None, static_tail=True):
+    """Complex transfer from point sources to receivers by the modal sum.
+
+    Parameters
+    ----------
+    size_m : array_like (3,)
+        Room dimensions (Lx, Ly, Lz), m.
+    zeta : array_like (6,) or (6, F)
+        Real normalised impedance of each wall (front, back, left, right, floor,
+        ceiling), per frequency or constant; ``inf`` is rigid.
+    sources_m : array_like (N, 3)
+    receivers_m : array_like (M, 3)
+        Positions inside the room, m.
+    freq_hz : array_like (F,)
+        Frequencies, Hz, > 0.
+    speed_of_sound : float
+        m/s.
+    cutoff_hz : float, optional
+        Highest mode in the sum; default ``DEFAULT_CUTOFF_FACTOR * max(freq_hz)``.
+    static_tail : bool
+        Add the static limit of the modes above the cutoff (recommended).
+
+    Returns
+    -------
+    H : ndarray, complex, shape (N, M, F)
+        ``4 pi G``: pressure relative to the free-field pressure at 1 m.
+    """
+    size = np.asarray(size_m, dtype=float)
+    src = _as_points("sources_m", sources_m)
+    rec = _as_points("receivers_m", receivers_m)
+    f = np.atleast_1d(np.asarray(freq_hz, dtype=float))
+    z = impedance_table(zeta, f.size)
+    fc = DEFAULT_CUTOFF_FACTOR * f.max() if cutoff_hz is None else float(cutoff_hz)
+    # the same modes for every frequency; the (modes, F) weights are made a block of
+    # frequencies at a time, so memory stays bounded however many modes the band needs
+    idx, weight, sw = modal_weights(size, z[:, :1], f[:1], speed_of_sound, cutoff_hz=fc)
+    shapes = (mode_shapes(idx, size, src), mode_shapes(idx, size, rec))
+    block = max(1, _BLOCK_ELEMENTS // max(idx.shape[0], 1))
+    h = np.empty((src.shape[0], rec.shape[0], f.size), dtype=complex)
+    h[:, :, :1] = modal_sum_block(*shapes, weight)
+    for i0 in range(1, f.size, block):
+        sl = slice(i0, min(i0 + block, f.size))
+        _, weight, _ = modal_weights(size, z[:, sl], f[sl], speed_of_sound, cutoff_hz=fc)
+        h[:, :, sl] = modal_sum_block(*shapes, weight)
+    if static_tail:
+        h += static_tail_term(size, src, rec, idx, sw, shapes=shapes)[:, :, None]
+    return h
