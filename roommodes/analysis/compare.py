@@ -536,6 +536,17 @@ class FeatureMatch:
     mode: tuple | None = None
     axis: str | None = None
 
+    def to_dict(self):
+        """JSON-ready values (the ``features`` entries of ``compare --json``)."""
+        a, b = self.measured, self.reference
+        return {"kind": self.kind, "measured_hz": None if a is None else a.freq_hz,
+                "reference_hz": None if b is None else b.freq_hz, "ratio": self.ratio,
+                "measured_level_db": None if a is None else a.level_db,
+                "reference_level_db": None if b is None else b.level_db,
+                "measured_prominence_db": None if a is None else a.prominence_db,
+                "reference_prominence_db": None if b is None else b.prominence_db,
+                "cause": self.cause, "mode": self.mode, "axis": self.axis}
+
 
 class _Explainer:
     """Names the mode or boundary most likely behind a predicted feature.
@@ -752,6 +763,23 @@ class ComparisonReport:
     names: tuple
     positions_m: np.ndarray | None = None
     channel: str | None = None
+
+    def to_dict(self):
+        """JSON-ready values: the keys of ``compare --json`` (shared/ARCHITECTURE.md)."""
+        c, first = self.comparison, self.measured
+        spread = None
+        if first.std_db is not None:
+            spread = np.interp(np.log(c.freq_hz), np.log(first.freq_hz), first.std_db)
+        return {
+            "frequencies_hz": c.freq_hz, "measured_db": c.measured_db, "reference_db": c.reference_db,
+            "difference_db": c.difference_db, "median_abs_diff_db": c.median_abs_diff_db,
+            "p90_abs_diff_db": c.p90_abs_diff_db, "rms_diff_db": c.rms_diff_db, "mean_diff_db": c.mean_diff_db,
+            "correlation": c.correlation, "offset_db": c.offset_db, "band_hz": c.band_hz,
+            "align_band_hz": c.align_band_hz, "resolution_hz": first.resolution_hz, "sources": list(first.sources),
+            "band_fraction": first.band_fraction, "spread_db": spread,
+            "features": [m.to_dict() for m in self.matches], "interpretation": list(self.interpretation),
+            "names": list(self.names),
+        }
 
 
 def _on_grid(curve, f):

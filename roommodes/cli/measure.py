@@ -491,20 +491,6 @@ def decay(ir_file, wav_channel, band_set, freq_range, n_modes, modal_range, wate
 # ---------------------------------------------------------------------------- compare
 
 
-def _features_json(matches):
-    out = []
-    for m in matches:
-        a, b = m.measured, m.reference
-        out.append({"kind": m.kind, "measured_hz": None if a is None else a.freq_hz,
-                    "reference_hz": None if b is None else b.freq_hz, "ratio": m.ratio,
-                    "measured_level_db": None if a is None else a.level_db,
-                    "reference_level_db": None if b is None else b.level_db,
-                    "measured_prominence_db": None if a is None else a.prominence_db,
-                    "reference_prominence_db": None if b is None else b.prominence_db,
-                    "cause": m.cause, "mode": m.mode, "axis": m.axis})
-    return out
-
-
 def _print_features(matches, names):
     if not matches:
         click.echo("No peaks or dips of 3 dB or more in the band.")
@@ -593,17 +579,8 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
         spread = np.interp(np.log(c.freq_hz), np.log(first.freq_hz), first.std_db)
     names = rep.names
     if as_json:
-        obj = {
-            "mode": "prediction" if room else "measurements",
-            "frequencies_hz": c.freq_hz, "measured_db": c.measured_db, "reference_db": c.reference_db,
-            "difference_db": c.difference_db, "median_abs_diff_db": c.median_abs_diff_db,
-            "p90_abs_diff_db": c.p90_abs_diff_db, "rms_diff_db": c.rms_diff_db, "mean_diff_db": c.mean_diff_db,
-            "correlation": c.correlation, "offset_db": c.offset_db, "band_hz": c.band_hz,
-            "align_band_hz": c.align_band_hz, "absolute": absolute, "smoothing_octave_fraction": smoothing,
-            "resolution_hz": first.resolution_hz, "sources": list(first.sources),
-            "spread_db": spread, "features": _features_json(rep.matches),
-            "interpretation": list(rep.interpretation), "names": list(names),
-        }
+        obj = {"mode": "prediction" if room else "measurements", **rep.to_dict(), "absolute": absolute,
+               "smoothing_octave_fraction": smoothing}
         if room is not None:
             obj.update({"room": room.name, "channel": rep.channel, "positions_m": rep.positions_m,
                         "predicted_db": c.reference_db, "method": method})
