@@ -164,6 +164,19 @@ class FitResult:
     reference_hz: float
     labels: tuple = field(default=())
 
+    def to_dict(self):
+        """JSON-ready values: the keys of ``fit --json`` (without the command's own)."""
+        return {
+            "iterations": self.iterations, "evaluations": self.evaluations, "success": self.success,
+            "message": self.message, "absorption_reference_hz": self.reference_hz,
+            "parameters": [{"name": p.name, "kind": p.kind, "unit": p.unit, "initial": p.initial, "value": p.value,
+                            "change": p.change, "std_error": p.std_error, "lower": p.lower, "upper": p.upper,
+                            "at_bound": p.at_bound} for p in self.parameters],
+            "error_before": self.error_before, "error_after": self.error_after,
+            "frequencies_hz": self.freq_hz, "measured_db": self.measured_db, "before_db": self.before_db,
+            "after_db": self.after_db,
+        }
+
 
 @dataclass
 class _Param:

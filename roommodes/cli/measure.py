@@ -722,20 +722,11 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
                         written_to=outp)
     write_text_atomic(outp, text, overwrite=force)
     if as_json:
-        dump_json({
-            "room": room.name, "output": str(outp), "elapsed_s": elapsed,
-            "iterations": res.iterations, "evaluations": res.evaluations, "success": res.success,
-            "message": res.message, "band_hz": [lo, hi], "smoothing_octave_fraction": smoothing,
-            "absorption_reference_hz": res.reference_hz,
-            "parameters": [{"name": p.name, "kind": p.kind, "unit": p.unit, "initial": p.initial, "value": p.value,
-                            "change": p.change, "std_error": p.std_error, "lower": p.lower, "upper": p.upper,
-                            "at_bound": p.at_bound} for p in res.parameters],
-            "error_before": res.error_before, "error_after": res.error_after,
-            "targets": [{"label": t.label, "channel": t.channel, "position_m": t.position_m,
-                         "level_offset_db": o} for t, o in zip(targets, res.level_offsets_db)],
-            "frequencies_hz": res.freq_hz, "measured_db": res.measured_db, "before_db": res.before_db,
-            "after_db": res.after_db,
-        })
+        d = res.to_dict()
+        d["targets"] = [{"label": t.label, "channel": t.channel, "position_m": t.position_m, "level_offset_db": o}
+                        for t, o in zip(targets, res.level_offsets_db)]
+        dump_json({"room": room.name, "output": str(outp), "elapsed_s": elapsed, "band_hz": [lo, hi],
+                   "smoothing_octave_fraction": smoothing, **d})
     else:
         click.echo(f"Fitted '{room.name}' to {len(targets)} measurement(s), {lo:g}-{hi:g} Hz, "
                    f"{_smoothing_label(smoothing)} smoothing: {res.iterations} iterations, {res.evaluations} model "
