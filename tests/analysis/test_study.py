@@ -5,9 +5,8 @@ start in a fraction of a second and need no second interpreter that re-imports n
 scipy, on a 2-core CI machine. The determinism the check is about does not depend on that:
 each candidate's result is a pure function of the spec and its index (its own seed), and
 with two workers the candidates finish in a different order from one worker's, which the
-ranking must not see. No outside check values here: the properties are the project's own
-(docs/study.md; the issue's "identical whatever the number of workers").
-"""
+ranking must not see. Source of the check values: none from outside; the properties are the
+project's own (docs/study.md; the issue's "identical whatever the number of workers")."""
 
 import numpy as np
 import pytest

@@ -1,6 +1,7 @@
 """``roommodes study`` as a user meets it: the JSON keys of shared/ARCHITECTURE.md, the CSV,
 a minimal study file, and one-line errors. The cluster is started here in-process
-(processes=False, for speed on a 2-core CI machine) and reached with --scheduler."""
+(processes=False, for speed on a 2-core CI machine) and reached with --scheduler. Source of the
+check values: none from outside; the keys are the project's stable ones (shared/ARCHITECTURE.md)."""
 
 import csv
 import json

@@ -1,4 +1,4 @@
-"""The shared argument checks (roommodes.dsp.checks) and the one band generator.
+"""The shared argument checks (roommodes.dsp.checks) and the one band generator (sources below).
 
 No outside check values for the checks: the rule is the project's own (a message names the
 argument, the value and what is allowed). The band figures come from IEC 61260-1:2014

@@ -1,4 +1,4 @@
-"""The one room-file writer (roommodes.io.roomfile.room_to_toml).
+"""The one room-file writer (roommodes.io.roomfile.room_to_toml); sources of the checks below.
 
 No outside check values: the properties are the format's own (docs/room-file.md) and TOML's
 (the text must parse with the standard library's tomllib, TOML 1.0): what is written reads
