@@ -21,9 +21,11 @@ from ._util import (
     UserError,
     check_folder_writable,
     display_units_option,
+    dump_json,
     echo_err,
     fail,
     guard,
+    json_option,
 )
 
 __all__ = ["init", "room_sketch", "commented_room_toml"]
@@ -328,9 +330,10 @@ def _speaker_option(text, size_m):
 @click.option("-y", "--yes", is_flag=True,
               help="Ask nothing: take every value from the options (missing ones are an error).")
 @click.option("--force", is_flag=True, help="Overwrite an existing file.")
+@json_option
 @guard
 def init(out, name, size, temperature, walls, front, back, left, right, floor, ceiling, speaker_opts, seat,
-         no_speakers, lowcut_hz, box, units, yes, force):
+         no_speakers, lowcut_hz, box, units, yes, force, as_json):
     """Write a commented room file, by answering questions or from options.
 
     \b
@@ -485,4 +488,7 @@ def init(out, name, size, temperature, walls, front, back, left, right, floor, c
     except (FileExistsError, OSError) as exc:
         raise UserError(str(exc)) from None
     echo_err(f"wrote {out}")
-    click.echo(f"Next: roommodes report {out} -o {out.stem}-report.html")
+    if as_json:
+        dump_json({"output": str(out), "room": room_name, "size_m": list(dims)})
+    else:
+        click.echo(f"Next: roommodes report {out} -o {out.stem}-report.html")

@@ -35,9 +35,11 @@ from ._util import (
     MODEL_CAUTION,
     check_output,
     display_units_option,
+    dump_json,
     echo_err,
     fail,
     guard,
+    json_option,
     load_or_fail,
     method_option,
     protect_inputs,
@@ -163,9 +165,10 @@ def write_report(out, rep, force):
               help="Format of the figures inside the page (both are written to the folder).")
 @click.option("--force", is_flag=True, help="Overwrite an existing report and its folder (never an input).")
 @mic_cal_option
+@json_option
 @guard
 def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, window_s, units, search, method, embed,
-           force, mic_cal):
+           force, mic_cal, as_json):
     """Write a self-contained HTML report of the room, for a client or for your notes.
 
     \b
@@ -244,6 +247,10 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
     written = write_report(out, rep, force)
     echo_err(f"wrote {out} ({len(rep.html) / 1e6:.1f} MB) and {written}/ ({len(rep.figures)} figures as PNG and SVG, "
              f"{len(rep.tables)} tables as CSV)")
+    if as_json:  # what was written, and the page's numbers (its data block)
+        dump_json({"output": str(out), "folder": str(written), "method": method,
+                   "figures": [f.name for f in rep.figures], "tables": [t.name for t in rep.tables],
+                   "values": rep.values})
     echo_err(MODEL_CAUTION)
 
 
