@@ -324,7 +324,14 @@ def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=None, chan
     seat_level = float(20.0 * np.log10(max(abs(np.sum(hs)), 1e-12)))
     ms = room_modes(room, f * 1.3 + 10.0)
     near = np.flatnonzero(np.abs(ms.freq_hz - f) <= np.maximum(ms.bandwidth_hz, 0.03 * f))
-    near = near[np.argsort(np.abs(ms.freq_hz[near] - f))][:3]
+    # rank by how much of the drawn pattern each mode makes: its resonance at f, its coupling
+    # to the speakers, and its shape at the map's height (a height mode with a node there, or
+    # one the speakers do not drive, is not what the floor plan shows)
+    half_bw = np.maximum(ms.bandwidth_hz[near] / 2, 1e-3)
+    resonance = 1.0 / np.hypot(1.0, (ms.freq_hz[near] - f) / half_bw)
+    drive = np.abs(mode_shapes(ms.indices[near], room.size_m, src)).sum(axis=0)
+    at_height = np.abs(np.cos(np.pi * ms.indices[near, 2] * h_m / room.size_m[2]))
+    near = near[np.argsort(-(resonance * drive * at_height), kind="stable")][:3]
     modes = tuple({"indices": tuple(int(v) for v in ms.indices[i]), "freq_hz": float(ms.freq_hz[i]),
                    "kind": str(ms.kind[i]), "bandwidth_hz": float(ms.bandwidth_hz[i])} for i in near)
     return FloorMap(f, h_m, x, y, level.reshape(nx, ny), tuple(chosen), src, seat, seat_level, modes, method)

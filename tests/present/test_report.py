@@ -273,3 +273,14 @@ def test_report_refuses_bad_options():
     with pytest.raises(ValueError, match="measurements need"):
         build_report(replace(room, layout=None), measurements=[object()])
 
+
+
+def test_map_names_the_mode_whose_pattern_it_draws():
+    # Mode shapes (Rayleigh; Kuttruff 2009, sec. 3.3): at 70.0 Hz in the demo room the height
+    # mode (0,0,1) coincides with the map's frequency, but at ear height (1.2 m of 2.45 m) it
+    # sits at its node and it is constant over the floor plane, so it cannot draw a pattern;
+    # the length mode (2,0,0), 4.6 Hz away and within its bandwidth, does.
+    room = load_room(example_rooms()[0])
+    fm = floor_level_map(room, 70.0, step_m=0.2)
+    assert fm.near_modes[0]["indices"] == (2, 0, 0)
+    assert (0, 0, 1) in [m["indices"] for m in fm.near_modes]
