@@ -23,7 +23,7 @@ from . import eq
 from .levels import speaker_levels
 from .predict import Channel, Prediction, room_schroeder_frequency
 
-__all__ = ["ChannelCorrection", "correct_curve", "correct_prediction", "default_band",
+__all__ = ["ChannelCorrection", "correct_curve", "correct_measured", "correct_prediction", "default_band",
            "head_positions", "NEIGHBOUR_STEP_M", "HEAD_OFFSET_M"]
 
 #: How far the seat and each speaker are moved to judge whether a dip is a movable null (m).
@@ -302,3 +302,49 @@ def correct_prediction(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, a
                                      position_levels_db=levels[1:1 + nh] if nh else None, **kw, **info))
     pred = Prediction(f, tuple(channels), tuple(layout.seat_m), layout.name, method, schroeder, f <= schroeder)
     return out, pred
+
+
+def correct_measured(room, curves_by_channel, **options):
+    """Corrections of measured curves: each channel's curves (microphone positions) averaged.
+
+    Parameters
+    ----------
+    room : Room
+        Its layout names the speakers (their roll-off and vented tuning are respected).
+    curves_by_channel : dict
+        Speaker name -> list of measured curves (:class:`roommodes.dsp.response.Response`,
+        e.g. from :func:`roommodes.analysis.compare.load_measurement`).
+    **options
+        Passed to :func:`correct_curve` (target, band, limits).
+
+    Returns
+    -------
+    list of ChannelCorrection
+        In the layout's speaker order. Several curves of a channel are power-averaged; their
+        individual levels go to the dip classification (a dip that moves between microphone
+        positions is a null) and to the no-harm check at every position. No clean-SPL figure:
+        a measured level has no known absolute reference.
+
+    Notes
+    -----
+    Measurement first: where a channel was measured, its correction is designed on what the
+    room did, not on the box model.
+    """
+    from .compare import average_measurements
+
+    schroeder = room_schroeder_frequency(room)
+    out = []
+    for sp in room.layout.speakers:
+        ms = list(curves_by_channel.get(sp.name, ()))
+        if not ms:
+            continue
+        avg = average_measurements(ms)
+        f = np.asarray(avg.freq_hz)
+        positions = None
+        if len(ms) > 1:
+            positions = np.array([np.interp(np.log(f), np.log(m.freq_hz), m.level_db) for m in ms])
+        out.append(correct_curve(sp.name, f, avg.level_db, neighbour_levels_db=positions,
+                                 position_levels_db=positions, lowcut_hz=sp.lowcut_hz,
+                                 lowcut_order=sp.lowcut_order if sp.lowcut_hz else None,
+                                 schroeder_hz=schroeder, **options))
+    return out

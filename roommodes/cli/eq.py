@@ -8,8 +8,15 @@ import click
 import numpy as np
 
 from .. import __version__
+from ..analysis.compare import load_measurement
+from ..analysis.correction import correct_measured, correct_prediction
+from ..analysis.eq import CAUTIONS, EXPORT_SAMPLE_RATES, channel_headroom_warnings, q_at_3db_below_peak, render_text
 from ..dsp.checks import check_number, check_range
+from ..dsp.response import log_frequencies
 from ..dsp.text import boost_text
+from ..io.importers import read_response_text
+from ..io.roomfile import write_text_atomic
+from ..present.plots import plot_correction
 from ._measured import mic_cal_option, read_mic_cal
 from ._util import (
     CONTEXT,
@@ -33,7 +40,6 @@ _SPL_TABLE_HZ = (31.5, 40.0, 50.0, 63.0, 80.0, 100.0, 125.0, 160.0, 200.0)
 
 
 def _read_target(path):
-    from ..io.importers import read_response_text
 
     curve = read_response_text(path)
     if any("reversed" in note for note in curve.notes):
@@ -68,7 +74,6 @@ def _channel_json(corr):
 
 
 def _print_channel(corr, room_layout_speaker):
-    from ..analysis.eq import q_at_3db_below_peak
 
     p = corr.parametric
     npos = len(p.positions_error_before)
@@ -147,10 +152,6 @@ def _print_channel(corr, room_layout_speaker):
 
 def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, options, mic_cal=None):
     """Corrections of measured curves: CHANNEL=FILE items, several files of a channel averaged."""
-    from ..analysis.compare import average_measurements, load_measurement
-    from ..analysis.correction import correct_curve
-    from ..analysis.predict import room_schroeder_frequency
-
     files = {}
     for item in measured:
         name, sep, path = item.partition("=")
@@ -160,22 +161,9 @@ def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, opti
             fail(f"--measured {item}: no speaker '{name}' in {room_file}; the speakers are "
                  + ", ".join(s.name for s in layout.speakers))
         files.setdefault(name, []).append(path)
-    out = []
-    for sp in layout.speakers:
-        if sp.name not in files:
-            continue
-        ms = [load_measurement(path, window_s=window_s, freq_hz=freq_hz, mic_cal=mic_cal) for path in files[sp.name]]
-        avg = average_measurements(ms)
-        f = np.asarray(avg.freq_hz)
-        neighbours = None
-        if len(ms) > 1:
-            neighbours = np.array([np.interp(np.log(f), np.log(m.freq_hz), m.level_db) for m in ms])
-        out.append(correct_curve(sp.name, f, avg.level_db, neighbour_levels_db=neighbours,
-                                 position_levels_db=neighbours,
-                                 lowcut_hz=sp.lowcut_hz, lowcut_order=sp.lowcut_order if sp.lowcut_hz else None,
-                                 schroeder_hz=room_schroeder_frequency(room), **options))
-        # no clean-SPL table: a measured level has no known reference
-    return out
+    curves = {name: [load_measurement(path, window_s=window_s, freq_hz=freq_hz, mic_cal=mic_cal) for path in paths]
+              for name, paths in files.items()}
+    return correct_measured(room.with_layout(layout), curves, **options)
 
 
 @click.command(context_settings=CONTEXT)
@@ -223,9 +211,6 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
     boosted up to --max-boost; peaks are cut. Offered: parametric filters, a single low
     shelf (for a bass tone control), and 31-band and 10-band graphic-EQ slider settings.
     """
-    from ..analysis.correction import correct_prediction
-    from ..analysis.eq import CAUTIONS, EXPORT_SAMPLE_RATES, channel_headroom_warnings, render_text
-    from ..dsp.response import log_frequencies
 
     lo, hi = parse_range(freq_range)
     qlo, qhi = _parse_pair(q_range, "--q-range")
@@ -292,7 +277,6 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
         for text in c.cautions:
             echo_err(f"caution ({c.name}): {text}")
     if export_path:
-        from ..io.roomfile import write_text_atomic
 
         text = "\n".join(
             render_text(c.parametric.filters, __version__, sample_rates=EXPORT_SAMPLE_RATES,
@@ -303,7 +287,6 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
         write_text_atomic(export_path, text, overwrite=force)
         echo_err(f"wrote {export_path}")
     if plot_path:
-        from ..present.plots import plot_correction
 
         plot_correction(corrections, title=f"{room.name}: bass correction", path=plot_path)
         echo_err(f"wrote {plot_path}")

@@ -23,14 +23,14 @@ import io
 import math
 import platform
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from .. import __version__
 from ..analysis import eq as eqmod
 from ..analysis.compare import average_measurements, compare_to_prediction
-from ..analysis.correction import correct_prediction
+from ..analysis.correction import correct_measured, correct_prediction
 from ..analysis.explain import explain as run_explain
 from ..analysis.fit import fit_room
 from ..analysis.maps import floor_level_map, mode_coupling
@@ -483,14 +483,26 @@ def build_report(room, measurements=(), fit_targets=None, *, units="cm", search=
     measurements = list(measurements)
     if (measurements or fit_targets) and room.layout is None:
         raise ValueError(f"{room.source or room.name}: measurements need the room file's [speakers] and [seat]")
+    file_room = room
+    fit_res = None
+    if fit_targets:
+        # measurement first: calibrate before anything is predicted, so that placement, EQ and
+        # every curve come from the calibrated model
+        if progress is not None:
+            progress("fit")
+        fit_res = fit_room(room, list(fit_targets), method=method)
+        room = replace(fit_res.room, name=room.name, source=room.source)
     layout, preset_used = _analysis_layout(room)
     space = search_space(room)
-    run = _Run(room=room, layout=layout, preset_used=preset_used, units=units, method=method, search=search,
+    model = ("the room file's model calibrated to the measurements (fit)" if fit_res is not None
+             else "the room file's model")
+    run = _Run(room=room, file_room=file_room, model=model, layout=layout, preset_used=preset_used, units=units,
+               method=method, search=search,
                space=space, keep_out=space.keep_out, f=log_frequencies(15.0, 300.0, 48), doc=_Doc(embed),
                values=document({"units": units}), glance=[], progress=progress,
                measurements=measurements, fit_targets=fit_targets, compare_band_hz=compare_band_hz,
                compare_smoothing=compare_smoothing, created=created, command=command, files_folder=files_folder,
-               inputs=inputs, room_text=room_text, map_freqs_hz=map_freqs_hz, fit_res=None)
+               inputs=inputs, room_text=room_text, map_freqs_hz=map_freqs_hz, fit_res=fit_res)
     for section in (_section_room, _section_modes, _section_responses, _section_placement, _section_eq,
                     _section_measurements, _section_validity, _section_reproduce, _section_appendix):
         section(run)
@@ -602,6 +614,7 @@ def _section_modes(run):
     map_freqs_hz, coupling = run.map_freqs_hz, run.coupling
     step("modes at the seat")
     doc.section("modes", "The modes that matter at this seat")
+    doc.p(f"Source: {run.model}, {run.method} solver.", cls="note")
     doc.p("A room mode is a standing wave at one frequency. How loud it is at the seat depends on two numbers: "
           "its shape value psi at the speaker (how strongly the speaker drives it; 1 at a pressure maximum such "
           "as a corner, 0 on a node) and at the seat (how much of it the listener hears). Their product is the "
@@ -675,6 +688,7 @@ def _section_responses(run):
     method, f, ms300, pred, feats = run.method, run.f, run.ms300, run.pred, run.feats
     first_feats = run.first_feats
     doc.section("responses", "Predicted response at the seat")
+    doc.p(f"Source: {run.model}, {run.method} solver.", cls="note")
     doc.p("Each speaker's predicted level at the seat, relative to the level the same speaker would give at 1 m "
           "in free space (0 dB); room gain shows as positive values. The speakers' own low-frequency roll-off is "
           "included. Ticks along the top mark the room modes (long: axial, short: tangential).")
@@ -732,6 +746,7 @@ def _section_placement(run):
     room, layout, preset_used, units, method = run.room, run.layout, run.preset_used, run.units, run.method
     f, space, keep_out, search = run.f, run.space, run.keep_out, run.search
     doc.section("placement", "Placement suggestion")
+    doc.p(f"Source: {run.model}, {run.method} solver.", cls="note")
     if search == "off":
         doc.p("No placement search was run for this report (search off). Run `roommodes place` on the room "
               "file, or make the report again with --search full.")
@@ -836,6 +851,16 @@ def _section_eq(run):
     step("bass correction")
     doc.section("eq", "Bass correction (EQ) and headroom")
     corrections, _ = correct_prediction(room, layout, f, method=method)
+    measured = {}
+    for m in run.measurements:
+        measured.setdefault(m.channel, []).append(m.measurement)
+    if measured:
+        # measurement first: a measured channel is corrected on what the room did
+        by_name = {c.name: c for c in correct_measured(room.with_layout(layout), measured)}
+        corrections = [by_name.get(c.name, c) for c in corrections]
+    doc.p("Source: " + "; ".join(
+        f"{c.name}: {'its measured curve' + ('s (averaged)' if len(measured.get(c.name, ())) > 1 else '')}"
+        if c.name in measured else f"{c.name}: {run.model}" for c in corrections) + ".", cls="note")
     doc.p("For each channel the predicted curve at the seat (1/12-octave smoothed) is compared with a flat target "
           "aligned to its mean. Every dip is classified first: a deep, narrow dip that moves when the seat or the "
           "speaker moves by 5 cm is a cancellation null, and boosting it only costs amplifier power and cone "
@@ -907,6 +932,7 @@ def _section_measurements(run):
     fit_res = None
     if measurements or fit_targets:
         doc.section("measurements", "Measured against predicted")
+        doc.p(f"Predictions here come from {run.model}.", cls="note")
         by_channel = {}
         for m in measurements:
             by_channel.setdefault(m.channel, []).append(m)
@@ -952,9 +978,7 @@ def _section_measurements(run):
             glance.append(f"Measured {ch}: median |measured - predicted| {cmp.median_abs_diff_db:.1f} dB over "
                           f"{cmp.band_hz[0]:g}-{cmp.band_hz[1]:g} Hz.")
         if fit_targets:
-            step("fit")
-
-            fit_res = fit_room(room, list(fit_targets), method=method)
+            fit_res = run.fit_res
             eb, ea = fit_res.error_before, fit_res.error_after
             values["fit"] = {"error_before": eb, "error_after": ea,
                              "parameters": {p.name: p.value for p in fit_res.parameters}}
@@ -963,9 +987,9 @@ def _section_measurements(run):
                   f"toward the room file's values, to match the measurements: median |difference| "
                   f"{eb['median_abs_db']:.2f} -> {ea['median_abs_db']:.2f} dB, 90th percentile {eb['p90_abs_db']:.2f} "
                   f"-> {ea['p90_abs_db']:.2f} dB ({fit_res.iterations} iterations"
-                  f"{'' if fit_res.success else ', stopped before converging: ' + fit_res.message}). The rest of this "
-                  "report uses the room file as given; `roommodes fit ... -o CALIBRATED.toml` writes the calibrated "
-                  "room file to run again.")
+                  f"{'' if fit_res.success else ', stopped before converging: ' + fit_res.message}). Every "
+                  "prediction, the placement search and the EQ of channels without measurements in this report use "
+                  "the calibrated model; `roommodes fit ... -o CALIBRATED.toml` writes it as a room file.")
             rows = []
             for p in fit_res.parameters:
                 spec = ".1f" if p.unit == "Hz" else ".3f"
@@ -979,7 +1003,6 @@ def _section_measurements(run):
             fig = plot_fit(fit_res, title=f"{room.name}: fit to measurements")
             doc.figure(fig, "fit", "The model before and after the fit, against the measurements",
                        "Smoothed alike and level-aligned.")
-    run.fit_res = fit_res
 
 
 def _section_validity(run):
@@ -1017,9 +1040,11 @@ def _section_validity(run):
     doc.ul(limits)
     doc.h3("What the measurements and the fit changed")
     if fit_res is not None:
-        moved = [p for p in fit_res.parameters if abs(p.change) > max(1e-9, 0.5 * p.std_error)]
-        items = [f"{p.name}: {p.initial:.3g} -> {p.value:.3g} {p.unit}".rstrip()
-                 + (" (at its bound)" if p.at_bound else "") for p in moved]
+        spec = {"Hz": ".1f", "m": ".3f"}
+        shown = [(p, format(p.initial, spec.get(p.unit, ".3f")), format(p.value, spec.get(p.unit, ".3f")))
+                 for p in fit_res.parameters if abs(p.change) > max(1e-9, 0.5 * p.std_error)]
+        items = [f"{p.name}: {a} -> {b} {p.unit}".rstrip() + (" (at its bound)" if p.at_bound else "")
+                 for p, a, b in shown if a != b]  # no "2.6 -> 2.6 m"
         items = items or ["No parameter moved by more than half its standard error."]
         items.append(f"Median |measured - model| {fit_res.error_before['median_abs_db']:.2f} -> "
                      f"{fit_res.error_after['median_abs_db']:.2f} dB.")

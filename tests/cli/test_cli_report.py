@@ -149,16 +149,25 @@ def test_report_with_measurements_and_fit(tmp_path):
     page = out.read_text(encoding="utf-8")
     c = check_page(page)
     assert "measurements" in c.ids and "fit" in c.ids
-    # the comparison equals `compare --json` for the same file and speaker
-    cmp = run_json("compare", DEMO, paths["left"], "--channel", "left")
-    vals = data_values(page, "compare-left")
-    shown = [v[0][0] for v in vals]
-    assert cmp["median_abs_diff_db"] in shown and cmp["p90_abs_diff_db"] in shown
     # the fit equals `fit --json` with the same measurements
     fit = run_json("fit", DEMO, "--measure", "left", "seat", paths["left"], "--measure", "right", "seat",
                    paths["right"], "-o", tmp_path / "cal.toml")
     table = data_values(page, "fit")
     assert [r[1][0] for r in table] == [p["value"] for p in fit["parameters"]]
+    # with --fit the report predicts from the calibrated model: its comparison equals
+    # `compare --json` on the calibrated room file for the same file and speaker
+    cmp = run_json("compare", tmp_path / "cal.toml", paths["left"], "--channel", "left")
+    vals = data_values(page, "compare-left")
+    shown = [v[0][0] for v in vals]
+    assert cmp["median_abs_diff_db"] in shown and cmp["p90_abs_diff_db"] in shown
+    assert "calibrated to the measurements" in page
+    # measurement first: a measured channel's EQ is designed on its measured curve, as
+    # `eq --measured` designs it (on the calibrated file, which sets the Schroeder frequency)
+    grid = f"{20 / 2 ** 0.5!r},{200 * 2 ** 0.5!r}"  # the report reads measurements over the band +- half an octave
+    eq = run_json("eq", tmp_path / "cal.toml", "--measured", f"left={paths['left']}", "--freq-range", grid)
+    rows = data_values(page, "eq-left")
+    assert [r[0][0] for r in rows] == pytest.approx([f["freq_hz"] for f in eq["channels"][0]["filters"]], abs=1e-9)
+    assert "left: its measured curve" in page
     # the absorption went up, toward the invented truth (1.8 x the file's)
     assert all(p["change"] > 0 for p in fit["parameters"] if p["kind"] == "absorption")
     assert "What the measurements and the fit changed" in page
