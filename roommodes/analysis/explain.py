@@ -379,7 +379,8 @@ def explain(room, layout=None, channels=None, freq_hz=None, threshold_db=DEFAULT
     if len(names) < 2:
         raise ValueError(f"explain compares two speakers; the layout has {len(names)}")
     if channels is None:
-        chosen = list(layout.speakers[:2])
+        # the stereo pair: the first two mains (subs are left out; they are not a channel of the pair)
+        chosen = list(layout.mains[:2]) if len(layout.mains) >= 2 else list(layout.speakers[:2])
     else:
         if len(channels) != 2 or channels[0] == channels[1]:
             raise ValueError(f"give two different speaker names to compare, got {channels!r}")

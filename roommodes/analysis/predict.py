@@ -19,9 +19,11 @@ from ..model.modes import mode_shapes, room_modes
 from ..model.room import WALL_AXIS, WALL_FAR, WALLS
 from ..solvers import DEFAULT_METHOD
 from .levels import speaker_levels
+from .subs import mean_spatial_variance, mono_sum
 
 __all__ = ["Channel", "Prediction", "predict", "room_schroeder_frequency", "response_features",
-           "boundary_notches", "Feature", "usable_band", "band_figures"]
+           "boundary_notches", "Feature", "usable_band", "band_figures", "system_band", "SeatsPrediction",
+           "predict_seats"]
 
 DEFAULT_RANGE_HZ = (15.0, 300.0)
 DEFAULT_POINTS_PER_OCTAVE = 48
@@ -31,6 +33,13 @@ def usable_band(speakers, top_hz=200.0):
     """The usable band of a set of speakers: from max(20 Hz, their low cut) to ``top_hz``."""
     cuts = [s.lowcut_hz for s in speakers if s.lowcut_hz]
     return (max([20.0] + cuts), float(top_hz))
+
+
+def system_band(speakers, top_hz=200.0):
+    """The band of the mono sum of ``speakers``: from max(20 Hz, the lowest low cut among them)
+    to ``top_hz`` (a sub carries the system below the mains' own low cut)."""
+    cuts = [s.lowcut_hz for s in speakers if s.lowcut_hz]
+    return (max([20.0] + ([min(cuts)] if cuts else [])), float(top_hz))
 
 
 def band_figures(freq_hz, level_db, band_hz=(20.0, 200.0), smoothing=6):
@@ -84,6 +93,94 @@ class Prediction:
                 "frequencies_hz": self.freq_hz, "schroeder_hz": self.schroeder_hz, "valid": self.valid,
                 "channels": [{"name": c.name, "position_m": list(c.position_m), "level_db": c.level_db}
                              for c in self.channels]}
+
+
+@dataclass(frozen=True, eq=False)
+class SeatsPrediction:
+    """Every speaker's level at every seat, and the system's mono bass sum at each seat.
+
+    Attributes
+    ----------
+    freq_hz : ndarray (F,)
+    seats : tuple of Seat
+        The main seat first.
+    speakers : tuple of Speaker
+        Mains first, then subs (the layout's order).
+    transfer : ndarray, complex (S, P, F)
+        Each speaker's transfer to each seat (room times the speaker's own roll-off).
+    level_db : ndarray (S, P, F)
+    system : ndarray, complex (P, F)
+        The mono sum: the same signal to every speaker, with the settings below.
+    system_db : ndarray (P, F)
+    sub_settings : tuple of dict
+        Each sub's ``name``, ``gain_db``, ``delay_ms``, ``polarity`` used in the sum.
+    crossover_hz : float or None
+        None: no crossover (mains and subs full range).
+    band_hz : tuple
+        :func:`system_band` of the speakers.
+    seat_spread_db : float
+        Square root of the seats' weighted mean spatial variance of the mono sum over
+        ``band_hz``, dB (0 with one seat).
+    method : str
+    """
+
+    freq_hz: np.ndarray
+    seats: tuple
+    speakers: tuple
+    transfer: np.ndarray
+    level_db: np.ndarray
+    system: np.ndarray
+    system_db: np.ndarray
+    sub_settings: tuple
+    crossover_hz: float | None
+    band_hz: tuple
+    seat_spread_db: float
+    method: str
+
+
+def predict_seats(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, include_speaker=True, **options):
+    """Each speaker's level at every seat, and the mono bass sum of the system at each seat.
+
+    The sum takes the subs as the room file sets them. The room file has no keys for a sub's
+    gain, delay, polarity or crossover, so every sub plays at 0 dB, 0 ms and + polarity, and
+    mains and subs run full range, each with only its own roll-off (no crossover).
+    :func:`roommodes.analysis.subs.optimise_subs` finds better settings.
+
+    Parameters
+    ----------
+    room : Room
+    layout : Layout, optional
+        Default: the room file's own layout.
+    freq_hz : array_like, optional
+        Default: 15-300 Hz, 48 points per octave.
+    method : str
+        The solver (:data:`roommodes.solvers.METHODS`).
+    include_speaker : bool
+        Apply each speaker's own low-frequency response.
+
+    Returns
+    -------
+    SeatsPrediction
+    """
+    layout = layout if layout is not None else room.layout
+    if layout is None:
+        raise ValueError(f"{room.source or room.name}: the room file has no [speakers] and [seat]; "
+                         "add them or choose a layout (corner, wall, mid-room, desk)")
+    f = log_frequencies(*DEFAULT_RANGE_HZ, DEFAULT_POINTS_PER_OCTAVE) if freq_hz is None else np.asarray(freq_hz, float)
+    seats = layout.all_seats
+    seats_m = [s.position_m for s in seats]
+    speakers = tuple(layout.mains) + tuple(layout.subs)
+    h = speaker_levels(room, speakers, seats_m, f, method=method, include_speaker=include_speaker,
+                       **options).transfer
+    n_main = len(layout.mains)
+    n_sub = len(speakers) - n_main
+    settings = tuple({"name": s.name, "gain_db": 0.0, "delay_ms": 0.0, "polarity": 1} for s in layout.subs)
+    total = mono_sum(f, h[:n_main], h[n_main:], np.zeros(n_sub), np.zeros(n_sub), np.ones(n_sub), None)
+    band = system_band(speakers)
+    total_db = level_db(total)
+    spread = float(np.sqrt(mean_spatial_variance(total_db, [s.weight for s in seats], f, band)))
+    return SeatsPrediction(f, tuple(seats), speakers, h, level_db(h), total, total_db, settings, None, band,
+                           spread, method)
 
 
 def room_schroeder_frequency(room, band_hz=125.0):

@@ -631,10 +631,12 @@ class SearchResult:
 
 # ------------------------------------------------------------------------------ layouts <-> vectors
 def _pair_speakers(room):
-    if room.layout is not None and len(room.layout.speakers) >= 2:
-        return tuple(room.layout.speakers[:2])
-    if room.layout is not None and len(room.layout.speakers) == 1:
-        s = room.layout.speakers[0]
+    # the stereo pair is made of mains; subs are left to the subwoofer search
+    speakers = () if room.layout is None else (room.layout.mains or room.layout.speakers)
+    if len(speakers) >= 2:
+        return tuple(speakers[:2])
+    if len(speakers) == 1:
+        s = speakers[0]
         return (replace(s, name="left"), replace(s, name="right"))
     return (Speaker("left", (0.0, 0.0, 0.0)), Speaker("right", (0.0, 0.0, 0.0)))
 

@@ -143,7 +143,8 @@ def mono_sum(freq_hz, mains_h, subs_h, gains_db, delays_ms, polarities, crossove
     subs_h : array_like, complex (S, P, F)
         Each sub's transfer to the seats.
     gains_db, delays_ms, polarities : array_like (S,)
-    crossover_hz : float
+    crossover_hz : float or None
+        None: no crossover (mains and subs full range, each with only its own roll-off).
     mains_delay_ms : float
 
     Returns
@@ -151,10 +152,13 @@ def mono_sum(freq_hz, mains_h, subs_h, gains_db, delays_ms, polarities, crossove
     ndarray, complex (P, F)
     """
     f = np.asarray(freq_hz, dtype=float)
-    total = lr4_highpass(f, crossover_hz) * delay_response(f, mains_delay_ms) * _mains(mains_h)
+    hp = 1.0 if crossover_hz is None else lr4_highpass(f, crossover_hz)
+    total = hp * delay_response(f, mains_delay_ms) * _mains(mains_h)
     for h, g, d, s in zip(np.asarray(subs_h), np.atleast_1d(gains_db), np.atleast_1d(delays_ms),
                           np.atleast_1d(polarities)):
-        total = total + sub_chain(f, g, d, s, crossover_hz) * h
+        chain = (10.0 ** (g / 20.0) * float(s) * delay_response(f, d) if crossover_hz is None
+                 else sub_chain(f, g, d, s, crossover_hz))
+        total = total + chain * h
     return total
 
 

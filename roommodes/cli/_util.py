@@ -293,3 +293,32 @@ def check_folder_writable(folder):
     except OSError as exc:
         fail(f"cannot write into {folder}: the folder is not writable ({exc.strerror or exc})")
 
+
+
+def subs_note(room, what):
+    """One line saying that the file's subs are left out of ``what`` (and that ``roommodes subs``
+    places them), and which seat is used when there are several; None when neither applies."""
+    lay = room.layout
+    if lay is None or (not lay.subs and len(lay.all_seats) < 2):
+        return None
+    parts = []
+    if lay.subs:
+        names = ", ".join(s.name for s in lay.subs)
+        parts.append(f"The subwoofer{'s' if len(lay.subs) > 1 else ''} ({names}) {'are' if len(lay.subs) > 1 else 'is'} "
+                     f"left out of {what}, which covers the main speakers only; `roommodes subs` places "
+                     f"{'them' if len(lay.subs) > 1 else 'it'} and works out gain, delay, polarity and crossover.")
+    if len(lay.all_seats) > 1:
+        parts.append(f"Of the {len(lay.all_seats)} seats, only the main seat ('{lay.all_seats[0].name}') counts here; "
+                     "`roommodes subs` scores every seat.")
+    return " ".join(parts)
+
+
+def subs_json(room, what):
+    """The ``subs`` key of ``place --json`` and ``explain --json``: the note of :func:`subs_note`
+    with the subs' and seats' names; None when :func:`subs_note` is."""
+    note = subs_note(room, what)
+    if note is None:
+        return None
+    lay = room.layout
+    return {"names": [s.name for s in lay.subs], "treatment": "left out", "seat_used": lay.all_seats[0].name,
+            "seats": [s.name for s in lay.all_seats], "see": "roommodes subs", "note": note}

@@ -31,6 +31,8 @@ from ._util import (
     parse_range,
     protect_inputs,
     room_inputs,
+    subs_json,
+    subs_note,
     units_option,
     walls_text,
 )
@@ -174,6 +176,7 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
             "ranked": [_layout_obj(room, s) for s in res.ranked],
             "presets": [_layout_obj(room, s) for s in res.presets],
             "current": _layout_obj(room, res.current) if res.current is not None else None,
+            **({"subs": subs_json(room, "the stereo-pair search")} if subs_note(room, "") else {}),
         })
     else:
         lx, ly, lz = room.size_m
@@ -201,6 +204,9 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
                    + (f"; listening triangle within {space.triangle_tolerance:.0%}" if space.triangle else "")
                    + ("; seat fixed" if space.seat_fixed_m is not None else "")
                    + f"; results at least {space.distinct_m * 100:.0f} cm apart.")
+        note = subs_note(room, "the stereo-pair search")
+        if note:
+            click.echo(note)
         click.echo("")
         click.echo(f"  {'layout':<10} {'score':>7}  " + "  ".join(f"{p:>{max(len(p), 5)}}" for p in PARTS)
                    + "  " + "  ".join(f"{h:>{max(len(h), 7)}}" for h, _, _ in _EXTRA))
@@ -349,12 +355,16 @@ def explain(room_file, channels, threshold, band, freq_range, points_per_octave,
         fail(str(exc))
     n1, n2 = e.names
     if as_json:
-        dump_json({"room": room.name, **e.to_dict()})
+        note = subs_json(room, "this explanation")
+        dump_json({"room": room.name, **e.to_dict(), **({"subs": note} if note else {})})
     else:
         click.echo(f"Why {n1} and {n2} differ at the seat, '{room.name}'")
         click.echo(f"  {n1}: {walls_text(room, e.positions_m[0])}")
         click.echo(f"  {n2}: {walls_text(room, e.positions_m[1])}")
         click.echo(f"  seat: {walls_text(room, e.seat_m)}")
+        note = subs_note(room, "this explanation")
+        if note:
+            click.echo(note)
         sm = f"1/{e.smoothing}-octave smoothed" if e.smoothing else "unsmoothed"
         click.echo("")
         click.echo(f"Level at the seat (dB re free field at 1 m, {sm}); difference = {n1} - {n2}; mono = both in phase")

@@ -8,7 +8,7 @@ from pathlib import Path
 import click
 import numpy as np
 
-from ..analysis.predict import band_figures, response_features, usable_band
+from ..analysis.predict import band_figures, predict_seats, response_features, usable_band
 from ..analysis.predict import predict as run_predict
 from ..analysis.summary import room_summary
 from ..analysis.uncertainty import predict_bands
@@ -146,6 +146,8 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
     t0 = time.perf_counter()
     try:
         preds = [run_predict(room, lay, f, method=method, include_speaker=not no_speaker) for lay in layouts]
+        seat_preds = [predict_seats(room, lay, f, method=method, include_speaker=not no_speaker)
+                      if _has_system(lay) else None for lay in layouts]
         bands = [predict_bands(room, lay, f, n_samples=samples, seed=seed, method=method,
                                include_speaker=not no_speaker) if uncertainty else None for lay in layouts]
     except ValueError as exc:
@@ -158,13 +160,18 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
             d = p.to_dict()
             band = usable_band(lay.speakers)
             for c, ch in zip(p.channels, d["channels"]):
-                ch["band_figures"] = band_figures(f, c.level_db, band)
+                ch["band_figures"] = band_figures(f, c.level_db, _channel_band(lay, c.name))
                 ch["features"] = [ft.to_dict() for ft in response_features(room, p, c.name)]
             if bd is not None:
                 for ch, bch in zip(d["channels"], bd.to_dict()["channels"]):
                     ch.update({k: v for k, v in bch.items() if k != "name"})
             lay_objs.append({"name": lay.name, "seat_m": d["seat_m"], "channels": d["channels"], "band_hz": band})
         extra = {}
+        if seat_preds[0] is not None:
+            extra.update(_system_json(lay_objs[0], layouts[0], seat_preds[0]))
+            for obj, lay, sp in zip(lay_objs[1:], layouts[1:], seat_preds[1:]):
+                if sp is not None:
+                    obj.update(_system_json(obj, lay, sp))
         if uncertainty:
             extra["uncertainty"] = {k: v for k, v in bands[0].to_dict().items() if k not in ("channels", "frequencies_hz")}
         dump_json({
@@ -183,13 +190,16 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
             click.echo(f"Uncertainty: {samples} rooms drawn (seed {seed}); sd {u.position_m * 100:g} cm on positions, "
                        f"{u.size_m * 100:g} cm on dimensions, {u.absorption_rel:.0%} on absorption, "
                        f"{u.temperature_c:g} C on temperature.")
-        for lay, p, bd in zip(layouts, preds, bands):
+        for lay, p, bd, sp in zip(layouts, preds, bands, seat_preds):
             click.echo("")
-            click.echo(f"Layout: {lay.name}.  Seat: {walls_text(room, lay.seat_m)}")
+            click.echo(f"Layout: {lay.name}.  Seat: {walls_text(room, lay.seat_m)}"
+                       + (f" (the main seat, '{lay.all_seats[0].name}')" if len(lay.all_seats) > 1 else ""))
+            subs = {s.name for s in lay.subs}
             for ci, ch in enumerate(p.channels):
-                band = usable_band(lay.speakers)
+                band = _channel_band(lay, ch.name)
                 fig = band_figures(f, ch.level_db, band)
-                click.echo(f"  {ch.name}: {walls_text(room, ch.position_m)}")
+                role = " (subwoofer)" if ch.name in subs else ""
+                click.echo(f"  {ch.name}{role}: {walls_text(room, ch.position_m)}")
                 click.echo(f"    {band[0]:g}-{band[1]:g} Hz (1/6-octave smoothed): {fig['min_db']:+.1f} to {fig['max_db']:+.1f} dB, "
                            f"spread {fig['spread_db']:.1f} dB, std {fig['std_db']:.1f} dB")
                 if bd is not None:
@@ -203,6 +213,8 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
                         side = "above" if ft.kind == "peak" else "below"
                         click.echo(f"    {ft.kind:<4} {ft.freq_hz:6.1f} Hz {ft.level_db:+6.1f} dB "
                                    f"(stands {ft.prominence_db:4.1f} dB {side} its surroundings): {'; '.join(ft.causes)}")
+            if sp is not None:
+                _print_system(room, lay, sp)
         click.echo("")
         click.echo(f"Schroeder frequency {fs:.0f} Hz: results above it are indicative only.")
         click.echo("")
@@ -213,3 +225,79 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
                         bands=bands if uncertainty else None)
         echo_err(f"wrote {plot_path}")
 
+
+
+# ---------------------------------------------------------------------------- subs and seats
+#: How the system sum treats the subs: the room file has no keys for their settings.
+SYSTEM_SETTINGS_TEXT = ("the room file gives no sub settings, so every sub plays at 0 dB, 0 ms, + polarity, and "
+                        "there is no crossover: mains and subs run full range, each with only its own roll-off")
+SYSTEM_SIGNAL_TEXT = "mono bass sum: the same signal to every main and every sub"
+SUBS_POINTER = "`roommodes subs ROOM.toml` finds where the subs go and their gain, delay, polarity and crossover"
+
+
+def _has_system(lay):
+    """True for a layout with subs or several seats: predict then shows every seat and the sum."""
+    return bool(lay.subs) or len(lay.all_seats) > 1
+
+
+def _channel_band(lay, name):
+    """The band of one channel's figures: a sub's own low cut, or the mains' as before."""
+    sub = next((s for s in lay.subs if s.name == name), None)
+    if sub is not None:
+        return usable_band([sub])
+    return usable_band(lay.mains if lay.subs else lay.speakers)
+
+
+def _system_json(obj, lay, sp):
+    """The ``seats`` and ``system`` keys of ``predict --json`` for a layout with subs or seats."""
+    subs = {s.name for s in lay.subs}
+    seats = []
+    for j, seat in enumerate(sp.seats):
+        chans = []
+        for k, spk in enumerate(sp.speakers):
+            chans.append({"name": spk.name, "role": "sub" if spk.name in subs else "main",
+                          "level_db": sp.level_db[k, j],
+                          "band_figures": band_figures(sp.freq_hz, sp.level_db[k, j], _channel_band(lay, spk.name))})
+        seats.append({"name": seat.name, "position_m": list(seat.position_m), "weight": seat.weight,
+                      "main": j == 0, "channels": chans})
+    system = {
+        "signal": SYSTEM_SIGNAL_TEXT, "settings": SYSTEM_SETTINGS_TEXT,
+        "crossover_hz": sp.crossover_hz, "subs": [dict(s) for s in sp.sub_settings],
+        "band_hz": list(sp.band_hz), "seat_spread_db": sp.seat_spread_db,
+        "seats": [{"name": seat.name, "level_db": sp.system_db[j],
+                   "band_figures": band_figures(sp.freq_hz, sp.system_db[j], sp.band_hz)}
+                  for j, seat in enumerate(sp.seats)],
+        "see": SUBS_POINTER,
+    }
+    return {"seats": seats, "system": system}
+
+
+def _print_system(room, lay, sp):
+    """Every seat's figures (the main seat first) and the system's mono sum at each seat."""
+    f = sp.freq_hz
+    subs = {s.name for s in lay.subs}
+    if lay.subs:
+        click.echo(f"  Subwoofers: {', '.join(s.name for s in lay.subs)}; mains: "
+                   f"{', '.join(s.name for s in lay.mains) or 'none'}.")
+    if len(sp.seats) > 1:
+        click.echo("  Every seat (the main seat first; 1/6-octave smoothed):")
+        for j, seat in enumerate(sp.seats):
+            click.echo(f"    {seat.name}{' (main)' if j == 0 else ''}, weight {seat.weight:g}: "
+                       f"{walls_text(room, seat.position_m)}")
+            for k, spk in enumerate(sp.speakers):
+                band = _channel_band(lay, spk.name)
+                fig = band_figures(f, sp.level_db[k, j], band)
+                click.echo(f"      {spk.name}{' (subwoofer)' if spk.name in subs else ''}: {band[0]:g}-{band[1]:g} Hz "
+                           f"{fig['min_db']:+.1f} to {fig['max_db']:+.1f} dB, spread {fig['spread_db']:.1f} dB, "
+                           f"std {fig['std_db']:.1f} dB")
+    b = sp.band_hz
+    click.echo(f"  System ({SYSTEM_SIGNAL_TEXT}), {b[0]:g}-{b[1]:g} Hz, 1/6-octave smoothed:")
+    click.echo(f"    As set: {SYSTEM_SETTINGS_TEXT}.")
+    for j, seat in enumerate(sp.seats):
+        fig = band_figures(f, sp.system_db[j], b)
+        click.echo(f"    {seat.name}{' (main)' if j == 0 and len(sp.seats) > 1 else ''}: {fig['min_db']:+.1f} to "
+                   f"{fig['max_db']:+.1f} dB, spread {fig['spread_db']:.1f} dB, std {fig['std_db']:.1f} dB")
+    if len(sp.seats) > 1:
+        click.echo(f"    Seat-to-seat spread (square root of the weighted mean spatial variance): "
+                   f"{sp.seat_spread_db:.1f} dB")
+    click.echo(f"    Next: {SUBS_POINTER} (docs/subs.md).")

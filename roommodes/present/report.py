@@ -36,6 +36,8 @@ from ..analysis.fit import fit_room
 from ..analysis.maps import floor_level_map, mode_coupling
 from ..analysis.predict import band_figures, predict, response_features, usable_band
 from ..analysis.search import PARTS, front_distance_profile, search_layouts, search_space, seat_score_map
+from ..analysis.subs import BEFORE_CROSSOVER_HZ, CROSSOVER_TYPE, optimise_subs
+from ..analysis.subs import CAUTIONS as SUB_CAUTIONS
 from ..analysis.summary import room_summary
 from ..dsp.response import log_frequencies
 from ..dsp.text import boost_text, range_text
@@ -48,6 +50,7 @@ from .plots import plot_correction, plot_modes, plot_prediction
 from .plots_measure import plot_comparison, plot_fit
 from .plots_place import plot_explain, plot_place
 from .plots_report import plot_floor_map, plot_mode_coupling, plot_room_views
+from .plots_subs import plot_subs
 from .serialise import document
 from .units import UNITS, format_length, wall_distances, walls_text
 
@@ -503,8 +506,8 @@ def build_report(room, measurements=(), fit_targets=None, *, units="cm", search=
                measurements=measurements, fit_targets=fit_targets, compare_band_hz=compare_band_hz,
                compare_smoothing=compare_smoothing, created=created, command=command, files_folder=files_folder,
                inputs=inputs, room_text=room_text, map_freqs_hz=map_freqs_hz, fit_res=fit_res)
-    for section in (_section_room, _section_modes, _section_responses, _section_placement, _section_eq,
-                    _section_measurements, _section_validity, _section_reproduce, _section_appendix):
+    for section in (_section_room, _section_modes, _section_responses, _section_placement, _section_subs,
+                    _section_eq, _section_measurements, _section_validity, _section_reproduce, _section_appendix):
         section(run)
     doc, values, glance, created, fs = run.doc, run.values, run.glance, run.created, run.fs
     title = f"Room report: {run.room.name}"
@@ -842,6 +845,82 @@ def _section_placement(run):
         doc.figure(fig, "left-right", f"{n1} and {n2} at the seat, and their difference",
                    "Top: both channels (thin: unsmoothed) and the mono sum. Bottom: the difference with the regions "
                    "numbered as in the list above.")
+
+
+def _section_subs(run):
+    """Subwoofers and several seats: the best configuration of :func:`optimise_subs` (only when
+    the file has subs or several seats)."""
+    doc, values, glance, step = run.doc, run.values, run.glance, run.step
+    room, layout, units, method, search = run.room, run.layout, run.units, run.method, run.search
+    if room.layout is None or (not layout.subs and len(layout.all_seats) < 2):
+        return
+    doc.section("subs", "Subwoofers")
+    current = ", ".join(s.name for s in layout.subs)
+    doc.p((f"The room file has {len(layout.subs)} subwoofer{'s' if len(layout.subs) > 1 else ''} ({current}) "
+           if layout.subs else "The room file has no subwoofer (a vented sub with its -3 dB point at 25 Hz is "
+           "assumed) ") + f"and {len(layout.all_seats)} seat{'s' if len(layout.all_seats) > 1 else ''} "
+          f"({', '.join(s.name for s in layout.all_seats)}; the first is the main seat). The placement above "
+          "covers the two main speakers only; this section works out where the subs go and their gain, delay, "
+          "polarity and crossover, as `roommodes subs` does (docs/subs.md). The evaluated signal is the mono bass "
+          f"sum: the same signal to both mains and every sub. Crossover: {CROSSOVER_TYPE} (Linkwitz-Riley 4th "
+          "order, low-pass on the subs, high-pass on the mains).")
+    if search == "off":
+        doc.p("No subwoofer search was run for this report (search off). Run `roommodes subs` on the room file, "
+              "or make the report again with --search quick or full.")
+        return
+    step(f"subwoofer search ({search})")
+    # quick: the same search without the check in the perturbed room
+    res = optimise_subs(room, layout, method=method, check_perturbed=(search == "full"))
+    best, before = res.ranked[0], res.before
+    values["subs"] = {"best": best.to_dict(), "before": before.to_dict(), "band_hz": list(res.band_hz),
+                      "seats": [s.name for s in res.seats]}
+    band = f"{res.band_hz[0]:g}-{res.band_hz[1]:g} Hz"
+    before_text = (f"the file's layout as it is (subs at 0 dB, 0 ms, + polarity, low-pass at "
+                   f"{BEFORE_CROSSOVER_HZ:g} Hz, mains full range)" if layout.subs else "the mains alone, full range")
+    doc.p(f"Best: {best.label}, crossover {best.crossover_hz:g} Hz. Seat-to-seat spread over {band} (square root "
+          f"of the weighted mean spatial variance; Welti & Devantier, J. Audio Eng. Soc. 54(5), 2006): "
+          f"{before.seat_spread_db:.1f} dB before ({before_text}), {best.seat_spread_db:.1f} dB after. Flatness "
+          f"at the main seat: {before.parts['flatness']:.1f} dB before, {best.parts['flatness']:.1f} dB after."
+          + ("" if search == "full" else " (Quick: the settings were not checked in a perturbed room.)"))
+    glance.append(f"Subwoofers: best {best.label} (crossover {best.crossover_hz:g} Hz); seat-to-seat spread "
+                  f"{before.seat_spread_db:.1f} dB before, {best.seat_spread_db:.1f} dB after ({band}).")
+    rows = []
+    for st in best.subs:
+        rows.append([st.name, walls_text(room, st.position_m, units), _num(st.gain_db, "+.1f"),
+                     _num(st.delay_ms, ".2f"), "+" if st.polarity > 0 else "- (inverted)",
+                     _num(st.headroom_db, ".1f")])
+    doc.table("subs-settings", f"Where the subs go and what to set ({best.label})",
+              ("sub", "position (woofer centre)", "gain (dB)", "delay (ms)", "polarity", "headroom (dB)"), rows,
+              note=(f"Mains delay {best.mains_delay_ms:.2f} ms; crossover {best.crossover_hz:g} Hz, {CROSSOVER_TYPE}. "
+                    "Gains are relative to a sub as loud at 1 m in free field as one main: set the overall sub "
+                    "level by measurement at the main seat and keep the differences."), key="subs-settings")
+    rows = []
+    for j, seat in enumerate(res.seats):
+        rows.append([seat.name + (" (main)" if j == 0 else ""), _num(seat.weight, "g"),
+                     _num(before.seat_deviation_db[j], ".1f"), _num(best.seat_deviation_db[j], ".1f"),
+                     _num(before.flatness_db[j], ".1f"), _num(best.flatness_db[j], ".1f")])
+    doc.table("subs-seats", "Each seat before and after",
+              ("seat", "weight", "deviation before (dB)", "after (dB)", "flatness before (dB)", "after (dB)"),
+              rows, note=f"Over {band}. Deviation: RMS of the seat's level minus the weighted seat mean; flatness: "
+                         "RMS of the seat's level minus its own mean.")
+    rows = []
+    for c in [*res.ranked, before]:
+        rows.append([c.label if c.kind != "before" else f"before: {c.label}", str(len(c.subs)),
+                     "-" if c.crossover_hz is None else _num(c.crossover_hz, "g"), _num(c.score, ".2f"),
+                     _num(c.seat_spread_db, ".1f"), _num(c.parts["flatness"], ".1f"),
+                     _num(c.perturbed_seat_spread_db, ".1f") if search == "full" else "-"])
+    doc.table("subs-configurations", "Sub configurations ranked (score in dB, lower is better)",
+              ("configuration", "subs", "crossover (Hz)", "score", "spread (dB)", "flatness (dB)",
+               "spread, perturbed room (dB)"), rows,
+              note="Perturbed room: 1 % larger with 1.3 times the absorption, the same settings.", key="subs")
+    step("subwoofer figure")
+    mains_m = [m.position_m for m in layout.mains]
+    fig = plot_subs(res, room, mains_m, title=f"Subwoofers: {room.name}")
+    doc.figure(fig, "subs", "Level of the mono sum at every seat, and where the subs go",
+               "One row per configuration, the file's layout as it is last: left, the level at each seat; right, "
+               "the floor plan with the subs (gain, delay, polarity), the mains and the seats.")
+    doc.raw('<div class="caution"><strong>Before setting up the subs</strong><ul>'
+            + "".join(f"<li>{_esc(t)}</li>" for t in SUB_CAUTIONS) + "</ul></div>")
 
 
 def _section_eq(run):
