@@ -65,6 +65,23 @@ class ChannelCorrection:
     lowcut_order: int | None
     cautions: tuple = ()
 
+    def to_dict(self):
+        """JSON-ready values: one entry of ``eq --json``'s ``channels`` (shared/ARCHITECTURE.md)."""
+        d = {"name": self.name}
+        d.update(self.parametric.to_dict())
+        d["cautions"] = list(self.cautions)
+        d["shelf"] = self.shelf.to_dict()
+        d["graphic_third_octave"] = self.graphic_third.to_dict()
+        d["graphic_octave"] = self.graphic_octave.to_dict()
+        h = self.headroom
+        d["headroom"] = {"max_boost_db": h.max_boost_db, "max_boost_freq_hz": h.max_boost_freq_hz,
+                         "preattenuation_db": h.preattenuation_db, "power_factor": h.power_factor,
+                         "excursion_factor": h.excursion_factor}
+        if self.clean is not None:
+            d["max_clean_spl"] = {"before_db": self.clean.before_db, "after_db": self.clean.after_db,
+                                  "preattenuation_db": self.clean.preattenuation_db}
+        return d
+
 
 def _smooth_db(f, level_db, fraction):
     return 10 * np.log10(smooth_fractional_octave(f, 10 ** (level_db / 10), fraction))

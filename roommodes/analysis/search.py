@@ -585,6 +585,18 @@ class ScoredLayout:
     in_region: bool = True
     figures: dict = field(default_factory=dict)
 
+    def to_dict(self):
+        """JSON-ready values: one layout of ``place --json`` (shared/ARCHITECTURE.md)."""
+        lay, fig = self.layout, self.figures
+        return {
+            "name": self.name,
+            "speakers": [{"name": s.name, "position_m": s.position_m} for s in lay.speakers],
+            "seat_m": lay.seat_m, "score": self.score, "parts": self.parts, "in_region": self.in_region,
+            "spacing_m": fig.get("spacing_m"), "seat_distance_m": fig.get("seat_distance_m"),
+            "angle_deg": fig.get("angle_deg"), "flatness_before_eq_db": fig.get("flatness_raw"),
+            "flatness_after_eq_db": self.parts["flatness"], "eq_boost_db": self.parts["boost"],
+        }
+
 
 @dataclass(frozen=True)
 class SearchResult:

@@ -56,23 +56,6 @@ def _parse_pair(text, name):
     return a, b
 
 
-def _channel_json(corr):
-    d = {"name": corr.name}
-    d.update(corr.parametric.to_dict())
-    d["cautions"] = list(corr.cautions)
-    d["shelf"] = corr.shelf.to_dict()
-    d["graphic_third_octave"] = corr.graphic_third.to_dict()
-    d["graphic_octave"] = corr.graphic_octave.to_dict()
-    h = corr.headroom
-    d["headroom"] = {"max_boost_db": h.max_boost_db, "max_boost_freq_hz": h.max_boost_freq_hz,
-                     "preattenuation_db": h.preattenuation_db, "power_factor": h.power_factor,
-                     "excursion_factor": h.excursion_factor}
-    if corr.clean is not None:
-        d["max_clean_spl"] = {"before_db": corr.clean.before_db, "after_db": corr.clean.after_db,
-                              "preattenuation_db": corr.clean.preattenuation_db}
-    return d
-
-
 def _print_channel(corr, room_layout_speaker):
 
     p = corr.parametric
@@ -262,7 +245,7 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
     if as_json:
         dump_json({"room": room.name, "layout": lay.name, "source": source,
                    "frequencies_hz": corrections[0].parametric.freq_hz,
-                   "channels": [_channel_json(c) for c in corrections],
+                   "channels": [c.to_dict() for c in corrections],
                    "warnings": [w.to_dict() for w in head_warn], "cautions": list(CAUTIONS)})
     else:
         click.echo(f"Bass correction for '{room.name}', layout {lay.name} ({source})")

@@ -68,18 +68,12 @@ MOUNTING_CAUTION = (
 
 
 def _layout_obj(room, scored):
-    lay = scored.layout
-    fig = scored.figures
-    return {
-        "name": scored.name,
-        "speakers": [{"name": s.name, "position_m": s.position_m, "walls": walls_text(room, s.position_m)}
-                     for s in lay.speakers],
-        "seat_m": lay.seat_m, "seat_walls": walls_text(room, lay.seat_m),
-        "score": scored.score, "parts": scored.parts, "in_region": scored.in_region,
-        "spacing_m": fig.get("spacing_m"), "seat_distance_m": fig.get("seat_distance_m"),
-        "angle_deg": fig.get("angle_deg"), "flatness_before_eq_db": fig.get("flatness_raw"),
-        "flatness_after_eq_db": scored.parts["flatness"], "eq_boost_db": scored.parts["boost"],
-    }
+    """The layout's JSON (ScoredLayout.to_dict) with the distances from the walls in the user's units."""
+    d = scored.to_dict()
+    for sp, s in zip(d["speakers"], scored.layout.speakers):
+        sp["walls"] = walls_text(room, s.position_m)
+    d["seat_walls"] = walls_text(room, scored.layout.seat_m)
+    return d
 
 
 _EXTRA = (("raw", "flatness_raw", "{:5.2f}"), ("spacing", "spacing_m", "{:5.2f} m"),
