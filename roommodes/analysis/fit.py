@@ -32,7 +32,8 @@ from ..model.room import WALL_MARGIN_M, WALLS, Surface
 from ..solvers import DEFAULT_METHOD
 from .levels import speaker_levels
 
-__all__ = ["ABSORPTION_GROUPS", "FitParameter", "FitResult", "FitTarget", "fit_error", "fit_room"]
+__all__ = [
+    "ABSORPTION_GROUPS", "FitParameter", "FitResult", "FitTarget", "fit_error", "fit_room", "follow_walls"]
 
 #: Absorption groupings: name -> tuple of surface groups.
 ABSORPTION_GROUPS = {
@@ -206,6 +207,34 @@ def _check_tol(name, value, lo, hi):
     if not (math.isfinite(v) and lo <= v <= hi):
         raise ValueError(f"{name} must be {lo:g}..{hi:g}, got {value!r}")
     return v
+
+
+def follow_walls(search, old_size_m, new_size_m, touch_m=0.01):
+    """The ``[search]`` table with its keep-out boxes following walls that moved.
+
+    A box that reached a far wall (back, right, ceiling: within ``touch_m`` of it) in the
+    old room reaches it in the new one; a box corner beyond a wall that came closer is
+    brought back to it. The front, left and floor surfaces are the origin and do not move.
+    Returns a new dict (the input is not changed); a table without keep-out boxes comes
+    back as it is.
+    """
+    boxes = search.get("keep_out") if isinstance(search, dict) else None
+    if not boxes:
+        return search
+    old = np.asarray(old_size_m, dtype=float)
+    new = np.asarray(new_size_m, dtype=float)
+    moved = []
+    for box in boxes:
+        b = dict(box)
+        hi = [float(v) for v in b["max_m"]]
+        lo = [float(v) for v in b["min_m"]]
+        for a in range(3):
+            if hi[a] >= old[a] - touch_m or hi[a] > new[a]:
+                hi[a] = float(new[a]) if hi[a] >= old[a] - touch_m else min(hi[a], float(new[a]))
+            lo[a] = min(lo[a], hi[a] - 1e-3)
+        b["min_m"], b["max_m"] = lo, hi
+        moved.append(b)
+    return {**search, "keep_out": moved}
 
 
 def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoothing=12,
@@ -496,7 +525,8 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
     # keep speakers that were not fitted as they were, in the file's order
     fitted = {s.name: s for s in sps_fit}
     layout = replace(room.layout, speakers=tuple(fitted.get(s.name, s) for s in room.layout.speakers))
-    new_room = replace(new_room, layout=layout, source=None)
+    new_room = replace(new_room, layout=layout, source=None,
+                       search=follow_walls(room.search, room.size_m, new_room.size_m))
 
     out = []
     for j, p in enumerate(params):

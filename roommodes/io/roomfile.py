@@ -712,6 +712,15 @@ def room_to_toml(room, comment=None, *, original_text=None, position_note=None, 
             _set(seat, "position_m", _array(room.layout.seat_m, note))
     if room.search and "search" not in doc:
         doc["search"] = dict(room.search)
+    elif room.search.get("keep_out") and "search" in doc and \
+            doc["search"].unwrap().get("keep_out") != room.search["keep_out"]:
+        # keep-out boxes that followed a moved wall (a calibrated room): the new corners
+        boxes = tomlkit.array()
+        for box in room.search["keep_out"]:
+            t = tomlkit.inline_table()
+            t.update({k: ([_number(v) for v in box[k]] if k != "name" else box[k]) for k in box})
+            boxes.append(t)
+        _set(doc["search"], "keep_out", boxes)
     if room.subs_search is not None and "subs" not in doc:
         doc["subs"] = _subs_table(room.subs_search)
     if "uncertainty" in doc or room.uncertainty != Uncertainty():

@@ -116,3 +116,31 @@ def test_fit_output_keeps_comments(tmp_path):
     assert "# wall to wall, at skirting height" in text and "# the office chair" in text
     assert text.startswith("# Calibrated by roommodes")
     load_room(out)
+
+
+def test_keep_outs_follow_a_moved_wall_into_the_calibrated_file(tmp_path):
+    # The project's own rule (issue: "keep-outs and other geometry follow a changed room"):
+    # a box that reached the back wall reaches the moved back wall; one that did not stays.
+    from roommodes.analysis.fit import follow_walls
+
+    text = ROOM + """
+[search]
+keep_out = [{ name = "sofa", min_m = [3.9, 0.5, 0.0], max_m = [4.9, 3.1, 0.9] },
+            { name = "desk", min_m = [0.3, 1.0, 0.0], max_m = [1.0, 2.6, 0.75] }]
+"""
+    _room_files(tmp_path)
+    path = tmp_path / "spare.toml"
+    path.write_text(text)
+    room = load_room(path)
+    new_size = (5.05, 3.6, 2.55)  # the fit found the room 15 cm longer
+    search = follow_walls(room.search, room.size_m, new_size)
+    sofa, desk = search["keep_out"]
+    assert sofa["max_m"] == [5.05, 3.1, 0.9] and sofa["min_m"] == [3.9, 0.5, 0.0]
+    assert desk["max_m"] == [1.0, 2.6, 0.75]
+    assert room.search["keep_out"][0]["max_m"] == [4.9, 3.1, 0.9]  # the input is not changed
+    calibrated = replace(room, size_m=new_size, search=search)
+    out = room_to_toml(calibrated, original_text=text)
+    back = tomllib.loads(out)
+    assert back["search"]["keep_out"][0]["max_m"] == [5.05, 3.1, 0.9]
+    assert "# the office chair" in out
+    assert follow_walls({}, room.size_m, new_size) == {}
