@@ -377,7 +377,8 @@ def explain(room, layout=None, channels=None, freq_hz=None, threshold_db=DEFAULT
         raise ValueError(f"{room.source or room.name}: the room file has no [speakers] and [seat] to explain")
     names = [s.name for s in layout.speakers]
     if len(names) < 2:
-        raise ValueError(f"explain compares two speakers; the layout has {len(names)}")
+        raise ValueError(f"explain compares two speakers; the layout has {len(names)} ({', '.join(names)}): add "
+                         "a second [speakers.NAME] to the room file, or use `roommodes predict` for one speaker")
     if channels is None:
         # the stereo pair: the first two mains (subs are left out; they are not a channel of the pair)
         chosen = list(layout.mains[:2]) if len(layout.mains) >= 2 else list(layout.speakers[:2])
