@@ -138,6 +138,16 @@ class SeatsPrediction:
     method: str
 
 
+def _layout_and_grid(room, layout, freq_hz):
+    """The layout to predict (default the room file's) and the frequency grid (default 15-300 Hz)."""
+    layout = layout if layout is not None else room.layout
+    if layout is None:
+        raise ValueError(f"{room.source or room.name}: the room file has no [speakers] and [seat]; "
+                         "add them or choose a layout (corner, wall, mid-room, desk)")
+    f = log_frequencies(*DEFAULT_RANGE_HZ, DEFAULT_POINTS_PER_OCTAVE) if freq_hz is None else np.asarray(freq_hz, float)
+    return layout, f
+
+
 def predict_seats(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, include_speaker=True, **options):
     """Each speaker's level at every seat, and the mono bass sum of the system at each seat.
 
@@ -162,11 +172,7 @@ def predict_seats(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, includ
     -------
     SeatsPrediction
     """
-    layout = layout if layout is not None else room.layout
-    if layout is None:
-        raise ValueError(f"{room.source or room.name}: the room file has no [speakers] and [seat]; "
-                         "add them or choose a layout (corner, wall, mid-room, desk)")
-    f = log_frequencies(*DEFAULT_RANGE_HZ, DEFAULT_POINTS_PER_OCTAVE) if freq_hz is None else np.asarray(freq_hz, float)
+    layout, f = _layout_and_grid(room, layout, freq_hz)
     seats = layout.all_seats
     seats_m = [s.position_m for s in seats]
     speakers = tuple(layout.mains) + tuple(layout.subs)
@@ -212,11 +218,7 @@ def predict(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, include_spea
     -------
     Prediction
     """
-    layout = layout if layout is not None else room.layout
-    if layout is None:
-        raise ValueError(f"{room.source or room.name}: the room file has no [speakers] and [seat]; "
-                         "add them or choose a layout (corner, wall, mid-room, desk)")
-    f = log_frequencies(*DEFAULT_RANGE_HZ, DEFAULT_POINTS_PER_OCTAVE) if freq_hz is None else np.asarray(freq_hz, float)
+    layout, f = _layout_and_grid(room, layout, freq_hz)
     h = speaker_levels(room, layout.speakers, [layout.seat_m], f, method=method, include_speaker=include_speaker,
                        **options).transfer[:, 0, :]
     channels = [Channel(sp.name, tuple(sp.position_m), hs, level_db(hs)) for sp, hs in zip(layout.speakers, h)]

@@ -538,26 +538,35 @@ def load_room(path):
     """
     p = Path(path)
     name = str(path)
+    data = read_toml(p, "room file", RoomFileError,
+                     empty="it needs at least [room] and [surfaces] tables (see docs/room-file.md or copy "
+                           "rooms/demo-studio.toml)",
+                     nesting="a room file nests at most two levels (see docs/room-file.md)")
+    return parse_room(data, name, p.parent)
+
+
+def read_toml(path, kind, error, *, empty, nesting):
+    """The TOML table of a small input file, or ``error`` (a ValueError class) with one line
+    naming the file: unreadable or not a regular file, empty (``empty`` says what it needs),
+    not UTF-8 text, not TOML, or nested past the parser's depth (``nesting`` says the limit)."""
+    name = str(path)
     try:
-        raw = read_regular(p, "room file (.toml)", ROOM_FILE_BYTES)
+        raw = read_regular(Path(path), f"{kind} (.toml)", ROOM_FILE_BYTES)
     except InputFileError as exc:
-        raise RoomFileError(str(exc)) from None
+        raise error(str(exc)) from None
     raw = raw.removeprefix(b"\xef\xbb\xbf")  # a UTF-8 byte-order mark, as some editors write
     if not raw.strip():
-        raise RoomFileError(f"{name}: the file is empty; it needs at least [room] and [surfaces] tables "
-                            "(see docs/room-file.md or copy rooms/demo-studio.toml)")
+        raise error(f"{name}: the file is empty; {empty}")
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:
-        raise RoomFileError(f"{name}: is not a text file (not UTF-8); a room file is TOML text") from None
+        raise error(f"{name}: is not a text file (not UTF-8); a {kind} is TOML text") from None
     try:
-        data = tomllib.loads(text)
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise RoomFileError(f"{name}: is not valid TOML: {exc}") from None
+        raise error(f"{name}: is not valid TOML: {exc}") from None
     except RecursionError:
-        raise RoomFileError(f"{name}: arrays or tables are nested too deeply; a room file nests at most two "
-                            "levels (see docs/room-file.md)") from None
-    return parse_room(data, name, p.parent)
+        raise error(f"{name}: arrays or tables are nested too deeply; {nesting}") from None
 
 
 _COORDINATES_NOTE = (

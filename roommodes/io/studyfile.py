@@ -6,14 +6,10 @@ Every problem is one line naming the file, the key and what is allowed, like the
 
 from __future__ import annotations
 
-import tomllib
-from pathlib import Path
-
 from ..model.materials import get_material
 from ..model.room import MAX_DIMENSION_M, MIN_DIMENSION_M
 from ..model.study import MAX_CANDIDATES, STUDY_LAYOUTS, StudySpec
-from .files import ROOM_FILE_BYTES, InputFileError, read_regular
-from .roomfile import RoomFileError, _Ctx, _parse_uncertainty, _shown
+from .roomfile import RoomFileError, _Ctx, _parse_uncertainty, _shown, read_toml
 
 __all__ = ["StudyFileError", "load_study", "parse_study"]
 
@@ -133,23 +129,9 @@ def load_study(path):
     StudyFileError
         For anything wrong, with the file, the key and what is allowed in the message.
     """
-    p = Path(path)
     name = str(path)
-    try:
-        raw = read_regular(p, "study file (.toml)", ROOM_FILE_BYTES)
-    except InputFileError as exc:
-        raise StudyFileError(str(exc)) from None
-    raw = raw.removeprefix(b"\xef\xbb\xbf")
-    try:
-        text = raw.decode("utf-8")
-    except UnicodeDecodeError:
-        raise StudyFileError(f"{name}: is not a text file (not UTF-8); a study file is TOML text") from None
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise StudyFileError(f"{name}: is not valid TOML: {exc}") from None
-    except RecursionError:
-        raise StudyFileError(f"{name}: arrays or tables are nested too deeply") from None
+    data = read_toml(path, "study file", StudyFileError, empty=f"it needs at least {_EXAMPLE}",
+                     nesting="a study file nests at most two levels")
     if not data:
         raise StudyFileError(f"{name}: the file is empty; it needs at least {_EXAMPLE}")
     return parse_study(data, name)
