@@ -393,6 +393,36 @@ class Limits:
 # ----------------------------------------------------------------------------------------
 # Parametric fit
 # ----------------------------------------------------------------------------------------
+def _unpack(x):
+    """(f0, gain, Q) of peaking filters from the fit's vector (log f0, gain, log Q per filter)."""
+    x = x.reshape(-1, 3)
+    return np.exp(x[:, 0]), x[:, 1], np.exp(x[:, 2])
+
+
+def _peaking_objective(f, dev, w, limits, sqrt_bc, sqrt_gc, sample_rate):
+    """The curves, residual rows and cost of a set of peaking filters: weighted deviation after
+    correction, the no-harm limits, a price on boost, and (optionally) a small price on gains."""
+    def curves(x, grid):
+        if not x.size:
+            return np.zeros(np.size(grid))
+        f0, g, q = _unpack(x)
+        return response_db("peaking", f0, g, q, grid, sample_rate).sum(axis=0)
+
+    def resid(x, gain_rows=True):
+        c = curves(x, f)
+        cd = curves(x, limits.f)
+        rows = [w * (dev + c), limits.penalty(cd), sqrt_bc * w * np.maximum(c, 0.0)]
+        if gain_rows:
+            rows.append(sqrt_gc * x.reshape(-1, 3)[:, 1])
+        return np.concatenate(rows)
+
+    def cost(x):
+        r = resid(x)
+        return float(r @ r)
+
+    return curves, resid, cost
+
+
 def fit_peaking(f, dev, limits, f_bounds, q_range, gain_bounds, max_filters, sample_rate,
                 boost_cost=0.02, boost_preference=0.7, stop_db=1.0, weights=None, gain_cost=0.003):
     """Greedy-then-joint least-squares fit of peaking filters to cancel ``dev``.
@@ -432,25 +462,8 @@ def fit_peaking(f, dev, limits, f_bounds, q_range, gain_bounds, max_filters, sam
     sqrt_bc = np.sqrt(boost_cost)
     sqrt_gc = np.sqrt(gain_cost * float(np.sum(w**2)))
 
-    def unpack(x):
-        x = x.reshape(-1, 3)
-        return np.exp(x[:, 0]), x[:, 1], np.exp(x[:, 2])
-
-    def curves(x, grid):
-        f0, g, q = unpack(x)
-        return response_db("peaking", f0, g, q, grid, sample_rate).sum(axis=0)
-
-    def resid(x, gain_rows=True):
-        c = curves(x, f)
-        cd = curves(x, limits.f)
-        rows = [w * (dev + c), limits.penalty(cd), sqrt_bc * w * np.maximum(c, 0.0)]
-        if gain_rows:
-            rows.append(sqrt_gc * x.reshape(-1, 3)[:, 1])
-        return np.concatenate(rows)
-
-    def cost(x):
-        r = resid(x)
-        return float(r @ r)
+    unpack = _unpack
+    curves, resid, cost = _peaking_objective(f, dev, w, limits, sqrt_bc, sqrt_gc, sample_rate)
 
     x = np.zeros(0)
     best_cost = cost_empty = float(np.sum((w * dev) ** 2))
@@ -556,27 +569,9 @@ def fit_cuts_and_boosts(f, dev, limits, f_bounds, q_range, gain_bounds, max_filt
         def cut_q(f0, g, width):
             return bandwidth_to_q(width), "the peak's half-height width"
 
-    def unpack(x):
-        x = x.reshape(-1, 3)
-        return np.exp(x[:, 0]), x[:, 1], np.exp(x[:, 2])
+    unpack = _unpack
 
-    def curves(x, grid):
-        if not x.size:
-            return np.zeros(np.size(grid))
-        f0, g, q = unpack(x)
-        return response_db("peaking", f0, g, q, grid, sample_rate).sum(axis=0)
-
-    def resid(x, gain_rows=True):
-        c = curves(x, f)
-        cd = curves(x, limits.f)
-        rows = [w * (dev + c), limits.penalty(cd), sqrt_bc * w * np.maximum(c, 0.0)]
-        if gain_rows:
-            rows.append(sqrt_gc * x.reshape(-1, 3)[:, 1])
-        return np.concatenate(rows)
-
-    def cost(x):
-        r = resid(x)
-        return float(r @ r)
+    curves, resid, cost = _peaking_objective(f, dev, w, limits, sqrt_bc, sqrt_gc, sample_rate)
 
     def solve(x0, lo, hi, fn=resid, nfev=200):
         n = x0.size // 3
