@@ -16,7 +16,7 @@ import numpy as np
 from ..dsp.response import level_db, log_frequencies, smooth_db
 from ..model.criteria import sabine_rt60, schroeder_frequency
 from ..model.modes import mode_shapes, room_modes
-from ..model.room import WALL_AXIS, WALL_FAR, WALLS
+from ..model.room import WALL_AXIS, WALL_FAR, WALLS, SystemSettings
 from ..solvers import DEFAULT_METHOD
 from .levels import speaker_levels
 from .subs import mean_spatial_variance, mono_sum
@@ -115,13 +115,16 @@ class SeatsPrediction:
     sub_settings : tuple of dict
         Each sub's ``name``, ``gain_db``, ``delay_ms``, ``polarity`` used in the sum.
     crossover_hz : float or None
-        None: no crossover (mains and subs full range).
+        LR4 crossover of the sum (low-pass on the subs, high-pass on the mains); None: no
+        crossover (mains and subs full range).
     band_hz : tuple
         :func:`system_band` of the speakers.
     seat_spread_db : float
         Square root of the seats' weighted mean spatial variance of the mono sum over
         ``band_hz``, dB (0 with one seat).
     method : str
+    mains_delay_ms : float
+        Delay of the mains in the sum, ms.
     """
 
     freq_hz: np.ndarray
@@ -136,6 +139,7 @@ class SeatsPrediction:
     band_hz: tuple
     seat_spread_db: float
     method: str
+    mains_delay_ms: float = 0.0
 
 
 def _layout_and_grid(room, layout, freq_hz):
@@ -151,10 +155,12 @@ def _layout_and_grid(room, layout, freq_hz):
 def predict_seats(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, include_speaker=True, **options):
     """Each speaker's level at every seat, and the mono bass sum of the system at each seat.
 
-    The sum takes the subs as the room file sets them. The room file has no keys for a sub's
-    gain, delay, polarity or crossover, so every sub plays at 0 dB, 0 ms and + polarity, and
-    mains and subs run full range, each with only its own roll-off (no crossover).
-    :func:`roommodes.analysis.subs.optimise_subs` finds better settings.
+    The sum takes the subs as the room file sets them: each sub's ``gain_db``, ``delay_ms``
+    and ``polarity`` (0 dB, 0 ms, + when not given) and the ``[system]`` table's
+    ``crossover_hz`` (Linkwitz-Riley 4th order: low-pass on the subs, the matching high-pass
+    on the mains) and ``mains_delay_ms``. Without a crossover, mains and subs run full range,
+    each with only its own roll-off. :func:`roommodes.analysis.subs.optimise_subs` finds
+    better settings.
 
     Parameters
     ----------
@@ -180,13 +186,17 @@ def predict_seats(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, includ
                        **options).transfer
     n_main = len(layout.mains)
     n_sub = len(speakers) - n_main
-    settings = tuple({"name": s.name, "gain_db": 0.0, "delay_ms": 0.0, "polarity": 1} for s in layout.subs)
-    total = mono_sum(f, h[:n_main], h[n_main:], np.zeros(n_sub), np.zeros(n_sub), np.ones(n_sub), None)
+    subs = layout.subs
+    settings = tuple({"name": s.name, "gain_db": s.gain_db, "delay_ms": s.delay_ms, "polarity": s.polarity}
+                     for s in subs)
+    system = room.system if (room.system is not None and n_sub) else SystemSettings()
+    total = mono_sum(f, h[:n_main], h[n_main:], [s.gain_db for s in subs], [s.delay_ms for s in subs],
+                     [s.polarity for s in subs], system.crossover_hz, system.mains_delay_ms)
     band = system_band(speakers)
     total_db = level_db(total)
     spread = float(np.sqrt(mean_spatial_variance(total_db, [s.weight for s in seats], f, band)))
-    return SeatsPrediction(f, tuple(seats), speakers, h, level_db(h), total, total_db, settings, None, band,
-                           spread, method)
+    return SeatsPrediction(f, tuple(seats), speakers, h, level_db(h), total, total_db, settings,
+                           system.crossover_hz, band, spread, method, system.mains_delay_ms)
 
 
 def room_schroeder_frequency(room, band_hz=125.0):

@@ -37,7 +37,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from ..dsp.response import log_frequencies
-from ..model.room import Speaker, SubSearch
+from ..model.room import Speaker, SubSearch, SystemSettings
 from ..solvers import DEFAULT_METHOD
 from .levels import speaker_levels
 
@@ -45,7 +45,7 @@ __all__ = [
     "CROSSOVER_TYPE", "SCORE_WEIGHTS", "BEFORE_CROSSOVER_HZ", "DEFAULT_SUB", "CAUTIONS",
     "lr4_lowpass", "lr4_highpass", "delay_response", "sub_chain", "mono_sum", "seat_weights",
     "spatial_variance", "mean_spatial_variance", "score_parts", "tune_settings", "candidate_positions",
-    "perturbed_room", "SubSetting", "SubConfig", "SubsResult", "optimise_subs",
+    "perturbed_room", "SubSetting", "SubConfig", "SubsResult", "optimise_subs", "sub_names", "room_with_config",
 ]
 
 #: The crossover alignment: Linkwitz-Riley 4th order (two cascaded 2nd-order Butterworth
@@ -598,7 +598,7 @@ def _make_config(pr, label, kind, names, positions, g, rel_d, s, fc, subs_h, *, 
     g = np.round(np.asarray(g, dtype=float), 1)
     delays, mains_delay = np.round(delays, 2), round(float(mains_delay), 2)
     if full_range:
-        a = _mains(mains_h) + 0j
+        a = delay_response(f, mains_delay) * _mains(mains_h)
         b = sum((sub_chain(f, gi, di, si, fc) * h for gi, di, si, h in zip(g, delays, s, subs_h)),
                 np.zeros_like(a))
         parts = score_parts(f, a, b, pr.weights, pr.band, fc or BEFORE_CROSSOVER_HZ, pr.target_db)
@@ -712,6 +712,48 @@ def _tune_crossover(pr, h, pos_m, xo_grid, start):
     return fc, g, d, s
 
 
+def sub_names(n, current, mains=()):
+    """Names for ``n`` subs: the file's subs' names first, then "sub-2", "sub-3", ... (names the
+    mains or the file's subs already use are skipped)."""
+    names = [s.name for s in current][:n]
+    taken = {s.name for s in (*current, *mains)}
+    k = 1
+    while len(names) < n:
+        cand = "sub" if k == 1 else f"sub-{k}"
+        if cand not in taken and cand not in names:
+            names.append(cand)
+        k += 1
+    return names
+
+
+def room_with_config(room, config):
+    """The room with ``config``'s subs and settings: the file's own subs (their roll-off and
+    other keys kept) moved and set, new ones copied from the first of them (or
+    :data:`DEFAULT_SUB`), and ``[system]`` holding the crossover and the mains' delay.
+
+    Parameters
+    ----------
+    room : Room
+        With a layout.
+    config : SubConfig
+
+    Returns
+    -------
+    Room
+    """
+    lay = room.layout
+    current = lay.subs
+    proto = current[0] if current else DEFAULT_SUB
+    by_name = {s.name: s for s in current}
+    subs = []
+    for st in config.subs:
+        base = by_name.get(st.name, proto)
+        subs.append(replace(base, name=st.name, gain_db=float(st.gain_db), delay_ms=float(st.delay_ms),
+                            polarity=int(st.polarity)).moved(st.position_m))
+    system = SystemSettings(None if config.full_range else config.crossover_hz, float(config.mains_delay_ms))
+    return replace(room, layout=replace(lay, speakers=tuple(lay.mains) + tuple(subs)), system=system)
+
+
 def crossover_grid(crossover_hz, step_hz=5.0):
     """Crossover frequencies tried: ``step_hz`` apart across the range, ends included."""
     lo, hi = crossover_hz
@@ -743,7 +785,8 @@ def optimise_subs(room, layout=None, search=None, *, method=DEFAULT_METHOD, poin
     SubsResult
         ``ranked`` holds the best configuration for each count, the current subs with tuned
         settings (when the file has subs) and one sub at the front-wall centre, best first;
-        ``before`` is the file's layout as it is (subs at 0 dB, 0 ms, + polarity, with a
+        ``before`` is the file's layout as it is (the subs with their own settings from the file,
+        0 dB, 0 ms, + polarity when not given, and the [system] crossover or a
         low-pass at :data:`BEFORE_CROSSOVER_HZ`; the mains full range), or the mains alone.
 
     Notes
@@ -801,7 +844,7 @@ def optimise_subs(room, layout=None, search=None, *, method=DEFAULT_METHOD, poin
         _, idx, st = found
         best_by_n[n] = idx
         if n in search.counts:
-            names = ["sub"] if n == 1 else [f"sub {k + 1}" for k in range(n)]
+            names = sub_names(n, current, mains)
             configs.append(finish(f"{n} sub{'s' if n > 1 else ''}", "search", cands[idx], cand_h[idx], names, st))
     cur_pos = np.array([s.position_m for s in current]) if current else np.zeros((0, 3))
     if current:
@@ -810,9 +853,11 @@ def optimise_subs(room, layout=None, search=None, *, method=DEFAULT_METHOD, poin
     h_front = speaker_levels(room, [proto.moved(front_centre)], seats_m, f, method=method).transfer
     configs.append(finish("front-wall centre", "reference", np.array([front_centre]), h_front, [proto.name], None))
     if current:
-        before = _make_config(pr, "as it is", "before", [s.name for s in current], cur_pos, np.zeros(len(current)),
-                              np.zeros(len(current)), np.ones(len(current)), BEFORE_CROSSOVER_HZ, h_cur,
-                              full_range=True)
+        system = room.system or SystemSettings()
+        before = _make_config(pr, "as it is", "before", [s.name for s in current], cur_pos,
+                              [s.gain_db for s in current], [s.delay_ms - system.mains_delay_ms for s in current],
+                              [s.polarity for s in current], system.crossover_hz or BEFORE_CROSSOVER_HZ, h_cur,
+                              full_range=system.crossover_hz is None)
     else:
         before = _make_config(pr, "mains alone", "before", [], [], [], [], [], None,
                               np.zeros((0,) + mains_h.shape[1:]), full_range=True)

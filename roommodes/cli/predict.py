@@ -228,9 +228,21 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
 
 
 # ---------------------------------------------------------------------------- subs and seats
-#: How the system sum treats the subs: the room file has no keys for their settings.
-SYSTEM_SETTINGS_TEXT = ("the room file gives no sub settings, so every sub plays at 0 dB, 0 ms, + polarity, and "
-                        "there is no crossover: mains and subs run full range, each with only its own roll-off")
+def system_settings_text(sp):
+    """How the system sum treats the subs: the room file's settings, in words."""
+    if not sp.sub_settings:
+        return "no subs: the mains alone"
+    subs = "; ".join(f"{s['name']} {s['gain_db']:+.1f} dB, {s['delay_ms']:.2f} ms, "
+                     f"polarity {'+' if s['polarity'] > 0 else '-'}" for s in sp.sub_settings)
+    if sp.crossover_hz is None:
+        xo = ("no crossover ([system] crossover_hz not set): mains and subs run full range, each with only its "
+              "own roll-off")
+    else:
+        xo = (f"crossover {sp.crossover_hz:g} Hz (LR4: low-pass on the subs, high-pass on the mains), mains delay "
+              f"{sp.mains_delay_ms:.2f} ms")
+    return f"from the room file: {subs}; {xo}"
+
+
 SYSTEM_SIGNAL_TEXT = "mono bass sum: the same signal to every main and every sub"
 SUBS_POINTER = "`roommodes subs ROOM.toml` finds where the subs go and their gain, delay, polarity and crossover"
 
@@ -261,8 +273,8 @@ def _system_json(obj, lay, sp):
         seats.append({"name": seat.name, "position_m": list(seat.position_m), "weight": seat.weight,
                       "main": j == 0, "channels": chans})
     system = {
-        "signal": SYSTEM_SIGNAL_TEXT, "settings": SYSTEM_SETTINGS_TEXT,
-        "crossover_hz": sp.crossover_hz, "subs": [dict(s) for s in sp.sub_settings],
+        "signal": SYSTEM_SIGNAL_TEXT, "settings": system_settings_text(sp),
+        "crossover_hz": sp.crossover_hz, "mains_delay_ms": sp.mains_delay_ms, "subs": [dict(s) for s in sp.sub_settings],
         "band_hz": list(sp.band_hz), "seat_spread_db": sp.seat_spread_db,
         "seats": [{"name": seat.name, "level_db": sp.system_db[j],
                    "band_figures": band_figures(sp.freq_hz, sp.system_db[j], sp.band_hz)}
@@ -292,7 +304,7 @@ def _print_system(room, lay, sp):
                            f"std {fig['std_db']:.1f} dB")
     b = sp.band_hz
     click.echo(f"  System ({SYSTEM_SIGNAL_TEXT}), {b[0]:g}-{b[1]:g} Hz, 1/6-octave smoothed:")
-    click.echo(f"    As set: {SYSTEM_SETTINGS_TEXT}.")
+    click.echo(f"    As set: {system_settings_text(sp)}.")
     for j, seat in enumerate(sp.seats):
         fig = band_figures(f, sp.system_db[j], b)
         click.echo(f"    {seat.name}{' (main)' if j == 0 and len(sp.seats) > 1 else ''}: {fig['min_db']:+.1f} to "

@@ -8,7 +8,16 @@ from pathlib import Path
 import click
 import numpy as np
 
-from ..analysis.subs import BEFORE_CROSSOVER_HZ, CAUTIONS, CROSSOVER_TYPE, SCORE_WEIGHTS, optimise_subs
+from .. import __version__
+from ..analysis.subs import (
+    BEFORE_CROSSOVER_HZ,
+    CAUTIONS,
+    CROSSOVER_TYPE,
+    SCORE_WEIGHTS,
+    optimise_subs,
+    room_with_config,
+)
+from ..io.roomfile import room_to_toml, write_text_atomic
 from ..present.plots_subs import plot_subs
 from ._util import (
     CONTEXT,
@@ -21,6 +30,7 @@ from ._util import (
     load_or_fail,
     method_option,
     protect_inputs,
+    room_inputs,
     units_option,
     walls_text,
 )
@@ -38,9 +48,14 @@ def _polarity(p):
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path),
               help="Write the level at every seat and a floor plan per configuration (PNG/SVG).")
 @click.option("--force", is_flag=True, help="Overwrite an existing plot file.")
+@click.option("--write-settings", "settings_path", type=click.Path(path_type=Path), metavar="OUT.toml",
+              help="Write a copy of the room file with the chosen configuration's sub positions, gains, delays, "
+                   "polarities and crossover ([system]); the input is never overwritten.")
+@click.option("--rank", type=click.IntRange(1, 20), default=1, show_default=True,
+              help="Which configuration of the ranked table --write-settings writes.")
 @json_option
 @units_option
-def subs(room_file, method, points_per_octave, plot_path, force, as_json):
+def subs(room_file, method, points_per_octave, plot_path, force, settings_path, rank, as_json):
     """Find where the subwoofers go, and their gain, delay, polarity and crossover, for every seat.
 
     Considers 1, 2 and 4 subs (the [subs] table of the room file sets the counts, the allowed
@@ -58,6 +73,9 @@ def subs(room_file, method, points_per_octave, plot_path, force, as_json):
     if plot_path:
         check_output(plot_path, force)
         protect_inputs(plot_path, room_file)
+    if settings_path:
+        protect_inputs(settings_path, *room_inputs(room_file, room))
+        check_output(settings_path, force, (".toml",), "--write-settings")
     t0 = time.perf_counter()
     try:
         res = optimise_subs(room, method=method, points_per_octave=points_per_octave)
@@ -76,6 +94,28 @@ def subs(room_file, method, points_per_octave, plot_path, force, as_json):
     if plot_path:
         plot_subs(res, room, mains_m, title=f"Subwoofers: {room.name}", path=plot_path)
         echo_err(f"wrote {plot_path}")
+    if settings_path:
+        _write_settings(room_file, room, res, rank, settings_path, force)
+
+
+def _write_settings(room_file, room, res, rank, path, force):
+    """A copy of the room file with configuration ``rank`` (1 = best) written into it."""
+    if rank > len(res.ranked):
+        fail(f"--rank {rank}: the table has {len(res.ranked)} configurations; choose 1..{len(res.ranked)}")
+    c = res.ranked[rank - 1]
+    new_room = room_with_config(room, c)
+    text = room_to_toml(new_room, comment=(
+        f"Written by roommodes {__version__} subs from {room_file}: configuration #{rank} ({c.label}), "
+        f"seat-to-seat spread {c.seat_spread_db:.1f} dB over {res.band_hz[0]:g}-{res.band_hz[1]:g} Hz "
+        f"({res.before.seat_spread_db:.1f} dB as the file was).\n"
+        "Set the subs from quiet: start with the amplifier down and raise the level slowly."),
+        original_text=Path(room_file).read_text(encoding="utf-8"), written_to=path)
+    try:
+        write_text_atomic(path, text, overwrite=force)
+    except (FileExistsError, OSError) as exc:
+        fail(str(exc))
+    echo_err(f"wrote {path}: {len(c.subs)} sub{'s' if len(c.subs) != 1 else ''} with their gain, delay and "
+             f"polarity, [system] crossover_hz = {c.crossover_hz:g}, mains_delay_ms = {c.mains_delay_ms:g}")
 
 
 def _print(room, res, elapsed):

@@ -34,6 +34,7 @@ from ..model.room import (
     Speaker,
     SubSearch,
     Surface,
+    SystemSettings,
     Uncertainty,
 )
 from .files import ROOM_FILE_BYTES, InputFileError, read_regular
@@ -43,13 +44,17 @@ __all__ = ["RoomFileError", "load_room", "parse_room", "room_to_toml", "demo_roo
            "example_rooms", "write_text_atomic"]
 
 
-_TOP_KEYS = {"room", "surfaces", "speakers", "seat", "seats", "search", "subs", "format", "uncertainty"}
+_TOP_KEYS = {"room", "surfaces", "speakers", "seat", "seats", "search", "subs", "format", "uncertainty", "system"}
 #: ``[uncertainty]`` keys and the largest standard deviation each accepts (a survey that knows a
 #: position to worse than half a metre, or the temperature to worse than 10 C, is no survey).
 _UNCERTAINTY_LIMITS = {"position_m": 0.5, "size_m": 0.5, "absorption_rel": 2.0, "temperature_c": 10.0}
 _ROOM_KEYS = {"name", "size_m", "temperature_c"}
 _SPEAKER_KEYS = {"position_m", "lowcut_hz", "lowcut_order", "response_file", "sensitivity_db",
-                 "amplifier_w", "max_spl_db", "role", "cabinet_m", "woofer_on_face_m", "tweeter_on_face_m"}
+                 "amplifier_w", "max_spl_db", "role", "cabinet_m", "woofer_on_face_m", "tweeter_on_face_m",
+                 "gain_db", "delay_ms", "polarity"}
+#: A sub's own settings (``[speakers.NAME]`` with role = "sub"): key, lowest, highest.
+_SUB_SETTING_LIMITS = (("gain_db", -30.0, 12.0), ("delay_ms", 0.0, 100.0))
+_SYSTEM_KEYS = {"crossover_hz", "mains_delay_ms"}
 _SEAT_KEYS = {"position_m"}
 _SEATS_KEYS = {"position_m", "weight"}
 _SUBS_KEYS = {"counts", "crossover_hz", "max_delay_ms", "max_gain_db", "height_m", "step_m", "wall_gap_m",
@@ -272,6 +277,7 @@ def parse_room(data, name="<room>", base_dir=None):
         cabinet = _parse_cabinet(ctx, key, st)
         if cabinet is not None:
             extra["cabinet"] = cabinet
+        extra.update(_parse_sub_settings(ctx, key, st, role))
         speakers.append(Speaker(sname, pos, lowcut, int(order), response, rfile, role=role, **extra))
     for a in range(len(speakers)):
         for b in range(a + 1, len(speakers)):
@@ -320,13 +326,46 @@ def parse_room(data, name="<room>", base_dir=None):
         subs_search = _parse_subs(ctx, data["subs"], size)
     _check_numbers_fit(ctx, search, "[search]")
     uncertainty = _parse_uncertainty(ctx, data["uncertainty"]) if "uncertainty" in data else Uncertainty()
-    room = Room(room_name, size, surfaces, temp, layout, search, str(name), subs_search, uncertainty)
+    system = _parse_system(ctx, data["system"], speakers) if "system" in data else None
+    room = Room(room_name, size, surfaces, temp, layout, search, str(name), subs_search, uncertainty, system)
     if search:  # the user's placement constraints are checked now, not when a search first reads them
         try:
             search_space(room)
         except ValueError as exc:
             raise RoomFileError(str(exc)) from None
     return room
+
+
+def _parse_sub_settings(ctx, key, st, role):
+    """A sub's ``gain_db``, ``delay_ms`` and ``polarity``; refused on a main."""
+    given = [k for k in ("gain_db", "delay_ms", "polarity") if k in st]
+    if not given:
+        return {}
+    if role != "sub":
+        ctx.fail(f"{key} {given[0]}", "only a subwoofer (role = \"sub\") takes gain_db, delay_ms and polarity; "
+                                      "delay the mains with [system] mains_delay_ms, or add role = \"sub\"")
+    out = {k: ctx.number(st[k], f"{key} {k}", lo, hi) for k, lo, hi in _SUB_SETTING_LIMITS if k in st}
+    if "polarity" in st:
+        p = st["polarity"]
+        if isinstance(p, bool) or p not in (1, -1):
+            ctx.fail(f"{key} polarity", f"must be 1 (normal) or -1 (inverted), got {_shown(p)}")
+        out["polarity"] = int(p)
+    return out
+
+
+def _parse_system(ctx, table, speakers):
+    """The ``[system]`` table: the crossover between mains and subs and the mains' delay."""
+    if not isinstance(table, dict):
+        ctx.fail("[system]", "must be a table, e.g. crossover_hz = 80 (see docs/room-file.md)")
+    ctx.unknown_keys(table, _SYSTEM_KEYS, "[system]")
+    if not any(s.role == "sub" for s in speakers):
+        ctx.fail("[system]", "the file has no subwoofer (a [speakers.NAME] with role = \"sub\"); the crossover and "
+                             "mains delay join mains and subs: add a sub or remove [system]")
+    xo = None
+    if "crossover_hz" in table:
+        xo = ctx.number(table["crossover_hz"], "[system] crossover_hz", 30.0, 200.0)
+    delay = ctx.number(table.get("mains_delay_ms", 0.0), "[system] mains_delay_ms", 0.0, 100.0)
+    return SystemSettings(xo, delay)
 
 
 def _parse_uncertainty(ctx, table):
@@ -684,12 +723,21 @@ def room_to_toml(room, comment=None, *, original_text=None, position_note=None, 
             del speakers[old]
         src_dir = Path(room.source).parent if room.source else None
         out_dir = Path(written_to).parent if written_to is not None else None
+        kept = [k for k in speakers.keys() if isinstance(speakers[k], tomlkit.items.Table)]
+        # the blank lines and comments after the last speaker's keys introduce the next table
+        tail = _pop_trailing_space(speakers[kept[-1]]) if kept and original_text else []
+        if kept and original_text and not tail:
+            tail = [tomlkit.items.Whitespace("\n")]
         for sp in room.layout.speakers:
             if sp.name not in speakers:
                 speakers[sp.name] = tomlkit.table()
             t = speakers[sp.name]
             fresh = not original_text
             note = position_note(sp.name, sp.position_m) if position_note and fresh else None
+            if sp.is_sub and not fresh and "position_m" in t and _moved(t["position_m"], sp.position_m):
+                # the old comment described the old place
+                note = "moved by roommodes subs; was [" + ", ".join(f"{_number(v):g}" for v in t["position_m"]) + "]"
+                t["position_m"] = _array(sp.position_m, note)
             _set(t, "position_m", _array(sp.position_m, note))
             if sp.lowcut_hz:
                 box = "vented box" if sp.lowcut_order == 4 else "sealed box"
@@ -702,12 +750,22 @@ def room_to_toml(room, comment=None, *, original_text=None, position_note=None, 
                     _set(t, k, _number(getattr(sp, k)))
             if sp.role != "main" or "role" in t:
                 _set(t, "role", sp.role)
+            if sp.is_sub:
+                gap = _pop_trailing_space(t)
+                for k, default in (("gain_db", 0.0), ("delay_ms", 0.0), ("polarity", 1)):
+                    v = getattr(sp, k)
+                    if v != default or k in t or room.system is not None:
+                        _set(t, k, int(v) if k == "polarity" else _number(v))
+                t.value.body.extend((None, ws) for ws in gap)
             if sp.cabinet is not None:
                 cab = sp.cabinet
                 _set(t, "cabinet_m", _array(cab.size_m, "width, height, depth" if fresh else None))
                 _set(t, "woofer_on_face_m", _array(cab.woofer_m))
                 if cab.tweeter_m is not None:
                     _set(t, "tweeter_on_face_m", _array(cab.tweeter_m))
+        if tail:
+            last = speakers[[k for k in speakers.keys() if isinstance(speakers[k], tomlkit.items.Table)][-1]]
+            last.value.body.extend((None, ws) for ws in _pop_trailing_space(last) + tail)
         if room.layout.seats:
             _write_seats(doc, room.layout.seats, position_note if not original_text else None)
         elif "seats" in doc:
@@ -732,6 +790,17 @@ def room_to_toml(room, comment=None, *, original_text=None, position_note=None, 
         _set(doc["search"], "keep_out", boxes)
     if room.subs_search is not None and "subs" not in doc:
         doc["subs"] = _subs_table(room.subs_search)
+    has_subs = room.layout is not None and bool(room.layout.subs)
+    if room.system is not None and has_subs:
+        sy = _table(doc, "system")
+        if room.system.crossover_hz is not None:
+            _set(sy, "crossover_hz", _number(room.system.crossover_hz))
+        elif "crossover_hz" in sy:
+            del sy["crossover_hz"]
+        if room.system.mains_delay_ms or "mains_delay_ms" in sy or room.system.crossover_hz is not None:
+            _set(sy, "mains_delay_ms", _number(room.system.mains_delay_ms))
+    elif "system" in doc:
+        del doc["system"]
     if "uncertainty" in doc or room.uncertainty != Uncertainty():
         ut = _table(doc, "uncertainty")
         for k, v in room.uncertainty.to_dict().items():
@@ -740,6 +809,24 @@ def room_to_toml(room, comment=None, *, original_text=None, position_note=None, 
     if comment:
         text = "".join(f"# {line}".rstrip() + "\n" for line in comment.splitlines()) + "\n" + text
     return text
+
+
+def _moved(old, new_m, tol_m=1e-6):
+    """Whether a position in the document differs from ``new_m``."""
+    try:
+        return any(abs(float(a) - float(b)) > tol_m for a, b in zip(old, new_m)) or len(old) != len(new_m)
+    except (TypeError, ValueError):
+        return True
+
+
+def _pop_trailing_space(table):
+    """Take the blank lines and comments off the end of ``table`` (returned): they introduce the
+    next table, so keys added now go above them."""
+    body = table.value.body
+    tail = []
+    while body and body[-1][0] is None and isinstance(body[-1][1], (tomlkit.items.Whitespace, tomlkit.items.Comment)):
+        tail.insert(0, body.pop()[1])
+    return tail
 
 
 def _write_seats(doc, seats, position_note=None):

@@ -36,6 +36,7 @@ __all__ = [
     "Seat",
     "Layout",
     "SubSearch",
+    "SystemSettings",
     "Box",
     "ROLES",
     "Room",
@@ -179,6 +180,11 @@ class Speaker:
         "main" (full range, the default) or "sub" (a subwoofer); see :data:`ROLES`.
     cabinet : Cabinet or None
         The box, when the room file describes it (used by the placement search).
+    gain_db, delay_ms : float
+        A sub's level and delay as set on its controls or in the DSP (0 dB, 0 ms by default);
+        the mains keep 0 (their delay is :attr:`SystemSettings.mains_delay_ms`).
+    polarity : int
+        A sub's polarity, +1 (normal) or -1 (inverted).
     """
 
     name: str
@@ -192,6 +198,9 @@ class Speaker:
     max_spl_db: float | None = None
     role: str = "main"
     cabinet: Cabinet | None = None
+    gain_db: float = 0.0
+    delay_ms: float = 0.0
+    polarity: int = 1
 
     def moved(self, position_m):
         """The same speaker at another position."""
@@ -280,6 +289,24 @@ class SubSearch:
     candidates_m: tuple = ()
     keep_out: tuple = ()
     band_hz: tuple = (20.0, 160.0)
+
+
+@dataclass(frozen=True)
+class SystemSettings:
+    """How mains and subs are joined (the room file's ``[system]`` table).
+
+    Attributes
+    ----------
+    crossover_hz : float or None
+        Linkwitz-Riley 4th-order crossover: low-pass on every sub, high-pass on every main at
+        this frequency; None: no crossover (mains and subs full range, each with only its own
+        roll-off).
+    mains_delay_ms : float
+        Delay of the mains, ms (when a sub must come earlier than them).
+    """
+
+    crossover_hz: float | None = None
+    mains_delay_ms: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -386,6 +413,8 @@ class Room:
         The room file's ``[subs]`` table (subwoofer search constraints), if any.
     uncertainty : Uncertainty
         How well the file knows the room (``[uncertainty]``; conservative defaults).
+    system : SystemSettings or None
+        The room file's ``[system]`` table (crossover and mains delay), if any.
     """
 
     name: str
@@ -397,6 +426,7 @@ class Room:
     source: str | None = None
     subs_search: SubSearch | None = None
     uncertainty: Uncertainty = Uncertainty()
+    system: SystemSettings | None = None
 
     @property
     def seats(self):
