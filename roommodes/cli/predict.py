@@ -222,7 +222,7 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
     if plot_path:
         ms = room_modes(room, hi)
         plot_prediction(preds, ms, title=f"{room.name}: predicted level at the seat", path=plot_path,
-                        bands=bands if uncertainty else None)
+                        bands=bands if uncertainty else None, system=seat_preds[0])
         echo_err(f"wrote {plot_path}")
 
 

@@ -87,7 +87,7 @@ def mark_modes(ax, modes, fmin, fmax, max_order=2):
 _SHOWN_SMOOTHING = 6
 
 
-def plot_prediction(predictions, modes=None, title=None, path=None, bands=None):
+def plot_prediction(predictions, modes=None, title=None, path=None, bands=None, system=None):
     """Predicted level at the seat for one or more predictions (layouts).
 
     Parameters
@@ -100,9 +100,15 @@ def plot_prediction(predictions, modes=None, title=None, path=None, bands=None):
     bands : list of Bands or None, optional
         One per prediction (:func:`roommodes.analysis.uncertainty.predict_bands`): each
         channel's 10-90 % band over the drawn rooms is shaded in the channel's colour.
+    system : SeatsPrediction, optional
+        The system's mono sum at every seat with the room file's settings
+        (:func:`roommodes.analysis.predict.predict_seats`): drawn in a second panel below.
     """
     preds = predictions if isinstance(predictions, (list, tuple)) else [predictions]
-    fig, ax = new_figure()
+    if system is not None:
+        fig, (ax, ax_sys) = new_figure(8.0, 8.6, nrows=2)
+    else:
+        fig, ax = new_figure()
     f = preds[0].freq_hz
     styles = ("-", "--", ":", "-.")
     for i, p in enumerate(preds):
@@ -145,9 +151,45 @@ def plot_prediction(predictions, modes=None, title=None, path=None, bands=None):
     else:
         ax.legend(fontsize=8, loc="lower center")
     ax.set_title(title or "Predicted level at the seat", fontsize=11, pad=10)
+    if system is not None:
+        _system_panel(ax_sys, system, preds[0].schroeder_hz)
+        if len(preds) > 1:
+            fig.set_size_inches(10.0, 8.6)
     if path is not None:
         save_figure(fig, path)
     return fig
+
+
+def _system_panel(ax, sp, schroeder_hz):
+    """The mono sum of mains and subs at every seat, with the room file's settings."""
+    f = sp.freq_hz
+    for j, seat in enumerate(sp.seats):
+        ax.plot(f, smooth_db(f, sp.system_db[j], _SHOWN_SMOOTHING), color=PALETTE[j % len(PALETTE)],
+                lw=2.0 if j == 0 else 1.3, label=f"{seat.name}{' (main seat)' if j == 0 and len(sp.seats) > 1 else ''}"
+                f"{f', weight {seat.weight:g}' if len(sp.seats) > 1 else ''}")
+    if sp.crossover_hz:
+        ax.axvline(sp.crossover_hz, color="0.35", ls=":", lw=1.0)
+        ax.text(sp.crossover_hz * 1.02, 0.97, f"crossover {sp.crossover_hz:g} Hz", fontsize=7, color="0.3",
+                va="top", transform=ax.get_xaxis_transform())
+    b = sp.band_hz
+    for lo, hi in ((f[0], b[0]), (b[1], f[-1])):
+        if hi > lo:
+            ax.axvspan(lo, hi, color="0.93", lw=0, zorder=0)
+    shade_invalid(ax, schroeder_hz, f[-1])
+    style_frequency_axis(ax, f[0], f[-1])
+    lv = sp.system_db[:, (f >= b[0]) & (f <= b[1])]
+    ax.set_ylim(np.floor(np.percentile(lv, 1) / 5) * 5 - 5, np.ceil(lv.max() / 5) * 5 + 5)
+    ax.set_ylabel("System level (dB re free field at 1 m)")
+    n_subs = len(sp.sub_settings)
+    how = (f"{n_subs} sub{'s' if n_subs != 1 else ''} as set in the file, "
+           + (f"LR4 crossover {sp.crossover_hz:g} Hz" if sp.crossover_hz else "no crossover") if n_subs
+           else "mains only")
+    spread = (f"\nseat-to-seat spread {sp.seat_spread_db:.1f} dB over {b[0]:g}-{b[1]:g} Hz (square root of the "
+              "weighted mean spatial variance)" if len(sp.seats) > 1 else "")
+    ax.set_title(f"Mono sum of mains and subs at every seat, 1/{_SHOWN_SMOOTHING}-octave smoothed ({how}){spread}",
+                 fontsize=9)
+    ax.plot([], [], color="0.93", lw=6, label="outside the system's band")
+    ax.legend(fontsize=8, loc="lower center", ncols=2)
 
 
 def plot_modes(modes, fmax, title=None, path=None):

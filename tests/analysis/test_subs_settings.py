@@ -105,3 +105,21 @@ def test_predict_sums_the_system_with_the_files_settings():
     plain = predict_seats(load_room(SOFA), freq_hz=f, method="modal")
     h0 = speaker_levels(load_room(SOFA), load_room(SOFA).layout.speakers, seats, f, method="modal").transfer
     assert plain.crossover_hz is None and np.allclose(plain.system, h0.sum(axis=0))
+
+
+def test_the_prediction_plot_gets_a_panel_of_the_system_at_every_seat(tmp_path):
+    from roommodes.analysis.predict import predict
+    from roommodes.present.plots import plot_prediction
+
+    room = room_with_config(load_room(SOFA), _config(load_room(SOFA)))
+    f = np.geomspace(15, 300, 60)
+    sp = predict_seats(room, freq_hz=f, method="modal")
+    fig = plot_prediction([predict(room, freq_hz=f, method="modal")], system=sp, path=tmp_path / "p.png")
+    assert len(fig.axes) == 2 and (tmp_path / "p.png").stat().st_size > 0
+    lower = fig.axes[1]
+    assert f"seat-to-seat spread {sp.seat_spread_db:.1f} dB" in lower.get_title()
+    assert "LR4 crossover 65 Hz" in lower.get_title()
+    labels = [t.get_text() for t in lower.get_legend().get_texts()]
+    assert labels[:3] == ["middle (main seat), weight 1", "left, weight 0.7", "right, weight 0.7"]
+    # without a system: one panel, as before
+    assert len(plot_prediction([predict(room, freq_hz=f, method="modal")]).axes) == 1
