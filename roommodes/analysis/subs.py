@@ -46,6 +46,7 @@ __all__ = [
     "lr4_lowpass", "lr4_highpass", "delay_response", "sub_chain", "mono_sum", "seat_weights",
     "spatial_variance", "mean_spatial_variance", "score_parts", "tune_settings", "candidate_positions",
     "perturbed_room", "SubSetting", "SubConfig", "SubsResult", "optimise_subs", "sub_names", "room_with_config",
+    "measured_transfer", "tune_measured", "MEASURED_NOTE",
 ]
 
 #: The crossover alignment: Linkwitz-Riley 4th order (two cascaded 2nd-order Butterworth
@@ -529,6 +530,8 @@ class SubsResult:
     candidates_m: np.ndarray
     assumed_sub: bool
     search: SubSearch = field(default_factory=SubSearch)
+    sources: dict = field(default_factory=dict)
+    level_offset_db: float = 0.0
 
     def to_dict(self):
         best = self.ranked[0]
@@ -542,7 +545,18 @@ class SubsResult:
             "ranked": [c.to_dict() for c in self.ranked],
             "before": self.before.to_dict(),
             "cautions": list(CAUTIONS),
+            **({"measured": self.measured_dict()} if self.measured else {}),
         }
+
+    @property
+    def measured(self):
+        """True when some speaker-seat pairs come from measurements (:func:`tune_measured`)."""
+        return any(v == "measured" for v in self.sources.values())
+
+    def measured_dict(self):
+        """JSON-ready: which pairs were measured and which predicted, and the level offset."""
+        return {"pairs": [{"speaker": k, "seat": st, "source": v} for (k, st), v in self.sources.items()],
+                "level_offset_db": self.level_offset_db, "note": MEASURED_NOTE}
 
 
 def _seat_figures(freq_hz, level_db, weights, band_hz):
@@ -712,6 +726,149 @@ def _tune_crossover(pr, h, pos_m, xo_grid, start):
     return fc, g, d, s
 
 
+def _as_it_is(pr, room, current, h_cur):
+    """The file's subs with the file's own settings: "before"."""
+    system = room.system or SystemSettings()
+    return _make_config(pr, "as it is", "before", [s.name for s in current], [s.position_m for s in current],
+                        [s.gain_db for s in current], [s.delay_ms - system.mains_delay_ms for s in current],
+                        [s.polarity for s in current], system.crossover_hz or BEFORE_CROSSOVER_HZ, h_cur,
+                        full_range=system.crossover_hz is None)
+
+
+@dataclass(frozen=True)
+class _Curve:
+    """A level curve in the shape :func:`roommodes.io.importers.apply_mic_calibration` reads."""
+
+    freq_hz: np.ndarray
+    level_db: np.ndarray
+    source: str = "measurement"
+    notes: tuple = ()
+
+
+def measured_transfer(ir, fs_hz, freq_hz, *, window_s=1.0, mic_cal=None):
+    """Complex response of a measured impulse response, its time origin kept.
+
+    Parameters
+    ----------
+    ir : array_like (n,)
+        The impulse response, sample 0 at the instant the test signal left the output (the
+        sweep's timing kept, or a loopback reference): the delays between speakers are real.
+    fs_hz : float
+    freq_hz : array_like (F,)
+        Each at most ``fs_hz / 2``.
+    window_s : float
+        Length of the window from sample 0, s (a half-Hann fades its last 10 %).
+    mic_cal : curve, optional
+        The microphone's deviation from flat (:func:`roommodes.io.importers.read_response_text`),
+        divided out of the magnitude (end values held outside its range).
+
+    Returns
+    -------
+    ndarray, complex (F,)
+    """
+    from ..io.importers import apply_mic_calibration
+    from ..measure.deconvolve import frequency_response
+
+    f = np.asarray(freq_hz, dtype=float)
+    h = frequency_response(np.asarray(ir, dtype=float), fs_hz, f, window_s=min(window_s, len(ir) / fs_hz))
+    if mic_cal is not None:
+        raw = _level(h)
+        cal = apply_mic_calibration(_Curve(f, raw), mic_cal, outside="hold")
+        h = h * 10.0 ** ((np.asarray(cal.level_db) - raw) / 20.0)
+    return h
+
+
+#: What the measured mode says about positions.
+MEASURED_NOTE = ("Measured responses cannot move a sub: the gain, delay, polarity and crossover are tuned for the "
+                 "subs where they stand now. Run without --measured to search positions on the model.")
+
+
+def tune_measured(room, measured, *, method=DEFAULT_METHOD, points_per_octave=24, window_s=1.0, mic_cal=None):
+    """Gain, delay, polarity and crossover of the file's subs where they stand, on measured
+    impulse responses where given and predicted transfer functions elsewhere.
+
+    Parameters
+    ----------
+    room : Room
+        With mains, at least one sub and the seats.
+    measured : dict
+        ``{(speaker name, seat name): (ir, fs_hz)}``: the impulse response of that speaker at
+        that seat, its time origin the test signal's (:func:`measured_transfer`).
+    method : str
+        Solver of the predicted pairs.
+    points_per_octave : int
+    window_s : float
+        Window on every impulse response, s.
+    mic_cal : curve, optional
+        Microphone calibration, removed from every measurement.
+
+    Returns
+    -------
+    SubsResult
+        ``ranked`` holds one configuration, the subs where they stand with tuned settings;
+        ``before`` the file's settings, on the same (measured and predicted) responses;
+        ``sources`` says which pairs were measured; ``level_offset_db`` is the one level
+        offset that brought the measurements to the model's scale.
+
+    Notes
+    -----
+    A measured impulse response is in the units of the measuring chain, the model in dB re
+    the free-field level at 1 m. One offset, the median over the measured pairs and the band
+    of (measured - predicted) in dB, brings every measurement to the model's scale, so that
+    measured and predicted pairs can be summed; when every pair is measured it changes
+    nothing but the printed levels. The measurements keep their own time origin, so their
+    delays against the predicted pairs are right only when that origin is the test signal's.
+    """
+    layout = room.layout
+    if layout is None or not layout.mains or not layout.subs:
+        raise ValueError(f"{room.source or room.name}: tuning on measurements needs the file's mains, its subs "
+                         "(role = \"sub\") and the seats")
+    search = room.subs_search or SubSearch()
+    seats = layout.all_seats
+    seat_index = {s.name: j for j, s in enumerate(seats)}
+    speakers = tuple(layout.mains) + tuple(layout.subs)
+    sp_index = {s.name: k for k, s in enumerate(speakers)}
+    for (spk, seat) in measured:
+        if spk not in sp_index:
+            raise ValueError(f"--measured {spk}@{seat}: no speaker '{spk}' in the room file; the speakers are "
+                             + ", ".join(sp_index))
+        if seat not in seat_index:
+            raise ValueError(f"--measured {spk}@{seat}: no seat '{seat}' in the room file; the seats are "
+                             + ", ".join(seat_index))
+    weights = seat_weights([s.weight for s in seats]) * len(seats)
+    seats_m = np.array([s.position_m for s in seats])
+    band = tuple(search.band_hz)
+    f = log_frequencies(band[0], band[1], points_per_octave)
+    h = speaker_levels(room, speakers, seats_m, f, method=method).transfer.copy()
+    sources = {(s.name, st.name): "predicted" for s in speakers for st in seats}
+    diffs = []
+    meas = {}
+    for (spk, seat), (ir, fs) in measured.items():
+        if f[-1] > fs / 2:
+            raise ValueError(f"--measured {spk}@{seat}: sample rate {fs:g} Hz is too low for {f[-1]:g} Hz")
+        hm = measured_transfer(ir, fs, f, window_s=window_s, mic_cal=mic_cal)
+        k, j = sp_index[spk], seat_index[seat]
+        meas[(k, j)] = hm
+        diffs.append(_level(hm) - _level(h[k, j]))
+        sources[(spk, seat)] = "measured"
+    offset = float(np.median(np.concatenate(diffs))) if diffs else 0.0
+    for (k, j), hm in meas.items():
+        h[k, j] = hm * 10.0 ** (-offset / 20.0)
+    n_main = len(layout.mains)
+    mains_h, subs_h = h[:n_main], h[n_main:]
+    mains_m = np.array([m.position_m for m in layout.mains])
+    pr = _Problem(f, mains_h, mains_m, seats_m, weights, band, target_level_db(f, mains_h, weights, band), search,
+                  room.speed_of_sound)
+    current = layout.subs
+    pos = np.array([s.position_m for s in current])
+    fc, g, d, s = _tune_crossover(pr, subs_h, pos, crossover_grid(search.crossover_hz), None)
+    label = "measured, as placed" if meas else "current positions"
+    best = _make_config(pr, label, "current", [c.name for c in current], pos, g, d, s, fc, subs_h)
+    before = _as_it_is(pr, room, current, subs_h)
+    return SubsResult(f, seats, band, (best,), before, method, 0, np.zeros((0, 3)), False, search,
+                      sources=sources, level_offset_db=offset)
+
+
 def sub_names(n, current, mains=()):
     """Names for ``n`` subs: the file's subs' names first, then "sub-2", "sub-3", ... (names the
     mains or the file's subs already use are skipped)."""
@@ -853,11 +1010,7 @@ def optimise_subs(room, layout=None, search=None, *, method=DEFAULT_METHOD, poin
     h_front = speaker_levels(room, [proto.moved(front_centre)], seats_m, f, method=method).transfer
     configs.append(finish("front-wall centre", "reference", np.array([front_centre]), h_front, [proto.name], None))
     if current:
-        system = room.system or SystemSettings()
-        before = _make_config(pr, "as it is", "before", [s.name for s in current], cur_pos,
-                              [s.gain_db for s in current], [s.delay_ms - system.mains_delay_ms for s in current],
-                              [s.polarity for s in current], system.crossover_hz or BEFORE_CROSSOVER_HZ, h_cur,
-                              full_range=system.crossover_hz is None)
+        before = _as_it_is(pr, room, current, h_cur)
     else:
         before = _make_config(pr, "mains alone", "before", [], [], [], [], [], None,
                               np.zeros((0,) + mains_h.shape[1:]), full_range=True)

@@ -13,12 +13,15 @@ from ..analysis.subs import (
     BEFORE_CROSSOVER_HZ,
     CAUTIONS,
     CROSSOVER_TYPE,
+    MEASURED_NOTE,
     SCORE_WEIGHTS,
     optimise_subs,
     room_with_config,
+    tune_measured,
 )
 from ..io.roomfile import room_to_toml, write_text_atomic
 from ..present.plots_subs import plot_subs
+from ._measured import mic_cal_option, read_mic_cal, read_wav_or_fail, wav_channel_option, window_option
 from ._util import (
     CONTEXT,
     MODEL_CAUTION,
@@ -34,6 +37,11 @@ from ._util import (
     units_option,
     walls_text,
 )
+
+
+def _maybe(v):
+    """A figure, or "-" when it was not computed (NaN)."""
+    return "-" if not np.isfinite(v) else f"{v:.2f}"
 
 
 def _polarity(p):
@@ -53,9 +61,17 @@ def _polarity(p):
                    "polarities and crossover ([system]); the input is never overwritten.")
 @click.option("--rank", type=click.IntRange(1, 20), default=1, show_default=True,
               help="Which configuration of the ranked table --write-settings writes.")
+@click.option("--measured", "measured", multiple=True, metavar="SPEAKER@SEAT=IR.wav",
+              help="A measured impulse response (WAV, its time origin the test signal's) of a speaker of the room "
+                   "file at a seat of the room file; repeatable. Replaces the prediction for that pair, and tunes "
+                   "the file's subs where they stand.")
+@mic_cal_option
+@wav_channel_option
+@window_option
 @json_option
 @units_option
-def subs(room_file, method, points_per_octave, plot_path, force, settings_path, rank, as_json):
+def subs(room_file, method, points_per_octave, plot_path, force, settings_path, rank, measured, mic_cal,
+         wav_channel, window_s, as_json):
     """Find where the subwoofers go, and their gain, delay, polarity and crossover, for every seat.
 
     Considers 1, 2 and 4 subs (the [subs] table of the room file sets the counts, the allowed
@@ -76,9 +92,17 @@ def subs(room_file, method, points_per_octave, plot_path, force, settings_path, 
     if settings_path:
         protect_inputs(settings_path, *room_inputs(room_file, room))
         check_output(settings_path, force, (".toml",), "--write-settings")
+    irs = _read_measured(room_file, room, measured, wav_channel, window_s) if measured else None
+    cal = read_mic_cal(mic_cal) if measured else None
+    if mic_cal and not measured:
+        fail("--mic-cal applies to --measured impulse responses; give them, or leave --mic-cal out")
     t0 = time.perf_counter()
     try:
-        res = optimise_subs(room, method=method, points_per_octave=points_per_octave)
+        if irs is not None:
+            res = tune_measured(room, irs, method=method, points_per_octave=points_per_octave, window_s=window_s,
+                                mic_cal=cal)
+        else:
+            res = optimise_subs(room, method=method, points_per_octave=points_per_octave)
     except ValueError as exc:
         fail(f"{room_file}: {exc}" if not str(exc).startswith(str(room_file)) else str(exc))
     elapsed = time.perf_counter() - t0
@@ -96,6 +120,35 @@ def subs(room_file, method, points_per_octave, plot_path, force, settings_path, 
         echo_err(f"wrote {plot_path}")
     if settings_path:
         _write_settings(room_file, room, res, rank, settings_path, force)
+
+
+def _read_measured(room_file, room, specs, wav_channel, window_s):
+    """``{(speaker, seat): (ir, fs_hz)}`` from the --measured options; one-line errors."""
+    if room.layout is None or not room.layout.subs:
+        fail(f"{room_file}: --measured tunes the file's subs where they stand, and the file has no sub; add a "
+             "[speakers.NAME] with role = \"sub\" (docs/room-file.md)")
+    if not 0.05 <= window_s <= 10.0:
+        fail(f"--window {window_s:g}: give 0.05 to 10 s for impulse responses (about 1 s resolves the room's modes)")
+    speakers = [s.name for s in room.layout.speakers]
+    seats = [s.name for s in room.layout.all_seats]
+    out = {}
+    for spec in specs:
+        pair, eq, path = spec.partition("=")
+        spk, at, seat = pair.rpartition("@")
+        if not eq or not at or not spk or not seat or not path:
+            fail(f"--measured {spec}: expected SPEAKER@SEAT=IR.wav, e.g. sub@{seats[0]}=sub-{seats[0]}.wav")
+        if spk not in speakers:
+            fail(f"--measured {spec}: no speaker '{spk}' in {room_file}; the speakers are {', '.join(speakers)}")
+        if seat not in seats:
+            fail(f"--measured {spec}: no seat '{seat}' in {room_file}; the seats are {', '.join(seats)}"
+                 + (" (one [seat] is named 'seat')" if seats == ["seat"] else ""))
+        if (spk, seat) in out:
+            fail(f"--measured {spec}: {spk}@{seat} is given twice; give each speaker and seat once")
+        x, fs, _ = read_wav_or_fail(path, wav_channel, "impulse response")
+        if not np.any(x):
+            fail(f"{path}: is silent (all samples zero); not an impulse response")
+        out[(spk, seat)] = (x, float(fs))
+    return out
 
 
 def _write_settings(room_file, room, res, rank, path, force):
@@ -130,9 +183,21 @@ def _print(room, res, elapsed):
                "high-pass on the mains.")
     if res.assumed_sub:
         click.echo("The file has no sub: a vented sub with its -3 dB point at 25 Hz is assumed.")
-    click.echo(f"Scored {res.n_candidates} candidate positions over {res.band_hz[0]:g}-{res.band_hz[1]:g} Hz with "
-               f"the {res.method} solver, crossover {s.crossover_hz[0]:g}-{s.crossover_hz[1]:g} Hz, delays up to "
-               f"{s.max_delay_ms:g} ms, boost up to {s.max_gain_db:g} dB ({elapsed:.1f} s).")
+    if res.measured:
+        meas = [f"{k}@{st}" for (k, st), v in res.sources.items() if v == "measured"]
+        pred = [f"{k}@{st}" for (k, st), v in res.sources.items() if v != "measured"]
+        click.echo(f"Measured (impulse responses): {', '.join(meas)}.")
+        click.echo(f"Predicted ({res.method} solver): {', '.join(pred) if pred else 'none'}.")
+        click.echo(f"The measurements were brought to the model's scale by one offset of {-res.level_offset_db:+.1f} dB "
+                   "(the median difference from the prediction); their time origin is taken as the test signal's.")
+        click.echo(MEASURED_NOTE)
+        click.echo(f"Tuned over {res.band_hz[0]:g}-{res.band_hz[1]:g} Hz, crossover {s.crossover_hz[0]:g}-"
+                   f"{s.crossover_hz[1]:g} Hz, delays up to {s.max_delay_ms:g} ms, boost up to {s.max_gain_db:g} dB "
+                   f"({elapsed:.1f} s).")
+    else:
+        click.echo(f"Scored {res.n_candidates} candidate positions over {res.band_hz[0]:g}-{res.band_hz[1]:g} Hz "
+                   f"with the {res.method} solver, crossover {s.crossover_hz[0]:g}-{s.crossover_hz[1]:g} Hz, delays "
+                   f"up to {s.max_delay_ms:g} ms, boost up to {s.max_gain_db:g} dB ({elapsed:.1f} s).")
     w = SCORE_WEIGHTS
     click.echo(f"Score (dB, lower is better) = {w['spread']:g} spread + {w['flatness']:g} flatness + "
                f"{w['phase']:g} phase. spread: seat-to-seat (sqrt of the weighted mean spatial variance); "
@@ -146,11 +211,14 @@ def _print(room, res, elapsed):
         xo = f"{c.crossover_hz:g} Hz" if c.crossover_hz else "none"
         label = c.label if c.kind != "before" else f"before: {c.label}"
         click.echo(f"  {rank:<5}{label:<22}{xo:>10}{c.score:8.2f}{c.seat_spread_db:8.2f}{c.parts['flatness']:10.2f}"
-                   f"{c.parts['phase']:7.2f}{c.perturbed_seat_spread_db:37.2f}")
+                   f"{c.parts['phase']:7.2f}{_maybe(c.perturbed_seat_spread_db):>37}")
     b = res.before
     if lay.subs:
-        click.echo(f"  ('before' is the file's layout as it is: subs at 0 dB, 0 ms, + polarity, low-pass at "
-                   f"{BEFORE_CROSSOVER_HZ:g} Hz; the mains full range)")
+        sy = room.system
+        xo = (f"the [system] crossover at {sy.crossover_hz:g} Hz" if sy is not None and sy.crossover_hz else
+              f"a low-pass at {BEFORE_CROSSOVER_HZ:g} Hz on the subs and the mains full range")
+        click.echo(f"  ('before' is the file's layout as it is: each sub's gain, delay and polarity from the file, "
+                   f"0 dB, 0 ms, + when not given; {xo})")
     else:
         click.echo("  ('before' is the mains alone, full range)")
     best = res.ranked[0]
@@ -159,9 +227,10 @@ def _print(room, res, elapsed):
         click.echo(f"Best: {best.label}. One seat: no seat-to-seat spread; flatness at the seat {b.parts['flatness']:.1f} "
                    f"dB before, {best.parts['flatness']:.1f} dB after. Add [seats.NAME] tables for the other places.")
     else:
+        alt = (f" ({best.perturbed_seat_spread_db:.1f} dB in a room 1 % larger with 1.3 times the absorption)"
+               if np.isfinite(best.perturbed_seat_spread_db) else "")
         click.echo(f"Best: {best.label}. Seat-to-seat spread {b.seat_spread_db:.1f} dB before, "
-                   f"{best.seat_spread_db:.1f} dB after ({best.perturbed_seat_spread_db:.1f} dB in a room 1 % larger "
-                   "with 1.3 times the absorption).")
+                   f"{best.seat_spread_db:.1f} dB after{alt}.")
     by_n = {len(c.subs): c for c in res.ranked if c.kind == "search"}
     if 4 in by_n and 2 in by_n and by_n[2].score - by_n[4].score < 0.25:
         click.echo(f"Four subs gain only {by_n[2].score - by_n[4].score:.2f} dB of score over two here; two will do.")
