@@ -37,7 +37,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from ..dsp.response import log_frequencies
-from ..model.room import Speaker, SubSearch, SystemSettings
+from ..model.room import Seat, Speaker, SubSearch, SystemSettings
 from ..solvers import DEFAULT_METHOD
 from .levels import speaker_levels
 
@@ -46,7 +46,7 @@ __all__ = [
     "lr4_lowpass", "lr4_highpass", "delay_response", "sub_chain", "mono_sum", "seat_weights",
     "spatial_variance", "mean_spatial_variance", "score_parts", "tune_settings", "candidate_positions",
     "perturbed_room", "SubSetting", "SubConfig", "SubsResult", "optimise_subs", "sub_names", "room_with_config",
-    "measured_transfer", "tune_measured", "MEASURED_NOTE",
+    "measured_transfer", "tune_measured", "MEASURED_NOTE", "SharedEq", "shared_eq",
 ]
 
 #: The crossover alignment: Linkwitz-Riley 4th order (two cascaded 2nd-order Butterworth
@@ -867,6 +867,161 @@ def tune_measured(room, measured, *, method=DEFAULT_METHOD, points_per_octave=24
     before = _as_it_is(pr, room, current, subs_h)
     return SubsResult(f, seats, band, (best,), before, method, 0, np.zeros((0, 3)), False, search,
                       sources=sources, level_offset_db=offset)
+
+
+#: Limits of the shared correction EQ: cuts first, a small boost at most (the boost drives every
+#: main and every sub harder at once).
+SHARED_EQ_MAX_BOOST_DB = 3.0
+SHARED_EQ_MAX_FILTERS = 4
+#: A seat (or head position) counts as made worse when its flatness rises by more than this, dB.
+SHARED_EQ_NO_HARM_DB = 0.1
+
+
+@dataclass(frozen=True, eq=False)
+class SharedEq:
+    """One correction EQ for the summed system (before the crossover: it acts on every speaker).
+
+    Attributes
+    ----------
+    label : str
+        The configuration it was designed for.
+    design : EqDesign or None
+        The parametric design (:func:`roommodes.analysis.correction.correct_curve`) on the
+        seats' weighted power-average level; None when no design helped every seat.
+    band_hz : tuple
+    positions : tuple of str
+        Names of the positions judged: each seat and the head positions 15 cm around it.
+    flatness_before_db, flatness_after_db : ndarray (K,)
+        RMS deviation from its own mean over the band at each position, model room, dB.
+    perturbed_before_db, perturbed_after_db : ndarray (K,)
+        The same in :func:`perturbed_room` (NaN when not checked).
+    reason : str
+        Why there is no EQ, when ``design`` is None.
+    """
+
+    label: str
+    design: object
+    band_hz: tuple
+    positions: tuple
+    flatness_before_db: np.ndarray
+    flatness_after_db: np.ndarray
+    perturbed_before_db: np.ndarray
+    perturbed_after_db: np.ndarray
+    reason: str = ""
+
+    @property
+    def filters(self):
+        return () if self.design is None else tuple(self.design.filters)
+
+    def to_dict(self):
+        d = {"configuration": self.label, "band_hz": list(self.band_hz), "reason": self.reason,
+             "filters": [f.to_dict() for f in self.filters],
+             "max_boost_db": 0.0 if self.design is None else float(max(0.0, self.design.max_boost_db)),
+             "positions": [{"name": n, "flatness_before_db": float(a), "flatness_after_db": float(b),
+                            "perturbed_before_db": float(c), "perturbed_after_db": float(e)}
+                           for n, a, b, c, e in zip(self.positions, self.flatness_before_db, self.flatness_after_db,
+                                                    self.perturbed_before_db, self.perturbed_after_db)]}
+        if self.design is not None:
+            d["correction_db"] = self.design.correction_db
+        return d
+
+
+def _flatness(freq_hz, level_db, band_hz):
+    f = np.asarray(freq_hz)
+    sel = (f >= band_hz[0]) & (f <= band_hz[1])
+    seg = np.asarray(level_db)[..., sel]
+    return np.sqrt(np.mean((seg - seg.mean(axis=-1, keepdims=True)) ** 2, axis=-1))
+
+
+def _positions_levels(room, freq_hz, method):
+    """The system's level (mono sum with the room's settings) at every seat and the head
+    positions around it: names and (K, F) levels; the seats first."""
+    from .correction import head_positions
+    from .predict import predict_seats
+
+    lay = room.layout
+    seats = lay.all_seats
+    pts = [(s.name, s.position_m) for s in seats]
+    for s in seats:
+        pts += [(f"{s.name} {t}", tuple(p)) for t, p in zip(("fwd", "back", "left", "right", "up", "down"),
+                                                            head_positions(s.position_m))]
+    pts = [(n, p) for n, p in pts if room.contains([p], 0.02)[0]]
+    spread = replace(lay, seats=tuple(Seat(n, p, 1.0) for n, p in pts))
+    sp = predict_seats(room, spread, freq_hz, method=method)
+    return tuple(n for n, _ in pts), sp.system_db
+
+
+def shared_eq(room, config, freq_hz, *, method=DEFAULT_METHOD, max_boost_db=SHARED_EQ_MAX_BOOST_DB,
+              max_filters=SHARED_EQ_MAX_FILTERS, level_db=None, check_perturbed=True):
+    """One correction EQ for the whole system, designed on the seats' weighted average and
+    judged at every seat.
+
+    The EQ sits before the crossover (a DSP's input or the preamplifier): it changes mains and
+    subs alike. It is designed with :func:`roommodes.analysis.correction.correct_curve` on the
+    weighted power average of the seats' levels, with every seat and the head positions 15 cm
+    around each seat as positions the design must not lift further above the target; then
+    each position's flatness (RMS deviation from its own mean over the band) is compared
+    before and after, in the model room and in :func:`perturbed_room`. When a position gets
+    worse by more than :data:`SHARED_EQ_NO_HARM_DB`, fewer filters are tried, down to none.
+
+    Parameters
+    ----------
+    room : Room
+    config : SubConfig
+        The subs and settings the EQ goes with.
+    freq_hz : array_like (F,)
+    method : str
+    max_boost_db, max_filters :
+        Limits of the parametric design.
+    level_db : array_like (P, F), optional
+        The seats' levels to design on (e.g. from measurements); default the model's. The
+        head positions and the perturbed room are then not judged.
+    check_perturbed : bool
+
+    Returns
+    -------
+    SharedEq
+    """
+    from .correction import correct_curve
+    from .predict import room_schroeder_frequency
+
+    f = np.asarray(freq_hz, dtype=float)
+    r = room_with_config(room, config)
+    seats = r.layout.all_seats
+    w = seat_weights([s.weight for s in seats])
+    if level_db is None:
+        names, L = _positions_levels(r, f, method)
+    else:
+        names, L = tuple(s.name for s in seats), np.asarray(level_db, dtype=float)
+    L_seats = L[:len(seats)]
+    avg = 10.0 * np.log10(np.maximum(w @ 10.0 ** (L_seats / 10.0), 1e-30))
+    subs = r.layout.subs
+    low = max([float(f[0])] + [s.lowcut_hz for s in subs if s.lowcut_hz])
+    fs = room_schroeder_frequency(room)
+    band = (low, float(min(f[-1], fs)))
+    order = max([s.lowcut_order for s in subs if s.lowcut_hz] or [2])
+    alt = None
+    if check_perturbed and level_db is None:
+        _, alt = _positions_levels(perturbed_room(r), f, method)
+    before = _flatness(f, L, band)
+    alt_before = _flatness(f, alt, band) if alt is not None else np.full(len(names), np.nan)
+    reason = "no filter set brought every seat closer to flat"
+    for n in range(max_filters, 0, -1):
+        corr = correct_curve("system", f, avg, band_hz=band, position_levels_db=L, lowcut_hz=low,
+                             lowcut_order=order, max_filters=n, max_boost_db=max_boost_db, schroeder_hz=fs)
+        design = corr.parametric
+        if not design.filters:
+            reason = "the seats' average is already as flat as the filters can make it without harm at a seat"
+            break
+        c = np.asarray(design.correction_db)
+        after = _flatness(f, L + c, band)
+        alt_after = _flatness(f, alt + c, band) if alt is not None else np.full(len(names), np.nan)
+        worse = after > before + SHARED_EQ_NO_HARM_DB
+        if alt is not None:
+            worse |= alt_after > alt_before + SHARED_EQ_NO_HARM_DB
+        if not worse.any():
+            return SharedEq(config.label, design, band, names, before, after, alt_before, alt_after)
+    return SharedEq(config.label, None, band, names, before, before, alt_before, alt_before, reason)
 
 
 def sub_names(n, current, mains=()):

@@ -17,6 +17,7 @@ from ..analysis.subs import (
     SCORE_WEIGHTS,
     optimise_subs,
     room_with_config,
+    shared_eq,
     tune_measured,
 )
 from ..io.roomfile import room_to_toml, write_text_atomic
@@ -65,12 +66,15 @@ def _polarity(p):
               help="A measured impulse response (WAV, its time origin the test signal's) of a speaker of the room "
                    "file at a seat of the room file; repeatable. Replaces the prediction for that pair, and tunes "
                    "the file's subs where they stand.")
+@click.option("--eq", "with_eq", is_flag=True,
+              help="Also design one shared correction EQ for the summed system (mains and subs alike) for "
+                   "configuration --rank, on the seats' weighted average; kept only if no seat gets worse.")
 @mic_cal_option
 @wav_channel_option
 @window_option
 @json_option
 @units_option
-def subs(room_file, method, points_per_octave, plot_path, force, settings_path, rank, measured, mic_cal,
+def subs(room_file, method, points_per_octave, plot_path, force, settings_path, rank, measured, with_eq, mic_cal,
          wav_channel, window_s, as_json):
     """Find where the subwoofers go, and their gain, delay, polarity and crossover, for every seat.
 
@@ -105,16 +109,28 @@ def subs(room_file, method, points_per_octave, plot_path, force, settings_path, 
             res = optimise_subs(room, method=method, points_per_octave=points_per_octave)
     except ValueError as exc:
         fail(f"{room_file}: {exc}" if not str(exc).startswith(str(room_file)) else str(exc))
+    if rank > len(res.ranked):
+        fail(f"--rank {rank}: the table has {len(res.ranked)} configuration{'s' if len(res.ranked) != 1 else ''}; "
+             f"choose 1..{len(res.ranked)}")
+    shared = None
+    if with_eq:
+        c = res.ranked[rank - 1]
+        shared = shared_eq(room, c, res.freq_hz, method=method,
+                           level_db=c.level_db if res.measured else None)
     elapsed = time.perf_counter() - t0
     mains_m = np.array([m.position_m for m in room.layout.mains])
     if as_json:
         d = res.to_dict()
+        if shared is not None:
+            d["shared_eq"] = shared.to_dict()
         d["elapsed_s"] = elapsed
         dump_json(d)
         for c in CAUTIONS:
             echo_err(f"caution: {c}")
     else:
         _print(room, res, elapsed)
+        if shared is not None:
+            _print_eq(shared, rank)
     if plot_path:
         plot_subs(res, room, mains_m, title=f"Subwoofers: {room.name}", path=plot_path)
         echo_err(f"wrote {plot_path}")
@@ -151,10 +167,33 @@ def _read_measured(room_file, room, specs, wav_channel, window_s):
     return out
 
 
+def _print_eq(e, rank):
+    """The shared correction EQ and what it does at every seat and head position."""
+    click.echo("")
+    click.echo(f"Shared correction EQ for #{rank} {e.label}, {e.band_hz[0]:g}-{e.band_hz[1]:g} Hz: one EQ before the "
+               "crossover (the DSP's input or the preamplifier), so it acts on mains and subs alike.")
+    if e.design is None:
+        click.echo(f"  None: {e.reason}.")
+        return
+    click.echo(f"  {'#':>2} {'freq Hz':>8} {'gain dB':>8} {'Q':>6}  (peaking filters, Q as in the Audio EQ Cookbook)")
+    for i, flt in enumerate(e.filters, 1):
+        click.echo(f"  {i:>2} {flt.freq_hz:8.1f} {flt.gain_db:+8.1f} {flt.q:6.2f}")
+    boost = max(0.0, float(e.design.max_boost_db))
+    click.echo(f"  Largest boost of the combined curve {boost:.1f} dB" + (
+        f" at {e.design.max_boost_freq_hz:.0f} Hz: turn the input down by as much first; every main and sub "
+        "works that much harder there." if boost > 0.05 else " (cuts only)."))
+    perturbed = np.isfinite(e.perturbed_before_db).any()
+    click.echo(f"  {'position':<16}{'flatness before':>16}{'after':>8}"
+               + (f"{'room +1 %, absorption x1.3: before':>36}{'after':>8}" if perturbed else ""))
+    for n, a, b, x, y in zip(e.positions, e.flatness_before_db, e.flatness_after_db, e.perturbed_before_db,
+                             e.perturbed_after_db):
+        click.echo(f"  {n:<16}{a:16.1f}{b:8.1f}" + (f"{x:36.1f}{y:8.1f}" if perturbed else ""))
+    click.echo("  (flatness: RMS difference from the position's own mean over the band, dB; each seat and the head "
+               "positions 15 cm around it; the EQ is kept only if none gets worse by more than 0.1 dB.)")
+
+
 def _write_settings(room_file, room, res, rank, path, force):
     """A copy of the room file with configuration ``rank`` (1 = best) written into it."""
-    if rank > len(res.ranked):
-        fail(f"--rank {rank}: the table has {len(res.ranked)} configurations; choose 1..{len(res.ranked)}")
     c = res.ranked[rank - 1]
     new_room = room_with_config(room, c)
     text = room_to_toml(new_room, comment=(
@@ -250,8 +289,8 @@ def _print(room, res, elapsed):
     click.echo("Reading the settings: gain is relative to a sub as loud at 1 m as one main; set the overall sub level "
                "by measurement at the main seat and keep the differences between subs. Delays are the values to "
                "type into each sub's (or the DSP's) delay; 'spread' per seat is its RMS difference from the seats' "
-               "weighted mean over the band, 'flatness' its RMS difference from its own mean. A shared correction "
-               "EQ (roommodes eq) can then flatten the main seat.")
+               "weighted mean over the band, 'flatness' its RMS difference from its own mean. --eq designs one "
+               "shared correction EQ that helps every seat.")
     for sp in lay.subs:
         if sp.max_spl_db is not None:
             need = max(st.headroom_db for c in res.ranked for st in c.subs) if res.ranked else 0.0
