@@ -875,8 +875,11 @@ def _section_subs(run):
     values["subs"] = {"best": best.to_dict(), "before": before.to_dict(), "band_hz": list(res.band_hz),
                       "seats": [s.name for s in res.seats]}
     band = f"{res.band_hz[0]:g}-{res.band_hz[1]:g} Hz"
-    before_text = (f"the file's layout as it is (subs at 0 dB, 0 ms, + polarity, low-pass at "
-                   f"{BEFORE_CROSSOVER_HZ:g} Hz, mains full range)" if layout.subs else "the mains alone, full range")
+    system = room.system
+    xo_text = (f"the file's crossover at {system.crossover_hz:g} Hz" if system is not None and system.crossover_hz
+               else f"low-pass at {BEFORE_CROSSOVER_HZ:g} Hz, mains full range")
+    before_text = ("the file's layout as it is (each sub's gain, delay and polarity from the file, 0 dB, 0 ms, + "
+                   f"when not given; {xo_text})" if layout.subs else "the mains alone, full range")
     doc.p(f"Best: {best.label}, crossover {best.crossover_hz:g} Hz. Seat-to-seat spread over {band} (square root "
           f"of the weighted mean spatial variance; Welti & Devantier, J. Audio Eng. Soc. 54(5), 2006): "
           f"{before.seat_spread_db:.1f} dB before ({before_text}), {best.seat_spread_db:.1f} dB after. Flatness "
