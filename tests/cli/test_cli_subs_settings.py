@@ -68,3 +68,15 @@ def test_write_settings_refuses_the_input_an_existing_file_and_a_bad_rank(writte
                        ((tmp_path / "x.txt",), "must be a .toml file")):
         res = run("subs", room_path, "--write-settings", *args)
         assert res.exit_code == 2 and text in res.output and "Traceback" not in res.output
+
+
+def test_a_rank_past_the_table_and_mic_cal_without_measurements_give_one_line(written, tmp_path):
+    room_path, d, _ = written
+    n = len(d["ranked"])
+    res = run("subs", room_path, "--rank", n + 1, "--write-settings", tmp_path / "x.toml")
+    assert res.exit_code == 2 and f"--rank {n + 1}: the table has {n} configurations" in res.output
+    assert not (tmp_path / "x.toml").exists()
+    cal = tmp_path / "cal.txt"
+    cal.write_text("20 0\n200 0\n")
+    res = run("subs", room_path, "--mic-cal", cal)
+    assert res.exit_code == 2 and "--mic-cal applies to --measured" in res.output
