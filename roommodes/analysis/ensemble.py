@@ -141,7 +141,7 @@ def feature_bandwidth_hz(freq_hz, smoothed_db, index, prominence_db, kind):
 
     The span around ``index`` over which the smoothed curve stays within half of
     ``prominence_db`` of its value there (above that level for a peak, below it for a dip),
-    between grid points; at least half the grid's local step.
+    with the crossings interpolated between grid points; at least half the grid's local step.
     """
     sign = 1.0 if kind == "peak" else -1.0
     return _half_width(np.asarray(freq_hz, dtype=float), np.asarray(smoothed_db, dtype=float), int(index),
@@ -156,7 +156,15 @@ def _half_width(f, y, i, prominence_db, sign):
     hi = i
     while hi < y.size - 1 and sign * (y[hi + 1] - level) > 0:
         hi += 1
-    width = f[hi] - f[lo]
+
+    def crossing(inside, outside):
+        # where the curve crosses the half level between two grid points (linear in log f)
+        if outside < 0 or outside >= y.size or y[inside] == y[outside]:
+            return f[inside]
+        t = (y[inside] - level) / (y[inside] - y[outside])
+        return float(np.exp(np.log(f[inside]) + t * (np.log(f[outside]) - np.log(f[inside]))))
+
+    width = crossing(hi, hi + 1) - crossing(lo, lo - 1)
     step = f[min(i + 1, f.size - 1)] - f[max(i - 1, 0)]
     return float(max(width, 0.5 * step))
 
