@@ -31,9 +31,9 @@ __all__ = ["DEFAULT_PLACE_SAMPLES", "EnsembleRanking", "ensemble_scores", "rank_
            "feature_spread", "feature_bandwidth_hz", "FEATURE_SMOOTHING", "MIN_FOUND_FRACTION"]
 
 #: Drawn rooms ``place --uncertainty`` uses where none is chosen: each layout costs about
-#: 0.15 s per drawn room with the exact solver (nine solver calls with the robustness part),
-#: so 30 rooms for six layouts take about half a minute of one core (``--method modal`` is several
-#: times faster).
+#: 0.2 s of one core per drawn room with the exact solver (nine solver calls with the robustness
+#: part; measured on the demo room), so 30 rooms for six layouts take about 40 s (``--method modal``
+#: is about ten times faster).
 DEFAULT_PLACE_SAMPLES = 30
 #: 1/b-octave smoothing the features are found on (that of :func:`response_features`).
 FEATURE_SMOOTHING = 12

@@ -111,7 +111,8 @@ def _row(label, s, parts):
 @method_option
 @uncertainty_options(samples=DEFAULT_PLACE_SAMPLES, samples_note=(
     "The default is small because each drawn room re-scores every finalist with the chosen solver (about "
-    "0.15 s per layout and room with the exact one; docs/uncertainty.md)."))
+    "0.2 s of one core per layout and room with the exact one, about ten times less with --method modal; "
+    "docs/uncertainty.md)."))
 @json_option
 @units_option
 def place(room_file, top, weights, band, points_per_octave, plot_path, layout_path, force, method, uncertainty,
