@@ -181,6 +181,15 @@ def uncertainty_options(func=None, *, samples=DEFAULT_SAMPLES, samples_note=""):
                              "temperature) and give the 10-90 % band of the result.")(func)
 
 
+def uncertainty_text(room):
+    """The room's standard deviations in words, surfaces with a range of their own named."""
+    u = room.uncertainty
+    own = [f"{s.name} {u.surface_rel(s):.0%}" for s in room.surfaces if u.surface_rel(s) != u.absorption_rel]
+    return (f"sd {u.position_m * 100:g} cm on positions, {u.size_m * 100:g} cm on dimensions, "
+            f"{u.absorption_rel:.0%} on absorption" + (f" ({', '.join(own)}: their own ranges)" if own else "")
+            + f", {u.temperature_c:g} C on temperature")
+
+
 def layouts_for(room, layout):
 
     names = (["file"] if room.layout is not None else []) + list(PRESETS) if layout == "all" else [layout]

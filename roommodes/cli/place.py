@@ -35,6 +35,7 @@ from ._util import (
     subs_json,
     subs_note,
     uncertainty_options,
+    uncertainty_text,
     units_option,
     walls_text,
 )
@@ -317,12 +318,10 @@ def _ensemble(room, space, res, points_per_octave, samples, seed):
 
 
 def _print_ensemble(room, res, ranking, current_spread, samples, seed, elapsed):
-    u = room.uncertainty
     click.echo("")
-    click.echo(f"Over {samples} rooms drawn from the room file's [uncertainty] (seed {seed}; sd "
-               f"{u.position_m * 100:g} cm on positions, {u.size_m * 100:g} cm on dimensions, "
-               f"{u.absorption_rel:.0%} on absorption, {u.temperature_c:g} C on temperature; {elapsed:.1f} s), every "
-               "layout scored in the same rooms with the same placement errors; ranked by the median score:")
+    click.echo(f"Over {samples} rooms drawn from the room file's [uncertainty] (seed {seed}; {uncertainty_text(room)}; "
+               f"{elapsed:.1f} s), every layout scored in the same rooms with the same placement errors; ranked by the "
+               "median score:")
     click.echo(f"  {'layout':<10} {'nominal':>7}  {'median':>7}  {'10-90 % of drawn rooms':>22}")
     rows = [(f"#{s.name}", s.score, ranking.median[k], ranking.p10[k], ranking.p90[k])
             for k, s in enumerate(ranking.layouts)]
