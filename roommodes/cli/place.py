@@ -284,7 +284,9 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
         new_room = room.with_layout(replace(best.layout, name="file"))
         text = room_to_toml(new_room, comment=(
             f"Written by roommodes {__version__} place from {room_file}: the best layout of the search "
-            f"(score {best.score:.2f} dB over {res.band_hz[0]:g}-{res.band_hz[1]:g} Hz)."),
+            f"(score {best.score:.2f} dB over {res.band_hz[0]:g}-{res.band_hz[1]:g} Hz"
+            + ("" if ranking is None else f"; median {ranking.median[0]:.2f} dB over {samples} drawn rooms, seed "
+               f"{seed}") + ")."),
             original_text=Path(room_file).read_text(encoding="utf-8"), written_to=layout_path)
         try:
             write_text_atomic(layout_path, text, overwrite=force)

@@ -60,6 +60,10 @@ def test_place_uncertainty_ranks_by_median_with_spread(tmp_path):
     for r in data["ranked"] + [data["current"]]:
         assert r["score_p10"] <= r["score_median"] <= r["score_p90"]
     assert "score_median" not in data["presets"][0]
-    text = run(*args)
+    out = tmp_path / "best.toml"
+    text = run(*args, "--write-layout", out)
     assert text.exit_code == 0
     assert "ranked by the median score" in text.stdout and f"#{data['ranked'][0]['name']}" in text.stdout
+    written = load_room(out)  # the median's best layout is the one written
+    np.testing.assert_allclose(written.layout.seat_m, data["ranked"][0]["seat_m"])
+    assert "median" in out.read_text().splitlines()[0]
