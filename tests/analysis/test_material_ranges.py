@@ -112,3 +112,45 @@ def test_bad_library_ranges_are_refused(rel, basis, message):
              "absorption_rel": rel, "absorption_rel_basis": basis}
     with pytest.raises(ValueError, match=message):
         M._check_entry(entry, "materials.toml, material #1 (x)")
+
+
+def test_band_with_material_ranges_covers_true_rooms():
+    """Coverage (Gneiting, Balabdaoui & Raftery 2007, J. R. Stat. Soc. B 69(2):243, sec. 2: a
+    calibrated 10-90 % band holds a drawn truth 80 % of the time; the issue's 65-92 %), for rooms
+    whose surfaces carry the library's ranges; the truths are drawn here independently, each
+    surface with the range the library gives its material."""
+    from roommodes.analysis.levels import speaker_levels
+    from roommodes.analysis.uncertainty import predict_bands
+    from roommodes.dsp.response import log_frequencies
+    from roommodes.model.room import Layout, Room, Speaker, Surface
+
+    f = log_frequencies(20.0, 200.0, 12)
+    names = ["plasterboard-on-studs", "carpet-on-concrete", "hard-surface", "glass-window", "mineral-wool-50mm",
+             "wood-floor-on-joists"]
+    rng = np.random.default_rng(21)
+    inside = []
+    for _ in range(2):
+        size = (rng.uniform(3.5, 6.5), rng.uniform(2.8, 4.5), rng.uniform(2.3, 2.9))
+        mats = [M.get_material(names[i]) for i in rng.permutation(len(names))]
+        surfaces = tuple(Surface(w, m.absorption, m.bands_hz, m.name) for w, m in zip(WALLS, mats))
+        lay = Layout((Speaker("left", (0.6, 0.3 * size[1], 1.2)), Speaker("right", (0.7, 0.7 * size[1], 1.1))),
+                     (0.55 * size[0], 0.45 * size[1], 1.15))
+        room = Room("r", size, surfaces, 20.0, lay, uncertainty=Uncertainty(material_ranges=True))
+        bands = predict_bands(room, freq_hz=f, seed=int(rng.integers(1 << 30)))
+        u = room.uncertainty
+        for _ in range(12):
+            rels = [m.absorption_rel if m.absorption_rel is not None else u.absorption_rel for m in mats]
+            s2 = np.log1p(np.square(rels))
+            k = np.exp(np.sqrt(s2) * rng.standard_normal(6) - s2 / 2)
+            truth = Room("t", tuple(np.array(size) + u.size_m * rng.standard_normal(3)),
+                         tuple(Surface(s.name, tuple(min(a * kk, 0.99) for a in s.absorption), s.bands_hz)
+                               for s, kk in zip(surfaces, k)),
+                         20.0 + u.temperature_c * rng.standard_normal(),
+                         Layout(tuple(sp.moved(np.array(sp.position_m) + u.position_m * rng.standard_normal(3))
+                                      for sp in lay.speakers), tuple(np.array(lay.seat_m)
+                                                                     + u.position_m * rng.standard_normal(3))))
+            lv = speaker_levels(truth, truth.layout.speakers, [truth.layout.seat_m], f).level_db[:, 0, :]
+            inside.append((lv >= bands.level_db_p10) & (lv <= bands.level_db_p90))
+    cover = float(np.mean(inside))
+    print(f"\ncoverage with material ranges: {cover:.1%}")
+    assert 0.65 <= cover <= 0.92
