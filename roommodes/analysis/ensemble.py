@@ -59,8 +59,8 @@ def ensemble_scores(room, layouts, *, n_samples=DEFAULT_PLACE_SAMPLES, seed=DEFA
     layouts : sequence of Layout
         Each with at least two speakers (the first two and the main seat are scored).
     n_samples, seed : int
-        Drawn rooms and their seed; sample ``i`` is the room
-        :func:`~roommodes.analysis.uncertainty.sample_rooms` draws as its ``i``-th.
+        Drawn rooms and their seed; drawn room ``i`` has the size, absorption and temperature
+        of the ``i``-th room :func:`~roommodes.analysis.uncertainty.sample_rooms` draws.
     uncertainty : Uncertainty, optional
     weights, band_hz, area_m, area_points, points_per_octave, method, robustness
         As in :func:`~roommodes.analysis.search.score_layouts`; ``band_hz`` defaults from the
