@@ -33,7 +33,8 @@ from ..solvers import DEFAULT_METHOD
 from .levels import speaker_levels
 
 __all__ = [
-    "ABSORPTION_GROUPS", "FitParameter", "FitResult", "FitTarget", "fit_error", "fit_room", "follow_walls"]
+    "ABSORPTION_GROUPS", "FitParameter", "FitResult", "FitTarget", "fit_error", "fit_room", "follow_walls",
+    "narrow_uncertainty"]
 
 #: Absorption groupings: name -> tuple of surface groups.
 ABSORPTION_GROUPS = {
@@ -100,6 +101,10 @@ class FitParameter:
         The fit stopped at a bound: the data pull further than allowed.
     kind : str
         ``"absorption"``, ``"size"``, ``"speaker"``, ``"mic"`` or ``"lowcut"``.
+    data_std_error : float
+        The standard error from the measurements alone (without the pull toward the file's
+        values), combined with the shift that pull causes, same unit; inf where they say
+        nothing about the parameter (see :func:`narrow_uncertainty`).
     """
 
     name: str
@@ -111,6 +116,7 @@ class FitParameter:
     std_error: float
     at_bound: bool
     kind: str
+    data_std_error: float = math.inf
 
     @property
     def change(self):
@@ -146,6 +152,10 @@ class FitResult:
     reference_hz : float
         Frequency at which absorption values are reported.
     labels : tuple of str
+    uncertainty : dict
+        How the fit narrowed the room's uncertainty (:func:`narrow_uncertainty`): ``given``
+        and ``narrowed`` (``[uncertainty]`` values) and ``surfaces`` (each fitted surface's
+        relative sd of absorption, given and narrowed); ``room`` carries the narrowed values.
     """
 
     room: object
@@ -164,6 +174,7 @@ class FitResult:
     message: str
     reference_hz: float
     labels: tuple = field(default=())
+    uncertainty: dict = field(default_factory=dict)
 
     def to_dict(self):
         """JSON-ready values: the keys of ``fit --json`` (without the command's own)."""
@@ -172,10 +183,12 @@ class FitResult:
             "message": self.message, "absorption_reference_hz": self.reference_hz,
             "parameters": [{"name": p.name, "kind": p.kind, "unit": p.unit, "initial": p.initial, "value": p.value,
                             "change": p.change, "std_error": p.std_error, "lower": p.lower, "upper": p.upper,
-                            "at_bound": p.at_bound} for p in self.parameters],
+                            "at_bound": p.at_bound,
+                            "data_std_error": p.data_std_error if math.isfinite(p.data_std_error) else None}
+                           for p in self.parameters],
             "error_before": self.error_before, "error_after": self.error_after,
             "frequencies_hz": self.freq_hz, "measured_db": self.measured_db, "before_db": self.before_db,
-            "after_db": self.after_db,
+            "after_db": self.after_db, "uncertainty": self.uncertainty,
         }
 
 
@@ -518,8 +531,23 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
         except np.linalg.LinAlgError:
             cov = np.full((n_par, n_par), np.nan)
         se_u = np.sqrt(np.maximum(np.diag(cov), 0.0))
+        # the same from the measurements alone (no prior rows): what the data support, for the
+        # uncertainty the calibrated file may claim (narrow_uncertainty); inf where they say nothing
+        jd = jac[:-n_par]
+        with np.errstate(all="ignore"):
+            try:
+                inv_d = np.linalg.inv(jd.T @ jd)
+                # where the data alone would put the parameters (one Gauss-Newton step without the
+                # prior's pull, lam^2 u): that shift counts as uncertainty too
+                shift_u = inv_d @ (lam**2 * np.asarray(u))
+                var_d = np.diag(inv_d) * sigma2
+                se_data_u = np.sqrt(np.where(var_d > 0, var_d + shift_u**2, np.inf))
+            except np.linalg.LinAlgError:
+                se_data_u = np.full(n_par, np.inf)
+        se_data_u = np.where(np.isfinite(se_data_u) & (se_data_u < 1e6), se_data_u, np.inf)
     else:
         se_u = np.zeros(0)
+        se_data_u = np.zeros(0)
 
     new_room, _spk_fit, sps_fit, mic_fit = build(u)
     # keep speakers that were not fitted as they were, in the file's order
@@ -539,13 +567,14 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
                        / np.sum(areas[idx]))
             out.append(FitParameter(p.name, p.unit, a0, a1, a0 * math.exp(-bu * p.scale),
                                     min(a0 * math.exp(bu * p.scale), _MAX_ALPHA), a1 * p.scale * se_u[j],
-                                    at_bound, p.kind))
+                                    at_bound, p.kind, a1 * p.scale * se_data_u[j]))
         elif p.kind == "lowcut":
             n = spk_names[p.key[0]]
             v0 = float(speakers[n].lowcut_hz)
             v1 = v0 * math.exp(uj * p.scale)
             out.append(FitParameter(p.name, p.unit, v0, v1, v0 * math.exp(-bu * p.scale),
-                                    v0 * math.exp(bu * p.scale), v1 * p.scale * se_u[j], at_bound, p.kind))
+                                    v0 * math.exp(bu * p.scale), v1 * p.scale * se_u[j], at_bound, p.kind,
+                                    v1 * p.scale * se_data_u[j]))
         else:
             if p.kind == "size":
                 v0 = float(size0[p.key[0]])
@@ -554,12 +583,90 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
             else:
                 v0 = float(mic0[p.key])
             out.append(FitParameter(p.name, p.unit, v0, v0 + uj * p.scale, v0 - bu * p.scale, v0 + bu * p.scale,
-                                    p.scale * se_u[j], at_bound, p.kind))
+                                    p.scale * se_u[j], at_bound, p.kind, p.scale * se_data_u[j]))
 
+    new_room, narrowing = narrow_uncertainty(room, new_room, out, success, f_ref)
     return FitResult(
         room=new_room, parameters=tuple(out), freq_hz=centres if fraction else f, measured_db=meas,
         before_db=pred_before + off_before[:, None], after_db=pred_after + off_after[:, None],
         level_offsets_db=off_after, error_before=fit_error(d_before), error_after=fit_error(d_after),
         mic_positions_m=mic_fit, iterations=state["iter"], evaluations=state["calls"], success=success,
         message="; ".join(m for m in (band_note, message) if m), reference_hz=f_ref,
-        labels=tuple(t.label for t in targets))
+        labels=tuple(t.label for t in targets), uncertainty=narrowing)
+
+
+def _lognormal_rel(sigma_ln):
+    """Relative sd of a log-normal factor whose log-space sd is ``sigma_ln``: ``sqrt(exp(s^2) - 1)``."""
+    return math.sqrt(math.expm1(sigma_ln**2))
+
+
+def narrow_uncertainty(room, fitted_room, parameters, success=True, reference_hz=63.245553203367585):
+    """The fitted room with the uncertainty the fit can justify, and a summary of the change.
+
+    Parameters
+    ----------
+    room : Room
+        The room file's model (its ``uncertainty`` is what the fit was given).
+    fitted_room : Room
+        :func:`fit_room`'s calibrated room.
+    parameters : sequence of FitParameter
+    success : bool
+        Whether the fit converged; a fit that did not narrows nothing.
+    reference_hz : float
+        Frequency of the absorption values in ``parameters`` (:attr:`FitResult.reference_hz`;
+        default that of a 20-200 Hz fit, sqrt(20 x 200) Hz).
+
+    Returns
+    -------
+    (Room, dict)
+        ``fitted_room`` with a narrowed ``uncertainty`` and per-surface ranges, and
+        ``{"given", "narrowed", "surfaces"}`` (see :class:`FitResult`).
+
+    Notes
+    -----
+    Nothing is made narrower than the standard error the measurements alone support
+    (:attr:`FitParameter.data_std_error`: the Gauss-Newton error of :func:`fit_room`, Notes,
+    without the prior rows, in quadrature with the distance the prior's pull holds the
+    parameter from where the data alone would put it (one Gauss-Newton step), so that the pull
+    toward the file's values cannot make the file look better known than the data show) nor
+    wider than given, and a parameter that stopped at a bound or has no finite error narrows
+    nothing:
+
+    * ``size_m``: the largest of the three fitted dimensions' errors, when all three were fitted;
+    * each fitted surface's absorption: the fitted group factor's log-space error ``s``
+      (relative sd ``sqrt(exp(s^2) - 1)``), divided by ``sqrt(sum w_i^2)`` with ``w_i`` the
+      surfaces' shares of the group's absorption area, so that the group's total absorption,
+      drawn as independent factors per surface, spreads as much as the fit allows (the fit
+      tells the group's total, not how it splits between the surfaces). Written as each
+      surface's own ``absorption_rel``;
+    * ``position_m`` and ``temperature_c``: unchanged (the seat is not fitted, and one figure
+      holds for every position).
+    """
+    u = room.uncertainty
+    size_m = u.size_m
+    rels = {}
+    if success:
+        sizes = [p for p in parameters if p.kind == "size"]
+        if len(sizes) == 3 and not any(p.at_bound for p in sizes) and \
+                all(math.isfinite(p.data_std_error) for p in sizes):
+            size_m = min(u.size_m, max(p.data_std_error for p in sizes))
+        areas = room.surface_areas_m2
+        for p in parameters:
+            if p.kind != "absorption":
+                continue
+            idx = [WALLS.index(w) for w in p.name.removeprefix("absorption ").split("+")]
+            given = {WALLS[i]: u.surface_rel(room.surfaces[i]) for i in idx}
+            if p.at_bound or not (math.isfinite(p.data_std_error) and p.value > 0):
+                rels.update({w: (g, g) for w, g in given.items()})
+                continue
+            rel_group = _lognormal_rel(p.data_std_error / p.value)
+            a = np.array([room.surfaces[i].absorption_at(reference_hz)[()] for i in idx]) * areas[idx]
+            w = a / a.sum() if a.sum() > 0 else np.full(len(idx), 1.0 / len(idx))
+            rel_each = rel_group / math.sqrt(float(np.sum(w**2)))
+            rels.update({wall: (g, min(g, rel_each)) for wall, g in given.items()})
+    surfaces = tuple(replace(s, absorption_rel=float(rels[s.name][1])) if s.name in rels else s
+                     for s in fitted_room.surfaces)
+    narrowed = replace(u, size_m=float(size_m))
+    summary = {"given": u.to_dict(), "narrowed": narrowed.to_dict(),
+               "surfaces": {w: {"absorption_rel_given": g, "absorption_rel": n} for w, (g, n) in rels.items()}}
+    return replace(fitted_room, surfaces=surfaces, uncertainty=narrowed), summary

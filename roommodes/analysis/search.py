@@ -1254,7 +1254,7 @@ def why_it_wins(best, other, weights, other_label="the file's layout"):
 
 
 def score_layouts(room, layouts, weights=None, band_hz=None, area_m=(0.6, 0.6), area_points=(3, 3),
-                  points_per_octave=DEFAULT_POINTS_PER_OCTAVE, robustness=True, method="modal"):
+                  points_per_octave=DEFAULT_POINTS_PER_OCTAVE, robustness=True, method="modal", check_inside=True):
     """Score given layouts with the search's figure of merit (batched).
 
     Parameters
@@ -1272,6 +1272,8 @@ def score_layouts(room, layouts, weights=None, band_hz=None, area_m=(0.6, 0.6), 
     method : str
         The solver (default the batched modal sum, as the search's scan; the search's
         finalists are scored with :data:`roommodes.solvers.DEFAULT_METHOD`).
+    check_inside : bool
+        Refuse listening-area points outside the room (else they are moved inside it).
 
     Returns
     -------
@@ -1285,7 +1287,8 @@ def score_layouts(room, layouts, weights=None, band_hz=None, area_m=(0.6, 0.6), 
     if method != "modal":
         scorer = _ChainScorer(scorer, method)
     vecs = np.array([_vec(lay) for lay in layouts])
-    _check_inside(room, scorer, vecs)
+    if check_inside:
+        _check_inside(room, scorer, vecs)
     parts, scores = scorer.score_vecs(vecs, robustness=robustness)
     return [_scored(lay.name, lay, scores[i], parts, i) for i, lay in enumerate(layouts)]
 

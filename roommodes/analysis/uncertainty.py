@@ -15,7 +15,8 @@ Distributions (all independent):
 * each room dimension: normal, sd ``size_m``;
 * each surface's absorption: all its band values times one log-normal factor of mean 1 and
   relative sd ``absorption_rel`` (``sigma_ln^2 = ln(1 + rel^2)``), kept below
-  :data:`MAX_ABSORPTION`;
+  :data:`MAX_ABSORPTION`; a surface with a range of its own (its library material's or the
+  room file's, :attr:`~roommodes.model.room.Surface.absorption_rel`) uses that instead;
 * the air temperature: normal, sd ``temperature_c``.
 
 Sample ``i`` comes from its own generator, spawned from ``seed`` (NumPy ``SeedSequence``), so
@@ -91,8 +92,8 @@ def draw_room(room, rng, uncertainty=None, points_m=None):
     """
     u = room.uncertainty if uncertainty is None else uncertainty
     size = np.asarray(room.size_m, dtype=float) + rng.normal(0.0, u.size_m, 3)
-    sig = lognormal_sigma(u.absorption_rel)
-    factors = np.exp(rng.normal(-0.5 * sig**2, sig, len(room.surfaces)))
+    sig = np.array([lognormal_sigma(u.surface_rel(s)) for s in room.surfaces])
+    factors = np.exp(rng.normal(-0.5 * sig**2, sig))
     surfaces = tuple(replace(s, absorption=tuple(float(min(a * k, MAX_ABSORPTION)) for a in s.absorption))
                      for s, k in zip(room.surfaces, factors))
     temperature = float(room.temperature_c + rng.normal(0.0, u.temperature_c))

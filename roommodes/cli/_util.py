@@ -164,15 +164,30 @@ method_option = click.option(
 json_option = click.option("--json", "as_json", is_flag=True, help="Print one JSON object on stdout.")
 
 
-def uncertainty_options(func):
-    """``--uncertainty``, ``--samples`` and ``--seed``: the Monte Carlo over the room file's [uncertainty]."""
+def uncertainty_options(func=None, *, samples=DEFAULT_SAMPLES, samples_note=""):
+    """``--uncertainty``, ``--samples`` and ``--seed``: the Monte Carlo over the room file's [uncertainty].
+
+    Used bare (``@uncertainty_options``) or with another default sample count
+    (``@uncertainty_options(samples=40, samples_note="...")``).
+    """
+    if func is None:
+        return lambda f: uncertainty_options(f, samples=samples, samples_note=samples_note)
     func = click.option("--seed", type=click.IntRange(0, 2**32 - 1), default=DEFAULT_SEED, show_default=True,
                         help="Seed of the drawn rooms (the same seed gives the same result).")(func)
-    func = click.option("--samples", type=click.IntRange(2, MAX_SAMPLES), default=DEFAULT_SAMPLES, show_default=True,
-                        help="How many rooms --uncertainty draws.")(func)
+    func = click.option("--samples", type=click.IntRange(2, MAX_SAMPLES), default=samples, show_default=True,
+                        help="How many rooms --uncertainty draws." + (f" {samples_note}" if samples_note else ""))(func)
     return click.option("--uncertainty", is_flag=True,
                         help="Draw rooms from the room file's [uncertainty] table (positions, size, absorption, "
                              "temperature) and give the 10-90 % band of the result.")(func)
+
+
+def uncertainty_text(room):
+    """The room's standard deviations in words, surfaces with a range of their own named."""
+    u = room.uncertainty
+    own = [f"{s.name} {u.surface_rel(s):.0%}" for s in room.surfaces if u.surface_rel(s) != u.absorption_rel]
+    return (f"sd {u.position_m * 100:g} cm on positions, {u.size_m * 100:g} cm on dimensions, "
+            f"{u.absorption_rel:.0%} on absorption" + (f" ({', '.join(own)}: their own ranges)" if own else "")
+            + f", {u.temperature_c:g} C on temperature")
 
 
 def layouts_for(room, layout):

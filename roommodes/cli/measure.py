@@ -748,6 +748,14 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
         if bounded:
             click.echo("Note: " + ", ".join(bounded) + " stopped at a bound: the measurements pull further than "
                        "allowed; check the room file (dimensions, positions) before widening the tolerance.")
+        un = res.uncertainty
+        if un:
+            g, n = un["given"], un["narrowed"]
+            parts = [f"size {g['size_m'] * 100:.2g} -> {n['size_m'] * 100:.2g} cm"]
+            parts += [f"{w} absorption {v['absorption_rel_given']:.0%} -> {v['absorption_rel']:.0%}"
+                      for w, v in un["surfaces"].items()]
+            click.echo("Uncertainty the fit can justify (standard deviations written to [uncertainty] and [surfaces]; "
+                       "positions and temperature unchanged): " + "; ".join(parts) + ".")
         click.echo(f"Wrote {outp} (the seat is unchanged; microphone offsets are reported, not written).")
         click.echo(f"Next: roommodes predict {outp.name}   and   roommodes compare {outp.name} MEAS... --channel NAME")
     if plot_path:

@@ -17,6 +17,7 @@ import click
 import numpy as np
 
 from .. import __version__
+from ..analysis.ensemble import DEFAULT_PLACE_SAMPLES
 from ._util import (
     CONTEXT,
     MODEL_CAUTION,
@@ -33,6 +34,8 @@ from ._util import (
     room_inputs,
     subs_json,
     subs_note,
+    uncertainty_options,
+    uncertainty_text,
     units_option,
     walls_text,
 )
@@ -67,9 +70,12 @@ MOUNTING_CAUTION = (
 )
 
 
-def _layout_obj(room, scored):
-    """The layout's JSON (ScoredLayout.to_dict) with the distances from the walls in the user's units."""
+def _layout_obj(room, scored, spread=None):
+    """The layout's JSON (ScoredLayout.to_dict) with the distances from the walls in the user's units
+    (and, with --uncertainty, ``score_median``, ``score_p10``, ``score_p90``)."""
     d = scored.to_dict()
+    if spread is not None:
+        d.update(spread)
     for sp, s in zip(d["speakers"], scored.layout.speakers):
         sp["walls"] = walls_text(room, s.position_m)
     d["seat_walls"] = walls_text(room, scored.layout.seat_m)
@@ -104,9 +110,14 @@ def _row(label, s, parts):
               help="Write the room file again with the best layout (a new file, never the input).")
 @click.option("--force", is_flag=True, help="Overwrite an existing output file (never the input).")
 @method_option
+@uncertainty_options(samples=DEFAULT_PLACE_SAMPLES, samples_note=(
+    "The default is small because each drawn room re-scores every finalist with the chosen solver (about "
+    "0.2 s of one core per layout and room with the exact one, about ten times less with --method modal; "
+    "docs/uncertainty.md)."))
 @json_option
 @units_option
-def place(room_file, top, weights, band, points_per_octave, plot_path, layout_path, force, method, as_json):
+def place(room_file, top, weights, band, points_per_octave, plot_path, layout_path, force, method, uncertainty,
+          samples, seed, as_json):
     """Search where to put the two speakers and the seat, and rank the layouts.
 
     The allowed region, symmetry, listening triangle, listening area and keep-out boxes
@@ -115,6 +126,10 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
     left/right mismatch, spread over the listening area, EQ boost the deepest broad dip
     would need, and robustness to 5 cm moves. The four standard placements and the file's
     own layout are scored the same way and shown in the same table.
+
+    With --uncertainty, the finalists and the file's layout are scored again in rooms drawn
+    from the room file's [uncertainty] table (the same rooms for every layout) and ranked by
+    the median of their scores, with the 10-90 % spread beside it (docs/uncertainty.md).
     """
     from ..analysis.search import PARTS, search_layouts, search_space, why_it_wins
 
@@ -149,9 +164,13 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
             if state["bar"] is not None:
                 state["bar"].__exit__(None, None, None)
         elapsed = time.perf_counter() - t0
+        ranking, current_spread, ens_elapsed = None, None, 0.0
+        if uncertainty:
+            ranking, current_spread, ens_elapsed = _ensemble(room, space, res, points_per_octave, samples, seed)
     except ValueError as exc:
         fail(str(exc))
-    best = res.ranked[0]
+    best = res.ranked[0] if ranking is None else ranking.layouts[0]
+    ranked = list(res.ranked) if ranking is None else list(ranking.layouts)
     if as_json:
         dump_json({
             "room": room.name, "size_m": room.size_m, "method": res.method,
@@ -167,9 +186,13 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
             "why": next((t for t in (why_it_wins(best, o, res.weights) for o in
                                      ([res.current] if res.current is not None else []) + list(res.presets)) if t),
                         None),
-            "ranked": [_layout_obj(room, s) for s in res.ranked],
+            "ranked": [_layout_obj(room, s, None if ranking is None else ranking.spread(k))
+                       for k, s in enumerate(ranked)],
             "presets": [_layout_obj(room, s) for s in res.presets],
-            "current": _layout_obj(room, res.current) if res.current is not None else None,
+            "current": _layout_obj(room, res.current, current_spread) if res.current is not None else None,
+            **({"uncertainty": {"samples": samples, "seed": seed, "method": res.method,
+                                "uncertainty": room.uncertainty.to_dict(), "elapsed_s": ens_elapsed,
+                                "ranked_by": "median score over the drawn rooms"}} if ranking is not None else {}),
             **({"subs": subs_json(room, "the stereo-pair search")} if subs_note(room, "") else {}),
         })
     else:
@@ -204,12 +227,14 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
         click.echo("")
         click.echo(f"  {'layout':<10} {'score':>7}  " + "  ".join(f"{p:>{max(len(p), 5)}}" for p in PARTS)
                    + "  " + "  ".join(f"{h:>{max(len(h), 7)}}" for h, _, _ in _EXTRA))
-        for s in res.ranked:
+        for s in ranked:
             click.echo(_row(f"#{s.name}", s, PARTS))
         if res.current is not None:
             click.echo(_row("file", res.current, PARTS))
         for s in res.presets:
             click.echo(_row(s.name, s, PARTS))
+        if ranking is not None:
+            _print_ensemble(room, res, ranking, current_spread, samples, seed, ens_elapsed)
         others = list(res.presets) + ([res.current] if res.current is not None else [])
         inside = [s for s in others if s.in_region]
         click.echo("")
@@ -240,10 +265,10 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
             if sentence:
                 click.echo(sentence)
                 break
-        for s in list(res.ranked) + ([res.current] if res.current is not None else []) + list(res.presets):
+        for s in ranked + ([res.current] if res.current is not None else []) + list(res.presets):
             click.echo("")
             g = s.figures
-            click.echo(f"{'#' + s.name if s in res.ranked else s.name}: spacing {g['spacing_m'] * 100:.0f} cm, "
+            click.echo(f"{'#' + s.name if s in ranked else s.name}: spacing {g['spacing_m'] * 100:.0f} cm, "
                        f"seat {g['seat_distance_m'] * 100:.0f} cm from the speakers, listening angle "
                        f"{g['angle_deg']:.0f} degrees; flatness at the seat {g['flatness_raw']:.2f} dB before EQ, "
                        f"{s.parts['flatness']:.2f} dB after, EQ boost {s.parts['boost']:.1f} dB")
@@ -259,7 +284,9 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
         new_room = room.with_layout(replace(best.layout, name="file"))
         text = room_to_toml(new_room, comment=(
             f"Written by roommodes {__version__} place from {room_file}: the best layout of the search "
-            f"(score {best.score:.2f} dB over {res.band_hz[0]:g}-{res.band_hz[1]:g} Hz)."),
+            f"(score {best.score:.2f} dB over {res.band_hz[0]:g}-{res.band_hz[1]:g} Hz"
+            + ("" if ranking is None else f"; median {ranking.median[0]:.2f} dB over {samples} drawn rooms, seed "
+               f"{seed}") + ")."),
             original_text=Path(room_file).read_text(encoding="utf-8"), written_to=layout_path)
         try:
             write_text_atomic(layout_path, text, overwrite=force)
@@ -267,16 +294,64 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
             fail(str(exc))
         echo_err(f"wrote {layout_path}")
     if plot_path:
-        _place_plot(room, space, res, plot_path)
+        _place_plot(room, space, res, plot_path, best.layout)
         echo_err(f"wrote {plot_path}")
 
 
-def _place_plot(room, space, res, path):
+def _ensemble(room, space, res, points_per_octave, samples, seed):
+    """The finalists (and the file's layout) scored in drawn rooms: (ranking, the file's spread, seconds)."""
+    from ..analysis.ensemble import ensemble_scores, rank_by_median
+
+    layouts = list(res.ranked) + ([res.current] if res.current is not None else [])
+    t0 = time.perf_counter()
+    with click.progressbar(length=samples, label="scoring in drawn rooms", file=sys.stderr) as bar:
+        scores = ensemble_scores(room, [s.layout for s in layouts], n_samples=samples, seed=seed,
+                                 weights=res.weights, band_hz=res.band_hz, area_m=space.area_m,
+                                 area_points=space.area_points, points_per_octave=points_per_octave,
+                                 method=res.method, progress=lambda i, n: bar.update(1))
+    k = len(res.ranked)
+    ranking = rank_by_median(res.ranked, scores[:, :k])
+    current = None
+    if res.current is not None:
+        c = scores[:, k]
+        current = {"score_median": float(np.median(c)), "score_p10": float(np.percentile(c, 10)),
+                   "score_p90": float(np.percentile(c, 90))}
+    return ranking, current, time.perf_counter() - t0
+
+
+def _print_ensemble(room, res, ranking, current_spread, samples, seed, elapsed):
+    click.echo("")
+    click.echo(f"Over {samples} rooms drawn from the room file's [uncertainty] (seed {seed}; {uncertainty_text(room)}; "
+               f"{elapsed:.1f} s), every layout scored in the same rooms with the same placement errors; ranked by the "
+               "median score:")
+    click.echo(f"  {'layout':<10} {'nominal':>7}  {'median':>7}  {'10-90 % of drawn rooms':>22}")
+    rows = [(f"#{s.name}", s.score, ranking.median[k], ranking.p10[k], ranking.p90[k])
+            for k, s in enumerate(ranking.layouts)]
+    if current_spread is not None:
+        rows.append(("file", res.current.score, current_spread["score_median"], current_spread["score_p10"],
+                     current_spread["score_p90"]))
+    for label, nom, med, p10, p90 in rows:
+        click.echo(f"  {label:<10} {nom:7.2f}  {med:7.2f}  {p10:11.2f} to {p90:5.2f}")
+    if ranking.layouts[0] is not res.ranked[0]:
+        click.echo(f"The median ranks #{ranking.layouts[0].name} first, ahead of the nominal best "
+                   f"#{res.ranked[0].name}; the lists below and --write-layout follow the median.")
+    elif [s.name for s in ranking.layouts] != [s.name for s in res.ranked]:
+        click.echo(f"The median keeps #{ranking.layouts[0].name} first but reorders the others; the lists below "
+                   "follow the median.")
+    else:
+        click.echo("The median keeps the nominal order.")
+    overlap = ranking.p90[0] > ranking.p10[1] if len(ranking.layouts) > 1 else False
+    if overlap:
+        click.echo(f"The spreads of #{ranking.layouts[0].name} and #{ranking.layouts[1].name} overlap: within what "
+                   "the room file knows, either may turn out better.")
+
+
+def _place_plot(room, space, res, path, best=None):
     from ..analysis.predict import predict
     from ..analysis.search import layout_curves, layout_sweep, seat_score_map
     from ..present.plots_place import plot_place
 
-    best = res.ranked[0].layout
+    best = res.ranked[0].layout if best is None else best
     preds = [("best", predict(room, best))]
     current = room.layout if room.layout is not None and len(room.layout.speakers) >= 2 else None
     if current is not None:

@@ -32,6 +32,7 @@ from ._util import (
     ppo_option,
     room_inputs,
     uncertainty_options,
+    uncertainty_text,
     units_option,
     walls_text,
 )
@@ -186,10 +187,7 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
                    f"({elapsed:.2f} s)")
         click.echo("Level: dB relative to the same speaker's free-field level at 1 m.")
         if uncertainty:
-            u = room.uncertainty
-            click.echo(f"Uncertainty: {samples} rooms drawn (seed {seed}); sd {u.position_m * 100:g} cm on positions, "
-                       f"{u.size_m * 100:g} cm on dimensions, {u.absorption_rel:.0%} on absorption, "
-                       f"{u.temperature_c:g} C on temperature.")
+            click.echo(f"Uncertainty: {samples} rooms drawn (seed {seed}); {uncertainty_text(room)}.")
         for lay, p, bd, sp in zip(layouts, preds, bands, seat_preds):
             click.echo("")
             click.echo(f"Layout: {lay.name}.  Seat: {walls_text(room, lay.seat_m)}"

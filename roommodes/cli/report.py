@@ -44,9 +44,13 @@ from ._util import (
     method_option,
     protect_inputs,
     room_inputs,
+    uncertainty_options,
 )
 
 __all__ = ["report", "write_report"]
+
+#: Drawn rooms ``report --uncertainty`` uses where none is chosen (per layout shown).
+REPORT_SAMPLES = 100
 
 
 def _sha256(path):
@@ -165,10 +169,13 @@ def write_report(out, rep, force):
               help="Format of the figures inside the page (both are written to the folder).")
 @click.option("--force", is_flag=True, help="Overwrite an existing report and its folder (never an input).")
 @mic_cal_option
+@uncertainty_options(samples=REPORT_SAMPLES, samples_note=(
+    "The report draws them for the file's layout and each standard placement (one solver call per room and "
+    "layout)."))
 @json_option
 @guard
 def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, window_s, units, search, method, embed,
-           force, mic_cal, as_json):
+           force, mic_cal, uncertainty, samples, seed, as_json):
     """Write a self-contained HTML report of the room, for a client or for your notes.
 
     \b
@@ -183,6 +190,10 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
     assumes and where it stops being trustworthy, the cautions, and everything needed to
     reproduce it. It opens offline in any browser and prints on A4 or Letter. Every figure
     is also written as PNG and SVG, and every table as CSV, into NAME_files/ beside it.
+
+    With --uncertainty, the response figures shade the 10-90 % band of rooms drawn from the
+    room file's [uncertainty] (with --fit, the narrowed one of the calibrated model), and the
+    page says which peaks and dips are solid and which fragile (docs/uncertainty.md).
     """
 
     out = Path(out)
@@ -235,6 +246,8 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
         argv += ["--wav-channel", str(wav_channel)]
     if window_s != 1.0:
         argv += ["--window", f"{window_s:g}"]
+    if uncertainty:
+        argv += ["--uncertainty", "--samples", str(samples), "--seed", str(seed)]
     try:
         room_text = Path(room_file).read_text(encoding="utf-8")
     except (OSError, UnicodeDecodeError):
@@ -243,7 +256,8 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
     rep = build_report(room, curves, targets, units=units, search=search, method=method, embed=embed,
                        room_text=room_text, inputs=inputs, command=shlex.join(argv),
                        created=datetime.datetime.now().astimezone().strftime("%Y-%m-%d %H:%M %Z").strip(),
-                       files_folder=folder.name, progress=lambda text: echo_err(f"  {text}"))
+                       files_folder=folder.name, progress=lambda text: echo_err(f"  {text}"),
+                       uncertainty={"n_samples": samples, "seed": seed} if uncertainty else None)
     written = write_report(out, rep, force)
     echo_err(f"wrote {out} ({len(rep.html) / 1e6:.1f} MB) and {written}/ ({len(rep.figures)} figures as PNG and SVG, "
              f"{len(rep.tables)} tables as CSV)")

@@ -13,6 +13,7 @@ import difflib
 import math
 import os
 import tomllib
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -60,7 +61,7 @@ _SEATS_KEYS = {"position_m", "weight"}
 _SUBS_KEYS = {"counts", "crossover_hz", "max_delay_ms", "max_gain_db", "height_m", "step_m", "wall_gap_m",
               "regions", "wall_band_m", "candidates_m", "keep_out", "band_hz"}
 _SUB_COUNTS = (1, 2, 4)
-_SURFACE_TABLE_KEYS = {"absorption", "bands_hz", "material"}
+_SURFACE_TABLE_KEYS = {"absorption", "bands_hz", "material", "absorption_rel"}
 
 
 class RoomFileError(ValueError):
@@ -142,21 +143,34 @@ class _Ctx:
         return tuple(self.number(v, f"{key}[{i}]") for i, v in enumerate(value))
 
 
+def _surface_rel(ctx, value, key):
+    """A surface's own ``absorption_rel`` (None when not given)."""
+    if "absorption_rel" not in value:
+        return None
+    return ctx.number(value["absorption_rel"], f"{key}.absorption_rel", 0.0, _UNCERTAINTY_LIMITS["absorption_rel"],
+                      what="a relative standard deviation (e.g. 0.3 for 30 %)")
+
+
 def _parse_surface(ctx, name, value):
     key = f"[surfaces] {name}"
 
     if isinstance(value, str) or (isinstance(value, dict) and "material" in value):
         mat_name = value if isinstance(value, str) else value["material"]
+        rel = None
         if isinstance(value, dict):
-            ctx.unknown_keys(value, {"material"}, key)
+            ctx.unknown_keys(value, {"material", "absorption_rel"}, key)
+            rel = _surface_rel(ctx, value, key)
         try:
             mat = get_material(mat_name)
         except ValueError as exc:
             ctx.fail(key, str(exc))
         return Surface(name, tuple(mat.absorption), tuple(mat.bands_hz), mat.name,
-                       tuple(mat.extrapolated_hz))
+                       tuple(mat.extrapolated_hz), rel)
     if isinstance(value, dict):
         ctx.unknown_keys(value, _SURFACE_TABLE_KEYS, key)
+        rel = _surface_rel(ctx, value, key)
+        if "bands_hz" not in value and "absorption" in value and not isinstance(value["absorption"], list):
+            return Surface(name, (_alpha(ctx, value["absorption"], f"{key}.absorption"),), absorption_rel=rel)
         if "absorption" not in value or "bands_hz" not in value:
             ctx.fail(key, "a table needs both 'absorption' and 'bands_hz' lists, e.g. "
                           "{ absorption = [0.25, 0.15, 0.10], bands_hz = [63, 125, 250] }")
@@ -169,7 +183,7 @@ def _parse_surface(ctx, name, value):
         b = tuple(ctx.number(v, f"{key}.bands_hz[{i}]", 1.0, 20000.0) for i, v in enumerate(bands))
         if any(b2 <= b1 for b1, b2 in zip(b, b[1:])):
             ctx.fail(f"{key}.bands_hz", f"band frequencies must rise strictly, got {list(b)}")
-        return Surface(name, a, b)
+        return Surface(name, a, b, absorption_rel=rel)
     return Surface(name, (_alpha(ctx, value, key),))
 
 
@@ -325,7 +339,8 @@ def parse_room(data, name="<room>", base_dir=None):
     if "subs" in data:
         subs_search = _parse_subs(ctx, data["subs"], size)
     _check_numbers_fit(ctx, search, "[search]")
-    uncertainty = _parse_uncertainty(ctx, data["uncertainty"]) if "uncertainty" in data else Uncertainty()
+    uncertainty = (_parse_uncertainty(ctx, data["uncertainty"]) if "uncertainty" in data
+                   else Uncertainty(material_ranges=True))
     system = _parse_system(ctx, data["system"], speakers) if "system" in data else None
     room = Room(room_name, size, surfaces, temp, layout, search, str(name), subs_search, uncertainty, system)
     if search:  # the user's placement constraints are checked now, not when a search first reads them
@@ -375,7 +390,9 @@ def _parse_uncertainty(ctx, table):
     ctx.unknown_keys(table, set(_UNCERTAINTY_LIMITS), "[uncertainty]")
     kw = {k: ctx.number(table[k], f"[uncertainty] {k}", 0.0, hi, what="a standard deviation (a number >= 0)")
           for k, hi in _UNCERTAINTY_LIMITS.items() if k in table}
-    return Uncertainty(**kw)
+    # a stated absorption_rel holds for every surface without a range of its own; without it,
+    # library materials' own ranges come first (docs/uncertainty.md)
+    return Uncertainty(**kw, material_ranges="absorption_rel" not in kw)
 
 
 def _parse_seats(ctx, table, size, speakers):
@@ -653,13 +670,24 @@ def _set(table, key, value):
 
 
 def _surface_value(s):
+    own = s.absorption_rel
     if s.material:
-        return s.material
-    if s.bands_hz is None:
+        if own is None:
+            return s.material
+        t = tomlkit.inline_table()
+        t["material"] = s.material
+        t["absorption_rel"] = _number(own)
+        return t
+    if s.bands_hz is None and own is None:
         return _number(s.absorption[0])
     t = tomlkit.inline_table()
-    t["absorption"] = [_number(a) for a in s.absorption]
-    t["bands_hz"] = [_number(b) for b in s.bands_hz]
+    if s.bands_hz is None:
+        t["absorption"] = _number(s.absorption[0])
+    else:
+        t["absorption"] = [_number(a) for a in s.absorption]
+        t["bands_hz"] = [_number(b) for b in s.bands_hz]
+    if own is not None:
+        t["absorption_rel"] = _number(own)
     return t
 
 
@@ -801,9 +829,17 @@ def room_to_toml(room, comment=None, *, original_text=None, position_note=None, 
             _set(sy, "mains_delay_ms", _number(room.system.mains_delay_ms))
     elif "system" in doc:
         del doc["system"]
-    if "uncertainty" in doc or room.uncertainty != Uncertainty():
+    u = room.uncertainty
+    if "uncertainty" in doc or replace(u, material_ranges=False) != Uncertainty():
         ut = _table(doc, "uncertainty")
-        for k, v in room.uncertainty.to_dict().items():
+        for k, v in u.to_dict().items():
+            if k == "material_ranges":
+                continue
+            if k == "absorption_rel" and u.material_ranges:
+                # not stated: the materials' own ranges come first (re-read as such)
+                if k in ut and float(ut[k]) != v:
+                    del ut[k]
+                continue
             _set(ut, k, _number(v))
     text = tomlkit.dumps(doc)
     if comment:

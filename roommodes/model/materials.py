@@ -30,6 +30,8 @@ __all__ = [
 
 #: Version of the library file layout this module reads.
 SCHEMA_VERSION = 1
+#: Largest relative standard deviation of a material's absorption (``absorption_rel``) accepted.
+MAX_ABSORPTION_REL = 2.0
 
 
 @dataclass(frozen=True)
@@ -54,6 +56,12 @@ class Material:
         How the values were checked; "memory" marks values recalled, not seen.
     extrapolation_rule : str
         ``"hold"`` or ``"porous-ratio"`` (see the TOML file header).
+    absorption_rel : float or None
+        The material's own range: relative standard deviation of its absorption (all bands
+        together), used by ``--uncertainty`` instead of the room file's default; None when the
+        library gives none.
+    absorption_rel_basis : str
+        Why that range.
     """
 
     name: str
@@ -64,6 +72,8 @@ class Material:
     extrapolated_hz: tuple = ()
     source_note: str = ""
     extrapolation_rule: str = ""
+    absorption_rel: float | None = None
+    absorption_rel_basis: str = ""
 
     def at(self, freq_hz):
         """Absorption at ``freq_hz`` (Hz), interpolated as in :func:`absorption_at`."""
@@ -83,6 +93,13 @@ def _check_entry(entry, where):
         raise ValueError(f"{where}: bands_hz must be positive and strictly rising")
     if np.any(alpha < 0) or np.any(alpha >= 1):
         raise ValueError(f"{where}: absorption must lie in 0 <= alpha < 1")
+    rel = entry.get("absorption_rel")
+    if rel is not None:
+        if isinstance(rel, bool) or not isinstance(rel, (int, float)) or not 0.0 <= float(rel) <= MAX_ABSORPTION_REL:
+            raise ValueError(f"{where}: absorption_rel must be a relative standard deviation from 0 to "
+                             f"{MAX_ABSORPTION_REL:g} (e.g. 0.3 for 30 %), got {rel!r}")
+        if not str(entry.get("absorption_rel_basis", "")).strip():
+            raise ValueError(f"{where}: absorption_rel needs an absorption_rel_basis saying where the range comes from")
     return Material(
         name=str(entry["key"]),
         description=str(entry["description"]),
@@ -92,6 +109,8 @@ def _check_entry(entry, where):
         extrapolated_hz=tuple(float(b) for b in entry.get("extrapolated_hz", ())),
         source_note=str(entry.get("source_note", "")),
         extrapolation_rule=str(entry.get("extrapolation", "")),
+        absorption_rel=None if rel is None else float(rel),
+        absorption_rel_basis=str(entry.get("absorption_rel_basis", "")),
     )
 
 

@@ -25,6 +25,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from .materials import get_material
 from .walls import impedance_from_absorption
 
 __all__ = [
@@ -98,6 +99,10 @@ class Surface:
         Library material the values came from, if any.
     extrapolated_hz : tuple of float
         Bands whose values are extrapolated below the source's lowest band.
+    absorption_rel : float or None
+        The surface's own range, given in the room file: relative standard deviation of its
+        absorption, used by ``--uncertainty`` before anything else
+        (:meth:`Uncertainty.surface_rel`); None when not given.
     """
 
     name: str
@@ -105,6 +110,7 @@ class Surface:
     bands_hz: tuple | None = None
     material: str | None = None
     extrapolated_hz: tuple = ()
+    absorption_rel: float | None = None
 
     def absorption_at(self, freq_hz):
         """Absorption at ``freq_hz``: linear in log frequency between band centres,
@@ -375,7 +381,13 @@ class Uncertainty:
         Standard deviation of each room dimension, m.
     absorption_rel : float
         Relative standard deviation of each surface's absorption (a log-normal factor of mean
-        1 applied to all of the surface's band values).
+        1 applied to all of the surface's band values), for surfaces without a range of their
+        own (:meth:`surface_rel`).
+    material_ranges : bool
+        Whether a surface's library material's own range (``absorption_rel`` in the library)
+        comes before :attr:`absorption_rel`: true for a room file whose ``[uncertainty]`` table
+        does not state ``absorption_rel``; false when it is stated (the user's figure holds for
+        every surface without a range of its own).
     temperature_c : float
         Standard deviation of the air temperature, C.
     """
@@ -384,11 +396,26 @@ class Uncertainty:
     size_m: float = 0.01
     absorption_rel: float = 0.25
     temperature_c: float = 1.5
+    material_ranges: bool = False
+
+    def surface_rel(self, surface):
+        """Relative sd of ``surface``'s absorption.
+
+        The surface's own range (:attr:`Surface.absorption_rel`), else (with
+        :attr:`material_ranges`) its library material's, else :attr:`absorption_rel`.
+        """
+        if surface.absorption_rel is not None:
+            return float(surface.absorption_rel)
+        if self.material_ranges and surface.material:
+            rel = get_material(surface.material).absorption_rel
+            if rel is not None:
+                return float(rel)
+        return float(self.absorption_rel)
 
     def to_dict(self):
         """JSON-ready values, keyed as in the room file."""
         return {"position_m": self.position_m, "size_m": self.size_m, "absorption_rel": self.absorption_rel,
-                "temperature_c": self.temperature_c}
+                "temperature_c": self.temperature_c, "material_ranges": self.material_ranges}
 
 
 @dataclass(frozen=True)

@@ -421,7 +421,8 @@ def _map_frequencies(coupling, features):
 
 def build_report(room, measurements=(), fit_targets=None, *, units="cm", search="full", method=DEFAULT_METHOD,
                  embed="svg", room_text=None, inputs=(), command=None, created=None, files_folder=None,
-                 map_freqs_hz=None, compare_band_hz=(20.0, 200.0), compare_smoothing=12, progress=None):
+                 map_freqs_hz=None, compare_band_hz=(20.0, 200.0), compare_smoothing=12, progress=None,
+                 uncertainty=None):
     """Run the whole tool on a room and lay the results out as one self-contained HTML page.
 
     Parameters
@@ -461,6 +462,10 @@ def build_report(room, measurements=(), fit_targets=None, *, units="cm", search=
         Band (Hz) and 1/b-octave smoothing of the measurement comparison.
     progress : callable, optional
         ``progress(text)`` as each part starts.
+    uncertainty : dict, optional
+        ``{"n_samples": N, "seed": S}``: shade the 10-90 % band of rooms drawn from the room's
+        ``[uncertainty]`` on the response figures, and say which peaks and dips are solid and
+        which fragile (:func:`roommodes.analysis.ensemble.feature_spread`).
 
     Returns
     -------
@@ -505,7 +510,8 @@ def build_report(room, measurements=(), fit_targets=None, *, units="cm", search=
                values=document({"units": units}), glance=[], progress=progress,
                measurements=measurements, fit_targets=fit_targets, compare_band_hz=compare_band_hz,
                compare_smoothing=compare_smoothing, created=created, command=command, files_folder=files_folder,
-               inputs=inputs, room_text=room_text, map_freqs_hz=map_freqs_hz, fit_res=fit_res)
+               inputs=inputs, room_text=room_text, map_freqs_hz=map_freqs_hz, fit_res=fit_res,
+               uncertainty=uncertainty)
     for section in (_section_room, _section_modes, _section_responses, _section_placement, _section_subs,
                     _section_eq, _section_measurements, _section_validity, _section_reproduce, _section_appendix):
         section(run)
@@ -695,10 +701,12 @@ def _section_responses(run):
     doc.p("Each speaker's predicted level at the seat, relative to the level the same speaker would give at 1 m "
           "in free space (0 dB); room gain shows as positive values. The speakers' own low-frequency roll-off is "
           "included. Ticks along the top mark the room modes (long: axial, short: tangential).")
-    fig = plot_prediction(pred, ms300, title=f"{room.name}: predicted level at the seat ({layout.name} layout)")
+    bands = _bands(run, layout)
+    fig = plot_prediction(pred, ms300, title=f"{room.name}: predicted level at the seat ({layout.name} layout)",
+                          bands=None if bands is None else [bands])
     doc.figure(fig, "response", "Predicted level at the seat for the room file's layout" if not preset_used
                else f"Predicted level at the seat for the '{preset_used}' layout",
-               "Unsmoothed, 48 points per octave.")
+               "Unsmoothed, 48 points per octave." + _band_caption(run))
     preds = [(layout, pred)]
     for name in PRESETS:
         if preset_used == name:
@@ -708,10 +716,11 @@ def _section_responses(run):
         except ValueError:
             continue
         preds.append((lay, predict(room, lay, f, method=method)))
-    fig = plot_prediction([p for _, p in preds], ms300, title=f"{room.name}: layouts compared")
+    all_bands = None if bands is None else [bands] + [_bands(run, lay) for lay, _ in preds[1:]]
+    fig = plot_prediction([p for _, p in preds], ms300, title=f"{room.name}: layouts compared", bands=all_bands)
     doc.figure(fig, "layouts", "The file's layout and the standard placements compared",
                "Colour: layout; line style: channel. Standard placements: corner, against the wall, mid-room and "
-               "desk (docs/placement.md).")
+               "desk (docs/placement.md)." + _band_caption(run))
     rows = []
     for lay, p in preds:
         band = usable_band(lay.speakers)
@@ -741,6 +750,73 @@ def _section_responses(run):
                           f"{big.level_db:+.1f} dB, standing {big.prominence_db:.1f} dB "
                           f"{'above' if big.kind == 'peak' else 'below'} its surroundings: "
                           f"{'; '.join(big.causes) or 'many modes together'}.")
+    if bands is not None:
+        _feature_spreads(run, pred, feats, bands)
+
+
+def _bands(run, layout):
+    """The 10-50-90 % bands of ``layout`` over the drawn rooms, or None without ``uncertainty``."""
+    if not run.uncertainty:
+        return None
+    from ..analysis.uncertainty import predict_bands
+
+    run.step(f"uncertainty: {run.uncertainty['n_samples']} drawn rooms, {layout.name} layout")
+    return predict_bands(run.room, layout, run.f, n_samples=run.uncertainty["n_samples"],
+                         seed=run.uncertainty["seed"], method=run.method)
+
+
+def _band_caption(run):
+    if not run.uncertainty:
+        return ""
+    return (f" Shaded: 10-90 % of {run.uncertainty['n_samples']} rooms drawn from the room file's [uncertainty] "
+            f"(seed {run.uncertainty['seed']}).")
+
+
+def _feature_spreads(run, pred, feats, bands):
+    """Which peaks and dips are solid and which fragile, over the drawn rooms."""
+    from ..analysis.ensemble import MIN_FOUND_FRACTION, feature_spread
+
+    doc, glance, values, f = run.doc, run.glance, run.values, run.f
+    u = run.room.uncertainty
+    doc.h3("How solid each peak and dip is", anchor="solid-fragile")
+    doc.p(f"Each peak and dip above was looked for again in {bands.n_samples} rooms drawn from what the room file "
+          f"says it does not know (standard deviations: {u.position_m * 100:g} cm on every position, "
+          f"{u.size_m * 100:g} cm on each dimension, {u.absorption_rel:.0%} on the absorption of surfaces without a "
+          f"range of their own, {u.temperature_c:g} C on the air; docs/uncertainty.md). A feature is solid when it "
+          f"appears in at least {MIN_FOUND_FRACTION:.0%} of them, its frequency moves less than its own width (at "
+          "half its prominence) and its level moves less than half its prominence (10-90 % of the drawn rooms, on "
+          "the 1/12-octave smoothed curve). A fragile feature moves with a tape-measure error or a wall that is "
+          "lighter than assumed: do not correct it with EQ or rely on it.")
+    rows, spreads = [], []
+    for ch in pred.channels:
+        if ch.name not in bands.names:
+            continue
+        sp = feature_spread(f, ch.level_db, feats[ch.name], bands.samples_db[:, bands.names.index(ch.name)], ch.name)
+        spreads += sp
+        for x in sp:
+            ft = x.feature
+            rows.append([ch.name, ft.kind, _num(ft.freq_hz, ".1f"), _num(x.bandwidth_hz, ".1f"),
+                         _num(100 * x.found_fraction, ".0f"),
+                         range_text(x.freq_p10_hz, x.freq_p90_hz, "Hz", ".1f") if x.found_fraction else "-",
+                         _num(x.level_spread_db, ".1f") if x.found_fraction else "-",
+                         _num(ft.prominence_db, ".1f"), "solid" if x.solid else "fragile: " + x.reason()])
+    if rows:
+        doc.table("solid-fragile", "Peaks and dips over the drawn rooms",
+                  ("channel", "kind", "frequency (Hz)", "width (Hz)", "found in (%)", "frequency 10-90 % (Hz)",
+                   "level spread (dB)", "prominence (dB)", "verdict"), rows,
+                  note="Width: at half the feature's prominence on the 1/12-octave smoothed curve. Level spread: "
+                       "90th minus 10th percentile of the feature's smoothed level.")
+        solid = [x for x in spreads if x.solid]
+        fragile = [x for x in spreads if not x.solid]
+        glance.append(f"Over {bands.n_samples} drawn rooms, {len(solid)} of {len(spreads)} peaks and dips are solid"
+                      + (": " + ", ".join(f"{x.channel} {x.feature.kind} {x.feature.freq_hz:.0f} Hz" for x in solid)
+                         if solid else "")
+                      + ("; fragile: " + ", ".join(f"{x.channel} {x.feature.kind} {x.feature.freq_hz:.0f} Hz"
+                                                     for x in fragile) if fragile else "") + ".")
+    else:
+        doc.p("No peak or dip stands out enough to follow.")
+    values["uncertainty"] = {"samples": bands.n_samples, "seed": bands.seed, "uncertainty": u.to_dict(),
+                             "features": [x.to_dict() for x in spreads]}
 
 
 def _section_placement(run):

@@ -333,6 +333,15 @@ def test_fit_writes_a_calibrated_room_that_loads(tmp_path):
     calibrated = load_room(cal)
     assert calibrated.size_m[0] == pytest.approx(par["length"]["value"], abs=0.001)
     assert calibrated.layout.seat_m == ROOM.layout.seat_m
+    # the uncertainty the fit justifies is written, never wider than given (docs/uncertainty.md)
+    un = data["uncertainty"]
+    assert calibrated.uncertainty.size_m == pytest.approx(un["narrowed"]["size_m"])
+    assert calibrated.uncertainty.size_m <= ROOM.uncertainty.size_m
+    for s0, s1 in zip(ROOM.surfaces, calibrated.surfaces):
+        assert calibrated.uncertainty.surface_rel(s1) <= ROOM.uncertainty.surface_rel(s0)
+    text = run(fit, DEMO, "--measure", "left", "seat", left, "--measure", "right", "seat", right, "-o",
+               tmp_path / "cal2.toml")
+    assert "Uncertainty the fit can justify" in text.stdout
     assert (tmp_path / "fit.png").read_bytes()[:4] == b"\x89PNG"
     assert "Model:" in res.stderr
     # the calibrated room predicts the measurement better than the file did

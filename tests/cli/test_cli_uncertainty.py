@@ -44,3 +44,26 @@ def test_bad_sample_count_is_one_line():
     res = run("predict", DEMO, "--uncertainty", "--samples", 1)
     assert res.exit_code == 2
     assert res.stderr.count("\n") == 1 and "--samples" in res.stderr
+
+
+def test_place_uncertainty_ranks_by_median_with_spread(tmp_path):
+    room = tmp_path / "room.toml"
+    room.write_text(open(DEMO, encoding="utf-8").read() + "\n[search]\nstep_m = 0.3\n", encoding="utf-8")
+    args = ("place", room, "--top", 3, "--method", "modal", "--points-per-octave", 12, "--uncertainty",
+            "--samples", 4, "--seed", 9)
+    res = run(*args, "--json")
+    assert res.exit_code == 0, res.output
+    data = json.loads(res.stdout)
+    assert data["uncertainty"]["samples"] == 4 and data["uncertainty"]["seed"] == 9
+    med = [r["score_median"] for r in data["ranked"]]
+    assert med == sorted(med)
+    for r in data["ranked"] + [data["current"]]:
+        assert r["score_p10"] <= r["score_median"] <= r["score_p90"]
+    assert "score_median" not in data["presets"][0]
+    out = tmp_path / "best.toml"
+    text = run(*args, "--write-layout", out)
+    assert text.exit_code == 0
+    assert "ranked by the median score" in text.stdout and f"#{data['ranked'][0]['name']}" in text.stdout
+    written = load_room(out)  # the median's best layout is the one written
+    np.testing.assert_allclose(written.layout.seat_m, data["ranked"][0]["seat_m"])
+    assert "median" in out.read_text().splitlines()[0]
