@@ -936,6 +936,18 @@ SHARED_EQ_MAX_BOOST_DB = 3.0
 SHARED_EQ_MAX_FILTERS = 4
 #: A seat (or head position) counts as made worse when its flatness rises by more than this, dB.
 SHARED_EQ_NO_HARM_DB = 0.1
+#: Deepest cut of one filter of the shared EQ, dB. Our choice: one EQ acts at every seat, where a
+#: peak's height differs by about the seat-to-seat spread; a deep narrow notch fitted to the
+#: average overshoots at a seat where the peak is lower or shifted. The eq command allows 15 dB
+#: for one seat.
+SHARED_EQ_MAX_CUT_DB = 8.0
+#: In the perturbed room no seat or head position may be lifted further above the target than it
+#: already was by more than this anywhere on :data:`SHARED_EQ_GRID_HZ`, dB (the tolerance of the
+#: EQ rules' own checks in a perturbed room, docs/eq.md).
+SHARED_EQ_MAX_RAISE_DB = 1.5
+#: The shared EQ is designed and judged on this range (the eq command's): filters act outside the
+#: band they correct, and no harm is checked wherever they act, Hz.
+SHARED_EQ_GRID_HZ = (15.0, 300.0)
 
 
 @dataclass(frozen=True, eq=False)
@@ -969,21 +981,32 @@ class SharedEq:
     perturbed_before_db: np.ndarray
     perturbed_after_db: np.ndarray
     reason: str = ""
+    #: The largest lift further above the target at each position in the perturbed room,
+    #: anywhere on :data:`SHARED_EQ_GRID_HZ` (NaN when not checked), dB.
+    perturbed_raise_db: np.ndarray = None
+    #: The grid of ``design.correction_db``, Hz.
+    freq_hz: np.ndarray = None
 
     @property
     def filters(self):
         return () if self.design is None else tuple(self.design.filters)
 
     def to_dict(self):
+        raise_db = (np.full(len(self.positions), np.nan) if self.perturbed_raise_db is None
+                    else self.perturbed_raise_db)
         d = {"configuration": self.label, "band_hz": list(self.band_hz), "reason": self.reason,
              "filters": [f.to_dict() for f in self.filters],
              "max_boost_db": 0.0 if self.design is None else float(max(0.0, self.design.max_boost_db)),
+             "max_cut_db": SHARED_EQ_MAX_CUT_DB,
              "positions": [{"name": n, "flatness_before_db": float(a), "flatness_after_db": float(b),
-                            "perturbed_before_db": float(c), "perturbed_after_db": float(e)}
-                           for n, a, b, c, e in zip(self.positions, self.flatness_before_db, self.flatness_after_db,
-                                                    self.perturbed_before_db, self.perturbed_after_db)]}
+                            "perturbed_before_db": float(c), "perturbed_after_db": float(e),
+                            "perturbed_raise_db": float(r)}
+                           for n, a, b, c, e, r in zip(self.positions, self.flatness_before_db,
+                                                       self.flatness_after_db, self.perturbed_before_db,
+                                                       self.perturbed_after_db, raise_db)]}
         if self.design is not None:
             d["correction_db"] = self.design.correction_db
+            d["frequencies_hz"] = self.freq_hz
         return d
 
 
@@ -1013,7 +1036,8 @@ def _positions_levels(room, freq_hz, method):
 
 
 def shared_eq(room, config, freq_hz, *, method=DEFAULT_METHOD, max_boost_db=SHARED_EQ_MAX_BOOST_DB,
-              max_filters=SHARED_EQ_MAX_FILTERS, level_db=None, check_perturbed=True):
+              max_filters=SHARED_EQ_MAX_FILTERS, max_cut_db=SHARED_EQ_MAX_CUT_DB, level_db=None,
+              check_perturbed=True):
     """One correction EQ for the whole system, designed on the seats' weighted average and
     judged at every seat.
 
@@ -1022,8 +1046,10 @@ def shared_eq(room, config, freq_hz, *, method=DEFAULT_METHOD, max_boost_db=SHAR
     weighted power average of the seats' levels, with every seat and the head positions 15 cm
     around each seat as positions the design must not lift further above the target; then
     each position's flatness (RMS deviation from its own mean over the band) is compared
-    before and after, in the model room and in :func:`perturbed_room`. When a position gets
-    worse by more than :data:`SHARED_EQ_NO_HARM_DB`, fewer filters are tried, down to none.
+    before and after, in the model room and in :func:`perturbed_room`, where in addition no
+    position may be lifted further above the target by more than
+    :data:`SHARED_EQ_MAX_RAISE_DB` anywhere on :data:`SHARED_EQ_GRID_HZ`. When a position gets
+    worse, fewer filters are tried, down to none.
 
     Parameters
     ----------
@@ -1032,8 +1058,10 @@ def shared_eq(room, config, freq_hz, *, method=DEFAULT_METHOD, max_boost_db=SHAR
         The subs and settings the EQ goes with.
     freq_hz : array_like (F,)
     method : str
-    max_boost_db, max_filters :
-        Limits of the parametric design.
+    max_boost_db, max_filters, max_cut_db :
+        Limits of the parametric design. Cuts take their Q from the peak's own width or the
+        half-power bandwidth of the room mode inside it, boosts stay broad (Q <= 2), as in
+        :func:`roommodes.analysis.correction.correct_curve`.
     level_db : array_like (P, F), optional
         The seats' levels to design on (e.g. from measurements); default the model's. The
         head positions and the perturbed room are then not judged.
@@ -1043,46 +1071,58 @@ def shared_eq(room, config, freq_hz, *, method=DEFAULT_METHOD, max_boost_db=SHAR
     -------
     SharedEq
     """
-    from .correction import correct_curve
+    from .correction import _mode_list, correct_curve
+    from .eqcheck import judge_levels
     from .predict import room_schroeder_frequency
 
-    f = np.asarray(freq_hz, dtype=float)
+    f_in = np.asarray(freq_hz, dtype=float)
     r = room_with_config(room, config)
     seats = r.layout.all_seats
     w = seat_weights([s.weight for s in seats])
     if level_db is None:
+        # designed and judged over the range where the filters act, not only the scored band
+        f = log_frequencies(min(SHARED_EQ_GRID_HZ[0], f_in[0]), max(SHARED_EQ_GRID_HZ[1], f_in[-1]), 24)
         names, L = _positions_levels(r, f, method)
     else:
+        f = f_in
         names, L = tuple(s.name for s in seats), np.asarray(level_db, dtype=float)
     L_seats = L[:len(seats)]
     avg = 10.0 * np.log10(np.maximum(w @ 10.0 ** (L_seats / 10.0), 1e-30))
     subs = r.layout.subs
-    low = max([float(f[0])] + [s.lowcut_hz for s in subs if s.lowcut_hz])
+    low = max([float(f_in[0])] + [s.lowcut_hz for s in subs if s.lowcut_hz])
     fs = room_schroeder_frequency(room)
-    band = (low, float(min(f[-1], fs)))
+    band = (low, float(min(f_in[-1], fs)))
     order = max([s.lowcut_order for s in subs if s.lowcut_hz] or [2])
+    modes = _mode_list(room, float(f[-1]))
     alt = None
     if check_perturbed and level_db is None:
         _, alt = _positions_levels(perturbed_room(r), f, method)
+    nan = np.full(len(names), np.nan)
     before = _flatness(f, L, band)
-    alt_before = _flatness(f, alt, band) if alt is not None else np.full(len(names), np.nan)
+    alt_before = _flatness(f, alt, band) if alt is not None else nan
     reason = "no filter set brought every seat closer to flat"
     for n in range(max_filters, 0, -1):
         corr = correct_curve("system", f, avg, band_hz=band, position_levels_db=L, lowcut_hz=low,
-                             lowcut_order=order, max_filters=n, max_boost_db=max_boost_db, schroeder_hz=fs)
+                             lowcut_order=order, max_filters=n, max_boost_db=max_boost_db, schroeder_hz=fs,
+                             modes=modes, max_cut_db=max_cut_db)
         design = corr.parametric
         if not design.filters:
             reason = "the seats' average is already as flat as the filters can make it without harm at a seat"
             break
         c = np.asarray(design.correction_db)
         after = _flatness(f, L + c, band)
-        alt_after = _flatness(f, alt + c, band) if alt is not None else np.full(len(names), np.nan)
+        alt_after, raise_db = nan, nan
         worse = after > before + SHARED_EQ_NO_HARM_DB
         if alt is not None:
-            worse |= alt_after > alt_before + SHARED_EQ_NO_HARM_DB
+            alt_after = _flatness(f, alt + c, band)
+            raise_db = np.array([j.worst_raise_db for j in judge_levels(f, alt, c, np.zeros_like(f), band)])
+            worse |= (alt_after > alt_before + SHARED_EQ_NO_HARM_DB) | (raise_db > SHARED_EQ_MAX_RAISE_DB)
         if not worse.any():
-            return SharedEq(config.label, design, band, names, before, after, alt_before, alt_after)
-    return SharedEq(config.label, None, band, names, before, before, alt_before, alt_before, reason)
+            return SharedEq(config.label, design, band, names, before, after, alt_before, alt_after,
+                            perturbed_raise_db=raise_db, freq_hz=f)
+        reason = ("every filter set left a seat or head position worse, in the model or the perturbed room")
+    return SharedEq(config.label, None, band, names, before, before, alt_before, alt_before, reason,
+                    perturbed_raise_db=nan, freq_hz=f)
 
 
 def sub_names(n, current, mains=()):

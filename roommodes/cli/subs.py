@@ -19,6 +19,8 @@ from ..analysis.subs import (
     MIN_GAIN_DB,
     RANKING_RULE,
     SCORE_WEIGHTS,
+    SHARED_EQ_MAX_CUT_DB,
+    SHARED_EQ_MAX_RAISE_DB,
     optimise_subs,
     room_with_config,
     shared_eq,
@@ -183,21 +185,29 @@ def _print_eq(e, rank):
     if e.design is None:
         click.echo(f"  None: {e.reason}.")
         return
-    click.echo(f"  {'#':>2} {'freq Hz':>8} {'gain dB':>8} {'Q':>6}  (peaking filters, Q as in the Audio EQ Cookbook)")
+    click.echo(f"  {'#':>2} {'freq Hz':>8} {'gain dB':>8} {'Q':>6}  (peaking filters, Q as in the Audio EQ Cookbook; "
+               f"cuts at most {SHARED_EQ_MAX_CUT_DB:g} dB deep, boosts broad)")
     for i, flt in enumerate(e.filters, 1):
-        click.echo(f"  {i:>2} {flt.freq_hz:8.1f} {flt.gain_db:+8.1f} {flt.q:6.2f}")
+        click.echo(f"  {i:>2} {flt.freq_hz:8.1f} {flt.gain_db:+8.1f} {flt.q:6.2f}"
+                   + (f"  {flt.role}" if flt.role else "") + (f", Q from {flt.basis}" if flt.basis else ""))
+        for note in flt.at_limit:
+            click.echo(f"     at a limit: {note.replace('--q-range top', 'the Q range top')}")
     boost = max(0.0, float(e.design.max_boost_db))
     click.echo(f"  Largest boost of the combined curve {boost:.1f} dB" + (
         f" at {e.design.max_boost_freq_hz:.0f} Hz: turn the input down by as much first; every main and sub "
         "works that much harder there." if boost > 0.05 else " (cuts only)."))
     perturbed = np.isfinite(e.perturbed_before_db).any()
     click.echo(f"  {'position':<16}{'flatness before':>16}{'after':>8}"
-               + (f"{'room +1 %, absorption x1.3: before':>36}{'after':>8}" if perturbed else ""))
-    for n, a, b, x, y in zip(e.positions, e.flatness_before_db, e.flatness_after_db, e.perturbed_before_db,
-                             e.perturbed_after_db):
-        click.echo(f"  {n:<16}{a:16.1f}{b:8.1f}" + (f"{x:36.1f}{y:8.1f}" if perturbed else ""))
+               + (f"{'room +1 %, absorption x1.3: before':>36}{'after':>8}{'lift':>6}" if perturbed else ""))
+    raise_db = e.perturbed_raise_db if e.perturbed_raise_db is not None else np.full(len(e.positions), np.nan)
+    for n, a, b, x, y, r in zip(e.positions, e.flatness_before_db, e.flatness_after_db, e.perturbed_before_db,
+                                e.perturbed_after_db, raise_db):
+        click.echo(f"  {n:<16}{a:16.1f}{b:8.1f}" + (f"{x:36.1f}{y:8.1f}{r:6.1f}" if perturbed else ""))
+    lo, hi = (e.freq_hz[0], e.freq_hz[-1]) if e.freq_hz is not None else e.band_hz
     click.echo("  (flatness: RMS difference from the position's own mean over the band, dB; each seat and the head "
-               "positions 15 cm around it; the EQ is kept only if none gets worse by more than 0.1 dB.)")
+               "positions 15 cm around it; the EQ is kept only if none gets worse by more than 0.1 dB"
+               + (f", and in the perturbed room none is lifted further above the target by more than "
+                  f"{SHARED_EQ_MAX_RAISE_DB:g} dB ('lift') anywhere in {lo:g}-{hi:g} Hz" if perturbed else "") + ".)")
 
 
 def _write_settings(room_file, room, res, rank, path, force):
