@@ -98,6 +98,9 @@ def test_text_output_plot_and_no_overwrite(small_room, tmp_path):
                    "current positions", "before: as it is", "Ranking: best score first",
                    "Confirm both by measurement at the seats"):
         assert needle in text, needle
+    # in this room the search inverts the subs (the mains' vented roll-off turns their phase): the
+    # output says why, with the phase at the crossover either way
+    assert "polarity - (inverted)" in text and "inverted because" in text
     assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     again = run("subs", small_room, "--plot", out)
     assert again.exit_code == 2 and "already exists" in again.stderr
