@@ -114,7 +114,7 @@ def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_
                   lowcut_order=None, max_filters=6, max_boost_db=6.0, q_range=(0.5, 10.0),
                   speaker=None, sample_rate=48000, smoothing=12, position_levels_db=None,
                   seat_weight=1.0 / 3.0, no_harm_db=0.5, boost_q_max=2.0, modes=None,
-                  schroeder_hz=None, lowest_mode_hz=None):
+                  schroeder_hz=None, lowest_mode_hz=None, max_cut_db=15.0):
     """Design the corrections for one level curve.
 
     Parameters
@@ -155,6 +155,8 @@ def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_
         The room's Schroeder frequency and lowest mode: the default band runs from the
         speaker's roll-off (or the lowest mode) to the Schroeder frequency; a band that
         reaches above it earns a caution.
+    max_cut_db : float
+        Deepest cut of one parametric filter, dB (> 0).
 
     Returns
     -------
@@ -198,7 +200,8 @@ def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_
                   max_boost_db=max_boost_db, sample_rate=sample_rate, position_levels_db=pos,
                   seat_weight=sw, no_harm_db=no_harm_db)
     par = eq.design_parametric(f, lv, tg, band, max_filters=max_filters, q_range=q_range,
-                               boost_q_max=boost_q_max, modes=modes, **common)
+                               gain_range=(-float(max_cut_db), 6.0), boost_q_max=boost_q_max, modes=modes,
+                               **common)
     shelf = eq.design_shelf(f, lv, tg, band, **common)
     g3 = eq.design_graphic(f, lv, tg, band, bands="third", **common)
     g1 = eq.design_graphic(f, lv, tg, band, bands="octave", **common)

@@ -47,6 +47,7 @@ __all__ = [
     "spatial_variance", "mean_spatial_variance", "score_parts", "tune_settings", "candidate_positions",
     "perturbed_room", "SubSetting", "SubConfig", "SubsResult", "optimise_subs", "sub_names", "room_with_config",
     "measured_transfer", "tune_measured", "MEASURED_NOTE", "SharedEq", "shared_eq",
+    "FEWER_SUBS_MARGIN_DB", "IDLE_BELOW_LOUDEST_DB", "IDLE_NEAR_LIMIT_DB", "rank_configs", "RANKING_RULE",
 ]
 
 #: The crossover alignment: Linkwitz-Riley 4th order (two cascaded 2nd-order Butterworth
@@ -69,6 +70,20 @@ MIN_GAIN_DB = -12.0
 #: seats with the mains' (their distances over the speed of sound), ms: the physically sensible
 #: settings, not a whole period of the crossover frequency away.
 DELAY_WINDOW_MS = 5.0
+#: The ranking prefers fewer subs: a configuration with more subs ranks above one with fewer only
+#: when its score is lower by more than this, dB. Our choice: every further sub costs money,
+#: wiring, floor space and setting up, and fewer subs each need less of their amplifier (common
+#: practice is to add subs only when they clearly help); 0.5 dB of score is about as much as the
+#: perturbed room (1 % larger, 1.3 times the absorption) moves the spread, so a smaller
+#: difference is not one the room can be relied on to keep.
+FEWER_SUBS_MARGIN_DB = 0.5
+#: A sub within :data:`IDLE_NEAR_LIMIT_DB` of the lowest gain the search allows, or this far or more
+#: below the loudest sub of its configuration, adds little (at -8 dB 40 % of the loudest sub's
+#: pressure, 16 % of its power): "nearly idle", dB. Our choice.
+IDLE_BELOW_LOUDEST_DB = 8.0
+IDLE_NEAR_LIMIT_DB = 2.0
+RANKING_RULE = (f"best score first, but a configuration with more subs ranks above one with fewer only when its "
+                f"score is lower by more than {FEWER_SUBS_MARGIN_DB:g} dB")
 #: Deviations from the flat target beyond this are clipped in the flatness part, dB.
 FLATNESS_CLIP_DB = 15.0
 
@@ -80,8 +95,10 @@ CAUTIONS = (
     "bottoms out, and keep its own protection (high-pass, limiter) on.",
     "Subs are heavy: stand them on the floor, away from edges and walkways, secure tall or heavy "
     "cabinets as the maker and local codes require, and route cables so nobody trips.",
-    "Delays are set in the DSP or the sub's own control; a 'phase' knob is not a delay. Check polarity and "
-    "delay with a measurement at the seats before trusting the model.",
+    "Delays are set in the DSP or the sub's own control; a 'phase' knob is not a delay. The polarity and delay "
+    "come from the model: an inverted sub is often chosen because the mains' own roll-off (a vented box most) and "
+    "the crossover's high-pass turn their phase near the crossover. Confirm both by measurement at the seats: "
+    "with mains and subs playing, the sum through the crossover should rise, not dip, with the chosen setting.",
 )
 
 
@@ -449,10 +466,14 @@ class SubSetting:
     delay_ms: float
     polarity: int
     headroom_db: float
+    #: Phase of this sub's part (with its polarity) relative to the mains' part at the crossover
+    #: at the main seat, degrees in (-180, 180]; NaN when not computed.
+    phase_to_mains_deg: float = float("nan")
 
     def to_dict(self):
         return {"name": self.name, "position_m": list(self.position_m), "gain_db": self.gain_db,
-                "delay_ms": self.delay_ms, "polarity": int(self.polarity), "headroom_db": self.headroom_db}
+                "delay_ms": self.delay_ms, "polarity": int(self.polarity), "headroom_db": self.headroom_db,
+                "phase_to_mains_deg": self.phase_to_mains_deg}
 
 
 @dataclass(frozen=True, eq=False)
@@ -495,10 +516,22 @@ class SubConfig:
     flatness_db: np.ndarray
     perturbed_seat_spread_db: float = float("nan")
     full_range: bool = False
+    note: str = ""
 
     @property
     def score(self):
         return self.parts["score"]
+
+    @property
+    def idle_subs(self):
+        """The subs that add little: within :data:`IDLE_NEAR_LIMIT_DB` of the lowest gain the search
+        allows (:data:`MIN_GAIN_DB`) or :data:`IDLE_BELOW_LOUDEST_DB` or more below the loudest sub
+        of the configuration."""
+        if not self.subs:
+            return ()
+        top = max(s.gain_db for s in self.subs)
+        return tuple(s for s in self.subs if s.gain_db <= MIN_GAIN_DB + IDLE_NEAR_LIMIT_DB + 1e-9
+                     or s.gain_db <= top - IDLE_BELOW_LOUDEST_DB + 1e-9)
 
     @property
     def seat_spread_db(self):
@@ -506,7 +539,9 @@ class SubConfig:
         return self.parts["spread"]
 
     def to_dict(self):
-        return {"label": self.label, "kind": self.kind, "subs": [s.to_dict() for s in self.subs],
+        idle = {s.name for s in self.idle_subs}
+        return {"label": self.label, "kind": self.kind, "note": self.note,
+                "subs": [{**s.to_dict(), "nearly_idle": s.name in idle} for s in self.subs],
                 "crossover_hz": self.crossover_hz, "mains_delay_ms": self.mains_delay_ms,
                 "mains_high_pass": not self.full_range, "score": self.score,
                 "parts": dict(self.parts), "seat_spread_db": self.seat_spread_db,
@@ -532,6 +567,9 @@ class SubsResult:
     search: SubSearch = field(default_factory=SubSearch)
     sources: dict = field(default_factory=dict)
     level_offset_db: float = 0.0
+    #: Where the ranking put a configuration with fewer subs above a better-scoring one with
+    #: more (:func:`rank_configs`).
+    ranking_notes: tuple = ()
 
     def to_dict(self):
         best = self.ranked[0]
@@ -543,6 +581,8 @@ class SubsResult:
             "signal": "mono bass sum: the same signal to both mains and every sub",
             "candidates": self.n_candidates, "assumed_sub": self.assumed_sub,
             "ranked": [c.to_dict() for c in self.ranked],
+            "ranking": {"rule": RANKING_RULE, "fewer_subs_margin_db": FEWER_SUBS_MARGIN_DB,
+                        "preferred_fewer": [dict(n) for n in self.ranking_notes]},
             "before": self.before.to_dict(),
             "cautions": list(CAUTIONS),
             **({"measured": self.measured_dict()} if self.measured else {}),
@@ -623,10 +663,31 @@ def _make_config(pr, label, kind, names, positions, g, rel_d, s, fc, subs_h, *, 
         parts = score_parts(f, a, t - a, pr.weights, pr.band, fc, pr.target_db)
     level = _level(t)
     dev, flat = _seat_figures(f, level, pr.weights, pr.band)
-    subs = tuple(SubSetting(n, tuple(float(v) for v in p), float(gi), float(di), int(si), float(max(0.0, gi)))
-                 for n, p, gi, di, si in zip(names, positions, g, delays, s))
+    # each sub's phase against the mains at the crossover, at the main seat: why a polarity
+    i = int(np.argmin(np.abs(np.log(f / (fc or BEFORE_CROSSOVER_HZ)))))
+    phases = [float(np.degrees(np.angle(sub_chain(f[i:i + 1], gi, di, si, fc or BEFORE_CROSSOVER_HZ)[0] * h[0, i]
+                                        / (a[0, i] if abs(a[0, i]) > 0 else 1.0))))
+              for gi, di, si, h in zip(g, delays, s, subs_h)]
+    subs = tuple(SubSetting(n, tuple(float(v) for v in p), float(gi), float(di), int(si), float(max(0.0, gi)),
+                            round(ph, 1))
+                 for n, p, gi, di, si, ph in zip(names, positions, g, delays, s, phases))
     return SubConfig(label, kind, subs, None if fc is None else float(fc), float(mains_delay),
                      {k: float(v) for k, v in parts.items()}, level, dev, flat, full_range=full_range)
+
+
+def _allowed_reference(point_m, cands, search):
+    """The reference position, or, when a keep-out holds it, the nearest candidate position
+    (horizontal distance) and a note saying so."""
+    point_m = tuple(float(v) for v in point_m)
+    inside = [b.name for b in search.keep_out if b.contains(np.array([point_m]))[0]]
+    if not inside:
+        return point_m, ""
+    d = np.linalg.norm(cands[:, :2] - np.asarray(point_m)[:2], axis=1)
+    i = int(np.argmin(d))
+    names = ", ".join(f"'{n}'" if n else "a" for n in inside)
+    return tuple(float(v) for v in cands[i]), (
+        f"the front-wall centre lies in the {names} keep-out; moved {100 * d[i]:.0f} cm to the nearest allowed "
+        "candidate position")
 
 
 def _nearest(cands, point, within_m=0.6):
@@ -875,6 +936,18 @@ SHARED_EQ_MAX_BOOST_DB = 3.0
 SHARED_EQ_MAX_FILTERS = 4
 #: A seat (or head position) counts as made worse when its flatness rises by more than this, dB.
 SHARED_EQ_NO_HARM_DB = 0.1
+#: Deepest cut of one filter of the shared EQ, dB. Our choice: one EQ acts at every seat, where a
+#: peak's height differs by about the seat-to-seat spread; a deep narrow notch fitted to the
+#: average overshoots at a seat where the peak is lower or shifted. The eq command allows 15 dB
+#: for one seat.
+SHARED_EQ_MAX_CUT_DB = 8.0
+#: In the perturbed room no seat or head position may be lifted further above the target than it
+#: already was by more than this anywhere on :data:`SHARED_EQ_GRID_HZ`, dB (the tolerance of the
+#: EQ rules' own checks in a perturbed room, docs/eq.md).
+SHARED_EQ_MAX_RAISE_DB = 1.5
+#: The shared EQ is designed and judged on this range (the eq command's): filters act outside the
+#: band they correct, and no harm is checked wherever they act, Hz.
+SHARED_EQ_GRID_HZ = (15.0, 300.0)
 
 
 @dataclass(frozen=True, eq=False)
@@ -908,21 +981,32 @@ class SharedEq:
     perturbed_before_db: np.ndarray
     perturbed_after_db: np.ndarray
     reason: str = ""
+    #: The largest lift further above the target at each position in the perturbed room,
+    #: anywhere on :data:`SHARED_EQ_GRID_HZ` (NaN when not checked), dB.
+    perturbed_raise_db: np.ndarray = None
+    #: The grid of ``design.correction_db``, Hz.
+    freq_hz: np.ndarray = None
 
     @property
     def filters(self):
         return () if self.design is None else tuple(self.design.filters)
 
     def to_dict(self):
+        raise_db = (np.full(len(self.positions), np.nan) if self.perturbed_raise_db is None
+                    else self.perturbed_raise_db)
         d = {"configuration": self.label, "band_hz": list(self.band_hz), "reason": self.reason,
              "filters": [f.to_dict() for f in self.filters],
              "max_boost_db": 0.0 if self.design is None else float(max(0.0, self.design.max_boost_db)),
+             "max_cut_db": SHARED_EQ_MAX_CUT_DB,
              "positions": [{"name": n, "flatness_before_db": float(a), "flatness_after_db": float(b),
-                            "perturbed_before_db": float(c), "perturbed_after_db": float(e)}
-                           for n, a, b, c, e in zip(self.positions, self.flatness_before_db, self.flatness_after_db,
-                                                    self.perturbed_before_db, self.perturbed_after_db)]}
+                            "perturbed_before_db": float(c), "perturbed_after_db": float(e),
+                            "perturbed_raise_db": float(r)}
+                           for n, a, b, c, e, r in zip(self.positions, self.flatness_before_db,
+                                                       self.flatness_after_db, self.perturbed_before_db,
+                                                       self.perturbed_after_db, raise_db)]}
         if self.design is not None:
             d["correction_db"] = self.design.correction_db
+            d["frequencies_hz"] = self.freq_hz
         return d
 
 
@@ -952,7 +1036,8 @@ def _positions_levels(room, freq_hz, method):
 
 
 def shared_eq(room, config, freq_hz, *, method=DEFAULT_METHOD, max_boost_db=SHARED_EQ_MAX_BOOST_DB,
-              max_filters=SHARED_EQ_MAX_FILTERS, level_db=None, check_perturbed=True):
+              max_filters=SHARED_EQ_MAX_FILTERS, max_cut_db=SHARED_EQ_MAX_CUT_DB, level_db=None,
+              check_perturbed=True):
     """One correction EQ for the whole system, designed on the seats' weighted average and
     judged at every seat.
 
@@ -961,8 +1046,10 @@ def shared_eq(room, config, freq_hz, *, method=DEFAULT_METHOD, max_boost_db=SHAR
     weighted power average of the seats' levels, with every seat and the head positions 15 cm
     around each seat as positions the design must not lift further above the target; then
     each position's flatness (RMS deviation from its own mean over the band) is compared
-    before and after, in the model room and in :func:`perturbed_room`. When a position gets
-    worse by more than :data:`SHARED_EQ_NO_HARM_DB`, fewer filters are tried, down to none.
+    before and after, in the model room and in :func:`perturbed_room`, where in addition no
+    position may be lifted further above the target by more than
+    :data:`SHARED_EQ_MAX_RAISE_DB` anywhere on :data:`SHARED_EQ_GRID_HZ`. When a position gets
+    worse, fewer filters are tried, down to none.
 
     Parameters
     ----------
@@ -971,8 +1058,10 @@ def shared_eq(room, config, freq_hz, *, method=DEFAULT_METHOD, max_boost_db=SHAR
         The subs and settings the EQ goes with.
     freq_hz : array_like (F,)
     method : str
-    max_boost_db, max_filters :
-        Limits of the parametric design.
+    max_boost_db, max_filters, max_cut_db :
+        Limits of the parametric design. Cuts take their Q from the peak's own width or the
+        half-power bandwidth of the room mode inside it, boosts stay broad (Q <= 2), as in
+        :func:`roommodes.analysis.correction.correct_curve`.
     level_db : array_like (P, F), optional
         The seats' levels to design on (e.g. from measurements); default the model's. The
         head positions and the perturbed room are then not judged.
@@ -982,46 +1071,58 @@ def shared_eq(room, config, freq_hz, *, method=DEFAULT_METHOD, max_boost_db=SHAR
     -------
     SharedEq
     """
-    from .correction import correct_curve
+    from .correction import _mode_list, correct_curve
+    from .eqcheck import judge_levels
     from .predict import room_schroeder_frequency
 
-    f = np.asarray(freq_hz, dtype=float)
+    f_in = np.asarray(freq_hz, dtype=float)
     r = room_with_config(room, config)
     seats = r.layout.all_seats
     w = seat_weights([s.weight for s in seats])
     if level_db is None:
+        # designed and judged over the range where the filters act, not only the scored band
+        f = log_frequencies(min(SHARED_EQ_GRID_HZ[0], f_in[0]), max(SHARED_EQ_GRID_HZ[1], f_in[-1]), 24)
         names, L = _positions_levels(r, f, method)
     else:
+        f = f_in
         names, L = tuple(s.name for s in seats), np.asarray(level_db, dtype=float)
     L_seats = L[:len(seats)]
     avg = 10.0 * np.log10(np.maximum(w @ 10.0 ** (L_seats / 10.0), 1e-30))
     subs = r.layout.subs
-    low = max([float(f[0])] + [s.lowcut_hz for s in subs if s.lowcut_hz])
+    low = max([float(f_in[0])] + [s.lowcut_hz for s in subs if s.lowcut_hz])
     fs = room_schroeder_frequency(room)
-    band = (low, float(min(f[-1], fs)))
+    band = (low, float(min(f_in[-1], fs)))
     order = max([s.lowcut_order for s in subs if s.lowcut_hz] or [2])
+    modes = _mode_list(room, float(f[-1]))
     alt = None
     if check_perturbed and level_db is None:
         _, alt = _positions_levels(perturbed_room(r), f, method)
+    nan = np.full(len(names), np.nan)
     before = _flatness(f, L, band)
-    alt_before = _flatness(f, alt, band) if alt is not None else np.full(len(names), np.nan)
+    alt_before = _flatness(f, alt, band) if alt is not None else nan
     reason = "no filter set brought every seat closer to flat"
     for n in range(max_filters, 0, -1):
         corr = correct_curve("system", f, avg, band_hz=band, position_levels_db=L, lowcut_hz=low,
-                             lowcut_order=order, max_filters=n, max_boost_db=max_boost_db, schroeder_hz=fs)
+                             lowcut_order=order, max_filters=n, max_boost_db=max_boost_db, schroeder_hz=fs,
+                             modes=modes, max_cut_db=max_cut_db)
         design = corr.parametric
         if not design.filters:
             reason = "the seats' average is already as flat as the filters can make it without harm at a seat"
             break
         c = np.asarray(design.correction_db)
         after = _flatness(f, L + c, band)
-        alt_after = _flatness(f, alt + c, band) if alt is not None else np.full(len(names), np.nan)
+        alt_after, raise_db = nan, nan
         worse = after > before + SHARED_EQ_NO_HARM_DB
         if alt is not None:
-            worse |= alt_after > alt_before + SHARED_EQ_NO_HARM_DB
+            alt_after = _flatness(f, alt + c, band)
+            raise_db = np.array([j.worst_raise_db for j in judge_levels(f, alt, c, np.zeros_like(f), band)])
+            worse |= (alt_after > alt_before + SHARED_EQ_NO_HARM_DB) | (raise_db > SHARED_EQ_MAX_RAISE_DB)
         if not worse.any():
-            return SharedEq(config.label, design, band, names, before, after, alt_before, alt_after)
-    return SharedEq(config.label, None, band, names, before, before, alt_before, alt_before, reason)
+            return SharedEq(config.label, design, band, names, before, after, alt_before, alt_after,
+                            perturbed_raise_db=raise_db, freq_hz=f)
+        reason = ("every filter set left a seat or head position worse, in the model or the perturbed room")
+    return SharedEq(config.label, None, band, names, before, before, alt_before, alt_before, reason,
+                    perturbed_raise_db=nan, freq_hz=f)
 
 
 def sub_names(n, current, mains=()):
@@ -1064,6 +1165,42 @@ def room_with_config(room, config):
                             polarity=int(st.polarity)).moved(st.position_m))
     system = SystemSettings(None if config.full_range else config.crossover_hz, float(config.mains_delay_ms))
     return replace(room, layout=replace(lay, speakers=tuple(lay.mains) + tuple(subs)), system=system)
+
+
+def rank_configs(configs, margin_db=FEWER_SUBS_MARGIN_DB):
+    """Rank configurations, best first, preferring fewer subs when more gain little.
+
+    Repeatedly, among the configurations left, those whose score is within ``margin_db`` of the
+    lowest score left are the contenders, and the one with the fewest subs among them (then the
+    lowest score) comes next. So a configuration with more subs ranks above one with fewer
+    only when its score is lower by more than ``margin_db``.
+
+    Parameters
+    ----------
+    configs : sequence of SubConfig
+    margin_db : float
+        See :data:`FEWER_SUBS_MARGIN_DB`.
+
+    Returns
+    -------
+    ranked : tuple of SubConfig
+    notes : tuple of dict
+        One per place where a configuration with fewer subs was put above the lowest-scoring
+        one left: ``fewer`` and ``more`` (labels), ``fewer_subs``, ``more_subs`` (counts) and
+        ``score_difference_db`` (how much better the one with more subs scored).
+    """
+    left = sorted(configs, key=lambda c: c.score)
+    ranked, notes = [], []
+    while left:
+        best = left[0]
+        contenders = [c for c in left if c.score <= best.score + margin_db]
+        pick = min(contenders, key=lambda c: (len(c.subs), c.score))
+        if pick is not best:
+            notes.append({"fewer": pick.label, "more": best.label, "fewer_subs": len(pick.subs),
+                          "more_subs": len(best.subs), "score_difference_db": float(pick.score - best.score)})
+        ranked.append(pick)
+        left.remove(pick)
+    return tuple(ranked), tuple(notes)
 
 
 def crossover_grid(crossover_hz, step_hz=5.0):
@@ -1162,8 +1299,10 @@ def optimise_subs(room, layout=None, search=None, *, method=DEFAULT_METHOD, poin
     if current:
         h_cur = speaker_levels(room, current, seats_m, f, method=method).transfer
         configs.append(finish("current positions", "current", cur_pos, h_cur, [s.name for s in current], None))
+    front_centre, front_note = _allowed_reference(front_centre, cands, search)
     h_front = speaker_levels(room, [proto.moved(front_centre)], seats_m, f, method=method).transfer
-    configs.append(finish("front-wall centre", "reference", np.array([front_centre]), h_front, [proto.name], None))
+    configs.append(replace(finish("front-wall centre", "reference", np.array([front_centre]), h_front, [proto.name],
+                                  None), note=front_note))
     if current:
         before = _as_it_is(pr, room, current, h_cur)
     else:
@@ -1183,5 +1322,6 @@ def optimise_subs(room, layout=None, search=None, *, method=DEFAULT_METHOD, poin
                                  full_range=c.full_range)
             out.append(replace(c, perturbed_seat_spread_db=alt_c.seat_spread_db))
         configs, before = out[:-1], out[-1]
-    ranked = tuple(sorted(configs, key=lambda c: c.score))
-    return SubsResult(f, seats, band, ranked, before, method, len(cands), cands, not current, search)
+    ranked, notes = rank_configs(configs)
+    return SubsResult(f, seats, band, ranked, before, method, len(cands), cands, not current, search,
+                      ranking_notes=notes)

@@ -13,8 +13,14 @@ from ..analysis.subs import (
     BEFORE_CROSSOVER_HZ,
     CAUTIONS,
     CROSSOVER_TYPE,
+    IDLE_BELOW_LOUDEST_DB,
+    IDLE_NEAR_LIMIT_DB,
     MEASURED_NOTE,
+    MIN_GAIN_DB,
+    RANKING_RULE,
     SCORE_WEIGHTS,
+    SHARED_EQ_MAX_CUT_DB,
+    SHARED_EQ_MAX_RAISE_DB,
     optimise_subs,
     room_with_config,
     shared_eq,
@@ -43,6 +49,10 @@ from ._util import (
 def _maybe(v):
     """A figure, or "-" when it was not computed (NaN)."""
     return "-" if not np.isfinite(v) else f"{v:.2f}"
+
+
+def _count(n):
+    return f"{n} sub{'s' if n != 1 else ''}"
 
 
 def _polarity(p):
@@ -175,21 +185,29 @@ def _print_eq(e, rank):
     if e.design is None:
         click.echo(f"  None: {e.reason}.")
         return
-    click.echo(f"  {'#':>2} {'freq Hz':>8} {'gain dB':>8} {'Q':>6}  (peaking filters, Q as in the Audio EQ Cookbook)")
+    click.echo(f"  {'#':>2} {'freq Hz':>8} {'gain dB':>8} {'Q':>6}  (peaking filters, Q as in the Audio EQ Cookbook; "
+               f"cuts at most {SHARED_EQ_MAX_CUT_DB:g} dB deep, boosts broad)")
     for i, flt in enumerate(e.filters, 1):
-        click.echo(f"  {i:>2} {flt.freq_hz:8.1f} {flt.gain_db:+8.1f} {flt.q:6.2f}")
+        click.echo(f"  {i:>2} {flt.freq_hz:8.1f} {flt.gain_db:+8.1f} {flt.q:6.2f}"
+                   + (f"  {flt.role}" if flt.role else "") + (f", Q from {flt.basis}" if flt.basis else ""))
+        for note in flt.at_limit:
+            click.echo(f"     at a limit: {note.replace('--q-range top', 'the Q range top')}")
     boost = max(0.0, float(e.design.max_boost_db))
     click.echo(f"  Largest boost of the combined curve {boost:.1f} dB" + (
         f" at {e.design.max_boost_freq_hz:.0f} Hz: turn the input down by as much first; every main and sub "
         "works that much harder there." if boost > 0.05 else " (cuts only)."))
     perturbed = np.isfinite(e.perturbed_before_db).any()
     click.echo(f"  {'position':<16}{'flatness before':>16}{'after':>8}"
-               + (f"{'room +1 %, absorption x1.3: before':>36}{'after':>8}" if perturbed else ""))
-    for n, a, b, x, y in zip(e.positions, e.flatness_before_db, e.flatness_after_db, e.perturbed_before_db,
-                             e.perturbed_after_db):
-        click.echo(f"  {n:<16}{a:16.1f}{b:8.1f}" + (f"{x:36.1f}{y:8.1f}" if perturbed else ""))
+               + (f"{'room +1 %, absorption x1.3: before':>36}{'after':>8}{'lift':>6}" if perturbed else ""))
+    raise_db = e.perturbed_raise_db if e.perturbed_raise_db is not None else np.full(len(e.positions), np.nan)
+    for n, a, b, x, y, r in zip(e.positions, e.flatness_before_db, e.flatness_after_db, e.perturbed_before_db,
+                                e.perturbed_after_db, raise_db):
+        click.echo(f"  {n:<16}{a:16.1f}{b:8.1f}" + (f"{x:36.1f}{y:8.1f}{r:6.1f}" if perturbed else ""))
+    lo, hi = (e.freq_hz[0], e.freq_hz[-1]) if e.freq_hz is not None else e.band_hz
     click.echo("  (flatness: RMS difference from the position's own mean over the band, dB; each seat and the head "
-               "positions 15 cm around it; the EQ is kept only if none gets worse by more than 0.1 dB.)")
+               "positions 15 cm around it; the EQ is kept only if none gets worse by more than 0.1 dB"
+               + (f", and in the perturbed room none is lifted further above the target by more than "
+                  f"{SHARED_EQ_MAX_RAISE_DB:g} dB ('lift') anywhere in {lo:g}-{hi:g} Hz" if perturbed else "") + ".)")
 
 
 def _write_settings(room_file, room, res, rank, path, force):
@@ -270,17 +288,40 @@ def _print(room, res, elapsed):
                if np.isfinite(best.perturbed_seat_spread_db) else "")
         click.echo(f"Best: {best.label}. Seat-to-seat spread {b.seat_spread_db:.1f} dB before, "
                    f"{best.seat_spread_db:.1f} dB after{alt}.")
-    by_n = {len(c.subs): c for c in res.ranked if c.kind == "search"}
-    if 4 in by_n and 2 in by_n and by_n[2].score - by_n[4].score < 0.25:
-        click.echo(f"Four subs gain only {by_n[2].score - by_n[4].score:.2f} dB of score over two here; two will do.")
+    click.echo(f"Ranking: {RANKING_RULE} (fewer subs cost less, are simpler to set up and each keeps more "
+               "headroom; docs/subs.md).")
+    for n in res.ranking_notes:
+        more = n["more"] if n["more"] == _count(n["more_subs"]) else f"{_count(n['more_subs'])} ({n['more']})"
+        fewer = str(n["fewer_subs"]) if n["fewer"] == _count(n["fewer_subs"]) else f"{n['fewer']}"
+        click.echo(f"  {more} {'are' if n['more_subs'] != 1 else 'is'} only {n['score_difference_db']:.2f} dB "
+                   f"better than {fewer}; {fewer} ranked first.")
     for i, c in enumerate(res.ranked):
         click.echo("")
         click.echo(f"#{i + 1} {c.label}: crossover {c.crossover_hz:g} Hz ({CROSSOVER_TYPE}: low-pass on the subs, "
                    f"high-pass on the mains); delay the mains by {c.mains_delay_ms:.2f} ms")
+        if c.note:
+            click.echo(f"  Note: {c.note}.")
+        idle = {st.name for st in c.idle_subs}
         for st in c.subs:
             click.echo(f"  {st.name}: {walls_text(room, st.position_m)}")
             click.echo(f"    gain {st.gain_db:+.1f} dB, delay {st.delay_ms:.2f} ms, polarity {_polarity(st.polarity)}; "
-                       f"headroom needed {st.headroom_db:.1f} dB")
+                       f"headroom needed {st.headroom_db:.1f} dB" + ("; nearly idle" if st.name in idle else ""))
+            normal = (st.phase_to_mains_deg + 360.0) % 360.0 - 180.0
+            if st.polarity < 0 and st.name not in idle and abs(normal) - abs(st.phase_to_mains_deg) >= 30.0:
+                click.echo(f"    inverted because at the {c.crossover_hz:g} Hz crossover, at the main seat, it would "
+                           f"arrive {abs(normal):.0f} deg out of step with the mains at normal polarity, inverted "
+                           f"{abs(st.phase_to_mains_deg):.0f} deg (the mains' own roll-off and their high-pass turn "
+                           "their phase; the paths and the room add theirs). Confirm by measurement.")
+            elif st.polarity < 0 and st.name not in idle:
+                click.echo("    inverted because it scored better over the band; at the crossover its phase to the "
+                           "mains is near 90 deg either way, so the choice matters less there. Confirm by measurement.")
+        if idle:
+            fewer = len(c.subs) - len(idle)
+            click.echo(f"  {', '.join(sorted(idle))} {'are' if len(idle) > 1 else 'is'} nearly idle (within "
+                       f"{IDLE_NEAR_LIMIT_DB:g} dB of the {MIN_GAIN_DB:g} dB limit or {IDLE_BELOW_LOUDEST_DB:g} dB or "
+                       "more below the loudest sub): "
+                       f"{'they add' if len(idle) > 1 else 'it adds'} little; this works much like {_count(fewer)}, "
+                       "and a configuration with fewer subs is simpler.")
         click.echo(f"  {'seat':<14}{'spread before':>15}{'after':>8}{'flatness before':>17}{'after':>8}")
         for p, seat in enumerate(res.seats):
             click.echo(f"  {seat.name:<14}{b.seat_deviation_db[p]:15.1f}{c.seat_deviation_db[p]:8.1f}"

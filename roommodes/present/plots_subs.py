@@ -42,22 +42,23 @@ def _plan(ax, room, result, config, mains_m, legend):
         ax.text(0.5 * (box.min_m[1] + box.max_m[1]), 0.5 * (box.min_m[0] + box.max_m[0]), box.name, ha="center",
                 va="center", fontsize=6.5, color="0.4")
     c = result.candidates_m
-    ax.plot(c[:, 1], c[:, 0], ".", color="0.8", ms=2.5, label="candidate sub positions")
-    ax.plot(mains_m[:, 1], mains_m[:, 0], "s", color=PALETTE[0], ms=7, mec="white", label="mains")
+    if len(c):  # none with --measured: the subs stay where they stand
+        ax.plot(c[:, 1], c[:, 0], ".", color="0.8", ms=2.5, label="candidate sub positions" if legend else None)
+    ax.plot(mains_m[:, 1], mains_m[:, 0], "s", color=PALETTE[0], ms=7, mec="white", label="mains" if legend else None)
     for p, seat in enumerate(result.seats):
         ax.plot(seat.position_m[1], seat.position_m[0], "o", color=PALETTE[p % len(PALETTE)], ms=8, mec="0.2",
-                label="seats" if p == 0 else None)
-    for k, s in enumerate(config.subs):
-        ax.plot(s.position_m[1], s.position_m[0], "D", color=PALETTE[1], ms=9, mec="0.1",
-                label="subs" if k == 0 else None)
-        # the label points toward the middle of the room, away from the walls
-        right = s.position_m[1] < ly / 2
-        down = s.position_m[0] < lx / 2
-        ax.annotate(f"{s.name}\n{s.gain_db:+.1f} dB, {s.delay_ms:.1f} ms, {'+' if s.polarity > 0 else '-'}",
-                    (s.position_m[1], s.position_m[0]), textcoords="offset points",
-                    xytext=(7 if right else -7, -8 if down else 8), ha="left" if right else "right",
-                    va="top" if down else "bottom", fontsize=6.5,
-                    bbox={"facecolor": "white", "alpha": 0.8, "edgecolor": "none", "pad": 0.8})
+                label="seats" if p == 0 and legend else None)
+    # each sub numbered on the plan; its name and settings in the legend beside it (no labels to
+    # collide on the plan however close the subs stand)
+    idle = {s.name for s in getattr(config, "idle_subs", ())}
+    for k, s in enumerate(config.subs, 1):
+        quiet = s.name in idle
+        ax.plot(s.position_m[1], s.position_m[0], "D", color=PALETTE[1], ms=11, mec="0.1",
+                mfc="white" if quiet else PALETTE[1],
+                label=(f"{k}: {s.name}, {s.gain_db:+.1f} dB, {s.delay_ms:.2f} ms, "
+                       f"{'+' if s.polarity > 0 else '-'}{' (nearly idle)' if quiet else ''}"))
+        ax.text(s.position_m[1], s.position_m[0], str(k), ha="center", va="center", fontsize=6.5,
+                fontweight="bold", color="0.1" if quiet else "white", gid="sub-number")
     ax.set_xlim(-0.1, ly + 0.1)
     ax.set_ylim(lx + 0.1, -0.45)
     ax.set_aspect("equal")
@@ -65,14 +66,16 @@ def _plan(ax, room, result, config, mains_m, legend):
     ax.tick_params(labelsize=7)
     ax.set_xlabel("from the left wall (m)", fontsize=7.5)
     ax.set_ylabel("from the front wall (m)", fontsize=7.5)
-    if legend:
-        ax.legend(fontsize=6.5, loc="upper left", bbox_to_anchor=(1.03, 1.0), framealpha=0.85)
+    if ax.get_legend_handles_labels()[0]:
+        ax.legend(fontsize=6.5, loc="upper left", bbox_to_anchor=(1.03, 1.0), framealpha=0.85,
+                  title="subs: gain, delay, polarity" if config.subs else None, title_fontsize=6.5)
 
 
 def plot_subs(result, room, mains_m, title=None, path=None):
     """One row per configuration (the ranked ones, then the file's layout as it is): the level
-    of the mono sum at every seat, and a floor plan with the subs (annotated with their gain,
-    delay and polarity), the mains and the seats.
+    of the mono sum at every seat, and a floor plan with the subs (numbered; each one's gain,
+    delay and polarity in the legend beside the plan, a nearly idle sub drawn hollow), the mains
+    and the seats.
 
     Parameters
     ----------
@@ -87,7 +90,7 @@ def plot_subs(result, room, mains_m, title=None, path=None):
     configs = [*result.ranked, result.before]
     lx, ly, _ = room.size_m
     plan_w = 2.6 * ly / lx
-    fig, axes = new_figure(8.6 + plan_w, 2.7 * len(configs), nrows=len(configs), ncols=2,
+    fig, axes = new_figure(10.4 + plan_w, 2.7 * len(configs), nrows=len(configs), ncols=2,
                            gridspec_kw={"width_ratios": [7.0, plan_w]}, squeeze=False)
     lv = np.concatenate([c.level_db.ravel() for c in configs])
     ylim = (np.floor(np.percentile(lv, 1) / 5) * 5 - 5, np.ceil(lv.max() / 5) * 5 + 3)

@@ -36,7 +36,7 @@ from ..analysis.fit import fit_room
 from ..analysis.maps import floor_level_map, mode_coupling
 from ..analysis.predict import band_figures, predict, response_features, usable_band
 from ..analysis.search import PARTS, front_distance_profile, search_layouts, search_space, seat_score_map
-from ..analysis.subs import BEFORE_CROSSOVER_HZ, CROSSOVER_TYPE, optimise_subs
+from ..analysis.subs import BEFORE_CROSSOVER_HZ, CROSSOVER_TYPE, RANKING_RULE, optimise_subs
 from ..analysis.subs import CAUTIONS as SUB_CAUTIONS
 from ..analysis.summary import room_summary
 from ..dsp.response import log_frequencies
@@ -991,13 +991,18 @@ def _section_subs(run):
     doc.table("subs-configurations", "Sub configurations ranked (score in dB, lower is better)",
               ("configuration", "subs", "crossover (Hz)", "score", "spread (dB)", "flatness (dB)",
                "spread, perturbed room (dB)"), rows,
-              note="Perturbed room: 1 % larger with 1.3 times the absorption, the same settings.", key="subs")
+              note="Perturbed room: 1 % larger with 1.3 times the absorption, the same settings. Ranking: "
+                   + RANKING_RULE + "." + "".join(
+                       f" {n['more']} scored only {n['score_difference_db']:.2f} dB better than {n['fewer']}, which "
+                       "ranks first." for n in res.ranking_notes)
+                   + "".join(f" {c.label}: {c.note}." for c in res.ranked if c.note), key="subs")
     step("subwoofer figure")
     mains_m = [m.position_m for m in layout.mains]
     fig = plot_subs(res, room, mains_m, title=f"Subwoofers: {room.name}")
     doc.figure(fig, "subs", "Level of the mono sum at every seat, and where the subs go",
                "One row per configuration, the file's layout as it is last: left, the level at each seat; right, "
-               "the floor plan with the subs (gain, delay, polarity), the mains and the seats.")
+               "the floor plan with the subs (numbered; gain, delay and polarity in the legend, a nearly idle sub "
+               "hollow), the mains and the seats.")
     doc.raw('<div class="caution"><strong>Before setting up the subs</strong><ul>'
             + "".join(f"<li>{_esc(t)}</li>" for t in SUB_CAUTIONS) + "</ul></div>")
 
