@@ -750,6 +750,10 @@ class Region:
         neighbour positions, dB; ``nan`` without neighbours.
     reasons : tuple of str
         Why the region got its kind.
+    whole_hz : (float, float, float) or None
+        For a peak that runs on below the band's low edge: where the whole peak's top lies
+        and the edges of its half-height span on the computed grid, ``(top, lo, hi)``, Hz
+        (its ``width_octaves`` is then the whole peak's). ``None`` otherwise.
     """
 
     kind: str
@@ -760,13 +764,17 @@ class Region:
     width_octaves: float
     spread_db: float
     reasons: tuple = ()
+    whole_hz: tuple | None = None
 
     def to_dict(self):
         """Plain dict of the fields."""
-        return {"kind": self.kind, "freq_hz": [self.freq_lo_hz, self.freq_hi_hz],
-                "freq_extreme_hz": self.freq_extreme_hz, "deviation_db": self.deviation_db,
-                "width_octaves": self.width_octaves, "spread_db": _num(self.spread_db),
-                "reasons": list(self.reasons)}
+        d = {"kind": self.kind, "freq_hz": [self.freq_lo_hz, self.freq_hi_hz],
+             "freq_extreme_hz": self.freq_extreme_hz, "deviation_db": self.deviation_db,
+             "width_octaves": self.width_octaves, "spread_db": _num(self.spread_db),
+             "reasons": list(self.reasons)}
+        if self.whole_hz is not None:
+            d["whole_peak_hz"] = list(self.whole_hz)
+        return d
 
 
 @dataclass(frozen=True)
@@ -918,11 +926,22 @@ def classify_regions(freq_hz, level_db, target_db, band_hz, neighbour_levels_db=
         # width at half height on the whole band's curve, not only the part beyond the
         # threshold (a 2 dB peak 1 grid point above 1.5 dB is not 0 octaves wide)
         width = _eqfit.run_width_octaves(fb, db, a + j, abs(extreme) / 2)
+        whole = None
+        if s > 0 and a == 0:
+            # a peak cut off by the band's low edge (the speaker's roll-off or the lowest
+            # mode): its top and width are those of the whole peak. Not past the top edge:
+            # there the prediction is indicative only (Schroeder) or the channel stops playing.
+            whole = _whole_peak(f, dev, idx[a], -1, thr)
+            if whole is not None:
+                width = whole[3]
         spread = float("nan")
         if nb is not None:
             spread = float(np.ptp(np.concatenate([[lv[idx[a + j]]], nb[:, idx[a + j]]])))
         if s > 0:
             kind, reasons = "peak", [f"{extreme:+.1f} dB above target over {width:.2f} oct"]
+            if whole is not None:
+                reasons = [f"{extreme:+.1f} dB above target at the band's edge; the whole peak tops "
+                           f"{whole[4]:+.1f} dB at {whole[0]:.1f} Hz, {width:.2f} oct wide at half height"]
         else:
             depth = -extreme
             reasons = []
@@ -954,8 +973,38 @@ def classify_regions(freq_hz, level_db, target_db, band_hz, neighbour_levels_db=
                                       else f", stable across positions ({spread:.1f} dB)"))
         labels[idx[a:b]] = kind
         regions.append(Region(kind, float(fr[0]), float(fr[-1]), float(fr[j]), extreme, width,
-                              spread, tuple(reasons)))
+                              spread, tuple(reasons), None if whole is None else tuple(whole[:3])))
     return Classification(f, dev, labels, tuple(regions), band)
+
+
+def _whole_peak(f, dev, edge, step, threshold_db):
+    """A peak that runs past the band's edge at grid index ``edge``, followed outward
+    (``step`` -1 below the band, +1 above it) on the whole grid while the deviation stays above
+    ``threshold_db``. Returns ``(top_hz, lo_hz, hi_hz, width_octaves, top_db)`` of the whole
+    peak (half-height span), or ``None`` when it does not continue past the edge (or the
+    target is undefined there)."""
+    k = edge + step
+    if not (0 <= k < f.size) or not np.isfinite(dev[k]) or dev[k] <= threshold_db:
+        return None
+    run = [edge]
+    while 0 <= k < f.size and np.isfinite(dev[k]) and dev[k] > threshold_db:
+        run.append(k)
+        k += step
+    # the in-band part of the run, too: the whole peak is one feature
+    k = edge - step
+    while 0 <= k < f.size and np.isfinite(dev[k]) and dev[k] > threshold_db:
+        run.append(k)
+        k -= step
+    run = np.sort(np.array(run))
+    top = int(run[np.argmax(dev[run])])
+    d = np.where(np.isfinite(dev), dev, -1e3)
+    width = _eqfit.run_width_octaves(f, d, top, d[top] / 2)
+    lo = hi = top
+    while lo > 0 and d[lo - 1] >= d[top] / 2:
+        lo -= 1
+    while hi < f.size - 1 and d[hi + 1] >= d[top] / 2:
+        hi += 1
+    return (float(f[top]), float(f[lo]), float(f[hi]), float(width), float(d[top]))
 
 
 def _split_run(v, lo, hi, split_db):
@@ -1502,17 +1551,26 @@ def design_parametric(freq_hz, level_db, target_db, band_hz, *, max_filters=6,
     bq = _finite_float("boost_q_max", boost_q_max, lo=0.0, lo_open=True, hi=100.0)
     fitted = []
     if p.allowed.sum() >= 3:
-        dev = (p.design - p.target)[p.allowed]
+        # a peak that runs on past the band's edge is one feature: its cut is placed on the
+        # whole peak, and the fit sees the part outside the band too (where the cut acts)
+        fit = p.allowed.copy()
+        for r in p.cls.regions:
+            if r.kind == "peak" and r.whole_hz is not None:
+                fit |= (p.f >= r.whole_hz[1] * (1 - 1e-9)) & (p.f <= r.whole_hz[2] * (1 + 1e-9)) \
+                    & np.isfinite(p.target)
+        dev = (p.design - p.target)[fit]
         # a boost may move over the dip's half-depth span, a cut's Q follows its peak's width
         boostable = [(min(r.freq_lo_hz, r.freq_extreme_hz * 2 ** (-r.width_octaves / 2)),
                       max(r.freq_hi_hz, r.freq_extreme_hz * 2 ** (r.width_octaves / 2)))
                      for r in p.cls.regions if r.kind == "broad dip"]
-        peaks = [(r.freq_lo_hz, r.freq_hi_hz, r.width_octaves) for r in p.cls.regions if r.kind == "peak"]
+        peaks = [(r.freq_lo_hz, r.freq_hi_hz, r.width_octaves) if r.whole_hz is None else
+                 (min(r.freq_lo_hz, r.whole_hz[1]), max(r.freq_hi_hz, r.whole_hz[2]), r.width_octaves, r.whole_hz[0])
+                 for r in p.cls.regions if r.kind == "peak"]
         fitted = _eqfit.fit_cuts_and_boosts(
-            p.f[p.allowed], dev, p.make_limits(boost_cost=bc), p.band, qr, gain_bounds, nf, p.fs,
+            p.f[fit], dev, p.make_limits(boost_cost=bc), p.band, qr, gain_bounds, nf, p.fs,
             boostable=boostable, peaks=peaks, boost_q_max=bq,
             cut_q=_mode_cut_q(modes, bandwidth_octaves_to_q),
-            boost_cost=bc, stop_db=sd, weights=p.weights)
+            boost_cost=bc, stop_db=sd, weights=_eqfit.log_weights(p.f)[fit])
     specs = [sp for sp, _ in fitted]
     metas = []
     for _, m in fitted:

@@ -79,6 +79,7 @@ def references(room, with_image):
 def main(argv):
     with_image = "--image" in argv
     f = log_frequencies(15.0, 300.0, 48)
+    summary = []
     for key, room in study_rooms():
         t0 = time.perf_counter()
         corr, _ = correct_prediction(room, freq_hz=f)
@@ -99,8 +100,17 @@ def main(argv):
                 worst = max(j.worst_raise_db for j in js)
                 print(f"    {name:<6} " + "  ".join(cells) + f"  | worst lift above target {worst:+.2f} dB")
                 heads = [j.reduction for j in js[1:]]
+                summary.append((key, ref, name, js[0].reduction, min(heads), worst))
                 print(f"           seat {100 * js[0].reduction:.0f}% lower; head positions {100 * min(heads):.0f}%"
                       f" to {100 * max(heads):.0f}% lower (mean {100 * np.mean(heads):.0f}%)")
+    print("\nSummary (fall of the rms deviation at the seat, least fall over the head positions, worst lift "
+          "above target in 15-300 Hz; worst channel of each room):")
+    print(f"  {'room':<14}{'reference':<11}{'seat':>7}{'heads':>7}{'lift dB':>9}")
+    for key in dict.fromkeys(k for k, *_ in summary):
+        for ref in dict.fromkeys(r for k, r, *_ in summary if k == key):
+            rows = [s for s in summary if s[0] == key and s[1] == ref]
+            print(f"  {key:<14}{ref:<11}{100 * min(r[3] for r in rows):6.0f}%{100 * min(r[4] for r in rows):6.0f}%"
+                  f"{max(r[5] for r in rows):+9.2f}")
 
 
 if __name__ == "__main__":
