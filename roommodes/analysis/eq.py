@@ -52,6 +52,7 @@ __all__ = [
     "FILTER_TYPES",
     "EXPORT_SAMPLE_RATES",
     "REGION_KINDS",
+    "STABLE_SHARE",
     "CAUTIONS",
     "Filter",
     "bandwidth_octaves_to_q",
@@ -127,6 +128,9 @@ _SPREAD_DB = 6.0
 _SPLIT_DB = 3.0
 _MIN_BOOST_OCTAVES = 1.0 / 3.0
 _BOOST_Q_MAX = 2.0
+#: With an ensemble of drawn rooms, a peak is cut only when present in at least this share
+#: of them ("most"; see :func:`design_parametric`).
+STABLE_SHARE = 0.6
 
 
 # ========================================================================================
@@ -443,6 +447,13 @@ class Filter:
     at_limit : tuple of str
         The limits the design left this filter at (Q, gain, frequency), each a phrase for
         the user; empty when it sits inside all of them.
+    stability : tuple of (str, float)
+        For a design held to an ensemble of drawn rooms (:func:`design_parametric`'s
+        ``ensemble_db``): ``samples``, ``present_share`` (share of the rooms in which the
+        feature is present near the filter), ``freq_spread_octaves`` (10-90 % range of
+        where its top lies), ``bandwidth_octaves`` (the filter's), ``design_gain_db`` (the
+        gain the single model asked for) and ``depth_share`` (the gain kept, as a share of
+        it). Empty otherwise.
     """
 
     type: str
@@ -452,6 +463,7 @@ class Filter:
     role: str = field(default="", compare=False)
     basis: str = field(default="", compare=False)
     at_limit: tuple = field(default=(), compare=False)
+    stability: tuple = field(default=(), compare=False)
 
     def __post_init__(self):
         if self.type not in FILTER_TYPES:
@@ -511,6 +523,8 @@ class Filter:
         if self.basis:
             d["q_basis"] = self.basis
         d["at_limit"] = list(self.at_limit)
+        if self.stability:
+            d["stability"] = {k: _num(v) for k, v in self.stability}
         if self.type == "peaking":
             d["bandwidth_octaves"] = self.bandwidth_octaves
             d["q_3db_below_peak"] = _num(q_at_3db_below_peak(self.q, self.gain_db))
@@ -1079,7 +1093,9 @@ class EqWarning:
     code : str
         Stable identifier: ``"vented_boost_refused"``, ``"shortfall_remains"`` (more
         than 3 dB below target where correction is allowed, after the design),
-        ``"boost_scaled"``, ``"boost_into_null_removed"``, ``"channel_headroom_differs"``.
+        ``"boost_scaled"``, ``"boost_into_null_removed"``, ``"channel_headroom_differs"``,
+        ``"peak_left_uncertain"`` / ``"boost_left_uncertain"`` (a filter the single model
+        asks for, left out by a design held to drawn rooms).
     message : str
         One sentence for the user.
     freq_hz : (float, float) or None
@@ -1262,7 +1278,106 @@ def _annotated(spec, meta, scale=1.0):
     if near(f0, flo) or near(f0, fhi):
         at.append(f"frequency {f0:.1f} Hz at the edge of {meta.get('f_limit', 'its range')} "
                   f"({flo:.1f}-{fhi:.1f} Hz)")
-    return Filter(kind, f0, g, q, role=meta["role"], basis=meta.get("basis", ""), at_limit=tuple(at))
+    return Filter(kind, f0, g, q, role=meta["role"], basis=meta.get("basis", ""), at_limit=tuple(at),
+                  stability=tuple(meta.get("stability", ())))
+
+
+def _hold_to_ensemble(p, specs, metas, ensemble_db, stable_share, threshold_db=_REGION_THRESHOLD_DB):
+    """Hold a fitted design to an ensemble of curves from drawn rooms.
+
+    Each cut is kept only when its peak is stable across the ensemble: present (a top more
+    than ``threshold_db`` above the target; the one nearest the cut) within one bandwidth
+    of the cut in at least ``stable_share`` of the curves, and its top moving
+    (10-90 % range) by no more than the cut's bandwidth. Then every filter's gain is
+    sized to the ensemble: the share of its gain (0 to 1, never more than the single
+    model asked for) that minimises the median over the drawn rooms of the rms deviation
+    from the target (its shape aligned to each curve's own level, uniform weight per
+    octave, where EQ may act; with several positions per room, their rms weighted like the
+    design's curve: the seat ``seat_weight``, the head positions the rest), filter by
+    filter, twice round.
+
+    Returns ``(specs, metas, warnings)``.
+    """
+    f = p.f
+    ens = np.asarray(ensemble_db, dtype=float)
+    ens = ens[:, None, :] if ens.ndim == 2 else ens
+    if ens.ndim != 3 or ens.shape[2] != f.size or not np.all(np.isfinite(ens[..., p.sel])):
+        raise ValueError(f"ensemble_db must be finite, of shape (N, {f.size}) or (N, P, {f.size})")
+    n = ens.shape[0]
+    # each drawn curve against the target's shape aligned to its own level (a listener sets
+    # the volume), as roommodes.analysis.eqcheck judges a correction
+    ok = np.isfinite(p.target)
+    tg = np.where(ok, p.target, np.interp(f, f[ok], p.target[ok]))
+    sw = p.seat_weight if ens.shape[1] > 1 else 1.0
+    pos_w = np.array([sw] + [(1.0 - sw) / max(ens.shape[1] - 1, 1)] * (ens.shape[1] - 1))
+    dev_pos = ens - np.array([[align_target(f, e, tg, p.band) for e in row] for row in ens])
+    combined = np.einsum("p,npf->nf", pos_w, ens)  # the curve the fit works on, in each room
+    dev = combined - np.array([align_target(f, e, tg, p.band) for e in combined])
+    lf = np.log2(f)
+    # the tops of the peaks of every drawn curve: local maxima more than threshold_db above
+    tops_mask = np.zeros(dev.shape, bool)
+    tops_mask[:, 1:-1] = (dev[:, 1:-1] >= dev[:, :-2]) & (dev[:, 1:-1] >= dev[:, 2:]) & (dev[:, 1:-1] > threshold_db)
+    warnings, kept = [], []
+    for spec, meta in zip(specs, metas):
+        bw = float(q_to_bandwidth_octaves(spec[3]))
+        stab = {"samples": float(n), "bandwidth_octaves": bw, "design_gain_db": float(spec[2])}
+        if meta["role"] == "cut":
+            # in each drawn curve, the top nearest the cut, within one bandwidth of it
+            dist = np.where(tops_mask, np.abs(lf - np.log2(spec[1]))[None, :], np.inf)
+            tops = np.argmin(dist, axis=1)
+            present = dist[np.arange(n), tops] <= max(bw, 1.0 / 24.0)
+            share = float(np.mean(present))
+            spread = float(np.ptp(np.percentile(lf[tops[present]], [10.0, 90.0]))) if present.sum() >= 2 \
+                else float("inf")
+            stab.update(present_share=share, freq_spread_octaves=spread)
+            why = None
+            if share < stable_share:
+                why = (f"its peak is present in only {share:.0%} of the {n} drawn rooms "
+                       f"(at least {stable_share:.0%} asked)")
+            elif spread > bw:
+                why = (f"its peak moves over {spread:.2f} oct across the drawn rooms (10-90 %), more than "
+                       f"the cut's bandwidth ({bw:.2f} oct)")
+            if why is not None:
+                lo, hi = spec[1] * 2 ** (-bw / 2), spec[1] * 2 ** (bw / 2)
+                warnings.append(EqWarning(
+                    "peak_left_uncertain",
+                    f"the {spec[2]:+.1f} dB cut at {spec[1]:.1f} Hz the model asks for was left out as "
+                    f"uncertain: {why}", (float(lo), float(hi))))
+                continue
+        kept.append([spec, dict(meta), stab])
+    w = np.where(p.allowed, _eqfit.log_weights(f), 0.0)
+
+    def median_rms(parts):
+        # per room: the rms at the seat and at each position, weighted like the design's curve
+        c = _eqfit.cascade_db([s for s, _, _ in parts], f, p.fs) if parts else np.zeros_like(f)
+        rms = np.sqrt(np.sum(w * (dev_pos + c) ** 2, axis=2) / np.sum(w))
+        return float(np.median(rms @ pos_w))
+
+    shares = np.linspace(0.0, 1.0, 21)
+    for _ in range(2):
+        for part in kept:
+            g0 = part[2]["design_gain_db"]
+            costs = []
+            for k in shares:
+                part[0] = (part[0][0], part[0][1], g0 * k, part[0][3])
+                costs.append(median_rms(kept))
+            k = shares[int(np.argmin(costs))]
+            part[0] = (part[0][0], part[0][1], g0 * k, part[0][3])
+            part[2]["depth_share"] = float(k)
+    out_specs, out_metas = [], []
+    for spec, meta, stab in kept:
+        if abs(spec[2]) < 0.05:
+            g0 = stab["design_gain_db"]
+            warnings.append(EqWarning(
+                "peak_left_uncertain" if meta["role"] == "cut" else "boost_left_uncertain",
+                f"the {g0:+.1f} dB {meta['role']} at {spec[1]:.1f} Hz the model asks for was left out: over the "
+                f"{n} drawn rooms it does not lower the median deviation from the target", (spec[1], spec[1])))
+            continue
+        meta["stability"] = tuple(stab.items())
+        meta["gain_db"] = (min(meta["gain_db"][0], spec[2]), max(meta["gain_db"][1], spec[2]))
+        out_specs.append(spec)
+        out_metas.append(meta)
+    return out_specs, out_metas, warnings
 
 
 def _mode_cut_q(modes, q_width_fn):
@@ -1303,6 +1418,7 @@ class _Problem:
                                  f"got {np.shape(position_levels_db)}")
             self.positions = pos
         sw = _finite_float("seat_weight", seat_weight, lo=0.0, hi=1.0)
+        self.seat_weight = sw
         if len(self.positions):
             # the curve the fit works on: the seat and the head positions around it, in dB
             self.design = sw * self.level + (1.0 - sw) * np.mean(self.positions, axis=0)
@@ -1454,7 +1570,8 @@ def design_parametric(freq_hz, level_db, target_db, band_hz, *, max_filters=6,
                       classification=None, neighbour_levels_db=None, lowcut_hz=None,
                       lowcut_order=None, sample_rate=48000, null_tolerance_db=0.5,
                       stop_db=1.0, boost_cost=0.02, boost_q_max=_BOOST_Q_MAX,
-                      position_levels_db=None, seat_weight=1.0 / 3.0, no_harm_db=0.5, modes=None):
+                      position_levels_db=None, seat_weight=1.0 / 3.0, no_harm_db=0.5, modes=None,
+                      ensemble_db=None, stable_share=STABLE_SHARE):
     """Fit up to ``max_filters`` peaking filters that bring the level toward the target.
 
     Parameters
@@ -1507,6 +1624,17 @@ def design_parametric(freq_hz, level_db, target_db, band_hz, *, max_filters=6,
     modes : sequence of (freq_hz, bandwidth_hz[, label]), optional
         The room's modes; a cut on a peak that a mode causes takes its Q from the mode's
         half-power bandwidth when that is broader than the peak's own width.
+    ensemble_db : array_like, shape (N, F) or (N, 1 + K, F), optional
+        The level (or the levels at the seat and the K head positions of
+        ``position_levels_db``) in each of N rooms drawn from the room's uncertainty. The design is then held to
+        them: a cut is kept only when its peak is stable across them (present in at least
+        ``stable_share`` of them within one bandwidth of the cut, its top moving by no
+        more than the cut's bandwidth), and each filter's gain is sized to the ensemble
+        (the share of it, never more, that minimises the median rms deviation). Left-out
+        cuts are listed in the warnings (``peak_left_uncertain``); each filter carries
+        its ``stability`` figures.
+    stable_share : float
+        See ``ensemble_db`` (default :data:`STABLE_SHARE`).
 
     Returns
     -------
@@ -1582,6 +1710,10 @@ def design_parametric(freq_hz, level_db, target_db, band_hz, *, max_filters=6,
         m["q_limit_lo"] = (f"--q-range bottom {qr[0]:g}" if qlo <= qr[0] * 1.001
                            else "/1.5 of the Q its width asks for")
         metas.append(m)
+    if ensemble_db is not None:
+        share = _finite_float("stable_share", stable_share, lo=0.0, hi=1.0)
+        specs, metas, held = _hold_to_ensemble(p, specs, metas, ensemble_db, share)
+        p.warnings.extend(held)
     boost_idx = [k for k, s in enumerate(specs) if s[2] > 0]
     return p.finish("parametric", specs, boost_idx, metas)
 
