@@ -250,3 +250,20 @@ def test_one_sentence_says_why_a_spikier_layout_wins():
     assert why_it_wins(cur, best, w) is None  # does not score better
     smooth = replace(best, figures={"flatness_raw": 3.0})
     assert why_it_wins(smooth, cur, w) is None  # its raw curve is not spikier: nothing to explain
+
+
+def test_bundled_rooms_that_seat_the_listener_on_a_sofa_fix_the_seat():
+    # issue 10: "the seat can be fixed (a sofa, a console)"; a bundled room that says its
+    # single seat is a sofa must not let the search move it
+    from roommodes.io.roomfile import example_rooms
+
+    checked = 0
+    for path in example_rooms():
+        text = path.read_text()
+        seat = re.search(r"^\[seat\]\s*\nposition_m\s*=.*$", text, flags=re.M)
+        if seat is None or "sofa" not in seat.group(0):
+            continue
+        room = load_room(path)
+        assert search_space(room).seat_fixed_m == pytest.approx(room.layout.seat_m), path.name
+        checked += 1
+    assert checked >= 1  # living-room.toml
