@@ -102,6 +102,16 @@ def drawn_reference(room, corr, f):
     return out
 
 
+def _stability(flt):
+    st = dict(flt.stability)
+    if not st:
+        return ""
+    if "present_share" in st:
+        return (f" [peak in {100 * st['present_share']:.0f}%, moves {st['freq_spread_octaves']:.2f} of "
+                f"{st['bandwidth_octaves']:.2f} oct, kept {100 * st.get('depth_share', 1):.0f}%]")
+    return f" [kept {100 * st.get('depth_share', 1):.0f}%]"
+
+
 def designs(room, f, held_samples):
     out = [("single", correct_prediction(room, freq_hz=f))]
     if held_samples:
@@ -124,7 +134,7 @@ def main(argv):
             print(f"  design {label}")
             for c in corr:
                 p = c.parametric
-                fl = ", ".join(f"{x.freq_hz:.0f} Hz {x.gain_db:+.1f} dB Q {x.q:.1f}" for x in p.filters)
+                fl = ", ".join(f"{x.freq_hz:.0f} Hz {x.gain_db:+.1f} dB Q {x.q:.1f}" + _stability(x) for x in p.filters)
                 print(f"  {c.name}: band {p.band_hz[0]:.0f}-{p.band_hz[1]:.0f} Hz; filters: {fl or 'none'}")
                 left = [w.message for w in p.warnings if w.code.endswith("_left_uncertain")]
                 if left:
