@@ -103,7 +103,7 @@ def drawn_reference(room, corr, f):
 
 
 def _stability(flt):
-    st = dict(flt.stability)
+    st = dict(getattr(flt, "stability", ()))
     if not st:
         return ""
     if "present_share" in st:
