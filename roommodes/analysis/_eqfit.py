@@ -583,7 +583,7 @@ def fit_cuts_and_boosts(f, dev, limits, f_bounds, q_range, gain_bounds, max_filt
         return next(((a, b) for a, b in boostable if a <= v <= b), None)
 
     def peak_of(v):
-        return next(((a, b, wd) for a, b, wd in peaks if a <= v <= b), None)
+        return next((pk for pk in peaks if pk[0] <= v <= pk[1]), None)
 
     x, lo, hi, metas = np.zeros(0), np.zeros(0), np.zeros(0), []
     best_cost = cost_empty = float(np.sum((w * dev) ** 2))
@@ -610,14 +610,23 @@ def fit_cuts_and_boosts(f, dev, limits, f_bounds, q_range, gain_bounds, max_filt
             own = peak_of(float(f[i]))
             if own is None and width < min_cut_octaves:
                 continue
+            f_start, f_lo, f_hi = float(f[i]), f_bounds[0], f_bounds[1]
             if own is not None:  # one cut per peak of the original curve, Q from its width
                 width = own[2]
                 tried |= (f >= own[0]) & (f <= own[1])
-            g0 = float(max(-e[i], gain_bounds[0]))
-            q0, basis = cut_q(float(f[i]), g0, width)
+                if len(own) > 3:  # a peak that runs on past the band's edge: cut the whole peak
+                    f_start, f_lo, f_hi = float(own[3]), float(f[0]), float(f[-1])
+                    k = int(np.argmin(np.abs(lf - np.log2(f_start))))
+                    e_i = max(float(e[k]), float(e[i]))
+                else:
+                    e_i = float(e[i])
+            else:
+                e_i = float(e[i])
+            g0 = float(max(-e_i, gain_bounds[0]))
+            q0, basis = cut_q(f_start, g0, width)
             q0 = float(np.clip(q0, qmin, qmax))
             qb = (max(qmin, q0 / q_window), min(qmax, q0 * q_window))
-            fb = (max(f_bounds[0], f[i] * 2 ** (-width / 2)), min(f_bounds[1], f[i] * 2 ** (width / 2)))
+            fb = (max(f_lo, f_start * 2 ** (-width / 2)), min(f_hi, f_start * 2 ** (width / 2)))
             gb = (float(gain_bounds[0]), 0.0)
             role = "cut"
         else:
@@ -637,7 +646,7 @@ def fit_cuts_and_boosts(f, dev, limits, f_bounds, q_range, gain_bounds, max_filt
             continue
         lo_k = np.array([np.log(fb[0]), gb[0], np.log(qb[0])])
         hi_k = np.array([np.log(fb[1]), gb[1], np.log(qb[1])])
-        x0 = np.array([np.log(f[i]), g0, np.log(q0)])
+        x0 = np.array([np.log(f_start if e[i] > 0 else f[i]), g0, np.log(q0)])
         tlo, thi = np.concatenate([lo, lo_k]), np.concatenate([hi, hi_k])
         trial = solve(np.concatenate([x, x0]), tlo, thi)
         new_cost = cost(trial)

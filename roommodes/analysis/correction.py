@@ -22,6 +22,7 @@ from ..solvers import DEFAULT_METHOD
 from . import eq
 from .levels import speaker_levels
 from .predict import Channel, Prediction, room_schroeder_frequency
+from .uncertainty import ensemble_levels
 
 __all__ = ["ChannelCorrection", "correct_curve", "correct_measured", "correct_prediction", "default_band",
            "head_positions", "NEIGHBOUR_STEP_M", "HEAD_OFFSET_M"]
@@ -114,7 +115,7 @@ def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_
                   lowcut_order=None, max_filters=6, max_boost_db=6.0, q_range=(0.5, 10.0),
                   speaker=None, sample_rate=48000, smoothing=12, position_levels_db=None,
                   seat_weight=1.0 / 3.0, no_harm_db=0.5, boost_q_max=2.0, modes=None,
-                  schroeder_hz=None, lowest_mode_hz=None, max_cut_db=15.0):
+                  schroeder_hz=None, lowest_mode_hz=None, max_cut_db=15.0, ensemble_levels_db=None):
     """Design the corrections for one level curve.
 
     Parameters
@@ -157,6 +158,12 @@ def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_
         reaches above it earns a caution.
     max_cut_db : float
         Deepest cut of one parametric filter, dB (> 0).
+    ensemble_levels_db : array_like (N, 1 + K, F), optional
+        The levels at the seat and the K head positions in each of N rooms drawn from the
+        room's uncertainty (:func:`roommodes.analysis.uncertainty.ensemble_levels`). The
+        parametric design is then held to them: only peaks stable across them are cut,
+        and each filter is sized to them (``ensemble_db`` of
+        :func:`roommodes.analysis.eq.design_parametric`).
 
     Returns
     -------
@@ -193,6 +200,12 @@ def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_
                             "designed on it may not hold up in the room; measure before using them")
     sw = float(seat_weight) if pos is not None else 1.0
     design = lv if pos is None else sw * lv + (1.0 - sw) * np.mean(pos, axis=0)
+    ens = None
+    if ensemble_levels_db is not None:
+        ens = np.asarray(ensemble_levels_db, dtype=float)
+        if smoothing:
+            ens = _smooth_db(f, ens, smoothing)
+        ens = ens[:, :1] if pos is None else ens  # the seat, then the head positions
     tg = eq.make_target(f, design, band, shape=target, db_per_octave=tilt_db_per_octave,
                         corner_hz=tilt_corner_hz, table=target_table)
     cls = eq.classify_regions(f, design, tg, band, neighbour_levels_db, stability_levels_db=pos)
@@ -201,7 +214,7 @@ def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_
                   seat_weight=sw, no_harm_db=no_harm_db)
     par = eq.design_parametric(f, lv, tg, band, max_filters=max_filters, q_range=q_range,
                                gain_range=(-float(max_cut_db), 6.0), boost_q_max=boost_q_max, modes=modes,
-                               **common)
+                               ensemble_db=ens, **common)
     shelf = eq.design_shelf(f, lv, tg, band, **common)
     g3 = eq.design_graphic(f, lv, tg, band, bands="third", **common)
     g1 = eq.design_graphic(f, lv, tg, band, bands="octave", **common)
@@ -222,7 +235,7 @@ def _mode_list(room, fmax_hz):
 
 
 def correct_prediction(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, area_m=None, area_points=(3, 3),
-                       head_offset_m=HEAD_OFFSET_M, **options):
+                       head_offset_m=HEAD_OFFSET_M, uncertainty=None, **options):
     """Predict every channel at the seat and the head positions around it, and design its correction.
 
     Each channel's correction is designed against the seat and six head positions
@@ -254,6 +267,12 @@ def correct_prediction(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, a
     head_offset_m : float or None
         Distance of the head positions from the seat, m (default 0.15); ``None`` or 0
         designs for the seat alone.
+    uncertainty : dict, optional
+        ``{"n_samples": N, "seed": S}`` (either may be left out): also predict the seat and
+        head positions in N rooms drawn from the room's ``[uncertainty]``
+        (:func:`roommodes.analysis.uncertainty.ensemble_levels`, same solver) and hold
+        each channel's parametric design to them (see :func:`correct_curve`). Not with
+        ``area_m``.
     **options
         Passed to :func:`correct_curve` (target, band, limits).
 
@@ -298,6 +317,13 @@ def correct_prediction(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, a
     if moved:
         lv_moved = speaker_levels(room, [m for _, m in moved], [seat], f, method=method).level_db[:, 0, :]
     nh = len(heads)
+    ens = None
+    if uncertainty is not None:
+        if area_m is not None:
+            raise ValueError("a design held to drawn rooms works on the seat and its head positions; "
+                             "leave out the listening area")
+        ens = ensemble_levels(room, f, layout, np.vstack([seat[None, :], heads]), method=method,
+                              **{k: v for k, v in uncertainty.items() if k in ("n_samples", "seed")})
     channels = []
     out = []
     for i, sp in enumerate(speakers):
@@ -319,7 +345,8 @@ def correct_prediction(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, a
                                      position_levels_db=levels[1:1 + nh], seat_weight=1.0, **kw, **info))
         else:
             out.append(correct_curve(sp.name, f, levels[0], neighbour_levels_db=neighbours,
-                                     position_levels_db=levels[1:1 + nh] if nh else None, **kw, **info))
+                                     position_levels_db=levels[1:1 + nh] if nh else None,
+                                     ensemble_levels_db=None if ens is None else ens[:, i], **kw, **info))
     pred = Prediction(f, tuple(channels), tuple(layout.seat_m), layout.name, method, schroeder, f <= schroeder)
     return out, pred
 

@@ -52,6 +52,7 @@ __all__ = [
     "FILTER_TYPES",
     "EXPORT_SAMPLE_RATES",
     "REGION_KINDS",
+    "STABLE_SHARE",
     "CAUTIONS",
     "Filter",
     "bandwidth_octaves_to_q",
@@ -127,6 +128,9 @@ _SPREAD_DB = 6.0
 _SPLIT_DB = 3.0
 _MIN_BOOST_OCTAVES = 1.0 / 3.0
 _BOOST_Q_MAX = 2.0
+#: With an ensemble of drawn rooms, a peak is cut only when present in at least this share
+#: of them ("most"; see :func:`design_parametric`).
+STABLE_SHARE = 0.6
 
 
 # ========================================================================================
@@ -443,6 +447,13 @@ class Filter:
     at_limit : tuple of str
         The limits the design left this filter at (Q, gain, frequency), each a phrase for
         the user; empty when it sits inside all of them.
+    stability : tuple of (str, float)
+        For a design held to an ensemble of drawn rooms (:func:`design_parametric`'s
+        ``ensemble_db``): ``samples``, ``present_share`` (share of the rooms in which the
+        feature is present near the filter), ``freq_spread_octaves`` (10-90 % range of
+        where its top lies), ``bandwidth_octaves`` (the filter's), ``design_gain_db`` (the
+        gain the single model asked for) and ``depth_share`` (the gain kept, as a share of
+        it). Empty otherwise.
     """
 
     type: str
@@ -452,6 +463,7 @@ class Filter:
     role: str = field(default="", compare=False)
     basis: str = field(default="", compare=False)
     at_limit: tuple = field(default=(), compare=False)
+    stability: tuple = field(default=(), compare=False)
 
     def __post_init__(self):
         if self.type not in FILTER_TYPES:
@@ -511,6 +523,8 @@ class Filter:
         if self.basis:
             d["q_basis"] = self.basis
         d["at_limit"] = list(self.at_limit)
+        if self.stability:
+            d["stability"] = {k: _num(v) for k, v in self.stability}
         if self.type == "peaking":
             d["bandwidth_octaves"] = self.bandwidth_octaves
             d["q_3db_below_peak"] = _num(q_at_3db_below_peak(self.q, self.gain_db))
@@ -750,6 +764,10 @@ class Region:
         neighbour positions, dB; ``nan`` without neighbours.
     reasons : tuple of str
         Why the region got its kind.
+    whole_hz : (float, float, float) or None
+        For a peak that runs on below the band's low edge: where the whole peak's top lies
+        and the edges of its half-height span on the computed grid, ``(top, lo, hi)``, Hz
+        (its ``width_octaves`` is then the whole peak's). ``None`` otherwise.
     """
 
     kind: str
@@ -760,13 +778,17 @@ class Region:
     width_octaves: float
     spread_db: float
     reasons: tuple = ()
+    whole_hz: tuple | None = None
 
     def to_dict(self):
         """Plain dict of the fields."""
-        return {"kind": self.kind, "freq_hz": [self.freq_lo_hz, self.freq_hi_hz],
-                "freq_extreme_hz": self.freq_extreme_hz, "deviation_db": self.deviation_db,
-                "width_octaves": self.width_octaves, "spread_db": _num(self.spread_db),
-                "reasons": list(self.reasons)}
+        d = {"kind": self.kind, "freq_hz": [self.freq_lo_hz, self.freq_hi_hz],
+             "freq_extreme_hz": self.freq_extreme_hz, "deviation_db": self.deviation_db,
+             "width_octaves": self.width_octaves, "spread_db": _num(self.spread_db),
+             "reasons": list(self.reasons)}
+        if self.whole_hz is not None:
+            d["whole_peak_hz"] = list(self.whole_hz)
+        return d
 
 
 @dataclass(frozen=True)
@@ -918,11 +940,22 @@ def classify_regions(freq_hz, level_db, target_db, band_hz, neighbour_levels_db=
         # width at half height on the whole band's curve, not only the part beyond the
         # threshold (a 2 dB peak 1 grid point above 1.5 dB is not 0 octaves wide)
         width = _eqfit.run_width_octaves(fb, db, a + j, abs(extreme) / 2)
+        whole = None
+        if s > 0 and a == 0:
+            # a peak cut off by the band's low edge (the speaker's roll-off or the lowest
+            # mode): its top and width are those of the whole peak. Not past the top edge:
+            # there the prediction is indicative only (Schroeder) or the channel stops playing.
+            whole = _whole_peak(f, dev, idx[a], -1, thr)
+            if whole is not None:
+                width = whole[3]
         spread = float("nan")
         if nb is not None:
             spread = float(np.ptp(np.concatenate([[lv[idx[a + j]]], nb[:, idx[a + j]]])))
         if s > 0:
             kind, reasons = "peak", [f"{extreme:+.1f} dB above target over {width:.2f} oct"]
+            if whole is not None:
+                reasons = [f"{extreme:+.1f} dB above target at the band's edge; the whole peak tops "
+                           f"{whole[4]:+.1f} dB at {whole[0]:.1f} Hz, {width:.2f} oct wide at half height"]
         else:
             depth = -extreme
             reasons = []
@@ -954,8 +987,38 @@ def classify_regions(freq_hz, level_db, target_db, band_hz, neighbour_levels_db=
                                       else f", stable across positions ({spread:.1f} dB)"))
         labels[idx[a:b]] = kind
         regions.append(Region(kind, float(fr[0]), float(fr[-1]), float(fr[j]), extreme, width,
-                              spread, tuple(reasons)))
+                              spread, tuple(reasons), None if whole is None else tuple(whole[:3])))
     return Classification(f, dev, labels, tuple(regions), band)
+
+
+def _whole_peak(f, dev, edge, step, threshold_db):
+    """A peak that runs past the band's edge at grid index ``edge``, followed outward
+    (``step`` -1 below the band, +1 above it) on the whole grid while the deviation stays above
+    ``threshold_db``. Returns ``(top_hz, lo_hz, hi_hz, width_octaves, top_db)`` of the whole
+    peak (half-height span), or ``None`` when it does not continue past the edge (or the
+    target is undefined there)."""
+    k = edge + step
+    if not (0 <= k < f.size) or not np.isfinite(dev[k]) or dev[k] <= threshold_db:
+        return None
+    run = [edge]
+    while 0 <= k < f.size and np.isfinite(dev[k]) and dev[k] > threshold_db:
+        run.append(k)
+        k += step
+    # the in-band part of the run, too: the whole peak is one feature
+    k = edge - step
+    while 0 <= k < f.size and np.isfinite(dev[k]) and dev[k] > threshold_db:
+        run.append(k)
+        k -= step
+    run = np.sort(np.array(run))
+    top = int(run[np.argmax(dev[run])])
+    d = np.where(np.isfinite(dev), dev, -1e3)
+    width = _eqfit.run_width_octaves(f, d, top, d[top] / 2)
+    lo = hi = top
+    while lo > 0 and d[lo - 1] >= d[top] / 2:
+        lo -= 1
+    while hi < f.size - 1 and d[hi + 1] >= d[top] / 2:
+        hi += 1
+    return (float(f[top]), float(f[lo]), float(f[hi]), float(width), float(d[top]))
 
 
 def _split_run(v, lo, hi, split_db):
@@ -1030,7 +1093,9 @@ class EqWarning:
     code : str
         Stable identifier: ``"vented_boost_refused"``, ``"shortfall_remains"`` (more
         than 3 dB below target where correction is allowed, after the design),
-        ``"boost_scaled"``, ``"boost_into_null_removed"``, ``"channel_headroom_differs"``.
+        ``"boost_scaled"``, ``"boost_into_null_removed"``, ``"channel_headroom_differs"``,
+        ``"peak_left_uncertain"`` / ``"boost_left_uncertain"`` (a filter the single model
+        asks for, left out by a design held to drawn rooms).
     message : str
         One sentence for the user.
     freq_hz : (float, float) or None
@@ -1213,7 +1278,106 @@ def _annotated(spec, meta, scale=1.0):
     if near(f0, flo) or near(f0, fhi):
         at.append(f"frequency {f0:.1f} Hz at the edge of {meta.get('f_limit', 'its range')} "
                   f"({flo:.1f}-{fhi:.1f} Hz)")
-    return Filter(kind, f0, g, q, role=meta["role"], basis=meta.get("basis", ""), at_limit=tuple(at))
+    return Filter(kind, f0, g, q, role=meta["role"], basis=meta.get("basis", ""), at_limit=tuple(at),
+                  stability=tuple(meta.get("stability", ())))
+
+
+def _hold_to_ensemble(p, specs, metas, ensemble_db, stable_share, threshold_db=_REGION_THRESHOLD_DB):
+    """Hold a fitted design to an ensemble of curves from drawn rooms.
+
+    Each cut is kept only when its peak is stable across the ensemble: present (a top more
+    than ``threshold_db`` above the target; the one nearest the cut) within one bandwidth
+    of the cut in at least ``stable_share`` of the curves, and its top moving
+    (10-90 % range) by no more than the cut's bandwidth. Then every filter's gain is
+    sized to the ensemble: the share of its gain (0 to 1, never more than the single
+    model asked for) that minimises the median over the drawn rooms of the rms deviation
+    from the target (its shape aligned to each curve's own level, uniform weight per
+    octave, where EQ may act; with several positions per room, their rms weighted like the
+    design's curve: the seat ``seat_weight``, the head positions the rest), filter by
+    filter, twice round.
+
+    Returns ``(specs, metas, warnings)``.
+    """
+    f = p.f
+    ens = np.asarray(ensemble_db, dtype=float)
+    ens = ens[:, None, :] if ens.ndim == 2 else ens
+    if ens.ndim != 3 or ens.shape[2] != f.size or not np.all(np.isfinite(ens[..., p.sel])):
+        raise ValueError(f"ensemble_db must be finite, of shape (N, {f.size}) or (N, P, {f.size})")
+    n = ens.shape[0]
+    # each drawn curve against the target's shape aligned to its own level (a listener sets
+    # the volume), as roommodes.analysis.eqcheck judges a correction
+    ok = np.isfinite(p.target)
+    tg = np.where(ok, p.target, np.interp(f, f[ok], p.target[ok]))
+    sw = p.seat_weight if ens.shape[1] > 1 else 1.0
+    pos_w = np.array([sw] + [(1.0 - sw) / max(ens.shape[1] - 1, 1)] * (ens.shape[1] - 1))
+    dev_pos = ens - np.array([[align_target(f, e, tg, p.band) for e in row] for row in ens])
+    combined = np.einsum("p,npf->nf", pos_w, ens)  # the curve the fit works on, in each room
+    dev = combined - np.array([align_target(f, e, tg, p.band) for e in combined])
+    lf = np.log2(f)
+    # the tops of the peaks of every drawn curve: local maxima more than threshold_db above
+    tops_mask = np.zeros(dev.shape, bool)
+    tops_mask[:, 1:-1] = (dev[:, 1:-1] >= dev[:, :-2]) & (dev[:, 1:-1] >= dev[:, 2:]) & (dev[:, 1:-1] > threshold_db)
+    warnings, kept = [], []
+    for spec, meta in zip(specs, metas):
+        bw = float(q_to_bandwidth_octaves(spec[3]))
+        stab = {"samples": float(n), "bandwidth_octaves": bw, "design_gain_db": float(spec[2])}
+        if meta["role"] == "cut":
+            # in each drawn curve, the top nearest the cut, within one bandwidth of it
+            dist = np.where(tops_mask, np.abs(lf - np.log2(spec[1]))[None, :], np.inf)
+            tops = np.argmin(dist, axis=1)
+            present = dist[np.arange(n), tops] <= max(bw, 1.0 / 24.0)
+            share = float(np.mean(present))
+            spread = float(np.ptp(np.percentile(lf[tops[present]], [10.0, 90.0]))) if present.sum() >= 2 \
+                else float("inf")
+            stab.update(present_share=share, freq_spread_octaves=spread)
+            why = None
+            if share < stable_share:
+                why = (f"its peak is present in only {share:.0%} of the {n} drawn rooms "
+                       f"(at least {stable_share:.0%} asked)")
+            elif spread > bw:
+                why = (f"its peak moves over {spread:.2f} oct across the drawn rooms (10-90 %), more than "
+                       f"the cut's bandwidth ({bw:.2f} oct)")
+            if why is not None:
+                lo, hi = spec[1] * 2 ** (-bw / 2), spec[1] * 2 ** (bw / 2)
+                warnings.append(EqWarning(
+                    "peak_left_uncertain",
+                    f"the {spec[2]:+.1f} dB cut at {spec[1]:.1f} Hz the model asks for was left out as "
+                    f"uncertain: {why}", (float(lo), float(hi))))
+                continue
+        kept.append([spec, dict(meta), stab])
+    w = np.where(p.allowed, _eqfit.log_weights(f), 0.0)
+
+    def median_rms(parts):
+        # per room: the rms at the seat and at each position, weighted like the design's curve
+        c = _eqfit.cascade_db([s for s, _, _ in parts], f, p.fs) if parts else np.zeros_like(f)
+        rms = np.sqrt(np.sum(w * (dev_pos + c) ** 2, axis=2) / np.sum(w))
+        return float(np.median(rms @ pos_w))
+
+    shares = np.linspace(0.0, 1.0, 21)
+    for _ in range(2):
+        for part in kept:
+            g0 = part[2]["design_gain_db"]
+            costs = []
+            for k in shares:
+                part[0] = (part[0][0], part[0][1], g0 * k, part[0][3])
+                costs.append(median_rms(kept))
+            k = shares[int(np.argmin(costs))]
+            part[0] = (part[0][0], part[0][1], g0 * k, part[0][3])
+            part[2]["depth_share"] = float(k)
+    out_specs, out_metas = [], []
+    for spec, meta, stab in kept:
+        if abs(spec[2]) < 0.05:
+            g0 = stab["design_gain_db"]
+            warnings.append(EqWarning(
+                "peak_left_uncertain" if meta["role"] == "cut" else "boost_left_uncertain",
+                f"the {g0:+.1f} dB {meta['role']} at {spec[1]:.1f} Hz the model asks for was left out: over the "
+                f"{n} drawn rooms it does not lower the median deviation from the target", (spec[1], spec[1])))
+            continue
+        meta["stability"] = tuple(stab.items())
+        meta["gain_db"] = (min(meta["gain_db"][0], spec[2]), max(meta["gain_db"][1], spec[2]))
+        out_specs.append(spec)
+        out_metas.append(meta)
+    return out_specs, out_metas, warnings
 
 
 def _mode_cut_q(modes, q_width_fn):
@@ -1254,6 +1418,7 @@ class _Problem:
                                  f"got {np.shape(position_levels_db)}")
             self.positions = pos
         sw = _finite_float("seat_weight", seat_weight, lo=0.0, hi=1.0)
+        self.seat_weight = sw
         if len(self.positions):
             # the curve the fit works on: the seat and the head positions around it, in dB
             self.design = sw * self.level + (1.0 - sw) * np.mean(self.positions, axis=0)
@@ -1405,7 +1570,8 @@ def design_parametric(freq_hz, level_db, target_db, band_hz, *, max_filters=6,
                       classification=None, neighbour_levels_db=None, lowcut_hz=None,
                       lowcut_order=None, sample_rate=48000, null_tolerance_db=0.5,
                       stop_db=1.0, boost_cost=0.02, boost_q_max=_BOOST_Q_MAX,
-                      position_levels_db=None, seat_weight=1.0 / 3.0, no_harm_db=0.5, modes=None):
+                      position_levels_db=None, seat_weight=1.0 / 3.0, no_harm_db=0.5, modes=None,
+                      ensemble_db=None, stable_share=STABLE_SHARE):
     """Fit up to ``max_filters`` peaking filters that bring the level toward the target.
 
     Parameters
@@ -1458,6 +1624,17 @@ def design_parametric(freq_hz, level_db, target_db, band_hz, *, max_filters=6,
     modes : sequence of (freq_hz, bandwidth_hz[, label]), optional
         The room's modes; a cut on a peak that a mode causes takes its Q from the mode's
         half-power bandwidth when that is broader than the peak's own width.
+    ensemble_db : array_like, shape (N, F) or (N, 1 + K, F), optional
+        The level (or the levels at the seat and the K head positions of
+        ``position_levels_db``) in each of N rooms drawn from the room's uncertainty. The design is then held to
+        them: a cut is kept only when its peak is stable across them (present in at least
+        ``stable_share`` of them within one bandwidth of the cut, its top moving by no
+        more than the cut's bandwidth), and each filter's gain is sized to the ensemble
+        (the share of it, never more, that minimises the median rms deviation). Left-out
+        cuts are listed in the warnings (``peak_left_uncertain``); each filter carries
+        its ``stability`` figures.
+    stable_share : float
+        See ``ensemble_db`` (default :data:`STABLE_SHARE`).
 
     Returns
     -------
@@ -1502,17 +1679,26 @@ def design_parametric(freq_hz, level_db, target_db, band_hz, *, max_filters=6,
     bq = _finite_float("boost_q_max", boost_q_max, lo=0.0, lo_open=True, hi=100.0)
     fitted = []
     if p.allowed.sum() >= 3:
-        dev = (p.design - p.target)[p.allowed]
+        # a peak that runs on past the band's edge is one feature: its cut is placed on the
+        # whole peak, and the fit sees the part outside the band too (where the cut acts)
+        fit = p.allowed.copy()
+        for r in p.cls.regions:
+            if r.kind == "peak" and r.whole_hz is not None:
+                fit |= (p.f >= r.whole_hz[1] * (1 - 1e-9)) & (p.f <= r.whole_hz[2] * (1 + 1e-9)) \
+                    & np.isfinite(p.target)
+        dev = (p.design - p.target)[fit]
         # a boost may move over the dip's half-depth span, a cut's Q follows its peak's width
         boostable = [(min(r.freq_lo_hz, r.freq_extreme_hz * 2 ** (-r.width_octaves / 2)),
                       max(r.freq_hi_hz, r.freq_extreme_hz * 2 ** (r.width_octaves / 2)))
                      for r in p.cls.regions if r.kind == "broad dip"]
-        peaks = [(r.freq_lo_hz, r.freq_hi_hz, r.width_octaves) for r in p.cls.regions if r.kind == "peak"]
+        peaks = [(r.freq_lo_hz, r.freq_hi_hz, r.width_octaves) if r.whole_hz is None else
+                 (min(r.freq_lo_hz, r.whole_hz[1]), max(r.freq_hi_hz, r.whole_hz[2]), r.width_octaves, r.whole_hz[0])
+                 for r in p.cls.regions if r.kind == "peak"]
         fitted = _eqfit.fit_cuts_and_boosts(
-            p.f[p.allowed], dev, p.make_limits(boost_cost=bc), p.band, qr, gain_bounds, nf, p.fs,
+            p.f[fit], dev, p.make_limits(boost_cost=bc), p.band, qr, gain_bounds, nf, p.fs,
             boostable=boostable, peaks=peaks, boost_q_max=bq,
             cut_q=_mode_cut_q(modes, bandwidth_octaves_to_q),
-            boost_cost=bc, stop_db=sd, weights=p.weights)
+            boost_cost=bc, stop_db=sd, weights=_eqfit.log_weights(p.f)[fit])
     specs = [sp for sp, _ in fitted]
     metas = []
     for _, m in fitted:
@@ -1524,6 +1710,10 @@ def design_parametric(freq_hz, level_db, target_db, band_hz, *, max_filters=6,
         m["q_limit_lo"] = (f"--q-range bottom {qr[0]:g}" if qlo <= qr[0] * 1.001
                            else "/1.5 of the Q its width asks for")
         metas.append(m)
+    if ensemble_db is not None:
+        share = _finite_float("stable_share", stable_share, lo=0.0, hi=1.0)
+        specs, metas, held = _hold_to_ensemble(p, specs, metas, ensemble_db, share)
+        p.warnings.extend(held)
     boost_idx = [k for k, s in enumerate(specs) if s[2] > 0]
     return p.finish("parametric", specs, boost_idx, metas)
 

@@ -66,7 +66,7 @@ __all__ = [
     "search_space", "check_weights", "default_band", "flatness_db", "mismatch_db", "area_spread_db",
     "eq_boost_db", "score_parts", "score_layouts", "search_layouts", "seat_score_map",
     "front_distance_profile", "perturbations", "area_offsets", "eq_proxy_db", "layout_sweep", "layout_curves",
-    "layout_geometry", "layout_distance_m", "sweep_direction", "why_it_wins", "EQ_MAX_BOOST_DB", "EQ_MAX_CUT_DB",
+    "layout_geometry", "layout_distance_m", "sweep_direction", "why_it_wins", "close_call", "EQ_MAX_BOOST_DB", "EQ_MAX_CUT_DB",
 ]
 
 #: Names of the score parts, in display order.
@@ -1251,6 +1251,35 @@ def why_it_wins(best, other, weights, other_label="the file's layout"):
     text = reasons[0] if len(reasons) == 1 else ", ".join(reasons[:-1]) + " and " + reasons[-1]
     return (f"The raw curve of the best layout looks spikier at the seat than {other_label}'s (flatness "
             f"{raw_b:.2f} against {raw_o:.2f} dB before EQ), but it ranks higher because {text}.")
+
+
+def close_call(best, other, weights, other_label="the file's layout"):
+    """One sentence when ``best`` beats ``other`` by less than the score's own measure of
+    placement error can tell apart, else None.
+
+    The robustness part is the mean worsening of a layout's score when every object lands
+    5 cm off; a lead smaller than the smaller of the two layouts' weighted robustness parts
+    is within what a tape measure changes, so the model cannot say that moving helps.
+
+    Parameters
+    ----------
+    best, other : ScoredLayout
+    weights : dict
+        The score's weights.
+    other_label : str
+        How the sentence names ``other``.
+
+    Returns
+    -------
+    str or None
+    """
+    lead = other.score - best.score
+    spread = weights["robustness"] * min(best.parts["robustness"], other.parts["robustness"])
+    if lead < 0 or spread <= 0 or lead >= spread:
+        return None
+    return (f"The best layout beats {other_label} by only {lead:.2f} dB, less than landing 5 cm off changes "
+            f"either score ({spread:.2f} dB): as far as the model can tell they are as good, so moving "
+            f"from {other_label} buys nothing certain.")
 
 
 def score_layouts(room, layouts, weights=None, band_hz=None, area_m=(0.6, 0.6), area_points=(3, 3),

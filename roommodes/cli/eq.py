@@ -10,7 +10,7 @@ import numpy as np
 from .. import __version__
 from ..analysis.compare import load_measurement
 from ..analysis.correction import correct_measured, correct_prediction
-from ..analysis.eq import CAUTIONS, EXPORT_SAMPLE_RATES, channel_headroom_warnings, q_at_3db_below_peak, render_text
+from ..analysis.eq import CAUTIONS, EXPORT_SAMPLE_RATES, STABLE_SHARE, channel_headroom_warnings, q_at_3db_below_peak, render_text
 from ..dsp.checks import check_number, check_range
 from ..dsp.response import log_frequencies
 from ..dsp.text import boost_text
@@ -34,6 +34,7 @@ from ._util import (
     ppo_option,
     protect_inputs,
     room_inputs,
+    uncertainty_options,
 )
 
 _SPL_TABLE_HZ = (31.5, 40.0, 50.0, 63.0, 80.0, 100.0, 125.0, 160.0, 200.0)
@@ -83,6 +84,21 @@ def _print_channel(corr, room_layout_speaker):
                    f"  {flt.basis}")
         for note in flt.at_limit:
             click.echo(f"       ^ at a limit: {note}")
+        if flt.stability:
+            st = dict(flt.stability)
+            held = f"; {st['depth_share']:.0%} of the single model's {st['design_gain_db']:+.1f} dB" \
+                if "depth_share" in st else ""
+            if "present_share" in st:
+                click.echo(f"       ^ drawn rooms: peak in {st['present_share']:.0%} of {st['samples']:.0f}, its top "
+                           f"moves {st['freq_spread_octaves']:.2f} oct (10-90 %; the cut is "
+                           f"{st['bandwidth_octaves']:.2f} oct wide){held}")
+            elif held:
+                click.echo(f"       ^ drawn rooms ({st['samples']:.0f}): sized to them{held}")
+    left = [w for w in p.warnings if w.code in ("peak_left_uncertain", "boost_left_uncertain")]
+    if left:
+        click.echo("  Left alone as uncertain (the single model asks for them; the drawn rooms do not agree):")
+        for w in left:
+            click.echo(f"    {w.message}")
     if not p.filters:
         click.echo("    (no filter: nothing within the limits would help without lifting part of the curve above "
                    "the target)")
@@ -124,8 +140,8 @@ def _print_channel(corr, room_layout_speaker):
         click.echo("    " + " ".join(f"{corr.clean.before_db[i]:6.0f}" for i in idx) + "  before EQ")
         click.echo("    " + " ".join(f"{corr.clean.after_db[i]:6.0f}" for i in idx) + "  after EQ")
     for w in p.warnings:
-        if w.code == "filter_at_limit":
-            continue  # shown under the filter it concerns
+        if w.code in ("filter_at_limit", "peak_left_uncertain", "boost_left_uncertain"):
+            continue  # shown under the filter it concerns, or in the list above
         click.echo(f"  warning: {w.message}")
         if w.recommended is not None:
             r = w.recommended
@@ -183,9 +199,11 @@ def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, opti
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write before/after curves and filters (PNG/SVG).")
 @click.option("--force", is_flag=True, help="Overwrite existing output files.")
 @mic_cal_option
+@uncertainty_options
 @json_option
 def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, max_boost, q_range, freq_range,
-       points_per_octave, method, measured, window_s, area_text, export_path, plot_path, force, as_json, mic_cal):
+       points_per_octave, method, measured, window_s, area_text, export_path, plot_path, force, as_json, mic_cal,
+       uncertainty, samples, seed):
     """Design bass-correction EQ for each channel and show the headroom it costs.
 
     Every dip is classified before it is touched: a deep narrow dip that moves when the
@@ -193,6 +211,10 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
     amplifier power and cone excursion, so it is left alone; broad shortfalls may be
     boosted up to --max-boost; peaks are cut. Offered: parametric filters, a single low
     shelf (for a bass tone control), and 31-band and 10-band graphic-EQ slider settings.
+
+    With --uncertainty the parametric filters are held to rooms drawn from the room
+    file's [uncertainty]: only peaks stable across them are cut, and each filter is sized
+    to them, never deeper or higher than the single model asks (docs/eq.md).
     """
 
     lo, hi = parse_range(freq_range)
@@ -227,6 +249,9 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
         check_output(export_path, force, what="--export")
     check_plot(plot_path, force, *inputs, export_path)
     f = log_frequencies(lo, hi, points_per_octave)
+    if uncertainty and (measured or area_text):
+        fail("--uncertainty works on the predicted seat and its head positions; leave out "
+             + ("--measured (a measurement is what the room did)" if measured else "--area"))
     if measured:
         corrections = _correct_measured(room, lay, measured, f, window_s, room_file, options, read_mic_cal(mic_cal))
         source = "measured"
@@ -239,16 +264,34 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
                 area = ()
             if len(area) != 2 or not all(0 < v <= 3 for v in area):
                 fail(f"--area must be LENGTH,WIDTH in metres, each above 0 and at most 3, e.g. 0.6,0.6; got '{area_text}'")
-        corrections, _pred = correct_prediction(room, lay, f, method=method, area_m=area, **options)
+        held = {"n_samples": samples, "seed": seed} if uncertainty else None
+        try:
+            corrections, _pred = correct_prediction(room, lay, f, method=method, area_m=area, uncertainty=held,
+                                                    **options)
+        except ValueError as exc:
+            fail(str(exc))
         source = f"predicted, {method} solver" + (f", average over {area[0]:g} x {area[1]:g} m" if area else "")
+        if uncertainty:
+            source += f", held to {samples} drawn rooms (seed {seed})"
     head_warn = channel_headroom_warnings({c.name: c.headroom.max_boost_db for c in corrections})
     if as_json:
+        extra = {}
+        if uncertainty:
+            extra["uncertainty"] = {"samples": samples, "seed": seed, "method": method,
+                                    "stable_share": STABLE_SHARE, "uncertainty": room.uncertainty.to_dict()}
         dump_json({"room": room.name, "layout": lay.name, "source": source,
-                   "frequencies_hz": corrections[0].parametric.freq_hz,
+                   "frequencies_hz": corrections[0].parametric.freq_hz, **extra,
                    "channels": [c.to_dict() for c in corrections],
                    "warnings": [w.to_dict() for w in head_warn], "cautions": list(CAUTIONS)})
     else:
         click.echo(f"Bass correction for '{room.name}', layout {lay.name} ({source})")
+        if uncertainty:
+            u = room.uncertainty
+            click.echo(f"Held to {samples} rooms drawn from the room file's [uncertainty] (sd {u.position_m * 100:g} cm "
+                       f"on positions, {u.size_m * 100:g} cm on dimensions, {u.absorption_rel:.0%} on absorption, "
+                       f"{u.temperature_c:g} C on temperature): a peak is cut only when it is present in at least "
+                       f"{STABLE_SHARE:.0%} of them and its top moves less than the cut is wide; each filter is "
+                       "sized to their median.")
         click.echo("")
         for c in corrections:
             _print_channel(c, None)

@@ -131,7 +131,7 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
     from the room file's [uncertainty] table (the same rooms for every layout) and ranked by
     the median of their scores, with the 10-90 % spread beside it (docs/uncertainty.md).
     """
-    from ..analysis.search import PARTS, search_layouts, search_space, why_it_wins
+    from ..analysis.search import PARTS, close_call, search_layouts, search_space, why_it_wins
 
     room = load_or_fail(room_file)
     w = _parse_weights(weights)
@@ -183,6 +183,7 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
                        "seat_fixed": space.seat_fixed_m is not None, "cabinet_assumed": space.cabinet_assumed,
                        "rear_clearance_m": space.rear_clearance_m,
                        "ear_height_tolerance_m": space.ear_height_tolerance_m, "spacing_m": space.spacing_m},
+            "close_call": None if res.current is None else close_call(best, res.current, res.weights),
             "why": next((t for t in (why_it_wins(best, o, res.weights) for o in
                                      ([res.current] if res.current is not None else []) + list(res.presets)) if t),
                         None),
@@ -257,6 +258,10 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
             click.echo(f"{'The file' if s_ is res.current else 'The ' + s_.name} layout scores lower ({s_.score:.2f} dB) "
                        "but breaks the [search] constraints (box clearance, ear height, spacing or triangle); "
                        "relax them in [search] if it is what you want.")
+        if res.current is not None:
+            note = close_call(best, res.current, res.weights)
+            if note:
+                click.echo(note)
         if len(res.ranked) < top:
             click.echo(f"Only {len(res.ranked)} layouts {space.distinct_m * 100:.0f} cm or more apart fit the region.")
         for other, label in ([(res.current, "the file's layout")] if res.current is not None else []) + \

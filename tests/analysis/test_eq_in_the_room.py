@@ -239,3 +239,27 @@ def test_head_positions_are_15_cm_around_the_seat():
     d = np.linalg.norm(h - np.array([1.0, 2.0, 1.2]), axis=1)
     np.testing.assert_allclose(d, 0.15)
     assert len({tuple(np.round(v, 6)) for v in h}) == 6
+
+
+def test_peak_cut_off_by_the_band_edge_is_cut_as_a_whole():
+    # a Cookbook +6 dB, Q 4 peak at 52 Hz (half-gain bandwidth 0.36 oct, Audio EQ Cookbook
+    # definition) with the band starting at 55 Hz, on the peak's upper flank: the cut is
+    # placed on the whole peak (its top and its width), not squeezed against the band edge
+    f = F
+    level = eq.correction_db([eq.Filter("peaking", 52.0, 6.0, 4.0)], f)
+    d = eq.design_parametric(f, level, np.zeros_like(f), (55.0, 250.0))
+    (peak,) = [r for r in d.classification.regions if r.kind == "peak"]
+    assert peak.whole_hz is not None and peak.whole_hz[0] == pytest.approx(52.0, rel=0.02)
+    assert peak.width_octaves == pytest.approx(eq.q_to_bandwidth_octaves(4.0), rel=0.15)
+    (cut,) = d.filters
+    assert cut.freq_hz == pytest.approx(52.0, rel=0.05)
+    assert cut.gain_db == pytest.approx(-6.0, abs=1.0)
+    assert cut.q == pytest.approx(4.0, rel=0.3)
+    # the in-band error falls nearly to nothing (it was up to 5 dB)
+    assert d.error_after.max_abs_db < 1.0
+    # a peak that runs on past the top of the band is not chased there (above the band the
+    # prediction is indicative only, or the channel stops playing)
+    d = eq.design_parametric(f, level, np.zeros_like(f), (20.0, 50.0))
+    (peak,) = [r for r in d.classification.regions if r.kind == "peak"]
+    assert peak.whole_hz is None
+    assert all(flt.freq_hz <= 50.0 * 1.001 for flt in d.filters)

@@ -28,7 +28,13 @@ def run(*args):
 
 def _room_with_search(tmp_path, search_lines, src=DEMO, name="room.toml"):
     p = tmp_path / name
-    p.write_text(open(src, encoding="utf-8").read() + "\n[search]\n" + "\n".join(search_lines) + "\n")
+    text = open(src, encoding="utf-8").read()
+    lines = "\n".join(search_lines) + "\n"
+    if "\n[search]\n" in text:  # the file has its own [search] table (e.g. a fixed sofa seat): add to it
+        text = text.replace("\n[search]\n", "\n[search]\n" + lines, 1)
+    else:
+        text += "\n[search]\n" + lines
+    p.write_text(text)
     return p
 
 

@@ -67,3 +67,31 @@ def test_place_uncertainty_ranks_by_median_with_spread(tmp_path):
     written = load_room(out)  # the median's best layout is the one written
     np.testing.assert_allclose(written.layout.seat_m, data["ranked"][0]["seat_m"])
     assert "median" in out.read_text().splitlines()[0]
+
+
+def test_eq_uncertainty_json_and_screen():
+    res = run("eq", DEMO, "--uncertainty", "--samples", 6, "--seed", 3, "--json")
+    assert res.exit_code == 0, res.output
+    data = json.loads(res.stdout)
+    assert data["uncertainty"]["samples"] == 6 and data["uncertainty"]["seed"] == 3
+    for ch in data["channels"]:
+        for flt in ch["filters"]:
+            st = flt["stability"]
+            assert st["samples"] == 6 and 0 <= st["depth_share"] <= 1
+            if flt["role"] == "cut":
+                assert st["present_share"] >= data["uncertainty"]["stable_share"]
+                assert st["freq_spread_octaves"] <= st["bandwidth_octaves"]
+    screen = run("eq", DEMO, "--uncertainty", "--samples", 6, "--seed", 3)
+    assert screen.exit_code == 0 and "Held to 6 rooms drawn" in screen.stdout and "drawn rooms: peak in" in screen.stdout
+
+
+def test_eq_without_uncertainty_has_no_stability():
+    data = json.loads(run("eq", DEMO, "--json").stdout)
+    assert "uncertainty" not in data
+    assert all("stability" not in flt for ch in data["channels"] for flt in ch["filters"])
+
+
+def test_eq_uncertainty_with_an_area_is_one_line():
+    res = run("eq", DEMO, "--uncertainty", "--area", "0.6,0.6")
+    assert res.exit_code == 2
+    assert res.stderr.count("\n") == 1 and "--uncertainty" in res.stderr and "--area" in res.stderr
