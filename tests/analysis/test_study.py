@@ -92,7 +92,7 @@ def test_minimal_file_gets_the_defaults(tmp_path):
     (MINIMAL.replace("[4.0, 6.0]", "4.0"), "[study] length_m: expected [LOW, HIGH]"),
     (MINIMAL.replace("steps = 3", "steps = 0"), "[study] steps: expected a whole number from 1 to 100"),
     (MINIMAL + "walls = [\"plasterbord-on-studs\"]\n", "[study] walls[0]:"),
-    (MINIMAL + "layout = \"sofa\"\n", "[study] layout: must be one of corner, wall"),
+    (MINIMAL + "layout = \"sofa\"\n", "[study] layout: must be one of triangle, corner, wall"),
     (MINIMAL + "lenght_m = 3\n", "unknown key 'lenght_m'"),
     (MINIMAL + "[uncertainty]\nsize_m = -1\n", "[uncertainty] size_m: -1 is out of range"),
     (MINIMAL.replace("steps = 3", "steps = 100") + "walls = [\"concrete-wall\", \"brick-painted\"]\n",
