@@ -66,6 +66,9 @@ _TOP_MAX_HZ = 300.0
 #: Search budget of ``placement = "search"``: starting points of the refinement (when on), and
 #: the solver that ranks its finalists (the study's own score then judges the chosen layout).
 _SEARCH_SEEDS = 1
+#: Distinct layouts the per-room search returns; the study keeps the one its own score, on the
+#: nominal room, likes best (the two scores weigh things differently).
+_SEARCH_KEEP = 3
 _SEARCH_METHOD = "modal"
 
 
@@ -163,20 +166,23 @@ def _nominal_score(room, layout, f, spec, band, method):
     return float(r + s)
 
 
-def search_layout(room, spec, band):
-    """The best layout of a placement search in ``room`` with the study's bounded budget.
+def search_layout(room, spec, band, f=None, method=DEFAULT_METHOD):
+    """The layout a placement search in ``room`` finds, with the study's bounded budget.
 
     The search's own constraints default as in a room file without ``[search]``
     (docs/placement.md), its listening area is the study's seat area, its coarse step
     ``spec.search_step_m``, its refinement on only with ``spec.search_refine``; it ranks with
     its own score (flatness, mismatch, area, boost, robustness) over the candidate's band.
-    Deterministic: no random draws.
+    Of its best distinct layouts (up to three), the one with the best study score on the
+    nominal room is kept (ties: the search's order). Deterministic: no random draws.
     """
     table = {"step_m": float(spec.search_step_m), "area_m": list(spec.seat_area_m),
              "area_points": list(spec.seat_area_points)}
-    res = search_layouts(room, search_space(room, table), band_hz=band, top=1, n_seeds=_SEARCH_SEEDS,
+    res = search_layouts(room, search_space(room, table), band_hz=band, top=_SEARCH_KEEP, n_seeds=_SEARCH_SEEDS,
                          refine=bool(spec.search_refine), method=_SEARCH_METHOD)
-    lay = res.ranked[0].layout
+    f = study_frequencies(spec, band) if f is None else f
+    scores = [_nominal_score(room, r.layout, f, spec, band, method) for r in res.ranked]
+    lay = res.ranked[int(np.argmin(scores))].layout
     return type(lay)(lay.speakers, lay.seat_m, "search")
 
 
@@ -185,7 +191,7 @@ def choose_layout(room, spec, f, method=DEFAULT_METHOD, band=None):
     or the best-scoring preset."""
     band = spec.band_hz if band is None else band
     if spec.placement == "search":
-        return search_layout(room, spec, band)
+        return search_layout(room, spec, band, f, method)
     if spec.layout == "triangle":
         return triangle_layout(room, spec.seat_fraction, spec.spacing_m)
     if spec.layout != "best-preset":

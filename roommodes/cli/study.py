@@ -85,10 +85,12 @@ def study(study_file, output, workers, scheduler, top, method, force, as_json):
     """Rank candidate room sizes by their predicted bass after their own EQ, on a Dask cluster.
 
     The study file gives ranges of length, width and height and the grid points per
-    dimension ([study] length_m, width_m, height_m, steps); optionally wall materials, a
-    placement rule, a seat area and the uncertainty (docs/study.md). Each candidate is scored
+    dimension ([study] length_m, width_m, height_m, steps); optionally wall materials, the
+    placement (the same listening triangle in every room, a preset, or a placement search per
+    room), a seat area, the band and the uncertainty (docs/study.md). Each candidate is scored
     over rooms drawn from the uncertainty: the seat area's deviation from flat plus its spread
-    across the area, after the room's own EQ (dB, lower is better). The proportion criteria are
+    across the area, after the room's own EQ, from 30 Hz to the room's Schroeder frequency by
+    default (dB, lower is better). The proportion criteria are
     shown beside each room, not used in the score. Results do not depend on the number of
     workers.
     """
