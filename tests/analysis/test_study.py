@@ -134,6 +134,16 @@ def test_band_tops_at_each_rooms_schroeder_frequency():
     assert candidate_band(fixed, candidate_room(fixed, 0)) == (25.0, 160.0)
 
 
+def test_best_preset_is_the_best_scoring_preset_without_uncertainty():
+    # with no uncertainty every drawn room is the nominal one, on which best-preset chooses
+    base = StudySpec((4.5, 4.5), (3.4, 3.4), (2.5, 2.5), 1, samples=2, points_per_octave=6,
+                     uncertainty=Uncertainty(0.0, 0.0, 0.0, 0.0))
+    best = evaluate_candidate(0, StudySpec(**{**base.__dict__, "layout": "best-preset"}))
+    each = {name: evaluate_candidate(0, StudySpec(**{**base.__dict__, "layout": name})).score_db
+            for name in ("corner", "wall", "mid-room", "desk")}
+    assert best.layout in each and best.score_db == pytest.approx(min(each.values()), abs=1e-9)
+
+
 SEARCH = StudySpec((4.2, 4.2), (3.4, 3.4), (2.5, 2.5), 1, walls=("plasterboard-on-studs", "concrete-wall"),
                    placement="search", search_step_m=0.5, seat_area_points=(1, 1), points_per_octave=6,
                    band_hz=(30.0, 100.0), samples=2, seed=3)
