@@ -5,16 +5,22 @@ constructions. Each candidate is scored by :func:`evaluate_candidate`, a pure fu
 spec and the candidate's index:
 
 1. the room: the candidate's size and materials, the study's air and uncertainty;
-2. the layout: a standard preset, or the preset that scores best on the nominal room;
-3. the levels of both speakers at a grid over the seat area in ``samples`` rooms drawn from
-   the uncertainty (:func:`roommodes.analysis.uncertainty.ensemble_levels`), seeded from
-   ``(seed, index)``, so the result does not depend on which worker computes it;
-4. the room's own EQ per channel: a parametric design (:func:`roommodes.analysis.eq.design_parametric`)
+2. the band: from the study's low limit to the room's own Schroeder frequency (its modal
+   region), or a fixed band;
+3. the layout: the "triangle" rule (the same listening triangle, in metres, in every room;
+   seat at a fraction of the length), a standard preset, the best preset, or a placement
+   search in this room (``placement = "search"``, a bounded budget);
+4. the levels of both speakers at a grid over the seat area (the same size in every room) in
+   ``samples`` rooms drawn from the uncertainty
+   (:func:`roommodes.analysis.uncertainty.ensemble_levels`), seeded from ``(seed, index)``,
+   so the result does not depend on which worker computes it;
+5. the room's own EQ per channel: a parametric design (:func:`roommodes.analysis.eq.design_parametric`)
    on the ensemble median of the seat area's power-average level;
-5. the score of each drawn room after that EQ: the rms deviation of the seat area's
-   power-average level from its own mean over the band (response, dB) plus the rms over the
-   band of the level's standard deviation across the seat area (spread, dB); both channels
-   averaged. The candidate's score is the ensemble median, with its 10th and 90th percentiles.
+6. the score of each drawn room after that EQ, on 1/6-octave smoothed levels: the rms
+   deviation of the seat area's power-average level from its own mean over the band
+   (response, dB) plus the rms over the band of the level's standard deviation across the
+   seat area (spread, dB); both channels averaged. The candidate's score is the ensemble
+   median, with its 10th and 90th percentiles.
 
 The proportion criteria (:func:`roommodes.analysis.summary.room_summary`) are reported beside
 each candidate, not used in the score.
@@ -33,21 +39,37 @@ from dask.distributed import as_completed
 
 from ..dsp.response import log_frequencies, smooth_db
 from ..model.materials import get_material
-from ..model.placement import PRESETS, preset_layout
+from ..model.placement import PRESETS, preset_layout, search_space, triangle_layout
 from ..model.room import WALL_MARGIN_M, WALLS, Room, Surface
+from ..model.study import SCHROEDER
 from ..solvers import DEFAULT_METHOD
 from . import eq
 from .levels import speaker_levels
+from .predict import room_schroeder_frequency
+from .search import search_layouts
 from .summary import room_summary
 from .uncertainty import ensemble_levels
 
-__all__ = ["CandidateResult", "StudyResult", "candidate_room", "candidate_seed", "evaluate_candidate",
-           "run_study", "score_levels"]
+__all__ = ["CandidateResult", "StudyResult", "candidate_band", "candidate_room", "candidate_seed",
+           "evaluate_candidate", "run_study", "score_levels", "study_frequencies"]
 
 #: Smoothing of the curves the EQ is designed on, 1/N octave (common practice for room EQ).
 EQ_SMOOTHING = 12
 #: Largest boost the study's EQ may use, dB (a conservative default, as in ``roommodes eq``).
 MAX_BOOST_DB = 6.0
+#: Smoothing of the levels the score is computed on, 1/N octave (common practice for judging
+#: a bass response: finer detail moves with a head's few centimetres).
+SCORE_SMOOTHING = 6
+#: Limits of a band top taken from the Schroeder frequency, Hz: at least an octave above the
+#: low limit, at most 300 Hz (where the bass ends for this program).
+_TOP_MAX_HZ = 300.0
+#: Search budget of ``placement = "search"``: starting points of the refinement (when on), and
+#: the solver that ranks its finalists (the study's own score then judges the chosen layout).
+_SEARCH_SEEDS = 1
+#: Distinct layouts the per-room search returns; the study keeps the one its own score, on the
+#: nominal room, likes best (the two scores weigh things differently).
+_SEARCH_KEEP = 3
+_SEARCH_METHOD = "modal"
 
 
 def _surface(name, material):
@@ -69,6 +91,25 @@ def candidate_room(spec, index):
 def candidate_seed(spec, index):
     """Seed of candidate ``index``: from the study's seed and the index only."""
     return int(np.random.SeedSequence([int(spec.seed), int(index)]).generate_state(1)[0])
+
+
+def candidate_band(spec, room):
+    """The band (Hz) candidate ``room`` is scored and equalised over.
+
+    The study's ``band_hz``; a top of "schroeder" is the room's Schroeder frequency
+    (:func:`roommodes.analysis.predict.room_schroeder_frequency`), kept between an octave
+    above the low limit and 300 Hz.
+    """
+    lo, hi = spec.band_hz
+    if hi == SCHROEDER:
+        hi = min(max(room_schroeder_frequency(room), 2.0 * lo), _TOP_MAX_HZ)
+    return (float(lo), round(float(hi), 3))
+
+
+def study_frequencies(spec, band_hz):
+    """Frequency grid of a candidate: the band plus half the score's smoothing window each side."""
+    half = 2.0 ** (1.0 / (2 * SCORE_SMOOTHING))
+    return log_frequencies(band_hz[0] / half, band_hz[1] * half, spec.points_per_octave)
 
 
 def seat_area(room, seat_m, area_m, points):
@@ -96,8 +137,10 @@ def room_eq_db(freq_hz, area_db, band_hz, lowest_mode_hz=None):
     return out
 
 
-def score_levels(freq_hz, levels_db, band_hz):
+def score_levels(freq_hz, levels_db, band_hz, smoothing=SCORE_SMOOTHING):
     """Response and spread (dB) of levels (..., S, P, F) over the band.
+
+    Each point's level is first power-smoothed over 1/``smoothing`` octave (0: not).
 
     Returns
     -------
@@ -106,8 +149,8 @@ def score_levels(freq_hz, levels_db, band_hz):
         over the band of the standard deviation across the points; both averaged over channels.
     """
     f = np.asarray(freq_hz, dtype=float)
-    sel = (f >= band_hz[0]) & (f <= band_hz[1])
-    lv = levels_db[..., sel]
+    sel = (f >= band_hz[0] * (1 - 1e-9)) & (f <= band_hz[1] * (1 + 1e-9))
+    lv = smooth_db(f, levels_db, smoothing)[..., sel]
     area = _area_db(lv)
     dev = area - area.mean(axis=-1, keepdims=True)
     response = np.sqrt(np.mean(dev**2, axis=-1)).mean(axis=-1)
@@ -115,16 +158,42 @@ def score_levels(freq_hz, levels_db, band_hz):
     return response, spread
 
 
-def _nominal_score(room, layout, f, spec, method):
+def _nominal_score(room, layout, f, spec, band, method):
     pts = seat_area(room, layout.seat_m, spec.seat_area_m, spec.seat_area_points)
     lv = speaker_levels(room, layout.speakers, pts, f, method=method).level_db
-    corr = room_eq_db(f, _area_db(lv), spec.band_hz)
-    r, s = score_levels(f, lv + corr[:, None, :], spec.band_hz)
+    corr = room_eq_db(f, _area_db(lv), band)
+    r, s = score_levels(f, lv + corr[:, None, :], band)
     return float(r + s)
 
 
-def choose_layout(room, spec, f, method=DEFAULT_METHOD):
-    """The study's placement rule in ``room``: the named preset, or the best-scoring preset."""
+def search_layout(room, spec, band, f=None, method=DEFAULT_METHOD):
+    """The layout a placement search in ``room`` finds, with the study's bounded budget.
+
+    The search's own constraints default as in a room file without ``[search]``
+    (docs/placement.md), its listening area is the study's seat area, its coarse step
+    ``spec.search_step_m``, its refinement on only with ``spec.search_refine``; it ranks with
+    its own score (flatness, mismatch, area, boost, robustness) over the candidate's band.
+    Of its best distinct layouts (up to three), the one with the best study score on the
+    nominal room is kept (ties: the search's order). Deterministic: no random draws.
+    """
+    table = {"step_m": float(spec.search_step_m), "area_m": list(spec.seat_area_m),
+             "area_points": list(spec.seat_area_points)}
+    res = search_layouts(room, search_space(room, table), band_hz=band, top=_SEARCH_KEEP, n_seeds=_SEARCH_SEEDS,
+                         refine=bool(spec.search_refine), method=_SEARCH_METHOD)
+    f = study_frequencies(spec, band) if f is None else f
+    scores = [_nominal_score(room, r.layout, f, spec, band, method) for r in res.ranked]
+    lay = res.ranked[int(np.argmin(scores))].layout
+    return type(lay)(lay.speakers, lay.seat_m, "search")
+
+
+def choose_layout(room, spec, f, method=DEFAULT_METHOD, band=None):
+    """The study's layout in ``room``: a placement search, the triangle rule, a named preset,
+    or the best-scoring preset."""
+    band = spec.band_hz if band is None else band
+    if spec.placement == "search":
+        return search_layout(room, spec, band, f, method)
+    if spec.layout == "triangle":
+        return triangle_layout(room, spec.seat_fraction, spec.spacing_m)
     if spec.layout != "best-preset":
         return preset_layout(room, spec.layout)
     best, best_score = None, np.inf
@@ -133,7 +202,7 @@ def choose_layout(room, spec, f, method=DEFAULT_METHOD):
             lay = preset_layout(room, name)
         except ValueError:
             continue
-        s = _nominal_score(room, lay, f, spec, method)
+        s = _nominal_score(room, lay, f, spec, band, method)
         if s < best_score:
             best, best_score = lay, s
     if best is None:
@@ -153,7 +222,13 @@ class CandidateResult:
     walls : str
         Wall material.
     layout : str
-        The preset used.
+        The layout used (the rule's name, a preset, or "search").
+    band_hz : (float, float)
+        The band scored, Hz.
+    seat_m : tuple of float or None
+        The seat of the layout, m.
+    speakers_m : tuple of tuple or None
+        The left and right woofer positions, m.
     score_db : float
         Ensemble median of response + spread after the room's EQ, dB (lower is better); NaN
         when no layout fits.
@@ -181,6 +256,9 @@ class CandidateResult:
     criteria: dict = field(default_factory=dict)
     seed: int = 0
     note: str = ""
+    band_hz: tuple = ()
+    seat_m: tuple | None = None
+    speakers_m: tuple | None = None
 
     @property
     def feasible(self):
@@ -192,30 +270,35 @@ class CandidateResult:
         return {"index": self.index, "size_m": list(self.size_m), "walls": self.walls, "layout": self.layout,
                 "score": self.score_db, "score_p10": self.score_p10_db, "score_p90": self.score_p90_db,
                 "spread_db": self.spread_db, "response_db": self.response_db, "criteria": dict(self.criteria),
-                "seed": self.seed, "note": self.note}
+                "seed": self.seed, "note": self.note, "band_hz": list(self.band_hz),
+                "seat_m": None if self.seat_m is None else list(self.seat_m),
+                "speakers_m": None if self.speakers_m is None else [list(p) for p in self.speakers_m]}
 
 
 def evaluate_candidate(index, spec, method=DEFAULT_METHOD):
     """Score candidate ``index`` of ``spec`` (pure: the same inputs give the same result)."""
     room = candidate_room(spec, index)
     seed = candidate_seed(spec, index)
+    walls = spec.walls[index // len(spec.sizes_m())]
     criteria = {c.name: bool(c.passed) for c in room_summary(room).checks}
-    f = log_frequencies(spec.band_hz[0], spec.band_hz[1], spec.points_per_octave)
+    band = candidate_band(spec, room)
+    f = study_frequencies(spec, band)
     nan = float("nan")
     try:
-        layout = choose_layout(room, spec, f, method)
+        layout = choose_layout(room, spec, f, method, band)
     except ValueError as exc:
-        return CandidateResult(int(index), room.size_m, spec.walls[index // len(spec.sizes_m())], "", nan, nan, nan,
-                               nan, nan, criteria, seed, str(exc))
+        return CandidateResult(int(index), room.size_m, walls, "", nan, nan, nan, nan, nan, criteria, seed, str(exc),
+                               band)
     pts = seat_area(room, layout.seat_m, spec.seat_area_m, spec.seat_area_points)
     lv = ensemble_levels(room, f, layout, pts, n_samples=spec.samples, seed=seed, method=method)
-    corr = room_eq_db(f, np.median(_area_db(lv), axis=0), spec.band_hz)
-    response, spread = score_levels(f, lv + corr[None, :, None, :], spec.band_hz)
+    corr = room_eq_db(f, np.median(_area_db(lv), axis=0), band)
+    response, spread = score_levels(f, lv + corr[None, :, None, :], band)
     score = response + spread
     p10, p50, p90 = np.percentile(score, (10, 50, 90))
-    return CandidateResult(int(index), room.size_m, spec.walls[index // len(spec.sizes_m())], layout.name,
-                           float(p50), float(p10), float(p90), float(np.median(spread)), float(np.median(response)),
-                           criteria, seed)
+    speakers = tuple(tuple(round(float(v), 4) for v in s.position_m) for s in layout.speakers[:2])
+    return CandidateResult(int(index), room.size_m, walls, layout.name, float(p50), float(p10), float(p90),
+                           float(np.median(spread)), float(np.median(response)), criteria, seed, "", band,
+                           tuple(round(float(v), 4) for v in layout.seat_m), speakers)
 
 
 def _rank_key(r):

@@ -15,6 +15,7 @@ from dask.distributed import Client, LocalCluster
 from ..analysis.study import run_study
 from ..io.roomfile import write_text_atomic
 from ..io.studyfile import StudyFileError, load_study
+from ..model.study import SCHROEDER
 from ._util import CONTEXT, check_output, dump_json, echo_err, fail, json_option, method_option, protect_inputs
 
 try:  # Parquet is optional (pip install "roommodes[parquet]")
@@ -25,7 +26,8 @@ except ImportError:  # pragma: no cover - depends on the installation
 
 #: Columns of the CSV (and Parquet) table, in order.
 COLUMNS = ("rank", "length_m", "width_m", "height_m", "walls", "layout", "score_db", "score_p10_db", "score_p90_db",
-           "spread_db", "response_db", "seed", "note")
+           "spread_db", "response_db", "band_low_hz", "band_high_hz", "seat_x_m", "seat_y_m", "seat_z_m",
+           "left_x_m", "left_y_m", "left_z_m", "right_x_m", "right_y_m", "right_z_m", "seed", "note")
 
 
 def _rows(result):
@@ -36,6 +38,11 @@ def _rows(result):
                "walls": c.walls, "layout": c.layout, "score_db": c.score_db, "score_p10_db": c.score_p10_db,
                "score_p90_db": c.score_p90_db, "spread_db": c.spread_db, "response_db": c.response_db,
                "seed": c.seed, "note": c.note}
+        row["band_low_hz"], row["band_high_hz"] = (tuple(c.band_hz) + (None, None))[:2]
+        for name, p in (("seat", c.seat_m), ("left", (c.speakers_m or (None, None))[0]),
+                        ("right", (c.speakers_m or (None, None))[1])):
+            for k, v in zip("xyz", p if p is not None else (None, None, None)):
+                row[f"{name}_{k}_m"] = v
         row.update({f"criterion_{k}": c.criteria.get(k) for k in crit})
         rows.append(row)
     return rows, list(COLUMNS) + [f"criterion_{k}" for k in crit]
@@ -78,10 +85,12 @@ def study(study_file, output, workers, scheduler, top, method, force, as_json):
     """Rank candidate room sizes by their predicted bass after their own EQ, on a Dask cluster.
 
     The study file gives ranges of length, width and height and the grid points per
-    dimension ([study] length_m, width_m, height_m, steps); optionally wall materials, a
-    placement rule, a seat area and the uncertainty (docs/study.md). Each candidate is scored
+    dimension ([study] length_m, width_m, height_m, steps); optionally wall materials, the
+    placement (the same listening triangle in every room, a preset, or a placement search per
+    room), a seat area, the band and the uncertainty (docs/study.md). Each candidate is scored
     over rooms drawn from the uncertainty: the seat area's deviation from flat plus its spread
-    across the area, after the room's own EQ (dB, lower is better). The proportion criteria are
+    across the area, after the room's own EQ, from 30 Hz to the room's Schroeder frequency by
+    default (dB, lower is better). The proportion criteria are
     shown beside each room, not used in the score. Results do not depend on the number of
     workers.
     """
@@ -139,8 +148,12 @@ def study(study_file, output, workers, scheduler, top, method, force, as_json):
     if as_json:
         dump_json({**result.to_dict(), "elapsed_s": elapsed})
         return
+    lo, hi = spec.band_hz
+    band = f"{lo:g} Hz to each room's Schroeder frequency" if hi == SCHROEDER else f"{lo:g}-{hi:g} Hz"
+    how = "a placement search in each room" if spec.placement == "search" else f"the '{spec.layout}' layout rule"
     click.echo(f"Best of {spec.n_candidates} candidate rooms (score = deviation from flat + spread over the seat area "
-               "after the room's EQ, dB; median of the drawn rooms, 10-90 % in brackets; lower is better)")
+               f"after the room's EQ, dB, {band}, 1/6-octave smoothed; {how}; median of the drawn rooms, 10-90 % in "
+               "brackets; lower is better)")
     click.echo(f"{'rank':>4}  {'L x W x H (m)':<20} {'walls':<24} {'layout':<9} {'score':>6} {'(10-90 %)':>13} "
                f"{'spread':>6}  criteria passed")
     for rank, c in enumerate(result.candidates[:top], 1):

@@ -8,13 +8,14 @@ from __future__ import annotations
 
 from ..model.materials import get_material
 from ..model.room import MAX_DIMENSION_M, MIN_DIMENSION_M
-from ..model.study import MAX_CANDIDATES, STUDY_LAYOUTS, StudySpec
+from ..model.study import MAX_CANDIDATES, SCHROEDER, STUDY_LAYOUTS, STUDY_PLACEMENTS, StudySpec
 from .roomfile import RoomFileError, _Ctx, _parse_uncertainty, _shown, read_toml
 
 __all__ = ["StudyFileError", "load_study", "parse_study"]
 
 _STUDY_KEYS = {"length_m", "width_m", "height_m", "steps", "walls", "floor", "ceiling", "layout", "seat_area_m",
-               "seat_area_points", "band_hz", "points_per_octave", "samples", "seed", "temperature_c"}
+               "seat_area_points", "band_hz", "points_per_octave", "samples", "seed", "temperature_c",
+               "seat_fraction", "spacing_m", "placement", "search_step_m", "search_refine"}
 _EXAMPLE = "[study] length_m = [4.0, 6.0], width_m = [3.0, 4.5], height_m = [2.4, 3.0], steps = 4"
 
 
@@ -92,6 +93,20 @@ def parse_study(data, name="<study>"):
         if t["layout"] not in STUDY_LAYOUTS:
             ctx.fail("[study] layout", f"must be one of {', '.join(STUDY_LAYOUTS)}, got {_shown(t['layout'])}")
         kw["layout"] = t["layout"]
+    if "seat_fraction" in t:
+        kw["seat_fraction"] = ctx.number(t["seat_fraction"], "[study] seat_fraction", 0.1, 0.9)
+    if "spacing_m" in t:
+        kw["spacing_m"] = ctx.number(t["spacing_m"], "[study] spacing_m", 0.5, 5.0)
+    if "placement" in t:
+        if t["placement"] not in STUDY_PLACEMENTS:
+            ctx.fail("[study] placement", f"must be one of {', '.join(STUDY_PLACEMENTS)}, got {_shown(t['placement'])}")
+        kw["placement"] = t["placement"]
+    if "search_step_m" in t:
+        kw["search_step_m"] = ctx.number(t["search_step_m"], "[study] search_step_m", 0.05, 1.0)
+    if "search_refine" in t:
+        if not isinstance(t["search_refine"], bool):
+            ctx.fail("[study] search_refine", f"expected true or false, got {_shown(t['search_refine'])}")
+        kw["search_refine"] = t["search_refine"]
     if "seat_area_m" in t:
         v = t["seat_area_m"]
         if not isinstance(v, list) or len(v) != 2:
@@ -103,7 +118,13 @@ def parse_study(data, name="<study>"):
             ctx.fail("[study] seat_area_points", f"expected [along x, along y], e.g. [3, 3], got {_shown(v)}")
         kw["seat_area_points"] = tuple(_whole(ctx, x, f"[study] seat_area_points[{i}]", 1, 9) for i, x in enumerate(v))
     if "band_hz" in t:
-        kw["band_hz"] = _pair(ctx, t["band_hz"], "[study] band_hz", 10.0, 500.0, rising=True)
+        v = t["band_hz"]
+        if isinstance(v, list) and len(v) == 2 and v[1] == SCHROEDER:
+            kw["band_hz"] = (ctx.number(v[0], "[study] band_hz[0]", 10.0, 150.0), SCHROEDER)
+        else:
+            if isinstance(v, list) and len(v) == 2 and isinstance(v[1], str):
+                ctx.fail("[study] band_hz[1]", f"expected a frequency in Hz or \"{SCHROEDER}\", got {_shown(v[1])}")
+            kw["band_hz"] = _pair(ctx, v, "[study] band_hz", 10.0, 500.0, rising=True)
     if "points_per_octave" in t:
         kw["points_per_octave"] = _whole(ctx, t["points_per_octave"], "[study] points_per_octave", 3, 96)
     if "samples" in t:
@@ -114,6 +135,9 @@ def parse_study(data, name="<study>"):
         kw["temperature_c"] = ctx.number(t["temperature_c"], "[study] temperature_c", -20.0, 50.0)
     if "uncertainty" in data:
         kw["uncertainty"] = _parse_uncertainty(ctx, data["uncertainty"])
+    if kw.get("placement") == "search" and any(n % 2 == 0 for n in kw.get("seat_area_points", (3, 3))):
+        ctx.fail("[study] seat_area_points", "must be odd numbers with placement = \"search\" (the seat is the "
+                                             "middle point of the search's area), e.g. [3, 3]")
     spec = StudySpec(**kw)
     if spec.n_candidates > MAX_CANDIDATES:
         ctx.fail("[study] steps", f"gives {spec.n_candidates} candidate rooms (steps^3 x walls); at most "

@@ -37,7 +37,8 @@ import numpy as np
 
 from .room import WALL_MARGIN_M, Cabinet, Layout, Speaker
 
-__all__ = ["PRESETS", "preset_layout", "SEAT_HEIGHT_M", "KeepOut", "SearchSpace", "default_space", "search_space",
+__all__ = ["PRESETS", "preset_layout", "triangle_layout", "TRIANGLE_FRONT_MIN_M",
+           "SEAT_HEIGHT_M", "KeepOut", "SearchSpace", "default_space", "search_space",
            "DEFAULT_CABINET", "cabinet_corners", "spacing_for_cabinet", "SEARCH_KEYS"]
 
 PRESETS = ("corner", "wall", "mid-room", "desk")
@@ -88,6 +89,63 @@ def preset_layout(room, name):
     speakers = (left.moved((front, yl, height)), right.moved((front, yr, height)))
     seat = (float(seat_x), ly / 2, min(SEAT_HEIGHT_M, lz - 0.3))
     return Layout(speakers, seat, name)
+
+
+#: Smallest distance of the "triangle" rule's woofers from the front wall, m: a 30 cm deep box
+#: with 10 cm behind it (the default cabinet and rear clearance of the search).
+TRIANGLE_FRONT_MIN_M = 0.40
+#: Smallest distance of the "triangle" rule's woofers from a side wall, m.
+_TRIANGLE_SIDE_MIN_M = 0.30
+#: Woofer height of the "triangle" rule, m: the tweeter of the default cabinet then sits 8 cm
+#: above the seated ear (1.20 m).
+_TRIANGLE_WOOFER_M = 1.10
+
+
+def triangle_layout(room, seat_fraction=0.38, spacing_m=1.2):
+    """The same listening triangle in every room: a rule stated in a builder's terms.
+
+    The seat is on the centre line at ``seat_fraction`` of the length from the front wall
+    (0.38 is a common-practice starting point: away from the half-length null of the odd
+    length modes), at ear height 1.20 m. The woofers are ``spacing_m`` apart, 1.10 m high,
+    at the apex-to-base distance of an equilateral triangle in front of the seat (common
+    practice for stereo monitoring). Where that would put them nearer than
+    :data:`TRIANGLE_FRONT_MIN_M` to the front wall, they stay there and the seat moves back
+    to keep the triangle.
+
+    Parameters
+    ----------
+    room : Room
+    seat_fraction : float
+        0 < seat_fraction < 1.
+    spacing_m : float
+
+    Returns
+    -------
+    Layout
+        Named "triangle".
+
+    Raises
+    ------
+    ValueError
+        When the room is too narrow for the spacing or too short for the triangle.
+    """
+    lx, ly, lz = room.size_m
+    depth = spacing_m * math.sqrt(3) / 2
+    if spacing_m > ly - 2 * _TRIANGLE_SIDE_MIN_M:
+        raise ValueError(f"the room is too narrow ({ly:g} m) for woofers {spacing_m:g} m apart and "
+                         f"{_TRIANGLE_SIDE_MIN_M:g} m from the side walls")
+    front = max(TRIANGLE_FRONT_MIN_M, seat_fraction * lx - depth)
+    seat_x = front + depth
+    if seat_x > lx - _BACK_CLEARANCE_M:
+        raise ValueError(f"the room is too short ({lx:g} m) for a {spacing_m:g} m listening triangle "
+                         f"{TRIANGLE_FRONT_MIN_M:g} m off the front wall")
+    height = min(_TRIANGLE_WOOFER_M, lz - 0.3)
+    if room.layout is not None and len(room.layout.speakers) >= 2:
+        left, right = room.layout.speakers[:2]
+    else:
+        left, right = Speaker("left", (0, 0, 0)), Speaker("right", (0, 0, 0))
+    speakers = (left.moved((front, ly / 2 - spacing_m / 2, height)), right.moved((front, ly / 2 + spacing_m / 2, height)))
+    return Layout(speakers, (float(seat_x), ly / 2, min(SEAT_HEIGHT_M, lz - 0.3)), "triangle")
 
 
 # ------------------------------------------------------------------------------ search constraints

@@ -9,11 +9,17 @@ import numpy as np
 
 from .room import Uncertainty
 
-__all__ = ["StudySpec", "STUDY_LAYOUTS", "MAX_CANDIDATES"]
+__all__ = ["StudySpec", "STUDY_LAYOUTS", "STUDY_PLACEMENTS", "MAX_CANDIDATES", "SCHROEDER"]
 
-#: Placement rules a study may use: a standard preset, or "best-preset" (each room gets the
-#: preset that scores best on its nominal prediction).
-STUDY_LAYOUTS = ("corner", "wall", "mid-room", "desk", "best-preset")
+#: Placement rules a study may use: "triangle" (the same listening triangle in every room, set
+#: in metres and as a fraction of the length: :func:`roommodes.model.placement.triangle_layout`),
+#: a standard preset, or "best-preset" (each room gets the preset that scores best on its
+#: nominal prediction).
+STUDY_LAYOUTS = ("triangle", "corner", "wall", "mid-room", "desk", "best-preset")
+#: How each candidate room gets its layout: the ``layout`` rule, or a placement search per room.
+STUDY_PLACEMENTS = ("rule", "search")
+#: The top of ``band_hz`` that stands for each room's own Schroeder frequency.
+SCHROEDER = "schroeder"
 #: Most candidate rooms one study may hold.
 MAX_CANDIDATES = 100_000
 
@@ -33,13 +39,26 @@ class StudySpec:
     floor, ceiling : str
         Library materials of the floor and the ceiling.
     layout : str
-        Placement rule (:data:`STUDY_LAYOUTS`).
+        Placement rule (:data:`STUDY_LAYOUTS`) when ``placement`` is "rule".
+    seat_fraction : float
+        The "triangle" rule's seat: this fraction of the room's length from the front wall.
+    spacing_m : float
+        The "triangle" rule's distance between the two woofers, m.
+    placement : str
+        "rule" (the ``layout`` rule) or "search" (a placement search in each candidate room,
+        :func:`roommodes.analysis.search.search_layouts`, with a bounded budget).
+    search_step_m : float
+        Coarse grid step of the per-room search, m (its budget: coarser is faster).
+    search_refine : bool
+        Refine the search's best coarse layout by its pattern search (slower, finer).
     seat_area_m : (float, float)
         Depth (x) and width (y) of the seat area centred on the rule's seat, m.
     seat_area_points : (int, int)
         Grid points of the seat area along x and y.
-    band_hz : (float, float)
-        Band scored and equalised, Hz.
+    band_hz : (float, float or str)
+        Band scored and equalised, Hz; a top of :data:`SCHROEDER` stands for each candidate's
+        own Schroeder frequency (its modal region, so every room is judged where its modes
+        rule the response).
     points_per_octave : int
         Frequency-grid density.
     samples : int
@@ -57,10 +76,15 @@ class StudySpec:
     walls: tuple = ("plasterboard-on-studs",)
     floor: str = "wood-floor-on-joists"
     ceiling: str = "plasterboard-on-studs"
-    layout: str = "desk"
+    layout: str = "triangle"
+    seat_fraction: float = 0.38
+    spacing_m: float = 1.2
+    placement: str = "rule"
+    search_step_m: float = 0.25
+    search_refine: bool = False
     seat_area_m: tuple = (0.6, 0.6)
     seat_area_points: tuple = (3, 3)
-    band_hz: tuple = (25.0, 160.0)
+    band_hz: tuple = (30.0, SCHROEDER)
     points_per_octave: int = 24
     samples: int = 32
     seed: int = 1
@@ -83,7 +107,9 @@ class StudySpec:
         """JSON-ready values, keyed as in the study file."""
         return {"length_m": list(self.length_m), "width_m": list(self.width_m), "height_m": list(self.height_m),
                 "steps": self.steps, "walls": list(self.walls), "floor": self.floor, "ceiling": self.ceiling,
-                "layout": self.layout, "seat_area_m": list(self.seat_area_m),
+                "layout": self.layout, "seat_fraction": self.seat_fraction, "spacing_m": self.spacing_m,
+                "placement": self.placement, "search_step_m": self.search_step_m,
+                "search_refine": self.search_refine, "seat_area_m": list(self.seat_area_m),
                 "seat_area_points": list(self.seat_area_points), "band_hz": list(self.band_hz),
                 "points_per_octave": self.points_per_octave, "samples": self.samples, "seed": self.seed,
                 "uncertainty": self.uncertainty.to_dict(), "temperature_c": self.temperature_c}

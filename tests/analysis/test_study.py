@@ -12,8 +12,9 @@ import numpy as np
 import pytest
 from dask.distributed import Client, LocalCluster
 
-from roommodes.analysis.study import candidate_room, candidate_seed, evaluate_candidate, run_study
+from roommodes.analysis.study import candidate_band, candidate_room, candidate_seed, evaluate_candidate, run_study
 from roommodes.io.studyfile import StudyFileError, load_study, parse_study
+from roommodes.model.placement import triangle_layout
 from roommodes.model.room import Uncertainty
 from roommodes.model.study import StudySpec
 
@@ -74,6 +75,92 @@ def test_layout_that_does_not_fit_is_ranked_last_with_the_reason():
     assert np.isnan(res.candidates[-1].score_db)
 
 
+def _box(volume_m3, ratio):
+    h = (volume_m3 / np.prod(ratio)) ** (1 / 3)
+    return tuple(round(h * k, 3) for k in ratio)
+
+
+def _score(size, samples=4):
+    return evaluate_candidate(0, StudySpec(*[(v, v) for v in size], 1, samples=samples)).score_db
+
+
+@pytest.mark.parametrize("volume_m3", [45.0, 80.0])
+def test_a_cube_scores_worse_than_good_proportions_of_the_same_volume(volume_m3):
+    # good: 1 : 1.4 : 1.9 (Louden 1971, Acustica 24:101, his best ratio; from memory) and
+    # 1 : 1.28 : 1.54 (Sepmeyer 1965, J. SMPTE 74:291; from memory); a cube's three axial
+    # series coincide, outside Bolt's favourable region (Bolt 1946, J. Acoust. Soc. Am.
+    # 18:130; from memory). The default score, all else equal (the study's defaults).
+    cube = _score(_box(volume_m3, (1.0, 1.0, 1.0)))
+    for ratio in ((1.9, 1.4, 1.0), (1.54, 1.28, 1.0)):
+        good = _score(_box(volume_m3, ratio))
+        assert cube > good + 0.5, (volume_m3, ratio, cube, good)
+
+
+def test_triangle_rule_is_the_same_triangle_in_metres_in_every_room():
+    # the equilateral listening triangle: speaker-seat distances equal the spacing (common
+    # practice for stereo monitoring); the seat at 0.38 of the length (common practice)
+    for size in [(5.0, 3.6, 2.6), (7.5, 5.0, 3.0)]:
+        room = candidate_room(StudySpec(*[(v, v) for v in size], 1), 0)
+        lay = triangle_layout(room, 0.38, 1.2)
+        left, right = (np.array(s.position_m) for s in lay.speakers)
+        seat = np.array(lay.seat_m)
+        assert np.linalg.norm(left - right) == pytest.approx(1.2)
+        assert np.hypot(*(seat - left)[:2]) == pytest.approx(1.2)
+        assert np.hypot(*(seat - right)[:2]) == pytest.approx(1.2)
+        assert seat[0] == pytest.approx(0.38 * size[0]) and seat[1] == pytest.approx(size[1] / 2)
+    # too short for 0.38 L: the woofers stay 0.40 m off the front wall and the seat moves back
+    short = triangle_layout(candidate_room(StudySpec((3.0, 3.0), (3.0, 3.0), (2.5, 2.5), 1), 0))
+    assert short.speakers[0].position_m[0] == pytest.approx(0.40)
+    assert short.seat_m[0] == pytest.approx(0.40 + 1.2 * np.sqrt(3) / 2)
+    with pytest.raises(ValueError, match="too narrow"):
+        triangle_layout(candidate_room(StudySpec((4.0, 4.0), (1.7, 1.7), (2.5, 2.5), 1), 0))
+
+
+def test_band_tops_at_each_rooms_schroeder_frequency():
+    # f_S = 2000 sqrt(T / V) (Schroeder 1996, J. Acoust. Soc. Am. 99(5):3240, eq. 1) with
+    # Sabine's T = 0.161 V / sum(S alpha) at 125 Hz (Sabine 1900; 0.161 s/m from
+    # 24 ln 10 / 343 m/s), computed here by hand
+    for size in [(4.0, 3.2, 2.5), (8.0, 6.0, 3.2)]:
+        spec = StudySpec(*[(v, v) for v in size], 1)
+        room = candidate_room(spec, 0)
+        lx, ly, lz = size
+        areas = {"front": ly * lz, "back": ly * lz, "left": lx * lz, "right": lx * lz, "floor": lx * ly,
+                 "ceiling": lx * ly}
+        sa = sum(areas[s.name] * float(s.absorption_at(np.array([125.0]))[0]) for s in room.surfaces)
+        t = 24 * np.log(10) / room.speed_of_sound * lx * ly * lz / sa
+        lo, hi = candidate_band(spec, room)
+        assert lo == 30.0 and hi == pytest.approx(2000 * np.sqrt(t / (lx * ly * lz)), rel=1e-3)
+    fixed = StudySpec((4.0, 4.0), (3.2, 3.2), (2.5, 2.5), 1, band_hz=(25.0, 160.0))
+    assert candidate_band(fixed, candidate_room(fixed, 0)) == (25.0, 160.0)
+
+
+def test_best_preset_is_the_best_scoring_preset_without_uncertainty():
+    # with no uncertainty every drawn room is the nominal one, on which best-preset chooses
+    base = StudySpec((4.5, 4.5), (3.4, 3.4), (2.5, 2.5), 1, samples=2, points_per_octave=6,
+                     uncertainty=Uncertainty(0.0, 0.0, 0.0, 0.0))
+    best = evaluate_candidate(0, StudySpec(**{**base.__dict__, "layout": "best-preset"}))
+    each = {name: evaluate_candidate(0, StudySpec(**{**base.__dict__, "layout": name})).score_db
+            for name in ("corner", "wall", "mid-room", "desk")}
+    assert best.layout in each and best.score_db == pytest.approx(min(each.values()), abs=1e-9)
+
+
+SEARCH = StudySpec((4.2, 4.2), (3.4, 3.4), (2.5, 2.5), 1, walls=("plasterboard-on-studs", "concrete-wall"),
+                   placement="search", search_step_m=0.5, seat_area_points=(1, 1), points_per_octave=6,
+                   band_hz=(30.0, 100.0), samples=2, seed=3)
+
+
+@pytest.mark.slow
+def test_search_placement_is_the_same_on_one_and_two_workers():
+    one = _on_cluster(SEARCH, 1)
+    two = _on_cluster(SEARCH, 2)
+    assert [c.to_dict() for c in one.candidates] == [c.to_dict() for c in two.candidates]
+    for c in one.candidates:
+        assert c.layout == "search" and c.feasible, c.note
+        # the search's layout, not the triangle rule's
+        rule = evaluate_candidate(c.index, StudySpec(**{**SEARCH.__dict__, "placement": "rule"}))
+        assert c.seat_m != rule.seat_m or c.speakers_m != rule.speakers_m
+
+
 MINIMAL = "[study]\nlength_m = [4.0, 6.0]\nwidth_m = [3.0, 4.5]\nheight_m = [2.4, 3.0]\nsteps = 3\n"
 
 
@@ -83,6 +170,12 @@ def test_minimal_file_gets_the_defaults(tmp_path):
     spec = load_study(p)
     assert spec.n_candidates == 27 and spec.walls == ("plasterboard-on-studs",)
     assert spec.uncertainty == Uncertainty()
+    assert (spec.layout, spec.placement, spec.band_hz) == ("triangle", "rule", (30.0, "schroeder"))
+    p.write_text(MINIMAL + "placement = \"search\"\nsearch_step_m = 0.3\nsearch_refine = true\nspacing_m = 1.5\n"
+                 "seat_fraction = 0.4\nband_hz = [25, \"schroeder\"]\n")
+    spec = load_study(p)
+    assert (spec.placement, spec.search_step_m, spec.search_refine, spec.spacing_m, spec.seat_fraction,
+            spec.band_hz) == ("search", 0.3, True, 1.5, 0.4, (25.0, "schroeder"))
 
 
 @pytest.mark.parametrize("text, expect", [
@@ -92,8 +185,13 @@ def test_minimal_file_gets_the_defaults(tmp_path):
     (MINIMAL.replace("[4.0, 6.0]", "4.0"), "[study] length_m: expected [LOW, HIGH]"),
     (MINIMAL.replace("steps = 3", "steps = 0"), "[study] steps: expected a whole number from 1 to 100"),
     (MINIMAL + "walls = [\"plasterbord-on-studs\"]\n", "[study] walls[0]:"),
-    (MINIMAL + "layout = \"sofa\"\n", "[study] layout: must be one of corner, wall"),
+    (MINIMAL + "layout = \"sofa\"\n", "[study] layout: must be one of triangle, corner, wall"),
     (MINIMAL + "lenght_m = 3\n", "unknown key 'lenght_m'"),
+    (MINIMAL + "placement = \"grid\"\n", "[study] placement: must be one of rule, search"),
+    (MINIMAL + "band_hz = [30, \"schroder\"]\n", "[study] band_hz[1]: expected a frequency in Hz or \"schroeder\""),
+    (MINIMAL + "placement = \"search\"\nseat_area_points = [2, 3]\n", "[study] seat_area_points: must be odd"),
+    (MINIMAL + "search_refine = 1\n", "[study] search_refine: expected true or false"),
+    (MINIMAL + "seat_fraction = 0.95\n", "[study] seat_fraction: 0.95 is out of range"),
     (MINIMAL + "[uncertainty]\nsize_m = -1\n", "[uncertainty] size_m: -1 is out of range"),
     (MINIMAL.replace("steps = 3", "steps = 100") + "walls = [\"concrete-wall\", \"brick-painted\"]\n",
      "candidate rooms"),

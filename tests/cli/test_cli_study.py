@@ -37,6 +37,12 @@ def test_minimal_study_file_runs_and_writes_json_and_csv(tmp_path, scheduler):
     assert c["score"] > c["spread_db"] > 0 and isinstance(c["criteria"], dict)
     rows = list(csv.DictReader((tmp_path / "plan-results.csv").open()))
     assert len(rows) == 1 and float(rows[0]["score_db"]) == pytest.approx(c["score"])
+    # where the layout put the seat and the woofers, and the band scored (30 Hz to the room's
+    # Schroeder frequency), in the CSV as in the JSON
+    assert [float(rows[0][f"seat_{k}_m"]) for k in "xyz"] == pytest.approx(c["seat_m"])
+    assert [float(rows[0][f"right_{k}_m"]) for k in "xyz"] == pytest.approx(c["speakers_m"][1])
+    assert float(rows[0]["band_low_hz"]) == 30.0 and float(rows[0]["band_high_hz"]) == pytest.approx(c["band_hz"][1])
+    assert c["layout"] == "triangle" and data["study"]["placement"] == "rule"
     # the results file exists now: a second run refuses to overwrite it without --force
     again = run("study", study, "--scheduler", scheduler)
     assert again.exit_code == 2 and "already exists" in again.stderr
