@@ -142,7 +142,8 @@ def _smoothing_label(b):
 
 @click.command(context_settings=CONTEXT)
 @click.argument("out", type=click.Path(path_type=Path))
-@click.option("--rate", "fs_hz", type=int, default=48000, show_default=True, help="Sample rate, Hz.")
+@click.option("--rate", "fs_hz", type=click.IntRange(8000, 384000), default=48000, show_default=True,
+              help="Sample rate, Hz (8000..384000).")
 @click.option("--length", "duration_s", type=float, default=10.0, show_default=True,
               help="Sweep length, s (a longer sweep gains about 3 dB of signal-to-noise per doubling).")
 @click.option("--f1", "f1_hz", type=float, default=15.0, show_default=True, help="Start frequency, Hz.")
@@ -315,7 +316,8 @@ def ir(recording, sweep_path, out, wav_channel, loopback, ir_length_s, plot_path
 
 @click.command(context_settings=CONTEXT)
 @click.argument("out", type=click.Path(path_type=Path))
-@click.option("--rate", "fs_hz", type=int, default=48000, show_default=True, help="Sample rate, Hz.")
+@click.option("--rate", "fs_hz", type=click.IntRange(8000, 384000), default=48000, show_default=True,
+              help="Sample rate, Hz (8000..384000).")
 @click.option("--length", "duration_s", type=float, default=30.0, show_default=True, help="Length, s.")
 @click.option("--level", "level_dbfs", type=float, default=-20.0, show_default=True,
               help="Rms level, dBFS (a full-scale sine is 0 dBFS); peaks stay 12 dB above it at most.")

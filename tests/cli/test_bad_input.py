@@ -643,3 +643,10 @@ def test_eq_with_fifty_speakers_asks_for_a_choice(tmp_path):
     res = run("eq", room, "--channel", "s3", "--channel", "s40", "--json")
     assert res.exit_code == 0, res.output
     assert [c["name"] for c in json.loads(res.stdout)["channels"]] == ["s3", "s40"]
+
+
+@pytest.mark.parametrize("command", ["noise", "sweep"])
+@pytest.mark.parametrize("rate", ["0", "1", "10000000"])
+def test_signal_sample_rate_out_of_range_names_the_option(tmp_path, command, rate):
+    one_line_error(run(command, tmp_path / "x.wav", "--rate", rate), "--rate", "8000")
+    assert not (tmp_path / "x.wav").exists()

@@ -142,3 +142,19 @@ def test_spl_ref_errors_are_one_line(tmp_path, args, names):
     for n in names:
         assert n in lines[0]
     assert not (tmp_path / "cal.toml").exists()
+
+
+@pytest.mark.slow
+def test_report_shows_the_measured_maximum_level_with_the_calibration(tmp_path):
+    ir = _peaked_ir(tmp_path)
+    cal = wav(tmp_path / "cal.wav", tone(0.1))  # 0 dBFS = 114 dB SPL
+    res = CliRunner().invoke(main, ["report", DEMO, str(ir), "--channel", "left", "-o", str(tmp_path / "r.html"), "--search",
+                              "off", "--spl-ref", f"94@1000:{cal}", "--json"], catch_exceptions=False)
+    assert res.exit_code == 0, res.output
+    levels = json.loads(res.stdout)["values"]["max_level_db"]
+    assert levels["left"]["basis"] == "measured"
+    # at 200 Hz, above the resonance, the synthetic chain's flat 74 dB SPL (within the 1/12-octave smoothing)
+    assert levels["left"]["before_db"][-1] == pytest.approx(74.0, abs=0.2)
+    assert levels["right"]["basis"] == "model"  # the unmeasured channel keeps the room file's figures
+    page = (tmp_path / "r.html").read_text()
+    assert "0 dBFS = 114.00 dB SPL" in page
