@@ -803,6 +803,9 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
         if ref is not None:
             click.echo(f"Measured levels in dB SPL ({ref.describe()}); the fit aligns each measurement's level, so "
                        "only the figure's and the JSON's levels are absolute")
+        elif not absolute:
+            click.echo("Measured levels are relative (no --spl-ref): each measurement's level is aligned with the "
+                       "model's, so only their shapes are fitted")
         click.echo(f"Absorption is given as the area-weighted coefficient at {res.reference_hz:.0f} Hz; "
                    "'+-' is an approximate standard error; '|' marks a value stopped at its bound.")
         click.echo(f"  {'parameter':<26} {'file':>9} {'fitted':>9} {'change':>9} {'+-':>8}")
