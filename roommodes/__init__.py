@@ -11,15 +11,6 @@ The public API, re-exported here, is what the command-line tool uses:
 
 __version__ = "0.1.0"
 
-from .analysis.predict import Prediction, predict, response_features, room_schroeder_frequency
-from .analysis.summary import room_summary
-from .dsp.response import Response, log_frequencies, smooth_fractional_octave
-from .io.roomfile import RoomFileError, demo_room_path, example_rooms, load_room, room_to_toml
-from .model.modes import ModeSet, room_modes
-from .model.placement import PRESETS, preset_layout
-from .model.room import WALLS, Layout, Room, Speaker, Surface, speed_of_sound
-from .solvers import transfer_function
-
 __all__ = [
     "__version__",
     "WALLS",
@@ -57,9 +48,34 @@ __all__ = [
     "transfer_function",
 ]
 
-# The measurement, search and correction parts pull in scipy.signal and scipy.optimize;
-# they are imported on first use so that `import roommodes` (and every command) starts fast.
+# Every name is imported on first use, so that `import roommodes` (and the command line,
+# which must be able to take Ctrl-C from its first instant) costs almost nothing; the
+# measurement, search and correction parts pull in scipy.signal and scipy.optimize.
 _LAZY = {
+    "Prediction": "analysis.predict",
+    "predict": "analysis.predict",
+    "response_features": "analysis.predict",
+    "room_schroeder_frequency": "analysis.predict",
+    "room_summary": "analysis.summary",
+    "Response": "dsp.response",
+    "log_frequencies": "dsp.response",
+    "smooth_fractional_octave": "dsp.response",
+    "RoomFileError": "io.roomfile",
+    "demo_room_path": "io.roomfile",
+    "example_rooms": "io.roomfile",
+    "load_room": "io.roomfile",
+    "room_to_toml": "io.roomfile",
+    "ModeSet": "model.modes",
+    "room_modes": "model.modes",
+    "PRESETS": "model.placement",
+    "preset_layout": "model.placement",
+    "WALLS": "model.room",
+    "Layout": "model.room",
+    "Room": "model.room",
+    "Speaker": "model.room",
+    "Surface": "model.room",
+    "speed_of_sound": "model.room",
+    "transfer_function": "solvers",
     "compare_measurements": "analysis.compare", "compare_to_prediction": "analysis.compare",
     "load_measurement": "analysis.compare", "correct_curve": "analysis.correction",
     "correct_prediction": "analysis.correction", "explain": "analysis.explain",
@@ -75,3 +91,7 @@ def __getattr__(name):
         globals()[name] = value
         return value
     raise AttributeError(f"module 'roommodes' has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_LAZY))

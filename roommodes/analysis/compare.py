@@ -38,6 +38,7 @@ from ..measure.decay import onset_index
 from ..measure.deconvolve import frequency_response
 from ..model.modes import mode_shapes, room_modes
 from ..solvers import DEFAULT_METHOD
+from .fit import estimate_effective_size
 from .levels import speaker_levels
 from .predict import boundary_notches
 
@@ -669,7 +670,9 @@ def interpret(matches, comparison=None, room=None, names=("measured", "predicted
       a wall that moves (lightweight construction) or an opening (a door left open)
       lets the sound field reach beyond the surfaces; higher ones, smaller (large
       furniture, a wrong dimension). Axial modes along one axis give an effective
-      dimension ``L / ratio`` (axial modes at ``n c / 2L``, Rayleigh).
+      dimension that acts longer when the ratio is below 1 (axial modes at ``n c / 2L``,
+      Rayleigh); by how much is left to :func:`roommodes.analysis.fit.estimate_effective_size`,
+      the one estimate of the effective dimensions.
     * Damping: paired peaks lower by 2 dB or more (median prominence difference) or
       30 % broader suggest more damping than the surfaces in the file give (more
       absorption, leaky walls); the reverse, less.
@@ -702,8 +705,10 @@ def interpret(matches, comparison=None, room=None, names=("measured", "predicted
             if rs:
                 r = float(np.median(rs))
                 if abs(r - 1.0) >= 0.015:
-                    out.append(f"{axis.capitalize()} modes: median ratio {r:.3f} over {len(rs)} pair(s): effective "
-                               f"{axis} about {room.size_m[ai] / r:.2f} m (file: {room.size_m[ai]:.2f} m).")
+                    # the ratio says which way; the figure comes from fit.estimate_effective_size alone
+                    way = "longer" if r < 1 else "shorter"
+                    out.append(f"{axis.capitalize()} modes: median ratio {r:.3f} over {len(rs)} pair(s): the "
+                               f"{axis} acts {way} than the file's {room.size_m[ai]:.2f} m.")
     if peaks:
         dprom = float(np.median([m.measured.prominence_db - m.reference.prominence_db for m in peaks]))
         wr = float(np.median([m.measured.width_octaves / max(m.reference.width_octaves, 1e-6) for m in peaks]))
@@ -754,6 +759,9 @@ class ComparisonReport:
     positions_m : ndarray (M, 3) or None
         Microphone positions the prediction used.
     channel : str or None
+    effective : EffectiveSize or None
+        The effective dimensions (:func:`roommodes.analysis.fit.estimate_effective_size`),
+        when they were estimated.
     """
     comparison: Comparison
     matches: list
@@ -763,6 +771,7 @@ class ComparisonReport:
     names: tuple
     positions_m: np.ndarray | None = None
     channel: str | None = None
+    effective: object = None
 
     def to_dict(self):
         """JSON-ready values: the keys of ``compare --json`` (shared/ARCHITECTURE.md)."""
@@ -779,6 +788,7 @@ class ComparisonReport:
             "band_fraction": first.band_fraction, "spread_db": spread,
             "features": [m.to_dict() for m in self.matches], "interpretation": list(self.interpretation),
             "names": list(self.names),
+            "effective_size": None if self.effective is None else self.effective.to_dict(),
         }
 
 
@@ -797,7 +807,7 @@ def _common_grid(a, b):
 
 def compare_to_prediction(room, measured, channel=None, positions_m=None, *, band_hz=DEFAULT_BAND_HZ,
                           smoothing=DEFAULT_SMOOTHING, align_band_hz=None, absolute=False, method=DEFAULT_METHOD,
-                          min_prominence_db=3.0, max_distance_octaves=0.25, **options):
+                          min_prominence_db=3.0, max_distance_octaves=0.25, fit_targets=None, **options):
     """Compare a measurement with the model's prediction for the same speaker and position.
 
     Parameters
@@ -815,6 +825,10 @@ def compare_to_prediction(room, measured, channel=None, positions_m=None, *, ban
     method : {"modal", "image"}
     min_prominence_db, max_distance_octaves
         As in :func:`find_features` and :func:`match_features`.
+    fit_targets : sequence of FitTarget, optional
+        The measurements behind ``measured``, each with its position: the effective
+        dimensions are estimated from them (:func:`roommodes.analysis.fit.estimate_effective_size`,
+        with this band, smoothing, solver and ``absolute``), as ``fit`` does. Not for band data.
     **options
         Passed to the solver.
 
@@ -844,8 +858,24 @@ def compare_to_prediction(room, measured, channel=None, positions_m=None, *, ban
     matches = match_features(fm, fr, max_distance_octaves=max_distance_octaves, room=room,
                              source_m=sp.position_m, receivers_m=pos)
     words = interpret(matches, comp, room)
+    effective = None
+    if fit_targets:
+        effective, _ = estimate_effective_size(room, fit_targets, band_hz=band_hz, smoothing=smoothing,
+                                               method=method, absolute=absolute)
+        words = words + (_effective_words(effective),)
     ref = Response(f, pred, f"predicted ({method})")
-    return ComparisonReport(comp, matches, words, measured, ref, ("measured", "predicted"), pos, sp.name)
+    return ComparisonReport(comp, matches, words, measured, ref, ("measured", "predicted"), pos, sp.name, effective)
+
+
+def _effective_words(eff):
+    """One sentence on the effective dimensions (the same figures ``fit`` reports)."""
+    parts = []
+    for nm, v, v0, se, bound in zip(("length", "width", "height"), eff.size_m, eff.file_size_m, eff.std_error_m,
+                                    eff.at_bound):
+        moved = f"{(v / v0 - 1) * 100:+.1f} %" + (", at its bound" if bound else "")
+        parts.append(f"{nm} {v:.3f} m (file {v0:.3f} m, {moved}, +-{se:.3f} m)")
+    return ("Effective dimensions, from the model fitted to these measurements as `roommodes fit` does: "
+            + "; ".join(parts) + ".")
 
 
 def compare_measurements(first, second, *, band_hz=DEFAULT_BAND_HZ, smoothing=DEFAULT_SMOOTHING,

@@ -25,7 +25,7 @@ from .predict import Channel, Prediction, room_schroeder_frequency
 from .uncertainty import ensemble_levels
 
 __all__ = ["ChannelCorrection", "correct_curve", "correct_measured", "correct_prediction", "default_band",
-           "head_positions", "NEIGHBOUR_STEP_M", "HEAD_OFFSET_M"]
+           "head_positions", "NEIGHBOUR_STEP_M", "HEAD_OFFSET_M", "MAX_EQ_CHANNELS"]
 
 #: How far the seat and each speaker are moved to judge whether a dip is a movable null (m).
 NEIGHBOUR_STEP_M = 0.05
@@ -48,7 +48,8 @@ class ChannelCorrection:
         Of the parametric design.
     clean : CleanLevel or None
         Maximum clean SPL at the seat before and after the parametric design, when the
-        speaker's amplifier power, sensitivity and maximum SPL are known.
+        speaker's amplifier power, sensitivity and maximum SPL are known, or the level a
+        full-scale input gives there when the measurement was calibrated (``clean.basis``).
     lowcut_hz, lowcut_order : float or None, int
     cautions : tuple of str
         Cautions about the design as a whole (e.g. a band reaching above the Schroeder
@@ -80,9 +81,15 @@ class ChannelCorrection:
                          "excursion_factor": h.excursion_factor}
         if self.clean is not None:
             d["max_clean_spl"] = {"before_db": self.clean.before_db, "after_db": self.clean.after_db,
-                                  "preattenuation_db": self.clean.preattenuation_db}
+                                  "preattenuation_db": self.clean.preattenuation_db, "basis": self.clean.basis}
         return d
 
+
+#: Most channels one command corrects in a run: each costs its own prediction at the seat,
+#: the head positions and the moved positions, and a filter design (about 1.5 s on one core
+#: for the demo room), so a 50-speaker file would run for over a minute. Sixteen covers the
+#: largest home-cinema speaker counts; the command line asks for a choice beyond it.
+MAX_EQ_CHANNELS = 16
 
 def _smooth_db(f, level_db, fraction):
     return 10 * np.log10(smooth_fractional_octave(f, 10 ** (level_db / 10), fraction))
@@ -115,7 +122,8 @@ def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_
                   lowcut_order=None, max_filters=6, max_boost_db=6.0, q_range=(0.5, 10.0),
                   speaker=None, sample_rate=48000, smoothing=12, position_levels_db=None,
                   seat_weight=1.0 / 3.0, no_harm_db=0.5, boost_q_max=2.0, modes=None,
-                  schroeder_hz=None, lowest_mode_hz=None, max_cut_db=15.0, ensemble_levels_db=None):
+                  schroeder_hz=None, lowest_mode_hz=None, max_cut_db=15.0, ensemble_levels_db=None,
+                  full_scale_spl_db=None):
     """Design the corrections for one level curve.
 
     Parameters
@@ -164,6 +172,14 @@ def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_
         parametric design is then held to them: only peaks stable across them are cut,
         and each filter is sized to them (``ensemble_db`` of
         :func:`roommodes.analysis.eq.design_parametric`).
+    full_scale_spl_db : float, optional
+        ``level_db`` is a measurement in dBFS (an impulse response: dBFS at the microphone
+        for a full-scale input) through a chain whose full scale is this SPL
+        (:mod:`roommodes.measure.calibration`): the maximum level at the seat is then
+        ``level_db + full_scale_spl_db`` before and after the correction
+        (:func:`roommodes.analysis.eq.full_scale_level`), instead of the room file's
+        amplifier and speaker figures. The design itself runs on ``level_db`` and does not
+        depend on the calibration.
 
     Returns
     -------
@@ -220,7 +236,10 @@ def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_
     g1 = eq.design_graphic(f, lv, tg, band, bands="octave", **common)
     head = eq.headroom(par.filters, f, sample_rate)
     clean = None
-    if speaker is not None and None not in (speaker.amplifier_w, speaker.sensitivity_db, speaker.max_spl_db):
+    if full_scale_spl_db is not None:
+        clean = eq.full_scale_level(f, lv + float(full_scale_spl_db), correction_db=par.correction_db,
+                                    preattenuation_db=head.preattenuation_db)
+    elif speaker is not None and None not in (speaker.amplifier_w, speaker.sensitivity_db, speaker.max_spl_db):
         clean = eq.max_clean_spl(f, lv, speaker.amplifier_w, speaker.sensitivity_db, speaker.max_spl_db,
                                  correction_db=par.correction_db, preattenuation_db=head.preattenuation_db)
     return ChannelCorrection(name, par, shelf, g3, g1, head, clean, lowcut_hz, lowcut_order,
@@ -351,7 +370,7 @@ def correct_prediction(room, layout=None, freq_hz=None, method=DEFAULT_METHOD, a
     return out, pred
 
 
-def correct_measured(room, curves_by_channel, **options):
+def correct_measured(room, curves_by_channel, full_scale_spl_db=None, **options):
     """Corrections of measured curves: each channel's curves (microphone positions) averaged.
 
     Parameters
@@ -361,6 +380,10 @@ def correct_measured(room, curves_by_channel, **options):
     curves_by_channel : dict
         Speaker name -> list of measured curves (:class:`roommodes.dsp.response.Response`,
         e.g. from :func:`roommodes.analysis.compare.load_measurement`).
+    full_scale_spl_db : float, optional
+        The SPL of digital full scale of the chain the (dBFS) curves were measured with
+        (``--spl-ref``): each correction then carries the maximum level at the seat before
+        and after it (see :func:`correct_curve`).
     **options
         Passed to :func:`correct_curve` (target, band, limits).
 
@@ -369,8 +392,9 @@ def correct_measured(room, curves_by_channel, **options):
     list of ChannelCorrection
         In the layout's speaker order. Several curves of a channel are power-averaged; their
         individual levels go to the dip classification (a dip that moves between microphone
-        positions is a null) and to the no-harm check at every position. No clean-SPL figure:
-        a measured level has no known absolute reference.
+        positions is a null) and to the no-harm check at every position. Without
+        ``full_scale_spl_db`` there is no maximum-level figure: a relative measurement has no
+        absolute reference.
 
     Notes
     -----
@@ -393,5 +417,5 @@ def correct_measured(room, curves_by_channel, **options):
         out.append(correct_curve(sp.name, f, avg.level_db, neighbour_levels_db=positions,
                                  position_levels_db=positions, lowcut_hz=sp.lowcut_hz,
                                  lowcut_order=sp.lowcut_order if sp.lowcut_hz else None,
-                                 schroeder_hz=schroeder, **options))
+                                 schroeder_hz=schroeder, full_scale_spl_db=full_scale_spl_db, **options))
     return out

@@ -90,6 +90,7 @@ __all__ = [
     "headroom",
     "CleanLevel",
     "max_clean_spl",
+    "full_scale_level",
     "recommended_highpass",
     "vented_boost_warnings",
     "channel_headroom_warnings",
@@ -1926,8 +1927,14 @@ class CleanLevel:
     before_db, after_db : ndarray (F,)
         SPL at the seat, dB re 20 uPa (``after_db`` is ``None`` without a correction).
     limit_before, limit_after : ndarray of str (F,)
-        What limits each frequency: ``"amplifier"`` or ``"speaker"``.
+        What limits each frequency: ``"amplifier"`` or ``"speaker"`` (from the room file's
+        figures, :func:`max_clean_spl`), or ``"full scale"`` (a calibrated measurement,
+        :func:`full_scale_level`).
     preattenuation_db : float
+    basis : str
+        ``"model"``: the room file's amplifier power, sensitivity and maximum SPL;
+        ``"measured"``: the SPL a full-scale input gives at the seat, measured through a
+        calibrated chain at the playback volume of the measurement.
     """
 
     freq_hz: np.ndarray
@@ -1936,6 +1943,45 @@ class CleanLevel:
     limit_before: np.ndarray
     limit_after: np.ndarray | None
     preattenuation_db: float
+    basis: str = "model"
+
+
+def full_scale_level(freq_hz, level_spl_db, correction_db=None, preattenuation_db=None):
+    """Highest level at the seat for a full-scale input, before and after EQ, from a calibrated measurement.
+
+    Parameters
+    ----------
+    freq_hz : array_like, shape (F,)
+    level_spl_db : array_like, shape (F,)
+        The measured level at the seat in dB SPL for a full-scale (0 dBFS) sine at the
+        playback volume of the measurement (an impulse response plus the chain's full-scale
+        SPL, :mod:`roommodes.measure.calibration`).
+    correction_db : array_like, shape (F,), optional
+    preattenuation_db : float, optional
+        As in :func:`max_clean_spl`.
+
+    Returns
+    -------
+    CleanLevel
+        ``basis="measured"``, limits ``"full scale"``.
+
+    Notes
+    -----
+    At an unchanged volume setting a full-scale input gives ``L(f)`` before EQ and
+    ``L(f) + C(f) - A`` after (``A`` the pre-attenuation that keeps the boosted input
+    below full scale): the correction costs ``A`` dB of maximum level wherever it does
+    not boost. The figure moves dB for dB with the calibration and says nothing of the
+    amplifier's or the speaker's own limits, which apply on top.
+    """
+    f = _grid(freq_hz)
+    lv = _curve(level_spl_db, f, "level_spl_db")
+    lim = np.full(f.size, "full scale", dtype=object)
+    if correction_db is None:
+        return CleanLevel(f, lv, None, lim, None, 0.0, "measured")
+    c = _curve(correction_db, f, "correction_db")
+    pre = float(max(np.max(c), 0.0)) if preattenuation_db is None else _finite_float(
+        "preattenuation_db", preattenuation_db, lo=0.0, hi=60.0, unit=" dB")
+    return CleanLevel(f, lv, lv + c - pre, lim, lim.copy(), pre, "measured")
 
 
 def max_clean_spl(freq_hz, level_db, amplifier_power_w, sensitivity_db, max_spl_db,

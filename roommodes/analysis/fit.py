@@ -33,7 +33,8 @@ from ..solvers import DEFAULT_METHOD
 from .levels import speaker_levels
 
 __all__ = [
-    "ABSORPTION_GROUPS", "FitParameter", "FitResult", "FitTarget", "fit_error", "fit_room", "follow_walls",
+    "ABSORPTION_GROUPS", "DEFAULT_POINTS_PER_OCTAVE", "EffectiveSize", "FitParameter", "FitResult", "FitTarget",
+    "effective_size", "estimate_effective_size", "fit_error", "fit_room", "follow_walls", "follow_walls_subs",
     "narrow_uncertainty"]
 
 #: Absorption groupings: name -> tuple of surface groups.
@@ -48,6 +49,8 @@ _ABS_SCALE = math.log(2.0)
 _ABS_BOUND_UNITS = 2.0
 #: Highest absorption coefficient the fit will write (the file format needs < 1).
 _MAX_ALPHA = 0.95
+#: Density of the fit's log-frequency grid (24 per octave: a 20-200 Hz fit has 81 points).
+DEFAULT_POINTS_PER_OCTAVE = 24
 #: Finite-difference step, in prior units.
 _FD_STEP = 1e-3
 
@@ -234,23 +237,57 @@ def follow_walls(search, old_size_m, new_size_m, touch_m=0.01):
     boxes = search.get("keep_out") if isinstance(search, dict) else None
     if not boxes:
         return search
-    old = np.asarray(old_size_m, dtype=float)
-    new = np.asarray(new_size_m, dtype=float)
     moved = []
     for box in boxes:
         b = dict(box)
-        hi = [float(v) for v in b["max_m"]]
-        lo = [float(v) for v in b["min_m"]]
-        for a in range(3):
-            if hi[a] >= old[a] - touch_m or hi[a] > new[a]:
-                hi[a] = float(new[a]) if hi[a] >= old[a] - touch_m else min(hi[a], float(new[a]))
-            lo[a] = min(lo[a], hi[a] - 1e-3)
-        b["min_m"], b["max_m"] = lo, hi
+        b["min_m"], b["max_m"] = _follow_box(b["min_m"], b["max_m"], old_size_m, new_size_m, touch_m)
         moved.append(b)
     return {**search, "keep_out": moved}
 
 
-def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoothing=12,
+def _follow_box(min_m, max_m, old_size_m, new_size_m, touch_m):
+    """A box's corners after the far walls moved (see :func:`follow_walls`)."""
+    old = np.asarray(old_size_m, dtype=float)
+    new = np.asarray(new_size_m, dtype=float)
+    hi = [float(v) for v in max_m]
+    lo = [float(v) for v in min_m]
+    for a in range(3):
+        if hi[a] >= old[a] - touch_m or hi[a] > new[a]:
+            hi[a] = float(new[a]) if hi[a] >= old[a] - touch_m else min(hi[a], float(new[a]))
+        lo[a] = min(lo[a], hi[a] - 1e-3)
+    return lo, hi
+
+
+def follow_walls_subs(subs_search, old_size_m, new_size_m, touch_m=0.01):
+    """The ``[subs]`` search settings following walls that moved, like :func:`follow_walls`.
+
+    Regions and keep-out boxes follow as in :func:`follow_walls`. A candidate position in
+    the far half of a dimension keeps its distance from the far wall (it was measured from
+    there, a sub against the back wall stays against it); one in the near half keeps its
+    coordinate. Candidates stay at least ``WALL_MARGIN_M`` inside the room. ``None`` comes
+    back as ``None``; the input is not changed.
+    """
+    if subs_search is None:
+        return None
+    old = np.asarray(old_size_m, dtype=float)
+    new = np.asarray(new_size_m, dtype=float)
+    if np.array_equal(old, new):
+        return subs_search
+
+    def boxes(bs):
+        return tuple(replace(b, **dict(zip(("min_m", "max_m"),
+                                           map(tuple, _follow_box(b.min_m, b.max_m, old, new, touch_m)))))
+                     for b in bs)
+
+    cands = []
+    for p in subs_search.candidates_m:
+        q = [float(new[a] - (old[a] - v)) if v > old[a] / 2 else float(v) for a, v in enumerate(p)]
+        cands.append(tuple(float(np.clip(v, WALL_MARGIN_M, new[a] - WALL_MARGIN_M)) for a, v in enumerate(q)))
+    return replace(subs_search, regions=boxes(subs_search.regions), keep_out=boxes(subs_search.keep_out),
+                   candidates_m=tuple(cands))
+
+
+def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=DEFAULT_POINTS_PER_OCTAVE, smoothing=12,
              absorption="axes", size_tolerance=0.05, position_tolerance_m=0.05, fit_speaker_positions=True,
              fit_mic_positions=True, fit_lowcut=True, lowcut_tolerance=0.3, absolute=False,
              regularization_db=0.5, robust_scale_db=3.0, cutoff_factor=2.0, max_iterations=40,
@@ -554,7 +591,8 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=24, smoo
     fitted = {s.name: s for s in sps_fit}
     layout = replace(room.layout, speakers=tuple(fitted.get(s.name, s) for s in room.layout.speakers))
     new_room = replace(new_room, layout=layout, source=None,
-                       search=follow_walls(room.search, room.size_m, new_room.size_m))
+                       search=follow_walls(room.search, room.size_m, new_room.size_m),
+                       subs_search=follow_walls_subs(room.subs_search, room.size_m, new_room.size_m))
 
     out = []
     for j, p in enumerate(params):
@@ -670,3 +708,93 @@ def narrow_uncertainty(room, fitted_room, parameters, success=True, reference_hz
     summary = {"given": u.to_dict(), "narrowed": narrowed.to_dict(),
                "surfaces": {w: {"absorption_rel_given": g, "absorption_rel": n} for w, (g, n) in rels.items()}}
     return replace(fitted_room, surfaces=surfaces, uncertainty=narrowed), summary
+
+
+@dataclass(frozen=True)
+class EffectiveSize:
+    """The room's effective dimensions, as the model fitted to measurements sees them.
+
+    The one estimate of the effective dimensions: ``compare`` (against a prediction) and
+    ``fit`` both report it, from :func:`estimate_effective_size` and :func:`effective_size`,
+    so they give the same figures for the same measurements and options.
+
+    Attributes
+    ----------
+    size_m : tuple of float
+        Effective length, width and height, m.
+    file_size_m : tuple of float
+        The room file's dimensions, m.
+    std_error_m : tuple of float
+        Approximate standard errors, m (0 for a dimension that was not fitted).
+    at_bound : tuple of bool
+        The fit stopped at the size tolerance: the data pull further.
+    fitted : bool
+        False when the dimensions could not be read (band data, or a zero size tolerance);
+        ``size_m`` is then the file's.
+    note : str
+        Why the dimensions were not fitted, or "".
+    """
+
+    size_m: tuple
+    file_size_m: tuple
+    std_error_m: tuple
+    at_bound: tuple
+    fitted: bool
+    note: str = ""
+
+    @property
+    def change(self):
+        """Relative change of each dimension, ``size / file_size - 1``."""
+        return tuple(a / b - 1.0 for a, b in zip(self.size_m, self.file_size_m))
+
+    def to_dict(self):
+        """JSON-ready values (the ``effective_size`` key of ``compare --json`` and ``fit --json``)."""
+        return {"size_m": list(self.size_m), "file_size_m": list(self.file_size_m),
+                "std_error_m": list(self.std_error_m), "at_bound": list(self.at_bound),
+                "relative_change": list(self.change), "fitted": self.fitted, "note": self.note}
+
+
+def effective_size(result, room):
+    """The :class:`EffectiveSize` of a :class:`FitResult` of ``room`` (the room that was fitted)."""
+    sizes = {p.name: p for p in result.parameters if p.kind == "size"}
+    file_size = tuple(float(v) for v in room.size_m)
+    out, se, bound = [], [], []
+    for a, nm in enumerate(("length", "width", "height")):
+        p = sizes.get(nm)
+        out.append(file_size[a] if p is None else float(p.value))
+        se.append(0.0 if p is None else float(p.std_error))
+        bound.append(False if p is None else bool(p.at_bound))
+    note = ""
+    if not sizes:
+        note = ("band levels cannot resolve the modes that tell the dimensions" if "band data" in result.message
+                else "the dimensions were held fixed (size tolerance 0)")
+    return EffectiveSize(tuple(out), file_size, tuple(se), tuple(bound), bool(sizes), note)
+
+
+def estimate_effective_size(room, targets, **options):
+    """Estimate the effective dimensions from measured curves: the calibration of :func:`fit_room`.
+
+    Parameters
+    ----------
+    room : Room
+    targets : sequence of FitTarget
+        Each measured curve with its speaker and microphone position (not averaged: each
+        position is its own target, as in ``fit``).
+    **options
+        Passed to :func:`fit_room`; its defaults are the ``fit`` command's, so that
+        ``compare`` and ``fit`` on the same files report the same dimensions.
+
+    Returns
+    -------
+    EffectiveSize, FitResult
+
+    Notes
+    -----
+    The dimensions are fitted together with the absorption, the positions and the
+    roll-off, because each of them moves peaks too: a ratio of single mode frequencies
+    (an axial mode at ``n c / 2L``, Rayleigh) reads a shift of the smoothed peaks that
+    damping and the neighbouring modes also cause, and on the synthetic room of
+    tests/analysis/test_effective_size.py it overstates a 3 % longer room.
+    """
+    result = fit_room(room, targets, **options)
+    return effective_size(result, room), result

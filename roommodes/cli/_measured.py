@@ -5,15 +5,19 @@ errors, and matching each file to its speaker and microphone position."""
 from __future__ import annotations
 
 import re
+from dataclasses import replace
 from pathlib import Path
 
 import click
 import numpy as np
 
 from ..analysis.compare import is_wav_file, load_measurement, speaker_by_name
+from ..analysis.fit import FitTarget
+from ..dsp.response import log_frequencies
 from ..io.files import WAV_FILE_BYTES, InputFileError, open_regular
 from ..io.importers import read_response_text
 from ..io.wavio import read_wav
+from ..measure.calibration import calibrator_reference
 from ..present.units import parse_lengths
 from ._util import fail
 
@@ -31,6 +35,11 @@ __all__ = [
     "load_measurements",
     "measured_files_options",
     "measurement_specs",
+    "load_fit_targets",
+    "spl_ref_option",
+    "read_spl_ref",
+    "with_spl",
+    "spl_ref_input",
 ]
 
 
@@ -119,18 +128,56 @@ def positions(room, at, n_files, name="--at"):
     return pts
 
 
-def load_measurements(paths, wav_channel, window_s, freq_hz, mic_cal=None):
-    """Every measurement file, with the microphone calibration (a path or None) removed."""
+def load_measurements(paths, wav_channel, window_s, freq_hz, mic_cal=None, spl_ref=None):
+    """Every measurement file, with the microphone calibration (a path or None) removed and,
+    with an :class:`~roommodes.measure.calibration.SplReference`, in dB SPL."""
     cal = read_mic_cal(mic_cal)
     out = []
     for p in paths:
         require_file(p, "measurement")
         try:
-            out.append(load_measurement(p, None if wav_channel is None else wav_channel - 1, window_s, freq_hz,
-                                        mic_cal=cal))
+            m = load_measurement(p, None if wav_channel is None else wav_channel - 1, window_s, freq_hz, mic_cal=cal)
         except ValueError as exc:
             fail(channel_message(str(exc), p, wav_channel))
+        out.append(with_spl(m, spl_ref))
     return out
+
+
+def with_spl(measurement, spl_ref):
+    """A measured curve in dB SPL: its dBFS levels plus the SPL of full scale (unchanged without a reference)."""
+    if spl_ref is None:
+        return measurement
+    return replace(measurement, level_db=np.asarray(measurement.level_db) + spl_ref.full_scale_spl_db,
+                   notes=(*measurement.notes, f"dB SPL: {spl_ref.describe()}"))
+
+
+_SPL_REF = re.compile(r"^\s*([0-9]+(?:\.[0-9]*)?)\s*(?:db)?\s*(?:@\s*([0-9]+(?:\.[0-9]*)?)\s*(k?hz)?)?\s*:(.+)$",
+                      re.IGNORECASE)
+
+
+def spl_ref_input(text):
+    """The calibrator recording named by ``--spl-ref`` as a list of one Path (empty when not given
+    or unreadable as DB@HZ:FILE), for the list of inputs no output may overwrite."""
+    m = _SPL_REF.match(text) if text else None
+    return [Path(m.group(4).strip())] if m else []
+
+
+def read_spl_ref(text, wav_channel=None):
+    """The ``--spl-ref DB@HZ:FILE`` calibrator recording as an SplReference (None when not given)."""
+    if text is None:
+        return None
+    m = _SPL_REF.match(text)
+    if m is None:
+        fail(f"--spl-ref must be DB@HZ:FILE, the calibrator's level and frequency and its recording through the "
+             f"measurement chain (e.g. 94@1000:cal.wav, or 94:cal.wav for 1 kHz); got '{text}'")
+    spl = float(m.group(1))
+    hz = 1000.0 if m.group(2) is None else float(m.group(2)) * (1000.0 if (m.group(3) or "").lower() == "khz" else 1.0)
+    path = m.group(4).strip()
+    x, fs, _ = read_wav_or_fail(path, wav_channel, "calibrator recording")
+    try:
+        return calibrator_reference(x, fs, spl, hz, source=Path(path).name)
+    except ValueError as exc:
+        fail(f"--spl-ref {text}: {exc}")
 
 
 def read_mic_cal(path):
@@ -148,6 +195,14 @@ mic_cal_option = click.option(
     "--mic-cal", "mic_cal", type=click.Path(path_type=Path), metavar="FILE",
     help="Microphone calibration: frequency (Hz) and the microphone's deviation from flat (dB), as text; "
          "subtracted from every measurement.")
+
+
+spl_ref_option = click.option(
+    "--spl-ref", "spl_ref", metavar="DB@HZ:FILE",
+    help="Absolute level: a recording of an acoustic calibrator (e.g. 94@1000:cal.wav, 94 dB SPL at 1 kHz) "
+         "made through the same microphone, interface and input gain as the measurements. Levels are then in "
+         "dB SPL (for impulse responses: per full-scale input at the playback volume used). Without it, levels "
+         "are relative and aligned.")
 
 
 def measured_files_options(f):
@@ -181,3 +236,20 @@ def measurement_specs(room, files, channel, at, measure):
             fail(str(exc))
         specs.append((name, positions(room, (where,), 1, "--measure position")[0], Path(p)))
     return specs
+
+
+def load_fit_targets(specs, wav_channel, window_s, band_hz, points_per_octave, mic_cal, spl_ref=None):
+    """The measurements of ``specs`` as fit targets, read on the fit's own grid.
+
+    ``fit`` and ``compare`` (for its effective dimensions) both read their targets here, so
+    that the same files give the same numbers to the same fit.
+
+    Returns
+    -------
+    list of FitTarget, list of Measurement
+    """
+    grid = log_frequencies(band_hz[0], band_hz[1], points_per_octave)
+    meas = load_measurements([s[2] for s in specs], wav_channel, window_s, grid, mic_cal, spl_ref)
+    targets = [FitTarget(ch, pos, m.freq_hz, m.level_db, f"{Path(p).name} ({ch})", m.band_fraction)
+               for (ch, pos, p), m in zip(specs, meas)]
+    return targets, meas

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
 
 import click
@@ -9,7 +10,7 @@ import numpy as np
 
 from .. import __version__
 from ..analysis.compare import load_measurement
-from ..analysis.correction import correct_measured, correct_prediction
+from ..analysis.correction import MAX_EQ_CHANNELS, correct_measured, correct_prediction
 from ..analysis.eq import CAUTIONS, EXPORT_SAMPLE_RATES, STABLE_SHARE, channel_headroom_warnings, q_at_3db_below_peak, render_text
 from ..dsp.checks import check_number, check_range
 from ..dsp.response import log_frequencies
@@ -17,7 +18,7 @@ from ..dsp.text import boost_text
 from ..io.importers import read_response_text
 from ..io.roomfile import write_text_atomic
 from ..present.plots import plot_correction
-from ._measured import mic_cal_option, read_mic_cal
+from ._measured import mic_cal_option, read_mic_cal, read_spl_ref, spl_ref_input, spl_ref_option
 from ._util import (
     CONTEXT,
     check_output,
@@ -134,8 +135,12 @@ def _print_channel(corr, room_layout_speaker):
         f = p.freq_hz
         cols = [fr for fr in _SPL_TABLE_HZ if p.band_hz[0] * 0.9 <= fr <= p.band_hz[1]]
         idx = [int(np.argmin(np.abs(f - fr))) for fr in cols]
-        click.echo("  Maximum clean level at the seat (dB SPL; amplifier power, sensitivity and maximum SPL "
-                   "from the room file):")
+        if corr.clean.basis == "measured":
+            click.echo("  Maximum level at the seat (dB SPL) for a full-scale input at the volume used for the "
+                       "measurement (--spl-ref); the amplifier's and speaker's own limits apply on top:")
+        else:
+            click.echo("  Maximum clean level at the seat (dB SPL; amplifier power, sensitivity and maximum SPL "
+                       "from the room file):")
         click.echo("    " + " ".join(f"{fr:>6g}" for fr in cols) + "  Hz")
         click.echo("    " + " ".join(f"{corr.clean.before_db[i]:6.0f}" for i in idx) + "  before EQ")
         click.echo("    " + " ".join(f"{corr.clean.after_db[i]:6.0f}" for i in idx) + "  after EQ")
@@ -149,7 +154,7 @@ def _print_channel(corr, room_layout_speaker):
     click.echo("")
 
 
-def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, options, mic_cal=None):
+def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, options, mic_cal=None, spl_ref=None):
     """Corrections of measured curves: CHANNEL=FILE items, several files of a channel averaged."""
     files = {}
     for item in measured:
@@ -162,7 +167,10 @@ def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, opti
         files.setdefault(name, []).append(path)
     curves = {name: [load_measurement(path, window_s=window_s, freq_hz=freq_hz, mic_cal=mic_cal) for path in paths]
               for name, paths in files.items()}
-    return correct_measured(room.with_layout(layout), curves, **options)
+    # the design runs on the chain's own levels; the calibration adds the SPL of full scale to the
+    # maximum-level figures only, so it cannot change a filter
+    return correct_measured(room.with_layout(layout), curves,
+                            full_scale_spl_db=None if spl_ref is None else spl_ref.full_scale_spl_db, **options)
 
 
 @click.command(context_settings=CONTEXT)
@@ -177,6 +185,9 @@ def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, opti
 @click.option("--band", "band_text", metavar="LOW,HIGH",
               help="Correction band in Hz [default: from the speaker's roll-off (or the room's lowest mode) to the "
                    "room's Schroeder frequency]. A band above the Schroeder frequency prints a caution.")
+@click.option("--channel", "channels", multiple=True, metavar="NAME",
+              help=f"Correct only this speaker (repeatable); needed when the layout has more than "
+                   f"{MAX_EQ_CHANNELS} speakers.")
 @click.option("--max-filters", type=click.IntRange(1, 20), default=6, show_default=True, help="Peaking filters per channel.")
 @click.option("--max-boost", type=float, default=6.0, show_default=True,
               help="Largest boost of the combined curve at any frequency, dB.")
@@ -200,10 +211,11 @@ def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, opti
 @click.option("--force", is_flag=True, help="Overwrite existing output files.")
 @mic_cal_option
 @uncertainty_options
+@spl_ref_option
 @json_option
-def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, max_boost, q_range, freq_range,
+def eq(room_file, layout, channels, target, tilt_db, tilt_corner, band_text, max_filters, max_boost, q_range, freq_range,
        points_per_octave, method, measured, window_s, area_text, export_path, plot_path, force, as_json, mic_cal,
-       uncertainty, samples, seed):
+       uncertainty, samples, seed, spl_ref):
     """Design bass-correction EQ for each channel and show the headroom it costs.
 
     Every dip is classified before it is touched: a deep narrow dip that moves when the
@@ -231,6 +243,18 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
     band = parse_range(band_text, "--band") if band_text else None
     room = load_or_fail(room_file)
     (lay,) = layouts_for(room, layout)
+    names = [s.name for s in lay.speakers]
+    if channels:
+        unknown = [c for c in channels if c not in names]
+        if unknown:
+            fail(f"--channel {unknown[0]}: no such speaker in layout {lay.name} of {room_file}; the speakers are "
+                 + ", ".join(names[:20]) + (" ..." if len(names) > 20 else ""))
+        lay = replace(lay, speakers=tuple(s for s in lay.speakers if s.name in channels))
+    if not measured and len(lay.speakers) > MAX_EQ_CHANNELS:  # with --measured only the measured ones
+        chosen = " chosen" if channels else ""
+        fail(f"{room_file}: layout {lay.name} has {len(lay.speakers)} speakers{chosen}; eq designs at most "
+             f"{MAX_EQ_CHANNELS} channels in one run (each takes about a second and a half and its own prediction); choose them with "
+             f"--channel NAME (repeatable)")
     if band is not None and (band[0] < lo or band[1] > hi):
         fail(f"--band {band[0]:g},{band[1]:g} Hz lies outside the computed range {lo:g}-{hi:g} Hz; "
              "widen --freq-range or narrow --band")
@@ -242,6 +266,10 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
     inputs = room_inputs(room_file, room) + [Path(m.partition("=")[2]) for m in measured]
     if mic_cal:
         inputs.append(Path(mic_cal))
+    if spl_ref and not measured:
+        fail("--spl-ref calibrates measurements; give them with --measured CHANNEL=FILE (the prediction's maximum "
+             "level comes from the room file's amplifier_w, sensitivity_db and max_spl_db)")
+    inputs += spl_ref_input(spl_ref)
     if target not in ("flat", "tilt"):
         inputs.append(Path(target))
     if export_path:
@@ -252,8 +280,11 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
     if uncertainty and (measured or area_text):
         fail("--uncertainty works on the predicted seat and its head positions; leave out "
              + ("--measured (a measurement is what the room did)" if measured else "--area"))
+    ref = None
     if measured:
-        corrections = _correct_measured(room, lay, measured, f, window_s, room_file, options, read_mic_cal(mic_cal))
+        ref = read_spl_ref(spl_ref)
+        corrections = _correct_measured(room, lay, measured, f, window_s, room_file, options, read_mic_cal(mic_cal),
+                                        ref)
         source = "measured"
     else:
         area = None
@@ -280,6 +311,7 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
             extra["uncertainty"] = {"samples": samples, "seed": seed, "method": method,
                                     "stable_share": STABLE_SHARE, "uncertainty": room.uncertainty.to_dict()}
         dump_json({"room": room.name, "layout": lay.name, "source": source,
+                   "spl_reference": ref.to_dict() if measured and ref else None,
                    "frequencies_hz": corrections[0].parametric.freq_hz, **extra,
                    "channels": [c.to_dict() for c in corrections],
                    "warnings": [w.to_dict() for w in head_warn], "cautions": list(CAUTIONS)})
@@ -292,6 +324,10 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
                        f"{u.temperature_c:g} C on temperature): a peak is cut only when it is present in at least "
                        f"{STABLE_SHARE:.0%} of them and its top moves less than the cut is wide; each filter is "
                        "sized to their median.")
+        if ref is not None:
+            click.echo(f"Levels: {ref.describe()}")
+        elif measured:
+            click.echo("Levels: relative (no --spl-ref): no maximum level at the seat is known")
         click.echo("")
         for c in corrections:
             _print_channel(c, None)

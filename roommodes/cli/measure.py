@@ -20,8 +20,16 @@ import click
 import numpy as np
 
 from .. import __version__
-from ..analysis.compare import average_measurements, compare_measurements, compare_to_prediction, is_wav_file
-from ..analysis.fit import FitTarget, fit_room
+from ..analysis.compare import (
+    average_measurements,
+    compare_measurements,
+    compare_to_prediction,
+    is_wav_file,
+    speaker_by_name,
+)
+from ..analysis.fit import DEFAULT_POINTS_PER_OCTAVE as FIT_POINTS_PER_OCTAVE
+from ..analysis.fit import effective_size, fit_room
+from ..dsp.bands import band_centres
 from ..dsp.response import log_frequencies
 from ..io.files import JSON_FILE_BYTES, InputFileError, read_regular
 from ..io.roomfile import room_to_toml, write_text_atomic
@@ -32,14 +40,18 @@ from ..measure.signals import band_levels, crest_factor_db, pink_noise
 from ..measure.sweep import SweepSpec, exponential_sweep
 from ..present.plots_measure import plot_comparison, plot_fit, plot_impulse_response, plot_waterfall
 from ._measured import (
+    load_fit_targets,
     load_measurements,
     measured_files_options,
     measurement_specs,
     mic_cal_option,
     positions,
+    read_spl_ref,
     read_wav_or_fail,
     require_file,
     smoothing_option,
+    spl_ref_input,
+    spl_ref_option,
     wav_channel_option,
     window_option,
 )
@@ -130,11 +142,12 @@ def _smoothing_label(b):
 
 @click.command(context_settings=CONTEXT)
 @click.argument("out", type=click.Path(path_type=Path))
-@click.option("--rate", "fs_hz", type=int, default=48000, show_default=True, help="Sample rate, Hz.")
+@click.option("--rate", "fs_hz", type=click.IntRange(8000, 384000), default=48000, show_default=True,
+              help="Sample rate, Hz (8000..384000).")
 @click.option("--length", "duration_s", type=float, default=10.0, show_default=True,
               help="Sweep length, s (a longer sweep gains about 3 dB of signal-to-noise per doubling).")
 @click.option("--f1", "f1_hz", type=float, default=15.0, show_default=True, help="Start frequency, Hz.")
-@click.option("--f2", "f2_hz", type=float, default=20000.0, show_default=True, help="End frequency, Hz.")
+@click.option("--f2", "f2_hz", type=float, help="End frequency, Hz  [default: 20000, or 0.45 x the rate below 44.4 kHz]")
 @click.option("--level", "level_dbfs", type=float, default=-12.0, show_default=True,
               help="Peak level, dBFS (-60 to -1); keep it low and set the loudness with the volume control.")
 @click.option("--fade-in", "fade_in_s", type=float, default=0.1, show_default=True, help="Fade-in, s.")
@@ -156,6 +169,11 @@ def sweep(out, fs_hz, duration_s, f1_hz, f2_hz, level_dbfs, fade_in_s, fade_out_
     -12 dBFS peak: set the loudness with the playback volume, starting low.
     """
 
+    if f2_hz is None:
+        f2_hz = min(20000.0, 0.45 * fs_hz)
+    elif not f2_hz < fs_hz / 2:
+        fail(f"--f2 {f2_hz:g} Hz lies at or above half the sample rate (--rate {fs_hz}: {fs_hz / 2:g} Hz); "
+             f"give --f2 below {fs_hz / 2:g} Hz or raise --rate")
     wav = _wav_output(out, force)
     desc = _sweep_json_path(wav)
     check_output(desc, force)
@@ -298,7 +316,8 @@ def ir(recording, sweep_path, out, wav_channel, loopback, ir_length_s, plot_path
 
 @click.command(context_settings=CONTEXT)
 @click.argument("out", type=click.Path(path_type=Path))
-@click.option("--rate", "fs_hz", type=int, default=48000, show_default=True, help="Sample rate, Hz.")
+@click.option("--rate", "fs_hz", type=click.IntRange(8000, 384000), default=48000, show_default=True,
+              help="Sample rate, Hz (8000..384000).")
 @click.option("--length", "duration_s", type=float, default=30.0, show_default=True, help="Length, s.")
 @click.option("--level", "level_dbfs", type=float, default=-20.0, show_default=True,
               help="Rms level, dBFS (a full-scale sine is 0 dBFS); peaks stay 12 dB above it at most.")
@@ -319,6 +338,9 @@ def noise(out, fs_hz, duration_s, level_dbfs, band, seed, subtype, force, as_jso
     """
 
     lo, hi = _parse_band(band) if band else (20.0, min(20000.0, 0.45 * fs_hz))
+    if band and not hi < fs_hz / 2:
+        fail(f"--band {band}: the top lies at or above half the sample rate (--rate {fs_hz}: {fs_hz / 2:g} Hz); "
+             f"give HIGH below {fs_hz / 2:g} Hz or raise --rate")
     wav = _wav_output(out, force)
     x = pink_noise(fs_hz, duration_s, level_dbfs, lo, hi, seed=seed)
     write_wav_atomic(wav, x, fs_hz, subtype, overwrite=force)
@@ -379,6 +401,14 @@ def bands(recording, wav_channel, fraction, band, out, force, as_json):
         fail(f"{recording}: is silent; check the microphone input and its gain")
     if np.std(x) <= 1e-3 * np.abs(np.mean(x)):
         fail(f"{recording}: holds only a constant (DC) level, no sound; check the microphone input and its gain")
+    _, nominal, _, upper = band_centres(int(fraction), lo, hi)
+    fits = nominal[upper < fs / 2]
+    if fits.size == 0:
+        fail(f"--band {band}: no band of it fits below half the sample rate of {recording} ({fs / 2:g} Hz); "
+             f"give LOW below {fs / 2:g} Hz")
+    if fits.size < nominal.size and band != "20,20000":
+        echo_err(f"note: --band {band}: bands above {fits[-1]:g} Hz reach past half the sample rate of {recording} "
+                 f"({fs / 2:g} Hz) and are left out")
     bl = band_levels(x, fs, int(fraction), lo, hi)
     label = "octave" if fraction == "1" else "1/3-octave"
     if out:
@@ -410,8 +440,9 @@ def bands(recording, wav_channel, fraction, band, out, force, as_json):
 @wav_channel_option
 @click.option("--bands", "band_set", type=click.Choice(["octave", "third"]), default="octave", show_default=True,
               help="Band set for EDT, T20 and T30.")
-@click.option("--freq-range", default="63,4000", show_default=True, metavar="LOW,HIGH",
-              help="Range of band centres for the reverberation times, Hz.")
+@click.option("--freq-range", metavar="LOW,HIGH",
+              help="Range of band centres for the reverberation times, Hz  [default: 63,4000, lowered to the "
+                   "highest band below half the sample rate]")
 @click.option("--modes", "n_modes", type=click.IntRange(0, 30), default=6, show_default=True,
               help="How many of the strongest low-frequency peaks get a modal decay time (0: none).")
 @click.option("--modal-range", default="15,200", show_default=True, metavar="LOW,HIGH",
@@ -436,9 +467,21 @@ def decay(ir_file, wav_channel, band_set, freq_range, n_modes, modal_range, wate
     strongest low-frequency peaks; optionally a waterfall figure.
     """
 
-    lo, hi = _parse_band(freq_range)
+    lo, hi = _parse_band(freq_range or "63,4000")
     mlo, mhi = _parse_band(modal_range)
     h, fs, _ = read_wav_or_fail(ir_file, wav_channel, "impulse response")
+    _, nominal, _, upper = band_centres(1 if band_set == "octave" else 3, lo, hi)
+    fits = nominal[upper < fs / 2]
+    if fits.size < nominal.size:
+        top = f"{ir_file} is sampled at {fs} Hz: its bands must end below {fs / 2:g} Hz"
+        if fits.size == 0:
+            fail(f"--freq-range {lo:g},{hi:g}: no {band_set} band of it fits; {top}")
+        if freq_range:
+            fail(f"--freq-range {freq_range}: the {band_set} band at {nominal[fits.size]:g} Hz is too high; {top}. "
+                 f"Give --freq-range {lo:g},{fits[-1]:g} or lower")
+        hi = float(fits[-1])
+    if not mlo < 0.45 * fs:
+        fail(f"--modal-range {modal_range}: starts above 0.45 x the sample rate of {ir_file} ({0.45 * fs:g} Hz)")
     check_plot(waterfall_path, force, ir_file, what="--waterfall")
     if h.size < 64 or not np.any(h):
         fail(f"{ir_file}: too short or silent to be an impulse response")
@@ -527,10 +570,11 @@ def _print_features(matches, names):
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write the overlay and residual (PNG/SVG).")
 @click.option("--force", is_flag=True, help="Overwrite an existing figure.")
 @mic_cal_option
+@spl_ref_option
 @json_option
 @guard
 def compare(files, against, channel, at, wav_channel, window_s, band, align_band, absolute, smoothing, method,
-            plot_path, force, as_json, mic_cal):
+            plot_path, force, as_json, mic_cal, spl_ref):
     """Compare measurements with the prediction, or two measurements with each other.
 
     \b
@@ -560,16 +604,27 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
     grid = log_frequencies(max(5.0, lo / 2 ** 0.5), min(2000.0, hi * 2 ** 0.5), 48)
     room = load_or_fail(room_file) if room_file else None
     check_plot(plot_path, force, *files, *against, *(room_inputs(room_file, room) if room_file else []),
-               *([mic_cal] if mic_cal else []))
+               *([mic_cal] if mic_cal else []), *spl_ref_input(spl_ref))
+    if spl_ref and absolute and room is not None:
+        fail("--spl-ref and --absolute: the prediction's levels are relative to the speaker's free-field level at "
+             "1 m, not dB SPL for a full-scale input; leave out --absolute (the levels are aligned and the offset "
+             "printed)")
     pos = positions(room, at, len(files)) if room is not None else None
-    meas = load_measurements(files, wav_channel, window_s, grid, mic_cal)
+    ref = read_spl_ref(spl_ref, wav_channel)
+    meas = load_measurements(files, wav_channel, window_s, grid, mic_cal, ref)
     first = average_measurements(meas, label=files[0].name if len(files) == 1 else f"mean of {len(files)}")
     kw = {"band_hz": (lo, hi), "smoothing": smoothing, "align_band_hz": abd, "absolute": absolute}
     if room is not None:
-        # the prediction is averaged over the files' positions with the same weights
-        rep = compare_to_prediction(room, first, channel, pos, method=method, **kw)
+        # the prediction is averaged over the files' positions with the same weights; the effective
+        # dimensions come from each file at its own position, fitted as `fit` does
+        targets = None
+        if not first.band_fraction:
+            name = speaker_by_name(room, channel).name
+            targets, _ = load_fit_targets([(name, p, fp) for fp, p in zip(files, pos)], wav_channel, window_s,
+                                          (lo, hi), FIT_POINTS_PER_OCTAVE, mic_cal, ref)
+        rep = compare_to_prediction(room, first, channel, pos, method=method, fit_targets=targets, **kw)
     else:
-        second_list = load_measurements(against, wav_channel, window_s, grid, mic_cal)
+        second_list = load_measurements(against, wav_channel, window_s, grid, mic_cal, ref)
         second = average_measurements(second_list, label=against[0].name if len(against) == 1
                                       else f"mean of {len(against)}")
         rep = compare_measurements(first, second, **kw)
@@ -580,7 +635,8 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
     names = rep.names
     if as_json:
         obj = {"mode": "prediction" if room else "measurements", **rep.to_dict(), "absolute": absolute,
-               "smoothing_octave_fraction": smoothing}
+               "smoothing_octave_fraction": smoothing, "spl_reference": ref.to_dict() if ref else None,
+               "measured_level_unit": "dB SPL" if ref else "dB (relative)"}
         if room is not None:
             obj.update({"room": room.name, "channel": rep.channel, "positions_m": rep.positions_m,
                         "predicted_db": c.reference_db, "method": method})
@@ -600,6 +656,13 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
                    ("levels as measured (absolute)" if absolute else
                     f"levels aligned over {c.align_band_hz[0]:g}-{c.align_band_hz[1]:g} Hz "
                     f"(offset {c.offset_db:+.1f} dB)"))
+        if ref is not None:
+            inb = c.in_band
+            mean_spl = 10 * np.log10(np.mean(10 ** (c.measured_db[inb] / 10))) - (0.0 if absolute else c.offset_db)
+            click.echo(f"Measured levels in dB SPL ({ref.describe()}); power mean over the band {mean_spl:.1f} dB "
+                       "SPL (for impulse responses: a full-scale input at the playback volume used)")
+        else:
+            click.echo("Measured levels are relative (no --spl-ref): only their shape is compared")
         if first.resolution_hz:
             click.echo(f"Impulse-response window {1 / first.resolution_hz:.2f} s: resolution about "
                        f"{first.resolution_hz:.1f} Hz")
@@ -638,7 +701,7 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
 @window_option
 @click.option("--band", default="20,200", show_default=True, metavar="LOW,HIGH", help="Fit band, Hz.")
 @smoothing_option
-@click.option("--points-per-octave", type=click.IntRange(6, 96), default=24, show_default=True,
+@click.option("--points-per-octave", type=click.IntRange(6, 96), default=FIT_POINTS_PER_OCTAVE, show_default=True,
               help="Density of the fit's frequency grid.")
 @click.option("--absorption", type=click.Choice(["axes", "each", "all", "none"]), default="axes", show_default=True,
               help="Absorption factors: per pair of opposite surfaces, per surface, one for all, or none.")
@@ -654,11 +717,12 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
 @click.option("--force", is_flag=True, help="Overwrite existing output files.")
 @method_option
 @mic_cal_option
+@spl_ref_option
 @json_option
 @guard
 def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band, smoothing, points_per_octave, method,
         absorption, size_tolerance, position_tolerance, no_lowcut, absolute, regularization, plot_path, force,
-        as_json, mic_cal):
+        as_json, mic_cal, spl_ref):
     """Calibrate the room file to measurements and write the calibrated room file.
 
     \b
@@ -682,17 +746,19 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
     if not (0.01 <= window_s <= 60):
         fail(f"--window must be 0.01..60 s, got {window_s:g}")
     outp = Path(out)
-    inputs = [*room_inputs(room_file, room), *files, *(Path(m[2]) for m in measure), *([Path(mic_cal)] if mic_cal else [])]
+    inputs = [*room_inputs(room_file, room), *files, *(Path(m[2]) for m in measure), *([Path(mic_cal)] if mic_cal else []),
+              *spl_ref_input(spl_ref)]
+    if spl_ref and absolute:
+        fail("--spl-ref and --absolute: --absolute takes levels relative to the speaker's free-field level at 1 m, "
+             "not dB SPL for a full-scale input; leave out --absolute (each measurement's level is then aligned)")
     protect_inputs(outp, *inputs)
     if outp.suffix.lower() != ".toml":
         fail(f"{outp}: the calibrated room file must be a .toml file")
     check_output(outp, force, what="-o")
     check_plot(plot_path, force, *inputs, outp)
-    grid = log_frequencies(lo, hi, points_per_octave)
     specs = measurement_specs(room, files, channel, at, measure)
-    meas = load_measurements([s[2] for s in specs], wav_channel, window_s, grid, mic_cal)
-    targets = [FitTarget(ch, pos, m.freq_hz, m.level_db, f"{Path(p).name} ({ch})", m.band_fraction)
-               for (ch, pos, p), m in zip(specs, meas)]
+    ref = read_spl_ref(spl_ref, wav_channel)
+    targets, _ = load_fit_targets(specs, wav_channel, window_s, (lo, hi), points_per_octave, mic_cal, ref)
     t0 = time.perf_counter()
     with contextlib.ExitStack() as stack:
         bar = {}  # opened at the first iteration, once the input has been accepted
@@ -712,6 +778,7 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
         if "bar" in bar:
             bar["bar"].update(bar["bar"].length - bar["done"])
     elapsed = time.perf_counter() - t0
+    eff = effective_size(res, room)
     comment = (f"Calibrated by roommodes {__version__} fit from {Path(room_file).name} and "
                f"{len(targets)} measurement(s): " + ", ".join(t.label for t in targets) + "\n"
                f"Error {lo:g}-{hi:g} Hz (1/{smoothing} octave): median |difference| "
@@ -723,6 +790,8 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
     write_text_atomic(outp, text, overwrite=force)
     if as_json:
         d = res.to_dict()
+        d["effective_size"] = eff.to_dict()
+        d["spl_reference"] = ref.to_dict() if ref else None
         d["targets"] = [{"label": t.label, "channel": t.channel, "position_m": t.position_m, "level_offset_db": o}
                         for t, o in zip(targets, res.level_offsets_db)]
         dump_json({"room": room.name, "output": str(outp), "elapsed_s": elapsed, "band_hz": [lo, hi],
@@ -731,6 +800,12 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
         click.echo(f"Fitted '{room.name}' to {len(targets)} measurement(s), {lo:g}-{hi:g} Hz, "
                    f"{_smoothing_label(smoothing)} smoothing: {res.iterations} iterations, {res.evaluations} model "
                    f"evaluations, {elapsed:.1f} s")
+        if ref is not None:
+            click.echo(f"Measured levels in dB SPL ({ref.describe()}); the fit aligns each measurement's level, so "
+                       "only the figure's and the JSON's levels are absolute")
+        elif not absolute:
+            click.echo("Measured levels are relative (no --spl-ref): each measurement's level is aligned with the "
+                       "model's, so only their shapes are fitted")
         click.echo(f"Absorption is given as the area-weighted coefficient at {res.reference_hz:.0f} Hz; "
                    "'+-' is an approximate standard error; '|' marks a value stopped at its bound.")
         click.echo(f"  {'parameter':<26} {'file':>9} {'fitted':>9} {'change':>9} {'+-':>8}")
@@ -739,6 +814,11 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
             fmt = ".3f" if p.unit != "Hz" else ".1f"
             click.echo(f"  {p.name:<26} {p.initial:9{fmt}} {p.value:9{fmt}} {p.change:+9{fmt}} "
                        f"{p.std_error:8{fmt}}{unit}{'  |' if p.at_bound else ''}")
+        if eff.fitted:
+            click.echo("Effective dimensions (the same estimate `compare` prints): " + ", ".join(
+                f"{nm} {v:.3f} m" for nm, v in zip(("length", "width", "height"), eff.size_m)))
+        else:
+            click.echo(f"Dimensions kept from the file: {eff.note}.")
         eb, ea = res.error_before, res.error_after
         click.echo(f"Error over the fitted measurements: median |difference| {eb['median_abs_db']:.2f} -> "
                    f"{ea['median_abs_db']:.2f} dB, 90th percentile {eb['p90_abs_db']:.2f} -> {ea['p90_abs_db']:.2f} dB")

@@ -99,19 +99,19 @@ def _summary_dict(s):
     }
 
 
-def print_summary(s):
-    click.echo(f"Volume {s.volume_m3:.1f} m3, surface area {s.total_area_m2:.1f} m2")
-    click.echo("Reverberation time (s)   " + "  ".join(f"{b:>6g} Hz" for b in s.bands_hz))
-    click.echo("  Sabine                 " + "  ".join(f"{t:9.2f}" for t in s.sabine_rt60_s))
-    click.echo("  Eyring                 " + "  ".join(f"{t:9.2f}" for t in s.eyring_rt60_s))
-    click.echo(f"Schroeder frequency {s.schroeder_hz:.0f} Hz (from the Sabine time at 125 Hz): "
+def print_summary(s, say=click.echo):
+    say(f"Volume {s.volume_m3:.1f} m3, surface area {s.total_area_m2:.1f} m2")
+    say("Reverberation time (s)   " + "  ".join(f"{b:>6g} Hz" for b in s.bands_hz))
+    say("  Sabine                 " + "  ".join(f"{t:9.2f}" for t in s.sabine_rt60_s))
+    say("  Eyring                 " + "  ".join(f"{t:9.2f}" for t in s.eyring_rt60_s))
+    say(f"Schroeder frequency {s.schroeder_hz:.0f} Hz (from the Sabine time at 125 Hz): "
                "above it the room behaves statistically and the modal picture is indicative only")
-    click.echo("Room proportions:")
+    say("Room proportions:")
     for c in s.checks:
-        click.echo(f"  [{'pass' if c.passed else 'FAIL'}] {c.name}: {c.reason}")
+        say(f"  [{'pass' if c.passed else 'FAIL'}] {c.name}: {c.reason}")
     if s.extrapolated:
         names = ", ".join(n for n, _ in s.extrapolated)
-        click.echo(f"Note: absorption below 125 Hz is extrapolated for {names} (handbook tables stop at 125 Hz).")
+        say(f"Note: absorption below 125 Hz is extrapolated for {names} (handbook tables stop at 125 Hz).")
 
 
 # ---------------------------------------------------------------------------- predict

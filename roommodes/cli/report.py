@@ -26,7 +26,10 @@ from ._measured import (
     measured_files_options,
     measurement_specs,
     mic_cal_option,
+    read_spl_ref,
     require_file,
+    spl_ref_input,
+    spl_ref_option,
     wav_channel_option,
     window_option,
 )
@@ -172,10 +175,11 @@ def write_report(out, rep, force):
 @uncertainty_options(samples=REPORT_SAMPLES, samples_note=(
     "The report draws them for the file's layout and each standard placement (one solver call per room and "
     "layout)."))
+@spl_ref_option
 @json_option
 @guard
 def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, window_s, units, search, method, embed,
-           force, mic_cal, uncertainty, samples, seed, as_json):
+           force, mic_cal, uncertainty, samples, seed, as_json, spl_ref):
     """Write a self-contained HTML report of the room, for a client or for your notes.
 
     \b
@@ -199,7 +203,10 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
     out = Path(out)
     if out.suffix.lower() not in (".html", ".htm"):
         fail(f"{out}: the report must be an .html file")
-    inputs_given = [Path(room_file), *files, *(Path(m[2]) for m in measure), *([Path(mic_cal)] if mic_cal else [])]
+    inputs_given = [Path(room_file), *files, *(Path(m[2]) for m in measure), *([Path(mic_cal)] if mic_cal else []),
+                    *spl_ref_input(spl_ref)]
+    if spl_ref and not (files or measure):
+        fail("--spl-ref calibrates measurements; give them (FILES with --channel, or --measure)")
     protect_inputs(out, *inputs_given)
     check_output(out, force, what="-o")
     folder = _files_folder(out)
@@ -221,6 +228,9 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
         specs = measurement_specs(room, files, channel, at, measure)
     band = (20.0, 200.0)
     grid = log_frequencies(max(5.0, band[0] / 2 ** 0.5), min(2000.0, band[1] * 2 ** 0.5), 48)
+    ref = read_spl_ref(spl_ref, wav_channel)
+    # the curves stay in the chain's dBFS: the report aligns them with the prediction, and the
+    # calibration enters the maximum-level figures of the EQ section (build_report's spl_reference)
     meas = load_measurements([s[2] for s in specs], wav_channel, window_s, grid, mic_cal) if specs else []
     curves = [MeasuredCurve(ch, pos, m) for (ch, pos, _), m in zip(specs, meas)]
     targets = None
@@ -248,6 +258,8 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
         argv += ["--window", f"{window_s:g}"]
     if uncertainty:
         argv += ["--uncertainty", "--samples", str(samples), "--seed", str(seed)]
+    if spl_ref:
+        argv += ["--spl-ref", spl_ref]
     try:
         room_text = Path(room_file).read_text(encoding="utf-8")
     except (OSError, UnicodeDecodeError):
@@ -257,7 +269,8 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
                        room_text=room_text, inputs=inputs, command=shlex.join(argv),
                        created=datetime.datetime.now().astimezone().strftime("%Y-%m-%d %H:%M %Z").strip(),
                        files_folder=folder.name, progress=lambda text: echo_err(f"  {text}"),
-                       uncertainty={"n_samples": samples, "seed": seed} if uncertainty else None)
+                       uncertainty={"n_samples": samples, "seed": seed} if uncertainty else None,
+                       spl_reference=ref)
     written = write_report(out, rep, force)
     echo_err(f"wrote {out} ({len(rep.html) / 1e6:.1f} MB) and {written}/ ({len(rep.figures)} figures as PNG and SVG, "
              f"{len(rep.tables)} tables as CSV)")

@@ -27,6 +27,8 @@ Refusals (rather than guesses)
   decimal point anywhere: four columns, or two columns with decimal commas).
 * More than three columns: which one is the level? Pass ``columns=``.
 * A header line names the third column as something other than a phase.
+* A header line names the second column as a phase: a file of phase only, or the phase
+  before the level.
 * A line of text or a row with a different number of columns after the data has
   started (a footer, a typo): it must be deleted or commented out.
 * A frequency that is not positive, or that occurs twice. Rows that are merely out of
@@ -399,16 +401,21 @@ def _columns_for(att, source, columns, max_columns):
             f"{_short(first_s)} has {ncol} columns; expected {want}. Delete the other columns, "
             "or pass columns=(frequency, level[, phase]) as indices counted from 0",
             source, first_ln)
+    header = _header_fields(att)
+    if header is not None and _is_phase_name(header[1]) and "db" not in header[1]:
+        if ncol == 2:
+            raise MeasurementFileError(
+                f"the header names the second column {header[1]!r}, a phase, and there is no level "
+                "column: a phase alone cannot be compared or fitted. Export the magnitude in dB "
+                "(frequency, level[, phase])", source, att.preamble[-1][0])
+        raise MeasurementFileError(
+            f"the header names the second column {header[1]!r}, a phase; the second "
+            "column must be the level in dB. Reorder the columns or pass columns=",
+            source, att.preamble[-1][0])
     if ncol == 2:
         return (0, 1, None), 1.0
-    header = _header_fields(att)
     scale = 1.0
     if header is not None:
-        if _is_phase_name(header[1]) and "db" not in header[1]:
-            raise MeasurementFileError(
-                f"the header names the second column {header[1]!r}, a phase; the second "
-                "column must be the level in dB. Reorder the columns or pass columns=",
-                source, att.preamble[-1][0])
         third = header[2]
         if third and not _is_phase_name(third):
             raise MeasurementFileError(

@@ -818,6 +818,11 @@ def room_to_toml(room, comment=None, *, original_text=None, position_note=None, 
         _set(doc["search"], "keep_out", boxes)
     if room.subs_search is not None and "subs" not in doc:
         doc["subs"] = _subs_table(room.subs_search)
+    elif room.subs_search is not None and "subs" in doc:
+        # regions, keep-outs and candidates that followed a moved wall (a calibrated room): their
+        # new corners and positions go into the user's own entries, names, comments and 2-D
+        # corners ([x, y]: the full height) kept
+        _update_subs_geometry(doc["subs"], room.subs_search)
     has_subs = room.layout is not None and bool(room.layout.subs)
     if room.system is not None and has_subs:
         sy = _table(doc, "system")
@@ -878,6 +883,27 @@ def _write_seats(doc, seats, position_note=None):
         _set(t, "position_m", _array(st.position_m, note))
         if st.weight != 1.0 or "weight" in t:
             _set(t, "weight", _number(st.weight))
+
+
+def _update_subs_geometry(table, ss):
+    """Write changed box corners and candidate positions of ``ss`` into the ``[subs]`` table."""
+
+    def changed(a, b):
+        return any(abs(float(x) - float(y)) > 1e-9 for x, y in zip(a, b))
+
+    for k in ("regions", "keep_out"):
+        items, boxes = table.get(k), getattr(ss, k)
+        if items is None or len(items) != len(boxes):
+            continue
+        for item, box in zip(items, boxes):
+            for c, corner in (("min_m", box.min_m), ("max_m", box.max_m)):
+                if isinstance(item, dict) and c in item and changed(item[c], corner):
+                    item[c] = [_number(v) for v in corner[:len(item[c])]]
+    items = table.get("candidates_m")
+    if items is not None and len(items) == len(ss.candidates_m):
+        for i, p in enumerate(ss.candidates_m):
+            if changed(items[i], p):
+                items[i] = [_number(v) for v in p]
 
 
 def _subs_table(ss):

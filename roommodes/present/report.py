@@ -422,7 +422,7 @@ def _map_frequencies(coupling, features):
 def build_report(room, measurements=(), fit_targets=None, *, units="cm", search="full", method=DEFAULT_METHOD,
                  embed="svg", room_text=None, inputs=(), command=None, created=None, files_folder=None,
                  map_freqs_hz=None, compare_band_hz=(20.0, 200.0), compare_smoothing=12, progress=None,
-                 uncertainty=None):
+                 uncertainty=None, spl_reference=None):
     """Run the whole tool on a room and lay the results out as one self-contained HTML page.
 
     Parameters
@@ -466,6 +466,10 @@ def build_report(room, measurements=(), fit_targets=None, *, units="cm", search=
         ``{"n_samples": N, "seed": S}``: shade the 10-90 % band of rooms drawn from the room's
         ``[uncertainty]`` on the response figures, and say which peaks and dips are solid and
         which fragile (:func:`roommodes.analysis.ensemble.feature_spread`).
+    spl_reference : SplReference, optional
+        The calibration of the chain the ``measurements`` (in dBFS) were made with
+        (:mod:`roommodes.measure.calibration`): the EQ section then shows each measured
+        channel's maximum level at the seat for a full-scale input, before and after.
 
     Returns
     -------
@@ -508,7 +512,7 @@ def build_report(room, measurements=(), fit_targets=None, *, units="cm", search=
                method=method, search=search,
                space=space, keep_out=space.keep_out, f=log_frequencies(15.0, 300.0, 48), doc=_Doc(embed),
                values=document({"units": units}), glance=[], progress=progress,
-               measurements=measurements, fit_targets=fit_targets, compare_band_hz=compare_band_hz,
+               measurements=measurements, fit_targets=fit_targets, spl_reference=spl_reference, compare_band_hz=compare_band_hz,
                compare_smoothing=compare_smoothing, created=created, command=command, files_folder=files_folder,
                inputs=inputs, room_text=room_text, map_freqs_hz=map_freqs_hz, fit_res=fit_res,
                uncertainty=uncertainty)
@@ -1007,6 +1011,40 @@ def _section_subs(run):
             + "".join(f"<li>{_esc(t)}</li>" for t in SUB_CAUTIONS) + "</ul></div>")
 
 
+#: Frequencies of the maximum-level table, Hz (ISO 266 one-third-octave centres).
+_LEVEL_TABLE_HZ = (31.5, 40.0, 50.0, 63.0, 80.0, 100.0, 125.0, 160.0, 200.0)
+
+
+def _max_level_table(run, corrections):
+    """Each channel's maximum level at the seat, before and after EQ, where it is known."""
+    doc, values = run.doc, run.values
+    rows = []
+    values["max_level_db"] = {}
+    for c in corrections:
+        cl = c.clean
+        if cl is None:
+            continue
+        idx = [int(np.argmin(np.abs(cl.freq_hz - fr))) for fr in _LEVEL_TABLE_HZ]
+        basis = ("measured, full-scale input at the measurement's volume" if cl.basis == "measured"
+                 else "room file's amplifier, sensitivity and maximum SPL")
+        values["max_level_db"][c.name] = {"basis": cl.basis, "freq_hz": [float(cl.freq_hz[i]) for i in idx],
+                                          "before_db": [float(cl.before_db[i]) for i in idx],
+                                          "after_db": [float(cl.after_db[i]) for i in idx]}
+        rows.append([c.name, "before", basis] + [_num(cl.before_db[i], ".0f") for i in idx])
+        rows.append([c.name, "after", basis] + [_num(cl.after_db[i], ".0f") for i in idx])
+    if not rows:
+        doc.p("No maximum level is shown: the room file gives no amplifier power, sensitivity and maximum SPL for "
+              "the predicted channels, and measured levels are relative unless calibrated (--spl-ref).", cls="note")
+        return
+    note = ("dB SPL at the seat. 'measured': the level a full-scale input gives at the volume setting used for "
+            "the measurement, through the calibrated chain (" + run.spl_reference.describe() + "); the "
+            "amplifier's and speaker's own limits apply on top." if run.spl_reference is not None else
+            "dB SPL at the seat, from the room file's amplifier power, sensitivity and maximum SPL.")
+    doc.table("max-level", "Maximum level at the seat before and after the correction (dB SPL)",
+              ("channel", "", "from") + tuple(f"{fr:g} Hz" for fr in _LEVEL_TABLE_HZ), rows, note=note,
+              key="max-level")
+
+
 def _section_eq(run):
     """Bass correction and headroom, channel by channel."""
     doc, values, glance, step, room = run.doc, run.values, run.glance, run.step, run.room
@@ -1019,7 +1057,9 @@ def _section_eq(run):
         measured.setdefault(m.channel, []).append(m.measurement)
     if measured:
         # measurement first: a measured channel is corrected on what the room did
-        by_name = {c.name: c for c in correct_measured(room.with_layout(layout), measured)}
+        full_scale = None if run.spl_reference is None else run.spl_reference.full_scale_spl_db
+        by_name = {c.name: c for c in correct_measured(room.with_layout(layout), measured,
+                                                          full_scale_spl_db=full_scale)}
         corrections = [by_name.get(c.name, c) for c in corrections]
     doc.p("Source: " + "; ".join(
         f"{c.name}: {'its measured curve' + ('s (averaged)' if len(measured.get(c.name, ())) > 1 else '')}"
@@ -1075,6 +1115,7 @@ def _section_eq(run):
                    "and voltage as 10^(G/20).", key="headroom")
     for w in eqmod.channel_headroom_warnings({c.name: c.headroom.max_boost_db for c in corrections}):
         doc.p(f"Warning: {w.message}", cls="caution")
+    _max_level_table(run, corrections)
     glance.append("Bass correction: " + "; ".join(
         f"{c.name} {len(c.parametric.filters)} filter(s), {boost_text(c.headroom.max_boost_db)} "
         f"(pre-attenuate {c.headroom.preattenuation_db:.1f} dB)" for c in corrections) + ".")

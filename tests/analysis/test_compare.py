@@ -126,7 +126,10 @@ def test_length_change_of_3_percent_shifts_length_modes_by_rayleigh_ratio():
             errs.append(abs(m.ratio / expect - 1))
     assert len(errs) >= 5 and np.median(errs) < 0.005 and np.mean(np.array(errs) < 0.01) >= 0.75
     text = " ".join(rep.interpretation)
-    assert "Length modes" in text and f"{5.7 * 1.03:.2f} m" in text
+    # the ratios say which way; the one figure of the effective length comes from the fit
+    # (roommodes.analysis.fit.estimate_effective_size, tests/cli/test_effective_size.py)
+    assert "Length modes" in text and "the length acts longer than the file's 5.70 m" in text
+    assert rep.effective is None
     assert rep.comparison.correlation > 0.85
 
 

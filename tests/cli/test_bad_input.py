@@ -542,3 +542,111 @@ def test_fuzz_measurement_files(tmp_path_factory, data):
         assert res.exit_code in (0, 2), res.output
         if res.exit_code == 2:
             one_line_error(res, name)
+
+
+# ---- the remaining cases of the fuzzing run
+
+
+def test_sigint_during_start_up_ends_in_one_line(tmp_path):
+    """Ctrl-C while the modules are still being imported: one line, exit 130 (128 + SIGINT,
+    the shells' convention), no KeyboardInterrupt traceback. The interrupt is sent from
+    inside the import of numpy, so it lands in start-up every time."""
+    code = textwrap.dedent(f"""
+        import builtins, os, signal
+        from roommodes.cli import run
+        real = builtins.__import__
+        def hook(name, *a, **k):
+            if name == "numpy":
+                builtins.__import__ = real
+                os.kill(os.getpid(), signal.SIGINT)
+            return real(name, *a, **k)
+        builtins.__import__ = hook
+        run(["modes", {str(DEMO)!r}])
+    """)
+    env = {**os.environ, "PYTHONPATH": str(Path(__file__).resolve().parents[2])}
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env, timeout=120)
+    assert out.returncode == 130, out.stderr
+    assert "Traceback" not in out.stderr and "KeyboardInterrupt" not in out.stderr
+    assert out.stderr.strip().splitlines() == ["roommodes: interrupted"]
+    assert out.stdout == ""
+
+
+@pytest.mark.parametrize("header", ["freq phase", "Frequency (Hz)\tPhase (deg)"])
+def test_text_measurement_of_phase_only_is_refused(tmp_path, header):
+    room = room_file(tmp_path)
+    f = np.geomspace(10.0, 400.0, 60)
+    p = tmp_path / "phase.txt"
+    sep = "\t" if "\t" in header else " "
+    p.write_text(header + "\n" + "".join(f"{a:.3f}{sep}{b:.1f}\n" for a, b in zip(f, 90 * np.sin(f))))
+    for command in (["compare", room, p, "--channel", "left"], ["fit", room, p, "--channel", "left", "-o",
+                                                                  tmp_path / "cal.toml"]):
+        line = one_line_error(run(*command), "phase.txt", "line 1")
+        assert "phase" in line
+    assert not (tmp_path / "cal.toml").exists()
+
+
+def _decaying_noise_wav(fs):
+    """An impulse response at sample rate ``fs``: exponentially decaying noise, T60 0.4 s."""
+    t = np.arange(int(1.5 * fs)) / fs
+    h = np.random.default_rng(1).standard_normal(t.size) * np.exp(-t * 6.91 / 0.4)
+    return wav_bytes(0.5 * h / np.abs(h).max(), fs)
+
+
+def test_decay_default_range_adapts_to_an_8_khz_impulse_response(tmp_path):
+    import json
+
+    f = tmp_path / "ir8k.wav"
+    f.write_bytes(_decaying_noise_wav(8000))
+    res = run("decay", f, "--json")
+    assert res.exit_code == 0, res.output
+    bands = [b["nominal_hz"] for b in json.loads(res.stdout)["reverberation"]]
+    # octave bands 63..2000 Hz: the 4 kHz band's upper edge (5.66 kHz, IEC 61260-1) lies above fs / 2
+    assert bands == [63, 125, 250, 500, 1000, 2000]
+    line = one_line_error(run("decay", f, "--freq-range", "63,4000"), "--freq-range", "ir8k.wav", "4000 Hz")
+    assert "63,2000" in line
+
+
+@pytest.mark.parametrize("args, names", [
+    (["noise", "{d}/n.wav", "--rate", "8000", "--band", "20,5000"], ["--band", "4000 Hz"]),
+    (["sweep", "{d}/s.wav", "--rate", "8000", "--f2", "6000"], ["--f2", "4000 Hz"]),
+    (["bands", "{ir}", "--band", "5000,8000"], ["--band", "ir8k.wav", "4000 Hz"]),
+    (["decay", "{ir}", "--freq-range", "5000,8000"], ["--freq-range", "ir8k.wav", "4000 Hz"]),
+])
+def test_band_above_nyquist_names_the_option_and_the_limit(tmp_path, args, names):
+    ir = tmp_path / "ir8k.wav"
+    ir.write_bytes(_decaying_noise_wav(8000))
+    one_line_error(run(*[a.format(d=tmp_path, ir=ir) for a in args]), *names)
+    assert not (tmp_path / "n.wav").exists() and not (tmp_path / "s.wav").exists()
+
+
+def test_sweep_default_end_adapts_to_a_low_sample_rate(tmp_path):
+    import json
+
+    res = run("sweep", tmp_path / "s.wav", "--rate", "8000", "--json")
+    assert res.exit_code == 0, res.output
+    assert json.loads(res.stdout)["sweep"]["f2_hz"] == pytest.approx(0.45 * 8000)
+
+
+def test_eq_with_fifty_speakers_asks_for_a_choice(tmp_path):
+    import json
+
+    from roommodes.analysis.correction import MAX_EQ_CHANNELS
+
+    many = "".join(f"[speakers.s{k}]\nposition_m = [{0.4 + 0.07 * k:.2f}, {0.3 + (k % 7) * 0.4:.2f}, 1.1]\n\n"
+                   for k in range(50))
+    text = ROOM.format(left_extra="")
+    text = text[:text.index("[speakers.left]")] + many + text[text.index("[seat]"):]
+    room = tmp_path / "many.toml"
+    room.write_text(text, encoding="utf-8")
+    one_line_error(run("eq", room), "many.toml", "50 speakers", f"at most {MAX_EQ_CHANNELS}", "--channel")
+    one_line_error(run("eq", room, "--channel", "nope"), "--channel nope", "many.toml")
+    res = run("eq", room, "--channel", "s3", "--channel", "s40", "--json")
+    assert res.exit_code == 0, res.output
+    assert [c["name"] for c in json.loads(res.stdout)["channels"]] == ["s3", "s40"]
+
+
+@pytest.mark.parametrize("command", ["noise", "sweep"])
+@pytest.mark.parametrize("rate", ["0", "1", "10000000"])
+def test_signal_sample_rate_out_of_range_names_the_option(tmp_path, command, rate):
+    one_line_error(run(command, tmp_path / "x.wav", "--rate", rate), "--rate", "8000")
+    assert not (tmp_path / "x.wav").exists()

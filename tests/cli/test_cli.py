@@ -74,14 +74,17 @@ def test_modes_json():
     assert len(data["summary"]["checks"]) == 4
 
 
-def test_demo_writes_figures(tmp_path):
-    res = run("demo", "--out", tmp_path / "d")
+def test_demo_writes_figures_and_says_what_it_wrote_as_json(tmp_path):
+    res = run("demo", "--out", tmp_path / "d", "--json")
     assert res.exit_code == 0
-    assert sorted(p.name for p in (tmp_path / "d").glob("*.png")) == [
+    data = json.loads(res.stdout)  # stdout holds the JSON object only; the commentary went to stderr
+    assert sorted(p.name for p in (tmp_path / "d").glob("*.png")) == data["figures"] == [
         "modes.png", "predict-file-layout.png", "predict-layouts.png"]
+    assert data["output"] == str(tmp_path / "d" / "report.html")
     assert (tmp_path / "d" / "report.html").stat().st_size > 100_000
-    assert any((tmp_path / "d" / "report_files").glob("*.svg"))
-    assert "Suggested placement" in res.stdout and "Bass correction" in res.stdout
+    assert all((tmp_path / "d" / "report_files" / f"{n}.svg").is_file() for n in data["report_figures"])
+    assert all((tmp_path / "d" / "report_files" / f"{n}.csv").is_file() for n in data["report_tables"])
+    assert "Suggested placement" in res.stderr and "Bass correction" in res.stderr
 
 
 @pytest.mark.parametrize("args,message", [

@@ -144,3 +144,47 @@ keep_out = [{ name = "sofa", min_m = [3.9, 0.5, 0.0], max_m = [4.9, 3.1, 0.9] },
     assert back["search"]["keep_out"][0]["max_m"] == [5.05, 3.1, 0.9]
     assert "# the office chair" in out
     assert follow_walls({}, room.size_m, new_size) == {}
+
+
+def test_sub_regions_keep_outs_and_candidates_follow_a_moved_wall(tmp_path):
+    # The project's own rule (issue: "keep-outs and other geometry follow a changed room"): a
+    # [subs] region or keep-out that reached a far wall reaches it after the fit moved it; a
+    # candidate near a far wall keeps its distance from it; the user's names, comments and 2-D
+    # corners stay.
+    from roommodes.analysis.fit import follow_walls_subs
+
+    text = ROOM + """
+[subs]
+# where the subs may go
+regions = [
+  { name = "front strip", min_m = [0.1, 0.1], max_m = [1.0, 3.3] },   # along the front wall
+  { name = "back strip", min_m = [3.8, 0.1, 0.0], max_m = [4.9, 3.6, 0.6] },
+]
+keep_out = [{ min_m = [2.0, 0.0], max_m = [4.9, 0.5] }]
+candidates_m = [[4.6, 1.7, 0.3], [0.3, 0.3, 0.3]]  # my picks
+"""
+    _room_files(tmp_path)
+    path = tmp_path / "subs.toml"
+    path.write_text(text)
+    room = load_room(path)
+    assert room.size_m[:2] == (4.9, 3.6)
+    new_size = (5.05, 3.5, room.size_m[2])  # 15 cm longer, 10 cm narrower
+    ss = follow_walls_subs(room.subs_search, room.size_m, new_size)
+    front, back = ss.regions
+    assert front.max_m[:2] == (1.0, 3.3) and back.max_m == (5.05, 3.5, 0.6)
+    assert ss.keep_out[0].max_m[:2] == (5.05, 0.5)
+    assert ss.candidates_m == ((pytest.approx(4.75), 1.7, 0.3), (0.3, 0.3, 0.3))  # 30 cm from the back wall, as before
+    assert room.subs_search.regions[1].max_m == (4.9, 3.6, 0.6)  # the input is not changed
+    assert follow_walls_subs(None, room.size_m, new_size) is None
+    out = room_to_toml(replace(room, size_m=new_size, subs_search=ss), original_text=text)
+    back_t = tomllib.loads(out)["subs"]
+    assert back_t["regions"][0] == {"name": "front strip", "min_m": [0.1, 0.1], "max_m": [1.0, 3.3]}
+    assert back_t["regions"][1]["max_m"] == [5.05, 3.5, 0.6]
+    assert back_t["keep_out"][0] == {"min_m": [2.0, 0.0], "max_m": [5.05, 0.5]}
+    assert back_t["candidates_m"][0] == pytest.approx([4.75, 1.7, 0.3])
+    assert "# where the subs may go" in out and "# along the front wall" in out and "# my picks" in out
+    written = tmp_path / "cal.toml"
+    written.write_text(out)
+    again = load_room(written).subs_search
+    assert again.regions == ss.regions and again.keep_out == ss.keep_out
+    assert np.allclose(again.candidates_m, ss.candidates_m)
