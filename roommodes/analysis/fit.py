@@ -635,7 +635,8 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=DEFAULT_
 
 def _lognormal_rel(sigma_ln):
     """Relative sd of a log-normal factor whose log-space sd is ``sigma_ln``: ``sqrt(exp(s^2) - 1)``."""
-    return math.sqrt(math.expm1(sigma_ln**2))
+    s2 = float(sigma_ln) ** 2
+    return math.inf if s2 > 700.0 else math.sqrt(math.expm1(s2))  # beyond exp's range: unbounded
 
 
 def narrow_uncertainty(room, fitted_room, parameters, success=True, reference_hz=63.245553203367585):

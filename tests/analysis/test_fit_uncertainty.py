@@ -93,3 +93,11 @@ def test_a_parameter_at_its_bound_narrows_nothing():
     assert any(p.at_bound for p in res.parameters if p.kind == "size")
     assert res.room.uncertainty.size_m == ROOM.uncertainty.size_m
     assert res.uncertainty["surfaces"] == {}
+
+
+def test_a_useless_absorption_estimate_narrows_nothing_and_does_not_overflow():
+    # a log-space error of 115 (the data say nothing about the absorption) once overflowed exp()
+    from roommodes.analysis.fit import _lognormal_rel
+
+    assert _lognormal_rel(115.0) == float("inf")
+    assert abs(_lognormal_rel(0.1) - (np.expm1(0.01)) ** 0.5) < 1e-12  # sqrt(exp(s^2) - 1), log-normal variance
