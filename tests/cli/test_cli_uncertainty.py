@@ -55,6 +55,7 @@ def test_place_uncertainty_ranks_by_median_with_spread(tmp_path):
     assert res.exit_code == 0, res.output
     data = json.loads(res.stdout)
     assert data["uncertainty"]["samples"] == 4 and data["uncertainty"]["seed"] == 9
+    assert data["uncertainty"]["method"] == "modal"  # the drawn rooms' default solver (docs/uncertainty.md)
     med = [r["score_median"] for r in data["ranked"]]
     assert med == sorted(med)
     for r in data["ranked"] + [data["current"]]:
