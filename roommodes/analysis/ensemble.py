@@ -22,19 +22,21 @@ import numpy as np
 
 from ..dsp.response import smooth_db
 from ..model.room import Layout
-from ..solvers import DEFAULT_METHOD
 from .predict import find_extrema
 from .search import DEFAULT_POINTS_PER_OCTAVE, score_layouts
 from .uncertainty import DEFAULT_SEED, _check_count, draw_room
 
-__all__ = ["DEFAULT_PLACE_SAMPLES", "EnsembleRanking", "ensemble_scores", "rank_by_median", "FeatureSpread",
+__all__ = ["DEFAULT_PLACE_SAMPLES", "DEFAULT_ENSEMBLE_METHOD", "EnsembleRanking", "ensemble_scores", "rank_by_median", "FeatureSpread",
            "feature_spread", "feature_bandwidth_hz", "FEATURE_SMOOTHING", "MIN_FOUND_FRACTION"]
 
-#: Drawn rooms ``place --uncertainty`` uses where none is chosen: each layout costs about
-#: 0.2 s of one core per drawn room with the exact solver (nine solver calls with the robustness
-#: part; measured on the demo room), so 30 rooms for six layouts take about 40 s (``--method modal``
-#: is about ten times faster).
+#: Drawn rooms ``place --uncertainty`` uses where none is chosen.
 DEFAULT_PLACE_SAMPLES = 30
+#: Solver that re-scores layouts in the drawn rooms where none is chosen: the search's batched
+#: modal scorer, which scores every layout (and its robustness moves) of one drawn room in one
+#: batch, about ten times cheaper than one exact solver call per layout and move; its score
+#: differs from the exact solver's by a small fraction of the spread between drawn rooms
+#: (docs/uncertainty.md gives the measurement).
+DEFAULT_ENSEMBLE_METHOD = "modal"
 #: 1/b-octave smoothing the features are found on (that of :func:`response_features`).
 FEATURE_SMOOTHING = 12
 #: A feature found in fewer of the drawn rooms than this is fragile.
@@ -48,7 +50,7 @@ def _pair(layout):
 
 def ensemble_scores(room, layouts, *, n_samples=DEFAULT_PLACE_SAMPLES, seed=DEFAULT_SEED, uncertainty=None,
                     weights=None, band_hz=None, area_m=(0.6, 0.6), area_points=(3, 3),
-                    points_per_octave=DEFAULT_POINTS_PER_OCTAVE, method=DEFAULT_METHOD, robustness=True,
+                    points_per_octave=DEFAULT_POINTS_PER_OCTAVE, method=DEFAULT_ENSEMBLE_METHOD, robustness=True,
                     progress=None):
     """Score of every layout in every drawn room (common random numbers).
 
@@ -62,9 +64,13 @@ def ensemble_scores(room, layouts, *, n_samples=DEFAULT_PLACE_SAMPLES, seed=DEFA
         Drawn rooms and their seed; drawn room ``i`` has the size, absorption and temperature
         of the ``i``-th room :func:`~roommodes.analysis.uncertainty.sample_rooms` draws.
     uncertainty : Uncertainty, optional
-    weights, band_hz, area_m, area_points, points_per_octave, method, robustness
+    weights, band_hz, area_m, area_points, points_per_octave, robustness
         As in :func:`~roommodes.analysis.search.score_layouts`; ``band_hz`` defaults from the
         first layout's speakers.
+    method : str
+        The solver; default :data:`DEFAULT_ENSEMBLE_METHOD` (the batched modal scorer: all
+        layouts of one drawn room in one batch). Any other runs one solver call per layout and
+        robustness move through the one chain.
     progress : callable, optional
         ``progress(done, total)`` after each drawn room.
 

@@ -173,6 +173,11 @@ def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, opti
                             full_scale_spl_db=None if spl_ref is None else spl_ref.full_scale_spl_db, **options)
 
 
+#: Default count of drawn rooms for ``eq --uncertainty`` (docs/eq.md): the kept share of each cut
+#: and the median-sized depth are settled well before ``predict``'s percentile tails.
+EQ_SAMPLES = 200
+
+
 @click.command(context_settings=CONTEXT)
 @click.argument("room_file", type=click.Path(path_type=Path))
 @click.option("--layout", type=click.Choice(["file", "corner", "wall", "mid-room", "desk"]), default="file",
@@ -210,7 +215,9 @@ def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, opti
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write before/after curves and filters (PNG/SVG).")
 @click.option("--force", is_flag=True, help="Overwrite existing output files.")
 @mic_cal_option
-@uncertainty_options
+@uncertainty_options(samples=EQ_SAMPLES, samples_note=(
+    "Each room predicts the seat and six head positions; whether a peak is present and the median room "
+    "settle with fewer rooms than the tails of the 10-90 % band do."))
 @spl_ref_option
 @json_option
 def eq(room_file, layout, channels, target, tilt_db, tilt_corner, band_text, max_filters, max_boost, q_range, freq_range,

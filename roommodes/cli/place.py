@@ -17,7 +17,8 @@ import click
 import numpy as np
 
 from .. import __version__
-from ..analysis.ensemble import DEFAULT_PLACE_SAMPLES
+from ..analysis.ensemble import DEFAULT_ENSEMBLE_METHOD, DEFAULT_PLACE_SAMPLES
+from ..solvers import METHODS
 from ._util import (
     CONTEXT,
     MODEL_CAUTION,
@@ -111,13 +112,17 @@ def _row(label, s, parts):
 @click.option("--force", is_flag=True, help="Overwrite an existing output file (never the input).")
 @method_option
 @uncertainty_options(samples=DEFAULT_PLACE_SAMPLES, samples_note=(
-    "The default is small because each drawn room re-scores every finalist with the chosen solver (about "
-    "0.2 s of one core per layout and room with the exact one, about ten times less with --method modal; "
-    "docs/uncertainty.md)."))
+    "Each drawn room re-scores every finalist (about 0.02 s of one core per layout and room with the "
+    "batched modal scorer, ten times more with the exact solver; docs/uncertainty.md)."))
+@click.option("--uncertainty-method", "ensemble_method", type=click.Choice(list(METHODS)),
+              default=DEFAULT_ENSEMBLE_METHOD, show_default=True,
+              help="Solver that scores the layouts in the drawn rooms (--method sets the nominal scores). The "
+                   "batched modal scorer ranks the finalists' medians as the exact solver does on the bundled "
+                   "rooms at a tenth of the cost (docs/uncertainty.md).")
 @json_option
 @units_option
 def place(room_file, top, weights, band, points_per_octave, plot_path, layout_path, force, method, uncertainty,
-          samples, seed, as_json):
+          samples, seed, ensemble_method, as_json):
     """Search where to put the two speakers and the seat, and rank the layouts.
 
     The allowed region, symmetry, listening triangle, listening area and keep-out boxes
@@ -166,7 +171,8 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
         elapsed = time.perf_counter() - t0
         ranking, current_spread, ens_elapsed = None, None, 0.0
         if uncertainty:
-            ranking, current_spread, ens_elapsed = _ensemble(room, space, res, points_per_octave, samples, seed)
+            ranking, current_spread, ens_elapsed = _ensemble(room, space, res, points_per_octave, samples, seed,
+                                                                   ensemble_method)
     except ValueError as exc:
         fail(str(exc))
     best = res.ranked[0] if ranking is None else ranking.layouts[0]
@@ -191,7 +197,7 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
                        for k, s in enumerate(ranked)],
             "presets": [_layout_obj(room, s) for s in res.presets],
             "current": _layout_obj(room, res.current, current_spread) if res.current is not None else None,
-            **({"uncertainty": {"samples": samples, "seed": seed, "method": res.method,
+            **({"uncertainty": {"samples": samples, "seed": seed, "method": ensemble_method,
                                 "uncertainty": room.uncertainty.to_dict(), "elapsed_s": ens_elapsed,
                                 "ranked_by": "median score over the drawn rooms"}} if ranking is not None else {}),
             **({"subs": subs_json(room, "the stereo-pair search")} if subs_note(room, "") else {}),
@@ -235,7 +241,7 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
         for s in res.presets:
             click.echo(_row(s.name, s, PARTS))
         if ranking is not None:
-            _print_ensemble(room, res, ranking, current_spread, samples, seed, ens_elapsed)
+            _print_ensemble(room, res, ranking, current_spread, samples, seed, ens_elapsed, ensemble_method)
         others = list(res.presets) + ([res.current] if res.current is not None else [])
         inside = [s for s in others if s.in_region]
         click.echo("")
@@ -303,7 +309,7 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
         echo_err(f"wrote {plot_path}")
 
 
-def _ensemble(room, space, res, points_per_octave, samples, seed):
+def _ensemble(room, space, res, points_per_octave, samples, seed, method):
     """The finalists (and the file's layout) scored in drawn rooms: (ranking, the file's spread, seconds)."""
     from ..analysis.ensemble import ensemble_scores, rank_by_median
 
@@ -313,7 +319,7 @@ def _ensemble(room, space, res, points_per_octave, samples, seed):
         scores = ensemble_scores(room, [s.layout for s in layouts], n_samples=samples, seed=seed,
                                  weights=res.weights, band_hz=res.band_hz, area_m=space.area_m,
                                  area_points=space.area_points, points_per_octave=points_per_octave,
-                                 method=res.method, progress=lambda i, n: bar.update(1))
+                                 method=method, progress=lambda i, n: bar.update(1))
     k = len(res.ranked)
     ranking = rank_by_median(res.ranked, scores[:, :k])
     current = None
@@ -324,11 +330,11 @@ def _ensemble(room, space, res, points_per_octave, samples, seed):
     return ranking, current, time.perf_counter() - t0
 
 
-def _print_ensemble(room, res, ranking, current_spread, samples, seed, elapsed):
+def _print_ensemble(room, res, ranking, current_spread, samples, seed, elapsed, method):
     click.echo("")
     click.echo(f"Over {samples} rooms drawn from the room file's [uncertainty] (seed {seed}; {uncertainty_text(room)}; "
-               f"{elapsed:.1f} s), every layout scored in the same rooms with the same placement errors; ranked by the "
-               "median score:")
+               f"{elapsed:.1f} s), every layout scored with the {method} solver in the same rooms with the same placement "
+               "errors; ranked by the median score:")
     click.echo(f"  {'layout':<10} {'nominal':>7}  {'median':>7}  {'10-90 % of drawn rooms':>22}")
     rows = [(f"#{s.name}", s.score, ranking.median[k], ranking.p10[k], ranking.p90[k])
             for k, s in enumerate(ranking.layouts)]

@@ -14,8 +14,12 @@ Sources of the check values:
   (Kendall & Stuart, The Advanced Theory of Statistics, vol. 1, sec. 10.10; memory): at
   N = 200 the median of a normal spread of 1 dB has an error of about 0.09 dB, so two seeds
   agree well within the issue's 0.3 dB where the spread is a few dB; at deep dips the level
-  spreads over tens of dB and the percentiles converge more slowly, so each percentile is held
-  to 0.3 dB at 90 % of the frequencies (the issue's 0.3 dB; the 90 % is ours).
+  spreads over tens of dB and the percentiles converge more slowly. For a normal spread the
+  p10's error is about 0.67 W / sqrt(N) with W the 10-90 % width, so two seeds differ by more
+  than 0.3 dB at 800 samples mainly where W exceeds about 4.6 dB (1.96 sqrt(2) standard
+  errors). Each percentile is held to 0.3 dB at 95 % of the frequencies, and everywhere the band
+  is narrower than 3 dB (the issue's 0.3 dB; the 95 % and the 3 dB are ours, from the
+  measurement in docs/uncertainty.md: 97.5 % and 0.17 dB there).
 """
 
 import numpy as np
@@ -71,7 +75,9 @@ def _coverage(uncertainty_scale, n_rooms=3, n_truths=15, seed=7):
     inside = []
     for _ in range(n_rooms):
         room = _random_room(rng)
-        bands = predict_bands(room, freq_hz=F_COARSE, seed=int(rng.integers(1 << 30)),
+        # 200 samples keep the check quick: calibration is a property of the drawn distributions,
+        # and more samples (the default is 800) only steady the percentiles
+        bands = predict_bands(room, freq_hz=F_COARSE, seed=int(rng.integers(1 << 30)), n_samples=200,
                               uncertainty=Uncertainty(*(uncertainty_scale * np.array(
                                   [0.02, 0.01, 0.25, 1.5]))))
         for _ in range(n_truths):
@@ -93,19 +99,23 @@ def test_band_too_narrow_is_caught():
     assert _coverage(0.5) < 0.65
 
 
+@pytest.mark.slow
 def test_percentiles_converge_between_seeds():
-    # the table's defaults for every surface (Uncertainty(): no library ranges), the spread this
-    # check was set for; with the library's ranges (0.5 on the demo room's plasterboard and
-    # floor) the band is wider and converges more slowly (docs/uncertainty.md gives the figures)
+    # the demo room as shipped: its plasterboard and boarded floor drawn with the library's 50 %,
+    # the widest band of the bundled rooms' defaults; at the default sample count
     room = load_room(demo_room_path())
     f = log_frequencies(20.0, 200.0, 24)
-    a = predict_bands(room, freq_hz=f, seed=1, uncertainty=Uncertainty())
-    b = predict_bands(room, freq_hz=f, seed=2, uncertainty=Uncertainty())
+    a = predict_bands(room, freq_hz=f, seed=1)
+    b = predict_bands(room, freq_hz=f, seed=2)
     assert a.n_samples == DEFAULT_SAMPLES
+    width = np.maximum(a.width_db, b.width_db)
     for q in ("level_db_p10", "level_db_p50", "level_db_p90"):
         d = np.abs(getattr(a, q) - getattr(b, q))
         print(f"{q}: within 0.3 dB at {np.mean(d <= 0.3):.1%} of frequencies, largest {d.max():.2f} dB")
-        assert np.mean(d <= 0.3) >= 0.9, q
+        assert np.mean(d <= 0.3) >= 0.95, q
+        # where they differ more, it is where the band is wide (the percentile's error grows with
+        # the spread): docs/uncertainty.md states stable to 0.3 dB wherever the band is under 3 dB
+        assert np.all(d[width < 3.0] <= 0.3), q
 
 
 def test_reproducible_and_independent_of_sample_count():
