@@ -39,12 +39,13 @@ import numpy as np
 
 from ..model.modes import mode_indices, mode_shapes, wall_weights
 from ..model.walls import impedance_table
-from ._blas import blas_threads
 from ._modal_kernels import fold_into, shapes_into, static_green_pairs_kernel, static_green_pairs_tabled
+from .threads import blas_threads
 
 __all__ = ["modal_transfer", "modal_transfer_direct", "static_green", "DEFAULT_CUTOFF_FACTOR",
            "modal_weights", "modal_sum_block", "static_green_pairs", "static_green_block", "static_tail_term",
-           "block_sizes", "BLOCK_BYTES", "PRECISIONS", "SINGLE_MIN_FLOP"]
+           "block_sizes", "BLOCK_BYTES", "PRECISIONS", "SINGLE_MIN_FLOP", "RESONANT_FACTOR",
+           "mode_shape_block", "resonant_count", "split_product"]
 
 #: The modal sum runs to ``DEFAULT_CUTOFF_FACTOR`` times the highest frequency asked for.
 DEFAULT_CUTOFF_FACTOR = 3.0
@@ -238,16 +239,22 @@ def _weights(table, z, k):
     return w
 
 
-def _shapes(table, size, points, dtype=np.float64, start=0, stop=None):
+def _shapes(table, size, points, dtype=np.float64, start=0, stop=None, cos=None):
     """Mode shapes (P, N) in C order of ``dtype`` (modes ``start:stop`` of the table): per-axis
-    cosine tables and one fused gather-and-multiply pass (:func:`._modal_kernels.shapes_into`);
-    the float64 values equal :func:`roommodes.model.modes.mode_shapes`' to the last bit."""
-    p = np.asarray(points, dtype=float)
+    cosine tables (``cos``, from :func:`_cos_tables`, when already computed) and one fused
+    gather-and-multiply pass (:func:`._modal_kernels.shapes_into`); the float64 values equal
+    :func:`roommodes.model.modes.mode_shapes`' to the last bit."""
+    cos = _cos_tables(table, points) if cos is None else cos
     idx = [i[start:stop] for i in table.indices_by_axis]
-    out = np.empty((p.shape[0], idx[0].shape[0]), dtype=dtype)
-    cos = [np.cos(p[:, a, None] * table.axis_k[a]) for a in range(3)]  # (P, n_a) each
+    out = np.empty((cos[0].shape[0], idx[0].shape[0]), dtype=dtype)
     shapes_into(cos[0], cos[1], cos[2], idx[0], idx[1], idx[2], out)
     return out
+
+
+def _cos_tables(table, points):
+    """``cos(k_a p_a)`` (P, n_a) for the three axes."""
+    p = np.asarray(points, dtype=float)
+    return [np.cos(p[:, a, None] * table.axis_k[a]) for a in range(3)]
 
 
 def _shapes_numpy(table, size, points):
@@ -271,7 +278,55 @@ def _single(precision, flop):
     return precision == "single" or (precision == "auto" and flop >= SINGLE_MIN_FLOP)
 
 
-def modal_sum_block(psi_src, psi_rec, weight, *, precision="double"):
+def mode_shape_block(indices, size_m, points_m, dtype=np.float64):
+    """Mode shapes (P, N) in C order, from per-axis cosine tables in one compiled pass.
+
+    Equal to :func:`roommodes.model.modes.mode_shapes` to the last bit in float64; with
+    ``dtype=np.float32`` the same values rounded once.
+    """
+    size = np.asarray(size_m, dtype=float)
+    p = np.atleast_2d(np.asarray(points_m, dtype=float))
+    idx = np.asarray(indices)
+    cols = [np.ascontiguousarray(idx[:, a], dtype=np.int64) for a in range(3)]
+    cos = [np.cos(p[:, a, None] * (np.pi / size[a] * np.arange(cols[a].max(initial=0) + 1))) for a in range(3)]
+    out = np.empty((p.shape[0], idx.shape[0]), dtype=dtype)
+    shapes_into(cos[0], cos[1], cos[2], cols[0], cols[1], cols[2], out)
+    return out
+
+
+def resonant_count(indices, size_m, speed_of_sound, fmax_hz):
+    """How many of the modes (sorted by frequency, as :func:`modal_weights` gives them)
+    lie at or below ``RESONANT_FACTOR * fmax_hz``: the ones single precision keeps in float64."""
+    k = np.pi * np.asarray(indices, dtype=float) / np.asarray(size_m, dtype=float)
+    kmax = 2 * np.pi * RESONANT_FACTOR * float(fmax_hz) / float(speed_of_sound)
+    return int(np.count_nonzero(np.sum(k * k, axis=1) <= kmax * kmax))
+
+
+def split_product(a, b, n_double=0, single=True):
+    """``a @ b`` (float64 result) with the first ``n_double`` inner indices in float64 and
+    the rest, when ``single``, in float32 (each operand rounded once).
+
+    Parameters
+    ----------
+    a : ndarray (M, N)
+    b : ndarray (N, K)
+    n_double : int
+        Leading inner indices (the resonant modes) kept in float64.
+    single : bool
+        False: the whole product in float64.
+    """
+    if not single or n_double >= a.shape[1]:
+        return np.asarray(a, dtype=float) @ np.asarray(b, dtype=float)
+    hi = np.ascontiguousarray(a[:, n_double:], dtype=np.float32) @ np.ascontiguousarray(b[n_double:],
+                                                                                       dtype=np.float32)
+    if n_double <= 0:
+        return hi.astype(np.float64)
+    res = np.asarray(a[:, :n_double], dtype=float) @ np.asarray(b[:n_double], dtype=float)
+    res += hi
+    return res
+
+
+def modal_sum_block(psi_src, psi_rec, weight, *, precision="double", n_double=0):
     """``H[s, r, f] = sum_n psi_src[s, n] psi_rec[r, n] weight[n, f]`` as one real GEMM.
 
     The smaller of the two point sets is folded into the weights
@@ -287,10 +342,13 @@ def modal_sum_block(psi_src, psi_rec, weight, *, precision="double"):
     weight : ndarray, complex (N, F)
         Modal weights (:func:`modal_weights`).
     precision : {"double", "single", "auto"}
-        "single": the product in float32 (shapes and folded weights rounded once; the fold
-        itself is formed in float64). Level error at most 5e-4 dB on the rooms of
-        tests/solvers/test_modal_kernels.py. "auto": single from :data:`SINGLE_MIN_FLOP`
-        operations on.
+        "single": the modes from ``n_double`` on multiply in float32 (shapes and folded
+        weights rounded once; the fold itself is formed in float64). "auto": single from
+        :data:`SINGLE_MIN_FLOP` operations on.
+    n_double : int
+        Leading modes kept in float64 in single precision; with
+        :func:`resonant_count` modes the error is that of :func:`modal_transfer`'s single
+        precision (5e-4 dB).
 
     Returns
     -------
@@ -304,22 +362,17 @@ def modal_sum_block(psi_src, psi_rec, weight, *, precision="double"):
         a, b = b, a
     n_rows, n_modes = a.shape
     n_fold, n_freq = b.shape[0], w.shape[1]
-    single = _single(precision, 4.0 * n_rows * n_modes * n_fold * n_freq)
-    rtype = np.float32 if single else np.float64
-    a_r = a.astype(rtype, copy=False)
+    flop = 4.0 * n_rows * n_modes * n_fold * n_freq
+    single = _single(precision, flop)
     out = np.empty((n_rows, n_fold, n_freq), dtype=complex)
     chunk = max(1, _BATCH_ELEMENTS // max(1, 2 * n_modes * n_freq))
     for j0 in range(0, n_fold, chunk):
         j1 = min(n_fold, j0 + chunk)
         fold = np.empty((n_modes, j1 - j0, n_freq), dtype=complex)
         np.multiply(b[j0:j1].T[:, :, None], w[:, None, :], out=fold)
-        fold = fold.view(np.float64).reshape(n_modes, -1).astype(rtype, copy=False)
-        with blas_threads(2.0 * n_rows * n_modes * fold.shape[1]):
-            res = a_r @ fold  # (rows, 2 * (j1 - j0) * F) real
-        if single:
-            out[:, j0:j1, :] = res.view(np.complex64).reshape(n_rows, j1 - j0, n_freq)
-        else:
-            out[:, j0:j1, :] = res.view(np.complex128).reshape(n_rows, j1 - j0, n_freq)
+        with blas_threads(flop):
+            res = split_product(a, fold.view(np.float64).reshape(n_modes, -1), n_double, single)
+        out[:, j0:j1, :] = res.view(np.complex128).reshape(n_rows, j1 - j0, n_freq)
     return out.transpose(1, 0, 2) if swap else out
 
 
@@ -592,8 +645,9 @@ def _blocks(table, size, rows, folds, hv, gs_all, z, k, single):
     sw = table.static_weight if static_tail else np.zeros(n_modes)
     for r0 in range(0, rows.shape[0], rb):
         r1 = min(r0 + rb, rows.shape[0])
-        psi_lo = _shapes(table, size, rows[r0:r1], np.float64, stop=n_lo)
-        psi_hi = _shapes(table, size, rows[r0:r1], np.float32, start=n_lo) if n_lo < n_modes else None
+        cos = _cos_tables(table, rows[r0:r1])
+        psi_lo = _shapes(table, size, None, np.float64, stop=n_lo, cos=cos)
+        psi_hi = _shapes(table, size, None, np.float32, start=n_lo, cos=cos) if n_lo < n_modes else None
         for g0 in range(0, folds.shape[0], gb):
             g1 = min(g0 + gb, folds.shape[0])
             psi_fold = _shapes(table, size, folds[g0:g1])

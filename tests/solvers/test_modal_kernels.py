@@ -12,7 +12,7 @@ import pytest
 
 from roommodes.model.modes import mode_shapes
 from roommodes.model.walls import impedance_from_absorption, impedance_table
-from roommodes.solvers import _blas, modal
+from roommodes.solvers import modal, threads
 from roommodes.solvers._modal_kernels import fold_into, static_green_pairs_kernel
 from roommodes.solvers.modal import (
     SINGLE_MIN_FLOP,
@@ -122,11 +122,11 @@ def test_modal_sum_block_single_within_the_bound():
 
 
 def test_blas_threads_one_thread_for_small_products_and_restored_after():
-    ctl = _blas._controller()
+    ctl = threads._controller()
     if ctl is None:
         pytest.skip("threadpoolctl not installed")
     before = [lib.num_threads for lib in ctl.select(user_api="blas").lib_controllers]
-    with _blas.blas_threads(1e6):
-        assert all(lib.num_threads == 1 for lib in _blas._controller().select(user_api="blas").lib_controllers)
-    after = [lib.num_threads for lib in _blas._controller().select(user_api="blas").lib_controllers]
+    with threads.blas_threads(1e6):
+        assert all(lib.num_threads == 1 for lib in threads._controller().select(user_api="blas").lib_controllers)
+    after = [lib.num_threads for lib in threads._controller().select(user_api="blas").lib_controllers]
     assert after == before

@@ -15,7 +15,7 @@ from __future__ import annotations
 import contextlib
 import functools
 
-__all__ = ["blas_threads", "MULTI_THREAD_MIN_FLOP"]
+__all__ = ["blas_threads", "small_products", "MULTI_THREAD_MIN_FLOP"]
 
 #: Products with fewer floating-point operations run on one BLAS thread (measured:
 #: tests/bench/bench.py, "BLAS threads" table).
@@ -44,3 +44,16 @@ def blas_threads(flop):
     if ctl is None or flop >= MULTI_THREAD_MIN_FLOP:
         return contextlib.nullcontext()
     return ctl.limit(limits=1, user_api="blas")
+
+
+def small_products(fn):
+    """Decorator: ``fn`` runs on one BLAS thread (for callers whose every product is far
+    below :data:`MULTI_THREAD_MIN_FLOP`, such as the placement search's scoring: thousands
+    of products of a few MFLOP, where two threads were measured several times slower)."""
+
+    @functools.wraps(fn)
+    def wrapper(*args, **kwargs):
+        with blas_threads(0):
+            return fn(*args, **kwargs)
+
+    return wrapper
