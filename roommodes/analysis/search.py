@@ -58,12 +58,11 @@ from ..model.room import WALL_MARGIN_M, Layout, Speaker
 from ..model.speaker import speaker_response
 from ..solvers import DEFAULT_METHOD
 from ..solvers.modal import (
-    SINGLE_MIN_FLOP,
+    grouped_pair_sum,
     modal_sum_block,
     modal_weights,
     mode_shape_block,
     resonant_count,
-    split_product,
     static_green_block,
     static_green_pairs,
 )
@@ -436,30 +435,26 @@ class _Scorer:
     def transfer_layouts(self, vecs, chunk=256):
         """(K, 2, A, F) complex transfers of both speakers to the area points of K layouts.
 
-        For each layout the products ``psi_n(speaker) psi_n(point)`` (2 A x N) are formed by
-        broadcasting and multiply the weights in one real GEMM; the same products give the
+        For each layout the products ``psi_n(speaker) psi_n(point)`` (2 A x N) are formed in
+        one compiled pass and multiply the weights in one real GEMM
+        (:func:`~roommodes.solvers.modal.grouped_pair_sum`); the same pass gives the
         low-mode part of the static tail.
         """
         v = np.atleast_2d(vecs)
         k = v.shape[0]
         a = self.offsets.shape[0]
         out = np.empty((k, 2, a, self.freq_hz.size), dtype=complex)
-        wr = self.weight.view(np.float64)
         for i0 in range(0, k, chunk):
             vi = v[i0:i0 + chunk]
             n = vi.shape[0]
             src = vi[:, :6].reshape(n, 2, 3)
             rec = np.clip(vi[:, None, 6:9] + self.offsets[None], WALL_MARGIN_M, self.size - WALL_MARGIN_M)
-            psi_s = self.shapes(src.reshape(-1, 3)).reshape(n, 2, 1, -1)
-            psi_r = self.shapes(rec.reshape(-1, 3)).reshape(n, 1, a, -1)
-            prod = (psi_s * psi_r).reshape(n * 2 * a, -1)  # (pairs, N)
-            with blas_threads(2.0 * prod.size * wr.shape[1]):
-                h = split_product(prod, wr, self.n_double, prod.size * wr.shape[1] >= SINGLE_MIN_FLOP / 2)
-                h = h.view(np.complex128)
-                low = prod @ self.static_weight
+            psi_s = self.shapes(src.reshape(-1, 3)).reshape(n, 2, -1)
+            psi_r = self.shapes(rec.reshape(-1, 3)).reshape(n, a, -1)
+            h, low = grouped_pair_sum(psi_s, psi_r, self.weight, self.static_weight, n_double=self.n_double)
             ss = np.broadcast_to(src[:, :, None, :], (n, 2, a, 3)).reshape(-1, 3)
             rr = np.broadcast_to(rec[:, None, :, :], (n, 2, a, 3)).reshape(-1, 3)
-            h += (4 * np.pi * static_green_pairs(self.size, ss, rr) - low)[:, None]
+            h += (4 * np.pi * static_green_pairs(self.size, ss, rr).reshape(n, 2, a) - low)[..., None]
             out[i0:i0 + n] = h.reshape(n, 2, a, -1)
         self.pair_evaluations += 2 * a * k
         self.layout_evaluations += k

@@ -23,7 +23,7 @@ import math
 import numpy as np
 from numba import njit
 
-__all__ = ["shapes_into", "fold_into", "static_green_pairs_kernel", "static_green_pairs_tabled"]
+__all__ = ["shapes_into", "fold_into", "pair_products_into", "static_green_pairs_kernel", "static_green_pairs_tabled"]
 
 #: Exponent below which an image term of the 1-D Green's function is dropped (e^-40 = 4e-18).
 _NEGLIGIBLE_EXP = 40.0
@@ -109,6 +109,47 @@ def _fold_row(row, psi_fold, n, wr, wi):
         for f in range(n_freq):
             row[base + 2 * f] = ps * wr[f]
             row[base + 2 * f + 1] = ps * wi[f]
+
+
+@njit(cache=True)
+def pair_products_into(psi_src, psi_rec, static_weight, out_lo, out_hi, low):
+    """Products of mode shapes for every (source, receiver) pair of each group.
+
+    Row ``(k S + s) R + r`` holds ``psi_src[k, s, n] psi_rec[k, r, n]``: modes
+    ``n < n_lo`` in ``out_lo`` (float64), the others in ``out_hi`` (float64 or float32,
+    rounded once); ``low`` gets the row's static low-mode sum
+    ``sum_n psi_src psi_rec static_weight[n]`` in float64.
+
+    Parameters
+    ----------
+    psi_src : float64 (K, S, N)
+    psi_rec : float64 (K, R, N)
+    static_weight : float64 (N,)
+    out_lo : float64 (K S R, n_lo)
+    out_hi : float64 or float32 (K S R, N - n_lo)
+    low : float64 (K S R,)
+    """
+    n_groups, n_src, n_modes = psi_src.shape
+    n_rec = psi_rec.shape[1]
+    n_lo = out_lo.shape[1]
+    for k in range(n_groups):
+        for s in range(n_src):
+            ps = psi_src[k, s]
+            for r in range(n_rec):
+                pr = psi_rec[k, r]
+                row = (k * n_src + s) * n_rec + r
+                lo = out_lo[row]
+                hi = out_hi[row]
+                acc = 0.0
+                for n in range(n_lo):
+                    v = ps[n] * pr[n]
+                    lo[n] = v
+                    acc += v * static_weight[n]
+                for n in range(n_lo, n_modes):
+                    v = ps[n] * pr[n]
+                    hi[n - n_lo] = v
+                    acc += v * static_weight[n]
+                low[row] = acc
 
 
 @njit(cache=True)

@@ -39,13 +39,19 @@ import numpy as np
 
 from ..model.modes import mode_indices, mode_shapes, wall_weights
 from ..model.walls import impedance_table
-from ._modal_kernels import fold_into, shapes_into, static_green_pairs_kernel, static_green_pairs_tabled
+from ._modal_kernels import (
+    fold_into,
+    pair_products_into,
+    shapes_into,
+    static_green_pairs_kernel,
+    static_green_pairs_tabled,
+)
 from .threads import blas_threads
 
 __all__ = ["modal_transfer", "modal_transfer_direct", "static_green", "DEFAULT_CUTOFF_FACTOR",
            "modal_weights", "modal_sum_block", "static_green_pairs", "static_green_block", "static_tail_term",
            "block_sizes", "BLOCK_BYTES", "PRECISIONS", "SINGLE_MIN_FLOP", "RESONANT_FACTOR",
-           "mode_shape_block", "resonant_count", "split_product"]
+           "mode_shape_block", "resonant_count", "split_product", "grouped_pair_sum"]
 
 #: The modal sum runs to ``DEFAULT_CUTOFF_FACTOR`` times the highest frequency asked for.
 DEFAULT_CUTOFF_FACTOR = 3.0
@@ -324,6 +330,49 @@ def split_product(a, b, n_double=0, single=True):
     res = np.asarray(a[:, :n_double], dtype=float) @ np.asarray(b[:n_double], dtype=float)
     res += hi
     return res
+
+
+def grouped_pair_sum(psi_src, psi_rec, weight, static_weight, *, precision="auto", n_double=0):
+    """The modal sum for every (source, receiver) pair within each of K groups.
+
+    ``H[k, s, r, f] = sum_n psi_src[k, s, n] psi_rec[k, r, n] W[n, f]`` as one real GEMM of
+    the pair products (formed in one compiled pass, split by precision as in
+    :func:`modal_sum_block`), and the pairs' static low-mode sums
+    ``sum_n psi_src psi_rec static_weight[n]`` (float64).
+
+    Parameters
+    ----------
+    psi_src : ndarray (K, S, N)
+    psi_rec : ndarray (K, R, N)
+    weight : ndarray, complex (N, F)
+    static_weight : ndarray (N,)
+    precision, n_double
+        As :func:`modal_sum_block`.
+
+    Returns
+    -------
+    h : ndarray, complex (K, S, R, F)
+    low : ndarray (K, S, R)
+    """
+    ps = np.ascontiguousarray(psi_src, dtype=float)
+    pr = np.ascontiguousarray(psi_rec, dtype=float)
+    n_groups, n_src, n_modes = ps.shape
+    n_rec, n_freq = pr.shape[1], weight.shape[1]
+    rows = n_groups * n_src * n_rec
+    flop = 4.0 * rows * n_modes * n_freq
+    single = _single(precision, flop)
+    n_lo = min(max(int(n_double), 0), n_modes) if single else n_modes
+    wr = np.ascontiguousarray(weight, dtype=complex).view(np.float64)  # (N, 2F)
+    out_lo = np.empty((rows, n_lo))
+    out_hi = np.empty((rows, n_modes - n_lo), dtype=np.float32 if single else np.float64)
+    low = np.empty(rows)
+    pair_products_into(ps, pr, np.ascontiguousarray(static_weight, dtype=float), out_lo, out_hi, low)
+    with blas_threads(flop):
+        h = out_lo @ wr[:n_lo]
+        if n_lo < n_modes:
+            h += out_hi @ wr[n_lo:].astype(out_hi.dtype)
+    return (h.view(np.complex128).reshape(n_groups, n_src, n_rec, n_freq),
+            low.reshape(n_groups, n_src, n_rec))
 
 
 def modal_sum_block(psi_src, psi_rec, weight, *, precision="double", n_double=0):

@@ -16,9 +16,11 @@ from roommodes.solvers import modal, threads
 from roommodes.solvers._modal_kernels import fold_into, static_green_pairs_kernel
 from roommodes.solvers.modal import (
     SINGLE_MIN_FLOP,
+    grouped_pair_sum,
     modal_sum_block,
     modal_transfer,
     modal_weights,
+    resonant_count,
     static_green,
     static_green_pairs,
 )
@@ -130,3 +132,21 @@ def test_blas_threads_one_thread_for_small_products_and_restored_after():
         assert all(lib.num_threads == 1 for lib in threads._controller().select(user_api="blas").lib_controllers)
     after = [lib.num_threads for lib in threads._controller().select(user_api="blas").lib_controllers]
     assert after == before
+
+
+@pytest.mark.parametrize("precision", ["double", "single"])
+def test_grouped_pair_sum_equals_the_block_product_of_each_group(precision):
+    zeta = impedance_from_absorption(np.full(6, 0.2))
+    f = np.geomspace(20, 200, 60)
+    idx, w, sw = modal_weights(SIZE, zeta, f, C)
+    ps = np.stack([mode_shapes(idx, SIZE, _points(2, 20 + g)) for g in range(5)])  # (5, 2, N)
+    pr = np.stack([mode_shapes(idx, SIZE, _points(9, 30 + g)) for g in range(5)])  # (5, 9, N)
+    n_double = resonant_count(idx, SIZE, C, f.max())
+    h, low = grouped_pair_sum(ps, pr, w, sw, precision=precision, n_double=n_double)
+    for g in range(5):
+        ref = modal_sum_block(ps[g], pr[g], w)
+        rms = np.sqrt(np.mean(np.abs(ref) ** 2, axis=-1, keepdims=True))
+        # double: round-off of IEEE float64; single: float32 rounding of the non-resonant modes
+        tol = 1e-12 if precision == "double" else 1e-6
+        assert np.max(np.abs(h[g] - ref) / rms) < tol
+        np.testing.assert_allclose(low[g], (ps[g] * sw) @ pr[g].T, rtol=1e-12, atol=1e-15)
