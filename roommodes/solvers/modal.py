@@ -671,13 +671,11 @@ def modal_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound
     hv = h.transpose(1, 0, 2) if swap else h
     # the static Green's function of every pair at once (rows x folds reals, less than the
     # result), so that its series does not depend on the blocks
-    gs_all = 4 * np.pi * static_green_block(size, rows, folds) if static_tail else None
+    with blas_threads(0):  # its small products on one thread
+        gs_all = 4 * np.pi * static_green_block(size, rows, folds) if static_tail else None
     n_modes = table.indices.shape[0]
     flop = 4.0 * rows.shape[0] * folds.shape[0] * f.size * n_modes
-    # every BLAS call of the call (the main product and the small ones of the weights) on the
-    # thread count measured best for the main product's size
-    with blas_threads(flop):
-        _blocks(table, size, rows, folds, hv, gs_all, z, k, _single(precision, flop))
+    _blocks(table, size, rows, folds, hv, gs_all, z, k, _single(precision, flop))
     return h
 
 
@@ -711,9 +709,11 @@ def _blocks(table, size, rows, folds, hv, gs_all, z, k, single):
                 fold_hi = np.empty((n_modes - n_lo, cols), dtype=np.float32 if single else np.float64)
                 fold_into(table.kn2, table.scale, sw, table.walls, beta[:, f0:f1], k[f0:f1], psi_fold,
                           fold_lo, fold_hi)
-                res = psi_lo @ fold_lo  # (rows, 2 R F) real
-                if psi_hi is not None:
-                    res += psi_hi @ fold_hi
+                # the thread count measured best for the block product's size
+                with blas_threads(2.0 * (r1 - r0) * n_modes * cols):
+                    res = psi_lo @ fold_lo  # (rows, 2 R F) real
+                    if psi_hi is not None:
+                        res += psi_hi @ fold_hi
                 out = hv[r0:r1, g0:g1, f0:f1]
                 out[...] = res.view(np.complex128).reshape(r1 - r0, g1 - g0, f1 - f0)
                 if gs is not None:

@@ -150,3 +150,15 @@ def test_grouped_pair_sum_equals_the_block_product_of_each_group(precision):
         tol = 1e-12 if precision == "double" else 1e-6
         assert np.max(np.abs(h[g] - ref) / rms) < tol
         np.testing.assert_allclose(low[g], (ps[g] * sw) @ pr[g].T, rtol=1e-12, atol=1e-15)
+
+
+def test_blas_threads_large_products_get_the_blas_own_count_inside_a_one_thread_context():
+    ctl = threads._controller()
+    if ctl is None:
+        pytest.skip("threadpoolctl not installed")
+    own = threads._own_threads()
+    with threads.blas_threads(0):
+        with threads.blas_threads(threads.MULTI_THREAD_MIN_FLOP):
+            counts = [lib.num_threads for lib in ctl.select(user_api="blas").lib_controllers]
+        assert all(n == own for n in counts)
+        assert all(lib.num_threads == 1 for lib in ctl.select(user_api="blas").lib_controllers)
