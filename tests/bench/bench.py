@@ -2,7 +2,8 @@
 
     python tests/bench/bench.py [--rounds 7] [--search-rounds 3] [--skip-memory] [--skip-exact-large]
 
-Prints figures; asserts nothing. Every timed figure is the median, over interleaved rounds,
+Prints figures; asserts nothing. Every timed figure is the median, over interleaved rounds
+(a 50 ms pause before each case, so that BLAS threads left spinning do not slow the next),
 of a ratio (or a fraction) formed inside one round, so that load drift on a shared machine
 hits both sides alike. In each round, in turn:
 
@@ -136,6 +137,9 @@ def main(argv=None):
     results = {}
     for rnd in range(args.rounds + 1):
         for key, fn_case in cases.items():
+            # a pause, so that BLAS threads still spinning after the previous case's
+            # multithreaded product do not slow this one down
+            time.sleep(0.05)
             dt, out = timed(fn_case)
             if rnd == 0:
                 results[key] = out
@@ -272,7 +276,7 @@ def thread_table(psi, fold, rounds=5):
     n = psi.shape[1]
     shapes = [(2000, n, 400), (600, n, 2200), (300, n, 2200), (4608, n, 220), (240, n, 220), (1, n, 418)]
     print(f"\nBLAS threads: time with one thread / time with the BLAS's own count ({os.cpu_count()} CPUs; "
-          f"< 1 means one thread is faster); the code uses one thread below {MULTI_THREAD_MIN_FLOP:.0e} flop")
+          f"< 1 means one thread is faster); the code uses one thread below {MULTI_THREAD_MIN_FLOP:.1e} flop")
     print(f"{'product (m x k x n)':24s} {'flop':>9s} {'float64':>8s} {'float32':>8s}")
     for m, k, nn in shapes:
         line = f"{f'{m} x {k} x {nn}':24s} {2.0 * m * k * nn:9.1e}"
