@@ -57,7 +57,16 @@ from ..model.placement import (
 from ..model.room import WALL_MARGIN_M, Layout, Speaker
 from ..model.speaker import speaker_response
 from ..solvers import DEFAULT_METHOD
-from ..solvers.modal import modal_sum_block, modal_weights, static_green_block, static_green_pairs
+from ..solvers.modal import (
+    grouped_pair_sum,
+    modal_sum_block,
+    modal_weights,
+    mode_shape_block,
+    resonant_count,
+    static_green_block,
+    static_green_pairs,
+)
+from ..solvers.threads import blas_threads, small_products
 from .levels import speaker_levels
 from .predict import usable_band
 
@@ -391,6 +400,8 @@ class _Scorer:
         self.offsets = area_offsets(area_m, area_points)
         self.seat_row = self.offsets.shape[0] // 2
         self.nmax = self.idx.max(axis=0)
+        # the modal products run in single precision but for these leading (resonant) modes
+        self.n_double = resonant_count(self.idx, self.size, room.speed_of_sound, f.max())
         #: real floating-point operations of the modal sum per (source, receiver) pair
         self.flop_per_pair = 4 * self.idx.shape[0] * f.size
         self.pair_evaluations = 0  # (source, listening point) pairs evaluated, for the benchmark
@@ -407,19 +418,16 @@ class _Scorer:
     def shapes(self, points):
         """Mode shapes (P, N); equal to :func:`roommodes.modes.mode_shapes`, computed from
         per-axis cosine tables (the shapes are products of one cosine per axis)."""
-        p = np.atleast_2d(points)
-        tabs = [np.cos(np.pi / self.size[i] * p[:, i:i + 1] * np.arange(self.nmax[i] + 1)) for i in range(3)]
-        out = tabs[0][:, self.idx[:, 0]] * tabs[1][:, self.idx[:, 1]]
-        out *= tabs[2][:, self.idx[:, 2]]
-        return out
+        return mode_shape_block(self.idx, self.size, points)
 
     def transfer_block(self, src, rec, psi_src=None):
         """(S, R, F) complex transfers, every source to every receiver (``psi_src``: the
         sources' mode shapes, when already known)."""
         psi_s = self.shapes(src) if psi_src is None else psi_src
         psi_r = self.shapes(rec)
-        h = modal_sum_block(psi_s, psi_r, self.weight)
-        tail = 4 * np.pi * static_green_block(self.size, src, rec) - psi_s @ (self.static_weight[:, None] * psi_r.T)
+        with blas_threads(4.0 * psi_s.shape[0] * psi_r.shape[0] * self.weight.size):
+            h = modal_sum_block(psi_s, psi_r, self.weight, precision="auto", n_double=self.n_double)
+            tail = 4 * np.pi * static_green_block(self.size, src, rec) - psi_s @ (self.static_weight[:, None] * psi_r.T)
         h += tail[:, :, None]
         self.pair_evaluations += src.shape[0] * rec.shape[0]
         return h
@@ -427,27 +435,26 @@ class _Scorer:
     def transfer_layouts(self, vecs, chunk=256):
         """(K, 2, A, F) complex transfers of both speakers to the area points of K layouts.
 
-        For each layout the products ``psi_n(speaker) psi_n(point)`` (2 A x N) are formed by
-        broadcasting and multiply the weights in one real GEMM; the same products give the
+        For each layout the products ``psi_n(speaker) psi_n(point)`` (2 A x N) are formed in
+        one compiled pass and multiply the weights in one real GEMM
+        (:func:`~roommodes.solvers.modal.grouped_pair_sum`); the same pass gives the
         low-mode part of the static tail.
         """
         v = np.atleast_2d(vecs)
         k = v.shape[0]
         a = self.offsets.shape[0]
         out = np.empty((k, 2, a, self.freq_hz.size), dtype=complex)
-        wr = self.weight.view(np.float64)
         for i0 in range(0, k, chunk):
             vi = v[i0:i0 + chunk]
             n = vi.shape[0]
             src = vi[:, :6].reshape(n, 2, 3)
             rec = np.clip(vi[:, None, 6:9] + self.offsets[None], WALL_MARGIN_M, self.size - WALL_MARGIN_M)
-            psi_s = self.shapes(src.reshape(-1, 3)).reshape(n, 2, 1, -1)
-            psi_r = self.shapes(rec.reshape(-1, 3)).reshape(n, 1, a, -1)
-            prod = (psi_s * psi_r).reshape(n * 2 * a, -1)  # (pairs, N)
-            h = (prod @ wr).view(np.complex128)
+            psi_s = self.shapes(src.reshape(-1, 3)).reshape(n, 2, -1)
+            psi_r = self.shapes(rec.reshape(-1, 3)).reshape(n, a, -1)
+            h, low = grouped_pair_sum(psi_s, psi_r, self.weight, self.static_weight, n_double=self.n_double)
             ss = np.broadcast_to(src[:, :, None, :], (n, 2, a, 3)).reshape(-1, 3)
             rr = np.broadcast_to(rec[:, None, :, :], (n, 2, a, 3)).reshape(-1, 3)
-            h += (4 * np.pi * static_green_pairs(self.size, ss, rr) - prod @ self.static_weight)[:, None]
+            h += (4 * np.pi * static_green_pairs(self.size, ss, rr).reshape(n, 2, a) - low)[..., None]
             out[i0:i0 + n] = h.reshape(n, 2, a, -1)
         self.pair_evaluations += 2 * a * k
         self.layout_evaluations += k
@@ -1114,6 +1121,7 @@ def _scored(name, layout, score, parts, i, in_region=True):
     return ScoredLayout(name, layout, float(score), {k: float(parts[k][i]) for k in PARTS}, in_region, figs)
 
 
+@small_products
 def search_layouts(room, space=None, weights=None, band_hz=None, top=5, points_per_octave=DEFAULT_POINTS_PER_OCTAVE,
                    progress=None, n_seeds=6, refine=True, method=DEFAULT_METHOD):
     """Search the allowed region for the best stereo-pair-and-seat layouts.
@@ -1282,6 +1290,7 @@ def close_call(best, other, weights, other_label="the file's layout"):
             f"from {other_label} buys nothing certain.")
 
 
+@small_products
 def score_layouts(room, layouts, weights=None, band_hz=None, area_m=(0.6, 0.6), area_points=(3, 3),
                   points_per_octave=DEFAULT_POINTS_PER_OCTAVE, robustness=True, method="modal", check_inside=True):
     """Score given layouts with the search's figure of merit (batched).
@@ -1341,6 +1350,7 @@ def _check_inside(room, scorer, vecs):
 
 
 # ------------------------------------------------------------------------------ figures' data
+@small_products
 def seat_score_map(room, layout, weights=None, band_hz=None, area_m=(0.6, 0.6), area_points=(3, 3), step_m=0.1,
                    points_per_octave=DEFAULT_POINTS_PER_OCTAVE, min_distance_m=0.5):
     """The score (without robustness) as the seat moves over the floor, speakers fixed.
@@ -1387,6 +1397,7 @@ def seat_score_map(room, layout, weights=None, band_hz=None, area_m=(0.6, 0.6), 
     return x, y, score.reshape(xx.shape)
 
 
+@small_products
 def front_distance_profile(room, layout, weights=None, band_hz=None, area_m=(0.6, 0.6), area_points=(3, 3),
                            distances_m=None, points_per_octave=DEFAULT_POINTS_PER_OCTAVE, space=None):
     """Score and parts as both speakers' distance from the front wall varies (rest fixed).
@@ -1425,6 +1436,7 @@ def front_distance_profile(room, layout, weights=None, band_hz=None, area_m=(0.6
     return d, scores, parts, allowed
 
 
+@small_products
 def layout_sweep(room, layout, space, weights=None, band_hz=None, points_per_octave=DEFAULT_POINTS_PER_OCTAVE,
                  step_m=0.02, reach_m=1.5):
     """Score and parts along :func:`sweep_direction` through a layout, with the allowed stretch.

@@ -1,8 +1,9 @@
 """Benchmark of the solvers against the code before the speed work and against plain BLAS.
 
-    python tests/bench/bench.py [--rounds 7] [--skip-memory] [--skip-exact-large]
+    python tests/bench/bench.py [--rounds 7] [--search-rounds 3] [--skip-memory] [--skip-exact-large]
 
-Prints figures; asserts nothing. Every timed figure is the median, over interleaved rounds,
+Prints figures; asserts nothing. Every timed figure is the median, over interleaved rounds
+(a 50 ms pause before each case, so that BLAS threads left spinning do not slow the next),
 of a ratio (or a fraction) formed inside one round, so that load drift on a shared machine
 hits both sides alike. In each round, in turn:
 
@@ -11,11 +12,20 @@ hits both sides alike. In each round, in turn:
 - ``plain``: the plain NumPy/BLAS modal product with modes to 600 Hz (mode shapes and
   folded weights given, C order, one ``@``), the issue's reference;
 - the modal solver, 2,000 sources x 1 receiver x 200 frequencies (20-200 Hz, so modes to
-  600 Hz), old code (``tests/bench/baseline``) and current code;
+  600 Hz), old code (``tests/bench/baseline``) and current code (default ``precision``,
+  which is single for this size, and ``precision="double"``);
 - one prediction, 1 x 1 x 209 (15-300 Hz at 48 per octave), exact (the default) and
   modal, old and current;
 - the image-source solver at alpha 0.3 (30-150 Hz), 1 receiver and 100 receivers, old
   and current; the per-image cost of the current code.
+
+Then the placement search on the demo room, in its own interleaved rounds (before: the
+scorer's product paths of tests/bench/baseline/scorer.py on the old modal module and the
+BLAS's own thread count; after: the current code), twice: as ``place`` runs it (the
+finalists re-scored by the default exact solver) and the modal scan alone
+(``method="modal"``); layouts/s counts every layout scored, perturbed copies included.
+Then a table of one BLAS thread against the BLAS's own count for the products the modal
+solver and the search run (the measurement behind roommodes.solvers.threads).
 
 Then, once (not in rounds): the exact solver's 2,000-source case, old and current, and the
 peak memory (tracemalloc, which sees NumPy's buffers) of 1 source x 100,000 receivers x 50
@@ -25,18 +35,23 @@ frequencies (15-300 Hz) for each solver that can run it.
 from __future__ import annotations
 
 import argparse
+import os
 import time
 import tracemalloc
+from unittest import mock
 
 import numpy as np
 from baseline import modal as old_modal
+from baseline import scorer as old_scorer
 
 import roommodes
+from roommodes.analysis import search
 from roommodes.model.modes import mode_indices, mode_shapes
 from roommodes.model.walls import impedance_from_absorption
 from roommodes.solvers.exact import exact_transfer
 from roommodes.solvers.images import image_count, image_source_transfer
 from roommodes.solvers.modal import modal_transfer
+from roommodes.solvers.threads import MULTI_THREAD_MIN_FLOP, blas_threads
 
 # The exact and image-source solvers have not changed since the baseline was taken, so their
 # "old" is the current module; copy a module into tests/bench/baseline/ before changing it.
@@ -72,6 +87,7 @@ def main(argv=None):
     ap.add_argument("--skip-memory", action="store_true", help="leave out the 100,000-receiver case")
     ap.add_argument("--skip-exact-large", action="store_true", help="leave out the exact 2,000-source case")
     ap.add_argument("--skip-old-memory", action="store_true", help="memory of the current code only")
+    ap.add_argument("--search-rounds", type=int, default=3, help="rounds of the placement search (0: leave it out)")
     args = ap.parse_args(argv)
 
     room = roommodes.load_room(roommodes.demo_room_path())
@@ -107,6 +123,7 @@ def main(argv=None):
         "plain": lambda: psi @ fold,
         "modal2000_old": lambda: old_modal.modal_transfer(size, z200, many, rec, f200, c),
         "modal2000_new": lambda: modal_transfer(size, z200, many, rec, f200, c),
+        "modal2000_f64": lambda: modal_transfer(size, z200, many, rec, f200, c, precision="double"),
         "pred_exact_old": lambda: old_exact.exact_transfer(size, z_pred, src, rec, f_pred, c),
         "pred_exact_new": lambda: exact_transfer(size, z_pred, src, rec, f_pred, c),
         "pred_modal_old": lambda: old_modal.modal_transfer(size, z_pred, src, rec, f_pred, c),
@@ -120,6 +137,9 @@ def main(argv=None):
     results = {}
     for rnd in range(args.rounds + 1):
         for key, fn_case in cases.items():
+            # a pause, so that BLAS threads still spinning after the previous case's
+            # multithreaded product do not slow this one down
+            time.sleep(0.05)
             dt, out = timed(fn_case)
             if rnd == 0:
                 results[key] = out
@@ -140,6 +160,7 @@ def main(argv=None):
           f"({gemm_fraction('plain'):.0%} of the GEMM rate)")
 
     d_modal = max_db(results["modal2000_new"], results["modal2000_old"])
+    d_f64 = max_db(results["modal2000_f64"], results["modal2000_old"])
     d_pred = max_db(results["pred_exact_new"], results["pred_exact_old"])
     d_pm = max_db(results["pred_modal_new"], results["pred_modal_old"])
     h1o, i1o = results["img1_old"]
@@ -155,6 +176,10 @@ def main(argv=None):
          ratio("modal2000_old", "plain"), ratio("modal2000_new", "plain"), d_modal),
         ("modal 2000x1x200, fraction of GEMM rate", ">= 0.70",
          gemm_fraction("modal2000_old"), gemm_fraction("modal2000_new"), None),
+        ("  same, precision=double / plain BLAS product", "",
+         ratio("modal2000_old", "plain"), ratio("modal2000_f64", "plain"), d_f64),
+        ("  same, precision=double, fraction of GEMM rate", "",
+         gemm_fraction("modal2000_old"), gemm_fraction("modal2000_f64"), None),
         ("one prediction, exact (default), ms", "<= 3",
          med["pred_exact_old"] * 1e3, med["pred_exact_new"] * 1e3, d_pred),
         ("one prediction, modal, ms", "(<= 3)",
@@ -175,6 +200,12 @@ def main(argv=None):
           f"image 100 receivers {ratio('img100_new', 'img100_old'):.3f}")
     print(f"image sum: {inn['images']:,} images over 100 pairs (order {inn['order']}; "
           f"{image_count(inn['order']):,} images at that order), {per_image_ns:.1f} ns per image and pair")
+
+    print(f"(load average at the end of the rounds: {os.getloadavg()[0]:.1f} on {os.cpu_count()} CPUs)")
+
+    if args.search_rounds > 0:
+        search_rows(room, args.search_rounds)
+    thread_table(psi, fold)
 
     if not args.skip_exact_large:
         t_old, h_old = timed(lambda: old_exact.exact_transfer(size, z200, many, rec, f200, c))
@@ -206,6 +237,60 @@ def main(argv=None):
             pk = peak_bytes(lambda n=new: n(size, z50, src, grid, f50, c))
             line += f"  after {pk / 1e9:5.2f} GB ({time.perf_counter() - t0:5.1f} s)"
             print(line)
+
+
+def search_rows(room, rounds):
+    """The placement search before and after, interleaved rounds, medians."""
+
+    def run(method, old):
+        fn = search.search_layouts.__wrapped__ if old else search.search_layouts  # old: BLAS's own threads
+        if old:
+            with mock.patch.multiple(search._Scorer, shapes=old_scorer.shapes, transfer_block=old_scorer.transfer_block,
+                                     transfer_layouts=old_scorer.transfer_layouts):
+                return timed(lambda: fn(room, method=method))
+        return timed(lambda: fn(room, method=method))
+
+    print(f"\nplacement search, demo room; {rounds} rounds after one warm-up round; medians over rounds")
+    print(f"{'target':46s} {'goal':>8s} {'before':>10s} {'after':>10s} {'after/before':>13s}  best score (dB)")
+    for method, label in (("exact", "search as place runs it, layouts/s"), ("modal", "search, modal scan only, layouts/s")):
+        t_old, t_new, res = [], [], {}
+        for rnd in range(rounds + 1):
+            for old in (True, False):
+                dt, r = run(method, old)
+                res[old] = r
+                if rnd:
+                    (t_old if old else t_new).append(dt)
+        n_old, n_new = res[True].n_layout_evaluations, res[False].n_layout_evaluations
+        rate_old = n_old / float(np.median(t_old))
+        rate_new = n_new / float(np.median(t_new))
+        speed = float(np.median(np.array(t_old) / n_old / (np.array(t_new) / n_new)))
+        print(f"{label:46s} {'>= 10000':>8s} {rate_old:10.0f} {rate_new:10.0f} {speed:13.3f}  "
+              f"{res[True].ranked[0].score:.4f} / {res[False].ranked[0].score:.4f}")
+        print(f"  {n_new} layouts scored, {float(np.median(t_new)):.2f} s (before {float(np.median(t_old)):.2f} s)")
+
+
+def thread_table(psi, fold, rounds=5):
+    """One BLAS thread against the BLAS's own count, for product shapes the modal solver and
+    the search run; interleaved rounds, medians of the per-round ratio."""
+    rng = np.random.default_rng(5)
+    n = psi.shape[1]
+    shapes = [(2000, n, 400), (600, n, 2200), (300, n, 2200), (4608, n, 220), (240, n, 220), (1, n, 418)]
+    print(f"\nBLAS threads: time with one thread / time with the BLAS's own count ({os.cpu_count()} CPUs; "
+          f"< 1 means one thread is faster); the code uses one thread below {MULTI_THREAD_MIN_FLOP:.1e} flop")
+    print(f"{'product (m x k x n)':24s} {'flop':>9s} {'float64':>8s} {'float32':>8s}")
+    for m, k, nn in shapes:
+        line = f"{f'{m} x {k} x {nn}':24s} {2.0 * m * k * nn:9.1e}"
+        for dt in (np.float64, np.float32):
+            a, b = rng.standard_normal((m, k)).astype(dt), rng.standard_normal((k, nn)).astype(dt)
+            r = []
+            for rnd in range(rounds + 1):
+                t_all, _ = timed(lambda a=a, b=b: a @ b)
+                with blas_threads(0):
+                    t_one, _ = timed(lambda a=a, b=b: a @ b)
+                if rnd:
+                    r.append(t_one / t_all)
+            line += f" {float(np.median(r)):8.2f}"
+        print(line)
 
 
 if __name__ == "__main__":

@@ -1,0 +1,334 @@
+"""numba kernels of the modal solver (nothing else lives here).
+
+- :func:`shapes_into`: mode shapes ``psi_n(p) = cos_x[p, i_n] cos_y[p, j_n] cos_z[p, l_n]``
+  from per-axis cosine tables, in one pass, straight into a C-order block of the dtype the
+  product wants (float64 or float32). Same products in the same order as
+  :func:`roommodes.model.modes.mode_shapes`, so the float64 values are equal to the last bit.
+- :func:`fold_into`: the modal weights and their fold with the mode shapes of the folded
+  points in one pass, written as real pairs straight into the product's operands.
+- :func:`static_green_pairs_kernel`: the static rigid-wall Green's function of the box for
+  many (source, receiver) pairs, each summed as :func:`roommodes.solvers.modal.static_green`
+  sums it (a closed-form 1-D Green's function along the axis of largest separation over the
+  2-D modes of the other two axes, cut where ``kappa |d| > _STATIC_DECAY``), but with each
+  pair's own cutoff and without temporaries.
+
+Their NumPy twins are :func:`roommodes.solvers.modal._shapes_numpy` and
+:func:`roommodes.solvers.modal.static_green`; tests/solvers/test_modal_kernels.py holds them equal.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numba import njit
+
+__all__ = ["shapes_into", "fold_into", "pair_products_into", "static_green_pairs_kernel", "static_green_pairs_tabled"]
+
+#: Exponent below which an image term of the 1-D Green's function is dropped (e^-40 = 4e-18).
+_NEGLIGIBLE_EXP = 40.0
+
+
+@njit(cache=True)
+def shapes_into(cos_x, cos_y, cos_z, ix, iy, iz, out):
+    """``out[p, n] = cos_x[p, ix[n]] * cos_y[p, iy[n]] * cos_z[p, iz[n]]``.
+
+    Parameters
+    ----------
+    cos_x, cos_y, cos_z : float64 (P, n_a)
+        ``cos(k_a p_a)`` for the per-axis wavenumbers ``k_a = i pi / L_a``.
+    ix, iy, iz : int64 (N,)
+        Mode indices per axis.
+    out : float64 or float32 (P, N), C order
+        Written in place (products formed in float64, rounded once when float32).
+    """
+    n_pts, n_modes = out.shape
+    for p in range(n_pts):
+        cx = cos_x[p]
+        cy = cos_y[p]
+        cz = cos_z[p]
+        row = out[p]
+        for n in range(n_modes):
+            row[n] = cx[ix[n]] * cy[iy[n]] * cz[iz[n]]
+
+
+@njit(cache=True)
+def fold_into(kn2, scale, static_weight, walls, beta, k, psi_fold, out_lo, out_hi):
+    """Folded modal weights ``B[n, r, f] = psi_fold[r, n] (W[n, f] - static_weight[n])``.
+
+    ``W[n, f] = scale[n] / (k_n^2 - k_f^2 + j k_f b_n(f))`` with the damping
+    ``b_n(f) = sum_w walls[n, w] beta[w, f]`` (the formula of :func:`_weights
+    <roommodes.solvers.modal._weights>`, complex division written out), stored as real
+    pairs: row ``n`` of ``out_lo`` for ``n < n_lo`` and row ``n - n_lo`` of ``out_hi``
+    otherwise, columns ``2 (r F + f)`` (real) and ``2 (r F + f) + 1`` (imaginary).
+
+    Parameters
+    ----------
+    kn2, scale, static_weight : float64 (N,)
+        ``k_n^2``, ``4 pi eps_n / V`` and the static weights (zeros for none).
+    walls : float64 (N, 6)
+    beta : float64 (6, F)
+        Wall admittances ``1 / zeta``.
+    k : float64 (F,)
+        Wavenumbers, rad/m.
+    psi_fold : float64 (R, N)
+    out_lo : float64 (n_lo, 2 R F)
+    out_hi : float64 or float32 (N - n_lo, 2 R F)
+        Written in place (``out_hi`` rounded once when float32).
+    """
+    n_modes = kn2.shape[0]
+    n_lo = out_lo.shape[0]
+    n_freq = k.shape[0]
+    n_walls = walls.shape[1]
+    wr = np.empty(n_freq)
+    wi = np.empty(n_freq)
+    for n in range(n_modes):
+        for f in range(n_freq):
+            damp = 0.0
+            for w in range(n_walls):
+                damp += walls[n, w] * beta[w, f]
+            kf = k[f]
+            re = kn2[n] - kf * kf
+            im = damp * kf
+            den = re * re + im * im
+            wr[f] = scale[n] * re / den - static_weight[n]
+            wi[f] = -scale[n] * im / den
+        if n < n_lo:
+            _fold_row(out_lo[n], psi_fold, n, wr, wi)
+        else:
+            _fold_row(out_hi[n - n_lo], psi_fold, n, wr, wi)
+
+
+@njit(cache=True, inline="always")
+def _fold_row(row, psi_fold, n, wr, wi):
+    """``row[2 (r F + f) + (0, 1)] = psi_fold[r, n] (wr[f], wi[f])``."""
+    n_freq = wr.shape[0]
+    for r in range(psi_fold.shape[0]):
+        ps = psi_fold[r, n]
+        base = 2 * r * n_freq
+        for f in range(n_freq):
+            row[base + 2 * f] = ps * wr[f]
+            row[base + 2 * f + 1] = ps * wi[f]
+
+
+@njit(cache=True)
+def pair_products_into(psi_src, psi_rec, static_weight, out_lo, out_hi, low):
+    """Products of mode shapes for every (source, receiver) pair of each group.
+
+    Row ``(k S + s) R + r`` holds ``psi_src[k, s, n] psi_rec[k, r, n]``: modes
+    ``n < n_lo`` in ``out_lo`` (float64), the others in ``out_hi`` (float64 or float32,
+    rounded once); ``low`` gets the row's static low-mode sum
+    ``sum_n psi_src psi_rec static_weight[n]`` in float64.
+
+    Parameters
+    ----------
+    psi_src : float64 (K, S, N)
+    psi_rec : float64 (K, R, N)
+    static_weight : float64 (N,)
+    out_lo : float64 (K S R, n_lo)
+    out_hi : float64 or float32 (K S R, N - n_lo)
+    low : float64 (K S R,)
+    """
+    n_groups, n_src, n_modes = psi_src.shape
+    n_rec = psi_rec.shape[1]
+    n_lo = out_lo.shape[1]
+    for k in range(n_groups):
+        for s in range(n_src):
+            ps = psi_src[k, s]
+            for r in range(n_rec):
+                pr = psi_rec[k, r]
+                row = (k * n_src + s) * n_rec + r
+                lo = out_lo[row]
+                hi = out_hi[row]
+                acc = 0.0
+                for n in range(n_lo):
+                    v = ps[n] * pr[n]
+                    lo[n] = v
+                    acc += v * static_weight[n]
+                for n in range(n_lo, n_modes):
+                    v = ps[n] * pr[n]
+                    hi[n - n_lo] = v
+                    acc += v * static_weight[n]
+                low[row] = acc
+
+
+@njit(cache=True)
+def static_green_pairs_kernel(size, src, rec, decay, max_index, out):
+    """``out[i] = static_green(size, src[i], rec[i])`` for every pair ``i``.
+
+    Parameters
+    ----------
+    size : float64 (3,)
+        Room dimensions, m.
+    src, rec : float64 (P, 3)
+        Paired points, m.
+    decay : float
+        Terms are kept while ``kappa <= decay / |d_a|`` (``_STATIC_DECAY``).
+    max_index : int
+        Cap on the 2-D mode index per axis (``_STATIC_MAX_INDEX``).
+    out : float64 (P,)
+        Written in place.
+
+    Notes
+    -----
+    The 1-D Neumann Green's function of ``-d2/dx2 + kappa^2`` on ``[0, L]`` is
+    ``(e^{-kappa(h-l)} + e^{-kappa(2L-l-h)} + e^{-kappa(l+h)} + e^{-kappa(2L-h+l)})
+    / (2 kappa (1 - e^{-2 kappa L}))`` for ``l <= h`` (the source and its three images in
+    the two walls of the axis); an image term whose exponent exceeds 40 is left out (it is
+    below 4e-18 of the term, far below the series' own cutoff of ``e^-decay``).
+    """
+    n_pairs = src.shape[0]
+    pi = math.pi
+    cos_c = np.empty(max_index + 1)
+    for i in range(n_pairs):
+        d0 = abs(src[i, 0] - rec[i, 0])
+        d1 = abs(src[i, 1] - rec[i, 1])
+        d2 = abs(src[i, 2] - rec[i, 2])
+        # the axis of largest separation (first one on ties, as np.argmax)
+        a = 0
+        da = d0
+        if d1 > da:
+            a = 1
+            da = d1
+        if d2 > da:
+            a = 2
+            da = d2
+        b = 1 if a == 0 else 0
+        c = 1 if a == 2 else 2
+        sep = max(da, 1e-3)
+        kmax = decay / sep
+        lb = size[b]
+        lc = size[c]
+        la = size[a]
+        mb = min(int(kmax * lb / pi) + 1, max_index)
+        mc = min(int(kmax * lc / pi) + 1, max_index)
+        lo = min(src[i, a], rec[i, a])
+        hi = max(src[i, a], rec[i, a])
+        e1 = hi - lo
+        e2 = 2 * la - lo - hi
+        e3 = lo + hi
+        e4 = 2 * la - hi + lo
+        sb, rb, sc, rc = src[i, b], rec[i, b], src[i, c], rec[i, c]
+        total = 0.0
+        kmax2 = kmax * kmax
+        for p in range(mc + 1):
+            kc = p * pi / lc
+            if kc * kc > kmax2:
+                break
+            cos_c[p] = math.cos(kc * sc) * math.cos(kc * rc)
+        for m in range(mb + 1):
+            kb = m * pi / lb
+            kb2 = kb * kb
+            if kb2 > kmax2:
+                break
+            cb = math.cos(kb * sb) * math.cos(kb * rb)
+            wb = 2.0 if m > 0 else 1.0
+            # p up to the disc kappa <= kmax (and the cap)
+            for p in range(mc + 1):
+                kc = p * pi / lc
+                k2 = kb2 + kc * kc
+                if k2 > kmax2:
+                    break
+                w = wb * (2.0 if p > 0 else 1.0) / (lb * lc)
+                shape = cb * cos_c[p]
+                if k2 == 0.0:
+                    g = la / 3.0 - hi + (lo * lo + hi * hi) / (2.0 * la)
+                else:
+                    kap = math.sqrt(k2)
+                    num = math.exp(-kap * e1)
+                    if kap * e2 < _NEGLIGIBLE_EXP:
+                        num += math.exp(-kap * e2)
+                    if kap * e3 < _NEGLIGIBLE_EXP:
+                        num += math.exp(-kap * e3)
+                    if kap * e4 < _NEGLIGIBLE_EXP:
+                        num += math.exp(-kap * e4)
+                    den = 2.0 * kap
+                    if 2.0 * kap * la < _NEGLIGIBLE_EXP:
+                        den *= 1.0 - math.exp(-2.0 * kap * la)
+                    g = num / den
+                total += w * shape * g
+        out[i] = total
+
+
+@njit(cache=True)
+def static_green_pairs_tabled(size, src, rec, decay, kappa, weight_den, qexp, out):
+    """:func:`static_green_pairs_kernel` with the per-term constants read from tables.
+
+    Parameters
+    ----------
+    size, src, rec, decay, out
+        As :func:`static_green_pairs_kernel`.
+    kappa, weight_den, qexp : float64 (3, M + 1, M + 1)
+        For the axis ``a`` of the 1-D sum and the 2-D indices ``(m, p)`` of the other two
+        axes (in increasing order): ``kappa``, ``w / (2 kappa (1 - e^{-2 kappa L_a}))`` and
+        ``e^{-2 kappa L_a}`` (entry (0, 0) unused). Every pair must need ``m, p <= M``.
+
+    Notes
+    -----
+    With ``X = e^{-kappa (h - l)}``, ``Y = e^{-kappa (l + h)}`` and ``Q = e^{-2 kappa L}``
+    the four image terms are ``X + Y + Q / Y + Q / X``: two exponentials per term instead
+    of four, no square root and no division by the denominator.
+    """
+    n_pairs = src.shape[0]
+    pi = math.pi
+    n_tab = kappa.shape[1]
+    cos_c = np.empty(n_tab)
+    for i in range(n_pairs):
+        d0 = abs(src[i, 0] - rec[i, 0])
+        d1 = abs(src[i, 1] - rec[i, 1])
+        d2 = abs(src[i, 2] - rec[i, 2])
+        a = 0
+        da = d0
+        if d1 > da:
+            a = 1
+            da = d1
+        if d2 > da:
+            a = 2
+            da = d2
+        b = 1 if a == 0 else 0
+        c = 1 if a == 2 else 2
+        sep = max(da, 1e-3)
+        kmax = decay / sep
+        lb = size[b]
+        lc = size[c]
+        la = size[a]
+        lo = min(src[i, a], rec[i, a])
+        hi = max(src[i, a], rec[i, a])
+        e1 = hi - lo
+        e2 = 2 * la - lo - hi
+        e3 = lo + hi
+        sb, rb, sc, rc = src[i, b], rec[i, b], src[i, c], rec[i, c]
+        kap_t = kappa[a]
+        wd_t = weight_den[a]
+        q_t = qexp[a]
+        mc = min(int(kmax * lc / pi) + 1, n_tab - 1)
+        for p in range(mc + 1):
+            kc = p * pi / lc
+            cos_c[p] = math.cos(kc * sc) * math.cos(kc * rc)
+        # the (0, 0) term: zero-mean 1-D Green's function, weight 1 / (lb lc)
+        total = (la / 3.0 - hi + (lo * lo + hi * hi) / (2.0 * la)) / (lb * lc)
+        mb = min(int(kmax * lb / pi) + 1, n_tab - 1)
+        for m in range(mb + 1):
+            if kap_t[m, 0] > kmax:
+                break
+            kb = m * pi / lb
+            cb = math.cos(kb * sb) * math.cos(kb * rb)
+            row_k = kap_t[m]
+            row_w = wd_t[m]
+            row_q = q_t[m]
+            acc = 0.0
+            for p in range(1 if m == 0 else 0, mc + 1):
+                kap = row_k[p]
+                if kap > kmax:
+                    break
+                x = math.exp(-kap * e1)
+                q = row_q[p]
+                num = x + q / x
+                if kap * e3 < _NEGLIGIBLE_EXP:
+                    y = math.exp(-kap * e3)
+                    num += y + q / y
+                elif kap * e2 < _NEGLIGIBLE_EXP:
+                    num += math.exp(-kap * e2)
+                acc += cos_c[p] * row_w[p] * num
+            total += cb * acc
+        out[i] = total
