@@ -4,12 +4,15 @@ A study (:class:`roommodes.model.study.StudySpec`) is a grid of room sizes times
 constructions. Each candidate is scored by :func:`evaluate_candidate`, a pure function of the
 spec and the candidate's index:
 
-1. the room: the candidate's size and materials, the study's air and uncertainty;
+1. the room: the candidate's size and materials (surfaces made as a room file makes them, so
+   each library material's own absorption range counts as it does there), the study's air
+   and uncertainty;
 2. the band: from the study's low limit to the room's own Schroeder frequency (its modal
    region), or a fixed band;
 3. the layout: the "triangle" rule (the same listening triangle, in metres, in every room;
    seat at a fraction of the length), a standard preset, the best preset, or a placement
-   search in this room (``placement = "search"``, a bounded budget);
+   search in this room (``placement = "search"``, a bounded budget), which also judges the
+   rule's layout and keeps whichever scores better, so it never scores worse than the rule;
 4. the levels of both speakers at a grid over the seat area (the same size in every room) in
    ``samples`` rooms drawn from the uncertainty
    (:func:`roommodes.analysis.uncertainty.ensemble_levels`), seeded from ``(seed, index)``,

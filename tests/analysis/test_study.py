@@ -23,6 +23,9 @@ from roommodes.model.study import StudySpec
 SMALL = StudySpec((3.8, 5.2), (2.9, 3.9), (2.4, 2.8), 2, seat_area_points=(2, 1), points_per_octave=6,
                   band_hz=(30.0, 100.0), samples=3, seed=5)
 TWO_WALLS = StudySpec(**{**SMALL.__dict__, "walls": ("plasterboard-on-studs", "concrete-wall")})
+#: The fast tier's study: SMALL over a narrower band (fewer filters for each room's EQ to fit,
+#: the bulk of a candidate's cost); the same checks run on SMALL in the slow tier.
+NARROW = StudySpec(**{**SMALL.__dict__, "band_hz": (30.0, 60.0)})
 
 
 def _on_cluster(spec, workers):
@@ -31,15 +34,16 @@ def _on_cluster(spec, workers):
         return run_study(spec, client)
 
 
-def test_one_and_two_workers_give_identical_candidates():
-    one = _on_cluster(SMALL, 1)
-    two = _on_cluster(SMALL, 2)
+@pytest.mark.parametrize("spec", [NARROW, pytest.param(SMALL, marks=pytest.mark.slow)], ids=["narrow", "small"])
+def test_one_and_two_workers_give_identical_candidates(spec):
+    one = _on_cluster(spec, 1)
+    two = _on_cluster(spec, 2)
     assert one.engine["workers"] == 1 and two.engine["workers"] == 2
-    assert len(one.candidates) == SMALL.n_candidates == 8
+    assert len(one.candidates) == spec.n_candidates == 8
     assert [c.to_dict() for c in one.candidates] == [c.to_dict() for c in two.candidates]
     # and the same as scoring a candidate here
     best = one.candidates[0]
-    assert evaluate_candidate(best.index, SMALL).to_dict() == best.to_dict()
+    assert evaluate_candidate(best.index, spec).to_dict() == best.to_dict()
     scores = [c.score_db for c in one.candidates]
     assert scores == sorted(scores)
     for c in one.candidates:
@@ -60,7 +64,7 @@ def test_candidate_grid_and_seeds():
 
 def test_no_uncertainty_collapses_the_ensemble():
     spec = StudySpec((4.0, 4.0), (3.2, 3.2), (2.5, 2.5), 1, seat_area_points=(2, 1), points_per_octave=6,
-                     band_hz=(30.0, 120.0), samples=3, uncertainty=Uncertainty(0.0, 0.0, 0.0, 0.0))
+                     band_hz=(30.0, 80.0), samples=3, uncertainty=Uncertainty(0.0, 0.0, 0.0, 0.0))
     c = evaluate_candidate(0, spec)
     assert c.score_p10_db == pytest.approx(c.score_db, abs=1e-9)
     assert c.score_p90_db == pytest.approx(c.score_db, abs=1e-9)
@@ -70,7 +74,7 @@ def test_no_uncertainty_collapses_the_ensemble():
 
 def test_layout_that_does_not_fit_is_ranked_last_with_the_reason():
     spec = StudySpec((1.0, 4.0), (3.2, 3.2), (2.5, 2.5), 2, layout="mid-room", seat_area_points=(1, 1),
-                     points_per_octave=6, band_hz=(30.0, 120.0), samples=2)
+                     points_per_octave=6, band_hz=(30.0, 60.0), samples=2)
     res = run_study(spec)
     assert res.candidates[0].feasible and not res.candidates[-1].feasible
     assert "too short" in res.candidates[-1].note
@@ -86,7 +90,7 @@ def _score(size, samples=4):
     return evaluate_candidate(0, StudySpec(*[(v, v) for v in size], 1, samples=samples)).score_db
 
 
-@pytest.mark.parametrize("volume_m3", [45.0, 80.0])
+@pytest.mark.parametrize("volume_m3", [45.0, pytest.param(80.0, marks=pytest.mark.slow)])
 def test_a_cube_scores_worse_than_good_proportions_of_the_same_volume(volume_m3):
     # good: 1 : 1.4 : 1.9 (Louden 1971, Acustica 24:101, his best ratio; from memory) and
     # 1 : 1.28 : 1.54 (Sepmeyer 1965, J. SMPTE 74:291; from memory); a cube's three axial
@@ -136,9 +140,10 @@ def test_band_tops_at_each_rooms_schroeder_frequency():
     assert candidate_band(fixed, candidate_room(fixed, 0)) == (25.0, 160.0)
 
 
-def test_best_preset_is_the_best_scoring_preset_without_uncertainty():
+@pytest.mark.parametrize("band_hz", [(30.0, 60.0), pytest.param((30.0, "schroeder"), marks=pytest.mark.slow)])
+def test_best_preset_is_the_best_scoring_preset_without_uncertainty(band_hz):
     # with no uncertainty every drawn room is the nominal one, on which best-preset chooses
-    base = StudySpec((4.5, 4.5), (3.4, 3.4), (2.5, 2.5), 1, samples=2, points_per_octave=6,
+    base = StudySpec((4.5, 4.5), (3.4, 3.4), (2.5, 2.5), 1, samples=2, points_per_octave=6, band_hz=band_hz,
                      uncertainty=Uncertainty(0.0, 0.0, 0.0, 0.0))
     best = evaluate_candidate(0, StudySpec(**{**base.__dict__, "layout": "best-preset"}))
     each = {name: evaluate_candidate(0, StudySpec(**{**base.__dict__, "layout": name})).score_db
@@ -165,17 +170,19 @@ def test_search_placement_is_the_same_on_one_and_two_workers():
             assert c.seat_m != rule.seat_m or c.speakers_m != rule.speakers_m
 
 
-def _cheap_search(size):
+def _cheap_search(size, band_hz=(30.0, 100.0)):
     return StudySpec(*[(v, v) for v in size], 1, placement="search", search_step_m=0.5, seat_area_points=(1, 1),
-                     points_per_octave=6, band_hz=(30.0, 100.0), samples=2, seed=3)
+                     points_per_octave=6, band_hz=band_hz, samples=2, seed=3)
 
 
-def test_search_keeps_the_rule_layout_where_its_own_layouts_score_worse(monkeypatch):
-    # a room where the search's own best layouts score worse than the triangle rule by the
+@pytest.mark.parametrize("size, band_hz", [((6.0, 4.2, 2.7), (30.0, 60.0)),
+                                           pytest.param((5.0, 3.6, 2.6), (30.0, 100.0), marks=pytest.mark.slow)])
+def test_search_keeps_the_rule_layout_where_its_own_layouts_score_worse(monkeypatch, size, band_hz):
+    # rooms where the search's own best layouts score worse than the triangle rule by the
     # study's score (found by trying a few rooms; the property is the project's own, docs/study.md)
     import roommodes.analysis.study as study
 
-    spec = _cheap_search((5.0, 3.6, 2.6))
+    spec = _cheap_search(size, band_hz)
     rule = evaluate_candidate(0, StudySpec(**{**spec.__dict__, "placement": "rule"}))
 
     def no_rule(*args, **kwargs):
