@@ -4,12 +4,15 @@ A study (:class:`roommodes.model.study.StudySpec`) is a grid of room sizes times
 constructions. Each candidate is scored by :func:`evaluate_candidate`, a pure function of the
 spec and the candidate's index:
 
-1. the room: the candidate's size and materials, the study's air and uncertainty;
+1. the room: the candidate's size and materials (surfaces made as a room file makes them, so
+   each library material's own absorption range counts as it does there), the study's air
+   and uncertainty;
 2. the band: from the study's low limit to the room's own Schroeder frequency (its modal
    region), or a fixed band;
 3. the layout: the "triangle" rule (the same listening triangle, in metres, in every room;
    seat at a fraction of the length), a standard preset, the best preset, or a placement
-   search in this room (``placement = "search"``, a bounded budget);
+   search in this room (``placement = "search"``, a bounded budget), which also judges the
+   rule's layout and keeps whichever scores better, so it never scores worse than the rule;
 4. the levels of both speakers at a grid over the seat area (the same size in every room) in
    ``samples`` rooms drawn from the uncertainty
    (:func:`roommodes.analysis.uncertainty.ensemble_levels`), seeded from ``(seed, index)``,
@@ -38,7 +41,6 @@ import numpy as np
 from dask.distributed import as_completed
 
 from ..dsp.response import log_frequencies, smooth_db
-from ..model.materials import get_material
 from ..model.placement import PRESETS, preset_layout, search_space, triangle_layout
 from ..model.room import WALL_MARGIN_M, WALLS, Room, Surface
 from ..model.study import SCHROEDER
@@ -72,18 +74,13 @@ _SEARCH_KEEP = 3
 _SEARCH_METHOD = "modal"
 
 
-def _surface(name, material):
-    m = get_material(material)
-    return Surface(name, tuple(m.absorption), tuple(m.bands_hz), m.name, tuple(m.extrapolated_hz))
-
-
 def candidate_room(spec, index):
     """The nominal room of candidate ``index`` (sizes vary fastest, then wall materials)."""
     sizes = spec.sizes_m()
     wi, si = divmod(int(index), len(sizes))
     size = tuple(float(v) for v in sizes[si])
     mats = {"floor": spec.floor, "ceiling": spec.ceiling}
-    surfaces = tuple(_surface(w, mats.get(w, spec.walls[wi])) for w in WALLS)
+    surfaces = tuple(Surface.from_material(w, mats.get(w, spec.walls[wi])) for w in WALLS)
     name = f"{size[0]:g} x {size[1]:g} x {size[2]:g} m, {spec.walls[wi]}"
     return Room(name, size, surfaces, spec.temperature_c, uncertainty=spec.uncertainty)
 
@@ -166,32 +163,16 @@ def _nominal_score(room, layout, f, spec, band, method):
     return float(r + s)
 
 
-def search_layout(room, spec, band, f=None, method=DEFAULT_METHOD):
-    """The layout a placement search in ``room`` finds, with the study's bounded budget.
+def rule_layout(room, spec, f, method=DEFAULT_METHOD, band=None):
+    """The study's rule layout in ``room`` (``spec.layout``): the triangle rule, a named preset,
+    or the best-scoring preset on the nominal room.
 
-    The search's own constraints default as in a room file without ``[search]``
-    (docs/placement.md), its listening area is the study's seat area, its coarse step
-    ``spec.search_step_m``, its refinement on only with ``spec.search_refine``; it ranks with
-    its own score (flatness, mismatch, area, boost, robustness) over the candidate's band.
-    Of its best distinct layouts (up to three), the one with the best study score on the
-    nominal room is kept (ties: the search's order). Deterministic: no random draws.
+    Raises
+    ------
+    ValueError
+        When the rule's layout does not fit the room.
     """
-    table = {"step_m": float(spec.search_step_m), "area_m": list(spec.seat_area_m),
-             "area_points": list(spec.seat_area_points)}
-    res = search_layouts(room, search_space(room, table), band_hz=band, top=_SEARCH_KEEP, n_seeds=_SEARCH_SEEDS,
-                         refine=bool(spec.search_refine), method=_SEARCH_METHOD)
-    f = study_frequencies(spec, band) if f is None else f
-    scores = [_nominal_score(room, r.layout, f, spec, band, method) for r in res.ranked]
-    lay = res.ranked[int(np.argmin(scores))].layout
-    return type(lay)(lay.speakers, lay.seat_m, "search")
-
-
-def choose_layout(room, spec, f, method=DEFAULT_METHOD, band=None):
-    """The study's layout in ``room``: a placement search, the triangle rule, a named preset,
-    or the best-scoring preset."""
     band = spec.band_hz if band is None else band
-    if spec.placement == "search":
-        return search_layout(room, spec, band, f, method)
     if spec.layout == "triangle":
         return triangle_layout(room, spec.seat_fraction, spec.spacing_m)
     if spec.layout != "best-preset":
@@ -210,6 +191,51 @@ def choose_layout(room, spec, f, method=DEFAULT_METHOD, band=None):
     return best
 
 
+def _search_choice(room, spec, band, f, method):
+    """(chosen, rule): the search mode's pick on the nominal room and the rule's layout (None
+    when it does not fit)."""
+    table = {"step_m": float(spec.search_step_m), "area_m": list(spec.seat_area_m),
+             "area_points": list(spec.seat_area_points)}
+    res = search_layouts(room, search_space(room, table), band_hz=band, top=_SEARCH_KEEP, n_seeds=_SEARCH_SEEDS,
+                         refine=bool(spec.search_refine), method=_SEARCH_METHOD)
+    options = [type(r.layout)(r.layout.speakers, r.layout.seat_m, "search") for r in res.ranked]
+    try:
+        rule = rule_layout(room, spec, f, method, band)
+    except ValueError:
+        rule = None
+    if rule is not None:
+        options.append(rule)
+    scores = [_nominal_score(room, lay, f, spec, band, method) for lay in options]
+    return options[int(np.argmin(scores))], rule
+
+
+def search_layout(room, spec, band, f=None, method=DEFAULT_METHOD):
+    """The layout of ``placement = "search"`` in ``room``, on the nominal room.
+
+    A placement search with the study's bounded budget: its own constraints default as in a
+    room file without ``[search]`` (docs/placement.md), its listening area is the study's seat
+    area, its coarse step ``spec.search_step_m``, its refinement on only with
+    ``spec.search_refine``; it ranks with its own score (flatness, mismatch, area, boost,
+    robustness) over the candidate's band. Its best distinct layouts (up to three, named
+    "search") and the study's rule layout (:func:`rule_layout`, under its own name, when it
+    fits) are judged by the study's score on the nominal room; the best is returned (ties: the
+    search's order, then the rule). Deterministic: no random draws.
+    (:func:`evaluate_candidate` then also compares a chosen search layout with the rule's over
+    the drawn rooms.)
+    """
+    f = study_frequencies(spec, band) if f is None else f
+    return _search_choice(room, spec, band, f, method)[0]
+
+
+def choose_layout(room, spec, f, method=DEFAULT_METHOD, band=None):
+    """The study's layout in ``room`` on the nominal room: :func:`search_layout` with
+    ``placement = "search"``, else :func:`rule_layout`."""
+    band = spec.band_hz if band is None else band
+    if spec.placement == "search":
+        return search_layout(room, spec, band, f, method)
+    return rule_layout(room, spec, f, method, band)
+
+
 @dataclass(frozen=True)
 class CandidateResult:
     """One candidate room's score.
@@ -222,7 +248,8 @@ class CandidateResult:
     walls : str
         Wall material.
     layout : str
-        The layout used (the rule's name, a preset, or "search").
+        The layout used: the rule's name (triangle or a preset), or "search" (with
+        ``placement = "search"``, the rule's name when the rule's layout scored better).
     band_hz : (float, float)
         The band scored, Hz.
     seat_m : tuple of float or None
@@ -275,8 +302,23 @@ class CandidateResult:
                 "speakers_m": None if self.speakers_m is None else [list(p) for p in self.speakers_m]}
 
 
+def _ensemble_score(room, layout, f, spec, band, seed, method):
+    """(score, response, spread) arrays over the drawn rooms of ``layout`` after the room's EQ."""
+    pts = seat_area(room, layout.seat_m, spec.seat_area_m, spec.seat_area_points)
+    lv = ensemble_levels(room, f, layout, pts, n_samples=spec.samples, seed=seed, method=method)
+    corr = room_eq_db(f, np.median(_area_db(lv), axis=0), band)
+    response, spread = score_levels(f, lv + corr[None, :, None, :], band)
+    return response + spread, response, spread
+
+
 def evaluate_candidate(index, spec, method=DEFAULT_METHOD):
-    """Score candidate ``index`` of ``spec`` (pure: the same inputs give the same result)."""
+    """Score candidate ``index`` of ``spec`` (pure: the same inputs give the same result).
+
+    With ``placement = "search"``, when the nominal room's pick is one of the search's layouts
+    and the rule's layout fits, both are scored over the drawn rooms (the same draws) and the
+    lower median score is kept (ties: the search's): the search never scores worse than the
+    rule on the same candidate.
+    """
     room = candidate_room(spec, index)
     seed = candidate_seed(spec, index)
     walls = spec.walls[index // len(spec.sizes_m())]
@@ -284,16 +326,20 @@ def evaluate_candidate(index, spec, method=DEFAULT_METHOD):
     band = candidate_band(spec, room)
     f = study_frequencies(spec, band)
     nan = float("nan")
+    rule = None
     try:
-        layout = choose_layout(room, spec, f, method, band)
+        if spec.placement == "search":
+            layout, rule = _search_choice(room, spec, band, f, method)
+        else:
+            layout = rule_layout(room, spec, f, method, band)
     except ValueError as exc:
         return CandidateResult(int(index), room.size_m, walls, "", nan, nan, nan, nan, nan, criteria, seed, str(exc),
                                band)
-    pts = seat_area(room, layout.seat_m, spec.seat_area_m, spec.seat_area_points)
-    lv = ensemble_levels(room, f, layout, pts, n_samples=spec.samples, seed=seed, method=method)
-    corr = room_eq_db(f, np.median(_area_db(lv), axis=0), band)
-    response, spread = score_levels(f, lv + corr[None, :, None, :], band)
-    score = response + spread
+    score, response, spread = _ensemble_score(room, layout, f, spec, band, seed, method)
+    if rule is not None and layout is not rule:
+        other = _ensemble_score(room, rule, f, spec, band, seed, method)
+        if np.median(other[0]) < np.median(score):
+            layout, (score, response, spread) = rule, other
     p10, p50, p90 = np.percentile(score, (10, 50, 90))
     speakers = tuple(tuple(round(float(v), 4) for v in s.position_m) for s in layout.speakers[:2])
     return CandidateResult(int(index), room.size_m, walls, layout.name, float(p50), float(p10), float(p90),

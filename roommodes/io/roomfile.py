@@ -161,11 +161,9 @@ def _parse_surface(ctx, name, value):
             ctx.unknown_keys(value, {"material", "absorption_rel"}, key)
             rel = _surface_rel(ctx, value, key)
         try:
-            mat = get_material(mat_name)
+            return Surface.from_material(name, mat_name, rel)
         except ValueError as exc:
             ctx.fail(key, str(exc))
-        return Surface(name, tuple(mat.absorption), tuple(mat.bands_hz), mat.name,
-                       tuple(mat.extrapolated_hz), rel)
     if isinstance(value, dict):
         ctx.unknown_keys(value, _SURFACE_TABLE_KEYS, key)
         rel = _surface_rel(ctx, value, key)

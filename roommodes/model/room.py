@@ -112,6 +112,22 @@ class Surface:
     extrapolated_hz: tuple = ()
     absorption_rel: float | None = None
 
+    @classmethod
+    def from_material(cls, name, material, absorption_rel=None):
+        """The surface ``name`` made of the library material ``material``.
+
+        It carries the material's band values, name and extrapolated bands; its range is the
+        material's own through :meth:`Uncertainty.surface_rel` (when the uncertainty lets
+        library ranges count), or ``absorption_rel`` when given (the surface's own).
+
+        Raises
+        ------
+        ValueError
+            When the library has no such material (the message lists the closest names).
+        """
+        m = get_material(material)
+        return cls(name, tuple(m.absorption), tuple(m.bands_hz), m.name, tuple(m.extrapolated_hz), absorption_rel)
+
     def absorption_at(self, freq_hz):
         """Absorption at ``freq_hz``: linear in log frequency between band centres,
         held constant beyond the first and last band."""

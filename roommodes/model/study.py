@@ -66,6 +66,9 @@ class StudySpec:
     seed : int
         Seed of the study; candidate ``i`` draws from ``(seed, i)``.
     uncertainty : Uncertainty
+        As a room file's: by default (and when the study's ``[uncertainty]`` does not state
+        ``absorption_rel``) each surface's library material's own range counts first
+        (``material_ranges``), as in a room file; a stated ``absorption_rel`` holds for all.
     temperature_c : float
     """
 
@@ -88,7 +91,7 @@ class StudySpec:
     points_per_octave: int = 24
     samples: int = 32
     seed: int = 1
-    uncertainty: Uncertainty = Uncertainty()
+    uncertainty: Uncertainty = Uncertainty(material_ranges=True)
     temperature_c: float = 20.0
 
     def sizes_m(self):

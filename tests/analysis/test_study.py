@@ -13,7 +13,9 @@ import pytest
 from dask.distributed import Client, LocalCluster
 
 from roommodes.analysis.study import candidate_band, candidate_room, candidate_seed, evaluate_candidate, run_study
+from roommodes.analysis.uncertainty import draw_room, lognormal_sigma
 from roommodes.io.studyfile import StudyFileError, load_study, parse_study
+from roommodes.model.materials import get_material
 from roommodes.model.placement import triangle_layout
 from roommodes.model.room import Uncertainty
 from roommodes.model.study import StudySpec
@@ -21,6 +23,9 @@ from roommodes.model.study import StudySpec
 SMALL = StudySpec((3.8, 5.2), (2.9, 3.9), (2.4, 2.8), 2, seat_area_points=(2, 1), points_per_octave=6,
                   band_hz=(30.0, 100.0), samples=3, seed=5)
 TWO_WALLS = StudySpec(**{**SMALL.__dict__, "walls": ("plasterboard-on-studs", "concrete-wall")})
+#: The fast tier's study: SMALL over a narrower band (fewer filters for each room's EQ to fit,
+#: the bulk of a candidate's cost); the same checks run on SMALL in the slow tier.
+NARROW = StudySpec(**{**SMALL.__dict__, "band_hz": (30.0, 60.0)})
 
 
 def _on_cluster(spec, workers):
@@ -29,15 +34,16 @@ def _on_cluster(spec, workers):
         return run_study(spec, client)
 
 
-def test_one_and_two_workers_give_identical_candidates():
-    one = _on_cluster(SMALL, 1)
-    two = _on_cluster(SMALL, 2)
+@pytest.mark.parametrize("spec", [NARROW, pytest.param(SMALL, marks=pytest.mark.slow)], ids=["narrow", "small"])
+def test_one_and_two_workers_give_identical_candidates(spec):
+    one = _on_cluster(spec, 1)
+    two = _on_cluster(spec, 2)
     assert one.engine["workers"] == 1 and two.engine["workers"] == 2
-    assert len(one.candidates) == SMALL.n_candidates == 8
+    assert len(one.candidates) == spec.n_candidates == 8
     assert [c.to_dict() for c in one.candidates] == [c.to_dict() for c in two.candidates]
     # and the same as scoring a candidate here
     best = one.candidates[0]
-    assert evaluate_candidate(best.index, SMALL).to_dict() == best.to_dict()
+    assert evaluate_candidate(best.index, spec).to_dict() == best.to_dict()
     scores = [c.score_db for c in one.candidates]
     assert scores == sorted(scores)
     for c in one.candidates:
@@ -58,7 +64,7 @@ def test_candidate_grid_and_seeds():
 
 def test_no_uncertainty_collapses_the_ensemble():
     spec = StudySpec((4.0, 4.0), (3.2, 3.2), (2.5, 2.5), 1, seat_area_points=(2, 1), points_per_octave=6,
-                     band_hz=(30.0, 120.0), samples=3, uncertainty=Uncertainty(0.0, 0.0, 0.0, 0.0))
+                     band_hz=(30.0, 80.0), samples=3, uncertainty=Uncertainty(0.0, 0.0, 0.0, 0.0))
     c = evaluate_candidate(0, spec)
     assert c.score_p10_db == pytest.approx(c.score_db, abs=1e-9)
     assert c.score_p90_db == pytest.approx(c.score_db, abs=1e-9)
@@ -68,7 +74,7 @@ def test_no_uncertainty_collapses_the_ensemble():
 
 def test_layout_that_does_not_fit_is_ranked_last_with_the_reason():
     spec = StudySpec((1.0, 4.0), (3.2, 3.2), (2.5, 2.5), 2, layout="mid-room", seat_area_points=(1, 1),
-                     points_per_octave=6, band_hz=(30.0, 120.0), samples=2)
+                     points_per_octave=6, band_hz=(30.0, 60.0), samples=2)
     res = run_study(spec)
     assert res.candidates[0].feasible and not res.candidates[-1].feasible
     assert "too short" in res.candidates[-1].note
@@ -84,7 +90,7 @@ def _score(size, samples=4):
     return evaluate_candidate(0, StudySpec(*[(v, v) for v in size], 1, samples=samples)).score_db
 
 
-@pytest.mark.parametrize("volume_m3", [45.0, 80.0])
+@pytest.mark.parametrize("volume_m3", [45.0, pytest.param(80.0, marks=pytest.mark.slow)])
 def test_a_cube_scores_worse_than_good_proportions_of_the_same_volume(volume_m3):
     # good: 1 : 1.4 : 1.9 (Louden 1971, Acustica 24:101, his best ratio; from memory) and
     # 1 : 1.28 : 1.54 (Sepmeyer 1965, J. SMPTE 74:291; from memory); a cube's three axial
@@ -134,9 +140,10 @@ def test_band_tops_at_each_rooms_schroeder_frequency():
     assert candidate_band(fixed, candidate_room(fixed, 0)) == (25.0, 160.0)
 
 
-def test_best_preset_is_the_best_scoring_preset_without_uncertainty():
+@pytest.mark.parametrize("band_hz", [(30.0, 60.0), pytest.param((30.0, "schroeder"), marks=pytest.mark.slow)])
+def test_best_preset_is_the_best_scoring_preset_without_uncertainty(band_hz):
     # with no uncertainty every drawn room is the nominal one, on which best-preset chooses
-    base = StudySpec((4.5, 4.5), (3.4, 3.4), (2.5, 2.5), 1, samples=2, points_per_octave=6,
+    base = StudySpec((4.5, 4.5), (3.4, 3.4), (2.5, 2.5), 1, samples=2, points_per_octave=6, band_hz=band_hz,
                      uncertainty=Uncertainty(0.0, 0.0, 0.0, 0.0))
     best = evaluate_candidate(0, StudySpec(**{**base.__dict__, "layout": "best-preset"}))
     each = {name: evaluate_candidate(0, StudySpec(**{**base.__dict__, "layout": name})).score_db
@@ -155,10 +162,52 @@ def test_search_placement_is_the_same_on_one_and_two_workers():
     two = _on_cluster(SEARCH, 2)
     assert [c.to_dict() for c in one.candidates] == [c.to_dict() for c in two.candidates]
     for c in one.candidates:
-        assert c.layout == "search" and c.feasible, c.note
-        # the search's layout, not the triangle rule's
+        assert c.layout in ("search", "triangle") and c.feasible, c.note
         rule = evaluate_candidate(c.index, StudySpec(**{**SEARCH.__dict__, "placement": "rule"}))
-        assert c.seat_m != rule.seat_m or c.speakers_m != rule.speakers_m
+        # the rule's layout is one of the study's options: the search never scores worse
+        assert c.score_db <= rule.score_db, (c.index, c.score_db, rule.score_db)
+        if c.layout == "search":  # the search's own layout, not the triangle rule's
+            assert c.seat_m != rule.seat_m or c.speakers_m != rule.speakers_m
+
+
+def _cheap_search(size, band_hz=(30.0, 100.0)):
+    return StudySpec(*[(v, v) for v in size], 1, placement="search", search_step_m=0.5, seat_area_points=(1, 1),
+                     points_per_octave=6, band_hz=band_hz, samples=2, seed=3)
+
+
+@pytest.mark.parametrize("size, band_hz", [((6.0, 4.2, 2.7), (30.0, 60.0)),
+                                           pytest.param((5.0, 3.6, 2.6), (30.0, 100.0), marks=pytest.mark.slow)])
+def test_search_keeps_the_rule_layout_where_its_own_layouts_score_worse(monkeypatch, size, band_hz):
+    # rooms where the search's own best layouts score worse than the triangle rule by the
+    # study's score (found by trying a few rooms; the property is the project's own, docs/study.md)
+    import roommodes.analysis.study as study
+
+    spec = _cheap_search(size, band_hz)
+    rule = evaluate_candidate(0, StudySpec(**{**spec.__dict__, "placement": "rule"}))
+
+    def no_rule(*args, **kwargs):
+        raise ValueError("rule left out")
+
+    with monkeypatch.context() as m:
+        m.setattr(study, "rule_layout", no_rule)
+        alone = evaluate_candidate(0, spec)
+    assert alone.layout == "search"
+    # precondition: if the search alone now wins here, choose a room where it loses so that
+    # this test keeps exercising the rule's layout as an option
+    assert alone.score_db > rule.score_db, (alone.score_db, rule.score_db)
+    best = evaluate_candidate(0, spec)
+    assert best.layout == "triangle" and best.score_db <= rule.score_db
+    # the rule's layout scored over the same draws: the rule's own result
+    assert (best.seat_m, best.speakers_m, best.score_db) == (rule.seat_m, rule.speakers_m, rule.score_db)
+
+
+@pytest.mark.slow
+def test_search_never_scores_worse_than_the_rule():
+    for size in [(6.5, 4.4, 2.4), (5.5, 4.0, 2.7)]:
+        spec = _cheap_search(size)
+        found = evaluate_candidate(0, spec)
+        rule = evaluate_candidate(0, StudySpec(**{**spec.__dict__, "placement": "rule"}))
+        assert found.feasible and found.score_db <= rule.score_db, (size, found.score_db, rule.score_db)
 
 
 MINIMAL = "[study]\nlength_m = [4.0, 6.0]\nwidth_m = [3.0, 4.5]\nheight_m = [2.4, 3.0]\nsteps = 3\n"
@@ -169,7 +218,8 @@ def test_minimal_file_gets_the_defaults(tmp_path):
     p.write_text(MINIMAL)
     spec = load_study(p)
     assert spec.n_candidates == 27 and spec.walls == ("plasterboard-on-studs",)
-    assert spec.uncertainty == Uncertainty()
+    # as a room file without [uncertainty]: the library materials' own ranges count
+    assert spec.uncertainty == Uncertainty(material_ranges=True)
     assert (spec.layout, spec.placement, spec.band_hz) == ("triangle", "rule", (30.0, "schroeder"))
     p.write_text(MINIMAL + "placement = \"search\"\nsearch_step_m = 0.3\nsearch_refine = true\nspacing_m = 1.5\n"
                  "seat_fraction = 0.4\nband_hz = [25, \"schroeder\"]\n")
@@ -208,3 +258,39 @@ def test_bad_study_file_gives_one_line(tmp_path, text, expect):
 def test_parse_rejects_a_non_table():
     with pytest.raises(StudyFileError, match=r"\[study\]: must be a table"):
         parse_study({"study": 3}, "x.toml")
+
+
+def _log_factor_sd(spec, index=0, n=400):
+    """Per surface, the sd of ln(drawn / nominal absorption) over ``n`` rooms drawn as a study draws them."""
+    room = candidate_room(spec, index)
+    nominal = np.array([s.absorption[0] for s in room.surfaces])
+    gens = [np.random.default_rng(s) for s in np.random.SeedSequence(11).spawn(n)]
+    drawn = np.array([[s.absorption[0] for s in draw_room(room, g)[0].surfaces] for g in gens])
+    return {s.name: float(np.std(np.log(drawn[:, i] / nominal[i]))) for i, s in enumerate(room.surfaces)}
+
+
+def test_drawn_absorption_follows_each_materials_own_range(tmp_path):
+    # each surface's absorption is drawn times a log-normal factor, sigma_ln^2 = ln(1 + rel^2)
+    # (docs/uncertainty.md; the log-normal's moments, e.g. Johnson, Kotz & Balakrishnan 1994,
+    # Continuous Univariate Distributions vol. 1, ch. 14); rel is the material's own range
+    # from the library (roommodes/data/materials.toml), else the study's absorption_rel
+    # (0.25 by default, docs/study.md)
+    walls, floor, ceiling = "plasterboard-on-studs", "carpet-on-concrete", "concrete-wall"
+    p = tmp_path / "s.toml"
+    p.write_text(MINIMAL.replace("steps = 3", "steps = 1")
+                 + f"walls = [\"{walls}\"]\nfloor = \"{floor}\"\nceiling = \"{ceiling}\"\n")
+    sd = _log_factor_sd(load_study(p))
+    expect = {w: get_material(walls).absorption_rel for w in ("front", "back", "left", "right")}
+    expect.update(floor=get_material(floor).absorption_rel, ceiling=0.25)
+    assert get_material(ceiling).absorption_rel is None
+    assert len({expect["front"], expect["floor"], 0.25}) == 3  # three different ranges to tell apart
+    for name, rel in expect.items():
+        # 400 draws: the sample sd is within about 3.5 % of the true one (1/sqrt(2 n))
+        assert sd[name] == pytest.approx(lognormal_sigma(rel), rel=0.12), (name, sd[name], rel)
+    # an [uncertainty] that states absorption_rel holds for every surface, as in a room file
+    p.write_text(p.read_text() + "[uncertainty]\nabsorption_rel = 0.1\n")
+    for name, v in _log_factor_sd(load_study(p)).items():
+        assert v == pytest.approx(lognormal_sigma(0.1), rel=0.12), (name, v)
+    # one that states other figures only keeps the materials' ranges
+    p.write_text(p.read_text().replace("absorption_rel = 0.1", "position_m = 0.05"))
+    assert _log_factor_sd(load_study(p))["front"] == pytest.approx(lognormal_sigma(expect["front"]), rel=0.12)
