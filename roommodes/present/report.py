@@ -46,7 +46,7 @@ from ..model.materials import get_material
 from ..model.modes import room_modes
 from ..model.placement import PRESETS, preset_layout
 from ..solvers import ACCURACY_DB, ASSUMPTIONS, DEFAULT_METHOD
-from .plots import plot_correction, plot_modes, plot_prediction
+from .plots import figure_bytes, plot_correction, plot_modes, plot_prediction
 from .plots_measure import plot_comparison, plot_fit
 from .plots_place import plot_explain, plot_place
 from .plots_report import plot_floor_map, plot_mode_coupling, plot_room_views
@@ -224,16 +224,9 @@ def _indices_text(n):
 
 
 def _render(fig):
-    """PNG and SVG bytes of a figure (deterministic SVG ids, no date)."""
-    import matplotlib
-
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=130)
-    png = buf.getvalue()
-    with matplotlib.rc_context({"svg.hashsalt": "roommodes-report", "svg.fonttype": "path"}):
-        buf = io.BytesIO()
-        fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": f"roommodes {__version__}"})
-    return png, buf.getvalue()
+    """PNG and SVG bytes of a figure, laid out once (deterministic SVG ids, no date)."""
+    return figure_bytes(fig, png_dpi=130, svg_metadata={"Date": None, "Creator": f"roommodes {__version__}"},
+                        svg_rc={"svg.hashsalt": "roommodes-report", "svg.fonttype": "path"})
 
 
 _CSS = """
