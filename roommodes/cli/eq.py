@@ -18,6 +18,7 @@ from ..io.importers import read_response_text
 from ..io.roomfile import write_text_atomic
 from ..present.plots import plot_correction
 from ._measured import mic_cal_option, read_mic_cal
+from ._progress import Progress
 from ._util import (
     CONTEXT,
     check_output,
@@ -228,7 +229,10 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
     check_plot(plot_path, force, *inputs, export_path)
     f = log_frequencies(lo, hi, points_per_octave)
     if measured:
-        corrections = _correct_measured(room, lay, measured, f, window_s, room_file, options, read_mic_cal(mic_cal))
+        cal = read_mic_cal(mic_cal)
+        with Progress("roommodes eq") as prog:
+            prog.step("designing the correction from the measurement")
+            corrections = _correct_measured(room, lay, measured, f, window_s, room_file, options, cal)
         source = "measured"
     else:
         area = None
@@ -239,7 +243,9 @@ def eq(room_file, layout, target, tilt_db, tilt_corner, band_text, max_filters, 
                 area = ()
             if len(area) != 2 or not all(0 < v <= 3 for v in area):
                 fail(f"--area must be LENGTH,WIDTH in metres, each above 0 and at most 3, e.g. 0.6,0.6; got '{area_text}'")
-        corrections, _pred = correct_prediction(room, lay, f, method=method, area_m=area, **options)
+        with Progress("roommodes eq") as prog:
+            prog.step("predicting and designing the correction")
+            corrections, _pred = correct_prediction(room, lay, f, method=method, area_m=area, **options)
         source = f"predicted, {method} solver" + (f", average over {area[0]:g} x {area[1]:g} m" if area else "")
     head_warn = channel_headroom_warnings({c.name: c.headroom.max_boost_db for c in corrections})
     if as_json:

@@ -8,7 +8,6 @@ bar and cautions go to stderr; bad input gives one line and exit code 2.
 from __future__ import annotations
 
 import math
-import sys
 import time
 from dataclasses import replace
 from pathlib import Path
@@ -17,6 +16,7 @@ import click
 import numpy as np
 
 from .. import __version__
+from ._progress import Progress
 from ._util import (
     CONTEXT,
     MODEL_CAUTION,
@@ -130,24 +130,11 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
     try:
         space = search_space(room)
         t0 = time.perf_counter()
-        # the bar appears with the first progress report, i.e. once the input has passed
-        # every check, so that bad input gives one line on stderr and nothing else
-        state = {"done": 0, "bar": None}
-
-        def progress(fraction):
-            if state["bar"] is None:
-                state["bar"] = click.progressbar(length=1000, label="searching", file=sys.stderr)
-                state["bar"].__enter__()
-            n = int(1000 * min(max(fraction, 0.0), 1.0))
-            if n > state["done"]:
-                state["bar"].update(n - state["done"])
-                state["done"] = n
-
-        try:
-            res = search_layouts(room, space, w, band_hz, top, points_per_octave, progress=progress, method=method)
-        finally:
-            if state["bar"] is not None:
-                state["bar"].__exit__(None, None, None)
+        # the input has passed every check: bad input gives one line on stderr and nothing else
+        with Progress("roommodes place") as prog:
+            prog.step("searching")
+            res = search_layouts(room, space, w, band_hz, top, points_per_octave, progress=prog.fraction,
+                                 method=method)
         elapsed = time.perf_counter() - t0
     except ValueError as exc:
         fail(str(exc))
