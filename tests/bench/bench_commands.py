@@ -7,7 +7,8 @@ Prints figures; asserts nothing.
 Every command runs as its own process (``python -c "...roommodes.cli.main()" ARGS`` with
 ``PYTHONPATH`` set to one tree and the working folder set to an empty temporary one, so
 that neither tree shadows the other), timed by wall clock from start to exit: start-up,
-imports, work and writing the outputs. Rounds interleave the trees (the order flips every
+imports, work and writing the outputs. Bytecode caches are kept in the temporary folder, as
+an installed package has them, even when ``PYTHONDONTWRITEBYTECODE`` is set. Rounds interleave the trees (the order flips every
 round) so that changes in machine load hit both alike; each figure is the median of the
 per-round ratios.
 
@@ -59,9 +60,18 @@ print(json.dumps({"figures": len(rep.figures), **n}))
 """
 
 
+def environment(tree, cwd):
+    """The processes' environment: ``tree`` first on the path, and bytecode caches kept (in
+    ``cwd``, outside both trees), as an installed package has them: without them
+    (``PYTHONDONTWRITEBYTECODE``) every start compiles every module again."""
+    env = dict(os.environ, PYTHONPATH=str(tree), MPLBACKEND="Agg", PYTHONPYCACHEPREFIX=str(Path(cwd) / "pycache"))
+    env.pop("PYTHONDONTWRITEBYTECODE", None)
+    return env
+
+
 def run(tree, args, cwd):
     """Wall time of one process, s; fails loudly if the command fails."""
-    env = dict(os.environ, PYTHONPATH=str(tree), MPLBACKEND="Agg")
+    env = environment(tree, cwd)
     t0 = time.perf_counter()
     proc = subprocess.run([sys.executable, *args], cwd=cwd, env=env, stdout=subprocess.DEVNULL,
                           stderr=subprocess.PIPE, text=True)
@@ -72,7 +82,7 @@ def run(tree, args, cwd):
 
 
 def which_tree(tree, cwd):
-    env = dict(os.environ, PYTHONPATH=str(tree))
+    env = environment(tree, cwd)
     out = subprocess.run([sys.executable, "-c", "import roommodes; print(roommodes.__file__)"], cwd=cwd, env=env,
                          capture_output=True, text=True, check=True)
     return out.stdout.strip()
@@ -96,8 +106,9 @@ def main():
         # -- predict against import numpy
         numpy_args = ["-c", "import numpy"]
         predict_args = ["-c", RUN, "predict", str(ROOM)]
-        for t in trees.values():  # warm-up (file caches, numba cache), not counted
+        for t in trees.values():  # warm-up (file and bytecode caches), not counted
             run(t, predict_args, tmp)
+        run(new, numpy_args, tmp)
         times = {"numpy": [], "old": [], "new": []}
         for r in range(a.predict_rounds):
             order = ["numpy", "old", "new"] if r % 2 == 0 else ["new", "old", "numpy"]
@@ -138,7 +149,7 @@ def main():
 
             print("\nreport figures (--search off), drawings and layout solves per figure:")
             for k, t in trees.items():
-                env = dict(os.environ, PYTHONPATH=str(t), MPLBACKEND="Agg")
+                env = environment(t, tmp)
                 out = subprocess.run([sys.executable, "-c", COUNT, str(ROOM)], cwd=tmp, env=env, capture_output=True,
                                      text=True, check=True)
                 c = json.loads(out.stdout.strip().splitlines()[-1])
