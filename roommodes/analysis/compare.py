@@ -27,7 +27,6 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
-from scipy.signal import find_peaks, peak_widths
 
 from ..dsp.bands import band_average_matrix, band_centres, band_fraction_of
 from ..dsp.response import Response, align_level, log_frequencies, smooth_db
@@ -480,6 +479,8 @@ def find_features(freq_hz, level_db, band_hz=DEFAULT_BAND_HZ, min_prominence_db=
     end of the grid is not a feature) and refined by a parabola through the three grid
     points around each, in ``(log2 f, dB)``.
     """
+    from scipy.signal import find_peaks, peak_widths  # here, not at the top: scipy.signal is slow to import
+
     f = _grid(freq_hz)
     y = np.asarray(level_db, dtype=float)
     if not min_prominence_db > 0:

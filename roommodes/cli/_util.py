@@ -21,6 +21,7 @@ from ..present.serialise import dumps
 from ..present.units import UNITS
 from ..present.units import walls_text as _walls_text
 from ..solvers import DEFAULT_METHOD, METHODS
+from ._progress import clear_status
 
 CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
 
@@ -44,6 +45,7 @@ def fail(msg):
 
 
 def echo_err(msg=""):
+    clear_status()  # a progress line, if one is shown, is erased first
     click.echo(msg, err=True)
 
 

@@ -20,7 +20,7 @@ import warnings
 import click
 
 from .. import __version__
-from ._util import CONTEXT, UserError, user_errors
+from ._util import CONTEXT, UserError, echo_err, user_errors
 
 __all__ = ["main", "COMMANDS"]
 
@@ -48,7 +48,7 @@ COMMANDS = {
 
 
 def _show_warning(message, category, filename, lineno, file=None, line=None):
-    click.echo(f"roommodes: warning: {message}", err=True)
+    echo_err(f"roommodes: warning: {message}")
 
 
 class _Group(click.Group):

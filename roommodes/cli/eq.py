@@ -19,6 +19,7 @@ from ..io.importers import read_response_text
 from ..io.roomfile import write_text_atomic
 from ..present.plots import plot_correction
 from ._measured import mic_cal_option, read_mic_cal, read_spl_ref, spl_ref_input, spl_ref_option
+from ._progress import Progress
 from ._util import (
     CONTEXT,
     check_output,
@@ -290,8 +291,10 @@ def eq(room_file, layout, channels, target, tilt_db, tilt_corner, band_text, max
     ref = None
     if measured:
         ref = read_spl_ref(spl_ref)
-        corrections = _correct_measured(room, lay, measured, f, window_s, room_file, options, read_mic_cal(mic_cal),
-                                        ref)
+        cal = read_mic_cal(mic_cal)
+        with Progress("roommodes eq") as prog:
+            prog.step("designing the correction from the measurement")
+            corrections = _correct_measured(room, lay, measured, f, window_s, room_file, options, cal, ref)
         source = "measured"
     else:
         area = None
@@ -304,8 +307,11 @@ def eq(room_file, layout, channels, target, tilt_db, tilt_corner, band_text, max
                 fail(f"--area must be LENGTH,WIDTH in metres, each above 0 and at most 3, e.g. 0.6,0.6; got '{area_text}'")
         held = {"n_samples": samples, "seed": seed} if uncertainty else None
         try:
-            corrections, _pred = correct_prediction(room, lay, f, method=method, area_m=area, uncertainty=held,
-                                                    **options)
+            with Progress("roommodes eq") as prog:
+                prog.step("predicting and designing the correction"
+                          + (f", held to {samples} drawn rooms" if uncertainty else ""))
+                corrections, _pred = correct_prediction(room, lay, f, method=method, area_m=area, uncertainty=held,
+                                                        **options)
         except ValueError as exc:
             fail(str(exc))
         source = f"predicted, {method} solver" + (f", average over {area[0]:g} x {area[1]:g} m" if area else "")

@@ -10,9 +10,7 @@ written then. Inputs are never overwritten, and an existing output only with --f
 
 from __future__ import annotations
 
-import contextlib
 import json
-import sys
 import time
 from pathlib import Path
 
@@ -55,6 +53,7 @@ from ._measured import (
     wav_channel_option,
     window_option,
 )
+from ._progress import Progress
 from ._util import (
     CONTEXT,
     MODEL_CAUTION,
@@ -760,23 +759,16 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
     ref = read_spl_ref(spl_ref, wav_channel)
     targets, _ = load_fit_targets(specs, wav_channel, window_s, (lo, hi), points_per_octave, mic_cal, ref)
     t0 = time.perf_counter()
-    with contextlib.ExitStack() as stack:
-        bar = {}  # opened at the first iteration, once the input has been accepted
+    with Progress("roommodes fit") as prog:
+        prog.step("fitting")
 
         def progress(i, n, cost):
-            if "bar" not in bar:
-                bar["bar"] = stack.enter_context(click.progressbar(length=n, label="fitting", file=sys.stderr,
-                                                                   show_eta=False))
-                bar["done"] = 0
-            bar["bar"].update(i - bar["done"])
-            bar["done"] = i
+            prog.step(f"fitting, iteration {i} of at most {n}")
 
         res = fit_room(room, targets, band_hz=(lo, hi), points_per_octave=points_per_octave, smoothing=smoothing,
                        absorption=absorption, size_tolerance=size_tolerance,
                        position_tolerance_m=position_tolerance, fit_lowcut=not no_lowcut, absolute=absolute,
                        regularization_db=regularization, method=method, progress=progress)
-        if "bar" in bar:
-            bar["bar"].update(bar["bar"].length - bar["done"])
     elapsed = time.perf_counter() - t0
     eff = effective_size(res, room)
     comment = (f"Calibrated by roommodes {__version__} fit from {Path(room_file).name} and "

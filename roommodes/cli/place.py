@@ -8,7 +8,6 @@ bar and cautions go to stderr; bad input gives one line and exit code 2.
 from __future__ import annotations
 
 import math
-import sys
 import time
 from dataclasses import replace
 from pathlib import Path
@@ -19,6 +18,7 @@ import numpy as np
 from .. import __version__
 from ..analysis.ensemble import DEFAULT_ENSEMBLE_METHOD, DEFAULT_PLACE_SAMPLES
 from ..solvers import METHODS
+from ._progress import Progress
 from ._util import (
     CONTEXT,
     MODEL_CAUTION,
@@ -150,24 +150,11 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
     try:
         space = search_space(room)
         t0 = time.perf_counter()
-        # the bar appears with the first progress report, i.e. once the input has passed
-        # every check, so that bad input gives one line on stderr and nothing else
-        state = {"done": 0, "bar": None}
-
-        def progress(fraction):
-            if state["bar"] is None:
-                state["bar"] = click.progressbar(length=1000, label="searching", file=sys.stderr)
-                state["bar"].__enter__()
-            n = int(1000 * min(max(fraction, 0.0), 1.0))
-            if n > state["done"]:
-                state["bar"].update(n - state["done"])
-                state["done"] = n
-
-        try:
-            res = search_layouts(room, space, w, band_hz, top, points_per_octave, progress=progress, method=method)
-        finally:
-            if state["bar"] is not None:
-                state["bar"].__exit__(None, None, None)
+        # the input has passed every check: bad input gives one line on stderr and nothing else
+        with Progress("roommodes place") as prog:
+            prog.step("searching")
+            res = search_layouts(room, space, w, band_hz, top, points_per_octave, progress=prog.fraction,
+                                 method=method)
         elapsed = time.perf_counter() - t0
         ranking, current_spread, ens_elapsed = None, None, 0.0
         if uncertainty:
@@ -315,11 +302,12 @@ def _ensemble(room, space, res, points_per_octave, samples, seed, method):
 
     layouts = list(res.ranked) + ([res.current] if res.current is not None else [])
     t0 = time.perf_counter()
-    with click.progressbar(length=samples, label="scoring in drawn rooms", file=sys.stderr) as bar:
+    with Progress("roommodes place") as prog:
+        prog.step(f"scoring in {samples} drawn rooms")
         scores = ensemble_scores(room, [s.layout for s in layouts], n_samples=samples, seed=seed,
                                  weights=res.weights, band_hz=res.band_hz, area_m=space.area_m,
                                  area_points=space.area_points, points_per_octave=points_per_octave,
-                                 method=method, progress=lambda i, n: bar.update(1))
+                                 method=method, progress=lambda i, n: prog.fraction((i + 1) / n))
     k = len(res.ranked)
     ranking = rank_by_median(res.ranked, scores[:, :k])
     current = None

@@ -33,6 +33,7 @@ from ._measured import (
     wav_channel_option,
     window_option,
 )
+from ._progress import Progress
 from ._util import (
     CONTEXT,
     MODEL_CAUTION,
@@ -265,13 +266,15 @@ def report(room_file, files, out, channel, at, measure, do_fit, wav_channel, win
     except (OSError, UnicodeDecodeError):
         room_text = None
     echo_err(f"roommodes {__version__}: report on '{room.name}'")
-    rep = build_report(room, curves, targets, units=units, search=search, method=method, embed=embed,
-                       room_text=room_text, inputs=inputs, command=shlex.join(argv),
-                       created=datetime.datetime.now().astimezone().strftime("%Y-%m-%d %H:%M %Z").strip(),
-                       files_folder=folder.name, progress=lambda text: echo_err(f"  {text}"),
-                       uncertainty={"n_samples": samples, "seed": seed} if uncertainty else None,
-                       spl_reference=ref)
-    written = write_report(out, rep, force)
+    with Progress("roommodes report") as prog:
+        rep = build_report(room, curves, targets, units=units, search=search, method=method, embed=embed,
+                           room_text=room_text, inputs=inputs, command=shlex.join(argv),
+                           created=datetime.datetime.now().astimezone().strftime("%Y-%m-%d %H:%M %Z").strip(),
+                           files_folder=folder.name, progress=prog.step,
+                           uncertainty={"n_samples": samples, "seed": seed} if uncertainty else None,
+                           spl_reference=ref)
+        prog.step("writing")
+        written = write_report(out, rep, force)
     echo_err(f"wrote {out} ({len(rep.html) / 1e6:.1f} MB) and {written}/ ({len(rep.figures)} figures as PNG and SVG, "
              f"{len(rep.tables)} tables as CSV)")
     if as_json:  # what was written, and the page's numbers (its data block)

@@ -16,7 +16,6 @@ import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import signal
 
 from ..dsp.response import log_frequencies
 from .signals import OCTAVE_RATIO_G, band_centres
@@ -38,6 +37,13 @@ __all__ = [
     "reverberation_times",
     "schroeder_integral",
 ]
+
+
+def _signal():
+    from scipy import signal  # on first use, not at import: scipy.signal takes about a second to load
+
+    return signal
+
 
 #: ln(10^6) / (2 pi): half-power bandwidth (Hz) times T60 (s) of one exponentially decaying mode.
 MODE_BANDWIDTH_T60 = math.log(1e6) / (2 * math.pi)
@@ -606,13 +612,13 @@ def band_sos(center_hz, fs, fraction=1, order=3):
     if not (fc > 0 and hi < fs / 2):
         raise ValueError(f"band {fc:g} Hz (edges {lo:.4g}-{hi:.4g} Hz) must lie below "
                          f"fs / 2 = {fs / 2:g} Hz")
-    return signal.butter(int(order), [lo, hi], btype="bandpass", fs=fs, output="sos")
+    return _signal().butter(int(order), [lo, hi], btype="bandpass", fs=fs, output="sos")
 
 
 def _filter(sos, h, reverse):
     if reverse:
-        return signal.sosfilt(sos, h[::-1])[::-1]
-    return signal.sosfilt(sos, h)
+        return _signal().sosfilt(sos, h[::-1])[::-1]
+    return _signal().sosfilt(sos, h)
 
 
 # --------------------------------------------------------------------------- reverberation
@@ -777,7 +783,7 @@ def find_modal_peaks(ir, fs, freq_range_hz=(15.0, 200.0), count=5, min_prominenc
     df = fs / nfft
     i_lo, i_hi = math.floor(lo / df), math.ceil(hi / df) + 1
     seg = level[i_lo:i_hi]
-    peaks, _ = signal.find_peaks(seg, prominence=min_prominence_db)
+    peaks, _ = _signal().find_peaks(seg, prominence=min_prominence_db)
     peaks = peaks[(peaks > 0) & (peaks < seg.size - 1)]
     if peaks.size == 0:
         return np.array([]), np.array([])
@@ -875,7 +881,7 @@ def modal_decay_times(ir, fs, freqs_hz=None, *, bandwidth_hz=None, fraction=6.0,
                           "between 0 and fs/2"),))
             continue
         bw[i] = hi - lo
-        sos = signal.butter(int(order), [lo, hi], btype="bandpass", fs=fs, output="sos")
+        sos = _signal().butter(int(order), [lo, hi], btype="bandpass", fs=fs, output="sos")
         hb = _filter(sos, h, filtering == "reverse")[n0:]
         curve = schroeder_integral(hb, fs, method="subtract")
         rng[i] = curve.decay_range_db

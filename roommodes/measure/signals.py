@@ -18,7 +18,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import signal as sps
 
 from ..dsp.bands import OCTAVE_RATIO_G, band_centres
 
@@ -31,6 +30,13 @@ __all__ = [
     "level_dbfs",
     "pink_noise",
 ]
+
+
+def _sps():
+    from scipy import signal  # on first use, not at import: scipy.signal takes about a second to load
+
+    return signal
+
 
 _SINE_RMS = 1.0 / np.sqrt(2.0)
 
@@ -150,8 +156,8 @@ def band_levels(x, fs_hz, fraction=3, f_low_hz=20.0, f_high_hz=20000.0, order=3)
     levels = np.empty(fm.size)
     avg_s = np.empty(fm.size)
     for i, (fl, fu) in enumerate(zip(lo, hi)):
-        sos = sps.butter(int(order), [fl, fu], btype="bandpass", fs=fs_hz, output="sos")
-        y = sps.sosfilt(sos, x)
+        sos = _sps().butter(int(order), [fl, fu], btype="bandpass", fs=fs_hz, output="sos")
+        y = _sps().sosfilt(sos, x)
         skip = min(int(np.ceil(4.0 / (fu - fl) * fs_hz)), x.size // 2)
         seg = y[skip:]
         levels[i] = level_dbfs(seg)

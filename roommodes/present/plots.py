@@ -17,7 +17,7 @@ import numpy as np
 from ..dsp.response import smooth_db
 from ..dsp.text import boost_text
 
-__all__ = ["PALETTE", "new_figure", "save_figure", "plot_prediction", "plot_modes"]
+__all__ = ["PALETTE", "new_figure", "save_figure", "figure_bytes", "plot_prediction", "plot_modes"]
 
 #: Okabe-Ito colour-blind-safe palette (black first for references).
 PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#F0E442", "#000000")
@@ -47,6 +47,57 @@ def save_figure(fig, path, overwrite=True):
         if tmp.exists():
             tmp.unlink()
     return p
+
+
+def figure_bytes(fig, png_dpi=130, svg_metadata=None, svg_rc=None):
+    """PNG and SVG bytes of one figure, laid out once.
+
+    The figure's layout (constrained layout) is solved once, by the one Agg drawing at
+    ``png_dpi`` that is also the PNG; the layout is then frozen and the SVG is drawn with
+    the same positions: one layout solve and two drawings, where ``fig.savefig`` once per
+    format costs two layout solves and four drawings (each ``savefig`` draws the figure
+    once without output to place it, then again).
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+    png_dpi : float
+        Resolution of the PNG, dots per inch.
+    svg_metadata : dict, optional
+        ``metadata`` of the SVG (``savefig``'s keyword).
+    svg_rc : dict, optional
+        matplotlib settings in force while the SVG is written (``svg.hashsalt``, ...).
+
+    Returns
+    -------
+    png, svg : bytes
+
+    Notes
+    -----
+    The figure is left without a layout engine: later drawings keep these positions.
+    """
+    import io
+
+    import matplotlib
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.image import imsave
+
+    canvas = fig.canvas if isinstance(fig.canvas, FigureCanvasAgg) else FigureCanvasAgg(fig)
+    dpi = fig.get_dpi()
+    fig.set_dpi(png_dpi)
+    try:
+        canvas.draw()  # the layout is solved here, once, and the PNG drawn
+        buf = io.BytesIO()
+        imsave(buf, canvas.buffer_rgba(), format="png", origin="upper", dpi=png_dpi)
+        png = buf.getvalue()
+    finally:
+        fig.set_dpi(dpi)
+    with matplotlib.rc_context({"figure.autolayout": False, "figure.constrained_layout.use": False}):
+        fig.set_layout_engine(None)  # keep the positions just solved: no second layout, no extra drawing
+    with matplotlib.rc_context(svg_rc or {}):
+        buf = io.BytesIO()
+        fig.savefig(buf, format="svg", metadata=svg_metadata)
+    return png, buf.getvalue()
 
 
 def style_frequency_axis(ax, fmin, fmax):

@@ -23,6 +23,7 @@ import io
 import math
 import platform
 import re
+import threading
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -46,7 +47,7 @@ from ..model.materials import get_material
 from ..model.modes import room_modes
 from ..model.placement import PRESETS, preset_layout
 from ..solvers import ACCURACY_DB, ASSUMPTIONS, DEFAULT_METHOD
-from .plots import plot_correction, plot_modes, plot_prediction
+from .plots import figure_bytes, plot_correction, plot_modes, plot_prediction
 from .plots_measure import plot_comparison, plot_fit
 from .plots_place import plot_explain, plot_place
 from .plots_report import plot_floor_map, plot_mode_coupling, plot_room_views
@@ -224,16 +225,9 @@ def _indices_text(n):
 
 
 def _render(fig):
-    """PNG and SVG bytes of a figure (deterministic SVG ids, no date)."""
-    import matplotlib
-
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=130)
-    png = buf.getvalue()
-    with matplotlib.rc_context({"svg.hashsalt": "roommodes-report", "svg.fonttype": "path"}):
-        buf = io.BytesIO()
-        fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": f"roommodes {__version__}"})
-    return png, buf.getvalue()
+    """PNG and SVG bytes of a figure, laid out once (deterministic SVG ids, no date)."""
+    return figure_bytes(fig, png_dpi=130, svg_metadata={"Date": None, "Creator": f"roommodes {__version__}"},
+                        svg_rc={"svg.hashsalt": "roommodes-report", "svg.fonttype": "path"})
 
 
 _CSS = """
@@ -516,6 +510,9 @@ def build_report(room, measurements=(), fit_targets=None, *, units="cm", search=
                compare_smoothing=compare_smoothing, created=created, command=command, files_folder=files_folder,
                inputs=inputs, room_text=room_text, map_freqs_hz=map_freqs_hz, fit_res=fit_res,
                uncertainty=uncertainty)
+    # the placement search needs nothing the sections compute: it runs on a second thread
+    # beside them (its matrix products leave the interpreter free for the figures)
+    run.search_job = None if search == "off" else _Job(search_layouts, room, space, refine=(search == "full"))
     for section in (_section_room, _section_modes, _section_responses, _section_placement, _section_subs,
                     _section_eq, _section_measurements, _section_validity, _section_reproduce, _section_appendix):
         section(run)
@@ -530,6 +527,29 @@ def build_report(room, measurements=(), fit_targets=None, *, units="cm", search=
                    + "</section>")
     values["glance"] = glance
     return Report(doc.page(title, header, glance_html), tuple(doc.figures), tuple(doc.tables), values, tuple(glance))
+
+
+class _Job:
+    """A call started on a daemon thread; :meth:`result` waits for it and raises its error."""
+    def __init__(self, func, *args, **kwargs):
+        self._done = threading.Event()
+        self._value = self._error = None
+
+        def target():
+            try:
+                self._value = func(*args, **kwargs)
+            except BaseException as exc:  # noqa: BLE001 - handed to the caller by result()
+                self._error = exc
+            finally:
+                self._done.set()
+
+        threading.Thread(target=target, name=f"roommodes-{func.__name__}", daemon=True).start()
+
+    def result(self):
+        self._done.wait()
+        if self._error is not None:
+            raise self._error
+        return self._value
 
 
 class _Run:
@@ -836,7 +856,7 @@ def _section_placement(run):
     else:
         step(f"placement search ({search})")
 
-        res = search_layouts(room, space, refine=(search == "full"))
+        res = run.search_job.result()
         best = res.ranked[0]
         values["best_score"] = best.score
         values["best_layout"] = {"speakers": [list(s.position_m) for s in best.layout.speakers],
