@@ -307,7 +307,7 @@ def _ensemble(room, space, res, points_per_octave, samples, seed, method):
         scores = ensemble_scores(room, [s.layout for s in layouts], n_samples=samples, seed=seed,
                                  weights=res.weights, band_hz=res.band_hz, area_m=space.area_m,
                                  area_points=space.area_points, points_per_octave=points_per_octave,
-                                 method=method, progress=lambda i, n: prog.fraction((i + 1) / n))
+                                 method=method, progress=lambda done, n: prog.fraction(done / n))
     k = len(res.ranked)
     ranking = rank_by_median(res.ranked, scores[:, :k])
     current = None
