@@ -138,6 +138,20 @@ def mark_modes(ax, modes, fmin, fmax, max_order=2):
 _SHOWN_SMOOTHING = 6
 
 
+def _identical_groups(channels, atol_db=0.01):
+    """Indices of ``channels`` grouped by identical level (within ``atol_db``), first-seen order:
+    a curve drawn over its twin would hide it, so twins share one curve and one label."""
+    groups = []
+    for k, ch in enumerate(channels):
+        for g in groups:
+            if np.allclose(ch.level_db, channels[g[0]].level_db, atol=atol_db):
+                g.append(k)
+                break
+        else:
+            groups.append([k])
+    return groups
+
+
 def plot_prediction(predictions, modes=None, title=None, path=None, bands=None, system=None):
     """Predicted level at the seat for one or more predictions (layouts).
 
@@ -163,12 +177,13 @@ def plot_prediction(predictions, modes=None, title=None, path=None, bands=None, 
     f = preds[0].freq_hz
     styles = ("-", "--", ":", "-.")
     for i, p in enumerate(preds):
-        same = len(p.channels) > 1 and all(np.allclose(c.level_db, p.channels[0].level_db, atol=0.01)
-                                           for c in p.channels[1:])
-        for j, ch in enumerate(p.channels[:1] if same else p.channels):
+        groups = _identical_groups(p.channels)
+        same = len(groups) == 1 and len(p.channels) > 1
+        for j, ch in enumerate(p.channels[g[0]] for g in groups):
             if len(preds) == 1:
                 color, ls = PALETTE[j % len(PALETTE)], "-"
-                label = " = ".join(c.name for c in p.channels) + " (identical)" if same else ch.name
+                names = [p.channels[k].name for k in groups[j]]
+                label = " = ".join(names) + " (identical)" if len(names) > 1 else ch.name
             elif same:
                 color, ls, label = PALETTE[i % len(PALETTE)], "-", f"{p.layout_name} (all channels alike)"
             else:
