@@ -131,10 +131,40 @@ def _profile(ax, profile, chosen_m, xlabel=None):
     ax.set_title("(d) Score along one variable through the best layout", fontsize=10)
 
 
+def _score_spread(ax, spread, n_rooms):
+    """Each layout's nominal score beside the 10-90 % range (and median) of its scores over the drawn rooms."""
+    x = np.arange(len(spread), dtype=float)
+    nominal = np.array([s[1] for s in spread], dtype=float)
+    p10 = np.array([s[2] for s in spread], dtype=float)
+    median = np.array([s[3] for s in spread], dtype=float)
+    p90 = np.array([s[4] for s in spread], dtype=float)
+    # the file's layout in grey, as on the floor plan; the finalists in the palette's first colour
+    colours = ["0.45" if s[0] == "file" else PALETTE[0] for s in spread]
+    ax.vlines(x + 0.08, p10, p90, colors=colours, lw=5, alpha=0.45,
+              label=f"10-90 % of {n_rooms} drawn rooms")
+    ax.scatter(x + 0.08, median, marker="_", s=260, c=colours, linewidths=2.2, zorder=4,
+               label=f"median of {n_rooms} drawn rooms")
+    ax.scatter(x - 0.12, nominal, marker="o", s=30, facecolors="white", edgecolors=colours, linewidths=1.4,
+               zorder=4, label="nominal (the room file as stated)")
+    ax.set_xticks(x, [s[0] for s in spread])
+    ax.set_xlim(-0.6, len(spread) - 0.4)
+    ax.set_xlabel("layout, best median first (#: rank of the nominal search)", fontsize=8.5)
+    ax.set_ylabel("score (dB, lower is better)")
+    ax.grid(True, axis="y", alpha=0.3)
+    ax.legend(fontsize=7, ncol=3, loc="upper left")
+    lo, hi = float(min(p10.min(), nominal.min())), float(max(p90.max(), nominal.max()))
+    pad = max(0.3, 0.15 * (hi - lo))
+    ax.set_ylim(lo - pad, hi + 2.5 * pad)  # room for the legend above the bars
+    ax.set_title("(e) How sure each layout's score is: nominal, and over rooms drawn from [uncertainty]",
+                 fontsize=10)
+
+
 def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map, profile, keep_out=(),
-               title=None, path=None, eq_curves=None, space=None, sweep_label=None):
+               title=None, path=None, eq_curves=None, space=None, sweep_label=None, score_spread=None,
+               n_rooms=None):
     """The placement figure: (a) predicted levels, (b) before/after EQ, (c) floor plan with
-    the seat-score map and the boxes, (d) the score along one variable through the best layout.
+    the seat-score map and the boxes, (d) the score along one variable through the best layout,
+    and, with scores over drawn rooms, (e) each layout's 10-90 % range beside its nominal score.
 
     Parameters
     ----------
@@ -157,8 +187,22 @@ def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map
         When given, the boxes are drawn on the floor plan.
     sweep_label : str, optional
         The x label of (d).
+    score_spread : list of (label, nominal_db, p10_db, median_db, p90_db), optional
+        With rooms drawn from ``[uncertainty]``: each layout's nominal score and the 10th
+        percentile, median and 90th percentile of its scores over the ``n_rooms`` drawn
+        rooms, best median first (the file's layout labelled ``"file"``). Adds a panel (e)
+        that shows each range beside the nominal score.
+    n_rooms : int, optional
+        How many rooms were drawn (for the legend of (e)).
     """
-    fig, axes = new_figure(12.0, 10.0, 2, 2)
+    if score_spread:
+        fig, axes = new_figure(12.0, 13.2, 3, 2, gridspec_kw={"height_ratios": (1.0, 1.0, 0.55)})
+        gs = axes[2, 0].get_gridspec()
+        for a in axes[2]:
+            a.remove()
+        _score_spread(fig.add_subplot(gs[2, :]), score_spread, n_rooms)
+    else:
+        fig, axes = new_figure(12.0, 10.0, 2, 2)
     _curves(axes[0, 0], predictions, band_hz, schroeder_hz)
     _eq_curves(axes[0, 1], eq_curves, band_hz)
     _floor_plan(axes[1, 0], room, best, current, keep_out, seat_map, space)

@@ -84,3 +84,30 @@ def test_eq_without_drawn_rooms_has_no_band():
     assert all(c.ensemble_seat_db is None and c.seat_band_db() is None for c in corrs)
     fig = plot_correction(corrs)
     assert not any(_bands(ax) for ax in fig.axes)
+
+
+def test_place_spread_panel_draws_the_percentiles_of_the_scores():
+    from roommodes.analysis.ensemble import rank_by_median
+    from roommodes.present.plots import new_figure
+    from roommodes.present.plots_place import _score_spread
+
+    rng = np.random.default_rng(4)
+    scores = 6.0 + rng.gamma(2.0, 0.4, size=(25, 4)) + np.array([0.0, 0.5, 0.2, 1.0])
+    names = ["1", "2", "3", "4"]
+    ranking = rank_by_median(names, scores)
+    nominal = {"1": 5.5, "2": 6.1, "3": 6.0, "4": 7.2}
+    spread = [(f"#{n}", nominal[n], ranking.p10[k], ranking.median[k], ranking.p90[k])
+              for k, n in enumerate(ranking.layouts)]
+    fig, ax = new_figure()
+    _score_spread(ax, spread, 25)
+    cols = [names.index(n) for n in ranking.layouts]
+    bars = next(c for c in ax.collections if c.get_label() == "10-90 % of 25 drawn rooms")
+    seg = np.array(bars.get_segments())
+    np.testing.assert_allclose(seg[:, 0, 1], np.percentile(scores[:, cols], 10, axis=0), atol=1e-12)
+    np.testing.assert_allclose(seg[:, 1, 1], np.percentile(scores[:, cols], 90, axis=0), atol=1e-12)
+    med = next(c for c in ax.collections if c.get_label() == "median of 25 drawn rooms")
+    np.testing.assert_allclose(med.get_offsets()[:, 1], np.median(scores[:, cols], axis=0), atol=1e-12)
+    nom = next(c for c in ax.collections if c.get_label().startswith("nominal"))
+    np.testing.assert_allclose(nom.get_offsets()[:, 1], [nominal[n] for n in ranking.layouts])
+    lo, hi = ax.get_ylim()  # every range is inside the panel
+    assert lo < seg[:, :, 1].min() and seg[:, :, 1].max() < hi
