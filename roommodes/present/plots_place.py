@@ -13,11 +13,17 @@ from .plots import PALETTE, new_figure, save_figure, shade_invalid, style_freque
 __all__ = ["plot_place", "plot_explain"]
 
 
-def _curves(ax, predictions, band_hz, schroeder_hz):
+def _curves(ax, predictions, band_hz, schroeder_hz, bands=None):
     styles = ("-", "--")
     colors = (PALETTE[1], "0.45")  # best, current: as on the floor plan
     for i, (label, pred) in enumerate(predictions):
+        band = bands[i] if bands is not None and i < len(bands) else None
         for j, ch in enumerate(pred.channels[:2]):
+            if band is not None and ch.name in band.names:
+                lo, _, hi = band.channel(ch.name)
+                ax.fill_between(band.freq_hz, lo, hi, color=colors[i % 2], alpha=0.16, lw=0,
+                                label=f"{label}: 10-90 % of {band.n_samples} drawn rooms"
+                                if j == 0 else None)
             ax.plot(pred.freq_hz, ch.level_db, color=colors[i % 2], ls=styles[j % 2], lw=1.4,
                     label=f"{label}: {ch.name}")
     f = predictions[0][1].freq_hz
@@ -30,7 +36,7 @@ def _curves(ax, predictions, band_hz, schroeder_hz):
     lv = np.concatenate([c.level_db for _, p in predictions for c in p.channels[:2]])
     ax.set_ylim(np.floor(np.percentile(lv, 1) / 5) * 5 - 5, np.ceil(lv.max() / 5) * 5 + 5)
     ax.set_ylabel("Level at seat (dB re free field at 1 m)")
-    ax.legend(fontsize=7.5, ncol=2, loc="lower center")
+    ax.legend(fontsize=7.5 if bands is None else 7, ncol=2, loc="lower center")
     ax.set_title(f"(a) Predicted level at the seat; score band {band_hz[0]:g}-{band_hz[1]:g} Hz", fontsize=10)
 
 
@@ -161,7 +167,7 @@ def _score_spread(ax, spread, n_rooms):
 
 def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map, profile, keep_out=(),
                title=None, path=None, eq_curves=None, space=None, sweep_label=None, score_spread=None,
-               n_rooms=None):
+               n_rooms=None, bands=None):
     """The placement figure: (a) predicted levels, (b) before/after EQ, (c) floor plan with
     the seat-score map and the boxes, (d) the score along one variable through the best layout,
     and, with scores over drawn rooms, (e) each layout's 10-90 % range beside its nominal score.
@@ -194,6 +200,9 @@ def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map
         that shows each range beside the nominal score.
     n_rooms : int, optional
         How many rooms were drawn (for the legend of (e)).
+    bands : list of Bands or None, optional
+        One per prediction (:func:`roommodes.analysis.uncertainty.predict_bands`): each
+        channel's 10-90 % band over the drawn rooms is shaded in (a) in its layout's colour.
     """
     if score_spread:
         fig, axes = new_figure(12.0, 13.2, 3, 2, gridspec_kw={"height_ratios": (1.0, 1.0, 0.55)})
@@ -203,7 +212,7 @@ def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map
         _score_spread(fig.add_subplot(gs[2, :]), score_spread, n_rooms)
     else:
         fig, axes = new_figure(12.0, 10.0, 2, 2)
-    _curves(axes[0, 0], predictions, band_hz, schroeder_hz)
+    _curves(axes[0, 0], predictions, band_hz, schroeder_hz, bands)
     _eq_curves(axes[0, 1], eq_curves, band_hz)
     _floor_plan(axes[1, 0], room, best, current, keep_out, seat_map, space)
     _profile(axes[1, 1], profile, best.speakers[0].position_m[0], sweep_label)

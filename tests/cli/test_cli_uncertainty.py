@@ -154,6 +154,10 @@ def test_place_plot_shows_each_layouts_spread_beside_its_nominal_score(tmp_path,
     nom = next(c for c in ax.collections if c.get_label().startswith("nominal"))
     np.testing.assert_allclose(nom.get_offsets()[:, 1], [r["score"] for r in rows], atol=1e-12)
     assert np.all(nom.get_offsets()[:, 0] < seg[:, 0, 0])  # beside the bar, not on it
+    # panel (a): each layout's curves with their band (tests/present/test_plot_bands.py checks the values)
+    curves = next(ax for ax in figures[-1].axes if ax.get_title().startswith("(a)"))
+    labels = [c.get_label() for c in curves.collections if "drawn rooms" in c.get_label()]
+    assert labels == ["best: 10-90 % of 6 drawn rooms", "current: 10-90 % of 6 drawn rooms"]
     # without --uncertainty: no panel (e), nothing drawn as a spread
     res = run(*base, "--plot", tmp_path / "q.png")
     assert res.exit_code == 0, res.output

@@ -111,3 +111,29 @@ def test_place_spread_panel_draws_the_percentiles_of_the_scores():
     np.testing.assert_allclose(nom.get_offsets()[:, 1], [nominal[n] for n in ranking.layouts])
     lo, hi = ax.get_ylim()  # every range is inside the panel
     assert lo < seg[:, :, 1].min() and seg[:, :, 1].max() < hi
+
+
+def test_place_curves_shade_each_channels_percentiles_over_drawn_rooms():
+    from roommodes.analysis.predict import predict
+    from roommodes.analysis.uncertainty import predict_bands
+    from roommodes.present.plots import new_figure
+    from roommodes.present.plots_place import _curves
+
+    room = load_room(DEMO)
+    f = log_frequencies(20.0, 250.0, 12)
+    pred = predict(room, freq_hz=f)
+    band = predict_bands(room, freq_hz=f, n_samples=N_ROOMS, seed=SEED)
+    levels = ensemble_levels(room, f, n_samples=N_ROOMS, seed=SEED)[:, :, 0, :]  # (N, speakers, F) at the seat
+    fig, ax = new_figure()
+    _curves(ax, [("best", pred)], (30.0, 200.0), 180.0, [band])
+    fills = [c for c in ax.collections if c.get_paths()
+             and np.isclose(c.get_paths()[0].vertices[:, 0].max(), f[-1])]
+    assert len(fills) == 2  # one filled band per channel, on the prediction's grid
+    assert fills[0].get_label() == f"best: 10-90 % of {N_ROOMS} drawn rooms"
+    for k, coll in enumerate(fills):
+        lo, hi = _edges(coll.get_paths()[0].vertices, f)
+        np.testing.assert_allclose(lo, np.percentile(levels[:, k], 10, axis=0), atol=1e-9)
+        np.testing.assert_allclose(hi, np.percentile(levels[:, k], 90, axis=0), atol=1e-9)
+    fig, ax = new_figure()
+    _curves(ax, [("best", pred)], (30.0, 200.0), 180.0)
+    assert not any("drawn rooms" in c.get_label() for c in ax.collections)
