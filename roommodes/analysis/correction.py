@@ -54,6 +54,11 @@ class ChannelCorrection:
     cautions : tuple of str
         Cautions about the design as a whole (e.g. a band reaching above the Schroeder
         frequency), to print beside it.
+    ensemble_seat_db : ndarray (N, F) or None
+        With a design held to drawn rooms (``ensemble_levels_db``), the seat's level in
+        each of the N drawn rooms, smoothed as ``parametric.before_db`` is; ``None``
+        otherwise. :meth:`seat_band_db` gives its 10-90 % band before and after the
+        parametric filters.
     """
 
     name: str
@@ -66,6 +71,31 @@ class ChannelCorrection:
     lowcut_hz: float | None
     lowcut_order: int | None
     cautions: tuple = ()
+    ensemble_seat_db: np.ndarray | None = None
+
+    def seat_band_db(self, after=False, percentiles=(10.0, 90.0)):
+        """The seat's level over the drawn rooms: percentiles per frequency, or ``None``.
+
+        Parameters
+        ----------
+        after : bool
+            Each drawn room's seat curve with the parametric correction added
+            (``parametric.correction_db``, the filters' combined response in dB at the
+            design's sample rate), instead of the curve before it.
+        percentiles : (float, float)
+            Default the 10th and 90th.
+
+        Returns
+        -------
+        (lower_db, upper_db) : ndarray (F,) each, or None without drawn rooms.
+        """
+        if self.ensemble_seat_db is None:
+            return None
+        lv = np.asarray(self.ensemble_seat_db, dtype=float)
+        if after:
+            lv = lv + np.asarray(self.parametric.correction_db, dtype=float)[None, :]
+        lo, hi = np.percentile(lv, percentiles, axis=0)
+        return lo, hi
 
     def to_dict(self):
         """JSON-ready values: one entry of ``eq --json``'s ``channels`` (shared/ARCHITECTURE.md)."""
@@ -243,7 +273,7 @@ def correct_curve(name, freq_hz, level_db, *, band_hz=None, target="flat", tilt_
         clean = eq.max_clean_spl(f, lv, speaker.amplifier_w, speaker.sensitivity_db, speaker.max_spl_db,
                                  correction_db=par.correction_db, preattenuation_db=head.preattenuation_db)
     return ChannelCorrection(name, par, shelf, g3, g1, head, clean, lowcut_hz, lowcut_order,
-                             tuple(cautions))
+                             tuple(cautions), None if ens is None else ens[:, 0].copy())
 
 
 def _mode_list(room, fmax_hz):

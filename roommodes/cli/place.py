@@ -292,7 +292,15 @@ def place(room_file, top, weights, band, points_per_octave, plot_path, layout_pa
             fail(str(exc))
         echo_err(f"wrote {layout_path}")
     if plot_path:
-        _place_plot(room, space, res, plot_path, best.layout)
+        spread = None
+        if ranking is not None:
+            spread = [(f"#{s.name}", s.score, float(ranking.p10[k]), float(ranking.median[k]), float(ranking.p90[k]))
+                      for k, s in enumerate(ranking.layouts)]
+            if current_spread is not None:
+                spread.append(("file", res.current.score, current_spread["score_p10"],
+                               current_spread["score_median"], current_spread["score_p90"]))
+        _place_plot(room, space, res, plot_path, best.layout, spread, samples,
+                    {"n_samples": samples, "seed": seed} if ranking is not None else None)
         echo_err(f"wrote {plot_path}")
 
 
@@ -345,7 +353,7 @@ def _print_ensemble(room, res, ranking, current_spread, samples, seed, elapsed, 
                    "the room file knows, either may turn out better.")
 
 
-def _place_plot(room, space, res, path, best=None):
+def _place_plot(room, space, res, path, best=None, score_spread=None, n_rooms=None, drawn=None):
     from ..analysis.predict import predict
     from ..analysis.search import layout_curves, layout_sweep, seat_score_map
     from ..present.plots_place import plot_place
@@ -355,6 +363,13 @@ def _place_plot(room, space, res, path, best=None):
     current = room.layout if room.layout is not None and len(room.layout.speakers) >= 2 else None
     if current is not None:
         preds.append(("current", predict(room, current)))
+    bands = None
+    if drawn is not None:
+        # the curves of (a) over rooms drawn with the same count and seed, with the curves' own solver
+        from ..analysis.uncertainty import predict_bands
+
+        bands = [predict_bands(room, lay, p.freq_hz, method=p.method, **drawn)
+                 for lay, (_, p) in zip((best, current), preds)]
     kw = {"weights": res.weights, "band_hz": res.band_hz, "area_m": space.area_m, "area_points": space.area_points}
     seat_map = seat_score_map(room, best, **kw)
     profile = layout_sweep(room, best, space, weights=res.weights, band_hz=res.band_hz)
@@ -362,7 +377,8 @@ def _place_plot(room, space, res, path, best=None):
     if current is not None:
         eq_curves.append(("current", layout_curves(room, current, space, res.band_hz)))
     plot_place(room, best, current, preds, res.band_hz, preds[0][1].schroeder_hz, seat_map, profile,
-               space.keep_out, path=path, eq_curves=eq_curves, space=space,
+               space.keep_out, path=path, eq_curves=eq_curves, space=space, score_spread=score_spread,
+               n_rooms=n_rooms, bands=bands,
                sweep_label="speakers' distance from the front wall (cm)"
                + ("" if space.seat_fixed_m is not None else "; the seat moves with them"))
 

@@ -285,7 +285,9 @@ def plot_correction(corrections, title=None, path=None):
     One row of two panels per channel: left, the levels at the seat (and, faint, at the
     head positions around it) with the classified regions shaded (nulls and narrow dips
     are not boosted) and the design band between dotted lines; right, the combined
-    correction curve and each filter.
+    correction curve and each filter. A correction held to drawn rooms
+    (``ChannelCorrection.ensemble_seat_db``) also shades the seat's 10-90 % band over
+    those rooms before and after the parametric filters.
     """
     # imported here, not at the top: the EQ pulls in scipy.optimize, which `predict` never needs
     from ..analysis.eq import correction_db
@@ -305,6 +307,12 @@ def plot_correction(corrections, title=None, path=None):
             ax.plot(f, pa, color=PALETTE[1], lw=0.5, alpha=0.35, label="head positions, after" if k == 0 else None)
         ax.axvline(d.band_hz[0], color="0.6", lw=0.7, ls=":")
         ax.axvline(d.band_hz[1], color="0.6", lw=0.7, ls=":")
+        if corr.ensemble_seat_db is not None:
+            n_rooms = len(corr.ensemble_seat_db)
+            for after, colour, when in ((False, PALETTE[0], "before"), (True, PALETTE[1], "after")):
+                lo, hi = corr.seat_band_db(after=after)
+                ax.fill_between(f, lo, hi, color=colour, alpha=0.2, lw=0,
+                                label=f"seat {when}: 10-90 % of {n_rooms} drawn rooms")
         ax.plot(f, d.before_db, color=PALETTE[0], lw=1.3, label="before (seat)")
         ax.plot(f, d.after_db, color=PALETTE[1], lw=1.6, label="after (parametric)")
         ax.plot(f, d.target_db, color="0.2", lw=1.0, ls="--", label="target")

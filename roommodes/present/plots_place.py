@@ -13,11 +13,17 @@ from .plots import PALETTE, new_figure, save_figure, shade_invalid, style_freque
 __all__ = ["plot_place", "plot_explain"]
 
 
-def _curves(ax, predictions, band_hz, schroeder_hz):
+def _curves(ax, predictions, band_hz, schroeder_hz, bands=None):
     styles = ("-", "--")
     colors = (PALETTE[1], "0.45")  # best, current: as on the floor plan
     for i, (label, pred) in enumerate(predictions):
+        band = bands[i] if bands is not None and i < len(bands) else None
         for j, ch in enumerate(pred.channels[:2]):
+            if band is not None and ch.name in band.names:
+                lo, _, hi = band.channel(ch.name)
+                ax.fill_between(band.freq_hz, lo, hi, color=colors[i % 2], alpha=0.16, lw=0,
+                                label=f"{label}: 10-90 % of {band.n_samples} drawn rooms"
+                                if j == 0 else None)
             ax.plot(pred.freq_hz, ch.level_db, color=colors[i % 2], ls=styles[j % 2], lw=1.4,
                     label=f"{label}: {ch.name}")
     f = predictions[0][1].freq_hz
@@ -30,7 +36,7 @@ def _curves(ax, predictions, band_hz, schroeder_hz):
     lv = np.concatenate([c.level_db for _, p in predictions for c in p.channels[:2]])
     ax.set_ylim(np.floor(np.percentile(lv, 1) / 5) * 5 - 5, np.ceil(lv.max() / 5) * 5 + 5)
     ax.set_ylabel("Level at seat (dB re free field at 1 m)")
-    ax.legend(fontsize=7.5, ncol=2, loc="lower center")
+    ax.legend(fontsize=7.5 if bands is None else 7, ncol=2, loc="lower center")
     ax.set_title(f"(a) Predicted level at the seat; score band {band_hz[0]:g}-{band_hz[1]:g} Hz", fontsize=10)
 
 
@@ -131,10 +137,40 @@ def _profile(ax, profile, chosen_m, xlabel=None):
     ax.set_title("(d) Score along one variable through the best layout", fontsize=10)
 
 
+def _score_spread(ax, spread, n_rooms):
+    """Each layout's nominal score beside the 10-90 % range (and median) of its scores over the drawn rooms."""
+    x = np.arange(len(spread), dtype=float)
+    nominal = np.array([s[1] for s in spread], dtype=float)
+    p10 = np.array([s[2] for s in spread], dtype=float)
+    median = np.array([s[3] for s in spread], dtype=float)
+    p90 = np.array([s[4] for s in spread], dtype=float)
+    # the file's layout in grey, as on the floor plan; the finalists in the palette's first colour
+    colours = ["0.45" if s[0] == "file" else PALETTE[0] for s in spread]
+    ax.vlines(x + 0.08, p10, p90, colors=colours, lw=5, alpha=0.45,
+              label=f"10-90 % of {n_rooms} drawn rooms")
+    ax.scatter(x + 0.08, median, marker="_", s=260, c=colours, linewidths=2.2, zorder=4,
+               label=f"median of {n_rooms} drawn rooms")
+    ax.scatter(x - 0.12, nominal, marker="o", s=30, facecolors="white", edgecolors=colours, linewidths=1.4,
+               zorder=4, label="nominal (the room file as stated)")
+    ax.set_xticks(x, [s[0] for s in spread])
+    ax.set_xlim(-0.6, len(spread) - 0.4)
+    ax.set_xlabel("layout, best median first (#: rank of the nominal search)", fontsize=8.5)
+    ax.set_ylabel("score (dB, lower is better)")
+    ax.grid(True, axis="y", alpha=0.3)
+    ax.legend(fontsize=7, ncol=3, loc="upper left")
+    lo, hi = float(min(p10.min(), nominal.min())), float(max(p90.max(), nominal.max()))
+    pad = max(0.3, 0.15 * (hi - lo))
+    ax.set_ylim(lo - pad, hi + 2.5 * pad)  # room for the legend above the bars
+    ax.set_title("(e) How sure each layout's score is: nominal, and over rooms drawn from [uncertainty]",
+                 fontsize=10)
+
+
 def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map, profile, keep_out=(),
-               title=None, path=None, eq_curves=None, space=None, sweep_label=None):
+               title=None, path=None, eq_curves=None, space=None, sweep_label=None, score_spread=None,
+               n_rooms=None, bands=None):
     """The placement figure: (a) predicted levels, (b) before/after EQ, (c) floor plan with
-    the seat-score map and the boxes, (d) the score along one variable through the best layout.
+    the seat-score map and the boxes, (d) the score along one variable through the best layout,
+    and, with scores over drawn rooms, (e) each layout's 10-90 % range beside its nominal score.
 
     Parameters
     ----------
@@ -157,9 +193,26 @@ def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map
         When given, the boxes are drawn on the floor plan.
     sweep_label : str, optional
         The x label of (d).
+    score_spread : list of (label, nominal_db, p10_db, median_db, p90_db), optional
+        With rooms drawn from ``[uncertainty]``: each layout's nominal score and the 10th
+        percentile, median and 90th percentile of its scores over the ``n_rooms`` drawn
+        rooms, best median first (the file's layout labelled ``"file"``). Adds a panel (e)
+        that shows each range beside the nominal score.
+    n_rooms : int, optional
+        How many rooms were drawn (for the legend of (e)).
+    bands : list of Bands or None, optional
+        One per prediction (:func:`roommodes.analysis.uncertainty.predict_bands`): each
+        channel's 10-90 % band over the drawn rooms is shaded in (a) in its layout's colour.
     """
-    fig, axes = new_figure(12.0, 10.0, 2, 2)
-    _curves(axes[0, 0], predictions, band_hz, schroeder_hz)
+    if score_spread:
+        fig, axes = new_figure(12.0, 13.2, 3, 2, gridspec_kw={"height_ratios": (1.0, 1.0, 0.55)})
+        gs = axes[2, 0].get_gridspec()
+        for a in axes[2]:
+            a.remove()
+        _score_spread(fig.add_subplot(gs[2, :]), score_spread, n_rooms)
+    else:
+        fig, axes = new_figure(12.0, 10.0, 2, 2)
+    _curves(axes[0, 0], predictions, band_hz, schroeder_hz, bands)
     _eq_curves(axes[0, 1], eq_curves, band_hz)
     _floor_plan(axes[1, 0], room, best, current, keep_out, seat_map, space)
     _profile(axes[1, 1], profile, best.speakers[0].position_m[0], sweep_label)

@@ -6,6 +6,7 @@ checks those against coverage on random rooms)."""
 import json
 
 import numpy as np
+import pytest
 from click.testing import CliRunner
 
 from roommodes import demo_room_path, load_room, log_frequencies
@@ -115,3 +116,50 @@ def test_place_uncertainty_method_is_selectable(tmp_path):
     np.testing.assert_allclose(a, b, atol=0.88)  # modal vs exact level error p90 (docs/validation.md)
     bad = run(*base, "--uncertainty-method", "nope")
     assert bad.exit_code == 2 and bad.stderr.count("\n") == 1 and "--uncertainty-method" in bad.stderr
+
+
+def _spread_panel(fig):
+    """Panel (e) of the place figure, or None."""
+    return next((ax for ax in fig.axes if ax.get_title().startswith("(e)")), None)
+
+
+@pytest.mark.slow  # two placement searches with figures: about 12 s
+def test_place_plot_shows_each_layouts_spread_beside_its_nominal_score(tmp_path, monkeypatch):
+    from roommodes.present import plots_place
+
+    figures = []
+    original = plots_place.plot_place
+
+    def keep(*a, **kw):
+        figures.append(original(*a, **kw))
+        return figures[-1]
+
+    monkeypatch.setattr(plots_place, "plot_place", keep)
+    room = tmp_path / "room.toml"
+    room.write_text(open(DEMO, encoding="utf-8").read() + "\n[search]\nstep_m = 0.3\n", encoding="utf-8")
+    base = ("place", room, "--top", 3, "--method", "modal", "--points-per-octave", 12, "--json")
+    res = run(*base, "--uncertainty", "--samples", 6, "--seed", 9, "--plot", tmp_path / "p.png")
+    assert res.exit_code == 0, res.output
+    data = json.loads(res.stdout)
+    ax = _spread_panel(figures[-1])
+    assert ax is not None
+    rows = data["ranked"] + [data["current"]]
+    assert [t.get_text() for t in ax.get_xticklabels()] == [f"#{r['name']}" for r in data["ranked"]] + ["file"]
+    bars = next(c for c in ax.collections if c.get_label() == "10-90 % of 6 drawn rooms")
+    seg = np.array(bars.get_segments())  # (K, 2, 2): each layout's bar from p10 to p90
+    np.testing.assert_allclose(seg[:, 0, 1], [r["score_p10"] for r in rows], atol=1e-12)
+    np.testing.assert_allclose(seg[:, 1, 1], [r["score_p90"] for r in rows], atol=1e-12)
+    med = next(c for c in ax.collections if c.get_label() == "median of 6 drawn rooms")
+    np.testing.assert_allclose(med.get_offsets()[:, 1], [r["score_median"] for r in rows], atol=1e-12)
+    nom = next(c for c in ax.collections if c.get_label().startswith("nominal"))
+    np.testing.assert_allclose(nom.get_offsets()[:, 1], [r["score"] for r in rows], atol=1e-12)
+    assert np.all(nom.get_offsets()[:, 0] < seg[:, 0, 0])  # beside the bar, not on it
+    # panel (a): each layout's curves with their band (tests/present/test_plot_bands.py checks the values)
+    curves = next(ax for ax in figures[-1].axes if ax.get_title().startswith("(a)"))
+    labels = [c.get_label() for c in curves.collections if "drawn rooms" in c.get_label()]
+    assert labels == ["best: 10-90 % of 6 drawn rooms", "current: 10-90 % of 6 drawn rooms"]
+    # without --uncertainty: no panel (e), nothing drawn as a spread
+    res = run(*base, "--plot", tmp_path / "q.png")
+    assert res.exit_code == 0, res.output
+    assert _spread_panel(figures[-1]) is None
+    assert not any("drawn rooms" in c.get_label() for a in figures[-1].axes for c in a.collections)
