@@ -237,7 +237,8 @@ spl_ref_option = click.option(
     "--spl-ref", "spl_ref", metavar="DB@HZ:FILE|DBW@noise:FILE",
     help="Absolute level, from a recording made through the same microphone, interface and input gain as "
          "the measurements: of an acoustic calibrator (94@1000:cal.wav, 94 dB SPL at 1 kHz), or of "
-         "`roommodes noise` played at the seat while a sound-level meter beside the microphone reads it "
+         "`roommodes noise` played at the seat (75-85 dB SPL is enough: mind your hearing) while a sound-level meter "
+         "beside the microphone reads it "
          "(82C@noise:pink.wav: 82 dB, C-weighted, slow; Z for unweighted; 85Z@30-200:FILE for noise made with "
          "--band 30,200). Levels are then in dB SPL (for impulse responses: per full-scale input at the "
          "playback volume used). Without it, levels are relative and aligned.")
