@@ -221,6 +221,29 @@ def test_meter_reading_of_band_limited_noise():
     assert ref.full_scale_spl_db == pytest.approx(85.0 + 25.0, abs=0.2)
 
 
+def _room_coloured(x):
+    """``x`` through a +15 dB peak at 42 Hz (Q 8) and a -12 dB dip at 90 Hz (Q 4): peaking
+    biquads of the Audio EQ Cookbook (R. Bristow-Johnson, memory), a room mode and a cancellation."""
+    from scipy import signal
+
+    for f0, gain_db, q in ((42.0, 15.0, 8.0), (90.0, -12.0, 4.0)):
+        a_ = 10 ** (gain_db / 40)
+        w0 = 2 * np.pi * f0 / FS
+        al = np.sin(w0) / (2 * q)
+        x = signal.lfilter([1 + al * a_, -2 * np.cos(w0), 1 - al * a_], [1 + al / a_, -2 * np.cos(w0), 1 - al / a_], x)
+    return x
+
+
+def test_meter_reading_of_room_coloured_subwoofer_noise():
+    # the level a Z meter reads is the rms of the whole (band-limited) signal: 10 log10(2 mean x^2)
+    # dBFS (AES17 full-scale sine convention), taken over the same middle 80 % the analysis uses
+    y = _room_coloured(_pink(-25.0, 12.0, f_low_hz=30.0, f_high_hz=200.0))
+    n0 = y.size // 10
+    true_dbfs = 10 * np.log10(2 * np.mean(y[n0:y.size - n0] ** 2))
+    ref = meter_reference(y, FS, 85.0, "Z", (30.0, 200.0))
+    assert ref.full_scale_spl_db == pytest.approx(85.0 - true_dbfs, abs=0.05)
+
+
 def _sweep():
     from roommodes.measure.sweep import exponential_sweep
 
@@ -235,6 +258,7 @@ def _sweep():
     (lambda: np.clip(_pink(-5.0, max_crest_db=6.0) * 4, -1, 1), (82.0, "C"), "clipped"),
     (lambda: _pink(-75.0), (82.0, "C"), "too quiet"),
     (lambda: tone(0.1, seconds=8.0), (82.0, "C"), "not broadband noise"),
+    (lambda: tone(0.1, 1120.0, seconds=8.0), (82.0, "C"), "not broadband noise"),  # on a 1/3-octave band edge
     (_sweep, (82.0, "C"), "not steady noise"),
     (lambda: _pink(), (82.0, "C", (30.0, 200.0)), "outside 30-200 Hz"),
 ])
