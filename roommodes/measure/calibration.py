@@ -53,6 +53,8 @@ METER_SPL_RANGE_DB = (40.0, 130.0)
 METER_WEIGHTINGS = ("C", "Z")
 #: Shortest noise recording, s: a meter on slow (1 s time constant) needs several seconds to settle.
 _NOISE_MIN_S = 5.0
+#: Longest stretch of a noise recording analysed, s (its middle).
+_NOISE_MAX_S = 60.0
 #: Quietest in-band noise recording, dBFS: below it the interface's own noise and hum weigh in.
 _NOISE_MIN_DBFS = -60.0
 #: Largest typical (median over the 1/3-octave bands) standard deviation of a band's level
@@ -254,7 +256,8 @@ def noise_level_dbfs(x, fs_hz, band_hz, weighting="C"):
 
     Notes
     -----
-    The first and last 10 % are left out (the noise starting and stopping). The
+    The first and last 10 % are left out (the noise starting and stopping), and of a longer
+    recording only the middle 60 s is used. The
     rest's periodogram (one DFT of the whole segment, no window; its bins add up to the mean
     square, Parseval) has each bin weighted by ``10**(W(f)/10)``, ``W`` the meter weighting
     (:func:`roommodes.io.importers.weighting_db`), and summed over the band: the power a
@@ -263,6 +266,10 @@ def noise_level_dbfs(x, fs_hz, band_hz, weighting="C"):
     x = np.asarray(x, dtype=float)
     n0 = x.size // 10
     seg = x[n0:x.size - n0]
+    n_max = int(_NOISE_MAX_S * fs_hz)
+    if seg.size > n_max:  # bounded work and memory: the middle minute is plenty for a level
+        k0 = (seg.size - n_max) // 2
+        seg = seg[k0:k0 + n_max]
     seg = seg - np.mean(seg)
     # periodogram of the whole segment (no window): by Parseval its bins add up to the
     # segment's mean square exactly, so an unweighted band-limited recording reads its rms
