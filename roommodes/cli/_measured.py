@@ -17,7 +17,7 @@ from ..dsp.response import log_frequencies
 from ..io.files import WAV_FILE_BYTES, InputFileError, open_regular
 from ..io.importers import read_response_text
 from ..io.wavio import read_wav
-from ..measure.calibration import calibrator_reference
+from ..measure.calibration import calibrator_reference, meter_reference
 from ..present.units import parse_lengths
 from ._util import fail
 
@@ -155,27 +155,63 @@ _SPL_REF = re.compile(r"^\s*([0-9]+(?:\.[0-9]*)?)\s*(?:db)?\s*(?:@\s*([0-9]+(?:\
                       re.IGNORECASE)
 
 
+#: The meter form: LEVEL, the meter's weighting, "@noise" or "@LOW-HIGH" (the noise's band, Hz), ":FILE".
+_SPL_METER = re.compile(r"^\s*([0-9]+(?:\.[0-9]*)?)\s*(?:db)?\s*\(?\s*([a-z]*)\s*\)?\s*@\s*"
+                        r"(noise|([0-9]+(?:\.[0-9]*)?)\s*-\s*([0-9]+(?:\.[0-9]*)?)\s*(?:hz)?)\s*:(.+)$", re.IGNORECASE)
+
+_SPL_REF_FORMS = ("DB@HZ:FILE, a calibrator's level and frequency and its recording through the measurement chain "
+                  "(e.g. 94@1000:cal.wav), or DBW@noise:FILE, a sound-level meter's reading with its weighting "
+                  "(C or Z) and a recording of `roommodes noise` at the meter (e.g. 82C@noise:pink-seat.wav; "
+                  "85Z@30-200:FILE for noise made with --band 30,200)")
+
+
 def spl_ref_input(text):
-    """The calibrator recording named by ``--spl-ref`` as a list of one Path (empty when not given
-    or unreadable as DB@HZ:FILE), for the list of inputs no output may overwrite."""
-    m = _SPL_REF.match(text) if text else None
+    """The recording named by ``--spl-ref`` as a list of one Path (empty when not given or not
+    readable as either form), for the list of inputs no output may overwrite."""
+    if not text:
+        return []
+    m = _SPL_METER.match(text)
+    if m:
+        return [Path(m.group(6).strip())]
+    m = _SPL_REF.match(text)
     return [Path(m.group(4).strip())] if m else []
 
 
 def read_spl_ref(text, wav_channel=None):
-    """The ``--spl-ref DB@HZ:FILE`` calibrator recording as an SplReference (None when not given)."""
+    """``--spl-ref`` as an SplReference (None when not given): ``DB@HZ:FILE``, a calibrator
+    recording, or ``DBW@noise:FILE`` / ``DBW@LOW-HIGH:FILE``, a meter reading (weighting W,
+    C or Z) of noise recorded at the meter."""
     if text is None:
         return None
+    meter = _SPL_METER.match(text)
+    if meter is not None:
+        return _read_meter_ref(text, meter, wav_channel)
     m = _SPL_REF.match(text)
     if m is None:
-        fail(f"--spl-ref must be DB@HZ:FILE, the calibrator's level and frequency and its recording through the "
-             f"measurement chain (e.g. 94@1000:cal.wav, or 94:cal.wav for 1 kHz); got '{text}'")
+        fail(f"--spl-ref must be {_SPL_REF_FORMS}; got '{text}'")
     spl = float(m.group(1))
     hz = 1000.0 if m.group(2) is None else float(m.group(2)) * (1000.0 if (m.group(3) or "").lower() == "khz" else 1.0)
     path = m.group(4).strip()
     x, fs, _ = read_wav_or_fail(path, wav_channel, "calibrator recording")
     try:
         return calibrator_reference(x, fs, spl, hz, source=Path(path).name)
+    except ValueError as exc:
+        fail(f"--spl-ref {text}: {exc}")
+
+
+def _read_meter_ref(text, m, wav_channel):
+    letter = m.group(2).upper()
+    if letter not in ("C", "Z"):
+        got = f"got '{m.group(2)}'" if letter else "none given"
+        why = ("; A-weighting discounts the bass by up to 50 dB: set the meter to C (or Z, flat) and read it again"
+               if letter == "A" else "")
+        fail(f"--spl-ref {text}: give the meter's weighting after the level, C or Z (e.g. 82C@noise:FILE), "
+             f"{got}{why}")
+    band = None if m.group(4) is None else (float(m.group(4)), float(m.group(5)))
+    path = m.group(6).strip()
+    x, fs, _ = read_wav_or_fail(path, wav_channel, "noise recording")
+    try:
+        return meter_reference(x, fs, float(m.group(1)), letter, band, source=Path(path).name)
     except ValueError as exc:
         fail(f"--spl-ref {text}: {exc}")
 
@@ -198,11 +234,14 @@ mic_cal_option = click.option(
 
 
 spl_ref_option = click.option(
-    "--spl-ref", "spl_ref", metavar="DB@HZ:FILE",
-    help="Absolute level: a recording of an acoustic calibrator (e.g. 94@1000:cal.wav, 94 dB SPL at 1 kHz) "
-         "made through the same microphone, interface and input gain as the measurements. Levels are then in "
-         "dB SPL (for impulse responses: per full-scale input at the playback volume used). Without it, levels "
-         "are relative and aligned.")
+    "--spl-ref", "spl_ref", metavar="DB@HZ:FILE|DBW@noise:FILE",
+    help="Absolute level, from a recording made through the same microphone, interface and input gain as "
+         "the measurements: of an acoustic calibrator (94@1000:cal.wav, 94 dB SPL at 1 kHz), or of "
+         "`roommodes noise` played at the seat (75-85 dB SPL is enough: mind your hearing) while a sound-level meter "
+         "beside the microphone reads it "
+         "(82C@noise:pink.wav: 82 dB, C-weighted, slow; Z for unweighted; 85Z@30-200:FILE for noise made with "
+         "--band 30,200). Levels are then in dB SPL (for impulse responses: per full-scale input at the "
+         "playback volume used). Without it, levels are relative and aligned.")
 
 
 def measured_files_options(f):

@@ -158,3 +158,166 @@ def test_report_shows_the_measured_maximum_level_with_the_calibration(tmp_path):
     assert levels["right"]["basis"] == "model"  # the unmeasured channel keeps the room file's figures
     page = (tmp_path / "r.html").read_text()
     assert "0 dBFS = 114.00 dB SPL" in page
+
+
+# --------------------------------------------------------------------------- meter reading of noise
+# Check values and their sources:
+# - C-weighting of IEC 61672-1:2013, Table 3, at the exact base-10 frequencies 1000*10^(x/10)
+#   (rounded to 0.1 dB; from memory): 20 Hz -6.2, 25 -4.4, 31.5 -3.0, 40 -2.0, 50 -1.3, 63 -0.8,
+#   80 -0.5, 100 -0.3, 125 -0.2, 160 -0.1, 200-1250 0.0, 1600 -0.1, 2000 -0.2, 2500 -0.3,
+#   3150 -0.5, 4000 -0.8, 5000 -1.3, 6300 -2.0, 8000 -3.0, 10000 -4.4, 12500 -6.2, 16000 -8.5,
+#   20000 -11.2 dB;
+# - pink noise has equal power in every 1/3-octave band (definition; IEC 61260-1 base-10
+#   bands), so its C-weighted level is its unweighted level plus 10 log10 of the power mean of
+#   the band weightings, the bands at the ends of a 20 Hz - 20 kHz noise counted by the
+#   fraction of their log-width the noise covers (common practice: the band-sum method);
+# - the SPL of full scale is the meter's reading minus the recording's level weighted the same
+#   way (the calibrator relation L_fs = L_ref - L_rec, with the meter in place of the calibrator).
+# Hearing: these signals are synthetic and never played; playing pink noise for a meter reading
+# needs no more than 75-85 dB SPL at the seat (see the `noise` command's caution).
+
+from roommodes.measure.calibration import meter_reference, noise_level_dbfs  # noqa: E402
+from roommodes.measure.signals import pink_noise  # noqa: E402
+
+_C_TABLE_DB = [-6.2, -4.4, -3.0, -2.0, -1.3, -0.8, -0.5, -0.3, -0.2, -0.1] + [0.0] * 9 + [
+    -0.1, -0.2, -0.3, -0.5, -0.8, -1.3, -2.0, -3.0, -4.4, -6.2, -8.5, -11.2]  # 20 Hz .. 20 kHz
+
+
+def _c_offset_of_pink_20_20k():
+    """C-weighted minus unweighted level of pink noise in 20 Hz - 20 kHz, by the band-sum method."""
+    w = np.ones(len(_C_TABLE_DB))
+    w[0] = np.log(10**1.35 / 20.0) / np.log(10**0.1)       # 20 Hz band: 20 .. 22.4 Hz of 17.8 .. 22.4
+    w[-1] = np.log(20000.0 / 10**4.25) / np.log(10**0.1)   # 20 kHz band: 17.8 .. 20 kHz of 17.8 .. 22.4
+    return 10 * np.log10(np.sum(w * 10 ** (np.array(_C_TABLE_DB) / 10)) / np.sum(w))
+
+
+def _pink(level_dbfs=-25.0, seconds=8.0, seed=3, **band):
+    return pink_noise(FS, seconds, level_dbfs, seed=seed, **band)
+
+
+@pytest.mark.parametrize("x, table_db", [(-15, -3.0), (-12, -0.8), (0, 0.0), (9, -3.0)])
+def test_recording_is_c_weighted_as_the_meter(x, table_db):
+    # a sine of amplitude 0.1 (-20 dBFS) at 31.5 Hz, 63 Hz, 1 kHz, 8 kHz (exact 1000*10^(x/10))
+    f = 1000.0 * 10 ** (x / 10)
+    t = np.arange(6 * FS) / FS
+    level, _ = noise_level_dbfs(0.1 * np.sin(2 * np.pi * f * t), FS, (20.0, 20000.0), "C")
+    assert level == pytest.approx(-20.0 + table_db, abs=0.06)
+
+
+@pytest.mark.parametrize("weighting", ["C", "Z"])
+@pytest.mark.parametrize("level_dbfs, meter_db", [(-25.0, 82.0), (-40.0, 75.0)])
+def test_meter_reading_of_pink_noise_sets_the_spl_of_full_scale(weighting, level_dbfs, meter_db):
+    ref = meter_reference(_pink(level_dbfs), FS, meter_db, weighting, source="pink.wav")
+    offset = _c_offset_of_pink_20_20k() if weighting == "C" else 0.0
+    expected = meter_db - (level_dbfs + offset)
+    assert ref.full_scale_spl_db == pytest.approx(expected, abs=0.2)
+    assert ref.kind == "meter" and ref.weighting == weighting and ref.band_hz == (20.0, 20000.0)
+    assert f"dB({weighting})" in ref.describe()
+
+
+def test_meter_reading_of_band_limited_noise():
+    # subwoofer noise made with --band 30,200: unweighted, its whole power lies in the band
+    ref = meter_reference(_pink(-25.0, 10.0, f_low_hz=30.0, f_high_hz=200.0), FS, 85.0, "Z", (30.0, 200.0))
+    assert ref.full_scale_spl_db == pytest.approx(85.0 + 25.0, abs=0.2)
+
+
+def _room_coloured(x):
+    """``x`` through a +15 dB peak at 42 Hz (Q 8) and a -12 dB dip at 90 Hz (Q 4): peaking
+    biquads of the Audio EQ Cookbook (R. Bristow-Johnson, memory), a room mode and a cancellation."""
+    from scipy import signal
+
+    for f0, gain_db, q in ((42.0, 15.0, 8.0), (90.0, -12.0, 4.0)):
+        a_ = 10 ** (gain_db / 40)
+        w0 = 2 * np.pi * f0 / FS
+        al = np.sin(w0) / (2 * q)
+        x = signal.lfilter([1 + al * a_, -2 * np.cos(w0), 1 - al * a_], [1 + al / a_, -2 * np.cos(w0), 1 - al / a_], x)
+    return x
+
+
+def test_meter_reading_of_room_coloured_subwoofer_noise():
+    # the level a Z meter reads is the rms of the whole (band-limited) signal: 10 log10(2 mean x^2)
+    # dBFS (AES17 full-scale sine convention), taken over the same middle 80 % the analysis uses
+    y = _room_coloured(_pink(-25.0, 12.0, f_low_hz=30.0, f_high_hz=200.0))
+    n0 = y.size // 10
+    true_dbfs = 10 * np.log10(2 * np.mean(y[n0:y.size - n0] ** 2))
+    ref = meter_reference(y, FS, 85.0, "Z", (30.0, 200.0))
+    assert ref.full_scale_spl_db == pytest.approx(85.0 - true_dbfs, abs=0.05)
+
+
+def _sweep():
+    from roommodes.measure.sweep import exponential_sweep
+
+    return exponential_sweep(FS, 8.0, 20.0, 20000.0, -20.0, silence_before_s=0.0, silence_after_s=0.5)[0]
+
+
+@pytest.mark.parametrize("make, args, match", [
+    (lambda: _pink(), (82.0, "A"), "C or Z"),
+    (lambda: _pink(), (30.0, "C"), "40..130"),
+    (lambda: _pink(), (135.0, "C"), "40..130"),
+    (lambda: _pink(seconds=3.0), (82.0, "C"), "too short"),
+    (lambda: np.clip(_pink(-5.0, max_crest_db=6.0) * 4, -1, 1), (82.0, "C"), "clipped"),
+    (lambda: _pink(-75.0), (82.0, "C"), "too quiet"),
+    (lambda: tone(0.1, seconds=8.0), (82.0, "C"), "not broadband noise"),
+    (lambda: tone(0.1, 1120.0, seconds=8.0), (82.0, "C"), "not broadband noise"),  # on a 1/3-octave band edge
+    (_sweep, (82.0, "C"), "not steady noise"),
+    (lambda: _pink(), (82.0, "C", (30.0, 200.0)), "outside 30-200 Hz"),
+])
+def test_meter_reading_refuses_what_it_cannot_use(make, args, match):
+    with pytest.raises(ValueError, match=match):
+        meter_reference(make(), FS, *args, source="pink.wav")
+
+
+def test_commands_take_a_meter_reading(tmp_path):
+    rec = wav(tmp_path / "pink.wav", _pink(-25.0))  # Z: 0 dBFS = 82 + 25 = 107 dB SPL
+    ir = _delta_ir(tmp_path)                        # -40 dB: a full-scale input gives 67 dB SPL
+    ref = f"82Z@noise:{rec}"
+    res = run("compare", DEMO, ir, "--channel", "left", "--spl-ref", ref, "--json")
+    assert res.exit_code == 0, res.output
+    d = json.loads(res.stdout)
+    assert d["spl_reference"]["kind"] == "meter"
+    assert d["spl_reference"]["full_scale_spl_db"] == pytest.approx(107.0, abs=0.2)
+    assert np.all(np.abs(np.array(d["measured_db"]) - d["offset_db"] - 67.0) < 0.3)
+    res = run("eq", DEMO, "--measured", f"left={_peaked_ir(tmp_path)}", "--spl-ref", "82 dB(Z) @ noise:" + str(rec),
+              "--json")
+    assert res.exit_code == 0, res.output
+    d = json.loads(res.stdout)
+    assert d["spl_reference"]["weighting"] == "Z"
+    assert d["channels"][0]["max_clean_spl"]["before_db"][-1] == pytest.approx(67.0, abs=0.3)
+
+
+@pytest.mark.slow
+def test_fit_and_report_take_a_meter_reading(tmp_path):
+    rec = wav(tmp_path / "pink.wav", _pink(-25.0))  # Z: 0 dBFS = 107 dB SPL
+    res = run("fit", DEMO, _delta_ir(tmp_path), "--channel", "left", "-o", tmp_path / "cal.toml",
+              "--spl-ref", f"82Z@noise:{rec}")
+    assert res.exit_code == 0, res.output
+    assert "0 dBFS = 107." in res.output and "dB(Z)" in res.output
+    res = run("report", DEMO, _peaked_ir(tmp_path), "--channel", "left", "-o", tmp_path / "r.html", "--search", "off",
+              "--spl-ref", f"82Z@noise:{rec}", "--json")
+    assert res.exit_code == 0, res.output
+    levels = json.loads(res.stdout)["values"]["max_level_db"]
+    assert levels["left"]["basis"] == "measured"
+    assert levels["left"]["before_db"][-1] == pytest.approx(67.0, abs=0.3)  # -40 dB IR + 107 dB SPL
+    assert "dB(Z) at the microphone" in (tmp_path / "r.html").read_text()
+
+
+@pytest.mark.parametrize("ref, names", [
+    ("82@noise:{rec}", ["--spl-ref", "weighting", "C or Z"]),
+    ("82A@noise:{rec}", ["--spl-ref", "A-weighting"]),
+    ("200C@noise:{rec}", ["--spl-ref", "40..130"]),
+    ("82C@noise:{cal}", ["--spl-ref", "cal.wav", "broadband"]),
+    ("82C@200-30:{rec}", ["--spl-ref", "band"]),
+    ("82C@noise:{d}/missing.wav", ["missing.wav"]),
+    ("82C@loud:{rec}", ["--spl-ref", "DBW@noise:FILE"]),
+])
+def test_meter_reading_errors_are_one_line(tmp_path, ref, names):
+    rec = wav(tmp_path / "pink.wav", _pink(-25.0, 6.0))
+    cal = wav(tmp_path / "cal.wav", tone(0.1, seconds=6.0))
+    ir = _delta_ir(tmp_path)
+    res = CliRunner().invoke(main, ["compare", DEMO, str(ir), "--channel", "left", "--spl-ref",
+                                    ref.format(rec=rec, cal=cal, d=tmp_path)])
+    assert res.exit_code == 2, res.output
+    lines = [ln for ln in res.stderr.splitlines() if ln.strip()]
+    assert len(lines) == 1 and lines[0].startswith("roommodes: error:"), res.stderr
+    for n in names:
+        assert n in lines[0], lines[0]
