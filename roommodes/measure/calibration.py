@@ -148,13 +148,18 @@ def tone_level_dbfs(x, fs_hz, freq_hz):
     Notes
     -----
     The first and last 10 % are left out (handling noise when the calibrator is put on
-    and taken off). The tone's power is the power of the Hann-windowed spectrum within
-    1/3 octave of the peak, scaled by the window's noise bandwidth (Harris, Proc. IEEE 66
-    (1978) 51, table 1: 1.5 bins for Hann), which gives a sine's rms to well within 0.01 dB.
+    and taken off), and of a longer recording only the middle 60 s is used. The tone's
+    power is the power of the Hann-windowed spectrum within 1/3 octave of the peak, scaled
+    by the window's noise bandwidth (Harris, Proc. IEEE 66 (1978) 51, table 1: 1.5 bins for
+    Hann), which gives a sine's rms to well within 0.01 dB.
     """
     x = np.asarray(x, dtype=float)
     n0 = x.size // 10
     seg = x[n0:x.size - n0]
+    n_max = int(_NOISE_MAX_S * fs_hz)
+    if seg.size > n_max:  # bounded work and memory: the middle minute is plenty for a steady tone
+        k0 = (seg.size - n_max) // 2
+        seg = seg[k0:k0 + n_max]
     seg = seg - np.mean(seg)
     if seg.size < 1024:
         raise ValueError(f"the calibrator recording is too short ({x.size / fs_hz:.2f} s); record at least 2 s")

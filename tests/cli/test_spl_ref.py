@@ -321,3 +321,14 @@ def test_meter_reading_errors_are_one_line(tmp_path, ref, names):
     assert len(lines) == 1 and lines[0].startswith("roommodes: error:"), res.stderr
     for n in names:
         assert n in lines[0], lines[0]
+
+
+def test_a_long_calibrator_recording_is_read_from_its_middle_minute():
+    # bounded work: a 3-minute tone is analysed over 60 s and still reads its level
+    from roommodes.measure.calibration import tone_level_dbfs
+
+    fs = 8000.0
+    t = np.arange(int(180 * fs)) / fs
+    x = 0.1 * np.sin(2 * np.pi * 1000.0 * t)  # -20 dBFS: a full-scale sine is 0 dBFS (docstring)
+    level, tone_hz, _ = tone_level_dbfs(x, fs, 1000.0)
+    assert abs(level + 20.0) < 0.01 and abs(tone_hz - 1000.0) < 0.5
