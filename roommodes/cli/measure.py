@@ -352,6 +352,10 @@ def noise(out, fs_hz, duration_s, level_dbfs, band, seed, subtype, force, as_jso
                    f"rms, crest factor {crest:.1f} dB, {subtype}.")
         click.echo("Next: play it through ONE speaker, record at the seat, then "
                    "`roommodes bands RECORDING.wav -o bands.txt`; or read a meter in 1/3-octave bands.")
+        band = "noise" if (lo, hi) == (20.0, 20000.0) else f"{lo:g}-{hi:g}"
+        click.echo("To make the measurement chain absolute: read a sound-level meter (C or Z, slow) beside "
+                   f"the microphone while recording this noise, then give `--spl-ref 80C@{band}:RECORDING.wav` "
+                   "(your reading) to compare, fit, eq --measured or report (docs/measurement.md).")
     _echo_lines("How to measure:", GUIDANCE)
     _cautions()
 
