@@ -270,12 +270,21 @@ EQ_MAX_CUT_DB = 15.0
 def _proxy_from_smoothed(level3_db, proj, points3_db=None):
     """Correction toward the line of ``level3_db`` (..., Fb): cuts follow the mean; a boost
     is only as large as the shortfall every point (..., A, Fb) shares."""
+    if points3_db is None:
+        return _proxy_from_extremes(level3_db, proj)
+    return _proxy_from_extremes(level3_db, proj, np.min(points3_db, axis=-2), np.max(points3_db, axis=-2))
+
+
+def _proxy_from_extremes(level3_db, proj, low3_db=None, high3_db=None):
+    """:func:`_proxy_from_smoothed` from the lowest and highest level over the points
+    (..., Fb) instead of all of them: the shortfalls ``trend - L_a`` are smallest at the
+    highest ``L_a`` and largest at the lowest (rounded subtraction is monotone, so this
+    is the same result to the bit)."""
     trend = level3_db - level3_db @ proj
     corr = trend - level3_db
-    if points3_db is not None:
-        short = trend[..., None, :] - points3_db
-        corr = np.where(corr > 0, np.clip(np.min(short, axis=-2), 0.0, None),
-                        0.5 * (corr + np.clip(np.max(short, axis=-2), None, 0.0)))
+    if low3_db is not None:
+        corr = np.where(corr > 0, np.clip(trend - high3_db, 0.0, None),
+                        0.5 * (corr + np.clip(trend - low3_db, None, 0.0)))
     return np.clip(corr, -EQ_MAX_CUT_DB, EQ_MAX_BOOST_DB)
 
 
@@ -396,6 +405,8 @@ class _Scorer:
         eye = np.eye(f.size)
         self.smooth6 = np.ascontiguousarray(smooth_fractional_octave(f, eye, _SMOOTH_FRACTION)[:, self.sel])
         self.smooth3 = np.ascontiguousarray(smooth_fractional_octave(f, eye, _BROAD_FRACTION)[:, self.sel])
+        #: both smoothings side by side: one GEMM of twice the width costs less than two
+        self.smooth63 = np.ascontiguousarray(np.concatenate([self.smooth6, self.smooth3], axis=1))
         self.proj = _line_projection(f[self.sel])
         self.offsets = area_offsets(area_m, area_points)
         self.seat_row = self.offsets.shape[0] // 2
@@ -468,13 +479,24 @@ class _Scorer:
         over the listening area, unless ``correction_db`` (..., Fb) is given: the EQ of the
         nominal layout, kept when the objects are moved (robustness).
         """
-        power = (h.real**2 + h.imag**2) * self.speaker_power[channel]
-        ls = 10 * np.log10(np.maximum(power @ self.smooth6, _TINY))  # (..., A, Fb)
+        power = np.square(h.real)  # (h.real**2 + h.imag**2) * speaker power, in place
+        power += np.square(h.imag)
+        power *= self.speaker_power[channel]
+        fb = self.smooth6.shape[1]
+        if correction_db is None:
+            p63 = power @ self.smooth63
+            p6, p3 = p63[..., :fb], p63[..., fb:]
+        else:
+            p6 = power @ self.smooth6
+        ls = 10 * np.log10(np.maximum(p6, _TINY))  # (..., A, Fb), dB
         seat = ls[..., self.seat_row, :]
         if correction_db is None:
-            p3 = power @ self.smooth3
             mean3 = 10 * np.log10(np.maximum(p3.mean(axis=-2), _TINY))
-            correction_db = _proxy_from_smoothed(mean3, self.proj, 10 * np.log10(np.maximum(p3, _TINY)))
+            # only the lowest and highest point enter the boost limit: two logarithms per
+            # frequency instead of A (log10 is monotone)
+            low3 = 10 * np.log10(np.maximum(np.min(p3, axis=-2), _TINY))
+            high3 = 10 * np.log10(np.maximum(np.max(p3, axis=-2), _TINY))
+            correction_db = _proxy_from_extremes(mean3, self.proj, low3, high3)
         after = seat + correction_db
         resid = after @ self.proj
         return {
@@ -1081,14 +1103,31 @@ def layout_distance_m(a, b):
 
 def _distinct(vecs, scores, min_m, limit=None):
     """Indices of layouts, best first, each at least ``min_m`` (:func:`layout_distance_m`)
-    from every better one kept."""
+    from every better one kept.
+
+    Greedy in score order. Each layout kept updates every layout's distance to its nearest
+    kept one in one array pass, so the loop runs once per kept layout, not once per layout
+    (the same distances as pairwise :func:`layout_distance_m`, bit for bit).
+    """
     v = np.asarray(vecs, dtype=float)
-    kept = []
-    for i in np.argsort(scores, kind="stable"):
-        if not kept or np.min(layout_distance_m(v[kept], v[i])) >= min_m - 1e-9:
-            kept.append(int(i))
-            if limit is not None and len(kept) >= limit:
-                break
+    order = np.argsort(scores, kind="stable")
+    if order.size == 0:
+        return []
+    vo = v[order].reshape(order.size, 3, 3)
+    nearest_m = np.full(order.size, np.inf)
+    threshold_m = min_m - 1e-9
+    kept, pos = [], 0
+    while True:
+        kept.append(int(order[pos]))
+        if limit is not None and len(kept) >= limit:
+            break
+        rest = vo[pos + 1:]
+        d_m = np.sqrt(np.max(np.sum((vo[pos] - rest) ** 2, axis=-1), axis=-1))
+        np.minimum(nearest_m[pos + 1:], d_m, out=nearest_m[pos + 1:])
+        ok = np.flatnonzero(nearest_m[pos + 1:] >= threshold_m)
+        if ok.size == 0:
+            break
+        pos += 1 + int(ok[0])
     return kept
 
 
