@@ -839,6 +839,12 @@ def _coarse_plan(room, space, step, count_only=False):
 
     With ``count_only``, only the number of (speaker position, seat) pairs to evaluate.
     """
+    plan, count = _counted_plan(room, space, step)
+    return count if count_only else plan
+
+
+def _counted_plan(room, space, step):
+    """:func:`_coarse_plan` and the number of (speaker position, seat) pairs it holds."""
     cons = _Constraints(room, space)
     size = cons.size
     seats = _seat_grid(space, size, step)
@@ -898,7 +904,7 @@ def _coarse_plan(room, space, step, count_only=False):
                          f"{space.rear_clearance_m * 100:g} cm or more off it and the seat "
                          f"{space.seat_front_m[0]:g}-{space.seat_front_m[1]:g} m from it, {what} cannot be "
                          "met; widen the ranges")
-    return count if count_only else plan
+    return plan, count
 
 
 def _distance_possible(points, seat, space):
@@ -915,11 +921,10 @@ def _choose_step(room, space, flop_per_pair):
     fits :data:`COARSE_BUDGET_FLOP`) and its plan."""
     if space.step_m is not None:
         return space.step_m, _coarse_plan(room, space, space.step_m)
-    for step in COARSE_STEPS_M:
-        if step == COARSE_STEPS_M[-1] or _coarse_plan(room, space, step, count_only=True) * flop_per_pair \
-                <= COARSE_BUDGET_FLOP:
-            break
-    return step, _coarse_plan(room, space, step)
+    for step in COARSE_STEPS_M:  # the plan of the step chosen is built once
+        plan, count = _counted_plan(room, space, step)
+        if step == COARSE_STEPS_M[-1] or count * flop_per_pair <= COARSE_BUDGET_FLOP:
+            return step, plan
 
 
 def _coarse_pass(scorer, plan, keep_per_seat, progress, distinct_m=0.0):

@@ -6,7 +6,7 @@ tests/analysis/test_search_scoring.py for the equality of the two paths.
     python tests/bench/bench_scoring.py [--rounds 3] [--method modal|exact|both]
 
 The whole search with the scoring steps as they were (tests/bench/baseline/scoring.py:
-``_Scorer.features``, the EQ proxy, ``_distinct``) and as they are now, the products being
+``_Scorer.features``, the EQ proxy, ``_distinct``, ``_choose_step``) and as they are now, the products being
 today's in both; interleaved rounds after one warm-up round, medians over rounds and the
 median of the per-round ratio. The best layout and score of both are printed: they must
 agree.
@@ -32,6 +32,7 @@ def _run(room, method, before):
         if before:
             stack.enter_context(mock.patch.object(search._Scorer, "features", old.features))
             stack.enter_context(mock.patch.object(search, "_distinct", old.distinct))
+            stack.enter_context(mock.patch.object(search, "_choose_step", old.choose_step))
         t0 = time.perf_counter()
         res = search.search_layouts(room, method=method)
         return time.perf_counter() - t0, res

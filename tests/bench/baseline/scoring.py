@@ -1,6 +1,7 @@
-"""The placement search's scoring steps (``_Scorer.features``, the EQ proxy, ``_distinct``)
-as they were before the scoring work: two smoothing GEMMs, a logarithm of every area
-point's 1/3-octave level, and a distance loop over every layout. tests/bench/bench_scoring.py
+"""The placement search's scoring steps (``_Scorer.features``, the EQ proxy, ``_distinct``,
+``_choose_step``) as they were before the scoring work: two smoothing GEMMs, a logarithm of
+every area point's 1/3-octave level, a distance loop over every layout, and the coarse
+plan of the chosen step built twice (once to count it). tests/bench/bench_scoring.py
 swaps them in to time the whole search before and after in the same run. Not part of the
 package."""
 
@@ -8,7 +9,15 @@ from __future__ import annotations
 
 import numpy as np
 
-from roommodes.analysis.search import _TINY, EQ_MAX_BOOST_DB, EQ_MAX_CUT_DB, layout_distance_m
+from roommodes.analysis.search import (
+    _TINY,
+    COARSE_BUDGET_FLOP,
+    COARSE_STEPS_M,
+    EQ_MAX_BOOST_DB,
+    EQ_MAX_CUT_DB,
+    _coarse_plan,
+    layout_distance_m,
+)
 
 
 def proxy_from_smoothed(level3_db, proj, points3_db=None):
@@ -50,3 +59,13 @@ def distinct(vecs, scores, min_m, limit=None):
             if limit is not None and len(kept) >= limit:
                 break
     return kept
+
+
+def choose_step(room, space, flop_per_pair):
+    if space.step_m is not None:
+        return space.step_m, _coarse_plan(room, space, space.step_m)
+    for step in COARSE_STEPS_M:
+        if step == COARSE_STEPS_M[-1] or _coarse_plan(room, space, step, count_only=True) * flop_per_pair \
+                <= COARSE_BUDGET_FLOP:
+            break
+    return step, _coarse_plan(room, space, step)
