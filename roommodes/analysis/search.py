@@ -472,15 +472,19 @@ class _Scorer:
         return out
 
     # -- score parts from transfers
-    def features(self, h, channel, correction_db=None):
+    def features(self, h, channel, correction_db=None, rows=None):
         """Per-source features from transfers ``h`` (..., A, F) of one channel.
 
         The channel's correction (:func:`eq_proxy_db`) is designed on the power average
         over the listening area, unless ``correction_db`` (..., Fb) is given: the EQ of the
-        nominal layout, kept when the objects are moved (robustness).
+        nominal layout, kept when the objects are moved (robustness). ``rows`` (A,): the
+        area points taken in this order, the same as passing ``h[..., rows, :]`` without
+        copying the complex transfers.
         """
         power = np.square(h.real)  # (h.real**2 + h.imag**2) * speaker power, in place
         power += np.square(h.imag)
+        if rows is not None:
+            power = power[..., rows, :]
         power *= self.speaker_power[channel]
         fb = self.smooth6.shape[1]
         if correction_db is None:
@@ -947,7 +951,7 @@ def _coarse_pass(scorer, plan, keep_per_seat, progress, distinct_m=0.0):
             # walls alike): the mirrored speaker's transfer to a point is the speaker's
             # transfer to the mirrored point, so the right channel costs nothing
             h = scorer.transfer_block(left, rec, shapes_of(left))
-            fl, fr = scorer.features(h, 0), scorer.features(h[:, mirror], 1)
+            fl, fr = scorer.features(h, 0), scorer.features(h, 1, rows=mirror)
         else:
             both = np.concatenate([left, right])
             h = scorer.transfer_block(both, rec, shapes_of(both))

@@ -98,3 +98,14 @@ def test_batched_features_equal_the_part_functions_layout_by_layout():
             other = feat["correction"][::-1][k]
             np.testing.assert_allclose(kept["seat"][k], seat + other, rtol=0, atol=1e-9)
             np.testing.assert_array_equal(kept["correction"][k], other)
+
+
+def test_features_with_rows_equal_features_of_the_reordered_transfers():
+    sc = _Scorer(DEMO, DEMO.layout.speakers, (30.0, 200.0), check_weights(None), (0.6, 0.6), (3, 3), 24)
+    rng = np.random.default_rng(11)
+    h = rng.standard_normal((5, 9, sc.freq_hz.size)) + 1j * rng.standard_normal((5, 9, sc.freq_hz.size))
+    rows = sc.mirror_rows()
+    assert rows is not None and not np.array_equal(rows, np.arange(9))
+    got, ref = sc.features(h, 1, rows=rows), sc.features(h[:, rows], 1)
+    for k in ref:
+        np.testing.assert_array_equal(got[k], ref[k], err_msg=k)

@@ -38,6 +38,13 @@ def _run(room, method, before):
         return time.perf_counter() - t0, res
 
 
+def _same(a, b):
+    """The same layouts in the same order with the same scores (the parts may differ by
+    round-off: a mismatch of 0 comes out as 1e-15 dB or so)."""
+    return len(a.ranked) == len(b.ranked) and all(
+        x.layout == y.layout and x.score == y.score for x, y in zip(a.ranked, b.ranked))
+
+
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--rounds", type=int, default=3)
@@ -58,10 +65,13 @@ def main(argv=None):
                 if rnd:
                     t[before].append(dt)
         n_b, n_a = res[True].n_layout_evaluations, res[False].n_layout_evaluations
-        speed = float(np.median(np.array(t[True]) / n_b / (np.array(t[False]) / n_a)))
+        ratios = np.array(t[True]) / n_b / (np.array(t[False]) / n_a)
+        speed = float(np.median(ratios))
         label = "as place runs it" if method == "exact" else "modal scan only"
         print(f"{label + ', layouts/s':28s} {n_b / np.median(t[True]):10.0f} {n_a / np.median(t[False]):10.0f} "
               f"{speed:19.3f}  {res[True].ranked[0].score:.6f} / {res[False].ranked[0].score:.6f}")
+        print(f"  {n_a} layouts; per-round speed ratios {' '.join(f'{r:.3f}' for r in ratios)}; "
+              f"same ranking: {_same(res[True], res[False])}")
     print(f"load average {os.getloadavg()[0]:.1f} at end")
 
 

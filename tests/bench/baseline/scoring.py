@@ -30,7 +30,9 @@ def proxy_from_smoothed(level3_db, proj, points3_db=None):
     return np.clip(corr, -EQ_MAX_CUT_DB, EQ_MAX_BOOST_DB)
 
 
-def features(self, h, channel, correction_db=None):
+def features(self, h, channel, correction_db=None, rows=None):
+    if rows is not None:  # as the coarse pass did: the complex transfers reordered
+        h = h[..., rows, :]
     power = (h.real**2 + h.imag**2) * self.speaker_power[channel]
     ls = 10 * np.log10(np.maximum(power @ self.smooth6, _TINY))
     seat = ls[..., self.seat_row, :]
