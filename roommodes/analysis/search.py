@@ -1110,34 +1110,41 @@ def layout_distance_m(a, b):
     return np.max(np.linalg.norm(d.reshape(*d.shape[:-1], 3, 3), axis=-1), axis=-1)
 
 
-def _distinct(vecs, scores, min_m, limit=None):
+def _distinct(vecs, scores, min_m, limit=None, chunk=64):
     """Indices of layouts, best first, each at least ``min_m`` (:func:`layout_distance_m`)
     from every better one kept.
 
-    Greedy in score order. Each layout kept updates every layout's distance to its nearest
-    kept one in one array pass, so the loop runs once per kept layout, not once per layout
-    (the same distances as pairwise :func:`layout_distance_m`, bit for bit).
+    Greedy in score order, ``chunk`` layouts at a time: one array pass drops those too close
+    to a layout already kept, and the greedy choice among the rest uses their distances to
+    one another (the same distances as pairwise :func:`layout_distance_m`, bit for bit).
     """
     v = np.asarray(vecs, dtype=float)
     order = np.argsort(scores, kind="stable")
-    if order.size == 0:
-        return []
     vo = v[order].reshape(order.size, 3, 3)
-    nearest_m = np.full(order.size, np.inf)
     threshold_m = min_m - 1e-9
-    kept, pos = [], 0
-    while True:
-        kept.append(int(order[pos]))
-        if limit is not None and len(kept) >= limit:
-            break
-        rest = vo[pos + 1:]
-        d_m = np.sqrt(np.max(np.sum((vo[pos] - rest) ** 2, axis=-1), axis=-1))
-        np.minimum(nearest_m[pos + 1:], d_m, out=nearest_m[pos + 1:])
-        ok = np.flatnonzero(nearest_m[pos + 1:] >= threshold_m)
-        if ok.size == 0:
-            break
-        pos += 1 + int(ok[0])
-    return kept
+    kept = []  # positions in ``order``
+    for c0 in range(0, order.size, chunk):
+        block = vo[c0:c0 + chunk]
+        if kept:
+            alive = np.flatnonzero(_object_distance_m(vo[kept][:, None], block[None]).min(axis=0) >= threshold_m)
+        else:
+            alive = np.arange(block.shape[0])
+        if alive.size == 0:
+            continue
+        among = _object_distance_m(block[alive][:, None], block[alive][None]) >= threshold_m  # (a, a)
+        chosen = []
+        for j in range(alive.size):
+            if not chosen or among[chosen, j].all():
+                chosen.append(j)
+                kept.append(c0 + int(alive[j]))
+                if limit is not None and len(kept) >= limit:
+                    return [int(order[p]) for p in kept]
+    return [int(order[p]) for p in kept]
+
+
+def _object_distance_m(a, b):
+    """:func:`layout_distance_m` of layouts (..., 3, 3) broadcast against each other."""
+    return np.sqrt(np.max(np.sum((a - b) ** 2, axis=-1), axis=-1))
 
 
 def layout_geometry(layout):

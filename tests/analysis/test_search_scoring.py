@@ -49,7 +49,9 @@ def test_distinct_equals_the_plain_greedy_loop(min_m, limit):
     vecs[150:170] = vecs[0]  # duplicates (distance 0)
     vecs[200:210] = vecs[5] + 0.05 / np.sqrt(3)  # exactly at 0.05 m from layout 5
     scores = np.round(rng.random(300), 2)  # many ties: the stable order decides
-    assert _distinct(vecs, scores, min_m, limit) == _distinct_plain(vecs, scores, min_m, limit)
+    ref = _distinct_plain(vecs, scores, min_m, limit)
+    for chunk in (1, 7, 64, 1000):
+        assert _distinct(vecs, scores, min_m, limit, chunk=chunk) == ref, chunk
 
 
 def test_distinct_of_nothing_is_empty():
