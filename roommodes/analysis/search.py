@@ -270,12 +270,21 @@ EQ_MAX_CUT_DB = 15.0
 def _proxy_from_smoothed(level3_db, proj, points3_db=None):
     """Correction toward the line of ``level3_db`` (..., Fb): cuts follow the mean; a boost
     is only as large as the shortfall every point (..., A, Fb) shares."""
+    if points3_db is None:
+        return _proxy_from_extremes(level3_db, proj)
+    return _proxy_from_extremes(level3_db, proj, np.min(points3_db, axis=-2), np.max(points3_db, axis=-2))
+
+
+def _proxy_from_extremes(level3_db, proj, low3_db=None, high3_db=None):
+    """:func:`_proxy_from_smoothed` from the lowest and highest level over the points
+    (..., Fb) instead of all of them: the shortfalls ``trend - L_a`` are smallest at the
+    highest ``L_a`` and largest at the lowest (rounded subtraction is monotone, so this
+    is the same result to the bit)."""
     trend = level3_db - level3_db @ proj
     corr = trend - level3_db
-    if points3_db is not None:
-        short = trend[..., None, :] - points3_db
-        corr = np.where(corr > 0, np.clip(np.min(short, axis=-2), 0.0, None),
-                        0.5 * (corr + np.clip(np.max(short, axis=-2), None, 0.0)))
+    if low3_db is not None:
+        corr = np.where(corr > 0, np.clip(trend - high3_db, 0.0, None),
+                        0.5 * (corr + np.clip(trend - low3_db, None, 0.0)))
     return np.clip(corr, -EQ_MAX_CUT_DB, EQ_MAX_BOOST_DB)
 
 
@@ -396,6 +405,8 @@ class _Scorer:
         eye = np.eye(f.size)
         self.smooth6 = np.ascontiguousarray(smooth_fractional_octave(f, eye, _SMOOTH_FRACTION)[:, self.sel])
         self.smooth3 = np.ascontiguousarray(smooth_fractional_octave(f, eye, _BROAD_FRACTION)[:, self.sel])
+        #: both smoothings side by side: one GEMM of twice the width costs less than two
+        self.smooth63 = np.ascontiguousarray(np.concatenate([self.smooth6, self.smooth3], axis=1))
         self.proj = _line_projection(f[self.sel])
         self.offsets = area_offsets(area_m, area_points)
         self.seat_row = self.offsets.shape[0] // 2
@@ -461,20 +472,35 @@ class _Scorer:
         return out
 
     # -- score parts from transfers
-    def features(self, h, channel, correction_db=None):
+    def features(self, h, channel, correction_db=None, rows=None):
         """Per-source features from transfers ``h`` (..., A, F) of one channel.
 
         The channel's correction (:func:`eq_proxy_db`) is designed on the power average
         over the listening area, unless ``correction_db`` (..., Fb) is given: the EQ of the
-        nominal layout, kept when the objects are moved (robustness).
+        nominal layout, kept when the objects are moved (robustness). ``rows`` (A,): the
+        area points taken in this order, the same as passing ``h[..., rows, :]`` without
+        copying the complex transfers.
         """
-        power = (h.real**2 + h.imag**2) * self.speaker_power[channel]
-        ls = 10 * np.log10(np.maximum(power @ self.smooth6, _TINY))  # (..., A, Fb)
+        power = np.square(h.real)  # (h.real**2 + h.imag**2) * speaker power, in place
+        power += np.square(h.imag)
+        if rows is not None:
+            power = power[..., rows, :]
+        power *= self.speaker_power[channel]
+        fb = self.smooth6.shape[1]
+        if correction_db is None:
+            p63 = power @ self.smooth63
+            p6, p3 = p63[..., :fb], p63[..., fb:]
+        else:
+            p6 = power @ self.smooth6
+        ls = 10 * np.log10(np.maximum(p6, _TINY))  # (..., A, Fb), dB
         seat = ls[..., self.seat_row, :]
         if correction_db is None:
-            p3 = power @ self.smooth3
             mean3 = 10 * np.log10(np.maximum(p3.mean(axis=-2), _TINY))
-            correction_db = _proxy_from_smoothed(mean3, self.proj, 10 * np.log10(np.maximum(p3, _TINY)))
+            # only the lowest and highest point enter the boost limit: two logarithms per
+            # frequency instead of A (log10 is monotone)
+            low3 = 10 * np.log10(np.maximum(np.min(p3, axis=-2), _TINY))
+            high3 = 10 * np.log10(np.maximum(np.max(p3, axis=-2), _TINY))
+            correction_db = _proxy_from_extremes(mean3, self.proj, low3, high3)
         after = seat + correction_db
         resid = after @ self.proj
         return {
@@ -817,6 +843,12 @@ def _coarse_plan(room, space, step, count_only=False):
 
     With ``count_only``, only the number of (speaker position, seat) pairs to evaluate.
     """
+    plan, count = _counted_plan(room, space, step)
+    return count if count_only else plan
+
+
+def _counted_plan(room, space, step):
+    """:func:`_coarse_plan` and the number of (speaker position, seat) pairs it holds."""
     cons = _Constraints(room, space)
     size = cons.size
     seats = _seat_grid(space, size, step)
@@ -876,7 +908,7 @@ def _coarse_plan(room, space, step, count_only=False):
                          f"{space.rear_clearance_m * 100:g} cm or more off it and the seat "
                          f"{space.seat_front_m[0]:g}-{space.seat_front_m[1]:g} m from it, {what} cannot be "
                          "met; widen the ranges")
-    return count if count_only else plan
+    return plan, count
 
 
 def _distance_possible(points, seat, space):
@@ -893,11 +925,10 @@ def _choose_step(room, space, flop_per_pair):
     fits :data:`COARSE_BUDGET_FLOP`) and its plan."""
     if space.step_m is not None:
         return space.step_m, _coarse_plan(room, space, space.step_m)
-    for step in COARSE_STEPS_M:
-        if step == COARSE_STEPS_M[-1] or _coarse_plan(room, space, step, count_only=True) * flop_per_pair \
-                <= COARSE_BUDGET_FLOP:
-            break
-    return step, _coarse_plan(room, space, step)
+    for step in COARSE_STEPS_M:  # the plan of the step chosen is built once
+        plan, count = _counted_plan(room, space, step)
+        if step == COARSE_STEPS_M[-1] or count * flop_per_pair <= COARSE_BUDGET_FLOP:
+            return step, plan
 
 
 def _coarse_pass(scorer, plan, keep_per_seat, progress, distinct_m=0.0):
@@ -920,7 +951,7 @@ def _coarse_pass(scorer, plan, keep_per_seat, progress, distinct_m=0.0):
             # walls alike): the mirrored speaker's transfer to a point is the speaker's
             # transfer to the mirrored point, so the right channel costs nothing
             h = scorer.transfer_block(left, rec, shapes_of(left))
-            fl, fr = scorer.features(h, 0), scorer.features(h[:, mirror], 1)
+            fl, fr = scorer.features(h, 0), scorer.features(h, 1, rows=mirror)
         else:
             both = np.concatenate([left, right])
             h = scorer.transfer_block(both, rec, shapes_of(both))
@@ -1079,17 +1110,41 @@ def layout_distance_m(a, b):
     return np.max(np.linalg.norm(d.reshape(*d.shape[:-1], 3, 3), axis=-1), axis=-1)
 
 
-def _distinct(vecs, scores, min_m, limit=None):
+def _distinct(vecs, scores, min_m, limit=None, chunk=64):
     """Indices of layouts, best first, each at least ``min_m`` (:func:`layout_distance_m`)
-    from every better one kept."""
+    from every better one kept.
+
+    Greedy in score order, ``chunk`` layouts at a time: one array pass drops those too close
+    to a layout already kept, and the greedy choice among the rest uses their distances to
+    one another (the same distances as pairwise :func:`layout_distance_m`, bit for bit).
+    """
     v = np.asarray(vecs, dtype=float)
-    kept = []
-    for i in np.argsort(scores, kind="stable"):
-        if not kept or np.min(layout_distance_m(v[kept], v[i])) >= min_m - 1e-9:
-            kept.append(int(i))
-            if limit is not None and len(kept) >= limit:
-                break
-    return kept
+    order = np.argsort(scores, kind="stable")
+    vo = v[order].reshape(order.size, 3, 3)
+    threshold_m = min_m - 1e-9
+    kept = []  # positions in ``order``
+    for c0 in range(0, order.size, chunk):
+        block = vo[c0:c0 + chunk]
+        if kept:
+            alive = np.flatnonzero(_object_distance_m(vo[kept][:, None], block[None]).min(axis=0) >= threshold_m)
+        else:
+            alive = np.arange(block.shape[0])
+        if alive.size == 0:
+            continue
+        among = _object_distance_m(block[alive][:, None], block[alive][None]) >= threshold_m  # (a, a)
+        chosen = []
+        for j in range(alive.size):
+            if not chosen or among[chosen, j].all():
+                chosen.append(j)
+                kept.append(c0 + int(alive[j]))
+                if limit is not None and len(kept) >= limit:
+                    return [int(order[p]) for p in kept]
+    return [int(order[p]) for p in kept]
+
+
+def _object_distance_m(a, b):
+    """:func:`layout_distance_m` of layouts (..., 3, 3) broadcast against each other."""
+    return np.sqrt(np.max(np.sum((a - b) ** 2, axis=-1), axis=-1))
 
 
 def layout_geometry(layout):
