@@ -171,7 +171,9 @@ def test_the_winner_is_the_lowest_allowed_point_of_its_sweep(demo_result):
         d, score, _, allowed = layout_sweep(DEMO, best.layout, space, weights=demo_result.weights,
                                             band_hz=demo_result.band_hz, step_m=step)
         k = int(np.argmin(np.abs(d - best.layout.speakers[0].position_m[0])))
-        assert allowed[k] and score[k] == pytest.approx(modal, rel=1e-9)
+        # the sweep's batch is large enough for the single-precision frequency columns (stated
+        # bound 5e-4 dB per level, docs/methods.md); the one-layout score stays in double
+        assert allowed[k] and score[k] == pytest.approx(modal, abs=1e-3)
         assert score[k] <= score[allowed].min() + 1e-9
         assert (~allowed).any()  # the shaded stretch ends somewhere inside the sweep
 
