@@ -64,9 +64,11 @@ def test_reproducible_by_seed_and_common_to_all_layouts():
     np.testing.assert_array_equal(a, b)
     # the same layout twice meets the same drawn rooms and errors (common random numbers)
     np.testing.assert_allclose(a[:, 0], a[:, 2], rtol=1e-12)  # batched: round-off only
-    # sample i does not depend on how many are drawn
+    # sample i does not depend on how many are drawn (a smaller batch may run its products in
+    # double where the larger one uses single-precision frequency columns: bound 5e-4 dB per
+    # level, docs/methods.md)
     np.testing.assert_allclose(ensemble_scores(ROOM, [MID], n_samples=2, seed=11, uncertainty=u, **KW)[:, 0],
-                               a[:2, 0], rtol=1e-12)
+                               a[:2, 0], atol=1e-3)
     c = ensemble_scores(ROOM, [MID], n_samples=4, seed=12, uncertainty=u, **KW)
     assert not np.allclose(c[:, 0], a[:, 0])
 
