@@ -29,6 +29,8 @@ import time
 import tracemalloc
 
 import numpy as np
+from baseline import exact as old_exact
+from baseline import images as old_images
 from baseline import modal as old_modal
 
 import roommodes
@@ -37,11 +39,6 @@ from roommodes.model.walls import impedance_from_absorption
 from roommodes.solvers.exact import exact_transfer
 from roommodes.solvers.images import image_count, image_source_transfer
 from roommodes.solvers.modal import modal_transfer
-
-# The exact and image-source solvers have not changed since the baseline was taken, so their
-# "old" is the current module; copy a module into tests/bench/baseline/ before changing it.
-old_exact = roommodes.solvers.exact
-old_images = roommodes.solvers.images
 
 
 def timed(fn):
