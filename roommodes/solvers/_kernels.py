@@ -8,7 +8,13 @@ shell by shell (shell ``n`` holds the images of total reflection order ``n``; Al
 Berkley 1979) and adds each image's contribution ``A_i / R_i`` to one or more sampled
 impulse responses with a truncated Gaussian kernel centred at the image's delay
 ``R_i / c``: "fast Gaussian gridding" (Greengard & Lee 2004), two ``exp``
-calls per image instead of one per tap.
+calls per image instead of one per tap. It serves one receiver at a time and any
+reflection model.
+
+When the reflection factors do not depend on the angle (the energy model) the images of one
+source are listed once (:func:`lattice_images`) and spread for each receiver
+(:func:`spread_images`, or :func:`spread_images_many` for many receivers in parallel) with
+tap weights from tables and a short polynomial: no transcendental call per image.
 
 References
 ----------

@@ -542,9 +542,11 @@ def _g_core(kap, lo, hi, L, a0, aL, inv=None):
     return ed * n0 * nL * inv
 
 
-def _g_inv(kap, L, a0, aL):
-    """``1 / (2 kappa D)``, ``D = (kappa + A_0)(kappa + A_L) - (kappa - A_0)(kappa - A_L) e^{-2 kappa L}``."""
-    emD = np.expm1(-2.0 * kap * L)
+def _g_inv(kap, L, a0, aL, emD=None):
+    """``1 / (2 kappa D)``, ``D = (kappa + A_0)(kappa + A_L) - (kappa - A_0)(kappa - A_L) e^{-2 kappa L}``
+    (``emD = expm1(-2 kappa L)`` may be given)."""
+    if emD is None:
+        emD = np.expm1(-2.0 * kap * L)
     den = -(kap * kap + a0 * aL) * emD + kap * (a0 + aL) * (2.0 + emD)
     return 1.0 / (2.0 * kap * den)
 
@@ -639,9 +641,10 @@ def _group_table(key, kb, kc, k, L, a0, aL):
         return hit
     kap = np.sqrt(kb[:, :, None] ** 2 + kc[:, None, :] ** 2 - (k * k)[:, None, None])
     kap = np.where(np.abs(kap) * L < 1e-7, 1e-7 / L, kap)
-    inv = _g_inv(kap, L, a0, aL)
+    emD = np.expm1(-2.0 * kap * L)
+    inv = _g_inv(kap, L, a0, aL, emD)
     factor_ok = bool(np.max(kap.real) * L <= _FACTOR_MAX)
-    e2L = np.exp(-2.0 * kap * L)
+    e2L = emD + 1.0
     for x in (kap, inv, e2L):
         x.setflags(write=False)
     return _cache_put(_GROUP_CACHE, key, (kap, inv, e2L, factor_ok))

@@ -88,8 +88,17 @@ with a rigid pair run to the cap and report ``converged=False``.
 
 Cost
 ----
-About 55 ns (impedance) or 40 ns (energy) per image and pair on one core, ``4/3
-order^3`` images; ``order`` is about ``20 / alpha`` for 0.05 dB. First call: numba
+``4/3 order^3`` images per pair; ``order`` is about ``20 / alpha`` for 0.05 dB. Energy
+model (the default): the images of each source are listed once per block of shells
+(positions and reflection products, about 4 ns per image) and every receiver of that source
+only computes its distances and spreads its taps, the receivers in parallel (numba
+``prange``); the taps come from tables at 256 bins of the fractional delay times a
+degree-5 Taylor polynomial of the small remaining exponent, with no transcendental call per
+image. Each receiver keeps its own truncation order. About 30 ns of CPU time per image and
+pair on a loaded shared machine (48 ns for the per-pair walk with two ``exp`` per image in
+the same conditions; tests/bench/bench_exact.py). The impedance model's factors depend on the
+receiver's angle, so it walks the lattice per pair (``spread_shells``), about 55 ns per image
+and pair on one core. First call: numba
 compiles the kernel once (about 5-9 s), cached on disk afterwards (about 0.5 s to
 load). See :func:`image_source_transfer` for measured times.
 
