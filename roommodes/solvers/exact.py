@@ -644,7 +644,7 @@ def _group_table(key, kb, kc, k, L, a0, aL):
     emD = np.expm1(-2.0 * kap * L)
     inv = _g_inv(kap, L, a0, aL, emD)
     factor_ok = bool(np.max(kap.real) * L <= _FACTOR_MAX)
-    e2L = emD + 1.0
+    e2L = np.exp(-2.0 * kap * L)  # not 1 + emD: that loses e^{-2 kappa L} once it is below 1e-16
     for x in (kap, inv, e2L):
         x.setflags(write=False)
     return _cache_put(_GROUP_CACHE, key, (kap, inv, e2L, factor_ok))

@@ -436,3 +436,23 @@ def test_repeated_calls_reuse_tables_and_give_the_same_answer():
     for i in range(40):
         exact_transfer(SIZE, z, src, far, f * (1 + 0.001 * i), C)
     assert len(ex._AXIS_CACHE) <= ex._CACHE_SIZE and len(ex._GROUP_CACHE) <= ex._CACHE_SIZE
+
+
+def test_factorised_green_function_matches_the_three_exponential_form(monkeypatch):
+    # g = phi_0(z<) phi_L(z>) / (2 kappa D) regroups the exponentials of the closed form
+    # (module docstring); with the regrouping switched off (_FACTOR_MAX = 0, the
+    # three-exponential form for every term) the answer must be the same, also for pairs
+    # far apart along a long axis where e^{-2 kappa L} is far below 1e-16
+    from roommodes.solvers import exact as ex
+
+    z = impedance_from_absorption(np.array([0.45, 0.3, 0.2, 0.1, 0.35, 0.5]))
+    f = np.geomspace(20.0, 200.0, 24)
+    src = [[0.3, 1.0, 1.0], [4.9, 3.9, 2.5], [2.0, 2.0, 1.3]]
+    rec = [[4.7, 3.0, 2.0], [0.1, 0.2, 0.3], [2.1, 2.05, 1.32]]
+    ex.clear_caches()
+    h = exact_transfer(SIZE, z, src, rec, f, C)
+    monkeypatch.setattr(ex, "_FACTOR_MAX", 0.0)
+    ex.clear_caches()
+    h3 = exact_transfer(SIZE, z, src, rec, f, C)
+    ex.clear_caches()
+    np.testing.assert_allclose(h, h3, rtol=1e-10)
