@@ -94,9 +94,13 @@ model (the default): the images of each source are listed once per block of shel
 only computes its distances and spreads its taps, the receivers in parallel (numba
 ``prange``); the taps come from tables at 256 bins of the fractional delay times a
 degree-5 Taylor polynomial of the small remaining exponent, with no transcendental call per
-image. Each receiver keeps its own truncation order. About 30 ns of CPU time per image and
-pair on a loaded shared machine (48 ns for the per-pair walk with two ``exp`` per image in
-the same conditions; tests/bench/bench_exact.py). The impedance model's factors depend on the
+image. Each receiver keeps its own truncation order. The spreading kernel alone takes about
+30 ns of CPU time per image and pair on a loaded shared machine (48 ns for the per-pair walk
+with two ``exp`` per image in the same conditions); a whole call about 53 ns per image and
+pair, the rest mostly the spectrum products of the convergence checks
+(tests/bench/bench_exact.py). 100 receivers still cost about 100 times one receiver in CPU
+time: the distances, taps and scatter are per receiver; only the walk is shared, and the
+parallel speed-up needs idle cores. The impedance model's factors depend on the
 receiver's angle, so it walks the lattice per pair (``spread_shells``), about 55 ns per image
 and pair on one core. First call: numba
 compiles the kernel once (about 5-9 s), cached on disk afterwards (about 0.5 s to
