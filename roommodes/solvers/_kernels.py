@@ -8,7 +8,13 @@ shell by shell (shell ``n`` holds the images of total reflection order ``n``; Al
 Berkley 1979) and adds each image's contribution ``A_i / R_i`` to one or more sampled
 impulse responses with a truncated Gaussian kernel centred at the image's delay
 ``R_i / c``: "fast Gaussian gridding" (Greengard & Lee 2004), two ``exp``
-calls per image instead of one per tap.
+calls per image instead of one per tap. It serves one receiver at a time and any
+reflection model.
+
+When the reflection factors do not depend on the angle (the energy model) the images of one
+source are listed once (:func:`lattice_images`) and spread for each receiver
+(:func:`spread_images`, or :func:`spread_images_many` for many receivers in parallel) with
+tap weights from tables and a short polynomial: no transcendental call per image.
 
 References
 ----------
@@ -21,9 +27,9 @@ References
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
+from numba import njit, prange
 
-__all__ = ["spread_shells"]
+__all__ = ["lattice_images", "spread_images", "spread_images_many", "spread_shells"]
 
 
 @njit(cache=True)
@@ -203,3 +209,150 @@ def _mul_power(amp, base, e):
         if e > 0:
             for kk in range(n_k):
                 base[kk] *= base[kk]
+
+
+# ------------------------------------------------------------------ shared lattice walk
+#: Taps of the shared-walk kernels (a compile-time constant, so the tap loops vectorise).
+TAPS = 16
+#: Bins of the fractional delay in the tap tables (:func:`spread_images`).
+DELAY_BINS = 256
+
+
+@njit(cache=True)
+def lattice_images(axis_pos, axis_amp, n_first, n_last):
+    """Positions and reflection products of the images of total order ``n_first..n_last``.
+
+    Parameters
+    ----------
+    axis_pos : float64 (3, O+1, 2)
+        Image coordinate along each axis, m, by per-axis order ``o`` and branch ``s``
+        (branch 1 unused at ``o = 0``).
+    axis_amp : float64 (3, O+1, 2, K)
+        Per-axis products of angle-independent reflection factors.
+    n_first, n_last : int
+        Shells, ``0 <= n_first <= n_last <= O``.
+
+    Returns
+    -------
+    pos : float64 (m, 3)
+        Image positions, shell by shell, in the order :func:`spread_shells` visits them.
+    amp : float64 (m, K)
+        Reflection products ``A_i`` (the ``1 / R`` of each receiver is applied later).
+    """
+    m = 0
+    for n in range(n_first, n_last + 1):
+        m += 1 if n == 0 else 4 * n * n + 2
+    n_k = axis_amp.shape[3]
+    pos = np.empty((m, 3))
+    amp = np.empty((m, n_k))
+    i = 0
+    for n in range(n_first, n_last + 1):
+        for ox in range(n + 1):
+            for oy in range(n - ox + 1):
+                oz = n - ox - oy
+                for sx in range(1 if ox == 0 else 2):
+                    for sy in range(1 if oy == 0 else 2):
+                        for sz in range(1 if oz == 0 else 2):
+                            pos[i, 0] = axis_pos[0, ox, sx]
+                            pos[i, 1] = axis_pos[1, oy, sy]
+                            pos[i, 2] = axis_pos[2, oz, sz]
+                            for kk in range(n_k):
+                                amp[i, kk] = axis_amp[0, ox, sx, kk] * axis_amp[1, oy, sy, kk] * axis_amp[2, oz, sz, kk]
+                            i += 1
+    return pos, amp
+
+
+@njit(cache=True, fastmath=True, inline="always")
+def _spread_one(pos, amp, rx, ry, rz, samples_per_m, tap_table, slope_table, inv_4tau, offset, out):
+    """Spread the images ``pos``, ``amp`` onto ``out`` (Ns, K) of the receiver at
+    ``(rx, ry, rz)``; returns the largest row written (see :func:`spread_images_many`).
+    ``fastmath`` only lets the compiler reorder and fuse the tap arithmetic (rounding)."""
+    n_k = out.shape[1]
+    n_bins = tap_table.shape[0] // TAPS
+    k_min = 1 - TAPS // 2
+    w = np.empty(TAPS)
+    top = 0
+    for i in range(pos.shape[0]):
+        dx = pos[i, 0] - rx
+        dy = pos[i, 1] - ry
+        dz = pos[i, 2] - rz
+        r = np.sqrt(dx * dx + dy * dy + dz * dz)
+        u = r * samples_per_m
+        i0 = int(u)
+        delta = u - i0
+        b = min(int(delta * n_bins), n_bins - 1)
+        e = delta - (b + 0.5) / n_bins
+        e2 = e * e * inv_4tau
+        base = offset + i0 + k_min
+        s = 1.0 / r
+        if n_k == 1:
+            s *= amp[i, 0]
+        tb = tap_table[b * TAPS:(b + 1) * TAPS]
+        sb = slope_table[b * TAPS:(b + 1) * TAPS]
+        for j in range(TAPS):
+            # exp(x) by its Taylor polynomial of degree 5, |x| <= 0.011 (error < 3e-15)
+            x = sb[j] * e - e2
+            w[j] = s * tb[j] * (1.0 + x * (1.0 + x * (0.5 + x * (1.0 / 6.0 + x * (1.0 / 24.0 + x * (1.0 / 120.0))))))
+        if n_k == 1:
+            o = out[base:base + TAPS, 0]
+            for j in range(TAPS):
+                o[j] += w[j]
+        else:
+            for j in range(TAPS):
+                row = out[base + j]
+                for kk in range(n_k):
+                    row[kk] += amp[i, kk] * w[j]
+        top = max(top, base + TAPS - 1)
+    return top
+
+
+@njit(cache=True)
+def spread_images(pos, amp, rx, ry, rz, samples_per_m, tap_table, slope_table, inv_4tau, offset, out):
+    """:func:`spread_images_many` for one receiver (no thread start-up); returns the largest
+    row written."""
+    return _spread_one(pos, amp, rx, ry, rz, samples_per_m, tap_table, slope_table, inv_4tau, offset, out)
+
+
+@njit(cache=True, parallel=True)
+def spread_images_many(pos, amp, receivers, rows, samples_per_m, tap_table, slope_table, inv_4tau,
+                       offset, ir, last):
+    """Add the images ``pos``, ``amp`` of one source to the responses of many receivers.
+
+    Parameters
+    ----------
+    pos, amp : float64 (m, 3), (m, K)
+        Image positions and reflection products (:func:`lattice_images`).
+    receivers : float64 (A, 3)
+        Receiver positions, m.
+    rows : int64 (A,)
+        Receiver ``a`` accumulates into ``ir[rows[a]]``; ``last[rows[a]]`` is raised to the
+        largest row written.
+    samples_per_m : float
+        ``fs / c``, samples per metre of path.
+    tap_table, slope_table : float64 (M * 16,)
+        ``exp(-(k - t_b)^2 / (4 tau))`` and ``2 (k - t_b) / (4 tau)`` for the taps
+        ``k = -7 .. 8`` (innermost) at the bin centres ``t_b = (b + 1/2) / M`` of the
+        fractional delay.
+    inv_4tau : float
+        ``1 / (4 tau)`` of the Gaussian ``exp(-x^2 / (4 tau))``, x in samples.
+    offset : int
+        Index of sample 0 in each response.
+    ir : float64 (R, Ns, K)
+        Impulse responses, accumulated in place.
+    last : int64 (R,)
+
+    Notes
+    -----
+    The image at ``u = R fs / c = i0 + delta`` samples adds ``A / R exp(-(k - delta)^2 /
+    (4 tau))`` at sample ``i0 + k`` (as :func:`spread_shells`). With ``e = delta - t_b``,
+    ``|e| <= 1 / (2 M)``, the tap is ``tap_table[b, k] exp(x)``,
+    ``x = slope_table[b, k] e - e^2 / (4 tau)``; for ``M = 256`` and the kernel's ``tau``,
+    ``|x| <= 8 / (4 tau M) + ... <= 0.011`` and ``exp(x)`` is its degree-5 Taylor polynomial
+    (relative error below 3e-15). No transcendental call per image; the 16 taps are independent (vectorised).
+    Receivers run in parallel, each on its own rows of ``ir``.
+    """
+    for a in prange(receivers.shape[0]):
+        row = rows[a]
+        top = _spread_one(pos, amp, receivers[a, 0], receivers[a, 1], receivers[a, 2], samples_per_m,
+                          tap_table, slope_table, inv_4tau, offset, ir[row])
+        last[row] = max(last[row], top)

@@ -78,6 +78,7 @@ __all__ = [
     "truncation_wavenumber",
     "DEFAULT_TOL_DB",
     "DEFAULT_NEAR_M",
+    "clear_caches",
 ]
 
 #: Default accuracy target of the truncation rule, dB (see the module docstring).
@@ -95,6 +96,13 @@ _MAX_STEPS = 2000
 
 # ---------------------------------------------------------------------------------------
 # entire functions of w = u^2
+
+
+def _sin_cos(u):
+    """``sin(u), cos(u)`` of complex ``u`` from one complex exponential (``|Im u|`` small here)."""
+    e = np.exp(1j * u)
+    ie = 1.0 / e
+    return (e - ie) * -0.5j, (e + ie) * 0.5
 
 
 def _sinc(u):
@@ -116,6 +124,8 @@ def _series(u2, coeffs):
 _Q_COEF = [(-1) ** (n + 1) * 2 * n / float(np.prod(np.arange(1, 2 * n + 2))) for n in range(1, 8)]
 # (1 - sinc(2u)) / (2 u^2) = sum_{n>=1} (-1)^(n+1) 2^(2n-1) u^(2n-2) / (2n+1)!
 _P_COEF = [(-1) ** (n + 1) * 2.0 ** (2 * n - 1) / float(np.prod(np.arange(1, 2 * n + 2))) for n in range(1, 9)]
+# sinc(u) = sum_{n>=0} (-1)^n u^(2n) / (2n+1)!  (used with the _Q_COEF series, |u| < 0.5)
+_S_COEF = [(-1) ** n / float(np.prod(np.arange(1, 2 * n + 2))) for n in range(0, 9)]
 
 
 def _q(u):
@@ -133,6 +143,34 @@ def _p(u):
     small = np.abs(u) < 0.5
     us = np.where(small, 1.0, u)
     return np.where(small, _series(u2, _P_COEF), (1.0 - np.sin(2 * us) / (2 * us)) / (2 * us * us))
+
+
+def _scq(w):
+    """``sinc(u), cos(u), q(u)`` at ``u = sqrt(w)`` from one complex exponential, with the
+    series of the entire functions where ``|u| < 0.5`` (same values as :func:`_sinc`,
+    ``np.cos`` and :func:`_q`)."""
+    u = np.sqrt(w)
+    sn, c = _sin_cos(u)
+    small = np.abs(u) < 0.5
+    if not small.any():
+        s = sn / u
+        return s, c, (s - c) / w
+    ub = np.where(small, 1.0, u)
+    s = sn / ub
+    q = (s - c) / (ub * ub)
+    w_s = w[small]
+    s[small] = _series(w_s, _S_COEF)
+    q[small] = _series(w_s, _Q_COEF)
+    return s, c, q
+
+
+def _fdf(w, a, b):
+    """``F``, ``dF/dw``, ``sinc u`` and ``cos u`` (see :func:`robin_characteristic`)."""
+    s, c, q = _scq(w)
+    wab = w - a * b
+    f = wab * s - (a + b) * c
+    df = s - 0.5 * wab * q + 0.5 * (a + b) * s
+    return f, df, s, c
 
 
 def robin_characteristic(w, a, b):
@@ -158,12 +196,7 @@ def robin_characteristic(w, a, b):
     ``d sinc / dw = -q / 2`` and ``d cos / dw = -sinc / 2`` (``q = (sinc - cos) / u^2``):
     ``dF/dw = sinc - (w - a b) q / 2 + (a + b) sinc / 2``.
     """
-    w = np.asarray(w, dtype=complex)
-    u = np.sqrt(w)
-    s = _sinc(u)
-    c = np.cos(u)
-    f = (w - a * b) * s - (a + b) * c
-    df = s - 0.5 * (w - a * b) * _q(u) + 0.5 * (a + b) * s
+    f, df, _, _ = _fdf(np.asarray(w, dtype=complex), a, b)
     return f, df
 
 
@@ -210,12 +243,91 @@ def robin_roots(a, b, n, *, step_u=_STEP_U):
     a1 = np.broadcast_to(a, shape)[..., None] * np.ones(n)
     b1 = np.broadcast_to(b, shape)[..., None] * np.ones(n)
     m = np.broadcast_to(np.arange(n, dtype=float), a1.shape)
+    if len(shape) == 1 and shape[0] >= 2 * _ANCHOR_EVERY:
+        # fast path: full continuation at every _ANCHOR_EVERY-th entry only; the others
+        # start from the roots of the nearest such entry (a neighbouring frequency) and
+        # follow the straight path between the two (a, b), with steps sized as above
+        u = _from_anchors(a1, b1, m, step_u)
+        if u is not None:
+            return u
     for attempt in range(3):
         w, ok = _track(a1.ravel(), b1.ravel(), m.ravel(), step_u / 4.0**attempt)
         u = np.sqrt(w).reshape(a1.shape)
         if ok and not _has_duplicates(u):
             return u
     raise RuntimeError("Robin root continuation failed (non-convergence or merged roots)")
+
+
+#: Spacing of the entries that get the full continuation in :func:`robin_roots` (1-D input).
+_ANCHOR_EVERY = 8
+
+
+def _from_anchors(a1, b1, m, step_u):
+    """Roots (S, n) by continuation from the roots of nearby entries; None if the checks fail."""
+    out = _roots_blocks([(a1[:, 0], b1[:, 0], a1.shape[1])], step_u)
+    return None if out is None else out[0]
+
+
+def _roots_blocks(blocks, step_u=_STEP_U):
+    """Roots of several 1-D tables at once: ``blocks`` is a list of ``(a (S,), b (S,), n)``;
+    returns a list of ``u`` (S, n), or None if a check fails (the caller then falls back to
+    :func:`robin_roots`). Entries ``0, E, 2E, ...`` and the last (``E = _ANCHOR_EVERY``) get
+    the full continuation from the rigid roots; every other entry starts from the roots of
+    the nearest of those and follows the straight path between the two ``(a, b)``, with
+    steps sized by the same displacement rule. All tables share two vectorised passes."""
+    full, part, meta = [], [], []
+    for a, b, n in blocks:
+        n_s = a.shape[0]
+        anchors = np.unique(np.r_[np.arange(0, n_s, _ANCHOR_EVERY), n_s - 1])
+        rest = np.setdiff1d(np.arange(n_s), anchors)
+        mm = np.arange(n, dtype=float)
+        full.append((np.repeat(a[anchors], n), np.repeat(b[anchors], n), np.tile(mm, anchors.size)))
+        meta.append((n_s, n, anchors, rest))
+    w_full, ok = _track(*(np.concatenate(x) for x in zip(*full)), step_u)
+    if not ok:
+        return None
+    w_anchor, i0 = [], 0
+    for (_n_s, n, anchors, rest), (a, b, _) in zip(meta, blocks):
+        wa = w_full[i0:i0 + anchors.size * n].reshape(anchors.size, n)
+        i0 += anchors.size * n
+        w_anchor.append(wa)  # checked for merged roots with the whole table below
+        # start: linear interpolation, in the entry index, of the bracketing anchors' roots
+        hi = np.searchsorted(anchors, rest)
+        t = ((rest - anchors[hi - 1]) / (anchors[hi] - anchors[hi - 1]))[:, None]
+        guess = (1.0 - t) * wa[hi - 1] + t * wa[hi]
+        part.append((np.repeat(a[rest], n), np.repeat(b[rest], n), guess.ravel()))
+    a_r, b_r, w0 = (np.concatenate(x) for x in zip(*part))
+    w_part, ok = _newton(w0, a_r, b_r)
+    # Newton must stay near its start (no jump to another root); else the caller falls back
+    if not ok or np.any(np.abs(np.sqrt(w_part) - np.sqrt(w0)) > step_u):
+        return None
+    out, i0 = [], 0
+    for (n_s, n, anchors, rest), wa in zip(meta, w_anchor):
+        w = np.empty((n_s, n), dtype=complex)
+        w[anchors] = wa
+        w[rest] = w_part[i0:i0 + rest.size * n].reshape(rest.size, n)
+        i0 += rest.size * n
+        u = np.sqrt(w)
+        if _has_duplicates(u):
+            return None
+        out.append(u)
+    return out
+
+
+def _newton(w, a, b, iterations=30):
+    """Newton's method on ``F(w) = 0`` to ``|dw| <= 1e-13 (1 + |w|)`` (flat arrays); returns
+    the roots and a success flag."""
+    w = np.array(w, dtype=complex)
+    ok = np.zeros(w.shape, dtype=bool)
+    for _ in range(iterations):
+        idx = np.flatnonzero(~ok)
+        if idx.size == 0:
+            break
+        f, df, _, _ = _fdf(w[idx], a[idx], b[idx])
+        dw = f / df
+        w[idx] -= dw
+        ok[idx] = np.abs(dw) <= 1e-13 * (1.0 + np.abs(w[idx]))
+    return w, bool(np.all(ok) and np.all(np.isfinite(w)))
 
 
 def _has_duplicates(u):
@@ -231,15 +343,23 @@ def _has_duplicates(u):
     return bool(np.any(gap < 1e-7 * scale[:, 1:]) or np.any(gap2 < 1e-7 * scale[:, 2:]))
 
 
-def _track(a, b, m, step_u):
-    """Follow each root (flat arrays) from t = 0 to 1; return w and a success flag."""
-    mag = np.abs(a) + np.abs(b)
+def _track(a, b, m, step_u, w0=None, a0=None, b0=None):
+    """Follow each root (flat arrays) along ``a(t) = a0 + t (a - a0)`` (likewise ``b``),
+    ``t: 0 -> 1``, from ``w0`` (default: the rigid roots ``(m pi)^2`` at ``a0 = b0 = 0``);
+    return w and a success flag."""
+    if w0 is None:
+        w0 = (m * np.pi) ** 2 + 0j
+        a0 = np.zeros_like(a)
+        b0 = np.zeros_like(b)
+    da, db = a - a0, b - b0
+    mag = np.abs(da) + np.abs(db)
     disp = np.where(m > 0, mag / (np.pi * np.maximum(m, 1.0)), np.sqrt(mag))
     steps = np.clip(np.ceil(disp / step_u), 1, _MAX_STEPS).astype(int)
     steps = np.where(mag == 0, 0, steps)
     order = np.argsort(-steps, kind="stable")  # most steps first: the active set is a prefix
     a_s, b_s, st = a[order], b[order], steps[order]
-    w = (m[order] * np.pi) ** 2 + 0j
+    a0_s, b0_s, da_s, db_s = a0[order], b0[order], da[order], db[order]
+    w = np.array(w0[order], dtype=complex)
     dt = np.where(st > 0, 1.0 / np.maximum(st, 1), 0.0)
     n_active = np.searchsorted(-st, -np.arange(1, st.max(initial=0) + 1), side="right")
     for j in range(st.max(initial=0)):
@@ -247,28 +367,20 @@ def _track(a, b, m, step_u):
         sl = slice(0, p)
         t0 = j * dt[sl]
         ww = w[sl]
-        aa, bb = a_s[sl], b_s[sl]
-        # Euler predictor in t
-        f, df = robin_characteristic(ww, t0 * aa, t0 * bb)
-        u = np.sqrt(ww)
-        ft = -2.0 * t0 * aa * bb * _sinc(u) - (aa + bb) * np.cos(u)
+        da_j, db_j = da_s[sl], db_s[sl]
+        at, bt = a0_s[sl] + t0 * da_j, b0_s[sl] + t0 * db_j
+        # Euler predictor in t: F_t = (-b s - c) da + (-a s - c) db
+        f, df, sw, cw = _fdf(ww, at, bt)
+        ft = -(bt * sw + cw) * da_j - (at * sw + cw) * db_j
         ww = ww - dt[sl] * ft / df
         t1 = t0 + dt[sl]
+        at, bt = a0_s[sl] + t1 * da_j, b0_s[sl] + t1 * db_j
         for _ in range(3):
-            f, df = robin_characteristic(ww, t1 * aa, t1 * bb)
+            f, df, _, _ = _fdf(ww, at, bt)
             ww = ww - f / df
         w[sl] = ww
     # polish at t = 1
-    ok = np.zeros(w.shape, dtype=bool)
-    for _ in range(30):
-        idx = np.flatnonzero(~ok)
-        if idx.size == 0:
-            break
-        f, df = robin_characteristic(w[idx], a_s[idx], b_s[idx])
-        dw = f / df
-        w[idx] -= dw
-        ok[idx] = np.abs(dw) <= 1e-13 * (1.0 + np.abs(w[idx]))
-    good = bool(np.all(ok) and np.all(np.isfinite(w)))
+    w, good = _newton(w, a_s, b_s)
     out = np.empty_like(w)
     out[order] = w
     return out, good
@@ -349,6 +461,17 @@ def robin_modes(x_m, length_m, k_m, a_lo):
     return np.cos(arg) + a_lo * x_m * _sinc(arg)
 
 
+def _modes(x_m, k_m, a_lo):
+    """:func:`robin_modes` at points ``x_m`` (P,) for ``k_m`` (F, m): shape (P, F, m), with
+    one complex exponential per value (``x sinc(k x) = sin(k x) / k``)."""
+    x = x_m[:, None, None]
+    sn, c = _sin_cos(k_m * x)
+    kz = k_m == 0
+    if kz.any():
+        return c + a_lo * np.where(kz, x, sn / np.where(kz, 1.0, k_m))
+    return c + a_lo * (sn / k_m)
+
+
 def robin_norms(length_m, k_m, a_lo):
     """Unconjugated norms ``N_m = int_0^L X_m^2 dx`` (closed form).
 
@@ -419,15 +542,114 @@ def _g_core(kap, lo, hi, L, a0, aL, inv=None):
     return ed * n0 * nL * inv
 
 
-def _g_inv(kap, L, a0, aL):
-    """``1 / (2 kappa D)``, ``D = (kappa + A_0)(kappa + A_L) - (kappa - A_0)(kappa - A_L) e^{-2 kappa L}``."""
-    emD = np.expm1(-2.0 * kap * L)
+def _g_inv(kap, L, a0, aL, emD=None):
+    """``1 / (2 kappa D)``, ``D = (kappa + A_0)(kappa + A_L) - (kappa - A_0)(kappa - A_L) e^{-2 kappa L}``
+    (``emD = expm1(-2 kappa L)`` may be given)."""
+    if emD is None:
+        emD = np.expm1(-2.0 * kap * L)
     den = -(kap * kap + a0 * aL) * emD + kap * (a0 + aL) * (2.0 + emD)
     return 1.0 / (2.0 * kap * den)
 
 
 # ---------------------------------------------------------------------------------------
 # the 3-D transfer
+
+
+def _phi_lo(kap, z, a0):
+    """``(kappa + A_0) e^{kappa z} + (kappa - A_0) e^{-kappa z}`` at the points ``z`` (U,):
+    the solution that meets the end condition at 0, shape ``(U,) + kap.shape``."""
+    e = np.exp(kap * z.reshape((-1,) + (1,) * kap.ndim))
+    return (kap + a0) * e + (kap - a0) / e
+
+
+def _phi_hi(kap, z, aL, e2L):
+    """``(kappa + A_L) e^{-kappa z} + (kappa - A_L) e^{-2 kappa L} e^{kappa z}``: the solution
+    that meets the end condition at ``L`` (``e2L = e^{-2 kappa L}``)."""
+    e = np.exp(-kap * z.reshape((-1,) + (1,) * kap.ndim))
+    return (kap + aL) * e + (kap - aL) * e2L / e
+
+
+#: Largest ``Re kappa L`` for the factorised form ``g = inv phi_lo(z<) phi_hi(z>)``: its
+#: factors grow like ``e^{Re kappa L}`` and must stay far from overflow (``e^600 ~ 1e260``).
+_FACTOR_MAX = 600.0
+#: Entries of each cache of per-axis tables (they depend on the room and the frequencies only).
+_CACHE_SIZE = 16
+_AXIS_CACHE: dict = {}
+_GROUP_CACHE: dict = {}
+
+
+def _cache_put(cache, key, value):
+    if key in cache:
+        cache.pop(key)
+    elif len(cache) >= _CACHE_SIZE:
+        cache.pop(next(iter(cache)))  # the least recently used entry
+    cache[key] = value
+    return value
+
+
+def _cache_get(cache, key):
+    value = cache.pop(key, None)
+    if value is not None:
+        cache[key] = value  # now the most recently used
+    return value
+
+
+def clear_caches():
+    """Empty the tables :func:`exact_transfer` keeps between calls (root and kernel tables
+    per room and frequency set; at most 16 of each, least recently used dropped first)."""
+    _AXIS_CACHE.clear()
+    _GROUP_CACHE.clear()
+
+
+def _axis_tables(size, beta, k, amp, need):
+    """Wavenumbers ``k_m`` (F, >= need[d]) and norms of each axis ``d`` with ``need[d] > 0``.
+
+    Taken from the cache when an entry for the same axis, walls and frequencies holds at
+    least ``need[d]`` roots (roots are followed one by one, so the first ``n`` of a longer
+    table are the ``n``-root answer); the missing axes are solved together."""
+    kax, nax = [None] * 3, [None] * 3
+    keys, todo = [None] * 3, []
+    for d in range(3):
+        if need[d] == 0:
+            continue
+        keys[d] = (float(size[d]), beta[2 * d].tobytes(), beta[2 * d + 1].tobytes(), k.tobytes())
+        hit = _cache_get(_AXIS_CACHE, keys[d])
+        if hit is not None and hit[0].shape[1] >= need[d]:
+            kax[d], nax[d] = hit
+        else:
+            todo.append(d)
+    if not todo:
+        return kax, nax
+    ab = [(1j * k * size[d] * beta[2 * d], 1j * k * size[d] * beta[2 * d + 1], int(need[d])) for d in todo]
+    roots = _roots_blocks(ab) if k.size >= 2 * _ANCHOR_EVERY else None
+    if roots is None:
+        roots = [robin_roots(a, b, n) for a, b, n in ab]
+    for d, u in zip(todo, roots):
+        km = u / size[d]
+        nm = robin_norms(size[d], km, amp[2 * d][:, None])
+        km.setflags(write=False)
+        nm.setflags(write=False)
+        kax[d], nax[d] = _cache_put(_AXIS_CACHE, keys[d], (km, nm))
+    return kax, nax
+
+
+def _group_table(key, kb, kc, k, L, a0, aL):
+    """``kappa``, ``1 / (2 kappa D)`` and ``e^{-2 kappa L}`` on the (F, mb, mc) grid of
+    transverse wavenumbers, and whether the factorised form may be used (cached)."""
+    hit = _cache_get(_GROUP_CACHE, key)
+    if hit is not None:
+        return hit
+    kap = np.sqrt(kb[:, :, None] ** 2 + kc[:, None, :] ** 2 - (k * k)[:, None, None])
+    kap = np.where(np.abs(kap) * L < 1e-7, 1e-7 / L, kap)
+    emD = np.expm1(-2.0 * kap * L)
+    inv = _g_inv(kap, L, a0, aL, emD)
+    factor_ok = bool(np.max(kap.real) * L <= _FACTOR_MAX)
+    e2L = np.exp(-2.0 * kap * L)  # not 1 + emD: that loses e^{-2 kappa L} once it is below 1e-16
+    for x in (kap, inv, e2L):
+        x.setflags(write=False)
+    return _cache_put(_GROUP_CACHE, key, (kap, inv, e2L, factor_ok))
+
+
 
 
 def truncation_wavenumber(sep_m, k_max, tol_db=DEFAULT_TOL_DB):
@@ -561,39 +783,37 @@ def exact_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound
             need[tc] = max(need[tc], mc)
             groups.append((a, tb, tc, mb, mc, sel))
 
-    # axial wavenumbers, one set per axis and frequency
-    kax, nax = [None] * 3, [None] * 3
-    for d in range(3):
-        if need[d] == 0:
-            continue
-        km = robin_wavenumbers(size[d], beta[2 * d], beta[2 * d + 1], k, need[d])  # (F, n)
-        kax[d] = km
-        nax[d] = robin_norms(size[d], km, amp[2 * d][:, None])
+    # axial wavenumbers, one set per axis and frequency (cached per room and frequencies)
+    kax, nax = _axis_tables(size, beta, k, amp, need)
 
     out = np.empty((ns * nr, f.size), dtype=complex)
+    room_key = (size.tobytes(), beta.tobytes(), k.tobytes())
     for a, tb, tc, mb, mc, sel in groups:
         kb, kc = kax[tb][:, :mb], kax[tc][:, :mc]
-        kap2 = kb[:, :, None] ** 2 + kc[:, None, :] ** 2 - (k * k)[:, None, None]  # (F, mb, mc)
-        kap = np.sqrt(kap2)
-        kap = np.where(np.abs(kap) * size[a] < 1e-7, 1e-7 / size[a], kap)
         a0 = amp[2 * a][:, None, None]
         aL = amp[2 * a + 1][:, None, None]
         ab = amp[2 * tb][:, None]
         ac = amp[2 * tc][:, None]
         nb, nc = nax[tb][:, :mb], nax[tc][:, :mc]
-        inv = _g_inv(kap, size[a], a0, aL)
+        kap, inv, e2L, factor_ok = _group_table(room_key + (a, mb, mc), kb, kc, k, size[a], a0, aL)
         chunk = max(1, _BLOCK_ELEMENTS // (f.size * mb * mc))
         for p0 in range(0, sel.size, chunk):
             part = sel[p0:p0 + chunk]
             s, r = src[si[part]], rec[ri[part]]
             # transverse mode products X(s) X(r) / N, (P, F, m)
-            xb = (robin_modes(s[:, tb, None, None], size[tb], kb, ab)
-                  * robin_modes(r[:, tb, None, None], size[tb], kb, ab) / nb)
-            xc = (robin_modes(s[:, tc, None, None], size[tc], kc, ac)
-                  * robin_modes(r[:, tc, None, None], size[tc], kc, ac) / nc)
-            lo = np.minimum(s[:, a], r[:, a])[:, None, None, None]
-            hi = np.maximum(s[:, a], r[:, a])[:, None, None, None]
-            g = _g_core(kap, lo, hi, size[a], a0, aL, inv)  # (P, F, mb, mc)
+            xb = (_modes(s[:, tb], kb, ab) * _modes(r[:, tb], kb, ab)) / nb
+            xc = (_modes(s[:, tc], kc, ac) * _modes(r[:, tc], kc, ac)) / nc
+            lo = np.minimum(s[:, a], r[:, a])
+            hi = np.maximum(s[:, a], r[:, a])
+            if factor_ok:
+                # g = inv phi_lo(z<) phi_hi(z>): each distinct coordinate costs one exp
+                ulo, ilo = np.unique(lo, return_inverse=True)
+                uhi, ihi = np.unique(hi, return_inverse=True)
+                g = _phi_lo(kap, ulo, a0)[ilo.ravel()]
+                g *= _phi_hi(kap, uhi, aL, e2L)[ihi.ravel()]
+                g *= inv
+            else:
+                g = _g_core(kap, lo[:, None, None, None], hi[:, None, None, None], size[a], a0, aL, inv)
             t = np.einsum("pfmn,pfn->pfm", g, xc)
             out[part] = 4 * np.pi * np.einsum("pfm,pfm->pf", t, xb)
         near = sel[dmax[sel] < near_m]

@@ -41,6 +41,8 @@ import tracemalloc
 from unittest import mock
 
 import numpy as np
+from baseline import exact as old_exact
+from baseline import images as old_images
 from baseline import modal as old_modal
 from baseline import scorer as old_scorer
 
@@ -52,11 +54,6 @@ from roommodes.solvers.exact import exact_transfer
 from roommodes.solvers.images import image_count, image_source_transfer
 from roommodes.solvers.modal import modal_transfer
 from roommodes.solvers.threads import MULTI_THREAD_MIN_FLOP, blas_threads
-
-# The exact and image-source solvers have not changed since the baseline was taken, so their
-# "old" is the current module; copy a module into tests/bench/baseline/ before changing it.
-old_exact = roommodes.solvers.exact
-old_images = roommodes.solvers.images
 
 
 def timed(fn):

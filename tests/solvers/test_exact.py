@@ -387,3 +387,72 @@ def test_dispatch_through_transfer_function():
     h = transfer_function(room, [[0.5, 0.9, 1.1]], [[2.0, 1.7, 1.2]], f, method="exact")
     ref = exact_transfer(room.size_m, room.impedance(f), [[0.5, 0.9, 1.1]], [[2.0, 1.7, 1.2]], f, room.speed_of_sound)
     np.testing.assert_allclose(h, ref, rtol=1e-12)
+
+
+# ---------------------------------------------------------------------------------------
+# neighbour-started roots and the tables kept between calls
+
+
+@pytest.mark.parametrize("beta", [0.05, 0.3 - 0.2j, 0.64])
+def test_roots_from_neighbouring_frequencies_match_full_continuation(beta):
+    # A frequency sweep (>= 16 entries) takes the full continuation at every 8th entry and
+    # Newton from the neighbours' roots elsewhere; both must land on the same roots, each
+    # checked against the rigid-index continuation of robin_roots itself (entry by entry)
+    # and the characteristic equation F = 0 (definition, module docstring).
+    from roommodes.solvers.exact import _roots_blocks
+
+    k = 2 * np.pi * np.geomspace(15.0, 300.0, 41) / C
+    a = 1j * k * SIZE[0] * beta
+    b = 1j * k * SIZE[0] * 0.5 * beta
+    fast = _roots_blocks([(a, b, 14)])
+    # the neighbour start is taken for ordinary walls; for the largest admittance the roots
+    # move too far between anchors, the check refuses and robin_roots falls back
+    assert (fast is None) == (abs(beta) > 0.5)
+    u = robin_roots(a, b, 14)
+    for i in (0, 3, 8, 21, 40):
+        np.testing.assert_allclose(u[i], robin_roots(a[i], b[i], 14), rtol=1e-11, atol=1e-11)
+    f, _ = robin_characteristic(u**2, a[:, None], b[:, None])
+    assert np.max(np.abs(f)) < 1e-9 * np.max(np.abs(u) ** 2)
+
+
+def test_repeated_calls_reuse_tables_and_give_the_same_answer():
+    # the second call (tables cached) and a call needing more roots than cached (a closer
+    # pair) give what a call with empty caches gives
+    from roommodes.solvers import exact as ex
+
+    z = impedance_from_absorption(np.array([0.3, 0.2, 0.4, 0.35, 0.1, 0.5]))
+    f = np.geomspace(20.0, 200.0, 30)
+    src, far, near = [[1.0, 1.0, 1.0]], [[4.0, 3.0, 2.0]], [[1.3, 1.1, 1.05]]
+    ex.clear_caches()
+    h1 = exact_transfer(SIZE, z, src, far, f, C)
+    assert len(ex._AXIS_CACHE) > 0
+    h2 = exact_transfer(SIZE, z, src, far, f, C)
+    hn = exact_transfer(SIZE, z, src, near, f, C)
+    ex.clear_caches()
+    hn_cold = exact_transfer(SIZE, z, src, near, f, C)
+    assert np.array_equal(h1, h2)
+    np.testing.assert_allclose(hn, hn_cold, rtol=1e-12)
+    # the caches stay bounded
+    for i in range(40):
+        exact_transfer(SIZE, z, src, far, f * (1 + 0.001 * i), C)
+    assert len(ex._AXIS_CACHE) <= ex._CACHE_SIZE and len(ex._GROUP_CACHE) <= ex._CACHE_SIZE
+
+
+def test_factorised_green_function_matches_the_three_exponential_form(monkeypatch):
+    # g = phi_0(z<) phi_L(z>) / (2 kappa D) regroups the exponentials of the closed form
+    # (module docstring); with the regrouping switched off (_FACTOR_MAX = 0, the
+    # three-exponential form for every term) the answer must be the same, also for pairs
+    # far apart along a long axis where e^{-2 kappa L} is far below 1e-16
+    from roommodes.solvers import exact as ex
+
+    z = impedance_from_absorption(np.array([0.45, 0.3, 0.2, 0.1, 0.35, 0.5]))
+    f = np.geomspace(20.0, 200.0, 24)
+    src = [[0.3, 1.0, 1.0], [4.9, 3.9, 2.5], [2.0, 2.0, 1.3]]
+    rec = [[4.7, 3.0, 2.0], [0.1, 0.2, 0.3], [2.1, 2.05, 1.32]]
+    ex.clear_caches()
+    h = exact_transfer(SIZE, z, src, rec, f, C)
+    monkeypatch.setattr(ex, "_FACTOR_MAX", 0.0)
+    ex.clear_caches()
+    h3 = exact_transfer(SIZE, z, src, rec, f, C)
+    ex.clear_caches()
+    np.testing.assert_allclose(h, h3, rtol=1e-10)

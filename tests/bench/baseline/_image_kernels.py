@@ -1,0 +1,205 @@
+"""numba kernels of the image-source solver (nothing else lives here).
+
+Each kernel has a plain-NumPy twin in :mod:`roommodes.solvers.images`
+(``_spread_numpy`` and ``_direct_sum_numpy``); tests/test_images.py shows they agree.
+
+The one kernel, :func:`spread_shells`, walks the image lattice of a rectangular room
+shell by shell (shell ``n`` holds the images of total reflection order ``n``; Allen &
+Berkley 1979) and adds each image's contribution ``A_i / R_i`` to one or more sampled
+impulse responses with a truncated Gaussian kernel centred at the image's delay
+``R_i / c``: "fast Gaussian gridding" (Greengard & Lee 2004), two ``exp``
+calls per image instead of one per tap.
+
+References
+----------
+.. [1] J. B. Allen, D. A. Berkley, "Image method for efficiently simulating
+   small-room acoustics", J. Acoust. Soc. Am. 65(4):943-950, 1979.
+.. [2] L. Greengard, J.-Y. Lee, "Accelerating the nonuniform fast Fourier
+   transform", SIAM Review 46(3):443-454, 2004.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+__all__ = ["spread_shells"]
+
+
+@njit(cache=True)
+def spread_shells(
+    axis_d, axis_front, axis_back, beta, axis_amp, angle_dependent,
+    n_first, n_last, samples_per_m, inv_4tau, tap_ratio, offset, ir,
+):
+    """Add image shells ``n_first..n_last`` of one source-receiver pair to impulse responses.
+
+    Parameters
+    ----------
+    axis_d : float64 (3, O+1, 2)
+        Image coordinate minus receiver coordinate along each axis, m, for per-axis
+        reflection order ``o`` and branch ``s`` (branch 1 unused at ``o = 0``).
+    axis_front, axis_back : int64 (3, O+1, 2)
+        Reflections from the wall at 0 and at ``L`` of that axis.
+    beta : float64 (6, K)
+        Wall admittances ``1 / zeta`` (0 = rigid), one column per impulse response;
+        used when ``angle_dependent``.
+    axis_amp : float64 (3, O+1, 2, K)
+        Per-axis products of angle-independent reflection factors; used otherwise.
+    angle_dependent : bool
+        True: ``R = (cos t - beta) / (cos t + beta)`` per reflection, with
+        ``cos t = |d_axis| / R_i`` (plane-wave reflection of a locally reacting wall).
+    n_first, n_last : int
+        Shells to add (inclusive).
+    samples_per_m : float
+        ``fs / c``, samples per metre of path.
+    inv_4tau : float
+        ``1 / (4 tau)`` of the Gaussian ``exp(-x^2 / (4 tau))``, x in samples.
+    tap_ratio : float64 (W-1,)
+        ``exp(-(2 k + 1) / (4 tau))`` for the tap offsets ``k = -W/2+1 .. W/2-1``.
+    offset : int
+        Index of sample 0 in ``ir`` (so that taps before t = 0 fit).
+    ir : float64 (Ns, K)
+        Impulse responses (one per column), accumulated in place.
+
+    Returns
+    -------
+    last : int
+        Largest row of ``ir`` written.
+
+    Notes
+    -----
+    Tap ``j`` of an image at ``u = R fs / c = i0 + delta`` samples sits at
+    ``i0 + k``, ``k = j - W/2 + 1``, with weight ``exp(-(k - delta)^2 / (4 tau))``.
+    Successive weights differ by ``exp(-(2 k + 1) / (4 tau)) exp(delta / (2 tau))``
+    (the factorisation of Greengard & Lee 2004). The K columns are innermost so that the loops
+    over them vectorise.
+    """
+    n_k = ir.shape[1]
+    width = tap_ratio.shape[0] + 1
+    k_min = 1 - width // 2
+    w = np.empty(width)
+    amp = np.empty(n_k)
+    fac = np.empty(n_k)
+    last = 0
+    for n in range(n_first, n_last + 1):
+        for ox in range(n + 1):
+            for oy in range(n - ox + 1):
+                oz = n - ox - oy
+                nsx = 1 if ox == 0 else 2
+                nsy = 1 if oy == 0 else 2
+                nsz = 1 if oz == 0 else 2
+                for sx in range(nsx):
+                    dx = axis_d[0, ox, sx]
+                    for sy in range(nsy):
+                        dy = axis_d[1, oy, sy]
+                        for sz in range(nsz):
+                            dz = axis_d[2, oz, sz]
+                            r = np.sqrt(dx * dx + dy * dy + dz * dz)
+                            inv_r = 1.0 / r
+                            # Amplitude A_i / R_i (Allen & Berkley 1979: each
+                            # wall's reflection factor raised to its hit count).
+                            if n_k == 1:
+                                # one column: scalar code (the common, fastest case)
+                                a = inv_r
+                                if angle_dependent:
+                                    if ox > 0:
+                                        a *= _axis_factor_1(abs(dx) * inv_r, beta[0, 0], beta[1, 0],
+                                                            axis_front[0, ox, sx], axis_back[0, ox, sx])
+                                    if oy > 0:
+                                        a *= _axis_factor_1(abs(dy) * inv_r, beta[2, 0], beta[3, 0],
+                                                            axis_front[1, oy, sy], axis_back[1, oy, sy])
+                                    if oz > 0:
+                                        a *= _axis_factor_1(abs(dz) * inv_r, beta[4, 0], beta[5, 0],
+                                                            axis_front[2, oz, sz], axis_back[2, oz, sz])
+                                else:
+                                    a *= axis_amp[0, ox, sx, 0] * axis_amp[1, oy, sy, 0] * axis_amp[2, oz, sz, 0]
+                                amp[0] = a
+                            elif angle_dependent:
+                                for kk in range(n_k):
+                                    amp[kk] = inv_r
+                                if ox > 0:
+                                    _axis_factor(abs(dx) * inv_r, beta[0], beta[1],
+                                                 axis_front[0, ox, sx], axis_back[0, ox, sx], amp, fac)
+                                if oy > 0:
+                                    _axis_factor(abs(dy) * inv_r, beta[2], beta[3],
+                                                 axis_front[1, oy, sy], axis_back[1, oy, sy], amp, fac)
+                                if oz > 0:
+                                    _axis_factor(abs(dz) * inv_r, beta[4], beta[5],
+                                                 axis_front[2, oz, sz], axis_back[2, oz, sz], amp, fac)
+                            else:
+                                ax = axis_amp[0, ox, sx]
+                                ay = axis_amp[1, oy, sy]
+                                az = axis_amp[2, oz, sz]
+                                for kk in range(n_k):
+                                    amp[kk] = ax[kk] * ay[kk] * az[kk] * inv_r
+                            # Gaussian taps (fast Gaussian gridding)
+                            u = r * samples_per_m
+                            i0 = int(u)
+                            delta = u - i0
+                            x0 = k_min - delta
+                            w[0] = np.exp(-x0 * x0 * inv_4tau)
+                            g = np.exp(2.0 * delta * inv_4tau)
+                            for j in range(width - 1):
+                                w[j + 1] = w[j] * tap_ratio[j] * g
+                            base = offset + i0 + k_min
+                            last = max(last, base + width - 1)
+                            if n_k == 1:
+                                a = amp[0]
+                                for j in range(width):
+                                    ir[base + j, 0] += a * w[j]
+                            else:
+                                for j in range(width):
+                                    row = ir[base + j]
+                                    wj = w[j]
+                                    for kk in range(n_k):
+                                        row[kk] += amp[kk] * wj
+    return last
+
+
+@njit(cache=True, inline="always")
+def _axis_factor_1(cos_t, beta_front, beta_back, n_front, n_back):
+    """``R_front^n_front R_back^n_back`` with ``R = (cos t - beta) / (cos t + beta)``."""
+    rf = (cos_t - beta_front) / (cos_t + beta_front)
+    if beta_back == beta_front:
+        return rf ** (n_front + n_back)
+    rb = (cos_t - beta_back) / (cos_t + beta_back)
+    return rf ** n_front * rb ** n_back
+
+
+@njit(cache=True, inline="always")
+def _axis_factor(cos_t, beta_front, beta_back, n_front, n_back, amp, fac):
+    """``amp *= R_front^n_front R_back^n_back``, ``R = (cos t - beta) / (cos t + beta)``.
+
+    Vectorised over the K columns; integer powers by repeated squaring.
+    """
+    n_k = amp.shape[0]
+    same = True
+    for kk in range(n_k):
+        if beta_front[kk] != beta_back[kk]:
+            same = False
+            break
+    if same:
+        for kk in range(n_k):
+            fac[kk] = (cos_t - beta_front[kk]) / (cos_t + beta_front[kk])
+        _mul_power(amp, fac, n_front + n_back)
+    else:
+        for kk in range(n_k):
+            fac[kk] = (cos_t - beta_front[kk]) / (cos_t + beta_front[kk])
+        _mul_power(amp, fac, n_front)
+        for kk in range(n_k):
+            fac[kk] = (cos_t - beta_back[kk]) / (cos_t + beta_back[kk])
+        _mul_power(amp, fac, n_back)
+
+
+@njit(cache=True, inline="always")
+def _mul_power(amp, base, e):
+    """``amp *= base ** e`` elementwise for an integer ``e >= 0`` (``base`` is overwritten)."""
+    n_k = amp.shape[0]
+    while e > 0:
+        if e & 1:
+            for kk in range(n_k):
+                amp[kk] *= base[kk]
+        e >>= 1
+        if e > 0:
+            for kk in range(n_k):
+                base[kk] *= base[kk]
