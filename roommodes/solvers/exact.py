@@ -61,6 +61,8 @@ References
 
 from __future__ import annotations
 
+import threading
+
 import numpy as np
 
 from ..model.walls import impedance_table
@@ -578,27 +580,34 @@ _AXIS_CACHE: dict = {}
 _GROUP_CACHE: dict = {}
 
 
+#: The caches are shared by threads (the report runs its placement search beside its sections).
+_CACHE_LOCK = threading.Lock()
+
+
 def _cache_put(cache, key, value):
-    if key in cache:
-        cache.pop(key)
-    elif len(cache) >= _CACHE_SIZE:
-        cache.pop(next(iter(cache)))  # the least recently used entry
-    cache[key] = value
+    with _CACHE_LOCK:
+        if key in cache:
+            cache.pop(key)
+        elif len(cache) >= _CACHE_SIZE:
+            cache.pop(next(iter(cache)))  # the least recently used entry
+        cache[key] = value
     return value
 
 
 def _cache_get(cache, key):
-    value = cache.pop(key, None)
-    if value is not None:
-        cache[key] = value  # now the most recently used
+    with _CACHE_LOCK:
+        value = cache.pop(key, None)
+        if value is not None:
+            cache[key] = value  # now the most recently used
     return value
 
 
 def clear_caches():
     """Empty the tables :func:`exact_transfer` keeps between calls (root and kernel tables
     per room and frequency set; at most 16 of each, least recently used dropped first)."""
-    _AXIS_CACHE.clear()
-    _GROUP_CACHE.clear()
+    with _CACHE_LOCK:
+        _AXIS_CACHE.clear()
+        _GROUP_CACHE.clear()
 
 
 def _axis_tables(size, beta, k, amp, need):

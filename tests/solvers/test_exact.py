@@ -456,3 +456,42 @@ def test_factorised_green_function_matches_the_three_exponential_form(monkeypatc
     h3 = exact_transfer(SIZE, z, src, rec, f, C)
     ex.clear_caches()
     np.testing.assert_allclose(h, h3, rtol=1e-10)
+
+
+def test_the_kept_tables_are_safe_to_share_between_threads():
+    # the report runs its placement search on a second thread beside the sections, and both
+    # call the exact solver: concurrent calls must neither fail nor mix their answers (a smoke
+    # check: a race between the cache's steps is rare under the interpreter lock, so this
+    # catches mixed answers and crashes when they happen rather than proving the lock)
+    import threading
+
+    from roommodes.solvers import exact as ex
+
+    zeta = np.full(6, 8.0)  # a normalised wall impedance, alpha about 0.4
+    src, rcv = np.array([[1.0, 1.0, 1.2]]), np.array([[2.5, 2.0, 1.1]])
+    sets = [np.geomspace(20 + i, 200 - i, 30) for i in range(24)]  # more sets than the cache holds
+
+    def call(f):
+        return ex.exact_transfer(SIZE, zeta, src, rcv, f, C)[0, 0]
+
+    want = [call(f) for f in sets]
+    ex.clear_caches()
+    errors, got = [], {}
+
+    def work(offset):
+        try:
+            for r in range(3):
+                for i in range(offset, offset + len(sets)):
+                    j = i % len(sets)
+                    got[(offset, r, j)] = call(sets[j])
+        except Exception as exc:  # noqa: BLE001 - any failure in a thread fails the test
+            errors.append(exc)
+
+    threads = [threading.Thread(target=work, args=(k * 5,)) for k in range(4)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    assert not errors
+    for (_, _, j), h in got.items():
+        np.testing.assert_allclose(h, want[j], rtol=1e-9)
