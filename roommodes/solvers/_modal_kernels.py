@@ -153,6 +153,22 @@ def pair_products_into(psi_src, psi_rec, static_weight, out_lo, out_hi, low):
 
 
 @njit(cache=True)
+def _pair_axes(src, rec):
+    """The axis ``a`` of largest separation of two points (the first on ties, as np.argmax),
+    the other two axes ``b < c``, and the separation along ``a``."""
+    a = 0
+    da = abs(src[0] - rec[0])
+    for k in (1, 2):
+        dk = abs(src[k] - rec[k])
+        if dk > da:
+            a = k
+            da = dk
+    b = 1 if a == 0 else 0
+    c = 1 if a == 2 else 2
+    return a, b, c, da
+
+
+@njit(cache=True)
 def static_green_pairs_kernel(size, src, rec, decay, max_index, out):
     """``out[i] = static_green(size, src[i], rec[i])`` for every pair ``i``.
 
@@ -181,20 +197,7 @@ def static_green_pairs_kernel(size, src, rec, decay, max_index, out):
     pi = math.pi
     cos_c = np.empty(max_index + 1)
     for i in range(n_pairs):
-        d0 = abs(src[i, 0] - rec[i, 0])
-        d1 = abs(src[i, 1] - rec[i, 1])
-        d2 = abs(src[i, 2] - rec[i, 2])
-        # the axis of largest separation (first one on ties, as np.argmax)
-        a = 0
-        da = d0
-        if d1 > da:
-            a = 1
-            da = d1
-        if d2 > da:
-            a = 2
-            da = d2
-        b = 1 if a == 0 else 0
-        c = 1 if a == 2 else 2
+        a, b, c, da = _pair_axes(src[i], rec[i])
         sep = max(da, 1e-3)
         kmax = decay / sep
         lb = size[b]
@@ -274,19 +277,7 @@ def static_green_pairs_tabled(size, src, rec, decay, kappa, weight_den, qexp, ou
     n_tab = kappa.shape[1]
     cos_c = np.empty(n_tab)
     for i in range(n_pairs):
-        d0 = abs(src[i, 0] - rec[i, 0])
-        d1 = abs(src[i, 1] - rec[i, 1])
-        d2 = abs(src[i, 2] - rec[i, 2])
-        a = 0
-        da = d0
-        if d1 > da:
-            a = 1
-            da = d1
-        if d2 > da:
-            a = 2
-            da = d2
-        b = 1 if a == 0 else 0
-        c = 1 if a == 2 else 2
+        a, b, c, da = _pair_axes(src[i], rec[i])
         sep = max(da, 1e-3)
         kmax = decay / sep
         lb = size[b]
