@@ -34,7 +34,7 @@ from ..analysis.compare import average_measurements, compare_to_prediction
 from ..analysis.correction import correct_measured, correct_prediction
 from ..analysis.explain import explain as run_explain
 from ..analysis.fit import fit_room
-from ..analysis.maps import floor_level_map, mode_coupling
+from ..analysis.maps import INTERPOLATED_METHODS, floor_level_map, mode_coupling
 from ..analysis.predict import band_figures, predict, response_features, usable_band
 from ..analysis.search import PARTS, front_distance_profile, search_layouts, search_space, seat_score_map
 from ..analysis.subs import BEFORE_CROSSOVER_HZ, CROSSOVER_TYPE, RANKING_RULE, optimise_subs
@@ -713,8 +713,9 @@ def _section_modes(run):
         doc.figure(fig, f"map-{fq:g}hz".replace(".", "p"), f"Level over the floor at {fq:g} Hz",
                    f"At the seat {fm.seat_level_db:+.1f} dB; loudest {top:+.1f} dB at {L(xm)} from the front wall and "
                    f"{L(ym)} from the left wall; quietest {low:+.1f} dB at {L(xn)} and {L(yn)}." + near
-                   + f" Solved on a {MAP_SOLVE_STEP_M * 100:g} cm grid and interpolated to the cells drawn "
-                   "(within 0.25 dB of solving every cell); the cells near the speakers are solved directly.")
+                   + (f" Solved on a {MAP_SOLVE_STEP_M * 100:g} cm grid and interpolated to the cells drawn, "
+                      "the speakers' own free field added exactly (within 0.25 dB of solving every cell)."
+                      if method in INTERPOLATED_METHODS else ""))
         values.setdefault("maps", []).append({"freq_hz": fq, "seat_level_db": fm.seat_level_db})
     run.pred = pred
     run.feats = feats
