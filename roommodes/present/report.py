@@ -549,6 +549,10 @@ class _Job:
 
         threading.Thread(target=target, name=f"roommodes-{func.__name__}", daemon=True).start()
 
+    def done(self):
+        """Whether the call has finished."""
+        return self._done.is_set()
+
     def result(self):
         self._done.wait()
         if self._error is not None:
@@ -862,7 +866,9 @@ def _section_placement(run):
               "file, or make the report again with --search full.")
     else:
         step(f"placement search ({search})")
-
+        if not run.search_job.done():
+            # while the search runs on: the EQ section's design needs nothing from it
+            _model_corrections(run)
         res = run.search_job.result()
         best = res.ranked[0]
         values["best_score"] = best.score
@@ -1072,13 +1078,21 @@ def _max_level_table(run, corrections):
               key="max-level")
 
 
+def _model_corrections(run):
+    """The EQ designed on the model for the analysed layout (computed once: the placement
+    section starts it while it waits for the search)."""
+    if getattr(run, "model_corrections", None) is None:
+        run.model_corrections, _ = correct_prediction(run.room, run.layout, run.f, method=run.method)
+    return run.model_corrections
+
+
 def _section_eq(run):
     """Bass correction and headroom, channel by channel."""
     doc, values, glance, step, room = run.doc, run.values, run.glance, run.step, run.room
-    layout, method, f = run.layout, run.method, run.f
+    layout = run.layout
     step("bass correction")
     doc.section("eq", "Bass correction (EQ) and headroom")
-    corrections, _ = correct_prediction(room, layout, f, method=method)
+    corrections = _model_corrections(run)
     measured = {}
     for m in run.measurements:
         measured.setdefault(m.channel, []).append(m.measurement)
