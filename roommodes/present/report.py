@@ -308,9 +308,9 @@ class _Doc:
         c = f' class="{cls}"' if cls else ""
         self.parts.append(f"<{tag}{c}>" + "".join(f"<li>{_esc(i)}</li>" for i in items) + f"</{tag}>")
 
-    def figure(self, fig, stem, title, caption=""):
+    def figure(self, fig, stem, title, caption="", rendered=None):
         number = len(self.figures) + 1
-        png, svg = _render(fig)
+        png, svg = _render(fig) if rendered is None else rendered
         name = f"f{number:02d}-{safe_stem(stem)}"
         self.figures.append(ReportFigure(name, number, title, caption, png, svg))
         data, mime = (svg, "image/svg+xml") if self.embed == "svg" else (png, "image/png")
@@ -513,7 +513,7 @@ def build_report(room, measurements=(), fit_targets=None, *, units="cm", search=
                measurements=measurements, fit_targets=fit_targets, spl_reference=spl_reference, compare_band_hz=compare_band_hz,
                compare_smoothing=compare_smoothing, created=created, command=command, files_folder=files_folder,
                inputs=inputs, room_text=room_text, map_freqs_hz=map_freqs_hz, fit_res=fit_res,
-               uncertainty=uncertainty)
+               uncertainty=uncertainty, early_figures={})
     # the placement search needs nothing the sections compute: it runs on a second thread
     # beside them (its matrix products leave the interpreter free for the figures)
     run.search_job = None if search == "off" else _Job(search_layouts, room, space, refine=(search == "full"))
@@ -867,8 +867,11 @@ def _section_placement(run):
     else:
         step(f"placement search ({search})")
         if not run.search_job.done():
-            # while the search runs on: the EQ section's design needs nothing from it
+            # while the search runs on: what later sections draw without it
             _model_corrections(run)
+            if not run.measurements:
+                _early_figure(run, "eq", _eq_figure, _model_corrections(run))
+            _early_figure(run, "modes", _modes_figure)
         res = run.search_job.result()
         best = res.ranked[0]
         values["best_score"] = best.score
@@ -1160,10 +1163,11 @@ def _section_eq(run):
     glance.append("Bass correction: " + "; ".join(
         f"{c.name} {len(c.parametric.filters)} filter(s), {boost_text(c.headroom.max_boost_db)} "
         f"(pre-attenuate {c.headroom.preattenuation_db:.1f} dB)" for c in corrections) + ".")
-    fig = plot_correction(corrections, title=f"{room.name}: bass correction")
+    early = None if measured else run.early_figures.pop("eq", None)
+    fig, rendered = early if early is not None else (_eq_figure(run, corrections), None)
     doc.figure(fig, "eq", "Bass correction, channel by channel",
                "Left: before, after and the target, with the classified regions shaded (nulls are not boosted). "
-               "Right: each filter and the combined correction; the dotted line is the maximum boost.")
+               "Right: each filter and the combined correction; the dotted line is the maximum boost.", rendered)
     doc.raw('<div class="caution"><strong>Before loading a correction</strong><ul>'
             + "".join(f"<li>{_esc(t)}</li>" for t in eqmod.CAUTIONS) + "</ul></div>")
     run.corrections = corrections
@@ -1343,7 +1347,7 @@ def _section_reproduce(run):
 
 def _section_appendix(run):
     """Every mode up to 200 Hz."""
-    doc, room, ms300 = run.doc, run.room, run.ms300
+    doc, ms300 = run.doc, run.ms300
     doc.section("appendix", "Appendix: room modes up to 200 Hz")
     rows = []
     for i in np.flatnonzero(ms300.freq_hz <= 200.0):
@@ -1354,8 +1358,24 @@ def _section_appendix(run):
               ("mode", "kind", "frequency (Hz)", "note", "T60 (s)", "bandwidth (Hz)"), rows, key="modes",
               note="Indices nx, ny, nz count half-wavelengths along length, width and height; all modes up to "
                    "300 Hz are in `roommodes modes`.")
-    fig = plot_modes(ms300, 200.0, title=f"Room modes: {room.name}")
-    doc.figure(fig, "modes", "Room modes up to 200 Hz with their decay times", "Colour: kind of mode.")
+    early = run.early_figures.pop("modes", None)
+    fig, rendered = early if early is not None else (_modes_figure(run), None)
+    doc.figure(fig, "modes", "Room modes up to 200 Hz with their decay times", "Colour: kind of mode.", rendered)
+
+
+def _eq_figure(run, corrections):
+    return plot_correction(corrections, title=f"{run.room.name}: bass correction")
+
+
+def _modes_figure(run):
+    return plot_modes(run.ms300, 200.0, title=f"Room modes: {run.room.name}")
+
+
+def _early_figure(run, stem, make, *args):
+    """Draw and render a later section's figure ahead (while the search runs); the section
+    takes it from ``run.early_figures`` and draws it itself when it is not there."""
+    fig = make(run, *args)
+    run.early_figures[stem] = (fig, _render(fig))
 
 
 def _placement_figure(room, space, res, current, method):
