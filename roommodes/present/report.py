@@ -858,7 +858,7 @@ def _section_placement(run):
     """The placement search and the left/right explanation."""
     doc, values, glance, step, L = run.doc, run.values, run.glance, run.step, run.L
     room, layout, preset_used, units, method = run.room, run.layout, run.preset_used, run.units, run.method
-    f, space, keep_out, search = run.f, run.space, run.keep_out, run.search
+    space, search = run.space, run.search
     doc.section("placement", "Placement suggestion")
     doc.p(f"Source: {run.model}, {run.method} solver.", cls="note")
     if search == "off":
@@ -872,6 +872,8 @@ def _section_placement(run):
             if not run.measurements:
                 _early_figure(run, "eq", _eq_figure, _model_corrections(run))
             _early_figure(run, "modes", _modes_figure)
+            if len(layout.speakers) >= 2:
+                _early_figure(run, "left-right", _left_right_figure, _explanation(run))
         res = run.search_job.result()
         best = res.ranked[0]
         values["best_score"] = best.score
@@ -929,7 +931,7 @@ def _section_placement(run):
     if len(layout.speakers) < 2:
         doc.p("The layout has one speaker: nothing to compare.")
     else:
-        e = run_explain(room, layout, freq_hz=f, keep_out=keep_out, method=method)
+        e = _explanation(run)
         n1, n2 = e.names
         values["band_mismatch_db"] = e.band_mismatch_db
         doc.p(f"The two channels of the {'file' if not preset_used else preset_used} layout at the seat differ by "
@@ -957,10 +959,11 @@ def _section_placement(run):
             doc.p("Modes the two speakers drive in opposite phase, so that they cancel when both play the same bass: "
                   + ", ".join(f"{_indices_text(m['indices'])} {m['freq_hz']:.1f} Hz" for m in e.mono_cancelled[:8])
                   + ".")
-        fig = plot_explain(e, title=f"{room.name}: {n1} and {n2} at the seat")
+        early = run.early_figures.pop("left-right", None)
+        fig, rendered = early if early is not None else (_left_right_figure(run, e), None)
         doc.figure(fig, "left-right", f"{n1} and {n2} at the seat, and their difference",
                    "Top: both channels (thin: unsmoothed) and the mono sum. Bottom: the difference with the regions "
-                   "numbered as in the list above.")
+                   "numbered as in the list above.", rendered)
 
 
 def _section_subs(run):
@@ -1361,6 +1364,18 @@ def _section_appendix(run):
     early = run.early_figures.pop("modes", None)
     fig, rendered = early if early is not None else (_modes_figure(run), None)
     doc.figure(fig, "modes", "Room modes up to 200 Hz with their decay times", "Colour: kind of mode.", rendered)
+
+
+def _explanation(run):
+    """Why left and right differ, for the analysed layout (computed once)."""
+    if getattr(run, "explanation", None) is None:
+        run.explanation = run_explain(run.room, run.layout, freq_hz=run.f, keep_out=run.keep_out, method=run.method)
+    return run.explanation
+
+
+def _left_right_figure(run, e):
+    n1, n2 = e.names
+    return plot_explain(e, title=f"{run.room.name}: {n1} and {n2} at the seat")
 
 
 def _eq_figure(run, corrections):
