@@ -17,6 +17,7 @@ import numpy as np
 
 from ..dsp.checks import check_number
 from ..model.modes import mode_shapes, room_modes
+from ..model.speaker import speaker_response
 from ..solvers import DEFAULT_METHOD
 from .levels import speaker_levels
 from .predict import DEFAULT_RANGE_HZ, room_schroeder_frequency
@@ -225,12 +226,59 @@ def _separated_groups(source_m, points_m, mask, gap_m=0.05):
     return groups
 
 
+def _cubic_weights(u, n):
+    """Cubic-convolution interpolation weights on ``n`` equally spaced nodes.
+
+    Keys (1981), "Cubic convolution interpolation for digital image processing", IEEE
+    Trans. ASSP 29(6): the kernel with a = -1/2 (third-order accurate), and the end
+    condition f(-1) = 3 f(0) - 3 f(1) + f(2) (and its mirror) for the nodes past either end.
+    Every value depends only on the four nodes around it, so a bad node spoils only the
+    cells next to it.
+
+    Parameters
+    ----------
+    u : ndarray
+        Positions in node units, 0..n-1.
+    n : int
+        Nodes, at least 4.
+
+    Returns
+    -------
+    ndarray
+        (len(u), n): value at u = weights @ node values.
+    """
+    u = np.clip(np.asarray(u, float), 0.0, n - 1.0)
+    i = np.clip(np.floor(u).astype(int), 0, n - 2)
+    t = u - i
+    w = np.stack([(-t**3 + 2 * t**2 - t) / 2, (3 * t**3 - 5 * t**2 + 2) / 2, (-3 * t**3 + 4 * t**2 + t) / 2,
+                  (t**3 - t**2) / 2], axis=1)
+    full = np.zeros((u.size, n + 2))  # column 0 and n + 1: the nodes past either end
+    rows = np.arange(u.size)
+    for c in range(4):
+        full[rows, i + c] += w[:, c]
+    for ghost, (a, b, c) in ((0, (1, 2, 3)), (n + 1, (n, n - 1, n - 2))):
+        g = full[:, ghost].copy()
+        full[:, a] += 3 * g
+        full[:, b] -= 3 * g
+        full[:, c] += g
+    return full[:, 1:n + 1]
+
+
+#: Solvers whose maps may be interpolated (``solve_step_m``): tested against solving every cell.
+INTERPOLATED_METHODS = ("exact", "modal")
+
+#: Nodes closer than this to a speaker are not interpolated from, m (there the remainder
+#: after taking out the speaker's free field is the difference of two large numbers); the
+#: cells that would use them are solved directly.
+_INTERP_CLEARANCE_M = 0.05
+
+
 #: Most grid points a floor map computes (a 4.6 x 3.4 m floor at 2 cm is 39,100 points).
 MAP_MAX_POINTS = 40000
 
 
 def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=None, channels=None, method=DEFAULT_METHOD,
-                    include_speaker=True):
+                    include_speaker=True, solve_step_m=None):
     """Predicted level over the floor plan at ear height at one frequency.
 
     Parameters
@@ -251,6 +299,17 @@ def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=None, chan
     method : {"modal", "image"}
     include_speaker : bool
         Apply each speaker's own low-frequency response.
+    solve_step_m : float, optional
+        None: the solver computes every cell. A step, m (coarser than ``step_m``): the
+        solver computes a grid of about this step spanning the same cells; the speakers'
+        own free field ``S e^{-jkr} / r`` is taken out of the summed pressure there, the
+        smooth remainder is interpolated to every cell by cubic convolution (Keys 1981) and
+        the free field is added back exactly. Cells whose interpolation would use a node
+        within 5 cm of a speaker are solved directly. At 10 cm on the demo room's 5 cm map
+        the level differs from the directly solved map by at most 0.1 dB up to 200 Hz within
+        30 dB of its loudest cells (measured; tested at 0.25 dB). Seat level and nearest
+        modes are not affected. Used with the exact and the modal solver; other solvers
+        solve every cell.
 
     Returns
     -------
@@ -304,17 +363,59 @@ def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=None, chan
     # cells within _MAP_CLEARANCE_M of a speaker are left out (NaN): the marker covers them
     # and the level there is the source's own 1/r near field
     near_src = np.min(np.linalg.norm(pts[:, None, :] - src[None, :, :], axis=-1), axis=1) < _MAP_CLEARANCE_M
-    h = np.full((src.shape[0], pts.shape[0]), np.nan + 0j)
-    for i, sp in enumerate(speakers):
-        # the modal sum's closed-form tail is fastest on groups of points on one side of the
-        # source; the other solvers take every point at once
-        groups = _separated_groups(src[i], pts, ~near_src) if method == "modal" else [np.flatnonzero(~near_src)]
-        for group in groups:
-            # [f, f]: the solver's own mode cutoff for this frequency (and its block form
-            # cannot take a single frequency yet; reported)
-            h[i, group] = speaker_levels(room, [sp], pts[group], [f, f], method=method,
-                                         include_speaker=include_speaker).transfer[0, :, 0]
-    total = np.abs(h.sum(axis=0))
+    def solve(points, mask):
+        """Summed complex pressure of the chosen speakers at ``points[mask]`` (NaN elsewhere)."""
+        h = np.full((src.shape[0], points.shape[0]), np.nan + 0j)
+        for i, sp in enumerate(speakers):
+            # the modal sum's closed-form tail is fastest on groups of points on one side of
+            # the source; the other solvers take every point at once
+            groups = _separated_groups(src[i], points, mask) if method == "modal" else [np.flatnonzero(mask)]
+            for group in groups:
+                # [f, f]: the solver's own mode cutoff for this frequency (and its block form
+                # cannot take a single frequency yet; reported)
+                h[i, group] = speaker_levels(room, [sp], points[group], [f, f], method=method,
+                                             include_speaker=include_speaker).transfer[0, :, 0]
+        return h.sum(axis=0)
+
+    coarse = None
+    if solve_step_m is not None:
+        solve_step = check_number("solve step", solve_step_m, 0.01, 1.0, unit=" m")
+        # nodes spanning the first to the last cell centre along each axis
+        mx = math.ceil((x[-1] - x[0]) / solve_step) + 1
+        my = math.ceil((y[-1] - y[0]) / solve_step) + 1
+        # tested with these two solvers (the image solver's truncated lattice is not smooth
+        # enough between nodes: solved at every cell)
+        if method in INTERPOLATED_METHODS and mx >= 4 and my >= 4 and mx * my < 0.5 * nx * ny:
+            coarse = mx, my
+    if coarse is None:
+        total = np.abs(solve(pts, ~near_src))
+    else:
+        mx, my = coarse
+        cx, cy = np.linspace(x[0], x[-1], mx), np.linspace(y[0], y[-1], my)
+        wx = _cubic_weights((x - x[0]) / (cx[1] - cx[0]), mx)
+        wy = _cubic_weights((y - y[0]) / (cy[1] - cy[0]), my)
+        cxx, cyy = np.meshgrid(cx, cy, indexing="ij")
+        nodes = np.stack([cxx.ravel(), cyy.ravel(), np.full(cxx.size, h_m)], axis=1)
+        bad = np.min(np.linalg.norm(nodes[:, None, :] - src[None, :, :], axis=-1), axis=1) < _INTERP_CLEARANCE_M
+        # a cell uses a node when both its weights for it are non-zero
+        uses_bad = ((wx != 0).astype(float) @ bad.reshape(mx, my).astype(float) @ (wy != 0).T.astype(float)) > 0
+        direct = uses_bad.ravel() & ~near_src
+        # the speakers' own free field S e^{-jkr} / r (the room's transfer is it plus a part
+        # that is smooth in the room) is taken out before interpolating and put back after
+        k = 2.0 * np.pi * f / room.speed_of_sound
+        gain = np.array([speaker_response(sp, [f])[0] if include_speaker else 1.0 for sp in speakers])
+
+        def free_field(points):
+            r = np.maximum(np.linalg.norm(points[:, None, :] - src[None, :, :], axis=-1), 1e-6)
+            return (gain[None, :] * np.exp(-1j * k * r) / r).sum(axis=1)
+
+        p_nodes = solve(nodes, ~bad) - free_field(nodes)
+        p_nodes = np.where(bad, 0.0, p_nodes).reshape(mx, my)
+        p = (wx @ p_nodes @ wy.T).ravel() + free_field(pts)
+        if direct.any():
+            p[direct] = solve(pts[direct], np.ones(int(direct.sum()), bool))
+        p[near_src] = np.nan
+        total = np.abs(p)
     with np.errstate(invalid="ignore"):
         level = np.where(np.isfinite(total), 20.0 * np.log10(np.maximum(total, 1e-12)), np.nan)
     # the seat on a grid reaching the prediction's top frequency: the modal solver then keeps

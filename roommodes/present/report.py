@@ -34,7 +34,7 @@ from ..analysis.compare import average_measurements, compare_to_prediction
 from ..analysis.correction import correct_measured, correct_prediction
 from ..analysis.explain import explain as run_explain
 from ..analysis.fit import fit_room
-from ..analysis.maps import floor_level_map, mode_coupling
+from ..analysis.maps import INTERPOLATED_METHODS, floor_level_map, mode_coupling
 from ..analysis.predict import band_figures, predict, response_features, usable_band
 from ..analysis.search import PARTS, front_distance_profile, search_layouts, search_space, seat_score_map
 from ..analysis.subs import BEFORE_CROSSOVER_HZ, CROSSOVER_TYPE, RANKING_RULE, optimise_subs
@@ -59,6 +59,10 @@ __all__ = [
     "SEARCH_MODES", "EMBED_FORMATS", "MODEL_ASSUMPTIONS", "SAFETY_NOTES",
     "MeasuredCurve", "Table", "ReportFigure", "Report", "build_report",
 ]
+
+#: Grid step of the floor maps' solver, m: the level is interpolated from it to the 5 cm cells
+#: drawn (:func:`~roommodes.analysis.maps.floor_level_map`'s ``solve_step_m``).
+MAP_SOLVE_STEP_M = 0.1
 
 #: Placement search done by the report: as ``place`` does, without the refinement, or none.
 SEARCH_MODES = ("full", "quick", "off")
@@ -304,9 +308,9 @@ class _Doc:
         c = f' class="{cls}"' if cls else ""
         self.parts.append(f"<{tag}{c}>" + "".join(f"<li>{_esc(i)}</li>" for i in items) + f"</{tag}>")
 
-    def figure(self, fig, stem, title, caption=""):
+    def figure(self, fig, stem, title, caption="", rendered=None):
         number = len(self.figures) + 1
-        png, svg = _render(fig)
+        png, svg = _render(fig) if rendered is None else rendered
         name = f"f{number:02d}-{safe_stem(stem)}"
         self.figures.append(ReportFigure(name, number, title, caption, png, svg))
         data, mime = (svg, "image/svg+xml") if self.embed == "svg" else (png, "image/png")
@@ -509,7 +513,7 @@ def build_report(room, measurements=(), fit_targets=None, *, units="cm", search=
                measurements=measurements, fit_targets=fit_targets, spl_reference=spl_reference, compare_band_hz=compare_band_hz,
                compare_smoothing=compare_smoothing, created=created, command=command, files_folder=files_folder,
                inputs=inputs, room_text=room_text, map_freqs_hz=map_freqs_hz, fit_res=fit_res,
-               uncertainty=uncertainty)
+               uncertainty=uncertainty, early_figures={})
     # the placement search needs nothing the sections compute: it runs on a second thread
     # beside them (its matrix products leave the interpreter free for the figures)
     run.search_job = None if search == "off" else _Job(search_layouts, room, space, refine=(search == "full"))
@@ -544,6 +548,10 @@ class _Job:
                 self._done.set()
 
         threading.Thread(target=target, name=f"roommodes-{func.__name__}", daemon=True).start()
+
+    def done(self):
+        """Whether the call has finished."""
+        return self._done.is_set()
 
     def result(self):
         self._done.wait()
@@ -697,7 +705,7 @@ def _section_modes(run):
               "They show where a mode's pressure maxima and nodes fall, and so what moving the seat would do.")
     for fq in freqs:
         step(f"floor map at {fq:g} Hz")
-        fm = floor_level_map(room, fq, layout, method=method)
+        fm = floor_level_map(room, fq, layout, method=method, solve_step_m=MAP_SOLVE_STEP_M)
         fig = plot_floor_map(fm, room, layout, units)
         xm, ym, top = fm.extreme("max")
         xn, yn, low = fm.extreme("min")
@@ -708,7 +716,10 @@ def _section_modes(run):
                     "its nodal lines are dashed.")
         doc.figure(fig, f"map-{fq:g}hz".replace(".", "p"), f"Level over the floor at {fq:g} Hz",
                    f"At the seat {fm.seat_level_db:+.1f} dB; loudest {top:+.1f} dB at {L(xm)} from the front wall and "
-                   f"{L(ym)} from the left wall; quietest {low:+.1f} dB at {L(xn)} and {L(yn)}." + near)
+                   f"{L(ym)} from the left wall; quietest {low:+.1f} dB at {L(xn)} and {L(yn)}." + near
+                   + (f" Solved on a {MAP_SOLVE_STEP_M * 100:g} cm grid and interpolated to the cells drawn, "
+                      "the speakers' own free field added exactly (within 0.25 dB of solving every cell)."
+                      if method in INTERPOLATED_METHODS else ""))
         values.setdefault("maps", []).append({"freq_hz": fq, "seat_level_db": fm.seat_level_db})
     run.pred = pred
     run.feats = feats
@@ -847,7 +858,7 @@ def _section_placement(run):
     """The placement search and the left/right explanation."""
     doc, values, glance, step, L = run.doc, run.values, run.glance, run.step, run.L
     room, layout, preset_used, units, method = run.room, run.layout, run.preset_used, run.units, run.method
-    f, space, keep_out, search = run.f, run.space, run.keep_out, run.search
+    space, search = run.space, run.search
     doc.section("placement", "Placement suggestion")
     doc.p(f"Source: {run.model}, {run.method} solver.", cls="note")
     if search == "off":
@@ -855,7 +866,14 @@ def _section_placement(run):
               "file, or make the report again with --search full.")
     else:
         step(f"placement search ({search})")
-
+        if not run.search_job.done():
+            # while the search runs on: what later sections draw without it
+            _model_corrections(run)
+            if not run.measurements:
+                _early_figure(run, "eq", _eq_figure, _model_corrections(run))
+            _early_figure(run, "modes", _modes_figure)
+            if len(layout.speakers) >= 2:
+                _early_figure(run, "left-right", _left_right_figure, _explanation(run))
         res = run.search_job.result()
         best = res.ranked[0]
         values["best_score"] = best.score
@@ -913,7 +931,7 @@ def _section_placement(run):
     if len(layout.speakers) < 2:
         doc.p("The layout has one speaker: nothing to compare.")
     else:
-        e = run_explain(room, layout, freq_hz=f, keep_out=keep_out, method=method)
+        e = _explanation(run)
         n1, n2 = e.names
         values["band_mismatch_db"] = e.band_mismatch_db
         doc.p(f"The two channels of the {'file' if not preset_used else preset_used} layout at the seat differ by "
@@ -941,10 +959,11 @@ def _section_placement(run):
             doc.p("Modes the two speakers drive in opposite phase, so that they cancel when both play the same bass: "
                   + ", ".join(f"{_indices_text(m['indices'])} {m['freq_hz']:.1f} Hz" for m in e.mono_cancelled[:8])
                   + ".")
-        fig = plot_explain(e, title=f"{room.name}: {n1} and {n2} at the seat")
+        early = run.early_figures.pop("left-right", None)
+        fig, rendered = early if early is not None else (_left_right_figure(run, e), None)
         doc.figure(fig, "left-right", f"{n1} and {n2} at the seat, and their difference",
                    "Top: both channels (thin: unsmoothed) and the mono sum. Bottom: the difference with the regions "
-                   "numbered as in the list above.")
+                   "numbered as in the list above.", rendered)
 
 
 def _section_subs(run):
@@ -1065,13 +1084,21 @@ def _max_level_table(run, corrections):
               key="max-level")
 
 
+def _model_corrections(run):
+    """The EQ designed on the model for the analysed layout (computed once: the placement
+    section starts it while it waits for the search)."""
+    if getattr(run, "model_corrections", None) is None:
+        run.model_corrections, _ = correct_prediction(run.room, run.layout, run.f, method=run.method)
+    return run.model_corrections
+
+
 def _section_eq(run):
     """Bass correction and headroom, channel by channel."""
     doc, values, glance, step, room = run.doc, run.values, run.glance, run.step, run.room
-    layout, method, f = run.layout, run.method, run.f
+    layout = run.layout
     step("bass correction")
     doc.section("eq", "Bass correction (EQ) and headroom")
-    corrections, _ = correct_prediction(room, layout, f, method=method)
+    corrections = _model_corrections(run)
     measured = {}
     for m in run.measurements:
         measured.setdefault(m.channel, []).append(m.measurement)
@@ -1139,10 +1166,11 @@ def _section_eq(run):
     glance.append("Bass correction: " + "; ".join(
         f"{c.name} {len(c.parametric.filters)} filter(s), {boost_text(c.headroom.max_boost_db)} "
         f"(pre-attenuate {c.headroom.preattenuation_db:.1f} dB)" for c in corrections) + ".")
-    fig = plot_correction(corrections, title=f"{room.name}: bass correction")
+    early = None if measured else run.early_figures.pop("eq", None)
+    fig, rendered = early if early is not None else (_eq_figure(run, corrections), None)
     doc.figure(fig, "eq", "Bass correction, channel by channel",
                "Left: before, after and the target, with the classified regions shaded (nulls are not boosted). "
-               "Right: each filter and the combined correction; the dotted line is the maximum boost.")
+               "Right: each filter and the combined correction; the dotted line is the maximum boost.", rendered)
     doc.raw('<div class="caution"><strong>Before loading a correction</strong><ul>'
             + "".join(f"<li>{_esc(t)}</li>" for t in eqmod.CAUTIONS) + "</ul></div>")
     run.corrections = corrections
@@ -1322,7 +1350,7 @@ def _section_reproduce(run):
 
 def _section_appendix(run):
     """Every mode up to 200 Hz."""
-    doc, room, ms300 = run.doc, run.room, run.ms300
+    doc, ms300 = run.doc, run.ms300
     doc.section("appendix", "Appendix: room modes up to 200 Hz")
     rows = []
     for i in np.flatnonzero(ms300.freq_hz <= 200.0):
@@ -1333,8 +1361,36 @@ def _section_appendix(run):
               ("mode", "kind", "frequency (Hz)", "note", "T60 (s)", "bandwidth (Hz)"), rows, key="modes",
               note="Indices nx, ny, nz count half-wavelengths along length, width and height; all modes up to "
                    "300 Hz are in `roommodes modes`.")
-    fig = plot_modes(ms300, 200.0, title=f"Room modes: {room.name}")
-    doc.figure(fig, "modes", "Room modes up to 200 Hz with their decay times", "Colour: kind of mode.")
+    early = run.early_figures.pop("modes", None)
+    fig, rendered = early if early is not None else (_modes_figure(run), None)
+    doc.figure(fig, "modes", "Room modes up to 200 Hz with their decay times", "Colour: kind of mode.", rendered)
+
+
+def _explanation(run):
+    """Why left and right differ, for the analysed layout (computed once)."""
+    if getattr(run, "explanation", None) is None:
+        run.explanation = run_explain(run.room, run.layout, freq_hz=run.f, keep_out=run.keep_out, method=run.method)
+    return run.explanation
+
+
+def _left_right_figure(run, e):
+    n1, n2 = e.names
+    return plot_explain(e, title=f"{run.room.name}: {n1} and {n2} at the seat")
+
+
+def _eq_figure(run, corrections):
+    return plot_correction(corrections, title=f"{run.room.name}: bass correction")
+
+
+def _modes_figure(run):
+    return plot_modes(run.ms300, 200.0, title=f"Room modes: {run.room.name}")
+
+
+def _early_figure(run, stem, make, *args):
+    """Draw and render a later section's figure ahead (while the search runs); the section
+    takes it from ``run.early_figures`` and draws it itself when it is not there."""
+    fig = make(run, *args)
+    run.early_figures[stem] = (fig, _render(fig))
 
 
 def _placement_figure(room, space, res, current, method):
