@@ -39,14 +39,15 @@ import numpy as np
 
 from ..model.modes import mode_indices, mode_shapes, wall_weights
 from ..model.walls import impedance_table
-from ._modal_kernels import (
-    fold_into,
-    pair_products_into,
-    shapes_into,
-    static_green_pairs_kernel,
-    static_green_pairs_tabled,
-)
 from .threads import blas_threads
+
+
+def _kernels():
+    """The compiled kernels (:mod:`._modal_kernels`), imported on first use: importing numba
+    costs about 0.15 s, which a prediction on the exact solver (no close pairs) never needs."""
+    from . import _modal_kernels
+
+    return _modal_kernels
 
 __all__ = ["modal_transfer", "modal_transfer_direct", "static_green", "DEFAULT_CUTOFF_FACTOR",
            "modal_weights", "modal_sum_block", "static_green_pairs", "static_green_block", "static_tail_term",
@@ -253,7 +254,7 @@ def _shapes(table, size, points, dtype=np.float64, start=0, stop=None, cos=None)
     cos = _cos_tables(table, points) if cos is None else cos
     idx = [i[start:stop] for i in table.indices_by_axis]
     out = np.empty((cos[0].shape[0], idx[0].shape[0]), dtype=dtype)
-    shapes_into(cos[0], cos[1], cos[2], idx[0], idx[1], idx[2], out)
+    _kernels().shapes_into(cos[0], cos[1], cos[2], idx[0], idx[1], idx[2], out)
     return out
 
 
@@ -296,7 +297,7 @@ def mode_shape_block(indices, size_m, points_m, dtype=np.float64):
     cols = [np.ascontiguousarray(idx[:, a], dtype=np.int64) for a in range(3)]
     cos = [np.cos(p[:, a, None] * (np.pi / size[a] * np.arange(cols[a].max(initial=0) + 1))) for a in range(3)]
     out = np.empty((p.shape[0], idx.shape[0]), dtype=dtype)
-    shapes_into(cos[0], cos[1], cos[2], cols[0], cols[1], cols[2], out)
+    _kernels().shapes_into(cos[0], cos[1], cos[2], cols[0], cols[1], cols[2], out)
     return out
 
 
@@ -366,7 +367,7 @@ def grouped_pair_sum(psi_src, psi_rec, weight, static_weight, *, precision="auto
     out_lo = np.empty((rows, n_lo))
     out_hi = np.empty((rows, n_modes - n_lo), dtype=np.float32 if single else np.float64)
     low = np.empty(rows)
-    pair_products_into(ps, pr, np.ascontiguousarray(static_weight, dtype=float), out_lo, out_hi, low)
+    _kernels().pair_products_into(ps, pr, np.ascontiguousarray(static_weight, dtype=float), out_lo, out_hi, low)
     with blas_threads(flop):
         h = out_lo @ wr[:n_lo]
         if n_lo < n_modes:
@@ -467,15 +468,15 @@ def static_green_pairs(size_m, sources_m, receivers_m):
     # closer than about 0.1 m) the kernel that computes every term's constants itself
     fits = kmax * size.max() / np.pi + 1 <= _STATIC_TABLE_INDEX
     if fits.all():
-        static_green_pairs_tabled(size, s, r, _STATIC_DECAY, *_static_tables(tuple(size.tolist())), out)
+        _kernels().static_green_pairs_tabled(size, s, r, _STATIC_DECAY, *_static_tables(tuple(size.tolist())), out)
         return out
     far, near = np.flatnonzero(fits), np.flatnonzero(~fits)
     if far.size:
         part = np.empty(far.size)
-        static_green_pairs_tabled(size, s[far], r[far], _STATIC_DECAY, *_static_tables(tuple(size.tolist())), part)
+        _kernels().static_green_pairs_tabled(size, s[far], r[far], _STATIC_DECAY, *_static_tables(tuple(size.tolist())), part)
         out[far] = part
     part = np.empty(near.size)
-    static_green_pairs_kernel(size, s[near], r[near], _STATIC_DECAY, _STATIC_MAX_INDEX, part)
+    _kernels().static_green_pairs_kernel(size, s[near], r[near], _STATIC_DECAY, _STATIC_MAX_INDEX, part)
     out[near] = part
     return out
 
@@ -707,7 +708,7 @@ def _blocks(table, size, rows, folds, hv, gs_all, z, k, single):
                 cols = 2 * (g1 - g0) * (f1 - f0)
                 fold_lo = np.empty((n_lo, cols))
                 fold_hi = np.empty((n_modes - n_lo, cols), dtype=np.float32 if single else np.float64)
-                fold_into(table.kn2, table.scale, sw, table.walls, beta[:, f0:f1], k[f0:f1], psi_fold,
+                _kernels().fold_into(table.kn2, table.scale, sw, table.walls, beta[:, f0:f1], k[f0:f1], psi_fold,
                           fold_lo, fold_hi)
                 # the thread count measured best for the block product's size
                 with blas_threads(2.0 * (r1 - r0) * n_modes * cols):
