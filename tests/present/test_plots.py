@@ -1,4 +1,7 @@
-"""The prediction plot: curves that coincide share one line and one label."""
+"""The prediction plot: curves that coincide share one line and one label.
+
+No value from outside: these tests hold what the figure draws and labels; the levels themselves
+are checked against published references in tests/solvers/."""
 
 import numpy as np
 
