@@ -37,6 +37,7 @@ from ._util import (
     protect_inputs,
     room_inputs,
     uncertainty_options,
+    uncertainty_text,
 )
 
 _SPL_TABLE_HZ = (31.5, 40.0, 50.0, 63.0, 80.0, 100.0, 125.0, 160.0, 200.0)
@@ -331,10 +332,8 @@ def eq(room_file, layout, channels, target, tilt_db, tilt_corner, band_text, max
     else:
         click.echo(f"Bass correction for '{room.name}', layout {lay.name} ({source})")
         if uncertainty:
-            u = room.uncertainty
-            click.echo(f"Held to {samples} rooms drawn from the room file's [uncertainty] (sd {u.position_m * 100:g} cm "
-                       f"on positions, {u.size_m * 100:g} cm on dimensions, {u.absorption_rel:.0%} on absorption, "
-                       f"{u.temperature_c:g} C on temperature): a peak is cut only when it is present in at least "
+            click.echo(f"Held to {samples} rooms drawn from the room file's [uncertainty] ({uncertainty_text(room)}): "
+                       f"a peak is cut only when it is present in at least "
                        f"{STABLE_SHARE:.0%} of them and its top moves less than the cut is wide; each filter is "
                        "sized to their median.")
         if ref is not None:
