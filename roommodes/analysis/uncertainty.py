@@ -33,14 +33,15 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from ..dsp.response import log_frequencies
+from ..dsp.response import level_db, log_frequencies
 from ..model.room import WALL_MARGIN_M, Seat, Uncertainty
 from ..solvers import DEFAULT_METHOD
 from .levels import speaker_levels
 from .predict import DEFAULT_POINTS_PER_OCTAVE, DEFAULT_RANGE_HZ
 
 __all__ = ["DEFAULT_SAMPLES", "DEFAULT_SEED", "MAX_ABSORPTION", "PERCENTILES", "Bands", "draw_room",
-           "sample_rooms", "ensemble_levels", "predict_bands", "lognormal_sigma"]
+           "sample_rooms", "ensemble_levels", "predict_bands", "lognormal_sigma", "SubsBands",
+           "draw_subs_rooms", "subs_bands"]
 
 #: Monte Carlo samples used where none is chosen. Chosen by measurement on the demo room with
 #: the library's absorption ranges (20-200 Hz, 24 points per octave, seeds 1 and 2): each
@@ -251,3 +252,154 @@ def predict_bands(room, layout=None, freq_hz=None, *, n_samples=DEFAULT_SAMPLES,
     p10, p50, p90 = np.percentile(lv, PERCENTILES, axis=0)
     u = room.uncertainty if uncertainty is None else uncertainty
     return Bands(f, tuple(s.name for s in layout.speakers), p10, p50, p90, lv, int(seed), method, u)
+
+
+def draw_subs_rooms(room, configs, rng, uncertainty=None):
+    """One drawn room with each configuration's subs and settings in it (common random numbers).
+
+    The room, its mains and its seats are drawn once from ``rng`` (:func:`draw_room` of
+    ``room`` as the file has it, so drawn room *i* is the one :func:`predict_bands` draws as its
+    *i*-th with the same seed); then one position error per sub slot (normal, sd
+    ``position_m``): the *k*-th sub of every configuration lands off its plan by the same error.
+
+    Parameters
+    ----------
+    room : Room
+        The nominal room, with a layout.
+    configs : sequence of SubConfig
+        Each applied with :func:`roommodes.analysis.subs.room_with_config`.
+    rng : numpy.random.Generator
+    uncertainty : Uncertainty, optional
+        Default ``room.uncertainty``.
+
+    Returns
+    -------
+    tuple of Room
+        One per configuration: the drawn room, mains and seats, with that configuration's subs
+        (moved by the drawn errors, kept inside the drawn room) and its ``[system]`` settings.
+    """
+    from .subs import room_with_config
+
+    u = room.uncertainty if uncertainty is None else uncertainty
+    drawn, _ = draw_room(room, rng, u)
+    n_max = max((len(c.subs) for c in configs), default=0)
+    err = rng.normal(0.0, u.position_m, (n_max, 3))
+    out = []
+    for c in configs:
+        set_room = room_with_config(room, c)
+        subs = tuple(s.moved(tuple(float(v) for v in _clip_inside(np.asarray(s.position_m) + e, drawn.size_m)))
+                     for s, e in zip(set_room.layout.subs, err))
+        lay = replace(drawn.layout, speakers=tuple(drawn.layout.mains) + subs)
+        out.append(replace(drawn, layout=lay, system=set_room.system))
+    return tuple(out)
+
+
+@dataclass(frozen=True, eq=False)
+class SubsBands:
+    """Each sub configuration's system level at every seat over the drawn rooms.
+
+    Attributes
+    ----------
+    freq_hz : ndarray (F,)
+    labels : tuple of str
+        The configurations, in the order given.
+    level_db : ndarray (N, C, P, F)
+        The mono sum's level per drawn room, configuration, seat and frequency.
+    seat_spread_db : ndarray (N, C)
+        The seat-to-seat spread (sqrt of the weighted mean spatial variance over ``band_hz``)
+        per drawn room and configuration, dB.
+    band_hz : tuple
+    seed : int
+    method : str
+    uncertainty : Uncertainty
+    """
+
+    freq_hz: np.ndarray
+    labels: tuple
+    level_db: np.ndarray
+    seat_spread_db: np.ndarray
+    band_hz: tuple
+    seed: int
+    method: str
+    uncertainty: Uncertainty
+
+    @property
+    def n_samples(self):
+        """Number of drawn rooms."""
+        return int(self.level_db.shape[0])
+
+    @property
+    def level_db_p10(self):
+        """10th percentile of the level (C, P, F), dB."""
+        return np.percentile(self.level_db, 10.0, axis=0)
+
+    @property
+    def level_db_p90(self):
+        """90th percentile of the level (C, P, F), dB."""
+        return np.percentile(self.level_db, 90.0, axis=0)
+
+    def spread_percentiles(self):
+        """(p10, p50, p90) of each configuration's seat-to-seat spread, each (C,), dB."""
+        return tuple(np.percentile(self.seat_spread_db, PERCENTILES, axis=0))
+
+    def to_dict(self):
+        """JSON-ready settings of the ensemble (the per-configuration figures go beside each configuration)."""
+        return {"samples": self.n_samples, "seed": self.seed, "method": self.method,
+                "uncertainty": self.uncertainty.to_dict(), "band_hz": list(self.band_hz)}
+
+
+def subs_bands(room, configs, freq_hz, band_hz, *, n_samples=DEFAULT_SAMPLES, seed=DEFAULT_SEED, uncertainty=None,
+               method=DEFAULT_METHOD):
+    """Every seat's system level and the seat-to-seat spread of each configuration in drawn rooms.
+
+    Each drawn room is one solver call holding its mains and every configuration's subs
+    (:func:`draw_subs_rooms`, :func:`~roommodes.analysis.levels.speaker_levels`); each
+    configuration's mono sum is then :func:`roommodes.analysis.subs.mono_sum` with its settings,
+    as :func:`roommodes.analysis.predict.predict_seats` forms it.
+
+    Parameters
+    ----------
+    room : Room
+        With a layout (mains and seats).
+    configs : sequence of SubConfig
+    freq_hz : array_like (F,)
+    band_hz : (low, high)
+        Band of the spread, Hz.
+    n_samples, seed, uncertainty, method
+        As :func:`ensemble_levels`.
+
+    Returns
+    -------
+    SubsBands
+    """
+    from .subs import mean_spatial_variance, mono_sum
+
+    if room.layout is None:
+        raise ValueError(f"{room.source or room.name}: the room file has no [speakers] and [seat]; add them")
+    n = _check_count(n_samples)
+    u = room.uncertainty if uncertainty is None else uncertainty
+    f = np.atleast_1d(np.asarray(freq_hz, dtype=float))
+    weights = [s.weight for s in room.layout.all_seats]
+    n_main = len(room.layout.mains)
+    levels = spreads = None
+    for i, g in enumerate(_generators(seed, n)):
+        rooms = draw_subs_rooms(room, configs, g, u)
+        speakers = list(rooms[0].layout.mains) if rooms else []
+        index = []
+        for r in rooms:
+            subs = r.layout.subs
+            index.append(range(len(speakers), len(speakers) + len(subs)))
+            speakers.extend(subs)
+        seats_m = [s.position_m for s in rooms[0].layout.all_seats]
+        h = speaker_levels(rooms[0], speakers, seats_m, f, method=method).transfer
+        if levels is None:
+            levels = np.empty((n, len(configs), len(seats_m), len(f)))
+            spreads = np.empty((n, len(configs)))
+        for k, (r, idx) in enumerate(zip(rooms, index)):
+            subs = r.layout.subs
+            total = mono_sum(f, h[:n_main], h[list(idx)], [s.gain_db for s in subs], [s.delay_ms for s in subs],
+                             [s.polarity for s in subs], r.system.crossover_hz, r.system.mains_delay_ms)
+            lv = level_db(total)
+            levels[i, k] = lv
+            spreads[i, k] = np.sqrt(mean_spatial_variance(lv, weights, f, band_hz))
+    return SubsBands(f, tuple(c.label for c in configs), levels, spreads, tuple(band_hz), int(seed), method, u)

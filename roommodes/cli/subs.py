@@ -26,6 +26,7 @@ from ..analysis.subs import (
     shared_eq,
     tune_measured,
 )
+from ..analysis.uncertainty import subs_bands
 from ..io.roomfile import room_to_toml, write_text_atomic
 from ..present.plots_subs import plot_subs
 from ._measured import mic_cal_option, read_mic_cal, read_wav_or_fail, wav_channel_option, window_option
@@ -41,9 +42,15 @@ from ._util import (
     method_option,
     protect_inputs,
     room_inputs,
+    uncertainty_options,
+    uncertainty_text,
     units_option,
     walls_text,
 )
+
+#: Rooms ``--uncertainty`` draws by default: each costs one solver call holding the mains and
+#: every ranked configuration's subs (about 0.015 s of one core on the sofa room, 3 seats).
+SUBS_SAMPLES = 200
 
 
 def _maybe(v):
@@ -53,6 +60,14 @@ def _maybe(v):
 
 def _count(n):
     return f"{n} sub{'s' if n != 1 else ''}"
+
+
+def _drawn(drawn, i):
+    """A ranked configuration's spread in the drawn rooms, "median (p10-p90)"; "-" for the rest."""
+    if i >= len(drawn):
+        return "-"
+    p10, p50, p90 = drawn[i]
+    return f"{p50:.2f} ({p10:.2f}-{p90:.2f})"
 
 
 def _polarity(p):
@@ -82,10 +97,13 @@ def _polarity(p):
 @mic_cal_option
 @wav_channel_option
 @window_option
+@uncertainty_options(samples=SUBS_SAMPLES, samples_note=(
+    "Each drawn room is one solver call for every ranked configuration at once (about 3 s of one core for "
+    "200 rooms on a three-seat room), so the p10 and p90 rest on about 20 rooms each (docs/subs.md)."))
 @json_option
 @units_option
 def subs(room_file, method, points_per_octave, plot_path, force, settings_path, rank, measured, with_eq, mic_cal,
-         wav_channel, window_s, as_json):
+         wav_channel, window_s, uncertainty, samples, seed, as_json):
     """Find where the subwoofers go, and their gain, delay, polarity and crossover, for every seat.
 
     Considers 1, 2 and 4 subs (the [subs] table of the room file sets the counts, the allowed
@@ -94,6 +112,10 @@ def subs(room_file, method, points_per_octave, plot_path, force, settings_path, 
     well subs and mains add through the crossover. The signal is the mono bass sum: the same
     signal to both mains and every sub. Compares with the file's current subs and with one
     sub at the front-wall centre. See docs/subs.md.
+
+    With --uncertainty, each ranked configuration's settings are tried in rooms drawn from
+    the room file's [uncertainty] table (the same rooms for every configuration): the
+    seat-to-seat spread's median and 10-90 % range, and each seat's 10-90 % band on the plot.
     """
 
     room = load_or_fail(room_file)
@@ -110,6 +132,9 @@ def subs(room_file, method, points_per_octave, plot_path, force, settings_path, 
     cal = read_mic_cal(mic_cal) if measured else None
     if mic_cal and not measured:
         fail("--mic-cal applies to --measured impulse responses; give them, or leave --mic-cal out")
+    if uncertainty and measured:
+        fail("--uncertainty draws predicted rooms and --measured replaces predictions by measurements; "
+             "give one of them")
     t0 = time.perf_counter()
     try:
         if irs is not None:
@@ -128,21 +153,35 @@ def subs(room_file, method, points_per_octave, plot_path, force, settings_path, 
         shared = shared_eq(room, c, res.freq_hz, method=method,
                            level_db=c.level_db if res.measured else None)
     elapsed = time.perf_counter() - t0
+    bands = None
+    if uncertainty:
+        t1 = time.perf_counter()
+        try:
+            bands = subs_bands(room, res.ranked, res.freq_hz, res.band_hz, n_samples=samples, seed=seed,
+                               method=method)
+        except ValueError as exc:
+            fail(f"{room_file}: {exc}")
+        ens_elapsed = time.perf_counter() - t1
     mains_m = np.array([m.position_m for m in room.layout.mains])
     if as_json:
         d = res.to_dict()
         if shared is not None:
             d["shared_eq"] = shared.to_dict()
         d["elapsed_s"] = elapsed
+        if bands is not None:
+            for entry, p10, p50, p90 in zip(d["ranked"], *bands.spread_percentiles()):
+                entry.update(seat_spread_db_p10=float(p10), seat_spread_db_p50=float(p50),
+                             seat_spread_db_p90=float(p90))
+            d["uncertainty"] = {**bands.to_dict(), "elapsed_s": ens_elapsed}
         dump_json(d)
         for c in CAUTIONS:
             echo_err(f"caution: {c}")
     else:
-        _print(room, res, elapsed)
+        _print(room, res, elapsed, bands)
         if shared is not None:
             _print_eq(shared, rank)
     if plot_path:
-        plot_subs(res, room, mains_m, title=f"Subwoofers: {room.name}", path=plot_path)
+        plot_subs(res, room, mains_m, title=f"Subwoofers: {room.name}", path=plot_path, bands=bands)
         echo_err(f"wrote {plot_path}")
     if settings_path:
         _write_settings(room_file, room, res, rank, settings_path, force)
@@ -228,7 +267,7 @@ def _write_settings(room_file, room, res, rank, path, force):
              f"polarity, [system] crossover_hz = {c.crossover_hz:g}, mains_delay_ms = {c.mains_delay_ms:g}")
 
 
-def _print(room, res, elapsed):
+def _print(room, res, elapsed, bands=None):
     s = res.search
     lay = room.layout
     seats = ", ".join(f"{st.name} {st.weight:g}" for st in res.seats)
@@ -261,15 +300,22 @@ def _print(room, res, elapsed):
                "flatness: at the main seat against the mains' level; phase: summation loss through the crossover.")
     click.echo("")
     head = (f"  {'rank':<5}{'configuration':<22}{'crossover':>10}{'score':>8}{'spread':>8}{'flatness':>10}"
-            f"{'phase':>7}{'spread, room +1 %, absorption x1.3':>37}")
+            f"{'phase':>7}{'spread, room +1 %, absorption x1.3':>37}"
+            + (f"{'spread, drawn rooms: median (10-90 %)':>40}" if bands is not None else ""))
     click.echo(head)
+    drawn = list(zip(*bands.spread_percentiles())) if bands is not None else []
     for i, c in enumerate([*res.ranked, res.before]):
         rank = str(i + 1) if c.kind != "before" else "-"
         xo = f"{c.crossover_hz:g} Hz" if c.crossover_hz else "none"
         label = c.label if c.kind != "before" else f"before: {c.label}"
         click.echo(f"  {rank:<5}{label:<22}{xo:>10}{c.score:8.2f}{c.seat_spread_db:8.2f}{c.parts['flatness']:10.2f}"
-                   f"{c.parts['phase']:7.2f}{_maybe(c.perturbed_seat_spread_db):>37}")
+                   f"{c.parts['phase']:7.2f}{_maybe(c.perturbed_seat_spread_db):>37}"
+                   + (f"{_drawn(drawn, i):>40}" if bands is not None else ""))
     b = res.before
+    if bands is not None:
+        click.echo(f"  (drawn rooms: the ranked settings tried in {bands.n_samples} rooms drawn from the room file's "
+                   f"[uncertainty], the same rooms for each, seed {bands.seed}; {uncertainty_text(room)}; "
+                   "the settings stay those found in the nominal room)")
     if lay.subs:
         sy = room.system
         xo = (f"the [system] crossover at {sy.crossover_hz:g} Hz" if sy is not None and sy.crossover_hz else

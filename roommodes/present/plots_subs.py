@@ -13,8 +13,13 @@ from .plots import PALETTE, new_figure, save_figure, style_frequency_axis
 __all__ = ["plot_subs"]
 
 
-def _levels(ax, result, config, ylim):
+def _levels(ax, result, config, ylim, band=None):
     f = result.freq_hz
+    if band is not None:  # (p10, p90) each (P, F), and the number of drawn rooms
+        (lo, hi), n = band
+        for p in range(len(result.seats)):
+            ax.fill_between(f, lo[p], hi[p], color=PALETTE[p % len(PALETTE)], alpha=0.18, lw=0, gid=f"seat-band-{p}",
+                            label=f"10-90 % of {n} drawn rooms" if p == 0 else None)
     for p, seat in enumerate(result.seats):
         ax.plot(f, config.level_db[p], color=PALETTE[p % len(PALETTE)], lw=1.8 if p == 0 else 1.2,
                 label=f"{seat.name}{' (main)' if p == 0 else ''}, weight {seat.weight:g}")
@@ -71,7 +76,7 @@ def _plan(ax, room, result, config, mains_m, legend):
                   title="subs: gain, delay, polarity" if config.subs else None, title_fontsize=6.5)
 
 
-def plot_subs(result, room, mains_m, title=None, path=None):
+def plot_subs(result, room, mains_m, title=None, path=None, bands=None):
     """One row per configuration (the ranked ones, then the file's layout as it is): the level
     of the mono sum at every seat, and a floor plan with the subs (numbered; each one's gain,
     delay and polarity in the legend beside the plan, a nearly idle sub drawn hollow), the mains
@@ -86,6 +91,10 @@ def plot_subs(result, room, mains_m, title=None, path=None):
     title : str, optional
     path : path, optional
         Where to write the figure (atomically); the figure is returned either way.
+    bands : SubsBands, optional
+        The ranked configurations' levels in drawn rooms
+        (:func:`roommodes.analysis.uncertainty.subs_bands`, in ``result.ranked`` order): each
+        seat's 10-90 % band is shaded in its colour on their level panels.
     """
     configs = [*result.ranked, result.before]
     lx, ly, _ = room.size_m
@@ -94,8 +103,13 @@ def plot_subs(result, room, mains_m, title=None, path=None):
                            gridspec_kw={"width_ratios": [7.0, plan_w]}, squeeze=False)
     lv = np.concatenate([c.level_db.ravel() for c in configs])
     ylim = (np.floor(np.percentile(lv, 1) / 5) * 5 - 5, np.ceil(lv.max() / 5) * 5 + 3)
+    lo = hi = None
+    if bands is not None:
+        lo, hi = bands.level_db_p10, bands.level_db_p90
+        ylim = (min(ylim[0], np.floor(np.percentile(lo, 1) / 5) * 5 - 5), max(ylim[1], np.ceil(hi.max() / 5) * 5 + 3))
     for i, (row, config) in enumerate(zip(axes, configs)):
-        _levels(row[0], result, config, ylim)
+        band = ((lo[i], hi[i]), bands.n_samples) if bands is not None and i < len(result.ranked) else None
+        _levels(row[0], result, config, ylim, band)
         _plan(row[1], room, result, config, np.atleast_2d(mains_m), legend=i == 0)
     fig.suptitle(title or "Subwoofers: level at every seat, and where the subs go", fontsize=11)
     if path is not None:
