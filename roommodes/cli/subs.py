@@ -128,13 +128,13 @@ def subs(room_file, method, points_per_octave, plot_path, force, settings_path, 
     if settings_path:
         protect_inputs(settings_path, *room_inputs(room_file, room))
         check_output(settings_path, force, (".toml",), "--write-settings")
+    if uncertainty and measured:
+        fail("--uncertainty draws predicted rooms and --measured replaces predictions by measurements; "
+             "give one of them")
     irs = _read_measured(room_file, room, measured, wav_channel, window_s) if measured else None
     cal = read_mic_cal(mic_cal) if measured else None
     if mic_cal and not measured:
         fail("--mic-cal applies to --measured impulse responses; give them, or leave --mic-cal out")
-    if uncertainty and measured:
-        fail("--uncertainty draws predicted rooms and --measured replaces predictions by measurements; "
-             "give one of them")
     t0 = time.perf_counter()
     try:
         if irs is not None:

@@ -1,0 +1,71 @@
+"""`roommodes subs --uncertainty`: the spread of the chosen settings over drawn rooms, in the
+table, the JSON and the plot; nothing new without the option."""
+
+import json
+
+import pytest
+from click.testing import CliRunner
+
+from roommodes.cli import main
+from roommodes.io.roomfile import example_rooms
+
+SOFA = next(p for p in example_rooms() if p.stem == "sofa-and-sub")
+KEYS = ("seat_spread_db_p10", "seat_spread_db_p50", "seat_spread_db_p90")
+
+
+def run(*args):
+    return CliRunner().invoke(main, [str(a) for a in args], catch_exceptions=False)
+
+
+@pytest.fixture(scope="module")
+def small_room(tmp_path_factory):
+    """The bundled sofa room with a smaller search (counts 1 and 2, a 0.5 m grid): quick."""
+    text = SOFA.read_text().replace("counts = [1, 2, 4]", "counts = [1, 2]\nstep_m = 0.5")
+    path = tmp_path_factory.mktemp("subs") / "sofa.toml"
+    path.write_text(text)
+    return path
+
+
+def _json(*args):
+    res = run("subs", *args, "--json", "--method", "modal")
+    assert res.exit_code == 0, res.output
+    return json.loads(res.stdout)
+
+
+def test_json_spread_keys_ordered_reproducible_and_absent_without_the_option(small_room):
+    d = _json(small_room, "--uncertainty", "--samples", 10, "--seed", 4)
+    plain = _json(small_room)
+    assert "uncertainty" not in plain
+    for entry, before in zip(d["ranked"], plain["ranked"]):
+        assert entry["seat_spread_db_p10"] <= entry["seat_spread_db_p50"] <= entry["seat_spread_db_p90"]
+        assert not any(k in before for k in KEYS)
+        # the settings stay those found in the nominal room
+        assert entry["seat_spread_db"] == pytest.approx(before["seat_spread_db"])
+        assert entry["subs"] == before["subs"]
+    assert d["uncertainty"]["samples"] == 10 and d["uncertainty"]["seed"] == 4
+    again = _json(small_room, "--uncertainty", "--samples", 10, "--seed", 4)
+    assert [[e[k] for k in KEYS] for e in again["ranked"]] == [[e[k] for k in KEYS] for e in d["ranked"]]
+
+
+def test_text_column_and_plot(small_room, tmp_path):
+    out = tmp_path / "s.png"
+    res = run("subs", small_room, "--method", "modal", "--uncertainty", "--samples", 8, "--plot", out)
+    assert res.exit_code == 0, res.output
+    assert "spread, drawn rooms: median (10-90 %)" in res.stdout
+    assert "8 rooms drawn from the room file's [uncertainty]" in res.stdout
+    assert out.exists()
+    plain = run("subs", small_room, "--method", "modal")
+    assert "drawn rooms" not in plain.stdout
+
+
+@pytest.mark.parametrize("args, words", [
+    (("--uncertainty", "--samples", "1"), "--samples"),
+    (("--uncertainty", "--seed", "-3"), "--seed"),
+    (("--uncertainty", "--measured", "sub@middle=x.wav"), "--uncertainty"),
+])
+def test_bad_values_one_line_exit_2(small_room, args, words):
+    res = run("subs", small_room, *args)
+    assert res.exit_code == 2
+    lines = [ln for ln in res.output.splitlines() if ln.strip()]
+    assert len(lines) <= 3 and any(words in ln for ln in lines)  # click's usage line, hint, the error
+    assert "Traceback" not in res.output
