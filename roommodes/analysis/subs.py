@@ -253,8 +253,7 @@ def score_parts(freq_hz, mains_part, subs_part, weights, band_hz, crossover_hz, 
     a, b = np.asarray(mains_part)[..., band], np.asarray(subs_part)[..., band]
     t = a + b
     L = _level(t)
-    spread = np.sqrt(np.einsum("...pf,p->...f", (L - np.einsum("...pf,p->...f", L, w)[..., None, :]) ** 2,
-                               w).mean(axis=-1))
+    spread = np.sqrt(mean_spatial_variance(L, w))
     main = L[..., 0, :]
     ref = main.mean(axis=-1, keepdims=True) if target_db is None else target_db
     dev = np.clip(main - ref, -FLATNESS_CLIP_DB, FLATNESS_CLIP_DB)
