@@ -925,9 +925,10 @@ def _section_placement(run):
         fig = _placement_figure(room, space, res, layout if room.layout is not None else None, method,
                                 drawn=run.uncertainty)
         doc.figure(fig, "placement", "The suggested layout",
-                   "(a) Predicted level at the seat for the suggested and the file's layout. (b) The floor plan "
-                   "coloured by the score the seat would get at each point with the suggested speakers. (c) The "
-                   "score as both speakers move away from the front wall, everything else kept."
+                   "(a) Predicted level at the seat for the suggested and the file's layout. (c) The floor plan "
+                   "coloured by the score the seat would get at each point with the suggested speakers. (d) The "
+                   "score as both speakers move away from the front wall, everything else kept (the panels are "
+                   "lettered as in the place command's figure, whose (b) the report leaves out)."
                    + _band_caption(run).replace(" Shaded:", " Shaded in (a):"))
     step("left/right explanation")
     doc.h3("Why left and right differ", anchor="explain")
