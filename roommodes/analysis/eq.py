@@ -53,6 +53,8 @@ __all__ = [
     "EXPORT_SAMPLE_RATES",
     "REGION_KINDS",
     "STABLE_SHARE",
+    "HELD_SAMPLES",
+    "held_rule_text",
     "CAUTIONS",
     "Filter",
     "bandwidth_octaves_to_q",
@@ -132,6 +134,28 @@ _BOOST_Q_MAX = 2.0
 #: With an ensemble of drawn rooms, a peak is cut only when present in at least this share
 #: of them ("most"; see :func:`design_parametric`).
 STABLE_SHARE = 0.6
+#: Default count of drawn rooms a design is held to (``eq --uncertainty``, docs/eq.md): the kept
+#: share of each cut and the median-sized depth are settled well before ``predict``'s
+#: percentile tails.
+HELD_SAMPLES = 200
+
+
+def held_rule_text(stable_share=STABLE_SHARE):
+    """The rule a design held to drawn rooms follows, in words (every surface that says a
+    correction was held to drawn rooms uses this one wording).
+
+    Parameters
+    ----------
+    stable_share : float
+        The share of the drawn rooms a peak must be present in to be cut.
+
+    Returns
+    -------
+    str
+        One sentence-ending clause, starting lower case.
+    """
+    return (f"a peak is cut only when it is present in at least {stable_share:.0%} of them and its top moves "
+            "less than the cut is wide; each filter is sized to their median.")
 
 
 # ========================================================================================

@@ -11,7 +11,16 @@ import numpy as np
 from .. import __version__
 from ..analysis.compare import load_measurement
 from ..analysis.correction import MAX_EQ_CHANNELS, correct_measured, correct_prediction
-from ..analysis.eq import CAUTIONS, EXPORT_SAMPLE_RATES, STABLE_SHARE, channel_headroom_warnings, q_at_3db_below_peak, render_text
+from ..analysis.eq import (
+    CAUTIONS,
+    EXPORT_SAMPLE_RATES,
+    HELD_SAMPLES,
+    STABLE_SHARE,
+    channel_headroom_warnings,
+    held_rule_text,
+    q_at_3db_below_peak,
+    render_text,
+)
 from ..dsp.checks import check_number, check_range
 from ..dsp.response import log_frequencies
 from ..dsp.text import boost_text
@@ -175,9 +184,9 @@ def _correct_measured(room, layout, measured, freq_hz, window_s, room_file, opti
                             full_scale_spl_db=None if spl_ref is None else spl_ref.full_scale_spl_db, **options)
 
 
-#: Default count of drawn rooms for ``eq --uncertainty`` (docs/eq.md): the kept share of each cut
-#: and the median-sized depth are settled well before ``predict``'s percentile tails.
-EQ_SAMPLES = 200
+#: Default count of drawn rooms for ``eq --uncertainty`` (docs/eq.md; the report's EQ uses at
+#: most as many).
+EQ_SAMPLES = HELD_SAMPLES
 
 
 @click.command(context_settings=CONTEXT)
@@ -333,9 +342,7 @@ def eq(room_file, layout, channels, target, tilt_db, tilt_corner, band_text, max
         click.echo(f"Bass correction for '{room.name}', layout {lay.name} ({source})")
         if uncertainty:
             click.echo(f"Held to {samples} rooms drawn from the room file's [uncertainty] ({uncertainty_text(room)}): "
-                       f"a peak is cut only when it is present in at least "
-                       f"{STABLE_SHARE:.0%} of them and its top moves less than the cut is wide; each filter is "
-                       "sized to their median.")
+                       + held_rule_text())
         if ref is not None:
             click.echo(f"Levels: {ref.describe()}")
         elif measured:

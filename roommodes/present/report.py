@@ -920,12 +920,16 @@ def _section_placement(run):
         cur = f" against {res.current.score:.2f} dB for the file's layout" if res.current is not None else ""
         glance.append(f"Suggested placement (score {best.score:.2f} dB{cur}; lower is better): {sp_txt}; seat "
                       f"{walls_text(room, best.layout.seat_m, units)}.")
-        step("placement figure")
-        fig = _placement_figure(room, space, res, layout if room.layout is not None else None, method)
+        step("placement figure" + (f" (uncertainty: {run.uncertainty['n_samples']} drawn rooms per layout)"
+                                   if run.uncertainty else ""))
+        fig = _placement_figure(room, space, res, layout if room.layout is not None else None, method,
+                                drawn=run.uncertainty)
         doc.figure(fig, "placement", "The suggested layout",
-                   "(a) Predicted level at the seat for the suggested and the file's layout. (b) The floor plan "
-                   "coloured by the score the seat would get at each point with the suggested speakers. (c) The "
-                   "score as both speakers move away from the front wall, everything else kept.")
+                   "(a) Predicted level at the seat for the suggested and the file's layout. (c) The floor plan "
+                   "coloured by the score the seat would get at each point with the suggested speakers. (d) The "
+                   "score as both speakers move away from the front wall, everything else kept (the panels are "
+                   "lettered as in the place command's figure, whose (b) the report leaves out)."
+                   + _band_caption(run).replace(" Shaded:", " Shaded in (a):"))
     step("left/right explanation")
     doc.h3("Why left and right differ", anchor="explain")
     if len(layout.speakers) < 2:
@@ -1088,8 +1092,19 @@ def _model_corrections(run):
     """The EQ designed on the model for the analysed layout (computed once: the placement
     section starts it while it waits for the search)."""
     if getattr(run, "model_corrections", None) is None:
-        run.model_corrections, _ = correct_prediction(run.room, run.layout, run.f, method=run.method)
+        if run.uncertainty:
+            run.step(f"uncertainty: bass correction held to {_eq_held(run)['n_samples']} drawn rooms")
+        run.model_corrections, _ = correct_prediction(run.room, run.layout, run.f, method=run.method,
+                                                      uncertainty=_eq_held(run))
     return run.model_corrections
+
+
+def _eq_held(run):
+    """The drawn rooms the model EQ is held to (the report's setting, at most ``eq``'s own
+    default count), or None without ``uncertainty``."""
+    if not run.uncertainty:
+        return None
+    return {"n_samples": min(run.uncertainty["n_samples"], eqmod.HELD_SAMPLES), "seed": run.uncertainty["seed"]}
 
 
 def _section_eq(run):
@@ -1111,6 +1126,14 @@ def _section_eq(run):
     doc.p("Source: " + "; ".join(
         f"{c.name}: {'its measured curve' + ('s (averaged)' if len(measured.get(c.name, ())) > 1 else '')}"
         if c.name in measured else f"{c.name}: {run.model}" for c in corrections) + ".", cls="note")
+    held = [c.name for c in corrections if c.ensemble_seat_db is not None]
+    if held:
+        n_held = len(corrections[[c.name for c in corrections].index(held[0])].ensemble_seat_db)
+        doc.p(f"The parametric filters{'' if len(held) == len(corrections) else ' of ' + ', '.join(held)} were "
+              f"held to {n_held} rooms drawn from the room file's [uncertainty] (seed {run.uncertainty['seed']}, "
+              "as in 'How solid each peak and dip is'): " + eqmod.held_rule_text())
+        values["eq_held"] = {"samples": n_held, "seed": run.uncertainty["seed"], "channels": held,
+                             "stable_share": eqmod.STABLE_SHARE}
     doc.p("For each channel the predicted curve at the seat (1/12-octave smoothed) is compared with a flat target "
           "aligned to its mean. Every dip is classified first: a deep, narrow dip that moves when the seat or the "
           "speaker moves by 5 cm is a cancellation null, and boosting it only costs amplifier power and cone "
@@ -1170,7 +1193,9 @@ def _section_eq(run):
     fig, rendered = early if early is not None else (_eq_figure(run, corrections), None)
     doc.figure(fig, "eq", "Bass correction, channel by channel",
                "Left: before, after and the target, with the classified regions shaded (nulls are not boosted). "
-               "Right: each filter and the combined correction; the dotted line is the maximum boost.", rendered)
+               "Right: each filter and the combined correction; the dotted line is the maximum boost."
+               + (f" Shaded light: the seat before and after over the {values['eq_held']['samples']} drawn rooms "
+                  "(10-90 %)." if held else ""), rendered)
     doc.raw('<div class="caution"><strong>Before loading a correction</strong><ul>'
             + "".join(f"<li>{_esc(t)}</li>" for t in eqmod.CAUTIONS) + "</ul></div>")
     run.corrections = corrections
@@ -1393,18 +1418,26 @@ def _early_figure(run, stem, make, *args):
     run.early_figures[stem] = (fig, _render(fig))
 
 
-def _placement_figure(room, space, res, current, method):
-    """The ``place`` command's figure for a search result."""
+def _placement_figure(room, space, res, current, method, drawn=None):
+    """The ``place`` command's figure for a search result; with ``drawn`` (``{"n_samples",
+    "seed"}``) its level panel shades each layout's 10-90 % band over that many drawn rooms."""
     best = res.ranked[0].layout
     preds = [("best", predict(room, best, method=method))]
     if current is not None and len(current.speakers) >= 2:
         preds.append(("current", predict(room, current, method=method)))
     else:
         current = None
+    bands = None
+    if drawn:
+        # the curves of (a) over rooms drawn with the report's count and seed, with the curves' own solver
+        from ..analysis.uncertainty import predict_bands
+
+        bands = [predict_bands(room, lay, p.freq_hz, method=p.method, n_samples=drawn["n_samples"],
+                               seed=drawn["seed"]) for lay, (_, p) in zip((best, current), preds)]
     kw = {"weights": res.weights, "band_hz": res.band_hz, "area_m": space.area_m, "area_points": space.area_points}
     seat_map = seat_score_map(room, best, **kw)
     lo = max(0.05, min(space.speaker_front_m[0], best.speakers[0].position_m[0]) - 0.15)
     hi = min(best.seat_m[0] - 0.5, max(space.speaker_front_m[1], best.speakers[0].position_m[0]) + 0.15)
     profile = front_distance_profile(room, best, distances_m=np.arange(lo, hi + 1e-9, 0.02), space=space, **kw)
     return plot_place(room, best, current, preds, res.band_hz, preds[0][1].schroeder_hz, seat_map, profile,
-                      space.keep_out)
+                      space.keep_out, bands=bands)

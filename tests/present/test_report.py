@@ -284,3 +284,63 @@ def test_map_names_the_mode_whose_pattern_it_draws():
     fm = floor_level_map(room, 70.0, step_m=0.2)
     assert fm.near_modes[0]["indices"] == (2, 0, 0)
     assert (0, 0, 1) in [m["indices"] for m in fm.near_modes]
+
+
+# ------------------------------------------------------------------ drawn rooms on the EQ and placement figures
+def _drawn_fills(fig):
+    """Labels of every filled band, on any axes of ``fig``, that names drawn rooms."""
+    return [c.get_label() for ax in fig.axes for c in ax.collections if "drawn rooms" in c.get_label()]
+
+
+@pytest.mark.slow  # two reports with a placement search: about 15 s
+def test_report_eq_and_placement_figures_shade_the_drawn_rooms(monkeypatch):
+    """With ``uncertainty`` the report's EQ is held to the drawn rooms (its figure shades the
+    seat before and after, its text says so) and the placement figure's level panel shades
+    both layouts; without it neither figure has a band (this checks the wiring: the bands'
+    values are held to the ensemble's percentiles in tests/present/test_plot_bands.py)."""
+    import roommodes.present.report as report
+    from roommodes.analysis.eq import held_rule_text
+    from roommodes.analysis.uncertainty import predict_bands
+    from roommodes.model.room import Layout as _Layout
+
+    drawn = {}
+
+    def keeping(name, make):
+        def keep(*a, **kw):
+            fig = make(*a, **kw)
+            drawn.setdefault(name, []).append(fig)
+            return fig
+        return keep
+
+    for name in ("plot_correction", "plot_place"):
+        monkeypatch.setattr(report, name, keeping(name, getattr(report, name)))
+    room = load_room(next(p for p in ROOMS if "demo" in p.name))
+    n = 5
+    rep = build_report(room, search="quick", embed="png", uncertainty={"n_samples": n, "seed": 7})
+    (eq_fig,), (place_fig,) = drawn.pop("plot_correction"), drawn.pop("plot_place")
+    labels = _drawn_fills(eq_fig)
+    assert labels.count(f"seat before: 10-90 % of {n} drawn rooms") == len(room.layout.speakers)
+    assert labels.count(f"seat after: 10-90 % of {n} drawn rooms") == len(room.layout.speakers)
+    held = rep.values["eq_held"]
+    assert held["samples"] == n and held["seed"] == 7 and held["channels"] == [s.name for s in room.layout.speakers]
+    text = " ".join(check_page(rep.html).text)
+    assert f"held to {n} rooms drawn from the room file's [uncertainty] (seed 7" in text
+    assert held_rule_text() in text
+    # the placement figure's level panel: each channel of the best and the file's layout
+    ax = place_fig.axes[0]
+    fills = [c for c in ax.collections if "drawn rooms" in c.get_label()]
+    assert [c.get_label() for c in fills] == [f"best: 10-90 % of {n} drawn rooms", f"current: 10-90 % of {n} drawn rooms"]
+    best = rep.values["best_layout"]
+    lay = _Layout(name="best", speakers=tuple(sp.moved(p) for sp, p in zip(room.layout.speakers, best["speakers"])),
+                  seat_m=tuple(best["seat_m"]))
+    f = predict(room, lay).freq_hz
+    band = predict_bands(room, lay, f, n_samples=n, seed=7)  # the best layout's band, recomputed
+    poly = fills[0].get_paths()[0].vertices
+    for k in (f.size // 4, f.size // 2, 3 * f.size // 4):
+        y = poly[np.isclose(poly[:, 0], f[k], rtol=0, atol=1e-9 * f[k]), 1]
+        np.testing.assert_allclose([y.min(), y.max()], [band.level_db_p10[0, k], band.level_db_p90[0, k]], atol=1e-9)
+    assert "Shaded in (a): 10-90 % of 5 rooms" in next(f.caption for f in rep.figures if f.name.endswith("placement"))
+
+    plain = build_report(room, search="quick", embed="png")
+    assert not _drawn_fills(drawn.pop("plot_correction")[0]) and not _drawn_fills(drawn.pop("plot_place")[0])
+    assert "eq_held" not in plain.values and held_rule_text() not in plain.html
