@@ -8,9 +8,42 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..dsp.response import smooth_db
 from .plots import PALETTE, new_figure, save_figure, shade_invalid, style_frequency_axis
 
-__all__ = ["plot_place", "plot_explain"]
+__all__ = ["plot_place", "plot_explain", "eq_band_db"]
+
+_EQ_SMOOTHING = 6  # panel (b)'s curves are 1/6-octave smoothed (analysis.search.layout_curves)
+
+
+def eq_band_db(band, freq_hz, correction_db):
+    """10-90 % band of a layout's seat level before and after its EQ over the drawn rooms.
+
+    Each drawn room's level (``band.samples_db``, first two channels) is 1/6-octave smoothed
+    on its own grid, interpolated (in log frequency) onto ``freq_hz`` and, after EQ, has the
+    layout's designed correction added (the same filters in every drawn room).
+
+    Parameters
+    ----------
+    band : Bands
+        From :func:`roommodes.analysis.uncertainty.predict_bands` for the layout.
+    freq_hz : ndarray (Fb,)
+        The grid of panel (b).
+    correction_db : ndarray (2, Fb)
+        The layout's EQ response, dB (from :func:`roommodes.analysis.search.layout_curves`).
+
+    Returns
+    -------
+    before_p10, before_p90, after_p10, after_p90 : ndarray (2, Fb)
+    """
+    f = np.asarray(freq_hz, dtype=float)
+    sm = smooth_db(band.freq_hz, band.samples_db[:, :2], _EQ_SMOOTHING)  # (N, 2, F)
+    x, xp = np.log(f), np.log(band.freq_hz)
+    before = np.stack([[np.interp(x, xp, sm[n, c]) for c in range(sm.shape[1])] for n in range(sm.shape[0])])
+    after = before + np.asarray(correction_db, dtype=float)[None, :, :]
+    b10, b90 = np.percentile(before, (10, 90), axis=0)
+    a10, a90 = np.percentile(after, (10, 90), axis=0)
+    return b10, b90, a10, a90
 
 
 def _curves(ax, predictions, band_hz, schroeder_hz, bands=None):
@@ -40,14 +73,26 @@ def _curves(ax, predictions, band_hz, schroeder_hz, bands=None):
     ax.set_title(f"(a) Predicted level at the seat; score band {band_hz[0]:g}-{band_hz[1]:g} Hz", fontsize=10)
 
 
-def _eq_curves(ax, eq_curves, band_hz):
-    """Each layout's level at the seat before (thin) and after (thick) the EQ it needs."""
+def _eq_curves(ax, eq_curves, band_hz, bands=None):
+    """Each layout's level at the seat before (thin) and after (thick) the EQ it needs; with
+    drawn rooms (``bands``, one per layout or None), their 10-90 % band before and after."""
     if not eq_curves:
         ax.set_axis_off()
         return
     colors = (PALETTE[1], "0.45")
     lv = []
-    for i, (label, (f, before, _corr, after)) in enumerate(eq_curves):
+    for i, (label, (f, before, corr, after)) in enumerate(eq_curves):
+        band = bands[i] if bands is not None and i < len(bands) else None
+        if band is not None:
+            b10, b90, a10, a90 = eq_band_db(band, f, corr)
+            for c in range(min(2, b10.shape[0])):
+                ax.fill_between(f, b10[c], b90[c], color=colors[i % 2], alpha=0.08, lw=0,
+                                label=f"{label} before EQ: 10-90 % of {band.n_samples} drawn rooms"
+                                if c == 0 else None)
+                ax.fill_between(f, a10[c], a90[c], color=colors[i % 2], alpha=0.2, lw=0,
+                                label=f"{label} after EQ: 10-90 % of {band.n_samples} drawn rooms"
+                                if c == 0 else None)
+                lv += [b10[c], b90[c], a10[c], a90[c]]
         for c, (ls, name) in enumerate((("-", "left"), ("--", "right"))):
             ax.plot(f, before[c], color=colors[i % 2], ls=ls, lw=0.9, alpha=0.55,
                     label=f"{label}, {name}: before EQ")
@@ -202,7 +247,9 @@ def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map
         How many rooms were drawn (for the legend of (e)).
     bands : list of Bands or None, optional
         One per prediction (:func:`roommodes.analysis.uncertainty.predict_bands`): each
-        channel's 10-90 % band over the drawn rooms is shaded in (a) in its layout's colour.
+        channel's 10-90 % band over the drawn rooms is shaded in (a) in its layout's colour,
+        and in (b) (with ``eq_curves`` in the same order) the band of the 1/6-octave level
+        before and after the layout's EQ (:func:`eq_band_db`).
     """
     if score_spread:
         fig, axes = new_figure(12.0, 13.2, 3, 2, gridspec_kw={"height_ratios": (1.0, 1.0, 0.55)})
@@ -213,7 +260,7 @@ def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map
     else:
         fig, axes = new_figure(12.0, 10.0, 2, 2)
     _curves(axes[0, 0], predictions, band_hz, schroeder_hz, bands)
-    _eq_curves(axes[0, 1], eq_curves, band_hz)
+    _eq_curves(axes[0, 1], eq_curves, band_hz, bands)
     _floor_plan(axes[1, 0], room, best, current, keep_out, seat_map, space)
     _profile(axes[1, 1], profile, best.speakers[0].position_m[0], sweep_label)
     fig.suptitle(title or f"Placement search: {room.name}", fontsize=11)

@@ -137,3 +137,40 @@ def test_place_curves_shade_each_channels_percentiles_over_drawn_rooms():
     fig, ax = new_figure()
     _curves(ax, [("best", pred)], (30.0, 200.0), 180.0)
     assert not any("drawn rooms" in c.get_label() for c in ax.collections)
+
+
+def test_place_eq_panel_shades_before_and_after_percentiles_over_drawn_rooms():
+    from roommodes.analysis.search import layout_curves, search_space
+    from roommodes.analysis.uncertainty import predict_bands
+    from roommodes.dsp.response import smooth_db
+    from roommodes.present.plots import new_figure
+    from roommodes.present.plots_place import _eq_curves
+
+    room = load_room(DEMO)
+    f = log_frequencies(20.0, 250.0, 12)
+    band_hz = (30.0, 200.0)
+    fb, before, corr, after = layout_curves(room, room.layout, search_space(room), band_hz)
+    band = predict_bands(room, freq_hz=f, n_samples=N_ROOMS, seed=SEED)
+    # the drawn levels again, from the library; smoothed and put on (b)'s grid as its curves are
+    levels = ensemble_levels(room, f, n_samples=N_ROOMS, seed=SEED)[:, :2, 0, :]
+    smoothed = smooth_db(f, levels, 6)
+    drawn = np.array([[np.interp(np.log(fb), np.log(f), smoothed[n, c]) for c in range(2)]
+                      for n in range(N_ROOMS)])
+    fig, ax = new_figure()
+    _eq_curves(ax, [("best", (fb, before, corr, after))], band_hz, [band])
+    fills = [c for c in ax.collections if c.get_paths()]
+    assert len(fills) == 4  # before and after, per channel
+    labels = [c.get_label() for c in fills]
+    assert labels[0] == f"best before EQ: 10-90 % of {N_ROOMS} drawn rooms"
+    assert labels[1] == f"best after EQ: 10-90 % of {N_ROOMS} drawn rooms"
+    for c in range(2):
+        for k, curves in enumerate((drawn[:, c], drawn[:, c] + corr[c][None, :])):
+            lo, hi = _edges(fills[2 * c + k].get_paths()[0].vertices, fb)
+            np.testing.assert_allclose(lo, np.percentile(curves, 10, axis=0), atol=1e-9)
+            np.testing.assert_allclose(hi, np.percentile(curves, 90, axis=0), atol=1e-9)
+    # the nominal curve before EQ lies inside the band's neighbourhood (same room, same smoothing)
+    lo, hi = _edges(fills[0].get_paths()[0].vertices, fb)
+    assert np.mean((before[0] >= lo - 3.0) & (before[0] <= hi + 3.0)) > 0.9
+    fig, ax = new_figure()
+    _eq_curves(ax, [("best", (fb, before, corr, after))], band_hz)
+    assert not any("drawn rooms" in c.get_label() for c in ax.collections)
