@@ -37,11 +37,11 @@ from ..dsp.response import level_db, log_frequencies
 from ..model.room import WALL_MARGIN_M, Seat, Uncertainty
 from ..solvers import DEFAULT_METHOD
 from .levels import speaker_levels
-from .predict import DEFAULT_POINTS_PER_OCTAVE, DEFAULT_RANGE_HZ
+from .predict import DEFAULT_POINTS_PER_OCTAVE, DEFAULT_RANGE_HZ, predict_seats
 
 __all__ = ["DEFAULT_SAMPLES", "DEFAULT_SEED", "MAX_ABSORPTION", "PERCENTILES", "Bands", "draw_room",
            "sample_rooms", "ensemble_levels", "predict_bands", "lognormal_sigma", "SubsBands",
-           "draw_subs_rooms", "subs_bands"]
+           "draw_subs_rooms", "subs_bands", "system_levels"]
 
 #: Monte Carlo samples used where none is chosen. Chosen by measurement on the demo room with
 #: the library's absorption ranges (20-200 Hz, 24 points per octave, seeds 1 and 2): each
@@ -252,6 +252,39 @@ def predict_bands(room, layout=None, freq_hz=None, *, n_samples=DEFAULT_SAMPLES,
     p10, p50, p90 = np.percentile(lv, PERCENTILES, axis=0)
     u = room.uncertainty if uncertainty is None else uncertainty
     return Bands(f, tuple(s.name for s in layout.speakers), p10, p50, p90, lv, int(seed), method, u)
+
+
+def system_levels(room, layout=None, freq_hz=None, *, n_samples=DEFAULT_SAMPLES, seed=DEFAULT_SEED,
+                  uncertainty=None, method=DEFAULT_METHOD, include_speaker=True, **options):
+    """The system's mono sum at every seat, with the room file's settings, in each drawn room.
+
+    Drawn room *i* is the one :func:`predict_bands` draws as its *i*-th with the same seed
+    (:func:`draw_room`); in it the sum is :func:`roommodes.analysis.predict.predict_seats`.
+
+    Parameters are those of :func:`predict_bands`.
+
+    Returns
+    -------
+    ndarray (N, P, F)
+        Level of the mono sum per drawn room, seat (main seat first) and frequency, dB.
+    """
+    n = _check_count(n_samples)
+    layout = room.layout if layout is None else layout
+    if layout is None:
+        raise ValueError(f"{room.source or room.name}: the room file has no [speakers] and [seat]; add them or "
+                         "choose a layout (corner, wall, mid-room, desk)")
+    base = room.with_layout(layout)
+    f = log_frequencies(*DEFAULT_RANGE_HZ, DEFAULT_POINTS_PER_OCTAVE) if freq_hz is None else np.asarray(freq_hz, float)
+    u = room.uncertainty if uncertainty is None else uncertainty
+    out = None
+    for i, g in enumerate(_generators(seed, n)):
+        drawn, _ = draw_room(base, g, u)
+        lv = predict_seats(drawn, drawn.layout, f, method=method, include_speaker=include_speaker,
+                           **options).system_db
+        if out is None:
+            out = np.empty((n,) + lv.shape)
+        out[i] = lv
+    return out
 
 
 def draw_subs_rooms(room, configs, rng, uncertainty=None):

@@ -11,7 +11,7 @@ import numpy as np
 from ..analysis.predict import band_figures, predict_seats, response_features, usable_band
 from ..analysis.predict import predict as run_predict
 from ..analysis.summary import room_summary
-from ..analysis.uncertainty import predict_bands
+from ..analysis.uncertainty import predict_bands, system_levels
 from ..dsp.response import log_frequencies
 from ..model.criteria import note_name
 from ..model.modes import room_modes
@@ -151,6 +151,9 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
                       if _has_system(lay) else None for lay in layouts]
         bands = [predict_bands(room, lay, f, n_samples=samples, seed=seed, method=method,
                                include_speaker=not no_speaker) if uncertainty else None for lay in layouts]
+        sys_drawn = (system_levels(room, layouts[0], f, n_samples=samples, seed=seed, method=method,
+                                   include_speaker=not no_speaker)
+                     if uncertainty and plot_path and seat_preds[0] is not None else None)
     except ValueError as exc:
         fail(str(exc))
     elapsed = time.perf_counter() - t0
@@ -220,7 +223,7 @@ def predict(room_file, layout, freq_range, points_per_octave, method, plot_path,
     if plot_path:
         ms = room_modes(room, hi)
         plot_prediction(preds, ms, title=f"{room.name}: predicted level at the seat", path=plot_path,
-                        bands=bands if uncertainty else None, system=seat_preds[0])
+                        bands=bands if uncertainty else None, system=seat_preds[0], system_levels=sys_drawn)
         echo_err(f"wrote {plot_path}")
 
 

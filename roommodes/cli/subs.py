@@ -63,7 +63,7 @@ def _count(n):
 
 
 def _drawn(drawn, i):
-    """A ranked configuration's spread in the drawn rooms, "median (p10-p90)"; "-" for the rest."""
+    """A configuration's spread in the drawn rooms, "median (p10-p90)"; "-" for one not drawn."""
     if i >= len(drawn):
         return "-"
     p10, p50, p90 = drawn[i]
@@ -157,7 +157,8 @@ def subs(room_file, method, points_per_octave, plot_path, force, settings_path, 
     if uncertainty:
         t1 = time.perf_counter()
         try:
-            bands = subs_bands(room, res.ranked, res.freq_hz, res.band_hz, n_samples=samples, seed=seed,
+            # the ranked settings, then the file's own ("before"): the same drawn rooms for each
+            bands = subs_bands(room, [*res.ranked, res.before], res.freq_hz, res.band_hz, n_samples=samples, seed=seed,
                                method=method)
         except ValueError as exc:
             fail(f"{room_file}: {exc}")
@@ -169,7 +170,7 @@ def subs(room_file, method, points_per_octave, plot_path, force, settings_path, 
             d["shared_eq"] = shared.to_dict()
         d["elapsed_s"] = elapsed
         if bands is not None:
-            for entry, p10, p50, p90 in zip(d["ranked"], *bands.spread_percentiles()):
+            for entry, p10, p50, p90 in zip([*d["ranked"], d["before"]], *bands.spread_percentiles()):
                 entry.update(seat_spread_db_p10=float(p10), seat_spread_db_p50=float(p50),
                              seat_spread_db_p90=float(p90))
             d["uncertainty"] = {**bands.to_dict(), "elapsed_s": ens_elapsed}
@@ -313,8 +314,8 @@ def _print(room, res, elapsed, bands=None):
                    + (f"{_drawn(drawn, i):>40}" if bands is not None else ""))
     b = res.before
     if bands is not None:
-        click.echo(f"  (drawn rooms: the ranked settings tried in {bands.n_samples} rooms drawn from the room file's "
-                   f"[uncertainty], the same rooms for each, seed {bands.seed}; {uncertainty_text(room)}; "
+        click.echo(f"  (drawn rooms: the ranked settings and the file's own tried in {bands.n_samples} rooms drawn from the "
+                   f"room file's [uncertainty], the same rooms for each, seed {bands.seed}; {uncertainty_text(room)}; "
                    "the settings stay those found in the nominal room)")
     if lay.subs:
         sy = room.system

@@ -152,7 +152,7 @@ def _identical_groups(channels, atol_db=0.01):
     return groups
 
 
-def plot_prediction(predictions, modes=None, title=None, path=None, bands=None, system=None):
+def plot_prediction(predictions, modes=None, title=None, path=None, bands=None, system=None, system_levels=None):
     """Predicted level at the seat for one or more predictions (layouts).
 
     Parameters
@@ -168,6 +168,9 @@ def plot_prediction(predictions, modes=None, title=None, path=None, bands=None, 
     system : SeatsPrediction, optional
         The system's mono sum at every seat with the room file's settings
         (:func:`roommodes.analysis.predict.predict_seats`): drawn in a second panel below.
+    system_levels : ndarray (N, P, F), optional
+        The same sum in each drawn room (:func:`roommodes.analysis.uncertainty.system_levels`):
+        each seat's 10-90 % band over them is shaded in the seat's colour in the second panel.
     """
     preds = predictions if isinstance(predictions, (list, tuple)) else [predictions]
     if system is not None:
@@ -218,7 +221,7 @@ def plot_prediction(predictions, modes=None, title=None, path=None, bands=None, 
         ax.legend(fontsize=8, loc="lower center")
     ax.set_title(title or "Predicted level at the seat", fontsize=11, pad=10)
     if system is not None:
-        _system_panel(ax_sys, system, preds[0].schroeder_hz)
+        _system_panel(ax_sys, system, preds[0].schroeder_hz, system_levels)
         if len(preds) > 1:
             fig.set_size_inches(10.0, 8.6)
     if path is not None:
@@ -226,9 +229,17 @@ def plot_prediction(predictions, modes=None, title=None, path=None, bands=None, 
     return fig
 
 
-def _system_panel(ax, sp, schroeder_hz):
-    """The mono sum of mains and subs at every seat, with the room file's settings."""
+def _system_panel(ax, sp, schroeder_hz, drawn_db=None):
+    """The mono sum of mains and subs at every seat, with the room file's settings (and, given
+    the sum in drawn rooms ``drawn_db`` (N, P, F), each seat's 10-90 % band over them)."""
     f = sp.freq_hz
+    if drawn_db is not None:
+        p10, p90 = np.percentile(drawn_db, [10.0, 90.0], axis=0)
+        for j in range(len(sp.seats)):
+            ax.fill_between(f, p10[j], p90[j], color=PALETTE[j % len(PALETTE)], alpha=0.18, lw=0,
+                            gid=f"system-band-{j}")
+        ax.fill_between([], [], [], color="0.5", alpha=0.25, lw=0,
+                        label=f"10-90 % of {drawn_db.shape[0]} drawn rooms (shaded in each seat's colour)")
     for j, seat in enumerate(sp.seats):
         ax.plot(f, smooth_db(f, sp.system_db[j], _SHOWN_SMOOTHING), color=PALETTE[j % len(PALETTE)],
                 lw=2.0 if j == 0 else 1.3, label=f"{seat.name}{' (main seat)' if j == 0 and len(sp.seats) > 1 else ''}"

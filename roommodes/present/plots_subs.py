@@ -92,9 +92,10 @@ def plot_subs(result, room, mains_m, title=None, path=None, bands=None):
     path : path, optional
         Where to write the figure (atomically); the figure is returned either way.
     bands : SubsBands, optional
-        The ranked configurations' levels in drawn rooms
-        (:func:`roommodes.analysis.uncertainty.subs_bands`, in ``result.ranked`` order): each
-        seat's 10-90 % band is shaded in its colour on their level panels.
+        The configurations' levels in drawn rooms
+        (:func:`roommodes.analysis.uncertainty.subs_bands`, in ``result.ranked`` order, then
+        optionally ``result.before``): each seat's 10-90 % band is shaded in its colour on the
+        level panel of each configuration it holds.
     """
     configs = [*result.ranked, result.before]
     lx, ly, _ = room.size_m
@@ -108,7 +109,7 @@ def plot_subs(result, room, mains_m, title=None, path=None, bands=None):
         lo, hi = bands.level_db_p10, bands.level_db_p90
         ylim = (min(ylim[0], np.floor(np.percentile(lo, 1) / 5) * 5 - 5), max(ylim[1], np.ceil(hi.max() / 5) * 5 + 3))
     for i, (row, config) in enumerate(zip(axes, configs)):
-        band = ((lo[i], hi[i]), bands.n_samples) if bands is not None and i < len(result.ranked) else None
+        band = ((lo[i], hi[i]), bands.n_samples) if bands is not None and i < lo.shape[0] else None
         _levels(row[0], result, config, ylim, band)
         _plan(row[1], room, result, config, np.atleast_2d(mains_m), legend=i == 0)
     fig.suptitle(title or "Subwoofers: level at every seat, and where the subs go", fontsize=11)

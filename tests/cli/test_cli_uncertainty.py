@@ -163,3 +163,32 @@ def test_place_plot_shows_each_layouts_spread_beside_its_nominal_score(tmp_path,
     assert res.exit_code == 0, res.output
     assert _spread_panel(figures[-1]) is None
     assert not any("drawn rooms" in c.get_label() for a in figures[-1].axes for c in a.collections)
+
+
+def test_predict_plot_uncertainty_bands_the_system_panel(tmp_path, monkeypatch):
+    import roommodes.cli.predict as cli_predict
+    from roommodes.analysis.predict import predict_seats
+    from roommodes.analysis.uncertainty import sample_rooms
+
+    seen = []
+    real = cli_predict.plot_prediction
+
+    def spy(*args, **kw):
+        seen.append(kw)
+        return real(*args, **kw)
+
+    monkeypatch.setattr(cli_predict, "plot_prediction", spy)
+    from roommodes.io.roomfile import example_rooms
+
+    path = next(p for p in example_rooms() if p.stem == "sofa-and-sub")
+    res = run("predict", path, "--uncertainty", "--samples", 5, "--seed", 9, "--points-per-octave", 6,
+              "--freq-range", "20,200", "--plot", tmp_path / "a.png")
+    assert res.exit_code == 0, res.output
+    room = load_room(path)
+    f = log_frequencies(20, 200, 6)
+    # the same samples and seed as the channels' bands: drawn room i is predict_bands' i-th
+    ref = np.array([predict_seats(r, freq_hz=f).system_db for r in sample_rooms(room, 5, 9)])
+    np.testing.assert_allclose(seen[0]["system_levels"], ref, atol=1e-9)
+    res = run("predict", path, "--points-per-octave", 6, "--freq-range", "20,200", "--plot", tmp_path / "b.png")
+    assert res.exit_code == 0, res.output
+    assert seen[1]["system"] is not None and seen[1]["system_levels"] is None

@@ -38,3 +38,45 @@ def test_channels_that_differ_keep_their_own_curves():
     labels = _labels(plot_prediction([pred]))
     assert any(t.startswith("left,") for t in labels) and any(t.startswith("right,") for t in labels)
     assert not any("identical" in t for t in labels)
+
+
+def _system_bands(fig, n):
+    """Each seat's shaded band in the system panel, read back from the figure: {gid: (f, low, high)}."""
+    out = {}
+    for c in fig.axes[1].collections:
+        gid = c.get_gid()
+        if gid and gid.startswith("system-band-"):
+            v = c.get_paths()[0].vertices
+            # fill_between's polygon: a start vertex, the n lower points forwards, an end vertex,
+            # the n upper points backwards, then the closing vertex
+            assert len(v) == 2 * n + 3
+            out[gid] = (v[1:n + 1, 0], v[1:n + 1, 1], v[n + 2:2 * n + 2, 1][::-1])
+    return out
+
+
+def test_system_panel_shades_each_seats_band_over_the_drawn_rooms():
+    from roommodes.analysis.predict import predict_seats
+    from roommodes.analysis.uncertainty import sample_rooms, system_levels
+    from roommodes.dsp.response import log_frequencies
+
+    room = load_room(_room("sofa-and-sub"))
+    f = log_frequencies(20, 200, 6)
+    sp = predict_seats(room, freq_hz=f)
+    drawn = system_levels(room, freq_hz=f, n_samples=6, seed=3)
+    # recomputed here: the same drawn rooms, each summed by predict_seats
+    ref = np.array([predict_seats(r, freq_hz=f).system_db for r in sample_rooms(room, 6, 3)])
+    fig = plot_prediction(predict(room, freq_hz=f), system=sp, system_levels=drawn)
+    shaded = _system_bands(fig, len(f))
+    assert len(shaded) == len(sp.seats) >= 2
+    p10, p90 = np.percentile(ref, [10, 90], axis=0)
+    for j in range(len(sp.seats)):
+        fx, lo, hi = shaded[f"system-band-{j}"]
+        np.testing.assert_allclose(fx, f)
+        np.testing.assert_allclose(lo, p10[j], atol=1e-9)
+        np.testing.assert_allclose(hi, p90[j], atol=1e-9)
+    labels = [t.get_text() for t in fig.axes[1].get_legend().get_texts()]
+    assert any(t.startswith("10-90 % of 6 drawn rooms") for t in labels)
+    assert not (p90 - p10 == 0).all()
+    plain = plot_prediction(predict(room, freq_hz=f), system=sp)
+    assert not _system_bands(plain, len(f))
+    assert not any("drawn rooms" in t.get_text() for t in plain.axes[1].get_legend().get_texts())
