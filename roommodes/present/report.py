@@ -1043,15 +1043,32 @@ def _section_subs(run):
                        f" {n['more']} scored only {n['score_difference_db']:.2f} dB better than {n['fewer']}, which "
                        "ranks first." for n in res.ranking_notes)
                    + "".join(f" {c.label}: {c.note}." for c in res.ranked if c.note), key="subs")
+    bands = None
+    if run.uncertainty:
+        from ..analysis.uncertainty import subs_bands
+
+        n_subs = min(run.uncertainty["n_samples"], SUBS_SAMPLES)
+        step(f"uncertainty: {n_subs} drawn rooms, sub configurations")
+        # the ranked settings, then the file's own ("before"): the same drawn rooms for each
+        bands = subs_bands(room, [*res.ranked, before], res.freq_hz, res.band_hz, n_samples=n_subs,
+                           seed=run.uncertainty["seed"], method=method)
     step("subwoofer figure")
     mains_m = [m.position_m for m in layout.mains]
-    fig = plot_subs(res, room, mains_m, title=f"Subwoofers: {room.name}")
+    fig = plot_subs(res, room, mains_m, title=f"Subwoofers: {room.name}", bands=bands)
     doc.figure(fig, "subs", "Level of the mono sum at every seat, and where the subs go",
                "One row per configuration, the file's layout as it is last: left, the level at each seat; right, "
                "the floor plan with the subs (numbered; gain, delay and polarity in the legend, a nearly idle sub "
-               "hollow), the mains and the seats.")
+               "hollow), the mains and the seats."
+               + ("" if bands is None else
+                  f" Shaded: each seat's 10-90 % of {bands.n_samples} rooms drawn from the room file's [uncertainty] "
+                  f"(seed {bands.seed}), each configuration's settings tried in the same drawn rooms."))
     doc.raw('<div class="caution"><strong>Before setting up the subs</strong><ul>'
             + "".join(f"<li>{_esc(t)}</li>" for t in SUB_CAUTIONS) + "</ul></div>")
+
+
+#: At most this many drawn rooms for the subwoofer figure's bands (as ``subs --uncertainty``'s
+#: default): each costs one solver call holding the mains and every configuration's subs.
+SUBS_SAMPLES = 200
 
 
 #: Frequencies of the maximum-level table, Hz (ISO 266 one-third-octave centres).

@@ -344,3 +344,58 @@ def test_report_eq_and_placement_figures_shade_the_drawn_rooms(monkeypatch):
     plain = build_report(room, search="quick", embed="png")
     assert not _drawn_fills(drawn.pop("plot_correction")[0]) and not _drawn_fills(drawn.pop("plot_place")[0])
     assert "eq_held" not in plain.values and held_rule_text() not in plain.html
+
+
+def _subs_bands_drawn(fig):
+    """Each seat's shaded band on every level panel of the subs figure: [(row, seat, vertices)]."""
+    out = []
+    for row, ax in enumerate(fig.axes[0::2]):
+        for c in ax.collections:
+            gid = c.get_gid() or ""
+            if gid.startswith("seat-band-"):
+                out.append((row, int(gid.rsplit("-", 1)[1]), c.get_paths()[0].vertices))
+    return out
+
+
+@pytest.mark.slow  # two reports of the sofa room with a quick search: about 30 s
+def test_report_subs_figure_shades_the_drawn_rooms(monkeypatch):
+    """With ``uncertainty`` the report's subs figure shades each seat's band of every
+    configuration (the ranked ones, then the file's own) with subs_bands' 10th and 90th
+    percentiles over the same drawn rooms, and its caption says so; without it, no band."""
+    import roommodes.present.report as report
+    from roommodes.analysis.subs import optimise_subs
+    from roommodes.analysis.uncertainty import subs_bands
+
+    drawn = []
+
+    def keep(*a, **kw):
+        fig = make(*a, **kw)
+        drawn.append(fig)
+        return fig
+
+    make = report.plot_subs
+    monkeypatch.setattr(report, "plot_subs", keep)
+    room = load_room(next(p for p in ROOMS if "sofa" in p.name))
+    n = 4
+    rep = build_report(room, search="quick", embed="png", uncertainty={"n_samples": n, "seed": 3})
+    (fig,) = drawn
+    res = optimise_subs(room, room.layout, check_perturbed=False)  # the report's quick search, recomputed
+    configs = [*res.ranked, res.before]
+    bands = subs_bands(room, configs, res.freq_hz, res.band_hz, n_samples=n, seed=3)
+    shaded = _subs_bands_drawn(fig)
+    n_seats = len(room.layout.all_seats)
+    assert len(shaded) == len(configs) * n_seats
+    f = res.freq_hz
+    lo, hi = bands.level_db_p10, bands.level_db_p90
+    for row, p, poly in shaded:
+        for k in (f.size // 4, f.size // 2, 3 * f.size // 4):
+            y = poly[np.isclose(poly[:, 0], f[k], rtol=0, atol=1e-9 * f[k]), 1]
+            np.testing.assert_allclose([y.min(), y.max()], [lo[row, p, k], hi[row, p, k]], atol=1e-9)
+    caption = next(x.caption for x in rep.figures if x.name.endswith("subs"))
+    assert f"10-90 % of {n} rooms drawn from the room file's [uncertainty] (seed 3)" in caption
+
+    drawn.clear()
+    plain = build_report(room, search="quick", embed="png")
+    (fig,) = drawn
+    assert not _subs_bands_drawn(fig)
+    assert "drawn from" not in next(x.caption for x in plain.figures if x.name.endswith("subs"))
