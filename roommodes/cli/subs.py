@@ -26,7 +26,7 @@ from ..analysis.subs import (
     shared_eq,
     tune_measured,
 )
-from ..analysis.uncertainty import subs_bands
+from ..analysis.uncertainty import SUBS_SAMPLES, subs_bands
 from ..io.roomfile import room_to_toml, write_text_atomic
 from ..present.plots_subs import plot_subs
 from ._measured import mic_cal_option, read_mic_cal, read_wav_or_fail, wav_channel_option, window_option
@@ -47,10 +47,6 @@ from ._util import (
     units_option,
     walls_text,
 )
-
-#: Rooms ``--uncertainty`` draws by default: each costs one solver call holding the mains and
-#: every ranked configuration's subs (about 0.015 s of one core on the sofa room, 3 seats).
-SUBS_SAMPLES = 200
 
 
 def _maybe(v):

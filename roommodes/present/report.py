@@ -32,6 +32,7 @@ from .. import __version__
 from ..analysis import eq as eqmod
 from ..analysis.compare import average_measurements, compare_to_prediction
 from ..analysis.correction import correct_measured, correct_prediction
+from ..analysis.ensemble import MIN_FOUND_FRACTION, feature_spread
 from ..analysis.explain import explain as run_explain
 from ..analysis.fit import fit_room
 from ..analysis.maps import INTERPOLATED_METHODS, floor_level_map, mode_coupling
@@ -40,6 +41,7 @@ from ..analysis.search import PARTS, front_distance_profile, search_layouts, sea
 from ..analysis.subs import BEFORE_CROSSOVER_HZ, CROSSOVER_TYPE, RANKING_RULE, optimise_subs
 from ..analysis.subs import CAUTIONS as SUB_CAUTIONS
 from ..analysis.summary import room_summary
+from ..analysis.uncertainty import SUBS_SAMPLES, predict_bands, subs_bands
 from ..dsp.response import log_frequencies
 from ..dsp.text import boost_text, range_text
 from ..model.criteria import note_name
@@ -793,7 +795,6 @@ def _bands(run, layout):
     """The 10-50-90 % bands of ``layout`` over the drawn rooms, or None without ``uncertainty``."""
     if not run.uncertainty:
         return None
-    from ..analysis.uncertainty import predict_bands
 
     run.step(f"uncertainty: {run.uncertainty['n_samples']} drawn rooms, {layout.name} layout")
     return predict_bands(run.room, layout, run.f, n_samples=run.uncertainty["n_samples"],
@@ -809,7 +810,6 @@ def _band_caption(run):
 
 def _feature_spreads(run, pred, feats, bands):
     """Which peaks and dips are solid and which fragile, over the drawn rooms."""
-    from ..analysis.ensemble import MIN_FOUND_FRACTION, feature_spread
 
     doc, glance, values, f = run.doc, run.glance, run.values, run.f
     u = run.room.uncertainty
@@ -1045,7 +1045,6 @@ def _section_subs(run):
                    + "".join(f" {c.label}: {c.note}." for c in res.ranked if c.note), key="subs")
     bands = None
     if run.uncertainty:
-        from ..analysis.uncertainty import subs_bands
 
         n_subs = min(run.uncertainty["n_samples"], SUBS_SAMPLES)
         step(f"uncertainty: {n_subs} drawn rooms, sub configurations")
@@ -1066,9 +1065,6 @@ def _section_subs(run):
             + "".join(f"<li>{_esc(t)}</li>" for t in SUB_CAUTIONS) + "</ul></div>")
 
 
-#: At most this many drawn rooms for the subwoofer figure's bands (as ``subs --uncertainty``'s
-#: default): each costs one solver call holding the mains and every configuration's subs.
-SUBS_SAMPLES = 200
 
 
 #: Frequencies of the maximum-level table, Hz (ISO 266 one-third-octave centres).
@@ -1447,7 +1443,6 @@ def _placement_figure(room, space, res, current, method, drawn=None):
     bands = None
     if drawn:
         # the curves of (a) over rooms drawn with the report's count and seed, with the curves' own solver
-        from ..analysis.uncertainty import predict_bands
 
         bands = [predict_bands(room, lay, p.freq_hz, method=p.method, n_samples=drawn["n_samples"],
                                seed=drawn["seed"]) for lay, (_, p) in zip((best, current), preds)]
