@@ -24,10 +24,11 @@ from ..analysis.compare import (
     compare_to_prediction,
     is_wav_file,
     model_band,
+    share_inside,
     speaker_by_name,
 )
 from ..analysis.fit import DEFAULT_POINTS_PER_OCTAVE as FIT_POINTS_PER_OCTAVE
-from ..analysis.fit import effective_size, fit_room
+from ..analysis.fit import before_band, effective_size, fit_room
 from ..dsp.bands import band_centres
 from ..dsp.response import log_frequencies
 from ..io.files import JSON_FILE_BYTES, InputFileError, read_regular
@@ -743,11 +744,14 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
 @method_option
 @mic_cal_option
 @spl_ref_option
+@uncertainty_options(samples=COMPARE_SAMPLES, samples_note=(
+    "100 keeps the 10th and 90th percentiles of the 'before' curve steady to a fraction of a dB for one exact "
+    "solve per drawn room."))
 @json_option
 @guard
 def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band, smoothing, points_per_octave, method,
         absorption, size_tolerance, position_tolerance, no_lowcut, absolute, regularization, plot_path, force,
-        as_json, mic_cal, spl_ref):
+        as_json, mic_cal, spl_ref, uncertainty, samples, seed):
     """Calibrate the room file to measurements and write the calibrated room file.
 
     \b
@@ -796,6 +800,13 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
                        position_tolerance_m=position_tolerance, fit_lowcut=not no_lowcut, absolute=absolute,
                        regularization_db=regularization, method=method, progress=progress)
     elapsed = time.perf_counter() - t0
+    bband = None
+    if uncertainty:
+        if any(t.band_fraction for t in targets):
+            fail("--uncertainty needs fine-resolution measurements (impulse responses or frequency-response files), "
+                 "not band levels; leave out --uncertainty")
+        bband = before_band(room, res, targets, smoothing=smoothing, absolute=absolute, method=method,
+                            band_hz=(lo, hi), n_samples=samples, seed=seed)
     eff = effective_size(res, room)
     comment = (f"Calibrated by roommodes {__version__} fit from {Path(room_file).name} and "
                f"{len(targets)} measurement(s): " + ", ".join(t.label for t in targets) + "\n"
@@ -812,6 +823,10 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
         d["spl_reference"] = ref.to_dict() if ref else None
         d["targets"] = [{"label": t.label, "channel": t.channel, "position_m": t.position_m, "level_offset_db": o}
                         for t, o in zip(targets, res.level_offsets_db)]
+        if bband is not None:
+            d.update({"measured_inside_before_band_share": share_inside(res.measured_db, bband[0], bband[2]),
+                      "before_db_p10": bband[0], "before_db_p50": bband[1], "before_db_p90": bband[2],
+                      "before_band_samples": samples, "before_band_seed": seed})
         dump_json({"room": room.name, "output": str(outp), "elapsed_s": elapsed, "band_hz": [lo, hi],
                    "smoothing_octave_fraction": smoothing, **d})
     else:
@@ -837,6 +852,10 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
                 f"{nm} {v:.3f} m" for nm, v in zip(("length", "width", "height"), eff.size_m)))
         else:
             click.echo(f"Dimensions kept from the file: {eff.note}.")
+        if bband is not None:
+            click.echo(f"Model before the fit over {samples} drawn rooms (seed {seed}; {uncertainty_text(room)}): "
+                       f"the measurements lie inside its 10-90 % band at "
+                       f"{share_inside(res.measured_db, bband[0], bband[2]):.0%} of the fit's frequencies")
         eb, ea = res.error_before, res.error_after
         click.echo(f"Error over the fitted measurements: median |difference| {eb['median_abs_db']:.2f} -> "
                    f"{ea['median_abs_db']:.2f} dB, 90th percentile {eb['p90_abs_db']:.2f} -> {ea['p90_abs_db']:.2f} dB")
@@ -858,7 +877,8 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
         click.echo(f"Next: roommodes predict {outp.name}   and   roommodes compare {outp.name} MEAS... --channel NAME")
     if plot_path:
 
-        plot_fit(res, title=f"{room.name}: fit to measurements", path=plot_path)
+        plot_fit(res, title=f"{room.name}: fit to measurements", path=plot_path, before_band_db=bband,
+                 n_rooms=samples if bband is not None else None)
         echo_err(f"wrote {plot_path}")
     echo_err(MODEL_CAUTION)
 

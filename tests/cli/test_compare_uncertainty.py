@@ -128,3 +128,57 @@ def test_bad_samples_and_no_room(tmp_path):
     assert_user_error(run(DEMO, m, "--channel", "left", "--uncertainty", "--samples", 1), "--samples")
     assert_user_error(run(DEMO, m, "--channel", "left", "--uncertainty", "--samples", "many"), "--samples")
     assert_user_error(run(m, "--against", m, "--uncertainty"), "--uncertainty", "room file")
+
+
+# ------------------------------------------------------------------------------- fit
+
+
+def fit_targets():
+    from roommodes.analysis.fit import FitTarget
+    return [FitTarget("left", tuple(ROOM.layout.seat_m), F, predicted_level(ROOM, "left", None, F, method="modal"),
+                      "left seat")]
+
+
+def test_fit_before_band_recomputed_and_plotted():
+    from roommodes.analysis.fit import before_band, fit_room
+    from roommodes.model.room import Uncertainty
+    from roommodes.present.plots_measure import plot_fit
+    targets = fit_targets()
+    res = fit_room(ROOM, targets, method="modal", max_iterations=2)
+    # no uncertainty at all: every drawn room is the file's room, so the band collapses onto the
+    # fit's own 'before' curve (the alignment is the fit's)
+    zero = Uncertainty(0.0, 0.0, 0.0, 0.0)
+    flat = before_band(ROOM, res, targets, method="modal", n_samples=3, uncertainty=zero)
+    np.testing.assert_allclose(flat[1][0], res.before_db[0], atol=1e-6)
+    band = before_band(ROOM, res, targets, method="modal", n_samples=12, seed=5)
+    lv = ensemble_levels(ROOM, res.freq_hz, points_m=[ROOM.layout.seat_m], n_samples=12, seed=5, method="modal",
+                         cutoff_hz=400.0)[:, 0, 0]  # the fit's modal cutoff: 2 x the band's top, 200 Hz
+    curves = np.array([smooth_db(res.freq_hz, c, 12) for c in lv])
+    curves = curves - np.mean(curves - res.measured_db[0], axis=1, keepdims=True)
+    np.testing.assert_allclose(band[0][0], np.percentile(curves, 10, axis=0), atol=1e-9)
+    np.testing.assert_allclose(band[2][0], np.percentile(curves, 90, axis=0), atol=1e-9)
+    fig = plot_fit(res, before_band_db=band, n_rooms=12)
+    polys = [c for c in fig.axes[0].collections if c.get_label() == "model before: 10-90 % of 12 drawn rooms"]
+    assert len(polys) == 1
+    v = polys[0].get_paths()[0].vertices
+    for i, fq in enumerate(res.freq_hz):
+        ys = v[np.isclose(v[:, 0], fq, rtol=0, atol=1e-12), 1]
+        assert np.isclose(ys.min(), band[0][0][i], atol=1e-9) and np.isclose(ys.max(), band[2][0][i], atol=1e-9)
+    assert not [c for c in plot_fit(res).axes[0].collections if "drawn rooms" in str(c.get_label())]
+
+
+def test_fit_cli_band_keys_and_bad_samples(tmp_path):
+    m = measured_file(tmp_path)
+    base = ["fit", DEMO, str(m), "--channel", "left", "--method", "modal"]
+    res = CliRunner().invoke(main, base + ["-o", str(tmp_path / "a.toml"), "--json"], catch_exceptions=False)
+    assert res.exit_code == 0, res.output
+    assert not [k for k in json.loads(res.stdout) if "before_db_p" in k or "inside" in k]
+    res = CliRunner().invoke(main, base + ["-o", str(tmp_path / "b.toml"), "--json", "--uncertainty", "--samples",
+                                           "6"], catch_exceptions=False)
+    assert res.exit_code == 0, res.output
+    data = json.loads(res.stdout)
+    assert np.shape(data["before_db_p10"]) == np.shape(data["before_db"])
+    assert np.all(np.array(data["before_db_p90"]) >= np.array(data["before_db_p10"]))
+    assert 0 <= data["measured_inside_before_band_share"] <= 1
+    res = CliRunner().invoke(main, base + ["-o", str(tmp_path / "c.toml"), "--uncertainty", "--samples", "0"])
+    assert res.exit_code == 2 and res.stderr.count("\n") == 1 and "--samples" in res.stderr
