@@ -40,6 +40,7 @@ from ..solvers import DEFAULT_METHOD
 from .fit import estimate_effective_size
 from .levels import speaker_levels
 from .predict import boundary_notches
+from .uncertainty import DEFAULT_SAMPLES, DEFAULT_SEED, ensemble_levels
 
 __all__ = [
     "DEFAULT_BAND_HZ",
@@ -56,6 +57,9 @@ __all__ = [
     "compare_to_prediction",
     "find_features",
     "interpret",
+    "ModelBand",
+    "model_band",
+    "share_inside",
     "is_wav_file",
     "load_measurement",
     "match_features",
@@ -908,3 +912,90 @@ def compare_measurements(first, second, *, band_hz=DEFAULT_BAND_HZ, smoothing=DE
     shown = [Measurement(f, lv, n, sources=m.sources, resolution_hz=m.resolution_hz)
              for lv, n, m in ((a, names[0], first), (b, names[1], second))]
     return ComparisonReport(comp, matches, words, *shown, names)
+
+
+def share_inside(level_db, low_db, high_db, mask=None):
+    """Share (0..1) of the grid points where ``low_db <= level_db <= high_db``.
+
+    ``mask`` (bool, same shape) limits the count to those points, e.g. a comparison's
+    ``in_band``.
+    """
+    x = np.asarray(level_db, dtype=float)
+    inside = (x >= np.asarray(low_db, dtype=float)) & (x <= np.asarray(high_db, dtype=float))
+    if mask is not None:
+        inside = inside[np.asarray(mask, dtype=bool)]
+    return float(np.mean(inside)) if inside.size else math.nan
+
+
+@dataclass(frozen=True, eq=False)
+class ModelBand:
+    """The 10-90 % band of the predicted curve over drawn rooms, on a comparison's grid.
+
+    Attributes
+    ----------
+    freq_hz : ndarray (F,)
+    level_db_p10, level_db_p50, level_db_p90 : ndarray (F,)
+        Percentiles over the drawn rooms of the smoothed (and, in level-aligned mode,
+        aligned) predicted curve, dB.
+    n_samples, seed : int
+    inside_share : float
+        Share of the comparison band's grid points where the measured curve lies in the band.
+    """
+
+    freq_hz: np.ndarray
+    level_db_p10: np.ndarray
+    level_db_p50: np.ndarray
+    level_db_p90: np.ndarray
+    n_samples: int
+    seed: int
+    inside_share: float
+
+    def to_dict(self):
+        """JSON-ready keys (``model_db_p10``/``p50``/``p90`` on the comparison's frequencies)."""
+        return {"model_db_p10": self.level_db_p10.tolist(), "model_db_p50": self.level_db_p50.tolist(),
+                "model_db_p90": self.level_db_p90.tolist(), "model_band_samples": self.n_samples,
+                "model_band_seed": self.seed, "measured_inside_band_share": self.inside_share}
+
+
+def model_band(room, report, *, n_samples=DEFAULT_SAMPLES, seed=DEFAULT_SEED, method=DEFAULT_METHOD, **options):
+    """The predicted curve of a comparison over rooms drawn from ``room.uncertainty``.
+
+    Each drawn room (:func:`roommodes.analysis.uncertainty.ensemble_levels`, at the
+    report's speaker and microphone positions, drawn with them) gives the speaker's level
+    power-averaged over the positions, smoothed as the comparison smoothed its curves.
+    When the comparison aligned levels, each drawn curve is shifted so its power mean over
+    the alignment band matches the nominal predicted curve's (the band then shows the
+    uncertainty of the shape, as the comparison judges only the shape); with ``absolute``
+    the curves are left as they are.
+
+    Parameters
+    ----------
+    room : Room
+    report : ComparisonReport
+        From :func:`compare_to_prediction` with the same room; not for band data.
+    n_samples, seed : int
+    method : str
+        The solver; use the comparison's.
+    **options
+        Passed to the solver.
+
+    Returns
+    -------
+    ModelBand
+    """
+    if report.measured.band_fraction:
+        raise ValueError("a band of the model over drawn rooms needs a fine-resolution measurement (an impulse "
+                         "response or a frequency-response file), not band levels")
+    c = report.comparison
+    f = c.freq_hz
+    names = [s.name for s in room.layout.speakers]
+    k = names.index(report.channel)
+    lv = ensemble_levels(room, f, points_m=np.atleast_2d(report.positions_m), n_samples=n_samples, seed=seed,
+                         method=method, **options)[:, k]
+    curves = 10.0 * np.log10(np.mean(10.0 ** (lv / 10.0), axis=1))
+    curves = np.array([smooth_db(f, cv, c.smoothing) for cv in curves])
+    if c.align_band_hz is not None:
+        curves = np.array([cv + align_level(c.reference_db, cv, f, c.align_band_hz) for cv in curves])
+    p10, p50, p90 = np.percentile(curves, [10.0, 50.0, 90.0], axis=0)
+    return ModelBand(f, p10, p50, p90, int(curves.shape[0]), int(seed),
+                     share_inside(c.measured_db, p10, p90, c.in_band))

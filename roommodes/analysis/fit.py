@@ -31,11 +31,12 @@ from ..dsp.response import log_frequencies, smooth_db
 from ..model.room import WALL_MARGIN_M, WALLS, Surface
 from ..solvers import DEFAULT_METHOD
 from .levels import speaker_levels
+from .uncertainty import DEFAULT_SAMPLES, DEFAULT_SEED, ensemble_levels
 
 __all__ = [
     "ABSORPTION_GROUPS", "DEFAULT_POINTS_PER_OCTAVE", "EffectiveSize", "FitParameter", "FitResult", "FitTarget",
     "effective_size", "estimate_effective_size", "fit_error", "fit_room", "follow_walls", "follow_walls_subs",
-    "narrow_uncertainty"]
+    "narrow_uncertainty", "before_band"]
 
 #: Absorption groupings: name -> tuple of surface groups.
 ABSORPTION_GROUPS = {
@@ -799,3 +800,49 @@ def estimate_effective_size(room, targets, **options):
     """
     result = fit_room(room, targets, **options)
     return effective_size(result, room), result
+
+
+def before_band(room, result, targets, *, smoothing=12, absolute=False, method=DEFAULT_METHOD, cutoff_factor=2.0,
+                band_hz=(20.0, 200.0), n_samples=DEFAULT_SAMPLES, seed=DEFAULT_SEED, uncertainty=None):
+    """10th, 50th and 90th percentiles of the fit's 'before' curves over rooms drawn from ``room.uncertainty``.
+
+    Each drawn room (:func:`roommodes.analysis.uncertainty.ensemble_levels`, speakers and
+    microphone positions drawn with it) gives every target's predicted level on the fit's
+    grid, smoothed as the fit smooths and, unless ``absolute``, shifted by the fit's own
+    alignment (minus the mean dB difference to the smoothed measurement), as the fit's
+    'before' curve is.
+
+    Parameters
+    ----------
+    room : Room
+        The room file the fit started from.
+    result : FitResult
+        From :func:`fit_room` on ``room`` and ``targets``; not for band levels.
+    targets : sequence of FitTarget
+    smoothing, absolute, method, cutoff_factor, band_hz
+        As given to :func:`fit_room`.
+    n_samples, seed : int
+    uncertainty : Uncertainty, optional
+        Default ``room.uncertainty``.
+
+    Returns
+    -------
+    ndarray (3, T, F)
+        The percentiles (10, 50, 90) per target on ``result.freq_hz``, dB.
+    """
+    if any(t.band_fraction for t in targets):
+        raise ValueError("a band of the model over drawn rooms needs fine-resolution measurements (impulse "
+                         "responses or frequency-response files), not band levels")
+    f = np.asarray(result.freq_hz, dtype=float)
+    names = [s.name for s in room.layout.speakers]
+    pts = np.array([t.position_m for t in targets], dtype=float)
+    opts = {"cutoff_hz": float(cutoff_factor) * float(band_hz[1])} if method == "modal" else {}
+    lv = ensemble_levels(room, f, points_m=pts, n_samples=n_samples, seed=seed, method=method,
+                         uncertainty=uncertainty, **opts)
+    curves = np.empty((lv.shape[0], len(targets), f.size))
+    for k, t in enumerate(targets):
+        s = names.index(t.channel)
+        for i in range(lv.shape[0]):
+            cv = smooth_db(f, lv[i, s, k], smoothing)
+            curves[i, k] = cv if absolute else cv - np.mean(cv - result.measured_db[k])
+    return np.percentile(curves, [10.0, 50.0, 90.0], axis=0)

@@ -23,10 +23,12 @@ from ..analysis.compare import (
     compare_measurements,
     compare_to_prediction,
     is_wav_file,
+    model_band,
+    share_inside,
     speaker_by_name,
 )
 from ..analysis.fit import DEFAULT_POINTS_PER_OCTAVE as FIT_POINTS_PER_OCTAVE
-from ..analysis.fit import effective_size, fit_room
+from ..analysis.fit import before_band, effective_size, fit_room
 from ..dsp.bands import band_centres
 from ..dsp.response import log_frequencies
 from ..io.files import JSON_FILE_BYTES, InputFileError, read_regular
@@ -68,7 +70,11 @@ from ._util import (
     method_option,
     protect_inputs,
     room_inputs,
+    uncertainty_options,
+    uncertainty_text,
 )
+
+COMPARE_SAMPLES = 100  # see the --samples help of `compare`
 
 __all__ = ["CAUTIONS", "COMMANDS", "GUIDANCE", "bands", "compare", "decay", "fit", "ir", "noise", "sweep"]
 
@@ -574,10 +580,13 @@ def _print_features(matches, names):
 @click.option("--force", is_flag=True, help="Overwrite an existing figure.")
 @mic_cal_option
 @spl_ref_option
+@uncertainty_options(samples=COMPARE_SAMPLES, samples_note=(
+    "100 keeps the 10th and 90th percentiles steady to a fraction of a dB while one exact solve per drawn "
+    "room stays quick at the comparison's grid."))
 @json_option
 @guard
 def compare(files, against, channel, at, wav_channel, window_s, band, align_band, absolute, smoothing, method,
-            plot_path, force, as_json, mic_cal, spl_ref):
+            plot_path, force, as_json, mic_cal, spl_ref, uncertainty, samples, seed):
     """Compare measurements with the prediction, or two measurements with each other.
 
     \b
@@ -596,6 +605,8 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
     if room_file is None and not against:
         fail("give a room file and measurements (compare ROOM.toml MEAS... --channel NAME), or measurements "
              "and --against MEAS to compare two measurements")
+    if uncertainty and room_file is None:
+        fail("--uncertainty draws rooms from a room file's [uncertainty]; give a room file (compare ROOM.toml MEAS...)")
     if room_file is not None and against:
         fail("--against compares two measurements without a room file; leave out either the room file or --against")
     if not files:
@@ -617,6 +628,7 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
     meas = load_measurements(files, wav_channel, window_s, grid, mic_cal, ref)
     first = average_measurements(meas, label=files[0].name if len(files) == 1 else f"mean of {len(files)}")
     kw = {"band_hz": (lo, hi), "smoothing": smoothing, "align_band_hz": abd, "absolute": absolute}
+    mband = None
     if room is not None:
         # the prediction is averaged over the files' positions with the same weights; the effective
         # dimensions come from each file at its own position, fitted as `fit` does
@@ -626,6 +638,11 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
             targets, _ = load_fit_targets([(name, p, fp) for fp, p in zip(files, pos)], wav_channel, window_s,
                                           (lo, hi), FIT_POINTS_PER_OCTAVE, mic_cal, ref)
         rep = compare_to_prediction(room, first, channel, pos, method=method, fit_targets=targets, **kw)
+        if uncertainty:
+            if first.band_fraction:
+                fail("--uncertainty needs fine-resolution measurements (impulse responses or frequency-response "
+                     "files), not band levels; leave out --uncertainty")
+            mband = model_band(room, rep, n_samples=samples, seed=seed, method=method)
     else:
         second_list = load_measurements(against, wav_channel, window_s, grid, mic_cal, ref)
         second = average_measurements(second_list, label=against[0].name if len(against) == 1
@@ -643,6 +660,8 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
         if room is not None:
             obj.update({"room": room.name, "channel": rep.channel, "positions_m": rep.positions_m,
                         "predicted_db": c.reference_db, "method": method})
+            if mband is not None:
+                obj.update(mband.to_dict())
         else:
             obj["against"] = [str(a) for a in against]
         dump_json(obj)
@@ -676,6 +695,10 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
         click.echo(f"Error over {lo:g}-{hi:g} Hz: median |difference| {c.median_abs_diff_db:.2f} dB, "
                    f"90th percentile {c.p90_abs_diff_db:.2f} dB, rms {c.rms_diff_db:.2f} dB, "
                    f"correlation {c.correlation:.2f}")
+        if mband is not None:
+            click.echo(f"Model over {mband.n_samples} drawn rooms (seed {mband.seed}; {uncertainty_text(room)}): "
+                       f"the measurement lies inside the model's 10-90 % band at {mband.inside_share:.0%} of the "
+                       f"frequencies in {lo:g}-{hi:g} Hz")
         click.echo("")
         _print_features(rep.matches, ("measured", "predicted") if room is not None else ("first", "second"))
         click.echo("")
@@ -685,7 +708,7 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
 
         title = (f"{room.name}: {rep.channel}, measured against predicted" if room is not None
                  else f"{names[0]} against {names[1]}")
-        plot_comparison(rep, spread_db=spread, title=title, path=plot_path)
+        plot_comparison(rep, spread_db=spread, title=title, path=plot_path, model_band=mband)
         echo_err(f"wrote {plot_path}")
     if room is not None:
         echo_err(MODEL_CAUTION)
@@ -721,11 +744,14 @@ def compare(files, against, channel, at, wav_channel, window_s, band, align_band
 @method_option
 @mic_cal_option
 @spl_ref_option
+@uncertainty_options(samples=COMPARE_SAMPLES, samples_note=(
+    "100 keeps the 10th and 90th percentiles of the 'before' curve steady to a fraction of a dB for one exact "
+    "solve per drawn room."))
 @json_option
 @guard
 def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band, smoothing, points_per_octave, method,
         absorption, size_tolerance, position_tolerance, no_lowcut, absolute, regularization, plot_path, force,
-        as_json, mic_cal, spl_ref):
+        as_json, mic_cal, spl_ref, uncertainty, samples, seed):
     """Calibrate the room file to measurements and write the calibrated room file.
 
     \b
@@ -774,6 +800,13 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
                        position_tolerance_m=position_tolerance, fit_lowcut=not no_lowcut, absolute=absolute,
                        regularization_db=regularization, method=method, progress=progress)
     elapsed = time.perf_counter() - t0
+    bband = None
+    if uncertainty:
+        if any(t.band_fraction for t in targets):
+            fail("--uncertainty needs fine-resolution measurements (impulse responses or frequency-response files), "
+                 "not band levels; leave out --uncertainty")
+        bband = before_band(room, res, targets, smoothing=smoothing, absolute=absolute, method=method,
+                            band_hz=(lo, hi), n_samples=samples, seed=seed)
     eff = effective_size(res, room)
     comment = (f"Calibrated by roommodes {__version__} fit from {Path(room_file).name} and "
                f"{len(targets)} measurement(s): " + ", ".join(t.label for t in targets) + "\n"
@@ -790,6 +823,10 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
         d["spl_reference"] = ref.to_dict() if ref else None
         d["targets"] = [{"label": t.label, "channel": t.channel, "position_m": t.position_m, "level_offset_db": o}
                         for t, o in zip(targets, res.level_offsets_db)]
+        if bband is not None:
+            d.update({"measured_inside_before_band_share": share_inside(res.measured_db, bband[0], bband[2]),
+                      "before_db_p10": bband[0], "before_db_p50": bband[1], "before_db_p90": bband[2],
+                      "before_band_samples": samples, "before_band_seed": seed})
         dump_json({"room": room.name, "output": str(outp), "elapsed_s": elapsed, "band_hz": [lo, hi],
                    "smoothing_octave_fraction": smoothing, **d})
     else:
@@ -815,6 +852,10 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
                 f"{nm} {v:.3f} m" for nm, v in zip(("length", "width", "height"), eff.size_m)))
         else:
             click.echo(f"Dimensions kept from the file: {eff.note}.")
+        if bband is not None:
+            click.echo(f"Model before the fit over {samples} drawn rooms (seed {seed}; {uncertainty_text(room)}): "
+                       f"the measurements lie inside its 10-90 % band at "
+                       f"{share_inside(res.measured_db, bband[0], bband[2]):.0%} of the fit's frequencies")
         eb, ea = res.error_before, res.error_after
         click.echo(f"Error over the fitted measurements: median |difference| {eb['median_abs_db']:.2f} -> "
                    f"{ea['median_abs_db']:.2f} dB, 90th percentile {eb['p90_abs_db']:.2f} -> {ea['p90_abs_db']:.2f} dB")
@@ -836,7 +877,8 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
         click.echo(f"Next: roommodes predict {outp.name}   and   roommodes compare {outp.name} MEAS... --channel NAME")
     if plot_path:
 
-        plot_fit(res, title=f"{room.name}: fit to measurements", path=plot_path)
+        plot_fit(res, title=f"{room.name}: fit to measurements", path=plot_path, before_band_db=bband,
+                 n_rooms=samples if bband is not None else None)
         echo_err(f"wrote {plot_path}")
     echo_err(MODEL_CAUTION)
 

@@ -15,7 +15,7 @@ from .plots import PALETTE, new_figure, save_figure, style_frequency_axis
 __all__ = ["plot_comparison", "plot_fit", "plot_impulse_response", "plot_waterfall"]
 
 
-def plot_comparison(report, spread_db=None, title=None, path=None):
+def plot_comparison(report, spread_db=None, title=None, path=None, model_band=None):
     """Overlay of the two curves (top) and their difference (bottom).
 
     Parameters
@@ -27,6 +27,8 @@ def plot_comparison(report, spread_db=None, title=None, path=None):
     title : str, optional
     path : str or Path, optional
         Where to save the figure (PNG/SVG/PDF by extension).
+    model_band : roommodes.analysis.compare.ModelBand, optional
+        The predicted curve's 10-90 % band over drawn rooms, shaded around the second curve.
 
     Returns
     -------
@@ -39,6 +41,9 @@ def plot_comparison(report, spread_db=None, title=None, path=None):
     if spread_db is not None:
         ax.fill_between(f, c.measured_db - spread_db, c.measured_db + spread_db, color=PALETTE[0], alpha=0.18,
                         lw=0, label="spread across positions (+-1 SD)")
+    if model_band is not None:
+        ax.fill_between(f, model_band.level_db_p10, model_band.level_db_p90, color=PALETTE[1], alpha=0.18, lw=0,
+                        label=f"model: 10-90 % of {model_band.n_samples} drawn rooms")
     ax.plot(f, c.measured_db, color=PALETTE[0], lw=1.6, label=a_name)
     ax.plot(f, c.reference_db, color=PALETTE[1], lw=1.4, ls="--", label=b_name)
     for m in report.matches:
@@ -70,7 +75,7 @@ def plot_comparison(report, spread_db=None, title=None, path=None):
     return fig
 
 
-def plot_fit(result, title=None, path=None, max_panels=6):
+def plot_fit(result, title=None, path=None, max_panels=6, before_band_db=None, n_rooms=None):
     """Measured, predicted before and predicted after the fit, one panel per measurement.
 
     Parameters
@@ -80,6 +85,11 @@ def plot_fit(result, title=None, path=None, max_panels=6):
     path : str or Path, optional
     max_panels : int
         At most this many measurements are drawn (the first ones).
+    before_band_db : ndarray (3, T, F), optional
+        10th, 50th and 90th percentiles of the 'before' curve over drawn rooms
+        (:func:`roommodes.analysis.fit.before_band`); the 10-90 % range is shaded.
+    n_rooms : int, optional
+        How many rooms were drawn, for the legend.
 
     Returns
     -------
@@ -95,6 +105,9 @@ def plot_fit(result, title=None, path=None, max_panels=6):
         if k >= n:
             ax.set_visible(False)
             continue
+        if before_band_db is not None:
+            ax.fill_between(f, before_band_db[0][k], before_band_db[2][k], color=PALETTE[1], alpha=0.18, lw=0,
+                            label=f"model before: 10-90 % of {n_rooms} drawn rooms")
         ax.plot(f, result.measured_db[k], color="0.1", lw=1.6, label="measured")
         ax.plot(f, result.before_db[k], color=PALETTE[1], lw=1.1, ls="--", label="model before")
         ax.plot(f, result.after_db[k], color=PALETTE[0], lw=1.3, label="model after")
