@@ -453,7 +453,7 @@ def explain(room_file, channels, threshold, band, freq_range, points_per_octave,
             fail(str(exc))
     if as_json:
         note = subs_json(room, "this explanation")
-        extra = {**ub.to_dict(), "uncertainty": {"samples": ub.n_samples, "seed": ub.seed}} if ub else {}
+        extra = {**ub.to_dict(), "uncertainty": {"samples": ub.n_samples, "seed": ub.seed, "method": ub.method}} if ub else {}
         dump_json({"room": room.name, **e.to_dict(), **extra, **({"subs": note} if note else {})})
     else:
         click.echo(f"Why {n1} and {n2} differ at the seat, '{room.name}'")

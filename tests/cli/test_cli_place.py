@@ -227,6 +227,7 @@ def test_explain_uncertainty_bands_on_plot_and_json(tmp_path, monkeypatch):
     for k, q in enumerate(("p10", "p50", "p90")):
         np.testing.assert_allclose(data[f"difference_db_{q}"], diff_p[k], atol=1e-6)
     assert (diff_p[2] - diff_p[0]).max() > 0.1, "the drawn rooms spread the difference"
+    assert data["uncertainty"] == {"samples": 6, "seed": 11, "method": data["method"]}
     ax1, ax2 = figs[0].axes[:2]
     polys1 = [c for c in ax1.collections if isinstance(c, mcoll.PolyCollection) and "drawn rooms" in c.get_label()]
     polys2 = [c for c in ax2.collections if isinstance(c, mcoll.PolyCollection) and "drawn rooms" in c.get_label()]
