@@ -52,7 +52,7 @@ from .predict import boundary_notches, room_schroeder_frequency, usable_band
 #: Modes read for the causes: up to this factor times the top of the band.
 _CAUSE_CUTOFF_FACTOR = 1.5
 
-__all__ = ["Cause", "Move", "Region", "Explanation", "explain", "modal_decomposition"]
+__all__ = ["Cause", "Move", "Region", "Explanation", "ExplainBands", "explain", "explain_bands", "modal_decomposition"]
 
 DEFAULT_THRESHOLD_DB = 3.0
 #: Moves tried for each speaker along each axis, both ways, m.
@@ -528,3 +528,74 @@ def _sentence(region, names):
               f"largest difference here from {m.region_before_db:.1f} to {m.region_after_db:.1f} dB (whole-band RMS "
               f"difference {m.band_before_db:.1f} -> {m.band_after_db:.1f} dB).")
     return s
+
+
+@dataclass(frozen=True, eq=False)
+class ExplainBands:
+    """10-50-90 % bands of the two channels and of their difference over drawn rooms.
+
+    Every drawn room's levels are smoothed like the explanation's curves (1/N octave,
+    power), the difference is taken per drawn room, then the percentiles.
+
+    Attributes
+    ----------
+    freq_hz : ndarray (F,)
+    names : (str, str)
+    level_db_p10, level_db_p50, level_db_p90 : ndarray (2, F)
+    difference_db_p10, difference_db_p50, difference_db_p90 : ndarray (F,)
+        First minus second, dB.
+    n_samples, seed : int
+    smoothing : int
+    method : str
+    """
+
+    freq_hz: np.ndarray
+    names: tuple
+    level_db_p10: np.ndarray
+    level_db_p50: np.ndarray
+    level_db_p90: np.ndarray
+    difference_db_p10: np.ndarray
+    difference_db_p50: np.ndarray
+    difference_db_p90: np.ndarray
+    n_samples: int
+    seed: int
+    smoothing: int
+    method: str
+
+    def to_dict(self):
+        """JSON-ready: ``difference_db_p10/p50/p90`` on the explanation's ``frequencies_hz``."""
+        return {"difference_db_p10": self.difference_db_p10, "difference_db_p50": self.difference_db_p50,
+                "difference_db_p90": self.difference_db_p90}
+
+
+def explain_bands(room, explanation, layout=None, *, n_samples, seed, uncertainty=None):
+    """The explanation's two channels and their difference in rooms drawn from the uncertainty.
+
+    Parameters
+    ----------
+    room : Room
+    explanation : Explanation
+        Gives the channels, frequencies, smoothing and solver.
+    layout : Layout, optional
+        Default ``room.layout`` (the one the explanation was made on).
+    n_samples, seed : int
+    uncertainty : Uncertainty, optional
+        Default ``room.uncertainty``.
+
+    Returns
+    -------
+    ExplainBands
+    """
+    from .uncertainty import PERCENTILES, ensemble_levels
+
+    e = explanation
+    layout = room.layout if layout is None else layout
+    names = [s.name for s in layout.speakers]
+    cols = [names.index(n) for n in e.names]
+    lv = ensemble_levels(room, e.freq_hz, layout, n_samples=n_samples, seed=seed, uncertainty=uncertainty,
+                         method=e.method)[:, cols, 0, :]  # (N, 2, F) at the main seat
+    sm = np.stack([[smooth_db(e.freq_hz, lv[i, c], e.smoothing) for c in range(2)] for i in range(lv.shape[0])])
+    lp = np.percentile(sm, PERCENTILES, axis=0)
+    dp = np.percentile(sm[:, 0] - sm[:, 1], PERCENTILES, axis=0)
+    return ExplainBands(e.freq_hz, tuple(e.names), lp[0], lp[1], lp[2], dp[0], dp[1], dp[2], int(lv.shape[0]),
+                        int(seed), int(e.smoothing), e.method)

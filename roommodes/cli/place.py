@@ -65,6 +65,9 @@ def _parse_weights(text):
 
 
 #: Printed with every placement: where the speakers go, something has to hold them.
+#: Default number of rooms ``explain --uncertainty`` draws.
+EXPLAIN_SAMPLES = 100
+
 MOUNTING_CAUTION = (
     "Safety: speakers on stands, shelves, desks or walls must be secured as their makers and your local "
     "building codes require; a heavy box on a tall stand or a wall bracket can fall (docs/cautions.md)."
@@ -401,10 +404,12 @@ def _place_plot(room, space, res, path, best=None, score_spread=None, n_rooms=No
               help="Write the figure: both channels and the mono sum, the difference with its regions.")
 @click.option("--force", is_flag=True, help="Overwrite an existing plot file.")
 @method_option
+@uncertainty_options(samples=EXPLAIN_SAMPLES, samples_note=(
+    "Modest because each drawn room is one solver call; raise it for steadier band edges."))
 @json_option
 @units_option
 def explain(room_file, channels, threshold, band, freq_range, points_per_octave, smoothing, plot_path, force,
-            method, as_json):
+            method, uncertainty, samples, seed, as_json):
     """Explain why the two channels differ at the seat, and what to move.
 
     Shows each channel's level at the seat, their difference (first minus second) and the
@@ -438,9 +443,18 @@ def explain(room_file, channels, threshold, band, freq_range, points_per_octave,
     except ValueError as exc:
         fail(str(exc))
     n1, n2 = e.names
+    ub = None
+    if uncertainty:
+        from ..analysis.explain import explain_bands
+
+        try:
+            ub = explain_bands(room, e, n_samples=samples, seed=seed)
+        except ValueError as exc:
+            fail(str(exc))
     if as_json:
         note = subs_json(room, "this explanation")
-        dump_json({"room": room.name, **e.to_dict(), **({"subs": note} if note else {})})
+        extra = {**ub.to_dict(), "uncertainty": {"samples": ub.n_samples, "seed": ub.seed, "method": ub.method}} if ub else {}
+        dump_json({"room": room.name, **e.to_dict(), **extra, **({"subs": note} if note else {})})
     else:
         click.echo(f"Why {n1} and {n2} differ at the seat, '{room.name}'")
         click.echo(f"  {n1}: {walls_text(room, e.positions_m[0])}")
@@ -452,14 +466,20 @@ def explain(room_file, channels, threshold, band, freq_range, points_per_octave,
         sm = f"1/{e.smoothing}-octave smoothed" if e.smoothing else "unsmoothed"
         click.echo("")
         click.echo(f"Level at the seat (dB re free field at 1 m, {sm}); difference = {n1} - {n2}; mono = both in phase")
-        click.echo(f"  {'Hz':>5}  {n1:>7}  {n2:>7}  {'diff':>6}  {'mono':>6}")
+        if ub is not None:
+            click.echo(f"Uncertainty: {ub.n_samples} rooms drawn (seed {ub.seed}); {uncertainty_text(room)}; "
+                       "'diff 10-90 %' is the difference's band over them.")
+        click.echo(f"  {'Hz':>5}  {n1:>7}  {n2:>7}  {'diff':>6}  {'mono':>6}"
+                   + (f"  {'diff 10-90 %':>13}" if ub is not None else ""))
         for fc in (20, 25, 31.5, 40, 50, 63, 80, 100, 125, 160, 200, 250):
             if e.freq_hz[0] <= fc <= e.freq_hz[-1]:
                 i = int(np.argmin(np.abs(np.log(e.freq_hz / fc))))
                 mark = "  *" if abs(e.difference_smoothed_db[i]) >= e.threshold_db and \
                     e.band_hz[0] <= e.freq_hz[i] <= e.band_hz[1] else ""
                 click.echo(f"  {fc:>5g}  {e.smoothed_db[0, i]:7.1f}  {e.smoothed_db[1, i]:7.1f}  "
-                           f"{e.difference_smoothed_db[i]:+6.1f}  {e.mono_smoothed_db[i]:6.1f}{mark}")
+                           f"{e.difference_smoothed_db[i]:+6.1f}  {e.mono_smoothed_db[i]:6.1f}"
+                           + (f"  {ub.difference_db_p10[i]:+5.1f}..{ub.difference_db_p90[i]:+5.1f}"
+                              if ub is not None else "") + mark)
         click.echo(f"RMS difference over {e.band_hz[0]:g}-{e.band_hz[1]:g} Hz: {e.band_mismatch_db:.1f} dB")
         click.echo("")
         if not e.regions:
@@ -491,5 +511,5 @@ def explain(room_file, channels, threshold, band, freq_range, points_per_octave,
     if plot_path:
         from ..present.plots_place import plot_explain
 
-        plot_explain(e, title=f"{room.name}: {n1} and {n2} at the seat", path=plot_path)
+        plot_explain(e, title=f"{room.name}: {n1} and {n2} at the seat", path=plot_path, bands=ub)
         echo_err(f"wrote {plot_path}")

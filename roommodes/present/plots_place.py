@@ -269,8 +269,12 @@ def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map
     return fig
 
 
-def plot_explain(explanation, title=None, path=None):
-    """Both channels and the mono sum (top); their difference with the regions (bottom)."""
+def plot_explain(explanation, title=None, path=None, bands=None):
+    """Both channels and the mono sum (top); their difference with the regions (bottom).
+
+    ``bands`` (an :class:`~roommodes.analysis.explain.ExplainBands`) shades the 10-90 % band
+    of each channel and of the difference over the drawn rooms.
+    """
     e = explanation
     fig, (ax1, ax2) = new_figure(9.0, 7.0, 2, 1, sharex=True)
     f = e.freq_hz
@@ -278,16 +282,24 @@ def plot_explain(explanation, title=None, path=None):
         ax1.plot(f, e.level_db[i], color=PALETTE[i], lw=0.8, alpha=0.45)
         ax1.plot(f, e.smoothed_db[i], color=PALETTE[i], lw=1.6, label=f"{name} (1/{e.smoothing}-octave)"
                  if e.smoothing else name)
+        if bands is not None:
+            ax1.fill_between(bands.freq_hz, bands.level_db_p10[i], bands.level_db_p90[i], color=PALETTE[i],
+                             alpha=0.18, lw=0, label=f"{name}: 10-90 % of {bands.n_samples} drawn rooms")
     ax1.plot(f, e.mono_smoothed_db, color="0.1", lw=1.4, ls="--", label="mono sum (both in phase)")
     shade_invalid(ax1, e.schroeder_hz, f[-1])
     style_frequency_axis(ax1, f[0], f[-1])
     lv = np.concatenate([e.smoothed_db.ravel(), e.mono_smoothed_db])
+    if bands is not None:
+        lv = np.concatenate([lv, bands.level_db_p90.ravel()])
     ax1.set_ylim(np.floor(np.percentile(lv, 1) / 5) * 5 - 5, np.ceil(lv.max() / 5) * 5 + 5)
     ax1.set_ylabel("Level at seat (dB re free field at 1 m)")
     ax1.legend(fontsize=8, loc="lower center", ncol=3)
     ax1.set_title(title or f"{e.names[0]} and {e.names[1]} at the seat", fontsize=11)
     ax2.plot(f, e.difference_db, color="0.6", lw=0.8, label="difference (unsmoothed)")
     ax2.plot(f, e.difference_smoothed_db, color=PALETTE[2], lw=1.6, label=f"{e.names[0]} - {e.names[1]}")
+    if bands is not None:
+        ax2.fill_between(bands.freq_hz, bands.difference_db_p10, bands.difference_db_p90, color=PALETTE[2],
+                         alpha=0.2, lw=0, label=f"10-90 % of {bands.n_samples} drawn rooms")
     for sign in (1, -1):
         ax2.axhline(sign * e.threshold_db, color="0.4", lw=0.8, ls=":")
     for k, r in enumerate(e.regions, 1):
@@ -300,6 +312,8 @@ def plot_explain(explanation, title=None, path=None):
                      color="0.35", ha="center", va="top")
     style_frequency_axis(ax2, f[0], f[-1])
     d = e.difference_smoothed_db
+    if bands is not None:
+        d = np.concatenate([d, bands.difference_db_p10, bands.difference_db_p90])
     lim = max(6.0, np.ceil(np.max(np.abs(d)) / 3) * 3 + 1)
     ax2.set_ylim(-lim, lim)
     ax2.set_ylabel("Difference (dB)")

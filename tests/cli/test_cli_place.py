@@ -190,3 +190,65 @@ def test_explain_bad_input_one_line_exit_2(args, message):
     res = run("explain", DEMO, *args)
     assert res.exit_code == 2 and message in res.stderr
     assert res.stderr.startswith("roommodes: error:") and "Traceback" not in res.stderr
+
+
+def _band_edges(coll, freq_hz):
+    """(lower, upper) y of a fill_between band at each frequency, read back from its polygon."""
+    v = coll.get_paths()[0].vertices
+    lo = np.array([v[np.isclose(v[:, 0], x, rtol=1e-9), 1].min() for x in freq_hz])
+    hi = np.array([v[np.isclose(v[:, 0], x, rtol=1e-9), 1].max() for x in freq_hz])
+    return lo, hi
+
+
+def test_explain_uncertainty_bands_on_plot_and_json(tmp_path, monkeypatch):
+    import matplotlib.collections as mcoll
+
+    from roommodes.analysis.uncertainty import ensemble_levels
+    from roommodes.dsp.response import smooth_db
+    from roommodes.present import plots_place
+
+    figs = []
+    real = plots_place.plot_explain
+    monkeypatch.setattr(plots_place, "plot_explain", lambda *a, **k: figs.append(real(*a, **k)) or figs[-1])
+    plot = tmp_path / "explain.png"
+    res = run("explain", DEMO, "--json", "--plot", plot, "--uncertainty", "--samples", "6", "--seed", "11")
+    assert res.exit_code == 0, res.stderr
+    data = json.loads(res.stdout)
+    f = np.array(data["frequencies_hz"])
+    # recomputed here: both channels at the main seat in the same drawn rooms, smoothed like the curves
+    room = load_room(DEMO)
+    names = [s.name for s in room.layout.speakers]
+    cols = [names.index(n) for n in data["channels"]]
+    lv = ensemble_levels(room, f, n_samples=6, seed=11, method=data["method"])[:, cols, 0, :]
+    sm = np.array([[smooth_db(f, lv[i, c], data["smoothing_octave_fraction"]) for c in range(2)]
+                   for i in range(6)])
+    lev_p = np.percentile(sm, (10, 50, 90), axis=0)
+    diff_p = np.percentile(sm[:, 0] - sm[:, 1], (10, 50, 90), axis=0)
+    for k, q in enumerate(("p10", "p50", "p90")):
+        np.testing.assert_allclose(data[f"difference_db_{q}"], diff_p[k], atol=1e-6)
+    assert (diff_p[2] - diff_p[0]).max() > 0.1, "the drawn rooms spread the difference"
+    assert data["uncertainty"] == {"samples": 6, "seed": 11, "method": data["method"]}
+    ax1, ax2 = figs[0].axes[:2]
+    polys1 = [c for c in ax1.collections if isinstance(c, mcoll.PolyCollection) and "drawn rooms" in c.get_label()]
+    polys2 = [c for c in ax2.collections if isinstance(c, mcoll.PolyCollection) and "drawn rooms" in c.get_label()]
+    assert len(polys1) == 2 and len(polys2) == 1
+    for c, coll in enumerate(polys1):
+        lo, hi = _band_edges(coll, f)
+        np.testing.assert_allclose(lo, lev_p[0, c], atol=1e-6)
+        np.testing.assert_allclose(hi, lev_p[2, c], atol=1e-6)
+    lo, hi = _band_edges(polys2[0], f)
+    np.testing.assert_allclose(lo, diff_p[0], atol=1e-6)
+    np.testing.assert_allclose(hi, diff_p[2], atol=1e-6)
+
+
+def test_explain_without_uncertainty_adds_nothing(tmp_path, monkeypatch):
+    from roommodes.present import plots_place
+
+    figs = []
+    real = plots_place.plot_explain
+    monkeypatch.setattr(plots_place, "plot_explain", lambda *a, **k: figs.append(real(*a, **k)) or figs[-1])
+    res = run("explain", DEMO, "--json", "--plot", tmp_path / "e.png")
+    assert res.exit_code == 0, res.stderr
+    data = json.loads(res.stdout)
+    assert not any(k.startswith("difference_db_p") for k in data) and "uncertainty" not in data
+    assert not any("drawn rooms" in (c.get_label() or "") for ax in figs[0].axes for c in ax.collections)
