@@ -34,6 +34,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..dsp.response import level_db, log_frequencies
+from ..model.modes import mode_frequencies
 from ..model.room import WALL_MARGIN_M, Seat, Uncertainty
 from ..solvers import DEFAULT_METHOD
 from .levels import speaker_levels
@@ -137,6 +138,28 @@ def sample_rooms(room, n_samples=DEFAULT_SAMPLES, seed=DEFAULT_SEED, uncertainty
     """
     n = _check_count(n_samples)
     return tuple(draw_room(room, g, uncertainty)[0] for g in _generators(seed, n))
+
+
+def mode_frequency_ranges(room, indices, n_samples=DEFAULT_SAMPLES, seed=DEFAULT_SEED):
+    """10th and 90th percentile of each mode's frequency over rooms drawn from ``room``.
+
+    Only the size and the air temperature of a drawn room move a mode's frequency.
+
+    Parameters
+    ----------
+    room : Room
+    indices : array (N, 3)
+        The modes' index triples, kept the same in every drawn room.
+    n_samples, seed : int
+        As :func:`sample_rooms`.
+
+    Returns
+    -------
+    (freq_hz_p10, freq_hz_p90) : two arrays (N,)
+    """
+    drawn = sample_rooms(room, n_samples, seed)
+    f = np.array([mode_frequencies(indices, d.size_m, d.speed_of_sound) for d in drawn]).reshape(len(drawn), -1)
+    return np.percentile(f, 10, axis=0), np.percentile(f, 90, axis=0)
 
 
 def ensemble_levels(room, freq_hz, layout=None, points_m=None, *, n_samples=DEFAULT_SAMPLES, seed=DEFAULT_SEED,

@@ -11,7 +11,7 @@ import numpy as np
 from ..analysis.predict import band_figures, predict_seats, response_features, usable_band
 from ..analysis.predict import predict as run_predict
 from ..analysis.summary import room_summary
-from ..analysis.uncertainty import predict_bands, system_levels
+from ..analysis.uncertainty import mode_frequency_ranges, predict_bands, system_levels
 from ..dsp.response import log_frequencies
 from ..model.criteria import note_name
 from ..model.modes import room_modes
@@ -45,14 +45,16 @@ from ._util import (
               help="List the modes in this range, Hz.")
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write a chart of the modes (PNG/SVG).")
 @click.option("--force", is_flag=True, help="Overwrite an existing plot file.")
+@uncertainty_options
 @json_option
-def modes(room_file, freq_range, plot_path, force, as_json):
+def modes(room_file, freq_range, plot_path, force, uncertainty, samples, seed, as_json):
     """List the room's modes with decay times, and the room's summary figures.
 
     Modes: indices (nx, ny, nz) along length, width and height, frequency, kind
     (axial, tangential, oblique), nearest musical note, modal decay time T60 and
     half-power bandwidth from the surfaces' absorption. Summary: volume, area, Sabine and
     Eyring RT60 at 63/125/250 Hz, Schroeder frequency, and room-proportion checks.
+    With --uncertainty, each mode's 10-90 % frequency range over the drawn rooms.
     """
 
     lo, hi = parse_range(freq_range, allow_zero=True)
@@ -61,31 +63,41 @@ def modes(room_file, freq_range, plot_path, force, as_json):
     ms = room_modes(room, hi)
     sel = ms.freq_hz >= lo
     summ = room_summary(room)
+    p10 = p90 = None
+    if uncertainty:
+        p10, p90 = mode_frequency_ranges(room, ms.indices, samples, seed)
     if as_json:
+        rows = [
+            {"indices": ms.indices[i], "freq_hz": ms.freq_hz[i], "kind": ms.kind[i],
+             "note": note_name(ms.freq_hz[i]), "t60_s": ms.t60_s[i],
+             "decay_constant_per_s": ms.decay_constant[i], "bandwidth_hz": ms.bandwidth_hz[i]}
+            | ({"freq_hz_p10": p10[i], "freq_hz_p90": p90[i]} if uncertainty else {})
+            for i in np.flatnonzero(sel)]
         dump_json({
             "room": room.name, "size_m": room.size_m,
-            "modes": [
-                {"indices": ms.indices[i], "freq_hz": ms.freq_hz[i], "kind": ms.kind[i],
-                 "note": note_name(ms.freq_hz[i]), "t60_s": ms.t60_s[i],
-                 "decay_constant_per_s": ms.decay_constant[i], "bandwidth_hz": ms.bandwidth_hz[i]}
-                for i in np.flatnonzero(sel)],
+            "modes": rows,
             "summary": _summary_dict(summ),
-        })
+        } | ({"uncertainty": {"samples": samples, "seed": seed}} if uncertainty else {}))
     else:
         click.echo(f"Room modes of '{room.name}' ({room.size_m[0]:g} x {room.size_m[1]:g} x "
                    f"{room.size_m[2]:g} m, c = {room.speed_of_sound:.1f} m/s), {lo:g}-{hi:g} Hz")
-        click.echo(f"{'n (L,W,H)':>11}  {'freq Hz':>8}  {'kind':<10}  {'note':<10}  {'T60 s':>6}  {'B Hz':>5}")
+        if uncertainty:
+            click.echo(f"Frequency range: 10-90 % of {samples} drawn rooms (seed {seed}; {uncertainty_text(room)})")
+        click.echo(f"{'n (L,W,H)':>11}  {'freq Hz':>8}  {'kind':<10}  {'note':<10}  {'T60 s':>6}  {'B Hz':>5}"
+                   + (f"  {'10-90 % Hz':>13}" if uncertainty else ""))
         for i in np.flatnonzero(sel):
             n = "(" + ",".join(str(v) for v in ms.indices[i]) + ")"
             click.echo(f"{n:>11}  {ms.freq_hz[i]:8.1f}  {ms.kind[i]:<10}  {note_name(ms.freq_hz[i]):<10}  "
-                       f"{ms.t60_s[i]:6.2f}  {ms.bandwidth_hz[i]:5.1f}")
+                       f"{ms.t60_s[i]:6.2f}  {ms.bandwidth_hz[i]:5.1f}"
+                       + (f"  {p10[i]:6.1f}-{p90[i]:.1f}" if uncertainty else ""))
         click.echo(f"{int(sel.sum())} modes: {int(np.sum(sel & (ms.order == 1)))} axial, "
                    f"{int(np.sum(sel & (ms.order == 2)))} tangential, {int(np.sum(sel & (ms.order == 3)))} oblique")
         click.echo("")
         print_summary(summ)
     if plot_path:
 
-        plot_modes(ms, hi, title=f"Room modes: {room.name}", path=plot_path)
+        ranges = (p10, p90, samples) if uncertainty else None
+        plot_modes(ms, hi, title=f"Room modes: {room.name}", path=plot_path, freq_ranges=ranges)
         echo_err(f"wrote {plot_path}")
 
 

@@ -269,14 +269,23 @@ def _system_panel(ax, sp, schroeder_hz, drawn_db=None):
     ax.legend(fontsize=8, loc="lower center", ncols=2)
 
 
-def plot_modes(modes, fmax, title=None, path=None):
-    """Mode frequencies as a stem chart by kind, with each mode's T60."""
+def plot_modes(modes, fmax, title=None, path=None, freq_ranges=None):
+    """Mode frequencies as a stem chart by kind, with each mode's T60.
+
+    ``freq_ranges``: optional ``(freq_hz_p10, freq_hz_p90, n_rooms)``, each mode's 10-90 %
+    frequency range over drawn rooms, drawn as a horizontal bar across the top of its stem.
+    """
     fig, ax = new_figure(8.0, 3.6)
     names = ("axial", "tangential", "oblique")
     for order, name in zip((1, 2, 3), names):
         sel = (modes.order == order) & (modes.freq_hz <= fmax)
         if sel.any():
             ax.vlines(modes.freq_hz[sel], 0, modes.t60_s[sel], color=PALETTE[order - 1], lw=1.6, label=name)
+            if freq_ranges is not None:
+                ax.hlines(modes.t60_s[sel], freq_ranges[0][sel], freq_ranges[1][sel], color=PALETTE[order - 1],
+                          lw=3.0, alpha=0.6)
+    if freq_ranges is not None:
+        ax.plot([], [], color="0.4", lw=3.0, alpha=0.6, label=f"10-90 % of {freq_ranges[2]} drawn rooms")
     style_frequency_axis(ax, max(15.0, modes.freq_hz.min() * 0.8), fmax)
     ax.set_ylabel("Modal decay time T60 (s)")
     ax.set_ylim(bottom=0)
