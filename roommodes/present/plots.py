@@ -282,10 +282,14 @@ def plot_modes(modes, fmax, title=None, path=None, freq_ranges=None):
         if sel.any():
             ax.vlines(modes.freq_hz[sel], 0, modes.t60_s[sel], color=PALETTE[order - 1], lw=1.6, label=name)
             if freq_ranges is not None:
+                ends = np.concatenate([freq_ranges[0][sel], freq_ranges[1][sel]])
                 ax.hlines(modes.t60_s[sel], freq_ranges[0][sel], freq_ranges[1][sel], color=PALETTE[order - 1],
                           lw=3.0, alpha=0.6)
+                ax.plot(ends, np.tile(modes.t60_s[sel], 2), ls="none", marker="|", ms=7, mew=1.2,
+                        color=PALETTE[order - 1])
     if freq_ranges is not None:
-        ax.plot([], [], color="0.4", lw=3.0, alpha=0.6, label=f"10-90 % of {freq_ranges[2]} drawn rooms")
+        ax.plot([], [], color="0.4", lw=3.0, alpha=0.6, marker="|", ms=7, mew=1.2,
+                label=f"10-90 % of {freq_ranges[2]} drawn rooms")
     style_frequency_axis(ax, max(15.0, modes.freq_hz.min() * 0.8), fmax)
     ax.set_ylabel("Modal decay time T60 (s)")
     ax.set_ylim(bottom=0)

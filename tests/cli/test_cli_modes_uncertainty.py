@@ -59,3 +59,24 @@ def test_bad_samples_is_one_line_exit_2():
     res = CliRunner().invoke(main, ["modes", DEMO, "--uncertainty", "--samples", "1"])
     assert res.exit_code == 2
     assert len(res.output.strip().splitlines()) == 1 and "--samples" in res.output
+
+
+def test_chart_draws_each_range_at_its_percentiles():
+    from matplotlib.collections import LineCollection
+
+    from roommodes.analysis.uncertainty import mode_frequency_ranges
+    from roommodes.model.modes import room_modes
+    from roommodes.present.plots import plot_modes
+
+    room = load_room(DEMO)
+    ms = room_modes(room, 80.0)
+    p10, p90 = mode_frequency_ranges(room, ms.indices, 30, 3)
+    fig = plot_modes(ms, 80.0, freq_ranges=(p10, p90, 30))
+    ax = fig.axes[0]
+    bars = [seg for c in ax.collections if isinstance(c, LineCollection) for seg in c.get_segments()
+            if seg[0][1] == seg[1][1]]  # horizontal segments: the ranges
+    drawn = sorted((round(s[0][0], 9), round(s[1][0], 9)) for s in bars)
+    assert drawn == sorted(zip(np.round(p10, 9), np.round(p90, 9)))
+    assert any(t.get_text() == "10-90 % of 30 drawn rooms" for t in ax.get_legend().get_texts())
+    assert not [c for c in plot_modes(ms, 80.0).axes[0].collections
+                if any(s[0][1] == s[1][1] for s in c.get_segments())]
