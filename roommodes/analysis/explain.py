@@ -57,6 +57,8 @@ __all__ = ["Cause", "Move", "Region", "Explanation", "ExplainBands", "explain", 
 DEFAULT_THRESHOLD_DB = 3.0
 #: Moves tried for each speaker along each axis, both ways, m.
 MOVE_STEPS_M = (0.1, 0.2, 0.3)
+#: Default (and, in the report, the most) number of rooms drawn for the explanation's bands.
+EXPLAIN_SAMPLES = 100
 _AXIS_NAMES = ("length", "width", "height")
 _TINY = 1e-30
 

@@ -34,6 +34,7 @@ from .levels import speaker_levels
 from .uncertainty import DEFAULT_SAMPLES, DEFAULT_SEED, ensemble_levels
 
 __all__ = [
+    "after_band",
     "ABSORPTION_GROUPS", "DEFAULT_POINTS_PER_OCTAVE", "EffectiveSize", "FitParameter", "FitResult", "FitTarget",
     "effective_size", "estimate_effective_size", "fit_error", "fit_room", "follow_walls", "follow_walls_subs",
     "narrow_uncertainty", "before_band"]
@@ -846,3 +847,27 @@ def before_band(room, result, targets, *, smoothing=12, absolute=False, method=D
             cv = smooth_db(f, lv[i, s, k], smoothing)
             curves[i, k] = cv if absolute else cv - np.mean(cv - result.measured_db[k])
     return np.percentile(curves, [10.0, 50.0, 90.0], axis=0)
+
+
+def after_band(result, targets, **options):
+    """10th, 50th and 90th percentiles of the fit's 'after' curves over rooms drawn around the calibrated room.
+
+    :func:`before_band` on ``result.room`` (the calibrated room, whose ``uncertainty`` is the
+    one the fit narrowed) with the targets at the fitted microphone positions, so that with
+    no uncertainty the band collapses onto ``result.after_db``.
+
+    Parameters
+    ----------
+    result : FitResult
+    targets : sequence of FitTarget
+        As given to :func:`fit_room`.
+    **options
+        As for :func:`before_band` (``smoothing``, ``absolute``, ``method``, ``cutoff_factor``,
+        ``band_hz``, ``n_samples``, ``seed``, ``uncertainty``: default the narrowed one).
+
+    Returns
+    -------
+    ndarray (3, T, F)
+    """
+    moved = [replace(t, position_m=tuple(float(v) for v in m)) for t, m in zip(targets, result.mic_positions_m)]
+    return before_band(result.room, result, moved, **options)

@@ -28,7 +28,7 @@ from ..analysis.compare import (
     speaker_by_name,
 )
 from ..analysis.fit import DEFAULT_POINTS_PER_OCTAVE as FIT_POINTS_PER_OCTAVE
-from ..analysis.fit import before_band, effective_size, fit_room
+from ..analysis.fit import after_band, before_band, effective_size, fit_room
 from ..dsp.bands import band_centres
 from ..dsp.response import log_frequencies
 from ..io.files import JSON_FILE_BYTES, InputFileError, read_regular
@@ -807,6 +807,11 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
                  "not band levels; leave out --uncertainty")
         bband = before_band(room, res, targets, smoothing=smoothing, absolute=absolute, method=method,
                             band_hz=(lo, hi), n_samples=samples, seed=seed)
+    aband = None
+    if bband is not None and plot_path:
+        # the calibrated room over its own (narrowed) uncertainty, same count and seed
+        aband = after_band(res, targets, smoothing=smoothing, absolute=absolute, method=method, band_hz=(lo, hi),
+                           n_samples=samples, seed=seed)
     eff = effective_size(res, room)
     comment = (f"Calibrated by roommodes {__version__} fit from {Path(room_file).name} and "
                f"{len(targets)} measurement(s): " + ", ".join(t.label for t in targets) + "\n"
@@ -878,7 +883,7 @@ def fit(room_file, files, out, channel, at, measure, wav_channel, window_s, band
     if plot_path:
 
         plot_fit(res, title=f"{room.name}: fit to measurements", path=plot_path, before_band_db=bband,
-                 n_rooms=samples if bband is not None else None)
+                 n_rooms=samples if bband is not None else None, after_band_db=aband)
         echo_err(f"wrote {plot_path}")
     echo_err(MODEL_CAUTION)
 

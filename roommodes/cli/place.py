@@ -17,6 +17,7 @@ import numpy as np
 
 from .. import __version__
 from ..analysis.ensemble import DEFAULT_ENSEMBLE_METHOD, DEFAULT_PLACE_SAMPLES
+from ..analysis.explain import EXPLAIN_SAMPLES
 from ..solvers import METHODS
 from ._progress import Progress
 from ._util import (
@@ -65,8 +66,6 @@ def _parse_weights(text):
 
 
 #: Printed with every placement: where the speakers go, something has to hold them.
-#: Default number of rooms ``explain --uncertainty`` draws.
-EXPLAIN_SAMPLES = 100
 
 MOUNTING_CAUTION = (
     "Safety: speakers on stands, shelves, desks or walls must be secured as their makers and your local "

@@ -75,7 +75,7 @@ def plot_comparison(report, spread_db=None, title=None, path=None, model_band=No
     return fig
 
 
-def plot_fit(result, title=None, path=None, max_panels=6, before_band_db=None, n_rooms=None):
+def plot_fit(result, title=None, path=None, max_panels=6, before_band_db=None, n_rooms=None, after_band_db=None):
     """Measured, predicted before and predicted after the fit, one panel per measurement.
 
     Parameters
@@ -90,6 +90,9 @@ def plot_fit(result, title=None, path=None, max_panels=6, before_band_db=None, n
         (:func:`roommodes.analysis.fit.before_band`); the 10-90 % range is shaded.
     n_rooms : int, optional
         How many rooms were drawn, for the legend.
+    after_band_db : ndarray (3, T, F), optional
+        The same for the 'after' curve, over rooms drawn around the calibrated room
+        (:func:`roommodes.analysis.fit.after_band`), over the same count ``n_rooms``.
 
     Returns
     -------
@@ -108,6 +111,9 @@ def plot_fit(result, title=None, path=None, max_panels=6, before_band_db=None, n
         if before_band_db is not None:
             ax.fill_between(f, before_band_db[0][k], before_band_db[2][k], color=PALETTE[1], alpha=0.18, lw=0,
                             label=f"model before: 10-90 % of {n_rooms} drawn rooms")
+        if after_band_db is not None:
+            ax.fill_between(f, after_band_db[0][k], after_band_db[2][k], color=PALETTE[0], alpha=0.22, lw=0,
+                            label=f"model after: 10-90 % of {n_rooms} drawn rooms")
         ax.plot(f, result.measured_db[k], color="0.1", lw=1.6, label="measured")
         ax.plot(f, result.before_db[k], color=PALETTE[1], lw=1.1, ls="--", label="model before")
         ax.plot(f, result.after_db[k], color=PALETTE[0], lw=1.3, label="model after")

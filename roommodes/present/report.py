@@ -33,6 +33,7 @@ from ..analysis import eq as eqmod
 from ..analysis.compare import average_measurements, compare_to_prediction
 from ..analysis.correction import correct_measured, correct_prediction
 from ..analysis.ensemble import MIN_FOUND_FRACTION, feature_spread
+from ..analysis.explain import EXPLAIN_SAMPLES, explain_bands
 from ..analysis.explain import explain as run_explain
 from ..analysis.fit import fit_room
 from ..analysis.maps import INTERPOLATED_METHODS, floor_level_map, mode_coupling
@@ -967,7 +968,10 @@ def _section_placement(run):
         fig, rendered = early if early is not None else (_left_right_figure(run, e), None)
         doc.figure(fig, "left-right", f"{n1} and {n2} at the seat, and their difference",
                    "Top: both channels (thin: unsmoothed) and the mono sum. Bottom: the difference with the regions "
-                   "numbered as in the list above.", rendered)
+                   "numbered as in the list above."
+                   + (f" Shaded: 10-90 % of {_explain_held(run)['n_samples']} drawn rooms (seed "
+                      f"{_explain_held(run)['seed']}), each channel and the difference."
+                      if run.uncertainty else ""), rendered)
 
 
 def _section_subs(run):
@@ -1411,9 +1415,22 @@ def _explanation(run):
     return run.explanation
 
 
+def _explain_held(run):
+    """The count and seed of the left/right figure's drawn rooms (at most ``explain``'s default
+    count), or None without ``uncertainty``."""
+    if not run.uncertainty:
+        return None
+    return {"n_samples": min(run.uncertainty["n_samples"], EXPLAIN_SAMPLES), "seed": run.uncertainty["seed"]}
+
+
 def _left_right_figure(run, e):
     n1, n2 = e.names
-    return plot_explain(e, title=f"{run.room.name}: {n1} and {n2} at the seat")
+    drawn = _explain_held(run)
+    bands = None
+    if drawn:
+        run.step(f"uncertainty: {drawn['n_samples']} drawn rooms, left/right explanation")
+        bands = explain_bands(run.room, e, run.layout, n_samples=drawn["n_samples"], seed=drawn["seed"])
+    return plot_explain(e, title=f"{run.room.name}: {n1} and {n2} at the seat", bands=bands)
 
 
 def _eq_figure(run, corrections):

@@ -182,3 +182,32 @@ def test_fit_cli_band_keys_and_bad_samples(tmp_path):
     assert 0 <= data["measured_inside_before_band_share"] <= 1
     res = CliRunner().invoke(main, base + ["-o", str(tmp_path / "c.toml"), "--uncertainty", "--samples", "0"])
     assert res.exit_code == 2 and res.stderr.count("\n") == 1 and "--samples" in res.stderr
+
+
+def test_fit_after_band_recomputed_and_plotted():
+    """The 'after' band: rooms drawn around the calibrated room with the uncertainty the fit
+    narrowed, at the fitted microphone positions; it collapses onto the 'after' curve without
+    uncertainty, equals the recomputed percentiles, and is shaded only when given."""
+    from roommodes.analysis.fit import after_band, fit_room
+    from roommodes.model.room import Uncertainty
+    from roommodes.present.plots_measure import plot_fit
+    targets = fit_targets()
+    res = fit_room(ROOM, targets, method="modal", max_iterations=2)
+    zero = Uncertainty(0.0, 0.0, 0.0, 0.0)
+    flat = after_band(res, targets, method="modal", n_samples=3, uncertainty=zero)
+    np.testing.assert_allclose(flat[1][0], res.after_db[0], atol=1e-6)
+    band = after_band(res, targets, method="modal", n_samples=12, seed=5)
+    lv = ensemble_levels(res.room, res.freq_hz, points_m=res.mic_positions_m, n_samples=12, seed=5, method="modal",
+                         uncertainty=res.room.uncertainty, cutoff_hz=400.0)[:, 0, 0]  # 2 x the band's top, 200 Hz
+    curves = np.array([smooth_db(res.freq_hz, c, 12) for c in lv])
+    curves = curves - np.mean(curves - res.measured_db[0], axis=1, keepdims=True)
+    np.testing.assert_allclose(band[0][0], np.percentile(curves, 10, axis=0), atol=1e-9)
+    np.testing.assert_allclose(band[2][0], np.percentile(curves, 90, axis=0), atol=1e-9)
+    fig = plot_fit(res, n_rooms=12, after_band_db=band)
+    polys = [c for c in fig.axes[0].collections if c.get_label() == "model after: 10-90 % of 12 drawn rooms"]
+    assert len(polys) == 1
+    v = polys[0].get_paths()[0].vertices
+    for i, fq in enumerate(res.freq_hz):
+        ys = v[np.isclose(v[:, 0], fq, rtol=0, atol=1e-12), 1]
+        assert np.isclose(ys.min(), band[0][0][i], atol=1e-9) and np.isclose(ys.max(), band[2][0][i], atol=1e-9)
+    assert not [c for c in plot_fit(res).axes[0].collections if "model after" in str(c.get_label())]

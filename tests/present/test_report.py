@@ -399,3 +399,55 @@ def test_report_subs_figure_shades_the_drawn_rooms(monkeypatch):
     (fig,) = drawn
     assert not _subs_bands_drawn(fig)
     assert "drawn from" not in next(x.caption for x in plain.figures if x.name.endswith("subs"))
+
+
+def _explain_fills(fig):
+    """Vertices of every band naming drawn rooms on the explanation figure: [(axes index, label, vertices)]."""
+    return [(i, c.get_label(), c.get_paths()[0].vertices) for i, ax in enumerate(fig.axes) for c in ax.collections
+            if "drawn rooms" in c.get_label()]
+
+
+@pytest.mark.slow  # two reports of the demo room without a search: about 15 s
+def test_report_left_right_figure_shades_the_drawn_rooms(monkeypatch):
+    """With ``uncertainty`` the report's "Why left and right differ" figure shades each channel
+    and the difference with explain_bands' 10th and 90th percentiles over the same drawn rooms,
+    capped at ``explain``'s default count (lowered here to keep the test short), and its caption
+    says so; without it, no band."""
+    import roommodes.present.report as report
+    from roommodes.analysis.explain import explain, explain_bands
+
+    drawn = []
+
+    def keep(*a, **kw):
+        fig = make(*a, **kw)
+        drawn.append(fig)
+        return fig
+
+    make = report.plot_explain
+    monkeypatch.setattr(report, "plot_explain", keep)
+    monkeypatch.setattr(report, "EXPLAIN_SAMPLES", 4)  # the cap: 6 asked, 4 drawn
+    room = load_room(next(p for p in ROOMS if "demo" in p.name))
+    rep = build_report(room, search="off", embed="png", uncertainty={"n_samples": 6, "seed": 5})
+    (fig,) = drawn
+    # the report's explanation and its bands, recomputed (the report's grid: 15-300 Hz, 48 per octave)
+    e = explain(room, room.layout, freq_hz=log_frequencies(15.0, 300.0, 48), keep_out=search_space(room).keep_out)
+    b = explain_bands(room, e, room.layout, n_samples=4, seed=5)
+    fills = _explain_fills(fig)
+    names = [s.name for s in room.layout.speakers][:2]
+    assert [(i, lab) for i, lab, _ in fills] == [(0, f"{names[0]}: 10-90 % of 4 drawn rooms"),
+                                                 (0, f"{names[1]}: 10-90 % of 4 drawn rooms"),
+                                                 (1, "10-90 % of 4 drawn rooms")]
+    f = b.freq_hz
+    want = [(b.level_db_p10[0], b.level_db_p90[0]), (b.level_db_p10[1], b.level_db_p90[1]),
+            (b.difference_db_p10, b.difference_db_p90)]
+    for (_, _, poly), (lo, hi) in zip(fills, want):
+        for k in (f.size // 4, f.size // 2, 3 * f.size // 4):
+            y = poly[np.isclose(poly[:, 0], f[k], rtol=0, atol=1e-9 * f[k]), 1]
+            np.testing.assert_allclose([y.min(), y.max()], [lo[k], hi[k]], atol=1e-9)
+    caption = next(x.caption for x in rep.figures if x.name.endswith("left-right"))
+    assert "Shaded: 10-90 % of 4 drawn rooms (seed 5)" in caption
+    drawn.clear()
+    plain = build_report(room, search="off", embed="png")
+    (fig,) = drawn
+    assert not _explain_fills(fig)
+    assert "Shaded" not in next(x.caption for x in plain.figures if x.name.endswith("left-right"))
