@@ -289,6 +289,12 @@ def follow_walls_subs(subs_search, old_size_m, new_size_m, touch_m=0.01):
                    candidates_m=tuple(cands))
 
 
+def _solver_options(method, cutoff_factor, top_hz):
+    """The fit's solver options: the modal sum is cut off at ``cutoff_factor`` times the top of
+    the fitted band (the other solvers take none)."""
+    return {"cutoff_hz": float(cutoff_factor) * float(top_hz)} if method == "modal" else {}
+
+
 def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=DEFAULT_POINTS_PER_OCTAVE, smoothing=12,
              absorption="axes", size_tolerance=0.05, position_tolerance_m=0.05, fit_speaker_positions=True,
              fit_mic_positions=True, fit_lowcut=True, lowcut_tolerance=0.3, absolute=False,
@@ -503,7 +509,7 @@ def fit_room(room, targets, *, band_hz=(20.0, 200.0), points_per_octave=DEFAULT_
         r = replace(room, size_m=tuple(float(v) for v in size), surfaces=surfaces)
         return r, spk, sps, mic
 
-    solver_options = {"cutoff_hz": cut * hi} if method == "modal" else {}
+    solver_options = _solver_options(method, cut, hi)
 
     def predict_all(u):
         r, _, sps, mic = build(u)
@@ -837,7 +843,7 @@ def before_band(room, result, targets, *, smoothing=12, absolute=False, method=D
     f = np.asarray(result.freq_hz, dtype=float)
     names = [s.name for s in room.layout.speakers]
     pts = np.array([t.position_m for t in targets], dtype=float)
-    opts = {"cutoff_hz": float(cutoff_factor) * float(band_hz[1])} if method == "modal" else {}
+    opts = _solver_options(method, cutoff_factor, band_hz[1])
     lv = ensemble_levels(room, f, points_m=pts, n_samples=n_samples, seed=seed, method=method,
                          uncertainty=uncertainty, **opts)
     curves = np.empty((lv.shape[0], len(targets), f.size))
