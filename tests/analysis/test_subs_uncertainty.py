@@ -1,5 +1,8 @@
 """How sure the chosen sub settings' result is: the same settings in rooms drawn from the room
-file's [uncertainty], and each seat's 10-90 % band on the subs figure."""
+file's [uncertainty], and each seat's 10-90 % band on the subs figure.
+
+No outside check values: the reference for every band is the same sum recomputed here
+(`predict_seats` in each drawn room), and zero spread must give the nominal result."""
 
 import numpy as np
 import pytest

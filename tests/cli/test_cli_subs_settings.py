@@ -1,5 +1,9 @@
 """`roommodes subs --write-settings`: the chosen settings go into a copy of the room file, and
-`predict` on that copy sums the system exactly as `subs` scored it."""
+`predict` on that copy sums the system exactly as `subs` scored it.
+
+The reference is the test's own recomputation (`predict` on the written copy against the
+`subs` JSON); the LR4 filter itself is checked against Linkwitz (1976) in
+tests/analysis/test_subs_settings.py."""
 
 import json
 

@@ -1,5 +1,7 @@
 """`roommodes subs --uncertainty`: the spread of the chosen settings over drawn rooms, in the
-table, the JSON and the plot; nothing new without the option."""
+table, the JSON and the plot; nothing new without the option.
+
+No outside check values: the reference is the drawn rooms' percentiles recomputed in the test."""
 
 import json
 

@@ -1,5 +1,7 @@
 """The subwoofer figure: numbered subs with their settings in a legend, and no legend entry for
-what is not drawn."""
+what is not drawn.
+
+No outside check values: these tests hold what the figure draws and labels."""
 
 from dataclasses import replace
 
