@@ -50,11 +50,12 @@ from ..model.materials import get_material
 from ..model.modes import room_modes
 from ..model.placement import PRESETS, preset_layout
 from ..solvers import ACCURACY_DB, ASSUMPTIONS, DEFAULT_METHOD
-from .plots import figure_bytes, plot_correction, plot_modes, plot_prediction
+from .plots import plot_correction, plot_modes, plot_prediction
 from .plots_measure import plot_comparison, plot_fit
 from .plots_place import plot_explain, plot_place
 from .plots_report import plot_floor_map, plot_mode_coupling, plot_room_views
 from .plots_subs import plot_subs
+from .render import FigureRenderer
 from .serialise import document
 from .units import UNITS, format_length, wall_distances, walls_text
 
@@ -231,10 +232,9 @@ def _indices_text(n):
     return "(" + ",".join(str(int(v)) for v in n) + ")"
 
 
-def _render(fig):
-    """PNG and SVG bytes of a figure, laid out once (deterministic SVG ids, no date)."""
-    return figure_bytes(fig, png_dpi=130, svg_metadata={"Date": None, "Creator": f"roommodes {__version__}"},
-                        svg_rc={"svg.hashsalt": "roommodes-report", "svg.fonttype": "path"})
+#: How the report's figures are drawn: laid out once, deterministic SVG ids, no date.
+_RENDER_OPTIONS = {"png_dpi": 130, "svg_metadata": {"Date": None, "Creator": f"roommodes {__version__}"},
+                   "svg_rc": {"svg.hashsalt": "roommodes-report", "svg.fonttype": "path"}}
 
 
 _CSS = """
@@ -283,11 +283,12 @@ code { font-size: 0.9em; }
 
 class _Doc:
     """Accumulates the page's sections, figures and tables, numbering them."""
-    def __init__(self, embed):
+    def __init__(self, embed, renderer=None):
         self.embed = embed
+        self.renderer = FigureRenderer(use_worker=False, **_RENDER_OPTIONS) if renderer is None else renderer
         self.parts = []
         self.toc = []
-        self.figures = []
+        self.figures = []  # ReportFigure once :meth:`page` has collected the drawings
         self.tables = []
 
     def section(self, anchor, title, newpage=True):
@@ -312,18 +313,35 @@ class _Doc:
         self.parts.append(f"<{tag}{c}>" + "".join(f"<li>{_esc(i)}</li>" for i in items) + f"</{tag}>")
 
     def figure(self, fig, stem, title, caption="", rendered=None):
+        """Add a figure; ``rendered`` is a future of its ``(png, svg)`` bytes when its drawing
+        has already been started (by :attr:`renderer`), which it is here otherwise."""
         number = len(self.figures) + 1
-        png, svg = _render(fig) if rendered is None else rendered
         name = f"f{number:02d}-{safe_stem(stem)}"
-        self.figures.append(ReportFigure(name, number, title, caption, png, svg))
-        data, mime = (svg, "image/svg+xml") if self.embed == "svg" else (png, "image/png")
-        b64 = base64.b64encode(data).decode("ascii")
+        drawing = self.renderer.submit(fig) if rendered is None else rendered
+        self.figures.append((name, number, title, caption, drawing))
+        mime = "image/svg+xml" if self.embed == "svg" else "image/png"
         width = int(round(fig.get_figwidth() * 96))
-        self.parts.append(
-            f'<figure id="fig-{number}"><img src="data:{mime};base64,{b64}" alt="Figure {number}: {_esc(title)}" '
-            f'style="width:{width}px"><figcaption><strong>Figure {number}.</strong> {_esc(title)}. '
-            f'{_esc(caption)} <span class="note">(files {_esc(name)}.png, {_esc(name)}.svg)</span></figcaption></figure>')
+        head = f'<figure id="fig-{number}"><img src="data:{mime};base64,'
+        tail = (f'" alt="Figure {number}: {_esc(title)}" '
+                f'style="width:{width}px"><figcaption><strong>Figure {number}.</strong> {_esc(title)}. '
+                f'{_esc(caption)} <span class="note">(files {_esc(name)}.png, {_esc(name)}.svg)</span></figcaption>'
+                "</figure>")
+        self.parts.append((head, number - 1, tail))
         return number
+
+    def collect_figures(self):
+        """Wait for every figure's drawing; :attr:`figures` then holds ReportFigure."""
+        self.figures = [f if isinstance(f, ReportFigure) else ReportFigure(*f[:4], *f[4].result())
+                        for f in self.figures]
+        return self.figures
+
+    def _part(self, part):
+        if isinstance(part, str):
+            return part
+        head, index, tail = part
+        f = self.figures[index]
+        data = f.svg if self.embed == "svg" else f.png
+        return head + base64.b64encode(data).decode("ascii") + tail
 
     def table(self, stem, title, columns, rows, note="", key=None):
         """Rows of cells: str, or (value, text) for a number (right-aligned, with data-value)."""
@@ -360,6 +378,7 @@ class _Doc:
         return number
 
     def page(self, title, header_html, glance_html):
+        self.collect_figures()
         toc = "".join(f'<li><a href="#{a}">{_esc(t)}</a></li>' for a, t in self.toc)
         return ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
                 "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
@@ -367,7 +386,7 @@ class _Doc:
                 f"<title>{_esc(title)}</title>\n<style>{_CSS}</style>\n</head>\n<body>\n"
                 f"<header>{header_html}</header>\n"
                 f"<nav class=\"toc\"><strong>Contents</strong><ol>{toc}</ol></nav>\n"
-                f"{glance_html}\n" + "\n".join(self.parts) + "\n</body>\n</html>\n")
+                f"{glance_html}\n" + "\n".join(self._part(p) for p in self.parts) + "\n</body>\n</html>\n")
 
 
 def _val(key, value, text):
@@ -511,7 +530,8 @@ def build_report(room, measurements=(), fit_targets=None, *, units="cm", search=
              else "the room file's model")
     run = _Run(room=room, file_room=file_room, model=model, layout=layout, preset_used=preset_used, units=units,
                method=method, search=search,
-               space=space, keep_out=space.keep_out, f=log_frequencies(15.0, 300.0, 48), doc=_Doc(embed),
+               space=space, keep_out=space.keep_out, f=log_frequencies(15.0, 300.0, 48),
+               doc=_Doc(embed, FigureRenderer(**_RENDER_OPTIONS)),
                values=document({"units": units}), glance=[], progress=progress,
                measurements=measurements, fit_targets=fit_targets, spl_reference=spl_reference, compare_band_hz=compare_band_hz,
                compare_smoothing=compare_smoothing, created=created, command=command, files_folder=files_folder,
@@ -1445,7 +1465,7 @@ def _early_figure(run, stem, make, *args):
     """Draw and render a later section's figure ahead (while the search runs); the section
     takes it from ``run.early_figures`` and draws it itself when it is not there."""
     fig = make(run, *args)
-    run.early_figures[stem] = (fig, _render(fig))
+    run.early_figures[stem] = (fig, run.doc.renderer.submit(fig))
 
 
 def _placement_figure(room, space, res, current, method, drawn=None):
