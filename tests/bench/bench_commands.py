@@ -147,9 +147,10 @@ def main():
         if not a.no_count:
             import json
 
-            print("\nreport figures (--search off), drawings and layout solves per figure:")
+            print("\nreport figures (--search off), drawings and layout solves per figure "
+                  "(all drawn in the main process, where they are counted: ROOMMODES_RENDER_WORKER=0):")
             for k, t in trees.items():
-                env = environment(t, tmp)
+                env = dict(environment(t, tmp), ROOMMODES_RENDER_WORKER="0")
                 out = subprocess.run([sys.executable, "-c", COUNT, str(ROOM)], cwd=tmp, env=env, capture_output=True,
                                      text=True, check=True)
                 c = json.loads(out.stdout.strip().splitlines()[-1])
