@@ -126,10 +126,12 @@ from __future__ import annotations
 import itertools
 import math
 
+import numba
 import numpy as np
 
 from ..model.walls import impedance_table, random_incidence_absorption
-from ._kernels import DELAY_BINS, TAPS, lattice_images, spread_images, spread_images_many, spread_shells
+from ._kernels import DELAY_BINS, TAP_POWERS, TAPS, lattice_images, spread_images_many, spread_shells
+from .threads import blas_threads
 
 __all__ = ["KERNEL_RELATIVE_ERROR", "image_count", "image_source_transfer", "images_up_to",
            "kernel_error_bound"]
@@ -584,13 +586,29 @@ def _pair(size_m, source_m, receiver_m, refl, spectrum, weights, samples_per_m, 
 
 
 def _tap_tables(tau, n_bins=DELAY_BINS):
-    """Tables of :func:`spread_images_many`: taps and exponent slopes at the bin centres."""
+    """Tap polynomials of :func:`spread_images_many`, shape (n_bins * TAP_POWERS * TAPS,).
+
+    For the fractional delay ``delta = t_b + e``, ``t_b = (b + 1/2) / n_bins``, tap ``k``
+    (``k = -7 .. 8``) of the Gaussian is ``exp(-a (x - e)^2)``, ``x = k - t_b``, ``a = 1 / (4
+    tau)``, ``= exp(-a x^2) exp(2 a x e - a e^2)``; the coefficient of ``e^n`` is ``exp(-a x^2)
+    sum_{m + 2 l = n} (2 a x)^m / m! (-a)^l / l!`` (the product of the two exponential series),
+    kept to ``n = 5``.
+    """
     t = (np.arange(n_bins) + 0.5) / n_bins
     k = np.arange(1 - TAPS // 2, TAPS // 2 + 1)
-    x = k[None, :] - t[:, None]
-    return np.exp(-(x**2) / (4.0 * tau)).ravel(), (2.0 * x / (4.0 * tau)).ravel()
+    a = 1.0 / (4.0 * tau)
+    x = k[None, :] - t[:, None]  # (bin, tap)
+    slope = 2.0 * a * x
+    coef = np.zeros((n_bins, TAP_POWERS, TAPS))
+    for m in range(TAP_POWERS):
+        for p in range(0, (TAP_POWERS - 1 - m) // 2 + 1):
+            coef[:, m + 2 * p] += slope**m / math.factorial(m) * (-a) ** p / math.factorial(p)
+    return np.ascontiguousarray(coef * np.exp(-a * x**2)[:, None, :]).ravel()
 
 
+#: Image-receiver pairs per thread below which a block is spread on the calling thread
+#: (about 2 ms of work).
+_PAIR_IMAGES_PER_THREAD = 1 << 17
 #: Most images listed at once by the shared lattice walk (about 16 MB with one column).
 _IMAGES_PER_BLOCK = 1 << 19
 
@@ -625,8 +643,8 @@ def _receivers(size_m, source_m, receivers_m, refl, spectrum, weights, samples_p
     n_rec = len(receivers_m)
     n_f, n_k = weights.shape
     axis_pos = _lattice_tables(size_m, source_m, np.zeros(3), max_order)[0]
-    tap_table, slope_table = _tap_tables(tau)
-    inv_4tau = 1.0 / (4.0 * tau)
+    coef = _tap_tables(tau)
+    threads = numba.get_num_threads()
     offset = spectrum.offset
     l_max = float(np.max(size_m))
     l_min = float(np.min(size_m))
@@ -652,14 +670,10 @@ def _receivers(size_m, source_m, receivers_m, refl, spectrum, weights, samples_p
         at = np.ascontiguousarray(rec[active])
         for n0, n1 in _shell_blocks(n_prev + 1, n):
             pos, amp = lattice_images(axis_pos, axis_amp, n0, n1)
-            if active.size == 1:  # no thread start-up for a single receiver
-                j = active[0]
-                top = spread_images(pos, amp, at[0, 0], at[0, 1], at[0, 2], samples_per_m, tap_table,
-                                    slope_table, inv_4tau, offset, ir[j])
-                last[j] = max(last[j], top)
-            else:
-                spread_images_many(pos, amp, at, active, samples_per_m, tap_table, slope_table, inv_4tau,
-                                   offset, ir, last)
+            # threads only for blocks with enough work to pay for starting them (a parallel
+            # region costs ~0.1 ms on an idle machine, milliseconds on a busy one)
+            n_thr = threads if len(pos) * active.size >= _PAIR_IMAGES_PER_THREAD * threads else 1
+            spread_images_many(pos, amp, at, active, samples_per_m, coef, offset, ir, last, n_thr)
         n_used = int(last[active].max()) + 1
         seg = np.ascontiguousarray(ir[active, :n_used].transpose(1, 0, 2)).reshape(n_used, -1)
         spec = spectrum(seg, n_used).reshape(n_f, active.size, n_k)
@@ -816,6 +830,15 @@ def image_source_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_o
     spectrum = _Spectrum(f, fs, tau, offset=_WIDTH, speed_of_sound=c)
     tol_rel = 1.0 - 10.0 ** (-tol_db / 20.0)
 
+    # every product of this solver (the spectra of the convergence checks) is far below
+    # the size at which a second BLAS thread pays (roommodes.solvers.threads)
+    with blas_threads(0):
+        return _transfer(size, src, rec, f, c, cols, weights, refl, q_shell, samples_per_m, tau,
+                         spectrum, tol_rel, max_order, reflection)
+
+
+def _transfer(size, src, rec, f, c, cols, weights, refl, q_shell, samples_per_m, tau, spectrum, tol_rel,
+              max_order, reflection):
     n_src, n_rec = len(src), len(rec)
     h = np.empty((n_src, n_rec, f.size), complex)
     orders = np.zeros((n_src, n_rec), dtype=int)
@@ -845,7 +868,7 @@ def image_source_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_o
         "orders": orders,
         "remainder_db": rem_db,
         "impulse_responses": len(cols),
-        "sampling_rate_hz": fs,
+        "sampling_rate_hz": samples_per_m * c,
         "kernel_relative_error": KERNEL_RELATIVE_ERROR,
     }
     return h, info
