@@ -123,6 +123,7 @@ References
 
 from __future__ import annotations
 
+import functools
 import itertools
 import math
 
@@ -460,6 +461,11 @@ def _slowest_order_ratio(size_m, cols, reflection, n_dir=181):
     largest such factor over a grid of directions of the first octant (for
     angle-independent factors it is the axial one, ``max_a sqrt(R_front R_back)``).
     """
+    if reflection == "energy":  # the axial series, no directions needed
+        r = _energy_factor(np.asarray(cols, float))  # (K, 6)
+        with np.errstate(divide="ignore"):
+            ln_axis = 0.5 * (np.log(r[:, 0::2]) + np.log(r[:, 1::2]))
+        return float(np.exp(np.max(ln_axis)))
     t = np.linspace(0.0, np.pi / 2, n_dir)
     th, ph = np.meshgrid(t, t, indexing="ij")
     cos = np.stack([np.sin(th) * np.cos(ph), np.sin(th) * np.sin(ph), np.cos(th)])  # (3, n, n)
@@ -467,12 +473,6 @@ def _slowest_order_ratio(size_m, cols, reflection, n_dir=181):
     weight = cos / np.asarray(size_m, float)[:, None]
     best = 0.0
     for col in cols:
-        if reflection == "energy":
-            r = _energy_factor(col)
-            with np.errstate(divide="ignore"):
-                ln_axis = 0.5 * (np.log(r[0::2]) + np.log(r[1::2]))
-            best = max(best, float(np.exp(np.max(ln_axis))))
-            continue
         beta = _admittance(col)
         ln_axis = np.empty_like(cos)
         for a in range(3):
@@ -585,6 +585,7 @@ def _pair(size_m, source_m, receiver_m, refl, spectrum, weights, samples_per_m, 
     return h, n_prev, remainder, False
 
 
+@functools.lru_cache(maxsize=4)
 def _tap_tables(tau, n_bins=DELAY_BINS):
     """Tap polynomials of :func:`spread_images_many`, shape (n_bins * TAP_POWERS * TAPS,).
 
@@ -592,7 +593,7 @@ def _tap_tables(tau, n_bins=DELAY_BINS):
     (``k = -7 .. 8``) of the Gaussian is ``exp(-a (x - e)^2)``, ``x = k - t_b``, ``a = 1 / (4
     tau)``, ``= exp(-a x^2) exp(2 a x e - a e^2)``; the coefficient of ``e^n`` is ``exp(-a x^2)
     sum_{m + 2 l = n} (2 a x)^m / m! (-a)^l / l!`` (the product of the two exponential series),
-    kept to ``n = 5``.
+    kept to ``n = 5``. Cached (read-only).
     """
     t = (np.arange(n_bins) + 0.5) / n_bins
     k = np.arange(1 - TAPS // 2, TAPS // 2 + 1)
@@ -603,7 +604,9 @@ def _tap_tables(tau, n_bins=DELAY_BINS):
     for m in range(TAP_POWERS):
         for p in range(0, (TAP_POWERS - 1 - m) // 2 + 1):
             coef[:, m + 2 * p] += slope**m / math.factorial(m) * (-a) ** p / math.factorial(p)
-    return np.ascontiguousarray(coef * np.exp(-a * x**2)[:, None, :]).ravel()
+    out = np.ascontiguousarray(coef * np.exp(-a * x**2)[:, None, :]).ravel()
+    out.flags.writeable = False
+    return out
 
 
 #: Image-receiver pairs per thread below which a block is spread on the calling thread
