@@ -221,7 +221,7 @@ TAP_POWERS = 6
 
 
 @njit(cache=True)
-def lattice_images(axis_pos, axis_amp, n_first, n_last):
+def lattice_images(axis_pos, axis_amp, n_first, n_last, pos, amp):
     """Positions and reflection products of the images of total order ``n_first..n_last``.
 
     Parameters
@@ -233,20 +233,20 @@ def lattice_images(axis_pos, axis_amp, n_first, n_last):
         Per-axis products of angle-independent reflection factors.
     n_first, n_last : int
         Shells, ``0 <= n_first <= n_last <= O``.
+    pos : float64 (>= m, 3)
+        Filled with the image positions, shell by shell, in the order :func:`spread_shells`
+        visits them (a buffer reused between blocks: new memory for every block cost more
+        in page faults than the listing itself).
+    amp : float64 (>= m, K)
+        Filled with the reflection products ``A_i`` (the ``1 / R`` of each receiver is
+        applied later).
 
     Returns
     -------
-    pos : float64 (m, 3)
-        Image positions, shell by shell, in the order :func:`spread_shells` visits them.
-    amp : float64 (m, K)
-        Reflection products ``A_i`` (the ``1 / R`` of each receiver is applied later).
+    m : int
+        Number of images written.
     """
-    m = 0
-    for n in range(n_first, n_last + 1):
-        m += 1 if n == 0 else 4 * n * n + 2
     n_k = axis_amp.shape[3]
-    pos = np.empty((m, 3))
-    amp = np.empty((m, n_k))
     i = 0
     for n in range(n_first, n_last + 1):
         for ox in range(n + 1):
@@ -261,7 +261,7 @@ def lattice_images(axis_pos, axis_amp, n_first, n_last):
                             for kk in range(n_k):
                                 amp[i, kk] = axis_amp[0, ox, sx, kk] * axis_amp[1, oy, sy, kk] * axis_amp[2, oz, sz, kk]
                             i += 1
-    return pos, amp
+    return i
 
 
 @njit(cache=True, fastmath=True)

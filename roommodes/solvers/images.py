@@ -612,8 +612,12 @@ def _tap_tables(tau, n_bins=DELAY_BINS):
 #: Image-receiver pairs per thread below which a block is spread on the calling thread
 #: (about 2 ms of work).
 _PAIR_IMAGES_PER_THREAD = 1 << 17
-#: Most images listed at once by the shared lattice walk (about 16 MB with one column).
+#: Most images listed at once by the shared lattice walk (about 16 MB with one column), with at
+#: least :data:`_RECEIVERS_FOR_FULL_BLOCK` receivers; fewer receivers get proportionally smaller
+#: blocks, down to 1/16 (1 MB, which stays in the core's cache between listing and spreading:
+#: measured 10-20 % faster for one receiver).
 _IMAGES_PER_BLOCK = 1 << 19
+_RECEIVERS_FOR_FULL_BLOCK = 16
 
 
 def _shell_blocks(n_first, n_last, limit=_IMAGES_PER_BLOCK):
@@ -659,6 +663,7 @@ def _receivers(size_m, source_m, receivers_m, refl, spectrum, weights, samples_p
         return offset + int((n + 3) * l_max * samples_per_m) + _WIDTH + 2
 
     ir = np.zeros((n_rec, needed(min(max_order, 32)), n_k))
+    pos_buf, amp_buf = np.empty((0, 3)), np.empty((0, n_k))
     last = np.zeros(n_rec, dtype=np.int64)
     h = np.zeros((n_rec, n_f), complex)
     h_prev = np.zeros((n_rec, n_f), complex)
@@ -671,8 +676,14 @@ def _receivers(size_m, source_m, receivers_m, refl, spectrum, weights, samples_p
         if needed(n) > ir.shape[1]:
             ir = np.pad(ir, ((0, 0), (0, max(needed(n), 2 * ir.shape[1]) - ir.shape[1]), (0, 0)))
         at = np.ascontiguousarray(rec[active])
-        for n0, n1 in _shell_blocks(n_prev + 1, n):
-            pos, amp = lattice_images(axis_pos, axis_amp, n0, n1)
+        limit = _IMAGES_PER_BLOCK * min(active.size, _RECEIVERS_FOR_FULL_BLOCK) // _RECEIVERS_FOR_FULL_BLOCK
+        for n0, n1 in _shell_blocks(n_prev + 1, n, limit):
+            m = image_count(n1) - (image_count(n0 - 1) if n0 > 0 else 0)
+            if m > len(pos_buf):
+                pos_buf = np.empty((max(m, 2 * len(pos_buf)), 3))
+                amp_buf = np.empty((len(pos_buf), n_k))
+            lattice_images(axis_pos, axis_amp, n0, n1, pos_buf, amp_buf)
+            pos, amp = pos_buf[:m], amp_buf[:m]
             # threads only for blocks with enough work to pay for starting them (a parallel
             # region costs ~0.1 ms on an idle machine, milliseconds on a busy one)
             n_thr = threads if len(pos) * active.size >= _PAIR_IMAGES_PER_THREAD * threads else 1
