@@ -12,9 +12,10 @@ calls per image instead of one per tap. It serves one receiver at a time and any
 reflection model.
 
 When the reflection factors do not depend on the angle (the energy model) the images of one
-source are listed once (:func:`lattice_images`) and spread for each receiver
-(:func:`spread_images`, or :func:`spread_images_many` for many receivers in parallel) with
-tap weights from tables and a short polynomial: no transcendental call per image.
+source are listed once per block of shells (:func:`lattice_images`, into a reused buffer) and
+spread for each receiver (:func:`spread_images` on one thread, :func:`spread_images_many` on
+one or more) with each tap a degree-5 polynomial from tables, computed and added in one pass:
+no transcendental call and no temporary array per image.
 
 References
 ----------
@@ -329,13 +330,8 @@ def spread_images(pos, amp, rx, ry, rz, samples_per_m, coef, offset, out):
     return _spread_one(pos, amp, 0, pos.shape[0], rx, ry, rz, samples_per_m, coef, offset, out)
 
 
-#: Fewer receivers than this many per thread: each receiver's images are split among the
-#: threads instead (whole receivers per thread would leave threads idle).
-RECEIVERS_PER_THREAD = 4
-
-
 @njit(cache=True, parallel=True)
-def spread_images_many(pos, amp, receivers, rows, samples_per_m, coef, offset, ir, last, n_thr):
+def spread_images_many(pos, amp, receivers, rows, samples_per_m, coef, offset, ir, last, parallel):
     """Add the images ``pos``, ``amp`` of one source to the responses of one or more receivers.
 
     Parameters
@@ -358,54 +354,28 @@ def spread_images_many(pos, amp, receivers, rows, samples_per_m, coef, offset, i
     ir : float64 (R, Ns, K)
         Impulse responses, accumulated in place.
     last : int64 (R,)
-    n_thr : int
-        Threads to use (at most ``numba.get_num_threads()``); 1 runs on the calling thread.
+    parallel : bool
+        Receivers in parallel (numba threads), each on its own rows of ``ir``; False: on the
+        calling thread (no parallel region, whose start and end cost more than small blocks
+        gain).
 
     Notes
     -----
     The image at ``u = R fs / c = i0 + delta`` samples adds ``A / R exp(-(k - delta)^2 /
     (4 tau))`` at sample ``i0 + k`` (as :func:`spread_shells`); the Gaussian is the degree-5
     Taylor polynomial in ``e``, ``|e| <= 1 / (2 M)``, about the bin centre (no transcendental
-    call per image; relative error of a tap below 1e-14 for ``M = 256``). With at least
-    :data:`RECEIVERS_PER_THREAD` receivers per thread the receivers run in parallel, each on
-    its own rows of ``ir``; with fewer, each receiver's images are cut into one run per
-    thread, spread into per-thread buffers and added up (same numbers up to the order of
-    the additions). Both use every thread; ``n_thr = 1`` runs serially (small blocks).
+    call per image; relative error of a tap below 1e-14 for ``M = 256``).
     """
     n_rec = receivers.shape[0]
-    if n_thr == 1:  # no parallel region (its start and end cost more than small blocks gain)
+    if not parallel:
         for a in range(n_rec):
             row = rows[a]
             top = _spread_one(pos, amp, 0, pos.shape[0], receivers[a, 0], receivers[a, 1], receivers[a, 2],
                               samples_per_m, coef, offset, ir[row])
             last[row] = max(last[row], top)
         return
-    if n_rec >= RECEIVERS_PER_THREAD * n_thr:
-        for a in prange(n_rec):
-            row = rows[a]
-            top = _spread_one(pos, amp, 0, pos.shape[0], receivers[a, 0], receivers[a, 1], receivers[a, 2],
-                              samples_per_m, coef, offset, ir[row])
-            last[row] = max(last[row], top)
-        return
-    n_img = pos.shape[0]
-    n_s, n_k = ir.shape[1], ir.shape[2]
-    buf = np.zeros((n_thr, n_s, n_k))
-    tops = np.zeros(n_thr, dtype=np.int64)
-    for a in range(n_rec):
+    for a in prange(n_rec):
         row = rows[a]
-        for t in prange(n_thr):
-            i0 = n_img * t // n_thr
-            i1 = n_img * (t + 1) // n_thr
-            tops[t] = _spread_one(pos, amp, i0, i1, receivers[a, 0], receivers[a, 1], receivers[a, 2],
-                                  samples_per_m, coef, offset, buf[t])
-        top = 0
-        for t in range(n_thr):
-            top = max(top, tops[t])
-        dst = ir[row]
-        for t in range(n_thr):
-            src = buf[t]
-            for m in range(top + 1):
-                for kk in range(n_k):
-                    dst[m, kk] += src[m, kk]
-                    src[m, kk] = 0.0
+        top = _spread_one(pos, amp, 0, pos.shape[0], receivers[a, 0], receivers[a, 1], receivers[a, 2],
+                          samples_per_m, coef, offset, ir[row])
         last[row] = max(last[row], top)

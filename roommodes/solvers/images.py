@@ -90,21 +90,37 @@ Cost
 ----
 ``4/3 order^3`` images per pair; ``order`` is about ``20 / alpha`` for 0.05 dB. Energy
 model (the default): the images of each source are listed once per block of shells
-(positions and reflection products, about 4 ns per image) and every receiver of that source
-only computes its distances and spreads its taps, the receivers in parallel (numba
-``prange``); the taps come from tables at 256 bins of the fractional delay times a
-degree-5 Taylor polynomial of the small remaining exponent, with no transcendental call per
-image. Each receiver keeps its own truncation order. The spreading kernel alone takes about
-30 ns of CPU time per image and pair on a loaded shared machine (48 ns for the per-pair walk
-with two ``exp`` per image in the same conditions); a whole call about 53 ns per image and
-pair, the rest mostly the spectrum products of the convergence checks
-(tests/bench/bench_exact.py). 100 receivers still cost about 100 times one receiver in CPU
-time: the distances, taps and scatter are per receiver; only the walk is shared, and the
-parallel speed-up needs idle cores. The impedance model's factors depend on the
-receiver's angle, so it walks the lattice per pair (``spread_shells``), about 55 ns per image
-and pair on one core. First call: numba
-compiles the kernel once (about 5-9 s), cached on disk afterwards (about 0.5 s to
-load). See :func:`image_source_transfer` for measured times.
+(positions and reflection products, into one reused buffer; about 4 ns per image) and every
+receiver of that source only computes its distances and spreads its taps. A tap is the
+degree-5 polynomial, in the offset from its bin centre, of the Gaussian (tables at 256 bins of
+the fractional delay; relative error below 1e-14), computed and added in one pass: no
+transcendental call and no temporary per image. Each receiver keeps its own truncation order.
+Threads (numba): with at least 4 receivers per thread, the receivers of a block run in
+parallel, for blocks of at least 2^17 image-receiver pairs per thread (a parallel region
+costs about 0.1 ms on an idle machine and milliseconds on a busy one); fewer receivers run on
+the calling thread. Splitting one receiver's images among the threads was tried and measured
+slower on the shared 2-core machine (2.3 times the wall time of one thread at load 4), so a
+single receiver uses one core. The spectra of the convergence checks are small products and
+run on one BLAS thread.
+
+Measured (tests/bench/bench.py, demo room, alpha 0.3, 30-150 Hz, 3 interleaved rounds, shared
+2-core machine at load 3-4): the spreading alone about 13 ns of CPU per image and pair; a
+whole call with 100 receivers 16 ns per image and pair (24.1 million images, order 68;
+before: 85 ns), one receiver about 7 ms (order 53, 204,000 images; before: 12.6 ms CPU,
+29 ms wall). 100 receivers cost about 55 times one receiver, in wall and in CPU time alike
+(before: 78 in wall time, 99 in CPU time); an idle machine's second core would bring the wall
+ratio toward 30, but only sharing lowers the CPU ratio, and 100 random receivers share
+little: per image and pair the distance, its square root and reciprocal, the tap polynomials
+and the scatter into the receiver's response remain (about 13 ns, and as much with 4 taps
+as with 16 or with no scatter at all on this machine: the per-image chain of dependent
+operations, not the tap arithmetic, sets it), against about 4 ns of shared listing per image
+and 3-4 ms of fixed cost per call. Expansions about a cluster's centre do not help at this
+size: at 150 Hz a field over the room needs about ``(k rho + 12)^2`` (several hundred)
+coefficients per frequency for 1e-9, more than 100 receivers cost. The impedance model's
+factors depend on the receiver's angle, so it walks the lattice per pair (``spread_shells``,
+two ``exp`` per image), about 55 ns per image and pair on one core. First call: numba
+compiles the kernel once (about 5-9 s), cached on disk afterwards (about 0.5 s to load). See
+:func:`image_source_transfer` for measured times.
 
 References
 ----------
@@ -612,6 +628,11 @@ def _tap_tables(tau, n_bins=DELAY_BINS):
 #: Image-receiver pairs per thread below which a block is spread on the calling thread
 #: (about 2 ms of work).
 _PAIR_IMAGES_PER_THREAD = 1 << 17
+#: Fewer receivers than this many per thread are spread on the calling thread (whole
+#: receivers per thread would leave threads idle). Splitting one receiver's images among
+#: threads was tried and measured slower on the shared 2-core machine (2.3 times the wall
+#: time of one thread at load 4, alpha 0.05 to order 300), so a single receiver runs on one.
+_RECEIVERS_PER_THREAD = 4
 #: Most images listed at once by the shared lattice walk (about 16 MB with one column), with at
 #: least :data:`_RECEIVERS_FOR_FULL_BLOCK` receivers; fewer receivers get proportionally smaller
 #: blocks, down to 1/16 (1 MB, which stays in the core's cache between listing and spreading:
@@ -684,10 +705,11 @@ def _receivers(size_m, source_m, receivers_m, refl, spectrum, weights, samples_p
                 amp_buf = np.empty((len(pos_buf), n_k))
             lattice_images(axis_pos, axis_amp, n0, n1, pos_buf, amp_buf)
             pos, amp = pos_buf[:m], amp_buf[:m]
-            # threads only for blocks with enough work to pay for starting them (a parallel
-            # region costs ~0.1 ms on an idle machine, milliseconds on a busy one)
-            n_thr = threads if len(pos) * active.size >= _PAIR_IMAGES_PER_THREAD * threads else 1
-            spread_images_many(pos, amp, at, active, samples_per_m, coef, offset, ir, last, n_thr)
+            # threads only for enough receivers and blocks with enough work to pay for starting
+            # them (a parallel region costs ~0.1 ms on an idle machine, milliseconds on a busy one)
+            parallel = (threads > 1 and active.size >= _RECEIVERS_PER_THREAD * threads
+                        and len(pos) * active.size >= _PAIR_IMAGES_PER_THREAD * threads)
+            spread_images_many(pos, amp, at, active, samples_per_m, coef, offset, ir, last, parallel)
         n_used = int(last[active].max()) + 1
         seg = np.ascontiguousarray(ir[active, :n_used].transpose(1, 0, 2)).reshape(n_used, -1)
         spec = spectrum(seg, n_used).reshape(n_f, active.size, n_k)

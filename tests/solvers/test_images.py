@@ -461,19 +461,19 @@ def test_shared_walk_matches_the_per_pair_walk(band_walls):
 
 @pytest.mark.parametrize("pairs_per_thread", [0, 1 << 40])
 def test_one_and_many_receivers_agree(monkeypatch, pairs_per_thread):
-    # A receiver's result must not depend on the other receivers of the call nor on how the
-    # spreading is split among threads (0: every block in parallel, over receivers when
-    # there are many and over each receiver's images when there are few; 2^40: all on the
-    # calling thread). Same images, same taps: equal up to the order of the additions
-    # (1e-12 relative here; the issue asks 1e-9), and the same truncation orders.
+    # A receiver's result must not depend on the other receivers of the call nor on whether
+    # the receivers are spread in parallel (0: every block with enough receivers in
+    # parallel; 2^40: all on the calling thread). Same images, same taps: equal up to the
+    # order of the additions (1e-12 relative here; the issue asks 1e-9), and the same
+    # truncation orders.
     monkeypatch.setattr(im, "_PAIR_IMAGES_PER_THREAD", pairs_per_thread)
+    monkeypatch.setattr(im, "_RECEIVERS_PER_THREAD", 1)
     rng = np.random.default_rng(11)
     rec = 0.3 + rng.random((9, 3)) * (SIZE - 0.6)
     f = log_frequencies(30.0, 150.0, 12)
     z = impedance_from_absorption(np.full(6, 0.3))
     h, info = im.image_source_transfer(SIZE, z, [SRC], rec, f, C)
-    for j, split in ((0, 0), (4, 1 << 40), (8, 0)):
-        monkeypatch.setattr(im, "_PAIR_IMAGES_PER_THREAD", split)  # 0: one receiver's images split
+    for j in (0, 4, 8):
         h1, i1 = im.image_source_transfer(SIZE, z, [SRC], rec[j:j + 1], f, C)
         assert i1["orders"][0, 0] == info["orders"][0, j]
         assert np.max(np.abs(h[0, j] / h1[0, 0] - 1.0)) < 1e-12
@@ -481,8 +481,8 @@ def test_one_and_many_receivers_agree(monkeypatch, pairs_per_thread):
 
 def test_tap_tables_reproduce_the_gaussian():
     # taps from the tap polynomials against exp(-(k - delta)^2 / (4 tau)) directly (the
-    # Gaussian of Greengard & Lee 2004), through the plain-NumPy spreading twin; on one
-    # thread and with the images split among threads (the one-receiver parallel path)
+    # Gaussian of Greengard & Lee 2004), through the plain-NumPy spreading twin; on the
+    # calling thread and with receivers in parallel
     from roommodes.solvers._kernels import spread_images, spread_images_many
 
     rng = np.random.default_rng(2)
@@ -497,11 +497,15 @@ def test_tap_tables_reproduce_the_gaussian():
     out = np.zeros((n_samples, 1))
     spread_images(pos, amp[:, None].copy(), 0.0, 0.0, 0.0, spm, coef, 16, out)
     assert np.max(np.abs(out[:, 0] - twin)) < 1e-13 * np.sum(np.abs(amp / dist))
-    ir = np.zeros((2, n_samples, 1))
-    last = np.zeros(2, dtype=np.int64)
-    spread_images_many(pos, amp[:, None].copy(), np.zeros((1, 3)), np.array([1]), spm, coef, 16, ir, last, 2)
-    assert np.max(np.abs(ir[1, :, 0] - twin)) < 1e-13 * np.sum(np.abs(amp / dist))
-    assert not ir[0].any() and last[1] == np.flatnonzero(ir[1, :, 0])[-1]
+    for parallel in (False, True):
+        ir = np.zeros((3, n_samples, 1))
+        last = np.zeros(3, dtype=np.int64)
+        spread_images_many(pos, amp[:, None].copy(), np.zeros((2, 3)), np.array([2, 0]), spm, coef, 16, ir, last,
+                           parallel)
+        for row in (0, 2):
+            assert np.max(np.abs(ir[row, :, 0] - twin)) < 1e-13 * np.sum(np.abs(amp / dist))
+            assert last[row] == np.flatnonzero(ir[row, :, 0])[-1]
+        assert not ir[1].any() and last[1] == 0
 
 
 def test_envelope_is_the_windowed_maximum():
