@@ -830,24 +830,25 @@ def image_source_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_o
     ``1e-9 sum_i |A_i| / R_i`` (frequency-dependent walls add the interpolation error
     of the module docstring, measured below 0.01 dB).
 
-    Measured (CPU time of one call, shared 2-core machine, numba cache warm), 1 pair,
-    15-300 Hz at 48 points per octave (209 frequencies), room 5.0 x 4.0 x 2.6 m, all
-    walls at one random-incidence absorption alpha, ``tol_db=0.05``:
+    Measured (CPU time of one call, shared 2-core machine at load 3-4, numba cache warm),
+    1 pair, 15-300 Hz at 48 points per octave (209 frequencies), room 5.0 x 4.0 x 2.6 m, all
+    walls at one random-incidence absorption alpha, ``tol_db=0.05`` (impedance rows at 0.05
+    and 0.03 from an earlier version of the same per-pair walk):
 
     ======  ==========================  ==========================
     alpha   impedance: order, time      energy: order, time
     ======  ==========================  ==========================
-    0.45    47, 0.03 s                  41, 0.02 s
-    0.3     68, 0.04 s                  60, 0.03 s
-    0.1     202, 0.7 s                  202, 0.5 s
-    0.05    466, 5-8 s (max_order=500)  466, 6 s (max_order=500)
-    0.03    749, 31 s (max_order=800)   749, 23 s (max_order=800)
+    0.45    47, 0.02 s                  41, 0.01 s
+    0.3     68, 0.04 s                  60, 0.015 s
+    0.1     202, 0.7 s                  202, 0.24 s
+    0.05    466, 5-8 s (max_order=500)  466, 2.5 s (max_order=500)
+    0.03    749, 31 s (max_order=800)   749, 10 s (max_order=800)
     ======  ==========================  ==========================
 
     With the default ``max_order=400`` the sum converges down to alpha of about 0.055.
     The first call in a fresh environment compiles the kernel (5-9 s); later processes
-    load it from numba's cache (about 0.5 s). Octave-band walls of the example rooms
-    (K = 24-38 anchor columns): 2-4 s for a room that converges at order 180.
+    load it from numba's cache (about 0.5 s). Octave-band walls (K = 24-38 anchor columns):
+    the demo room converges at order 159 in 0.7 s (K = 26).
 
     References
     ----------
