@@ -104,23 +104,24 @@ single receiver uses one core. The spectra of the convergence checks are small p
 run on one BLAS thread.
 
 Measured (tests/bench/bench.py, demo room, alpha 0.3, 30-150 Hz, 3 interleaved rounds, shared
-2-core machine at load 3-4): the spreading alone about 13 ns of CPU per image and pair; a
-whole call with 100 receivers 16 ns per image and pair (24.1 million images, order 68;
-before: 85 ns), one receiver about 7 ms (order 53, 204,000 images; before: 12.6 ms CPU,
-29 ms wall). 100 receivers cost about 55 times one receiver, in wall and in CPU time alike
-(before: 78 in wall time, 99 in CPU time); an idle machine's second core would bring the wall
-ratio toward 30, but only sharing lowers the CPU ratio, and 100 random receivers share
-little: per image and pair the distance, its square root and reciprocal, the tap polynomials
-and the scatter into the receiver's response remain (about 13 ns, and as much with 4 taps
-as with 16 or with no scatter at all on this machine: the per-image chain of dependent
-operations, not the tap arithmetic, sets it), against about 4 ns of shared listing per image
-and 3-4 ms of fixed cost per call. Expansions about a cluster's centre do not help at this
-size: at 150 Hz a field over the room needs about ``(k rho + 12)^2`` (several hundred)
-coefficients per frequency for 1e-9, more than 100 receivers cost. The impedance model's
-factors depend on the receiver's angle, so it walks the lattice per pair (``spread_shells``,
-two ``exp`` per image), about 55 ns per image and pair on one core. First call: numba
-compiles the kernel once (about 5-9 s), cached on disk afterwards (about 0.5 s to load). See
-:func:`image_source_transfer` for measured times.
+2-core machine at load 3-4.5): the spreading alone about 13 ns of CPU per image and pair; a
+whole call with 100 receivers 16-17 ns of CPU per image and pair (24.1 million images, order
+68; before: 52-53 ns), one receiver 7 ms (order 53, 204,000 images; before: 12.4 ms of CPU, 25 ms
+of wall time). 100 receivers cost 53-55 times one receiver in CPU time (before: 99-103) and
+27-41 times in wall time, depending on whether the second core was free (before: 78-93). Only
+sharing lowers the CPU ratio, and 100 random receivers share little: per image and pair the
+distance, its square root and reciprocal, the tap polynomials and the scatter into the
+receiver's response remain, about 13 ns, against about 4 ns of shared listing per image and
+3-4 ms of fixed cost per call. That 13 ns did not drop with 4 taps instead of 16, without
+the scatter, with the distances computed in a separate vectorised pass, or with tap tables
+that fit the L1 cache (each measured in isolation); what bounds it was not pinned down.
+Expansions about a cluster's centre do not pay at this size either: by the usual truncation
+rule of multipole expansions (an estimate, not measured here) a field over the whole room at
+150 Hz needs several hundred coefficients per frequency for 1e-9, more work than 100
+receivers. The impedance model's factors depend on the receiver's angle, so it walks the
+lattice per pair (``spread_shells``, two ``exp`` per image), about 55 ns per image and pair on
+one core. First call: numba compiles the kernel once (about 5-9 s), cached on disk afterwards
+(about 0.5 s to load). See :func:`image_source_transfer` for measured times.
 
 References
 ----------
