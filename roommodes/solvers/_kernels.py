@@ -12,9 +12,10 @@ calls per image instead of one per tap. It serves one receiver at a time and any
 reflection model.
 
 When the reflection factors do not depend on the angle (the energy model) the images of one
-source are listed once (:func:`lattice_images`) and spread for each receiver
-(:func:`spread_images`, or :func:`spread_images_many` for many receivers in parallel) with
-tap weights from tables and a short polynomial: no transcendental call per image.
+source are listed once per block of shells (:func:`lattice_images`, into a reused buffer) and
+spread for each receiver (:func:`spread_images` on one thread, :func:`spread_images_many` on
+one or more) with each tap a degree-5 polynomial from tables, computed and added in one pass:
+no transcendental call and no temporary array per image.
 
 References
 ----------
@@ -216,10 +217,12 @@ def _mul_power(amp, base, e):
 TAPS = 16
 #: Bins of the fractional delay in the tap tables (:func:`spread_images`).
 DELAY_BINS = 256
+#: Coefficients of each tap's polynomial in the offset from its bin centre (degree 5).
+TAP_POWERS = 6
 
 
 @njit(cache=True)
-def lattice_images(axis_pos, axis_amp, n_first, n_last):
+def lattice_images(axis_pos, axis_amp, n_first, n_last, pos, amp):
     """Positions and reflection products of the images of total order ``n_first..n_last``.
 
     Parameters
@@ -231,20 +234,20 @@ def lattice_images(axis_pos, axis_amp, n_first, n_last):
         Per-axis products of angle-independent reflection factors.
     n_first, n_last : int
         Shells, ``0 <= n_first <= n_last <= O``.
+    pos : float64 (>= m, 3)
+        Filled with the image positions, shell by shell, in the order :func:`spread_shells`
+        visits them (a buffer reused between blocks: new memory for every block cost more
+        in page faults than the listing itself).
+    amp : float64 (>= m, K)
+        Filled with the reflection products ``A_i`` (the ``1 / R`` of each receiver is
+        applied later).
 
     Returns
     -------
-    pos : float64 (m, 3)
-        Image positions, shell by shell, in the order :func:`spread_shells` visits them.
-    amp : float64 (m, K)
-        Reflection products ``A_i`` (the ``1 / R`` of each receiver is applied later).
+    m : int
+        Number of images written.
     """
-    m = 0
-    for n in range(n_first, n_last + 1):
-        m += 1 if n == 0 else 4 * n * n + 2
     n_k = axis_amp.shape[3]
-    pos = np.empty((m, 3))
-    amp = np.empty((m, n_k))
     i = 0
     for n in range(n_first, n_last + 1):
         for ox in range(n + 1):
@@ -259,64 +262,77 @@ def lattice_images(axis_pos, axis_amp, n_first, n_last):
                             for kk in range(n_k):
                                 amp[i, kk] = axis_amp[0, ox, sx, kk] * axis_amp[1, oy, sy, kk] * axis_amp[2, oz, sz, kk]
                             i += 1
-    return pos, amp
+    return i
 
 
-@njit(cache=True, fastmath=True, inline="always")
-def _spread_one(pos, amp, rx, ry, rz, samples_per_m, tap_table, slope_table, inv_4tau, offset, out):
-    """Spread the images ``pos``, ``amp`` onto ``out`` (Ns, K) of the receiver at
-    ``(rx, ry, rz)``; returns the largest row written (see :func:`spread_images_many`).
+@njit(cache=True, fastmath=True)
+def _spread_one(pos, amp, i_first, i_last, rx, ry, rz, samples_per_m, coef, offset, out):
+    """Spread the images ``i_first..i_last - 1`` of ``pos``, ``amp`` onto ``out`` (Ns, K) of the
+    receiver at ``(rx, ry, rz)``; returns the largest row written (see
+    :func:`spread_images_many`). Each tap is computed and added in one pass (no temporary
+    array of taps: a store and reload per image cost as much as the arithmetic).
     ``fastmath`` only lets the compiler reorder and fuse the tap arithmetic (rounding)."""
     n_k = out.shape[1]
-    n_bins = tap_table.shape[0] // TAPS
+    n_bins = coef.shape[0] // (TAPS * TAP_POWERS)
     k_min = 1 - TAPS // 2
-    w = np.empty(TAPS)
-    top = 0
-    for i in range(pos.shape[0]):
-        dx = pos[i, 0] - rx
-        dy = pos[i, 1] - ry
-        dz = pos[i, 2] - rz
-        r = np.sqrt(dx * dx + dy * dy + dz * dz)
-        u = r * samples_per_m
-        i0 = int(u)
-        delta = u - i0
-        b = min(int(delta * n_bins), n_bins - 1)
-        e = delta - (b + 0.5) / n_bins
-        e2 = e * e * inv_4tau
-        base = offset + i0 + k_min
-        s = 1.0 / r
-        if n_k == 1:
-            s *= amp[i, 0]
-        tb = tap_table[b * TAPS:(b + 1) * TAPS]
-        sb = slope_table[b * TAPS:(b + 1) * TAPS]
-        for j in range(TAPS):
-            # exp(x) by its Taylor polynomial of degree 5, |x| <= 0.011 (error < 3e-15)
-            x = sb[j] * e - e2
-            w[j] = s * tb[j] * (1.0 + x * (1.0 + x * (0.5 + x * (1.0 / 6.0 + x * (1.0 / 24.0 + x * (1.0 / 120.0))))))
-        if n_k == 1:
-            o = out[base:base + TAPS, 0]
+    i_top = -1
+    if n_k == 1:  # one column (the common case): a contiguous run of taps per image
+        flat = out.reshape(out.size)
+        for i in range(i_first, i_last):
+            dx = pos[i, 0] - rx
+            dy = pos[i, 1] - ry
+            dz = pos[i, 2] - rz
+            r = np.sqrt(dx * dx + dy * dy + dz * dz)
+            u = r * samples_per_m
+            i0 = int(u)
+            delta = u - i0
+            b = int(delta * n_bins)  # delta < 1, so b < n_bins
+            e = delta - (b + 0.5) / n_bins
+            c = coef[b * TAPS * TAP_POWERS:(b + 1) * TAPS * TAP_POWERS]
+            s = amp[i, 0] / r
+            o = flat[offset + i0 + k_min:offset + i0 + k_min + TAPS]
             for j in range(TAPS):
-                o[j] += w[j]
-        else:
+                # tap j: its degree-5 polynomial in e (Horner)
+                o[j] += s * (c[j] + e * (c[TAPS + j] + e * (c[2 * TAPS + j] + e * (
+                    c[3 * TAPS + j] + e * (c[4 * TAPS + j] + e * c[5 * TAPS + j])))))
+            i_top = max(i_top, i0)
+    else:
+        w = np.empty(TAPS)
+        for i in range(i_first, i_last):
+            dx = pos[i, 0] - rx
+            dy = pos[i, 1] - ry
+            dz = pos[i, 2] - rz
+            r = np.sqrt(dx * dx + dy * dy + dz * dz)
+            u = r * samples_per_m
+            i0 = int(u)
+            delta = u - i0
+            b = int(delta * n_bins)
+            e = delta - (b + 0.5) / n_bins
+            c = coef[b * TAPS * TAP_POWERS:(b + 1) * TAPS * TAP_POWERS]
+            s = 1.0 / r
+            for j in range(TAPS):
+                w[j] = s * (c[j] + e * (c[TAPS + j] + e * (c[2 * TAPS + j] + e * (
+                    c[3 * TAPS + j] + e * (c[4 * TAPS + j] + e * c[5 * TAPS + j])))))
+            base = offset + i0 + k_min
             for j in range(TAPS):
                 row = out[base + j]
+                wj = w[j]
                 for kk in range(n_k):
-                    row[kk] += amp[i, kk] * w[j]
-        top = max(top, base + TAPS - 1)
-    return top
+                    row[kk] += amp[i, kk] * wj
+            i_top = max(i_top, i0)
+    return offset + i_top + k_min + TAPS - 1 if i_top >= 0 else 0
 
 
 @njit(cache=True)
-def spread_images(pos, amp, rx, ry, rz, samples_per_m, tap_table, slope_table, inv_4tau, offset, out):
-    """:func:`spread_images_many` for one receiver (no thread start-up); returns the largest
-    row written."""
-    return _spread_one(pos, amp, rx, ry, rz, samples_per_m, tap_table, slope_table, inv_4tau, offset, out)
+def spread_images(pos, amp, rx, ry, rz, samples_per_m, coef, offset, out):
+    """All images ``pos``, ``amp`` onto ``out`` (Ns, K) of one receiver, on one thread;
+    returns the largest row written (see :func:`spread_images_many`)."""
+    return _spread_one(pos, amp, 0, pos.shape[0], rx, ry, rz, samples_per_m, coef, offset, out)
 
 
 @njit(cache=True, parallel=True)
-def spread_images_many(pos, amp, receivers, rows, samples_per_m, tap_table, slope_table, inv_4tau,
-                       offset, ir, last):
-    """Add the images ``pos``, ``amp`` of one source to the responses of many receivers.
+def spread_images_many(pos, amp, receivers, rows, samples_per_m, coef, offset, ir, last, parallel):
+    """Add the images ``pos``, ``amp`` of one source to the responses of one or more receivers.
 
     Parameters
     ----------
@@ -329,30 +345,37 @@ def spread_images_many(pos, amp, receivers, rows, samples_per_m, tap_table, slop
         largest row written.
     samples_per_m : float
         ``fs / c``, samples per metre of path.
-    tap_table, slope_table : float64 (M * 16,)
-        ``exp(-(k - t_b)^2 / (4 tau))`` and ``2 (k - t_b) / (4 tau)`` for the taps
-        ``k = -7 .. 8`` (innermost) at the bin centres ``t_b = (b + 1/2) / M`` of the
-        fractional delay.
-    inv_4tau : float
-        ``1 / (4 tau)`` of the Gaussian ``exp(-x^2 / (4 tau))``, x in samples.
+    coef : float64 (M * 6 * 16,)
+        Tap polynomials: ``coef[b, p, j]`` is the coefficient of ``e^p`` of tap ``j`` (offset
+        ``k = j - 7``) in fractional-delay bin ``b`` (``delta = (b + 1/2) / M + e``), see
+        ``images._tap_tables``.
     offset : int
         Index of sample 0 in each response.
     ir : float64 (R, Ns, K)
         Impulse responses, accumulated in place.
     last : int64 (R,)
+    parallel : bool
+        Receivers in parallel (numba threads), each on its own rows of ``ir``; False: on the
+        calling thread (no parallel region, whose start and end cost more than small blocks
+        gain).
 
     Notes
     -----
     The image at ``u = R fs / c = i0 + delta`` samples adds ``A / R exp(-(k - delta)^2 /
-    (4 tau))`` at sample ``i0 + k`` (as :func:`spread_shells`). With ``e = delta - t_b``,
-    ``|e| <= 1 / (2 M)``, the tap is ``tap_table[b, k] exp(x)``,
-    ``x = slope_table[b, k] e - e^2 / (4 tau)``; for ``M = 256`` and the kernel's ``tau``,
-    ``|x| <= 8 / (4 tau M) + ... <= 0.011`` and ``exp(x)`` is its degree-5 Taylor polynomial
-    (relative error below 3e-15). No transcendental call per image; the 16 taps are independent (vectorised).
-    Receivers run in parallel, each on its own rows of ``ir``.
+    (4 tau))`` at sample ``i0 + k`` (as :func:`spread_shells`); the Gaussian is the degree-5
+    Taylor polynomial in ``e``, ``|e| <= 1 / (2 M)``, about the bin centre (no transcendental
+    call per image; relative error of a tap below 1e-14 for ``M = 256``).
     """
-    for a in prange(receivers.shape[0]):
+    n_rec = receivers.shape[0]
+    if not parallel:
+        for a in range(n_rec):
+            row = rows[a]
+            top = _spread_one(pos, amp, 0, pos.shape[0], receivers[a, 0], receivers[a, 1], receivers[a, 2],
+                              samples_per_m, coef, offset, ir[row])
+            last[row] = max(last[row], top)
+        return
+    for a in prange(n_rec):
         row = rows[a]
-        top = _spread_one(pos, amp, receivers[a, 0], receivers[a, 1], receivers[a, 2], samples_per_m,
-                          tap_table, slope_table, inv_4tau, offset, ir[row])
+        top = _spread_one(pos, amp, 0, pos.shape[0], receivers[a, 0], receivers[a, 1], receivers[a, 2],
+                          samples_per_m, coef, offset, ir[row])
         last[row] = max(last[row], top)

@@ -90,21 +90,38 @@ Cost
 ----
 ``4/3 order^3`` images per pair; ``order`` is about ``20 / alpha`` for 0.05 dB. Energy
 model (the default): the images of each source are listed once per block of shells
-(positions and reflection products, about 4 ns per image) and every receiver of that source
-only computes its distances and spreads its taps, the receivers in parallel (numba
-``prange``); the taps come from tables at 256 bins of the fractional delay times a
-degree-5 Taylor polynomial of the small remaining exponent, with no transcendental call per
-image. Each receiver keeps its own truncation order. The spreading kernel alone takes about
-30 ns of CPU time per image and pair on a loaded shared machine (48 ns for the per-pair walk
-with two ``exp`` per image in the same conditions); a whole call about 53 ns per image and
-pair, the rest mostly the spectrum products of the convergence checks
-(tests/bench/bench_exact.py). 100 receivers still cost about 100 times one receiver in CPU
-time: the distances, taps and scatter are per receiver; only the walk is shared, and the
-parallel speed-up needs idle cores. The impedance model's factors depend on the
-receiver's angle, so it walks the lattice per pair (``spread_shells``), about 55 ns per image
-and pair on one core. First call: numba
-compiles the kernel once (about 5-9 s), cached on disk afterwards (about 0.5 s to
-load). See :func:`image_source_transfer` for measured times.
+(positions and reflection products, into one reused buffer; about 4 ns per image) and every
+receiver of that source only computes its distances and spreads its taps. A tap is the
+degree-5 polynomial, in the offset from its bin centre, of the Gaussian (tables at 256 bins of
+the fractional delay; relative error below 1e-14), computed and added in one pass: no
+transcendental call and no temporary per image. Each receiver keeps its own truncation order.
+Threads (numba): with at least 4 receivers per thread, the receivers of a block run in
+parallel, for blocks of at least 2^17 image-receiver pairs per thread (a parallel region
+costs about 0.1 ms on an idle machine and milliseconds on a busy one); fewer receivers run on
+the calling thread. Splitting one receiver's images among the threads was tried and measured
+slower on the shared 2-core machine (2.3 times the wall time of one thread at load 4), so a
+single receiver uses one core. The spectra of the convergence checks are small products and
+run on one BLAS thread.
+
+Measured (tests/bench/bench.py, demo room, alpha 0.3, 30-150 Hz, 3 interleaved rounds, shared
+2-core machine at load 3-4.5): the spreading alone about 13 ns of CPU per image and pair; a
+whole call with 100 receivers 16-17 ns of CPU per image and pair (24.1 million images, order
+68; before: 52-53 ns), one receiver 7 ms (order 53, 204,000 images; before: 12.4 ms of CPU, 25 ms
+of wall time). 100 receivers cost 53-55 times one receiver in CPU time (before: 99-103) and
+27-41 times in wall time, depending on whether the second core was free (before: 78-93). Only
+sharing lowers the CPU ratio, and 100 random receivers share little: per image and pair the
+distance, its square root and reciprocal, the tap polynomials and the scatter into the
+receiver's response remain, about 13 ns, against about 4 ns of shared listing per image and
+3-4 ms of fixed cost per call. That 13 ns did not drop with 4 taps instead of 16, without
+the scatter, with the distances computed in a separate vectorised pass, or with tap tables
+that fit the L1 cache (each measured in isolation); what bounds it was not pinned down.
+Expansions about a cluster's centre do not pay at this size either: by the usual truncation
+rule of multipole expansions (an estimate, not measured here) a field over the whole room at
+150 Hz needs several hundred coefficients per frequency for 1e-9, more work than 100
+receivers. The impedance model's factors depend on the receiver's angle, so it walks the
+lattice per pair (``spread_shells``, two ``exp`` per image), about 55 ns per image and pair on
+one core. First call: numba compiles the kernel once (about 5-9 s), cached on disk afterwards
+(about 0.5 s to load). See :func:`image_source_transfer` for measured times.
 
 References
 ----------
@@ -123,13 +140,16 @@ References
 
 from __future__ import annotations
 
+import functools
 import itertools
 import math
 
+import numba
 import numpy as np
 
 from ..model.walls import impedance_table, random_incidence_absorption
-from ._kernels import DELAY_BINS, TAPS, lattice_images, spread_images, spread_images_many, spread_shells
+from ._kernels import DELAY_BINS, TAP_POWERS, TAPS, lattice_images, spread_images_many, spread_shells
+from .threads import blas_threads
 
 __all__ = ["KERNEL_RELATIVE_ERROR", "image_count", "image_source_transfer", "images_up_to",
            "kernel_error_bound"]
@@ -458,6 +478,11 @@ def _slowest_order_ratio(size_m, cols, reflection, n_dir=181):
     largest such factor over a grid of directions of the first octant (for
     angle-independent factors it is the axial one, ``max_a sqrt(R_front R_back)``).
     """
+    if reflection == "energy":  # the axial series, no directions needed
+        r = _energy_factor(np.asarray(cols, float))  # (K, 6)
+        with np.errstate(divide="ignore"):
+            ln_axis = 0.5 * (np.log(r[:, 0::2]) + np.log(r[:, 1::2]))
+        return float(np.exp(np.max(ln_axis)))
     t = np.linspace(0.0, np.pi / 2, n_dir)
     th, ph = np.meshgrid(t, t, indexing="ij")
     cos = np.stack([np.sin(th) * np.cos(ph), np.sin(th) * np.sin(ph), np.cos(th)])  # (3, n, n)
@@ -465,12 +490,6 @@ def _slowest_order_ratio(size_m, cols, reflection, n_dir=181):
     weight = cos / np.asarray(size_m, float)[:, None]
     best = 0.0
     for col in cols:
-        if reflection == "energy":
-            r = _energy_factor(col)
-            with np.errstate(divide="ignore"):
-                ln_axis = 0.5 * (np.log(r[0::2]) + np.log(r[1::2]))
-            best = max(best, float(np.exp(np.max(ln_axis))))
-            continue
         beta = _admittance(col)
         ln_axis = np.empty_like(cos)
         for a in range(3):
@@ -583,16 +602,44 @@ def _pair(size_m, source_m, receiver_m, refl, spectrum, weights, samples_per_m, 
     return h, n_prev, remainder, False
 
 
+@functools.lru_cache(maxsize=4)
 def _tap_tables(tau, n_bins=DELAY_BINS):
-    """Tables of :func:`spread_images_many`: taps and exponent slopes at the bin centres."""
+    """Tap polynomials of :func:`spread_images_many`, shape (n_bins * TAP_POWERS * TAPS,).
+
+    For the fractional delay ``delta = t_b + e``, ``t_b = (b + 1/2) / n_bins``, tap ``k``
+    (``k = -7 .. 8``) of the Gaussian is ``exp(-a (x - e)^2)``, ``x = k - t_b``, ``a = 1 / (4
+    tau)``, ``= exp(-a x^2) exp(2 a x e - a e^2)``; the coefficient of ``e^n`` is ``exp(-a x^2)
+    sum_{m + 2 l = n} (2 a x)^m / m! (-a)^l / l!`` (the product of the two exponential series),
+    kept to ``n = 5``. Cached (read-only).
+    """
     t = (np.arange(n_bins) + 0.5) / n_bins
     k = np.arange(1 - TAPS // 2, TAPS // 2 + 1)
-    x = k[None, :] - t[:, None]
-    return np.exp(-(x**2) / (4.0 * tau)).ravel(), (2.0 * x / (4.0 * tau)).ravel()
+    a = 1.0 / (4.0 * tau)
+    x = k[None, :] - t[:, None]  # (bin, tap)
+    slope = 2.0 * a * x
+    coef = np.zeros((n_bins, TAP_POWERS, TAPS))
+    for m in range(TAP_POWERS):
+        for p in range(0, (TAP_POWERS - 1 - m) // 2 + 1):
+            coef[:, m + 2 * p] += slope**m / math.factorial(m) * (-a) ** p / math.factorial(p)
+    out = np.ascontiguousarray(coef * np.exp(-a * x**2)[:, None, :]).ravel()
+    out.flags.writeable = False
+    return out
 
 
-#: Most images listed at once by the shared lattice walk (about 16 MB with one column).
+#: Image-receiver pairs per thread below which a block is spread on the calling thread
+#: (about 2 ms of work).
+_PAIR_IMAGES_PER_THREAD = 1 << 17
+#: Fewer receivers than this many per thread are spread on the calling thread (whole
+#: receivers per thread would leave threads idle). Splitting one receiver's images among
+#: threads was tried and measured slower on the shared 2-core machine (2.3 times the wall
+#: time of one thread at load 4, alpha 0.05 to order 300), so a single receiver runs on one.
+_RECEIVERS_PER_THREAD = 4
+#: Most images listed at once by the shared lattice walk (about 16 MB with one column), with at
+#: least :data:`_RECEIVERS_FOR_FULL_BLOCK` receivers; fewer receivers get proportionally smaller
+#: blocks, down to 1/16 (1 MB, which stays in the core's cache between listing and spreading:
+#: measured 10-20 % faster for one receiver).
 _IMAGES_PER_BLOCK = 1 << 19
+_RECEIVERS_FOR_FULL_BLOCK = 16
 
 
 def _shell_blocks(n_first, n_last, limit=_IMAGES_PER_BLOCK):
@@ -625,8 +672,8 @@ def _receivers(size_m, source_m, receivers_m, refl, spectrum, weights, samples_p
     n_rec = len(receivers_m)
     n_f, n_k = weights.shape
     axis_pos = _lattice_tables(size_m, source_m, np.zeros(3), max_order)[0]
-    tap_table, slope_table = _tap_tables(tau)
-    inv_4tau = 1.0 / (4.0 * tau)
+    coef = _tap_tables(tau)
+    threads = numba.get_num_threads()
     offset = spectrum.offset
     l_max = float(np.max(size_m))
     l_min = float(np.min(size_m))
@@ -638,6 +685,7 @@ def _receivers(size_m, source_m, receivers_m, refl, spectrum, weights, samples_p
         return offset + int((n + 3) * l_max * samples_per_m) + _WIDTH + 2
 
     ir = np.zeros((n_rec, needed(min(max_order, 32)), n_k))
+    pos_buf, amp_buf = np.empty((0, 3)), np.empty((0, n_k))
     last = np.zeros(n_rec, dtype=np.int64)
     h = np.zeros((n_rec, n_f), complex)
     h_prev = np.zeros((n_rec, n_f), complex)
@@ -650,16 +698,19 @@ def _receivers(size_m, source_m, receivers_m, refl, spectrum, weights, samples_p
         if needed(n) > ir.shape[1]:
             ir = np.pad(ir, ((0, 0), (0, max(needed(n), 2 * ir.shape[1]) - ir.shape[1]), (0, 0)))
         at = np.ascontiguousarray(rec[active])
-        for n0, n1 in _shell_blocks(n_prev + 1, n):
-            pos, amp = lattice_images(axis_pos, axis_amp, n0, n1)
-            if active.size == 1:  # no thread start-up for a single receiver
-                j = active[0]
-                top = spread_images(pos, amp, at[0, 0], at[0, 1], at[0, 2], samples_per_m, tap_table,
-                                    slope_table, inv_4tau, offset, ir[j])
-                last[j] = max(last[j], top)
-            else:
-                spread_images_many(pos, amp, at, active, samples_per_m, tap_table, slope_table, inv_4tau,
-                                   offset, ir, last)
+        limit = _IMAGES_PER_BLOCK * min(active.size, _RECEIVERS_FOR_FULL_BLOCK) // _RECEIVERS_FOR_FULL_BLOCK
+        for n0, n1 in _shell_blocks(n_prev + 1, n, limit):
+            m = image_count(n1) - (image_count(n0 - 1) if n0 > 0 else 0)
+            if m > len(pos_buf):
+                pos_buf = np.empty((max(m, 2 * len(pos_buf)), 3))
+                amp_buf = np.empty((len(pos_buf), n_k))
+            lattice_images(axis_pos, axis_amp, n0, n1, pos_buf, amp_buf)
+            pos, amp = pos_buf[:m], amp_buf[:m]
+            # threads only for enough receivers and blocks with enough work to pay for starting
+            # them (a parallel region costs ~0.1 ms on an idle machine, milliseconds on a busy one)
+            parallel = (threads > 1 and active.size >= _RECEIVERS_PER_THREAD * threads
+                        and len(pos) * active.size >= _PAIR_IMAGES_PER_THREAD * threads)
+            spread_images_many(pos, amp, at, active, samples_per_m, coef, offset, ir, last, parallel)
         n_used = int(last[active].max()) + 1
         seg = np.ascontiguousarray(ir[active, :n_used].transpose(1, 0, 2)).reshape(n_used, -1)
         spec = spectrum(seg, n_used).reshape(n_f, active.size, n_k)
@@ -780,24 +831,25 @@ def image_source_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_o
     ``1e-9 sum_i |A_i| / R_i`` (frequency-dependent walls add the interpolation error
     of the module docstring, measured below 0.01 dB).
 
-    Measured (CPU time of one call, shared 2-core machine, numba cache warm), 1 pair,
-    15-300 Hz at 48 points per octave (209 frequencies), room 5.0 x 4.0 x 2.6 m, all
-    walls at one random-incidence absorption alpha, ``tol_db=0.05``:
+    Measured (CPU time of one call, shared 2-core machine at load 3-4, numba cache warm),
+    1 pair, 15-300 Hz at 48 points per octave (209 frequencies), room 5.0 x 4.0 x 2.6 m, all
+    walls at one random-incidence absorption alpha, ``tol_db=0.05`` (impedance rows at 0.05
+    and 0.03 from an earlier version of the same per-pair walk):
 
     ======  ==========================  ==========================
     alpha   impedance: order, time      energy: order, time
     ======  ==========================  ==========================
-    0.45    47, 0.03 s                  41, 0.02 s
-    0.3     68, 0.04 s                  60, 0.03 s
-    0.1     202, 0.7 s                  202, 0.5 s
-    0.05    466, 5-8 s (max_order=500)  466, 6 s (max_order=500)
-    0.03    749, 31 s (max_order=800)   749, 23 s (max_order=800)
+    0.45    47, 0.02 s                  41, 0.01 s
+    0.3     68, 0.04 s                  60, 0.015 s
+    0.1     202, 0.7 s                  202, 0.24 s
+    0.05    466, 5-8 s (max_order=500)  466, 2.5 s (max_order=500)
+    0.03    749, 31 s (max_order=800)   749, 10 s (max_order=800)
     ======  ==========================  ==========================
 
     With the default ``max_order=400`` the sum converges down to alpha of about 0.055.
     The first call in a fresh environment compiles the kernel (5-9 s); later processes
-    load it from numba's cache (about 0.5 s). Octave-band walls of the example rooms
-    (K = 24-38 anchor columns): 2-4 s for a room that converges at order 180.
+    load it from numba's cache (about 0.5 s). Octave-band walls (K = 24-38 anchor columns):
+    the demo room converges at order 159 in 0.7 s (K = 26).
 
     References
     ----------
@@ -816,6 +868,15 @@ def image_source_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_o
     spectrum = _Spectrum(f, fs, tau, offset=_WIDTH, speed_of_sound=c)
     tol_rel = 1.0 - 10.0 ** (-tol_db / 20.0)
 
+    # every product of this solver (the spectra of the convergence checks) is far below
+    # the size at which a second BLAS thread pays (roommodes.solvers.threads)
+    with blas_threads(0):
+        return _transfer(size, src, rec, f, c, cols, weights, refl, q_shell, samples_per_m, tau,
+                         spectrum, tol_rel, max_order, reflection)
+
+
+def _transfer(size, src, rec, f, c, cols, weights, refl, q_shell, samples_per_m, tau, spectrum, tol_rel,
+              max_order, reflection):
     n_src, n_rec = len(src), len(rec)
     h = np.empty((n_src, n_rec, f.size), complex)
     orders = np.zeros((n_src, n_rec), dtype=int)
@@ -845,7 +906,7 @@ def image_source_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_o
         "orders": orders,
         "remainder_db": rem_db,
         "impulse_responses": len(cols),
-        "sampling_rate_hz": fs,
+        "sampling_rate_hz": samples_per_m * c,
         "kernel_relative_error": KERNEL_RELATIVE_ERROR,
     }
     return h, info
