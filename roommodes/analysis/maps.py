@@ -28,7 +28,7 @@ from .predict import DEFAULT_RANGE_HZ, room_schroeder_frequency
 from .uncertainty import DEFAULT_SEED, PERCENTILES, _check_count, _generators, draw_room
 
 __all__ = ["MATTERS_COUPLING", "ModeCoupling", "FloorMap", "mode_coupling", "floor_level_map", "FloorMapBands",
-           "floor_map_bands", "MAP_SAMPLES", "MAP_UNSURE_DB", "MAP_BANDS_MAX_VALUES"]
+           "floor_map_bands", "coupling_ranges", "MAP_SAMPLES", "MAP_UNSURE_DB", "MAP_BANDS_MAX_VALUES"]
 
 #: A mode "matters" at the seat when a speaker's coupling ``|psi_s psi_seat|`` reaches this
 #: (our choice: a quarter of the coupling between two corners, -12 dB).
@@ -621,3 +621,39 @@ def floor_map_bands(room, floor_map, layout=None, *, n_samples=MAP_SAMPLES, seed
         pct[:, some] = np.nanpercentile(levels[:, some], PERCENTILES, axis=0)
     p10, p50, p90 = (v.reshape(nx, ny) for v in pct)
     return FloorMapBands(p10, p50, p90, quietest, seed, m.method, u, solve_step_m, float(elapsed))
+
+
+def coupling_ranges(room, coupling, layout=None, *, n_samples=MAP_SAMPLES, seed=None, uncertainty=None):
+    """10th and 90th percentile of each mode's coupling over rooms drawn from ``room``.
+
+    The modes of ``coupling`` (their index triples) are kept; in each drawn room
+    (:func:`~roommodes.analysis.uncertainty.draw_room`: its size, the speakers and the seat
+    moved by their drawn errors) the coupling ``|psi(speaker) psi(seat)|`` is taken again.
+
+    Parameters
+    ----------
+    room : Room
+    coupling : ModeCoupling
+        From :func:`mode_coupling` for ``layout``.
+    layout : Layout, optional
+        Default the room file's own.
+    n_samples, seed, uncertainty
+        As :func:`floor_map_bands`.
+
+    Returns
+    -------
+    (coupling_p10, coupling_p90) : two arrays (S, N)
+    """
+    layout = room.layout if layout is None else layout
+    n = _check_count(n_samples)
+    seed = DEFAULT_SEED if seed is None else int(seed)
+    u = room.uncertainty if uncertainty is None else uncertainty
+    base = room.with_layout(layout)
+    out = np.empty((n,) + coupling.coupling.shape)
+    for i, g in enumerate(_generators(seed, n)):
+        drawn, _ = draw_room(base, g, u)
+        psi_s = mode_shapes(coupling.indices, drawn.size_m, drawn.layout.source_positions_m)
+        psi_r = mode_shapes(coupling.indices, drawn.size_m, [drawn.layout.seat_m])[0]
+        out[i] = np.abs(psi_s * psi_r[None, :])
+    p10, p90 = np.percentile(out, [10.0, 90.0], axis=0)
+    return p10, p90

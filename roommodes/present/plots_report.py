@@ -209,7 +209,7 @@ def plot_room_views(room, layout=None, keep_out=(), units="cm", title=None, path
     return fig
 
 
-def plot_mode_coupling(coupling, schroeder_hz=None, title=None, path=None, max_labels=14):
+def plot_mode_coupling(coupling, schroeder_hz=None, title=None, path=None, max_labels=14, ranges=None):
     """Chart the modes that matter at the seat: each mode's coupling to each speaker and the seat.
 
     Parameters
@@ -220,6 +220,10 @@ def plot_mode_coupling(coupling, schroeder_hz=None, title=None, path=None, max_l
     title, path : optional
     max_labels : int
         At most this many modes (the strongest) are labelled with their indices.
+    ranges : (coupling_p10, coupling_p90, n_rooms), optional
+        Each coupling's 10-90 % range over drawn rooms
+        (:func:`roommodes.analysis.maps.coupling_ranges`), drawn as a wide pale bar behind
+        each stem.
 
     Returns
     -------
@@ -244,6 +248,8 @@ def plot_mode_coupling(coupling, schroeder_hz=None, title=None, path=None, max_l
     for s, name in enumerate(cp.names):
         fx = f * 10 ** offsets[s]
         c = _speaker_colour(s)
+        if ranges is not None:
+            ax1.vlines(fx, ranges[0][s], ranges[1][s], color=c, lw=5.0, alpha=0.3)
         ax1.vlines(fx, 0, cp.coupling[s], color=c, lw=1.6, alpha=0.9)
         for kind, marker in _KIND_MARKERS.items():
             sel = cp.kind == kind
@@ -251,6 +257,8 @@ def plot_mode_coupling(coupling, schroeder_hz=None, title=None, path=None, max_l
         ax1.plot([], [], color=c, lw=1.6, label=f"{name} speaker and seat")
     for kind, marker in _KIND_MARKERS.items():
         ax1.plot([], [], marker, color="0.35", ms=4.5, ls="none", label=kind)
+    if ranges is not None:
+        ax1.plot([], [], color="0.35", lw=5.0, alpha=0.3, label=f"10-90 % of {ranges[2]} drawn rooms")
     ax1.axhline(cp.threshold, color="0.3", lw=0.8, ls="--")
     ax1.text(fmin * 1.02, cp.threshold + 0.015, f"matters (>= {cp.threshold:g})", fontsize=7.5, color="0.3",
              va="bottom")
@@ -354,7 +362,7 @@ def _spread_panel(fig, ax, m, bands, room, units):
               + ax.get_legend_handles_labels()[0], fontsize=7.5, loc="upper center", bbox_to_anchor=(0.5, -0.09),
               ncol=1, frameon=False)
     ax.set_title(f"How sure: 10-90 % spread over {bands.n_samples} drawn rooms (seed {bands.seed})\n"
-                 "light: alike in every drawn room; dark: moves with what the file does not know", fontsize=9.5)
+                 "light: the same in every drawn room; dark: unsure", fontsize=9.5)
 
 
 def plot_floor_map(floor_map, room, layout=None, units="cm", title=None, path=None, range_db=30.0, bands=None):
