@@ -89,9 +89,13 @@ def _echo_bands(fm, bands, room, units):
                    f"(median {bands.level_db_p50[ix, iy]:+.1f} dB)")
     qx = np.percentile(bands.quietest_m[:, 0], [10, 90])
     qy = np.percentile(bands.quietest_m[:, 1], [10, 90])
+    cell_m = 2.0 * max(fm.x_m[1] - fm.x_m[0], fm.y_m[1] - fm.y_m[0])
+    moves = (qx[1] - qx[0] > cell_m) or (qy[1] - qy[0] > cell_m)
     click.echo(f"  quietest spot of the drawn rooms (10-90 %): {format_length(qx[0], units)} to "
                f"{format_length(qx[1], units)} from the front wall, {format_length(qy[0], units)} to "
-               f"{format_length(qy[1], units)} from the left wall: nodes move, do not rely on a deep dip's place")
+               f"{format_length(qy[1], units)} from the left wall: "
+               + ("it moves; do not rely on exactly where a deep dip lies" if moves else
+                  "it stays within two cells"))
 
 
 def _length_or_fail(text, name):

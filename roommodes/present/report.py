@@ -38,7 +38,6 @@ from ..analysis.explain import explain as run_explain
 from ..analysis.fit import fit_room
 from ..analysis.maps import (
     INTERPOLATED_METHODS,
-    MAP_SAMPLES,
     MAP_UNSURE_DB,
     coupling_ranges,
     floor_level_map,
@@ -776,11 +775,11 @@ def _section_responses(run):
         except ValueError:
             continue
         preds.append((lay, predict(room, lay, f, method=method)))
-    all_bands = None if bands is None else [bands] + [_bands(run, lay) for lay, _ in preds[1:]]
+    all_bands = None if bands is None else [bands] + [_bands(run, lay, own=False) for lay, _ in preds[1:]]
     fig = plot_prediction([p for _, p in preds], ms300, title=f"{room.name}: layouts compared", bands=all_bands)
     doc.figure(fig, "layouts", "The file's layout and the standard placements compared",
                "Colour: layout; line style: channel. Standard placements: corner, against the wall, mid-room and "
-               "desk (docs/placement.md)." + _band_caption(run))
+               "desk (docs/placement.md)." + _layouts_band_caption(run))
     rows = []
     for lay, p in preds:
         band = usable_band(lay.speakers)
@@ -816,10 +815,9 @@ def _section_responses(run):
 
 def _maps_held(run):
     """The count and seed of the drawn rooms of the floor maps and the mode coupling (at most
-    ``map``'s default count), or None without ``uncertainty``."""
-    if not run.uncertainty:
-        return None
-    return {"n_samples": min(run.uncertainty["n_samples"], MAP_SAMPLES), "seed": run.uncertainty["seed"]}
+    :data:`COMPARED_SAMPLES`: each map costs one solver call per drawn room over its whole grid),
+    or None without ``uncertainty``."""
+    return _compared(run)
 
 
 def _map_band_caption(mb):
@@ -839,21 +837,49 @@ def _map_band_values(mb):
             "unsure_share": float(np.mean(sp > MAP_UNSURE_DB))}
 
 
-def _bands(run, layout):
-    """The 10-50-90 % bands of ``layout`` over the drawn rooms, or None without ``uncertainty``."""
+#: Rooms drawn at most for the layouts the report compares with the file's own (the standard
+#: placements, the placement figure's curves and sweep): the file's own layout is drawn as many
+#: times as asked (``report --samples``, default
+#: :data:`~roommodes.analysis.uncertainty.DEFAULT_SAMPLES`), the others' rough bands at this count
+#: keep the report's time in bounds (docs/report.md gives the measurement).
+COMPARED_SAMPLES = 100
+
+
+def _compared(run):
+    """The count and seed of the compared layouts' drawn rooms, or None without ``uncertainty``."""
     if not run.uncertainty:
         return None
+    return {"n_samples": min(run.uncertainty["n_samples"], COMPARED_SAMPLES), "seed": run.uncertainty["seed"]}
 
-    run.step(f"uncertainty: {run.uncertainty['n_samples']} drawn rooms, {layout.name} layout")
-    return predict_bands(run.room, layout, run.f, n_samples=run.uncertainty["n_samples"],
+
+def _bands(run, layout, own=True):
+    """The 10-50-90 % bands of ``layout`` over the drawn rooms (the file's own layout: the count
+    asked; a compared one: at most :data:`COMPARED_SAMPLES`), or None without ``uncertainty``."""
+    if not run.uncertainty:
+        return None
+    held = run.uncertainty if own else _compared(run)
+
+    run.step(f"uncertainty: {held['n_samples']} drawn rooms, {layout.name} layout")
+    return predict_bands(run.room, layout, run.f, n_samples=held["n_samples"],
                          seed=run.uncertainty["seed"], method=run.method)
 
 
-def _band_caption(run):
+def _band_caption(run, n_samples=None):
     if not run.uncertainty:
         return ""
-    return (f" Shaded: 10-90 % of {run.uncertainty['n_samples']} rooms drawn from the room file's [uncertainty] "
+    n = run.uncertainty["n_samples"] if n_samples is None else n_samples
+    return (f" Shaded: 10-90 % of {n} rooms drawn from the room file's [uncertainty] "
             f"(seed {run.uncertainty['seed']}).")
+
+
+def _layouts_band_caption(run):
+    if not run.uncertainty:
+        return ""
+    n, m = run.uncertainty["n_samples"], _compared(run)["n_samples"]
+    if n == m:
+        return _band_caption(run)
+    return (f" Shaded: 10-90 % of the rooms drawn from the room file's [uncertainty] (seed {run.uncertainty['seed']}): "
+            f"{n} for the file's layout, {m} for each standard placement (rougher edges).")
 
 
 def _feature_spreads(run, pred, feats, bands):
@@ -968,20 +994,21 @@ def _section_placement(run):
         cur = f" against {res.current.score:.2f} dB for the file's layout" if res.current is not None else ""
         glance.append(f"Suggested placement (score {best.score:.2f} dB{cur}; lower is better): {sp_txt}; seat "
                       f"{walls_text(room, best.layout.seat_m, units)}.")
-        step("placement figure" + (f" (uncertainty: {run.uncertainty['n_samples']} drawn rooms per layout)"
+        step("placement figure" + (f" (uncertainty: {_compared(run)['n_samples']} drawn rooms per layout)"
                                    if run.uncertainty else ""))
         fig = _placement_figure(room, space, res, layout if room.layout is not None else None, method,
-                                drawn=run.uncertainty)
+                                drawn=_compared(run))
         doc.figure(fig, "placement", "The suggested layout",
                    "(a) Predicted level at the seat for the suggested and the file's layout. (c) The floor plan "
                    "coloured by the score the seat would get at each point with the suggested speakers. (d) The "
                    "score as both speakers move away from the front wall, everything else kept (the panels are "
                    "lettered as in the place command's figure, whose (b) the report leaves out)."
-                   + _band_caption(run).replace(" Shaded:", " Shaded in (a):")
+                   + _band_caption(run, _compared(run)["n_samples"] if run.uncertainty else None).replace(
+                       " Shaded:", " Shaded in (a):")
                    + (f" Circles in (c): where 80 % of positions drawn with the room file's sd of "
                       f"{room.uncertainty.position_m * 100:g} cm per coordinate land on the plan (radius 1.79 sd). "
                       f"Shaded in (d): the score's 10-90 % range over "
-                      f"{min(run.uncertainty['n_samples'], PROFILE_BAND_SAMPLES)} drawn rooms (the same seed) at up to "
+                      f"{_compared(run)['n_samples']} drawn rooms (the same seed) at up to "
                       f"{PROFILE_BAND_POINTS} distances along the sweep, scored with the search's modal scorer."
                       if run.uncertainty else ""))
     step("left/right explanation")
@@ -1539,11 +1566,6 @@ def _placement_figure(room, space, res, current, method, drawn=None):
 #: The placement figure's sweep band: at most this many distances of the sweep are scored in
 #: the drawn rooms (every 2 cm would cost four times as much; the score is smooth between them).
 PROFILE_BAND_POINTS = 16
-#: ... in at most this many drawn rooms (the compared layouts' count; 0.04 s of one core per
-#: drawn room on the demo room, docs/report.md).
-PROFILE_BAND_SAMPLES = 100
-
-
 def _profile_band(room, best, distances_m, res, space, drawn):
     """10-90 % of the score over drawn rooms along the placement figure's sweep (both speakers'
     distance from the front wall), with the search's score (:func:`ensemble_scores`)."""
@@ -1551,7 +1573,7 @@ def _profile_band(room, best, distances_m, res, space, drawn):
     d = distances_m[::stride]
     lays = [replace(best, speakers=tuple(sp.moved((float(x), sp.position_m[1], sp.position_m[2]))
                                          for sp in best.speakers[:2]) + tuple(best.speakers[2:])) for x in d]
-    n = min(drawn["n_samples"], PROFILE_BAND_SAMPLES)
+    n = drawn["n_samples"]
     sc = ensemble_scores(room, lays, n_samples=n, seed=drawn["seed"], weights=res.weights, band_hz=res.band_hz,
                          area_m=space.area_m, area_points=space.area_points)
     p10, p90 = np.percentile(sc, [10.0, 90.0], axis=0)
