@@ -227,3 +227,20 @@ def test_map_too_many_levels_is_one_line():
     res = run("map", DEMO, "--freq", 60, "--step", "2cm", "--uncertainty", "--samples", 5000)
     assert res.exit_code == 2
     assert res.stderr.count("\n") == 1 and "--samples" in res.stderr and "coarser step" in res.stderr
+
+
+def test_map_spread_is_zero_when_the_room_file_states_no_uncertainty(tmp_path):
+    # every sd 0 (absorption_rel stated, so the materials' own ranges do not apply): each drawn
+    # room is the file's room, and the 10-90 % spread is zero on every cell
+    room = tmp_path / "room.toml"
+    room.write_text(open(DEMO, encoding="utf-8").read()
+                    + "\n[uncertainty]\nposition_m = 0\nsize_m = 0\nabsorption_rel = 0\ntemperature_c = 0\n",
+                    encoding="utf-8")
+    res = run("map", room, "--freq", 60, "--step", "25cm", "--uncertainty", "--samples", 3, "--json")
+    assert res.exit_code == 0, res.output
+    data = json.loads(res.stdout)
+    p10, p50, p90 = (np.array(data[f"level_db_p{q}"], dtype=float) for q in (10, 50, 90))
+    nominal = np.array(data["level_db"], dtype=float)
+    ok = np.isfinite(nominal)
+    assert np.max(p90[ok] - p10[ok]) < 1e-4
+    np.testing.assert_allclose(p50[ok], nominal[ok], atol=1e-4)
