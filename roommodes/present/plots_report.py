@@ -430,7 +430,7 @@ def plot_floor_map(floor_map, room, layout=None, units="cm", title=None, path=No
                     label=f"nodal lines of mode ({','.join(str(v) for v in mode['indices'])})")
     if bands is not None:
         q = bands.quietest_m
-        ax.plot(q[:, 1], q[:, 0], "x", color=PALETTE[1], ms=4.5, mew=0.9, alpha=0.8, ls="none",
+        ax.plot(q[:, 1], q[:, 0], "x", color=PALETTE[1], ms=6, mew=1.2, alpha=0.85, ls="none",
                 label=f"quietest spot in each of {bands.n_samples} drawn rooms")
     _plan_frame(ax, m, room, units)
     if m.seat_m is not None:
