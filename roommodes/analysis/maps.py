@@ -5,24 +5,30 @@
   resonance term enters that speaker's transfer to the seat in the modal sum
   ``H = sum_n psi_n(r_speaker) psi_n(r_seat) W_n(f)`` (Kuttruff, Room Acoustics, 5th ed.,
   2009, sec. 3.4);
-* :func:`floor_level_map`: the predicted level over a horizontal plane at one frequency.
+* :func:`floor_level_map`: the predicted level over a horizontal plane at one frequency;
+* :func:`floor_map_bands`: the same map's 10-50-90 % percentiles over rooms drawn from the
+  room file's ``[uncertainty]`` (:mod:`roommodes.analysis.uncertainty`).
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from time import process_time
 
 import numpy as np
 
 from ..dsp.checks import check_number
 from ..model.modes import mode_shapes, room_modes
+from ..model.room import WALL_MARGIN_M
 from ..model.speaker import speaker_response
 from ..solvers import DEFAULT_METHOD
 from .levels import speaker_levels
 from .predict import DEFAULT_RANGE_HZ, room_schroeder_frequency
+from .uncertainty import DEFAULT_SEED, PERCENTILES, _check_count, _generators, draw_room
 
-__all__ = ["MATTERS_COUPLING", "ModeCoupling", "FloorMap", "mode_coupling", "floor_level_map"]
+__all__ = ["MATTERS_COUPLING", "ModeCoupling", "FloorMap", "mode_coupling", "floor_level_map", "FloorMapBands",
+           "floor_map_bands", "coupling_ranges", "MAP_SAMPLES", "MAP_UNSURE_DB", "MAP_BANDS_MAX_VALUES"]
 
 #: A mode "matters" at the seat when a speaker's coupling ``|psi_s psi_seat|`` reaches this
 #: (our choice: a quarter of the coupling between two corners, -12 dB).
@@ -273,6 +279,59 @@ INTERPOLATED_METHODS = ("exact", "modal")
 _INTERP_CLEARANCE_M = 0.05
 
 
+def _plane_pressure(room, speakers, x, y, h_m, f, solve, near_src, method, include_speaker, solve_step_m):
+    """Summed complex pressure of ``speakers`` on the grid ``x`` by ``y`` at ``h_m`` (NaN at ``near_src``).
+
+    ``solve(points, mask)`` gives the summed pressure at ``points[mask]`` (NaN elsewhere). With
+    ``solve_step_m`` (and a solver in :data:`INTERPOLATED_METHODS`), the grid is solved at
+    nodes about that far apart and interpolated as :func:`floor_level_map` describes.
+    """
+    nx, ny = x.size, y.size
+    xx, yy = np.meshgrid(x, y, indexing="ij")
+    pts = np.stack([xx.ravel(), yy.ravel(), np.full(xx.size, h_m)], axis=1)
+    src = np.array([s.position_m for s in speakers], dtype=float)
+    coarse = None
+    if solve_step_m is not None:
+        solve_step = check_number("solve step", solve_step_m, 0.01, 1.0, unit=" m")
+        # nodes spanning the first to the last cell centre along each axis
+        mx = math.ceil((x[-1] - x[0]) / solve_step) + 1
+        my = math.ceil((y[-1] - y[0]) / solve_step) + 1
+        # tested with these two solvers (the image solver's truncated lattice is not smooth
+        # enough between nodes: solved at every cell)
+        if method in INTERPOLATED_METHODS and mx >= 4 and my >= 4 and mx * my < 0.5 * nx * ny:
+            coarse = mx, my
+    if coarse is None:
+        p = solve(pts, ~near_src)
+        p[near_src] = np.nan
+    else:
+        mx, my = coarse
+        cx, cy = np.linspace(x[0], x[-1], mx), np.linspace(y[0], y[-1], my)
+        wx = _cubic_weights((x - x[0]) / (cx[1] - cx[0]), mx)
+        wy = _cubic_weights((y - y[0]) / (cy[1] - cy[0]), my)
+        cxx, cyy = np.meshgrid(cx, cy, indexing="ij")
+        nodes = np.stack([cxx.ravel(), cyy.ravel(), np.full(cxx.size, h_m)], axis=1)
+        bad = np.min(np.linalg.norm(nodes[:, None, :] - src[None, :, :], axis=-1), axis=1) < _INTERP_CLEARANCE_M
+        # a cell uses a node when both its weights for it are non-zero
+        uses_bad = ((wx != 0).astype(float) @ bad.reshape(mx, my).astype(float) @ (wy != 0).T.astype(float)) > 0
+        direct = uses_bad.ravel() & ~near_src
+        # the speakers' own free field S e^{-jkr} / r (the room's transfer is it plus a part
+        # that is smooth in the room) is taken out before interpolating and put back after
+        k = 2.0 * np.pi * f / room.speed_of_sound
+        gain = np.array([speaker_response(sp, [f])[0] if include_speaker else 1.0 for sp in speakers])
+
+        def free_field(points):
+            r = np.maximum(np.linalg.norm(points[:, None, :] - src[None, :, :], axis=-1), 1e-6)
+            return (gain[None, :] * np.exp(-1j * k * r) / r).sum(axis=1)
+
+        p_nodes = solve(nodes, ~bad) - free_field(nodes)
+        p_nodes = np.where(bad, 0.0, p_nodes).reshape(mx, my)
+        p = (wx @ p_nodes @ wy.T).ravel() + free_field(pts)
+        if direct.any():
+            p[direct] = solve(pts[direct], np.ones(int(direct.sum()), bool))
+        p[near_src] = np.nan
+    return p
+
+
 #: Most grid points a floor map computes (a 4.6 x 3.4 m floor at 2 cm is 39,100 points).
 MAP_MAX_POINTS = 40000
 
@@ -377,45 +436,8 @@ def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=None, chan
                                              include_speaker=include_speaker).transfer[0, :, 0]
         return h.sum(axis=0)
 
-    coarse = None
-    if solve_step_m is not None:
-        solve_step = check_number("solve step", solve_step_m, 0.01, 1.0, unit=" m")
-        # nodes spanning the first to the last cell centre along each axis
-        mx = math.ceil((x[-1] - x[0]) / solve_step) + 1
-        my = math.ceil((y[-1] - y[0]) / solve_step) + 1
-        # tested with these two solvers (the image solver's truncated lattice is not smooth
-        # enough between nodes: solved at every cell)
-        if method in INTERPOLATED_METHODS and mx >= 4 and my >= 4 and mx * my < 0.5 * nx * ny:
-            coarse = mx, my
-    if coarse is None:
-        total = np.abs(solve(pts, ~near_src))
-    else:
-        mx, my = coarse
-        cx, cy = np.linspace(x[0], x[-1], mx), np.linspace(y[0], y[-1], my)
-        wx = _cubic_weights((x - x[0]) / (cx[1] - cx[0]), mx)
-        wy = _cubic_weights((y - y[0]) / (cy[1] - cy[0]), my)
-        cxx, cyy = np.meshgrid(cx, cy, indexing="ij")
-        nodes = np.stack([cxx.ravel(), cyy.ravel(), np.full(cxx.size, h_m)], axis=1)
-        bad = np.min(np.linalg.norm(nodes[:, None, :] - src[None, :, :], axis=-1), axis=1) < _INTERP_CLEARANCE_M
-        # a cell uses a node when both its weights for it are non-zero
-        uses_bad = ((wx != 0).astype(float) @ bad.reshape(mx, my).astype(float) @ (wy != 0).T.astype(float)) > 0
-        direct = uses_bad.ravel() & ~near_src
-        # the speakers' own free field S e^{-jkr} / r (the room's transfer is it plus a part
-        # that is smooth in the room) is taken out before interpolating and put back after
-        k = 2.0 * np.pi * f / room.speed_of_sound
-        gain = np.array([speaker_response(sp, [f])[0] if include_speaker else 1.0 for sp in speakers])
-
-        def free_field(points):
-            r = np.maximum(np.linalg.norm(points[:, None, :] - src[None, :, :], axis=-1), 1e-6)
-            return (gain[None, :] * np.exp(-1j * k * r) / r).sum(axis=1)
-
-        p_nodes = solve(nodes, ~bad) - free_field(nodes)
-        p_nodes = np.where(bad, 0.0, p_nodes).reshape(mx, my)
-        p = (wx @ p_nodes @ wy.T).ravel() + free_field(pts)
-        if direct.any():
-            p[direct] = solve(pts[direct], np.ones(int(direct.sum()), bool))
-        p[near_src] = np.nan
-        total = np.abs(p)
+    total = np.abs(_plane_pressure(room, speakers, x, y, h_m, f, solve, near_src, method, include_speaker,
+                                   solve_step_m))
     with np.errstate(invalid="ignore"):
         level = np.where(np.isfinite(total), 20.0 * np.log10(np.maximum(total, 1e-12)), np.nan)
     # the seat on a grid reaching the prediction's top frequency: the modal solver then keeps
@@ -436,3 +458,202 @@ def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=None, chan
     modes = tuple({"indices": tuple(int(v) for v in ms.indices[i]), "freq_hz": float(ms.freq_hz[i]),
                    "kind": str(ms.kind[i]), "bandwidth_hz": float(ms.bandwidth_hz[i])} for i in near)
     return FloorMap(f, h_m, x, y, level.reshape(nx, ny), tuple(chosen), src, seat, seat_level, modes, method)
+
+
+# ======================================================================================
+# How sure the map is: the level over the floor in drawn rooms
+# ======================================================================================
+#: Rooms drawn by default for a floor map's bands (``map --uncertainty``). Each is one solver
+#: call holding every speaker and grid node (about 0.03-0.1 s of one core on the demo room's
+#: 5 cm map, docs/uncertainty.md); 200 leave about 20 rooms beyond each of the 10 % and 90 %
+#: points, as :data:`~roommodes.analysis.uncertainty.SUBS_SAMPLES` does.
+MAP_SAMPLES = 200
+#: A cell whose 10-90 % spread exceeds this is marked unsure on the plot, dB (our choice: its
+#: level is then not known to within +-3 dB, the contour step of the map).
+MAP_UNSURE_DB = 6.0
+#: Most levels (drawn rooms x grid cells) the bands hold at once: 40 million, 160 MB as 32-bit
+#: floats (the demo room's 5 cm map at 800 rooms holds 5 million).
+MAP_BANDS_MAX_VALUES = 40_000_000
+
+
+@dataclass(frozen=True, eq=False)
+class FloorMapBands:
+    """Percentiles of the level over the floor over rooms drawn from ``[uncertainty]``.
+
+    Attributes
+    ----------
+    level_db_p10, level_db_p50, level_db_p90 : ndarray (X, Y)
+        10th, 50th and 90th percentile of each cell's level, dB (the grid of the nominal
+        :class:`FloorMap`; NaN where the nominal map has none and where a drawn speaker came
+        within the map's clearance of the cell in half the rooms or more).
+    quietest_m : ndarray (N, 2)
+        Distance from the front wall and from the left wall of the quietest cell in each
+        drawn room, m: where the deepest node lands.
+    seed : int
+    method : str
+    uncertainty : Uncertainty
+    solve_step_m : float or None
+        Step of the solved grid in each drawn room (None: every cell solved).
+    elapsed_s : float
+        CPU time of the drawn rooms, s.
+    """
+
+    level_db_p10: np.ndarray
+    level_db_p50: np.ndarray
+    level_db_p90: np.ndarray
+    quietest_m: np.ndarray
+    seed: int
+    method: str
+    uncertainty: object
+    solve_step_m: float | None
+    elapsed_s: float
+
+    @property
+    def n_samples(self):
+        """Number of drawn rooms."""
+        return int(self.quietest_m.shape[0])
+
+    @property
+    def spread_db(self):
+        """Width of each cell's 10-90 % band (X, Y), dB."""
+        return self.level_db_p90 - self.level_db_p10
+
+    def to_dict(self):
+        """JSON-ready values: ``level_db_p10/p50/p90`` on the map's grid and the ensemble's settings."""
+        return {"level_db_p10": self.level_db_p10, "level_db_p50": self.level_db_p50,
+                "level_db_p90": self.level_db_p90,
+                "uncertainty": {"samples": self.n_samples, "seed": self.seed, "method": self.method,
+                                "uncertainty": self.uncertainty.to_dict(), "solve_step_m": self.solve_step_m,
+                                "unsure_spread_db": MAP_UNSURE_DB,
+                                "quietest_m": self.quietest_m}}
+
+
+def floor_map_bands(room, floor_map, layout=None, *, n_samples=MAP_SAMPLES, seed=None, uncertainty=None,
+                    include_speaker=True, solve_step_m=None):
+    """The level over the floor of ``floor_map`` in rooms drawn from ``room``'s uncertainty.
+
+    Parameters
+    ----------
+    room : Room
+    floor_map : FloorMap
+        The nominal map (:func:`floor_level_map`): its grid, height, speakers and solver are
+        used in every drawn room.
+    layout : Layout, optional
+        The layout the map was drawn for; default the room file's own.
+    n_samples, seed : int
+        Drawn rooms and their seed (default
+        :data:`~roommodes.analysis.uncertainty.DEFAULT_SEED`); drawn room *i* is the one
+        :func:`~roommodes.analysis.uncertainty.predict_bands` draws as its *i*-th.
+    uncertainty : Uncertainty, optional
+        Default ``room.uncertainty``.
+    include_speaker : bool
+    solve_step_m : float, optional
+        As :func:`floor_level_map`: solve a coarser grid in each drawn room and interpolate.
+
+    Returns
+    -------
+    FloorMapBands
+
+    Notes
+    -----
+    The grid stays where it is in the room's coordinates (distances from the front and left
+    walls, kept inside a drawn room that came out smaller); the speakers move by their drawn
+    position errors, the walls and the air change. Each drawn room is one solver call holding
+    every playing speaker and every solved point (two when cells next to a speaker are solved
+    directly). The levels are kept as 32-bit floats, at most :data:`MAP_BANDS_MAX_VALUES`.
+    """
+    m = floor_map
+    layout = room.layout if layout is None else layout
+    if layout is None:
+        raise ValueError(f"{room.source or room.name}: the room file has no [speakers] and [seat]")
+    n = _check_count(n_samples)
+    seed = DEFAULT_SEED if seed is None else int(seed)
+    u = room.uncertainty if uncertainty is None else uncertainty
+    nx, ny = m.x_m.size, m.y_m.size
+    if n * nx * ny > MAP_BANDS_MAX_VALUES:
+        raise ValueError(f"{n} drawn rooms of a {nx} x {ny} grid hold {n * nx * ny} levels, more than "
+                         f"{MAP_BANDS_MAX_VALUES}: use fewer samples (at most {MAP_BANDS_MAX_VALUES // (nx * ny)}) "
+                         "or a coarser step")
+    f = float(m.freq_hz)
+    xx, yy = np.meshgrid(m.x_m, m.y_m, indexing="ij")
+    pts = np.stack([xx.ravel(), yy.ravel(), np.full(xx.size, m.height_m)], axis=1)
+    near_nominal = (np.min(np.linalg.norm(pts[:, None, :] - np.asarray(m.sources_m)[None, :, :], axis=-1), axis=1)
+                    < _MAP_CLEARANCE_M)
+    base = room.with_layout(layout)
+    levels = np.empty((n, nx * ny), dtype=np.float32)
+    quietest = np.empty((n, 2))
+    t0 = process_time()
+    for i, g in enumerate(_generators(seed, n)):
+        drawn, _ = draw_room(base, g, u)
+        by_name = {s.name: s for s in drawn.layout.speakers}
+        speakers = [by_name[c] for c in m.channels]
+        src = np.array([s.position_m for s in speakers], dtype=float)
+        inner = np.clip(pts, WALL_MARGIN_M, np.asarray(drawn.size_m) - WALL_MARGIN_M)
+        near = near_nominal | (np.min(np.linalg.norm(inner[:, None, :] - src[None, :, :], axis=-1), axis=1)
+                               < _MAP_CLEARANCE_M)
+
+        def solve(points, mask, drawn=drawn, speakers=speakers):
+            out = np.full(points.shape[0], np.nan + 0j)
+            if mask.any():
+                out[mask] = speaker_levels(drawn, speakers, points[mask], [f], method=m.method,
+                                           include_speaker=include_speaker).transfer[:, :, 0].sum(axis=0)
+            return out
+
+        # the grid clipped inside the drawn room is no longer regular at its far edge by up to
+        # a few mm; the interpolation's nodes span the nominal cell centres
+        x_in = np.clip(m.x_m, WALL_MARGIN_M, drawn.size_m[0] - WALL_MARGIN_M)
+        y_in = np.clip(m.y_m, WALL_MARGIN_M, drawn.size_m[1] - WALL_MARGIN_M)
+        p = _plane_pressure(drawn, speakers, x_in, y_in, m.height_m, f, solve, near, m.method, include_speaker,
+                            solve_step_m)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            lv = 20.0 * np.log10(np.maximum(np.abs(p), 1e-12))
+        lv[~np.isfinite(p)] = np.nan
+        levels[i] = lv
+        k = int(np.nanargmin(lv))
+        quietest[i] = m.x_m[k // ny], m.y_m[k % ny]
+    elapsed = process_time() - t0
+    holes = np.isnan(levels)
+    pct = np.full((len(PERCENTILES), nx * ny), np.nan)
+    clean = ~holes.any(axis=0)
+    pct[:, clean] = np.percentile(levels[:, clean], PERCENTILES, axis=0)
+    some = ~clean & (holes.sum(axis=0) < n / 2)
+    if some.any():
+        pct[:, some] = np.nanpercentile(levels[:, some], PERCENTILES, axis=0)
+    p10, p50, p90 = (v.reshape(nx, ny) for v in pct)
+    return FloorMapBands(p10, p50, p90, quietest, seed, m.method, u, solve_step_m, float(elapsed))
+
+
+def coupling_ranges(room, coupling, layout=None, *, n_samples=MAP_SAMPLES, seed=None, uncertainty=None):
+    """10th and 90th percentile of each mode's coupling over rooms drawn from ``room``.
+
+    The modes of ``coupling`` (their index triples) are kept; in each drawn room
+    (:func:`~roommodes.analysis.uncertainty.draw_room`: its size, the speakers and the seat
+    moved by their drawn errors) the coupling ``|psi(speaker) psi(seat)|`` is taken again.
+
+    Parameters
+    ----------
+    room : Room
+    coupling : ModeCoupling
+        From :func:`mode_coupling` for ``layout``.
+    layout : Layout, optional
+        Default the room file's own.
+    n_samples, seed, uncertainty
+        As :func:`floor_map_bands`.
+
+    Returns
+    -------
+    (coupling_p10, coupling_p90) : two arrays (S, N)
+    """
+    layout = room.layout if layout is None else layout
+    n = _check_count(n_samples)
+    seed = DEFAULT_SEED if seed is None else int(seed)
+    u = room.uncertainty if uncertainty is None else uncertainty
+    base = room.with_layout(layout)
+    out = np.empty((n,) + coupling.coupling.shape)
+    for i, g in enumerate(_generators(seed, n)):
+        drawn, _ = draw_room(base, g, u)
+        psi_s = mode_shapes(coupling.indices, drawn.size_m, drawn.layout.source_positions_m)
+        psi_r = mode_shapes(coupling.indices, drawn.size_m, [drawn.layout.seat_m])[0]
+        out[i] = np.abs(psi_s * psi_r[None, :])
+    p10, p90 = np.percentile(out, [10.0, 90.0], axis=0)
+    return p10, p90

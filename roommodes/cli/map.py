@@ -7,7 +7,7 @@ from pathlib import Path
 import click
 import numpy as np
 
-from ..analysis.maps import MAP_MAX_POINTS, floor_level_map
+from ..analysis.maps import MAP_MAX_POINTS, MAP_SAMPLES, MAP_UNSURE_DB, floor_level_map, floor_map_bands
 from ..dsp.checks import check_number
 from ..present.plots_report import plot_floor_map
 from ..present.units import format_length, parse_length, walls_text
@@ -25,6 +25,8 @@ from ._util import (
     load_or_fail,
     method_option,
     room_inputs,
+    uncertainty_options,
+    uncertainty_text,
 )
 
 __all__ = ["map_"]
@@ -71,6 +73,31 @@ def _ascii_map(fm, width=36):
     return ["+" + "-" * cols + "+"] + ["|" + "".join(r) + "|" for r in grid] + ["+" + "-" * cols + "+"]
 
 
+def _echo_bands(fm, bands, room, units):
+    """How sure the map is: the spread over the floor, at the seat and where the quietest spot lands."""
+    sp = bands.spread_db
+    ok = np.isfinite(sp)
+    click.echo("")
+    click.echo(f"How sure: {bands.n_samples} rooms drawn (seed {bands.seed}); {uncertainty_text(room)}.")
+    click.echo(f"  10-90 % spread of the level over the floor: median {np.median(sp[ok]):.1f} dB, "
+               f"largest {np.max(sp[ok]):.1f} dB; {100 * np.mean(sp[ok] > MAP_UNSURE_DB):.0f} % of the floor "
+               f"spreads more than {MAP_UNSURE_DB:g} dB (unsure there)")
+    if fm.seat_m is not None:
+        ix = int(np.argmin(np.abs(fm.x_m - fm.seat_m[0])))
+        iy = int(np.argmin(np.abs(fm.y_m - fm.seat_m[1])))
+        click.echo(f"  seat: {bands.level_db_p10[ix, iy]:+.1f} to {bands.level_db_p90[ix, iy]:+.1f} dB "
+                   f"(median {bands.level_db_p50[ix, iy]:+.1f} dB)")
+    qx = np.percentile(bands.quietest_m[:, 0], [10, 90])
+    qy = np.percentile(bands.quietest_m[:, 1], [10, 90])
+    cell_m = 2.0 * max(fm.x_m[1] - fm.x_m[0], fm.y_m[1] - fm.y_m[0])
+    moves = (qx[1] - qx[0] > cell_m) or (qy[1] - qy[0] > cell_m)
+    click.echo(f"  quietest spot of the drawn rooms (10-90 %): {format_length(qx[0], units)} to "
+               f"{format_length(qx[1], units)} from the front wall, {format_length(qy[0], units)} to "
+               f"{format_length(qy[1], units)} from the left wall: "
+               + ("it moves; do not rely on exactly where a deep dip lies" if moves else
+                  "it stays within two cells"))
+
+
 def _length_or_fail(text, name):
     try:
         return parse_length(text)
@@ -93,9 +120,12 @@ def _length_or_fail(text, name):
 @method_option
 @click.option("--plot", "plot_path", type=click.Path(path_type=Path), help="Write the map (PNG/SVG/PDF).")
 @click.option("--force", is_flag=True, help="Overwrite an existing plot file.")
+@uncertainty_options(samples=MAP_SAMPLES, samples_note=(
+    "Each room is one solver call over the whole grid (about 0.07 s of one core on the demo room's 5 cm map)."))
 @json_option
 @guard
-def map_(room_file, freq_hz, height, channels, layout, step, units, method, plot_path, force, as_json):
+def map_(room_file, freq_hz, height, channels, layout, step, units, method, plot_path, force, uncertainty, samples,
+         seed, as_json):
     """Map the level over the floor plan at one frequency: where a mode is loud and where its nodes are.
 
     The level is predicted on a grid over the whole floor at ear height (or --height), with
@@ -103,6 +133,11 @@ def map_(room_file, freq_hz, height, channels, layout, step, units, method, plot
     the seat, the loudest and quietest spots, the modes near the frequency and a coarse
     character map (front wall at the top, left wall on the left; ' ' quietest to '@'
     loudest); --plot draws it with the speakers, the seat and the nearest mode's nodal lines.
+
+    With --uncertainty, the map is computed again in rooms drawn from the room file's
+    [uncertainty] table: the 10th, 50th and 90th percentile of every cell's level, how much
+    of the floor is unsure (10-90 % spread over 6 dB) and where the quietest spot lands;
+    --plot adds a panel of the spread (docs/uncertainty.md).
     """
 
     freq_hz = check_number("--freq", freq_hz, 5.0, 1000.0, unit=" Hz")
@@ -120,8 +155,14 @@ def map_(room_file, freq_hz, height, channels, layout, step, units, method, plot
         fm = floor_level_map(room, freq_hz, lay, h_m, step_m, names, method)
     except ValueError as exc:
         fail(f"{room_file}: {exc}" if "step" in str(exc) or "floor" in str(exc) else str(exc))
+    bands = None
+    if uncertainty:
+        try:
+            bands = floor_map_bands(room, fm, lay, n_samples=samples, seed=seed)
+        except ValueError as exc:
+            fail(f"--samples: {exc}" if "drawn rooms of a" in str(exc) else str(exc))
     if as_json:
-        dump_json({"room": room.name, "layout": lay.name, **fm.to_dict()})
+        dump_json({"room": room.name, "layout": lay.name, **fm.to_dict(), **(bands.to_dict() if bands else {})})
     else:
         xm, ym, top = fm.extreme("max")
         xn, yn, low = fm.extreme("min")
@@ -145,8 +186,9 @@ def map_(room_file, freq_hz, height, channels, layout, step, units, method, plot
         for line in _ascii_map(fm):
             click.echo("  " + line)
         click.echo("  back wall     (speakers by initial, S = seat; ' ' quietest to '@' loudest)")
+        if bands is not None:
+            _echo_bands(fm, bands, room, units)
     if plot_path:
-
-        plot_floor_map(fm, room, lay, units, path=plot_path)
+        plot_floor_map(fm, room, lay, units, path=plot_path, bands=bands)
         echo_err(f"wrote {plot_path}")
     echo_err(MODEL_CAUTION)

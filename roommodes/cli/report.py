@@ -19,6 +19,7 @@ import click
 
 from .. import __version__
 from ..analysis.fit import FitTarget
+from ..analysis.uncertainty import DEFAULT_SAMPLES
 from ..dsp.response import log_frequencies
 from ..present.report import EMBED_FORMATS, SEARCH_MODES, MeasuredCurve, build_report
 from ._measured import (
@@ -53,8 +54,10 @@ from ._util import (
 
 __all__ = ["report", "write_report"]
 
-#: Drawn rooms ``report --uncertainty`` uses where none is chosen (per layout shown).
-REPORT_SAMPLES = 100
+#: Drawn rooms ``report --uncertainty`` uses where none is chosen: for the file's own layout (its
+#: response figure and which peaks and dips are solid) and the mode chart; the other figures draw
+#: at most their own counts (docs/report.md).
+REPORT_SAMPLES = DEFAULT_SAMPLES
 
 
 def _sha256(path):
@@ -174,8 +177,9 @@ def write_report(out, rep, force):
 @click.option("--force", is_flag=True, help="Overwrite an existing report and its folder (never an input).")
 @mic_cal_option
 @uncertainty_options(samples=REPORT_SAMPLES, samples_note=(
-    "The report draws them for the file's layout and each standard placement (one solver call per room and "
-    "layout)."))
+    "The file's own layout is drawn this many times; the standard placements, the placement figure and the "
+    "left/right figure, the floor maps and the mode coupling at most 100, the EQ and subs at most 200 "
+    "(docs/report.md)."))
 @spl_ref_option
 @json_option
 @guard

@@ -118,8 +118,8 @@ def _draw_boxes(ax, lay, space, color):
         ax.add_patch(Polygon(foot[:, ::-1], closed=True, fill=True, fc=color, ec="white", alpha=0.55, lw=0.8))
 
 
-def _floor_plan(ax, room, best, current, keep_out, seat_map, space=None):
-    from matplotlib.patches import Rectangle
+def _floor_plan(ax, room, best, current, keep_out, seat_map, space=None, position_sd_m=None):
+    from matplotlib.patches import Circle, Rectangle
 
     lx, ly, _ = room.size_m
     x, y, score = seat_map
@@ -150,6 +150,14 @@ def _floor_plan(ax, room, best, current, keep_out, seat_map, space=None):
         ax.plot(lay.seat_m[1], lay.seat_m[0], "*", color=color, ms=13, mec="white", label=f"{label}: seat")
         for p in sp:
             ax.plot([p[1], lay.seat_m[1]], [p[0], lay.seat_m[0]], color=color, lw=0.8, ls=":")
+        if position_sd_m:
+            # 80 % of a plan position drawn with sd s on each axis lands within s sqrt(-2 ln 0.2)
+            # = 1.79 s of the stated one (the Rayleigh distribution of the distance)
+            for p in [*sp[:, :2], lay.seat_m[:2]]:
+                ax.add_patch(Circle((p[1], p[0]), _R80 * position_sd_m, fill=False, ec="0.05", lw=1.0, zorder=6))
+    if position_sd_m:
+        ax.plot([], [], "o", mfc="none", mec="0.05", ms=4,
+                label=f"circles, to scale: 80 % of drawn positions (radius {_R80 * position_sd_m * 100:.1f} cm)")
     ax.set_xlim(-0.1, ly + 0.1)
     ax.set_ylim(lx + 0.1, -0.1)
     ax.set_aspect("equal")
@@ -160,8 +168,16 @@ def _floor_plan(ax, room, best, current, keep_out, seat_map, space=None):
     ax.set_title("(c) Floor plan (boxes drawn) and the score as the seat moves", fontsize=10)
 
 
-def _profile(ax, profile, chosen_m, xlabel=None):
+#: Radius, in position sds, holding 80 % of a position drawn on a plan: sqrt(-2 ln 0.2).
+_R80 = float(np.sqrt(-2.0 * np.log(0.2)))
+
+
+def _profile(ax, profile, chosen_m, xlabel=None, band=None):
     d, score, parts, allowed = profile
+    if band is not None:
+        bd, lo, hi, n_rooms = band
+        ax.fill_between(bd * 100, lo, hi, color="0.1", alpha=0.15, lw=0,
+                        label=f"score: 10-90 % of {n_rooms} drawn rooms")
     ax.plot(d * 100, score, color="0.1", lw=1.8, label="score")
     k = int(np.argmin(np.abs(d - chosen_m)))
     ax.plot([d[k] * 100], [score[k]], "o", color=PALETTE[1], ms=7, zorder=5, label="best layout")
@@ -212,7 +228,7 @@ def _score_spread(ax, spread, n_rooms):
 
 def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map, profile, keep_out=(),
                title=None, path=None, eq_curves=None, space=None, sweep_label=None, score_spread=None,
-               n_rooms=None, bands=None):
+               n_rooms=None, bands=None, position_sd_m=None, profile_band=None):
     """The placement figure: (a) predicted levels, (b) before/after EQ, (c) floor plan with
     the seat-score map and the boxes, (d) the score along one variable through the best layout,
     and, with scores over drawn rooms, (e) each layout's 10-90 % range beside its nominal score.
@@ -250,6 +266,11 @@ def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map
         channel's 10-90 % band over the drawn rooms is shaded in (a) in its layout's colour,
         and in (b) (with ``eq_curves`` in the same order) the band of the 1/6-octave level
         before and after the layout's EQ (:func:`eq_band_db`).
+    position_sd_m : float, optional
+        The positions' stated sd (``[uncertainty] position_m``): (c) circles each speaker and
+        seat with the radius that holds 80 % of positions drawn with it.
+    profile_band : (distance_m, score_p10, score_p90, n_rooms), optional
+        The score's 10-90 % range over drawn rooms along (d)'s variable, shaded.
     """
     if score_spread:
         fig, axes = new_figure(12.0, 13.2, 3, 2, gridspec_kw={"height_ratios": (1.0, 1.0, 0.55)})
@@ -261,8 +282,8 @@ def plot_place(room, best, current, predictions, band_hz, schroeder_hz, seat_map
         fig, axes = new_figure(12.0, 10.0, 2, 2)
     _curves(axes[0, 0], predictions, band_hz, schroeder_hz, bands)
     _eq_curves(axes[0, 1], eq_curves, band_hz, bands)
-    _floor_plan(axes[1, 0], room, best, current, keep_out, seat_map, space)
-    _profile(axes[1, 1], profile, best.speakers[0].position_m[0], sweep_label)
+    _floor_plan(axes[1, 0], room, best, current, keep_out, seat_map, space, position_sd_m)
+    _profile(axes[1, 1], profile, best.speakers[0].position_m[0], sweep_label, profile_band)
     fig.suptitle(title or f"Placement search: {room.name}", fontsize=11)
     if path is not None:
         save_figure(fig, path)

@@ -209,7 +209,7 @@ def plot_room_views(room, layout=None, keep_out=(), units="cm", title=None, path
     return fig
 
 
-def plot_mode_coupling(coupling, schroeder_hz=None, title=None, path=None, max_labels=14):
+def plot_mode_coupling(coupling, schroeder_hz=None, title=None, path=None, max_labels=14, ranges=None):
     """Chart the modes that matter at the seat: each mode's coupling to each speaker and the seat.
 
     Parameters
@@ -220,6 +220,10 @@ def plot_mode_coupling(coupling, schroeder_hz=None, title=None, path=None, max_l
     title, path : optional
     max_labels : int
         At most this many modes (the strongest) are labelled with their indices.
+    ranges : (coupling_p10, coupling_p90, n_rooms), optional
+        Each coupling's 10-90 % range over drawn rooms
+        (:func:`roommodes.analysis.maps.coupling_ranges`), drawn as a wide pale bar behind
+        each stem.
 
     Returns
     -------
@@ -244,6 +248,8 @@ def plot_mode_coupling(coupling, schroeder_hz=None, title=None, path=None, max_l
     for s, name in enumerate(cp.names):
         fx = f * 10 ** offsets[s]
         c = _speaker_colour(s)
+        if ranges is not None:
+            ax1.vlines(fx, ranges[0][s], ranges[1][s], color=c, lw=5.0, alpha=0.3)
         ax1.vlines(fx, 0, cp.coupling[s], color=c, lw=1.6, alpha=0.9)
         for kind, marker in _KIND_MARKERS.items():
             sel = cp.kind == kind
@@ -251,6 +257,8 @@ def plot_mode_coupling(coupling, schroeder_hz=None, title=None, path=None, max_l
         ax1.plot([], [], color=c, lw=1.6, label=f"{name} speaker and seat")
     for kind, marker in _KIND_MARKERS.items():
         ax1.plot([], [], marker, color="0.35", ms=4.5, ls="none", label=kind)
+    if ranges is not None:
+        ax1.plot([], [], color="0.35", lw=5.0, alpha=0.3, label=f"10-90 % of {ranges[2]} drawn rooms")
     ax1.axhline(cp.threshold, color="0.3", lw=0.8, ls="--")
     ax1.text(fmin * 1.02, cp.threshold + 0.015, f"matters (>= {cp.threshold:g})", fontsize=7.5, color="0.3",
              va="bottom")
@@ -294,72 +302,16 @@ def plot_mode_coupling(coupling, schroeder_hz=None, title=None, path=None, max_l
     return fig
 
 
-def plot_floor_map(floor_map, room, layout=None, units="cm", title=None, path=None, range_db=30.0):
-    """Map the level over the floor plan at ear height at one frequency, speakers and seat drawn.
-
-    Parameters
-    ----------
-    floor_map : roommodes.analysis.maps.FloorMap
-    room : Room
-    layout : Layout, optional
-        For the seat and speaker markers; default the room file's own.
-    units : {"cm", "m", "ft-in"}
-    title, path : optional
-    range_db : float
-        Largest colour range, dB: from the 99th percentile of the levels (the speakers' own
-        near field is louder still and gets the top colour) down to the quietest cell or
-        ``range_db`` below, whichever is higher.
-
-    Returns
-    -------
-    matplotlib.figure.Figure
-
-    Notes
-    -----
-    Thin contours every 3 dB. When a room mode lies within its half-power bandwidth
-    (or 3 %) of the frequency, its nodal lines in the plane (where its shape is zero)
-    are drawn dashed.
-    """
-    m = floor_map
-    layout = room.layout if layout is None else layout
-    lx, ly, _ = room.size_m
-    fig, ax = new_figure(7.2, min(9.0, 7.2 * lx / ly * 0.9 + 1.0))
-    lv = m.level_db
-    top = float(np.nanpercentile(lv, 99))  # the speakers' own near field is louder still
-    xe = np.concatenate([[0.0], (m.x_m[1:] + m.x_m[:-1]) / 2, [lx]])
-    ye = np.concatenate([[0.0], (m.y_m[1:] + m.y_m[:-1]) / 2, [ly]])
-    bottom = max(float(np.nanmin(lv)), top - range_db)
-    import matplotlib
-
-    base = matplotlib.colormaps["viridis"]
-    cmap = base.with_extremes(bad=base(1.0))  # the cells next to a speaker: its own near field, loud
-    mesh = ax.pcolormesh(ye, xe, lv, cmap=cmap, vmin=bottom, vmax=top, shading="flat", rasterized=True)
-    levels = np.arange(np.floor(bottom / 3) * 3, top + 3, 3)
-    ax.contour(m.y_m, m.x_m, lv, levels=levels, colors="white", linewidths=0.4, alpha=0.55)
-    cb = fig.colorbar(mesh, ax=ax, shrink=0.9)
-    cb.set_label("Level (dB re free field at 1 m)", fontsize=8.5)
+def _plan_frame(ax, m, room, units):
+    """Room outline, wall labels, ticks and the speakers and seat of a floor map's plan."""
     from matplotlib.patches import Rectangle
 
+    lx, ly, _ = room.size_m
     ax.add_patch(Rectangle((0, 0), ly, lx, fill=False, lw=2.2, color="0.1"))
-    if m.near_modes:
-        mode = m.near_modes[0]
-        nx, ny, _ = mode["indices"]
-        for k in range(nx):
-            xn = (k + 0.5) * lx / nx
-            ax.plot([0, ly], [xn, xn], color="white", lw=1.1, ls="--")
-        for k in range(ny):
-            yn = (k + 0.5) * ly / ny
-            ax.plot([yn, yn], [0, lx], color="white", lw=1.1, ls="--")
-        if nx or ny:
-            ax.plot([], [], color="0.4", lw=1.1, ls="--",
-                    label=f"nodal lines of mode ({','.join(str(v) for v in mode['indices'])})")
     for i, (name, pos) in enumerate(zip(m.channels, m.sources_m)):
         ax.plot(pos[1], pos[0], "s", color=_speaker_colour(i), ms=10, mec="white", mew=1.3)
         ax.text(pos[1], pos[0] + 0.13, name, ha="center", va="top", fontsize=8, color=_speaker_colour(i),
                 fontweight="bold", bbox=_LABEL_BOX)
-    if m.seat_m is not None:
-        ax.plot(m.seat_m[1], m.seat_m[0], "*", color="white", ms=16, mec="0.1", mew=1.0,
-                label=f"seat: {m.seat_level_db:+.1f} dB")
     ax.text(ly / 2, 0.05, "front wall", ha="center", va="top", fontsize=8, color="0.1", bbox=_LABEL_BOX)
     ax.text(ly / 2, lx - 0.05, "back wall", ha="center", va="bottom", fontsize=8, color="0.1", bbox=_LABEL_BOX)
     ax.set_xlim(0, ly)
@@ -374,8 +326,119 @@ def plot_floor_map(floor_map, room, layout=None, units="cm", title=None, path=No
     ax.set_xticklabels([format_length(v, units) for v in yt], fontsize=7, rotation=45 if units == "ft-in" else 0)
     ax.set_xlabel("from the left wall")
     ax.set_ylabel("from the front wall")
+
+
+def _cell_edges(m, room):
+    lx, ly, _ = room.size_m
+    xe = np.concatenate([[0.0], (m.x_m[1:] + m.x_m[:-1]) / 2, [lx]])
+    ye = np.concatenate([[0.0], (m.y_m[1:] + m.y_m[:-1]) / 2, [ly]])
+    return xe, ye
+
+
+def _spread_panel(fig, ax, m, bands, room, units):
+    """The 10-90 % spread of each cell over the drawn rooms; hatched beyond ``MAP_UNSURE_DB``."""
+    from ..analysis.maps import MAP_UNSURE_DB
+
+    xe, ye = _cell_edges(m, room)
+    sp = bands.spread_db
+    top = max(2.0 * MAP_UNSURE_DB, float(np.nanpercentile(sp, 99)) if np.isfinite(sp).any() else 0.0)
+    mesh = ax.pcolormesh(ye, xe, sp, cmap="magma_r", vmin=0.0, vmax=top, shading="flat", rasterized=True)
+    if np.nanmax(sp, initial=0.0) > MAP_UNSURE_DB:
+        ax.contourf(m.y_m, m.x_m, np.nan_to_num(sp, nan=0.0), levels=[MAP_UNSURE_DB, np.inf], colors="none",
+                    hatches=["///"])
+        ax.contour(m.y_m, m.x_m, np.nan_to_num(sp, nan=0.0), levels=[MAP_UNSURE_DB], colors="0.1", linewidths=1.0)
+    cb = fig.colorbar(mesh, ax=ax, shrink=0.9)
+    cb.set_label("10-90 % spread of the level (dB)", fontsize=8.5)
+    _plan_frame(ax, m, room, units)
+    if m.seat_m is not None:
+        ix = int(np.argmin(np.abs(m.x_m - m.seat_m[0])))
+        iy = int(np.argmin(np.abs(m.y_m - m.seat_m[1])))
+        ax.plot(m.seat_m[1], m.seat_m[0], "*", color="white", ms=16, mec="0.1", mew=1.0,
+                label=f"seat: {bands.level_db_p10[ix, iy]:+.1f} to {bands.level_db_p90[ix, iy]:+.1f} dB")
+    from matplotlib.patches import Patch
+
+    ax.legend(handles=[Patch(facecolor="white", edgecolor="0.1", hatch="///",
+                             label=f"spread over {MAP_UNSURE_DB:g} dB: level unsure here")]
+              + ax.get_legend_handles_labels()[0], fontsize=7.5, loc="upper center", bbox_to_anchor=(0.5, -0.09),
+              ncol=1, frameon=False)
+    ax.set_title(f"How sure: 10-90 % spread over {bands.n_samples} drawn rooms (seed {bands.seed})\n"
+                 "light: the same in every drawn room; dark: unsure", fontsize=9.5)
+
+
+def plot_floor_map(floor_map, room, layout=None, units="cm", title=None, path=None, range_db=30.0, bands=None):
+    """Map the level over the floor plan at ear height at one frequency, speakers and seat drawn.
+
+    Parameters
+    ----------
+    floor_map : roommodes.analysis.maps.FloorMap
+    room : Room
+    layout : Layout, optional
+        For the seat and speaker markers; default the room file's own.
+    units : {"cm", "m", "ft-in"}
+    title, path : optional
+    range_db : float
+        Largest colour range, dB: from the 99th percentile of the levels (the speakers' own
+        near field is louder still and gets the top colour) down to the quietest cell or
+        ``range_db`` below, whichever is higher.
+    bands : roommodes.analysis.maps.FloorMapBands, optional
+        The map over drawn rooms: the level panel then marks the quietest cell of each drawn
+        room (where the deepest node lands), and a second panel maps each cell's 10-90 %
+        spread, hatched where it exceeds :data:`~roommodes.analysis.maps.MAP_UNSURE_DB`.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Notes
+    -----
+    Thin contours every 3 dB. When a room mode lies within its half-power bandwidth
+    (or 3 %) of the frequency, its nodal lines in the plane (where its shape is zero)
+    are drawn dashed.
+    """
+    m = floor_map
+    layout = room.layout if layout is None else layout
+    lx, ly, _ = room.size_m
+    height = min(9.0, 7.2 * lx / ly * 0.9 + 1.0)
+    if bands is None:
+        fig, ax = new_figure(7.2, height)
+    else:
+        fig, (ax, ax2) = new_figure(13.0, min(9.0, 5.9 * lx / ly * 0.9 + 1.6), 1, 2)
+    lv = m.level_db
+    top = float(np.nanpercentile(lv, 99))  # the speakers' own near field is louder still
+    xe, ye = _cell_edges(m, room)
+    bottom = max(float(np.nanmin(lv)), top - range_db)
+    import matplotlib
+
+    base = matplotlib.colormaps["viridis"]
+    cmap = base.with_extremes(bad=base(1.0))  # the cells next to a speaker: its own near field, loud
+    mesh = ax.pcolormesh(ye, xe, lv, cmap=cmap, vmin=bottom, vmax=top, shading="flat", rasterized=True)
+    levels = np.arange(np.floor(bottom / 3) * 3, top + 3, 3)
+    ax.contour(m.y_m, m.x_m, lv, levels=levels, colors="white", linewidths=0.4, alpha=0.55)
+    cb = fig.colorbar(mesh, ax=ax, shrink=0.9)
+    cb.set_label("Level (dB re free field at 1 m)", fontsize=8.5)
+    if m.near_modes:
+        mode = m.near_modes[0]
+        nx, ny, _ = mode["indices"]
+        for k in range(nx):
+            xn = (k + 0.5) * lx / nx
+            ax.plot([0, ly], [xn, xn], color="white", lw=1.1, ls="--")
+        for k in range(ny):
+            yn = (k + 0.5) * ly / ny
+            ax.plot([yn, yn], [0, lx], color="white", lw=1.1, ls="--")
+        if nx or ny:
+            ax.plot([], [], color="0.4", lw=1.1, ls="--",
+                    label=f"nodal lines of mode ({','.join(str(v) for v in mode['indices'])})")
+    if bands is not None:
+        q = bands.quietest_m
+        ax.plot(q[:, 1], q[:, 0], "x", color=PALETTE[1], ms=6, mew=1.2, alpha=0.85, ls="none",
+                label=f"quietest spot in each of {bands.n_samples} drawn rooms")
+    _plan_frame(ax, m, room, units)
+    if m.seat_m is not None:
+        ax.plot(m.seat_m[1], m.seat_m[0], "*", color="white", ms=16, mec="0.1", mew=1.0,
+                label=f"seat: {m.seat_level_db:+.1f} dB")
     if ax.get_legend_handles_labels()[0]:
-        ax.legend(fontsize=7.5, loc="upper center", bbox_to_anchor=(0.5, -0.09), ncol=2, frameon=False)
+        ax.legend(fontsize=7.5, loc="upper center", bbox_to_anchor=(0.5, -0.09), ncol=1 if bands else 2,
+                  frameon=False)
     who = "all speakers in phase" if len(m.channels) > 1 else f"{m.channels[0]} speaker"
     near = ""
     if m.near_modes:
@@ -383,6 +446,8 @@ def plot_floor_map(floor_map, room, layout=None, units="cm", title=None, path=No
         near = f"\nnearest mode ({','.join(str(v) for v in md['indices'])}), {md['kind']}, at {md['freq_hz']:.1f} Hz"
     ax.set_title(title or f"Level over the floor at {m.freq_hz:g} Hz, {format_length(m.height_m, units)} high "
                           f"({who}){near}", fontsize=9.5)
+    if bands is not None:
+        _spread_panel(fig, ax2, m, bands, room, units)
     if path is not None:
         save_figure(fig, path)
     return fig

@@ -32,17 +32,24 @@ from .. import __version__
 from ..analysis import eq as eqmod
 from ..analysis.compare import average_measurements, compare_to_prediction
 from ..analysis.correction import correct_measured, correct_prediction
-from ..analysis.ensemble import MIN_FOUND_FRACTION, feature_spread
+from ..analysis.ensemble import MIN_FOUND_FRACTION, ensemble_scores, feature_spread
 from ..analysis.explain import EXPLAIN_SAMPLES, explain_bands
 from ..analysis.explain import explain as run_explain
 from ..analysis.fit import fit_room
-from ..analysis.maps import INTERPOLATED_METHODS, floor_level_map, mode_coupling
+from ..analysis.maps import (
+    INTERPOLATED_METHODS,
+    MAP_UNSURE_DB,
+    coupling_ranges,
+    floor_level_map,
+    floor_map_bands,
+    mode_coupling,
+)
 from ..analysis.predict import band_figures, predict, response_features, usable_band
 from ..analysis.search import PARTS, front_distance_profile, search_layouts, search_space, seat_score_map
 from ..analysis.subs import BEFORE_CROSSOVER_HZ, CROSSOVER_TYPE, RANKING_RULE, optimise_subs
 from ..analysis.subs import CAUTIONS as SUB_CAUTIONS
 from ..analysis.summary import room_summary
-from ..analysis.uncertainty import SUBS_SAMPLES, predict_bands, subs_bands
+from ..analysis.uncertainty import SUBS_SAMPLES, mode_frequency_ranges, predict_bands, subs_bands
 from ..dsp.response import log_frequencies
 from ..dsp.text import boost_text, range_text
 from ..model.criteria import note_name
@@ -685,12 +692,21 @@ def _section_modes(run):
           "coupling drawn below. A mode with a high coupling gives a peak and a long decay at the seat; a mode "
           "with the seat on a node leaves a gap. When the two speakers have opposite signs they drive the mode "
           "in opposite phase, so it differs between left and right and is weakened when both play the same bass.")
-    fig = plot_mode_coupling(coupling)
+    held = _maps_held(run)
+    ranges = None
+    if held:
+        step(f"uncertainty: {held['n_samples']} drawn rooms, mode coupling")
+        ranges = (*coupling_ranges(room, coupling, layout, n_samples=held["n_samples"], seed=held["seed"]),
+                  held["n_samples"])
+    fig = plot_mode_coupling(coupling, ranges=ranges)
     doc.figure(fig, "mode-coupling", "Room modes and their coupling to each speaker and the seat",
                f"Top: |psi(speaker) psi(seat)| for every mode up to {coupling.fmax_hz:.0f} Hz; modes at or above "
                f"{coupling.threshold:g} (dashed line) are labelled with their indices nx ny nz along length, width "
                "and height. Bottom: |psi| at each speaker and at the seat (dot area; open dots: negative, i.e. "
-               "opposite phase).")
+               "opposite phase)."
+               + (f" Pale bars: each coupling's 10-90 % range over {held['n_samples']} rooms drawn from the room "
+                  f"file's [uncertainty] (seed {held['seed']}; the room's size, the speakers and the seat moved "
+                  "as drawn): a long bar is a coupling that a few centimetres decide." if held else ""))
     sel = np.flatnonzero(coupling.matters)
     mode_rows = []
     for i in sel:
@@ -729,7 +745,11 @@ def _section_modes(run):
     for fq in freqs:
         step(f"floor map at {fq:g} Hz")
         fm = floor_level_map(room, fq, layout, method=method, solve_step_m=MAP_SOLVE_STEP_M)
-        fig = plot_floor_map(fm, room, layout, units)
+        mb = None
+        if held:
+            step(f"uncertainty: {held['n_samples']} drawn rooms, floor map at {fq:g} Hz")
+            mb = floor_map_bands(room, fm, layout, n_samples=held["n_samples"], seed=held["seed"])
+        fig = plot_floor_map(fm, room, layout, units, bands=mb)
         xm, ym, top = fm.extreme("max")
         xn, yn, low = fm.extreme("min")
         near = ""
@@ -742,8 +762,9 @@ def _section_modes(run):
                    f"{L(ym)} from the left wall; quietest {low:+.1f} dB at {L(xn)} and {L(yn)}." + near
                    + (f" Solved on a {MAP_SOLVE_STEP_M * 100:g} cm grid and interpolated to the cells drawn, "
                       "the speakers' own free field added exactly (within 0.25 dB of solving every cell)."
-                      if method in INTERPOLATED_METHODS else ""))
-        values.setdefault("maps", []).append({"freq_hz": fq, "seat_level_db": fm.seat_level_db})
+                      if method in INTERPOLATED_METHODS else "") + _map_band_caption(mb))
+        values.setdefault("maps", []).append({"freq_hz": fq, "seat_level_db": fm.seat_level_db}
+                                             | (_map_band_values(mb) if mb is not None else {}))
     run.pred = pred
     run.feats = feats
     run.first_feats = first_feats
@@ -774,11 +795,11 @@ def _section_responses(run):
         except ValueError:
             continue
         preds.append((lay, predict(room, lay, f, method=method)))
-    all_bands = None if bands is None else [bands] + [_bands(run, lay) for lay, _ in preds[1:]]
+    all_bands = None if bands is None else [bands] + [_bands(run, lay, own=False) for lay, _ in preds[1:]]
     fig = plot_prediction([p for _, p in preds], ms300, title=f"{room.name}: layouts compared", bands=all_bands)
     doc.figure(fig, "layouts", "The file's layout and the standard placements compared",
                "Colour: layout; line style: channel. Standard placements: corner, against the wall, mid-room and "
-               "desk (docs/placement.md)." + _band_caption(run))
+               "desk (docs/placement.md)." + _layouts_band_caption(run))
     rows = []
     for lay, p in preds:
         band = usable_band(lay.speakers)
@@ -812,21 +833,73 @@ def _section_responses(run):
         _feature_spreads(run, pred, feats, bands)
 
 
-def _bands(run, layout):
-    """The 10-50-90 % bands of ``layout`` over the drawn rooms, or None without ``uncertainty``."""
+def _maps_held(run):
+    """The count and seed of the drawn rooms of the floor maps and the mode coupling (at most
+    :data:`COMPARED_SAMPLES`: each map costs one solver call per drawn room over its whole grid),
+    or None without ``uncertainty``."""
+    return _compared(run)
+
+
+def _map_band_caption(mb):
+    if mb is None:
+        return ""
+    sp = mb.spread_db[np.isfinite(mb.spread_db)]
+    return (f" Right: each cell's 10-90 % spread over {mb.n_samples} rooms drawn from the room file's [uncertainty] "
+            f"(seed {mb.seed}; each cell solved in every drawn room, the grid kept where it is from the front and "
+            f"left walls), hatched where it exceeds {MAP_UNSURE_DB:g} dB: there the map's level is unsure. "
+            f"Median spread {np.median(sp):.1f} dB, {100 * np.mean(sp > MAP_UNSURE_DB):.0f} % of the floor hatched. "
+            "Crosses on the left: the quietest spot of each drawn room; where they scatter, the node moves.")
+
+
+def _map_band_values(mb):
+    sp = mb.spread_db[np.isfinite(mb.spread_db)]
+    return {"samples": mb.n_samples, "spread_db_median": float(np.median(sp)), "spread_db_max": float(np.max(sp)),
+            "unsure_share": float(np.mean(sp > MAP_UNSURE_DB))}
+
+
+#: Rooms drawn at most for the layouts the report compares with the file's own (the standard
+#: placements, the placement figure's curves and sweep): the file's own layout is drawn as many
+#: times as asked (``report --samples``, default
+#: :data:`~roommodes.analysis.uncertainty.DEFAULT_SAMPLES`), the others' rough bands at this count
+#: keep the report's time in bounds (docs/report.md gives the measurement).
+COMPARED_SAMPLES = 100
+
+
+def _compared(run):
+    """The count and seed of the compared layouts' drawn rooms, or None without ``uncertainty``."""
     if not run.uncertainty:
         return None
+    return {"n_samples": min(run.uncertainty["n_samples"], COMPARED_SAMPLES), "seed": run.uncertainty["seed"]}
 
-    run.step(f"uncertainty: {run.uncertainty['n_samples']} drawn rooms, {layout.name} layout")
-    return predict_bands(run.room, layout, run.f, n_samples=run.uncertainty["n_samples"],
+
+def _bands(run, layout, own=True):
+    """The 10-50-90 % bands of ``layout`` over the drawn rooms (the file's own layout: the count
+    asked; a compared one: at most :data:`COMPARED_SAMPLES`), or None without ``uncertainty``."""
+    if not run.uncertainty:
+        return None
+    held = run.uncertainty if own else _compared(run)
+
+    run.step(f"uncertainty: {held['n_samples']} drawn rooms, {layout.name} layout")
+    return predict_bands(run.room, layout, run.f, n_samples=held["n_samples"],
                          seed=run.uncertainty["seed"], method=run.method)
 
 
-def _band_caption(run):
+def _band_caption(run, n_samples=None):
     if not run.uncertainty:
         return ""
-    return (f" Shaded: 10-90 % of {run.uncertainty['n_samples']} rooms drawn from the room file's [uncertainty] "
+    n = run.uncertainty["n_samples"] if n_samples is None else n_samples
+    return (f" Shaded: 10-90 % of {n} rooms drawn from the room file's [uncertainty] "
             f"(seed {run.uncertainty['seed']}).")
+
+
+def _layouts_band_caption(run):
+    if not run.uncertainty:
+        return ""
+    n, m = run.uncertainty["n_samples"], _compared(run)["n_samples"]
+    if n == m:
+        return _band_caption(run)
+    return (f" Shaded: 10-90 % of the rooms drawn from the room file's [uncertainty] (seed {run.uncertainty['seed']}): "
+            f"{n} for the file's layout, {m} for each standard placement (rougher edges).")
 
 
 def _feature_spreads(run, pred, feats, bands):
@@ -941,16 +1014,23 @@ def _section_placement(run):
         cur = f" against {res.current.score:.2f} dB for the file's layout" if res.current is not None else ""
         glance.append(f"Suggested placement (score {best.score:.2f} dB{cur}; lower is better): {sp_txt}; seat "
                       f"{walls_text(room, best.layout.seat_m, units)}.")
-        step("placement figure" + (f" (uncertainty: {run.uncertainty['n_samples']} drawn rooms per layout)"
+        step("placement figure" + (f" (uncertainty: {_compared(run)['n_samples']} drawn rooms per layout)"
                                    if run.uncertainty else ""))
         fig = _placement_figure(room, space, res, layout if room.layout is not None else None, method,
-                                drawn=run.uncertainty)
+                                drawn=_compared(run))
         doc.figure(fig, "placement", "The suggested layout",
                    "(a) Predicted level at the seat for the suggested and the file's layout. (c) The floor plan "
                    "coloured by the score the seat would get at each point with the suggested speakers. (d) The "
                    "score as both speakers move away from the front wall, everything else kept (the panels are "
                    "lettered as in the place command's figure, whose (b) the report leaves out)."
-                   + _band_caption(run).replace(" Shaded:", " Shaded in (a):"))
+                   + _band_caption(run, _compared(run)["n_samples"] if run.uncertainty else None).replace(
+                       " Shaded:", " Shaded in (a):")
+                   + (f" Circles in (c): where 80 % of positions drawn with the room file's sd of "
+                      f"{room.uncertainty.position_m * 100:g} cm per coordinate land on the plan (radius 1.79 sd). "
+                      f"Shaded in (d): the score's 10-90 % range over "
+                      f"{_compared(run)['n_samples']} drawn rooms (the same seed) at up to "
+                      f"{PROFILE_BAND_POINTS} distances along the sweep, scored with the search's modal scorer."
+                      if run.uncertainty else ""))
     step("left/right explanation")
     doc.h3("Why left and right differ", anchor="explain")
     if len(layout.speakers) < 2:
@@ -1425,7 +1505,10 @@ def _section_appendix(run):
                    "300 Hz are in `roommodes modes`.")
     early = run.early_figures.pop("modes", None)
     fig, rendered = early if early is not None else (_modes_figure(run), None)
-    doc.figure(fig, "modes", "Room modes up to 200 Hz with their decay times", "Colour: kind of mode.", rendered)
+    doc.figure(fig, "modes", "Room modes up to 200 Hz with their decay times", "Colour: kind of mode."
+               + (f" Bars across the stems: each mode's 10-90 % frequency range over {run.uncertainty['n_samples']} "
+                  f"rooms drawn from the room file's [uncertainty] (seed {run.uncertainty['seed']}; only the size and "
+                  "the air temperature move a mode)." if run.uncertainty else ""), rendered)
 
 
 def _explanation(run):
@@ -1458,7 +1541,11 @@ def _eq_figure(run, corrections):
 
 
 def _modes_figure(run):
-    return plot_modes(run.ms300, 200.0, title=f"Room modes: {run.room.name}")
+    ranges = None
+    if run.uncertainty:
+        n = run.uncertainty["n_samples"]
+        ranges = (*mode_frequency_ranges(run.room, run.ms300.indices, n, run.uncertainty["seed"]), n)
+    return plot_modes(run.ms300, 200.0, title=f"Room modes: {run.room.name}", freq_ranges=ranges)
 
 
 def _early_figure(run, stem, make, *args):
@@ -1488,5 +1575,26 @@ def _placement_figure(room, space, res, current, method, drawn=None):
     lo = max(0.05, min(space.speaker_front_m[0], best.speakers[0].position_m[0]) - 0.15)
     hi = min(best.seat_m[0] - 0.5, max(space.speaker_front_m[1], best.speakers[0].position_m[0]) + 0.15)
     profile = front_distance_profile(room, best, distances_m=np.arange(lo, hi + 1e-9, 0.02), space=space, **kw)
+    profile_band = None
+    if drawn:
+        profile_band = _profile_band(room, best, profile[0], res, space, drawn)
     return plot_place(room, best, current, preds, res.band_hz, preds[0][1].schroeder_hz, seat_map, profile,
-                      space.keep_out, bands=bands)
+                      space.keep_out, bands=bands, position_sd_m=room.uncertainty.position_m if drawn else None,
+                      profile_band=profile_band)
+
+
+#: The placement figure's sweep band: at most this many distances of the sweep are scored in
+#: the drawn rooms (every 2 cm would cost four times as much; the score is smooth between them).
+PROFILE_BAND_POINTS = 16
+def _profile_band(room, best, distances_m, res, space, drawn):
+    """10-90 % of the score over drawn rooms along the placement figure's sweep (both speakers'
+    distance from the front wall), with the search's score (:func:`ensemble_scores`)."""
+    stride = max(1, int(np.ceil(distances_m.size / PROFILE_BAND_POINTS)))
+    d = distances_m[::stride]
+    lays = [replace(best, speakers=tuple(sp.moved((float(x), sp.position_m[1], sp.position_m[2]))
+                                         for sp in best.speakers[:2]) + tuple(best.speakers[2:])) for x in d]
+    n = drawn["n_samples"]
+    sc = ensemble_scores(room, lays, n_samples=n, seed=drawn["seed"], weights=res.weights, band_hz=res.band_hz,
+                         area_m=space.area_m, area_points=space.area_points)
+    p10, p90 = np.percentile(sc, [10.0, 90.0], axis=0)
+    return d, p10, p90, n

@@ -198,3 +198,50 @@ def test_bad_uncertainty_table_gives_one_line(tmp_path, table, expect):
         load_room(p)
     msg = str(err.value)
     assert "\n" not in msg and msg.startswith(f"{p}: ") and expect in msg, msg
+
+
+# --------------------------------------------------------------------------------------
+# The floor map over drawn rooms (map --uncertainty)
+# --------------------------------------------------------------------------------------
+def _axial_box():
+    """A lightly damped box, one speaker low near the front wall, driven at the (1,0,0) mode."""
+    from roommodes.model.room import WALLS as _W
+
+    room = Room("box", (4.8, 3.6, 2.5), tuple(Surface(w, (0.1,)) for w in _W), 20.0,
+                Layout((Speaker("sub", (0.3, 1.8, 0.3)),), (3.5, 1.8, 1.2)))
+    return room, room.speed_of_sound / (2 * 4.8)
+
+
+def test_floor_map_bands_are_zero_wide_when_nothing_is_uncertain():
+    from roommodes.analysis.maps import floor_level_map, floor_map_bands
+
+    room, f = _axial_box()
+    fm = floor_level_map(room, f, step_m=0.25)
+    b = floor_map_bands(room, fm, n_samples=3, seed=1, uncertainty=Uncertainty(0.0, 0.0, 0.0, 0.0))
+    ok = np.isfinite(fm.level_db)
+    assert np.array_equal(ok, np.isfinite(b.level_db_p50))
+    # every drawn room is the nominal one: no spread, and the median is the nominal map
+    assert np.max(b.spread_db[ok]) < 1e-4
+    np.testing.assert_allclose(b.level_db_p50[ok], fm.level_db[ok], atol=1e-4)
+
+
+def test_floor_map_spread_is_larger_at_the_axial_node_than_at_its_antinode():
+    # Kuttruff, Room Acoustics (5th ed. 2009), sec. 3.3: the (1,0,0) mode's pressure goes as
+    # cos(pi x / L), its node at x = L/2. A drawn length L + dL moves the node by dL/2. Near the
+    # node |cos| ~ pi |x - L/2| / L, so 5 cm from it a node moved by a 3 cm sd on L changes the
+    # mode's level by several dB; at the antinode (x -> L) the slope is zero and the level changes
+    # to second order only. Only the length is drawn here (sd 3 cm), so nothing else spreads the
+    # level: the 10-90 % spread at the cells beside the node is several times that at the antinode.
+    from roommodes.analysis.maps import floor_level_map, floor_map_bands
+
+    room, f = _axial_box()
+    fm = floor_level_map(room, f, step_m=0.1)
+    b = floor_map_bands(room, fm, n_samples=30, seed=4, uncertainty=Uncertainty(0.0, 0.03, 0.0, 0.0))
+    j = int(np.argmin(np.abs(fm.y_m - 1.8)))
+    beside_node = np.flatnonzero(np.abs(fm.x_m - 2.4) < 0.06)  # the cells 5 cm either side
+    antinode = int(np.argmin(np.abs(fm.x_m - 4.55)))
+    assert beside_node.size == 2
+    assert np.all(fm.level_db[beside_node, j] < fm.level_db[antinode, j] - 15.0)  # it is a node
+    assert np.all(b.spread_db[beside_node, j] > 3.0 * b.spread_db[antinode, j])
+    ok = np.isfinite(b.level_db_p50)
+    assert np.all(b.level_db_p10[ok] <= b.level_db_p50[ok]) and np.all(b.level_db_p50[ok] <= b.level_db_p90[ok])

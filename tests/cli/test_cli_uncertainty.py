@@ -192,3 +192,55 @@ def test_predict_plot_uncertainty_bands_the_system_panel(tmp_path, monkeypatch):
     res = run("predict", path, "--points-per-octave", 6, "--freq-range", "20,200", "--plot", tmp_path / "b.png")
     assert res.exit_code == 0, res.output
     assert seen[1]["system"] is not None and seen[1]["system_levels"] is None
+
+
+def test_map_uncertainty_json_keys_and_plot(tmp_path):
+    out = tmp_path / "map.png"
+    res = run("map", DEMO, "--freq", 60, "--step", "20cm", "--uncertainty", "--samples", 6, "--seed", 3, "--json",
+              "--plot", out)
+    assert res.exit_code == 0, res.output
+    data = json.loads(res.stdout)
+    nominal = np.array(data["level_db"], dtype=float)
+    p10, p50, p90 = (np.array(data[f"level_db_p{q}"], dtype=float) for q in (10, 50, 90))
+    assert p10.shape == p50.shape == p90.shape == nominal.shape == (len(data["x_m"]), len(data["y_m"]))
+    ok = np.isfinite(p50)
+    assert ok.mean() > 0.95
+    assert np.all(p10[ok] <= p50[ok]) and np.all(p50[ok] <= p90[ok])
+    assert data["uncertainty"]["samples"] == 6 and data["uncertainty"]["seed"] == 3
+    assert len(data["uncertainty"]["quietest_m"]) == 6
+    assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    text = run("map", DEMO, "--freq", 60, "--step", "20cm", "--uncertainty", "--samples", 6, "--seed", 3).stdout
+    assert "10-90 % spread of the level over the floor" in text and "quietest spot of the drawn rooms" in text
+    plain = json.loads(run("map", DEMO, "--freq", 60, "--step", "20cm", "--json").stdout)
+    assert "level_db_p10" not in plain and "uncertainty" not in plain
+
+
+@pytest.mark.parametrize("samples", [1, 0, "many"])
+def test_map_bad_sample_count_is_one_line(samples):
+    res = run("map", DEMO, "--freq", 60, "--uncertainty", "--samples", samples)
+    assert res.exit_code == 2
+    assert res.stderr.count("\n") == 1 and "--samples" in res.stderr
+
+
+def test_map_too_many_levels_is_one_line():
+    # 5000 drawn rooms of the demo room's 2 cm grid would hold 195 million levels
+    res = run("map", DEMO, "--freq", 60, "--step", "2cm", "--uncertainty", "--samples", 5000)
+    assert res.exit_code == 2
+    assert res.stderr.count("\n") == 1 and "--samples" in res.stderr and "coarser step" in res.stderr
+
+
+def test_map_spread_is_zero_when_the_room_file_states_no_uncertainty(tmp_path):
+    # every sd 0 (absorption_rel stated, so the materials' own ranges do not apply): each drawn
+    # room is the file's room, and the 10-90 % spread is zero on every cell
+    room = tmp_path / "room.toml"
+    room.write_text(open(DEMO, encoding="utf-8").read()
+                    + "\n[uncertainty]\nposition_m = 0\nsize_m = 0\nabsorption_rel = 0\ntemperature_c = 0\n",
+                    encoding="utf-8")
+    res = run("map", room, "--freq", 60, "--step", "25cm", "--uncertainty", "--samples", 3, "--json")
+    assert res.exit_code == 0, res.output
+    data = json.loads(res.stdout)
+    p10, p50, p90 = (np.array(data[f"level_db_p{q}"], dtype=float) for q in (10, 50, 90))
+    nominal = np.array(data["level_db"], dtype=float)
+    ok = np.isfinite(nominal)
+    assert np.max(p90[ok] - p10[ok]) < 1e-4
+    np.testing.assert_allclose(p50[ok], nominal[ok], atol=1e-4)

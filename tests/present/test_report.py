@@ -451,3 +451,91 @@ def test_report_left_right_figure_shades_the_drawn_rooms(monkeypatch):
     (fig,) = drawn
     assert not _explain_fills(fig)
     assert "Shaded" not in next(x.caption for x in plain.figures if x.name.endswith("left-right"))
+
+
+def _keeping(monkeypatch, module, names):
+    drawn = {}
+    for name in names:
+        make = getattr(module, name)
+
+        def keep(*a, _make=make, _name=name, **kw):
+            fig = _make(*a, **kw)
+            drawn.setdefault(_name, []).append(fig)
+            return fig
+        monkeypatch.setattr(module, name, keep)
+    return drawn
+
+
+@pytest.mark.slow  # two reports of the demo room without a search: about 20 s
+def test_report_maps_coupling_and_mode_chart_show_the_drawn_rooms(monkeypatch):
+    """With ``uncertainty`` each floor map gains the spread panel (floor_map_bands' p90 - p10 of
+    the same drawn rooms), the mode-coupling chart each coupling's 10-90 % range and the mode
+    chart each mode's frequency range; without it, none of them (this checks the wiring: the
+    values are held to the analysis functions, tested in tests/analysis/test_uncertainty.py)."""
+    import roommodes.present.report as report
+    from roommodes.analysis.maps import coupling_ranges, floor_map_bands
+    from roommodes.analysis.uncertainty import mode_frequency_ranges
+
+    drawn = _keeping(monkeypatch, report, ("plot_floor_map", "plot_mode_coupling", "plot_modes"))
+    room = load_room(next(p for p in ROOMS if "demo" in p.name))
+    n = 5
+    rep = build_report(room, search="off", embed="png", uncertainty={"n_samples": n, "seed": 4})
+    maps = rep.values["maps"]
+    assert maps and all(m["samples"] == n and 0 <= m["unsure_share"] <= 1 for m in maps)
+    fig = drawn["plot_floor_map"][0]
+    spread_ax = next(ax for ax in fig.axes if ax.get_title().startswith("How sure"))
+    shown = np.asarray(spread_ax.collections[0].get_array()).reshape(-1)
+    fm = floor_level_map(room, maps[0]["freq_hz"], method="exact", solve_step_m=report.MAP_SOLVE_STEP_M)
+    want = floor_map_bands(room, fm, room.layout, n_samples=n, seed=4).spread_db.reshape(-1)
+    ok = np.isfinite(want)
+    np.testing.assert_allclose(np.ma.filled(shown, np.nan)[ok], want[ok], atol=1e-4)
+    caption = next(x.caption for x in rep.figures if "map-" in x.name)
+    assert f"10-90 % spread over {n} rooms drawn" in caption and "hatched where it exceeds 6 dB" in caption
+
+    (cfig,) = drawn["plot_mode_coupling"]
+    c = mode_coupling(room, room.layout)
+    p10, p90 = coupling_ranges(room, c, room.layout, n_samples=n, seed=4)
+    bars = [col for col in cfig.axes[0].collections if col.get_linewidth()[0] == 5.0]
+    assert len(bars) == len(c.names)
+    seg = np.array(bars[0].get_segments())  # (N, 2, 2): frequency, coupling
+    np.testing.assert_allclose(seg[:, 0, 1], p10[0], atol=1e-12)
+    np.testing.assert_allclose(seg[:, 1, 1], p90[0], atol=1e-12)
+
+    (mfig,) = drawn["plot_modes"]
+    ms = room_modes(room, 300.0)
+    lo, hi = mode_frequency_ranges(room, ms.indices, n, 4)
+    segs = np.concatenate([np.array(col.get_segments()) for col in mfig.axes[0].collections
+                           if col.get_linewidth()[0] == 3.0])
+    axial = (ms.order == 1) & (ms.freq_hz <= 200.0)
+    np.testing.assert_allclose(segs[:axial.sum(), 0, 0], lo[axial], atol=1e-9)
+    np.testing.assert_allclose(segs[:axial.sum(), 1, 0], hi[axial], atol=1e-9)
+
+    for v in drawn.values():
+        v.clear()
+    plain = build_report(room, search="off", embed="png")
+    assert len(drawn["plot_floor_map"][0].axes) == 2  # one panel and its colour bar
+    assert not any(col.get_linewidth()[0] == 5.0 for col in drawn["plot_mode_coupling"][0].axes[0].collections)
+    assert "samples" not in plain.values["maps"][0]
+
+
+@pytest.mark.slow  # a report with a quick placement search: about 20 s
+def test_report_placement_plan_and_sweep_show_the_drawn_rooms(monkeypatch):
+    """The placement figure's floor plan circles every position with the radius holding 80 % of
+    positions drawn with the stated sd (1.79 sd: the Rayleigh distribution's 80th percentile,
+    sqrt(-2 ln 0.2); any statistics table), and its sweep shades the score's 10-90 % range."""
+    from matplotlib.patches import Circle
+
+    import roommodes.present.report as report
+
+    drawn = _keeping(monkeypatch, report, ("plot_place",))
+    room = load_room(next(p for p in ROOMS if "demo" in p.name))
+    rep = build_report(room, search="quick", embed="png", uncertainty={"n_samples": 4, "seed": 2})
+    (fig,) = drawn["plot_place"]
+    plan = next(ax for ax in fig.axes if ax.get_title().startswith("(c)"))
+    circles = [p for p in plan.patches if isinstance(p, Circle)]
+    assert len(circles) == 2 * 3  # best and current: two speakers and the seat each
+    assert all(abs(c.get_radius() - 1.79 * room.uncertainty.position_m) < 1e-3 for c in circles)
+    sweep = next(ax for ax in fig.axes if ax.get_title().startswith("(d)"))
+    assert any(c.get_label() == "score: 10-90 % of 4 drawn rooms" for c in sweep.collections)
+    caption = next(x.caption for x in rep.figures if x.name.endswith("placement"))
+    assert "Circles in (c)" in caption and "Shaded in (d)" in caption
