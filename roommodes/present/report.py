@@ -45,7 +45,14 @@ from ..analysis.maps import (
     mode_coupling,
 )
 from ..analysis.predict import band_figures, predict, response_features, usable_band
-from ..analysis.search import PARTS, front_distance_profile, search_layouts, search_space, seat_score_map
+from ..analysis.search import (
+    PARTS,
+    front_distance_profile,
+    layout_curves,
+    search_layouts,
+    search_space,
+    seat_score_map,
+)
 from ..analysis.subs import BEFORE_CROSSOVER_HZ, CROSSOVER_TYPE, RANKING_RULE, optimise_subs
 from ..analysis.subs import CAUTIONS as SUB_CAUTIONS
 from ..analysis.summary import room_summary
@@ -1019,10 +1026,11 @@ def _section_placement(run):
         fig = _placement_figure(room, space, res, layout if room.layout is not None else None, method,
                                 drawn=_compared(run))
         doc.figure(fig, "placement", "The suggested layout",
-                   "(a) Predicted level at the seat for the suggested and the file's layout. (c) The floor plan "
+                   "(a) Predicted level at the seat for the suggested and the file's layout. (b) Each layout's "
+                   "level before (thin) and after (thick) the EQ the search's score assumes for it (a quick "
+                   "design over the listening area; the EQ section below designs the file's layout's EQ in full). (c) The floor plan "
                    "coloured by the score the seat would get at each point with the suggested speakers. (d) The "
-                   "score as both speakers move away from the front wall, everything else kept (the panels are "
-                   "lettered as in the place command's figure, whose (b) the report leaves out)."
+                   "score as both speakers move away from the front wall, everything else kept."
                    + _band_caption(run, _compared(run)["n_samples"] if run.uncertainty else None).replace(
                        " Shaded:", " Shaded in (a):")
                    + (f" Circles in (c): where 80 % of positions drawn with the room file's sd of "
@@ -1578,9 +1586,11 @@ def _placement_figure(room, space, res, current, method, drawn=None):
     profile_band = None
     if drawn:
         profile_band = _profile_band(room, best, profile[0], res, space, drawn)
+    eq_curves = [(label, layout_curves(room, lay, space, res.band_hz))
+                 for lay, (label, _) in zip((best, current), preds)]
     return plot_place(room, best, current, preds, res.band_hz, preds[0][1].schroeder_hz, seat_map, profile,
                       space.keep_out, bands=bands, position_sd_m=room.uncertainty.position_m if drawn else None,
-                      profile_band=profile_band)
+                      profile_band=profile_band, eq_curves=eq_curves, space=space)
 
 
 #: The placement figure's sweep band: at most this many distances of the sweep are scored in
