@@ -66,6 +66,7 @@ from ..solvers.modal import (
     static_green_block,
     static_green_pairs,
 )
+from ..solvers.separable import SeparableModalSum
 from ..solvers.threads import blas_threads, small_products
 from .levels import speaker_levels
 from .predict import usable_band
@@ -443,6 +444,31 @@ class _Scorer:
         self.pair_evaluations += src.shape[0] * rec.shape[0]
         return h
 
+    def separable(self, last_axis):
+        """The :class:`~roommodes.solvers.separable.SeparableModalSum` of this scorer's modes
+        summed last along ``last_axis`` (built once per axis)."""
+        cache = self.__dict__.setdefault("_separable", {})
+        if last_axis not in cache:
+            cache[last_axis] = SeparableModalSum(self.idx, self.size, self.weight, self.static_weight, last_axis)
+        return cache[last_axis]
+
+    def plane_transfer(self, src, rec, src_values, last_axis, psi_src=None):
+        """:meth:`transfer_block` by sum factorisation for sources on few planes
+        (:mod:`roommodes.solvers.separable`; float64, the same sum in another order), or
+        :meth:`transfer_block` itself (``psi_src``: a callable giving the sources' mode
+        shapes) when its table would be too large.
+
+        ``src_values``: the values on the two other axes (sorted) that hold every source's
+        coordinates; calls with the same values and receiver planes share one table.
+        """
+        out = self.separable(last_axis).transfer(src, rec, src_values)
+        if out is None:
+            return self.transfer_block(src, rec, None if psi_src is None else psi_src(src))
+        h, low = out
+        h += (4 * np.pi * static_green_block(self.size, src, rec) - low)[:, :, None]
+        self.pair_evaluations += src.shape[0] * rec.shape[0]
+        return h
+
     def transfer_layouts(self, vecs, chunk=256):
         """(K, 2, A, F) complex transfers of both speakers to the area points of K layouts.
 
@@ -529,21 +555,76 @@ class _Scorer:
         """Parts (dict of (K,) arrays, with ``robustness`` and the unweighted
         ``flatness_raw``) and scores (K,) of K layouts."""
         v = np.atleast_2d(np.asarray(vecs, dtype=float))
+        nominal = self.nominal(v)
+        parts = nominal.parts
+        if robustness and self.weights["robustness"] > 0:
+            parts["robustness"] = self.robustness(v, nominal)
+        else:
+            parts["robustness"] = np.zeros(v.shape[0])
+        return parts, nominal.s4 + self.weights["robustness"] * parts["robustness"]
+
+    def nominal(self, vecs):
+        """The first four parts of K layouts as planned: a :class:`_Nominal` (its
+        corrections are the EQ that :meth:`robustness` keeps)."""
+        v = np.atleast_2d(np.asarray(vecs, dtype=float))
         h = self.transfer_layouts(v)
         fl, fr = self.features(h[:, 0], 0), self.features(h[:, 1], 1)
         parts = self.parts(fl, fr)
-        s4 = self.base_score(parts)
-        if robustness and self.weights["robustness"] > 0:
-            moves = perturbations().reshape(8, 9)
-            pv = self.clip_inside(v[:, None, :] + moves[None]).reshape(-1, 9)
-            hp = self.transfer_layouts(pv)
-            # the EQ set up for the planned layout stays when the objects land 5 cm off
-            cl, cr = (np.repeat(f["correction"], 8, axis=0) for f in (fl, fr))
-            sp = self.base_score(self.parts(self.features(hp[:, 0], 0, cl), self.features(hp[:, 1], 1, cr)))
-            parts["robustness"] = np.mean(np.maximum(0.0, sp.reshape(-1, 8) - s4[:, None]), axis=1)
-        else:
-            parts["robustness"] = np.zeros(v.shape[0])
-        return parts, s4 + self.weights["robustness"] * parts["robustness"]
+        return _Nominal(parts, self.base_score(parts), fl["correction"], fr["correction"])
+
+    def robustness(self, vecs, nominal):
+        """The robustness part (K,) of K layouts whose :meth:`nominal` figures are given."""
+        v = np.atleast_2d(np.asarray(vecs, dtype=float))
+        moves = perturbations().reshape(8, 9)
+        pv = self.clip_inside(v[:, None, :] + moves[None]).reshape(-1, 9)
+        hp = self.transfer_layouts(pv)
+        # the EQ set up for the planned layout stays when the objects land 5 cm off
+        cl, cr = (np.repeat(c, 8, axis=0) for c in (nominal.correction_left, nominal.correction_right))
+        sp = self.base_score(self.parts(self.features(hp[:, 0], 0, cl), self.features(hp[:, 1], 1, cr)))
+        return np.mean(np.maximum(0.0, sp.reshape(-1, 8) - nominal.s4[:, None]), axis=1)
+
+    def best_full(self, vecs, nominal, rows, batch=4):
+        """The row of ``rows`` with the lowest full score, and that score, computing the
+        robustness part only where it can still decide.
+
+        The full score is ``s4 + w r`` with ``r >= 0``: the rows are taken in order of
+        ``s4`` (``batch`` at a time) until the next ``s4`` exceeds the best full score
+        found, which no later row can then reach. Ties go to the first of ``rows``, as
+        ``rows[np.argmin(full[rows])]`` with every full score computed.
+
+        Parameters
+        ----------
+        vecs : ndarray (K, 9)
+        nominal : _Nominal
+            Of ``vecs``.
+        rows : ndarray of int
+            Candidate rows; ties go to the one named first.
+        """
+        rows = np.asarray(rows, dtype=int)
+        s4 = nominal.s4[rows]
+        w = self.weights["robustness"]
+        if w <= 0:
+            full = s4 + 0.0
+            i = int(np.argmin(full))
+            return int(rows[i]), float(full[i])
+        order = np.argsort(s4, kind="stable")  # positions in rows
+        done, full = [], []
+        best = np.inf
+        b0 = 0
+        while b0 < order.size:
+            take = order[b0:b0 + batch]
+            b0 += batch
+            # the margin covers round-off between the s4 of a batch and of the whole
+            take = take[s4[take] <= best + 1e-9]
+            if take.size == 0:
+                break
+            f = s4[take] + w * self.robustness(vecs[rows[take]], nominal.take(rows[take]))
+            done.extend(take.tolist())
+            full.extend(f.tolist())
+            best = min(best, float(np.min(f)))
+            batch *= 2
+        i = int(np.lexsort((done, full))[0])
+        return int(rows[done[i]]), float(full[i])
 
     def curves(self, vec):
         """Seat levels of one layout on the band's grid: (freq_hz (Fb,), before (2, Fb),
@@ -563,6 +644,22 @@ class _Scorer:
     def clip_inside(self, vecs):
         size3 = np.tile(self.size, 3)
         return np.clip(vecs, WALL_MARGIN_M, size3 - WALL_MARGIN_M)
+
+
+@dataclass(frozen=True)
+class _Nominal:
+    """The first four parts of K layouts (dict of (K,)), their weighted sum ``s4`` (K,) and
+    each channel's correction (K, Fb), dB."""
+
+    parts: dict
+    s4: np.ndarray
+    correction_left: np.ndarray
+    correction_right: np.ndarray
+
+    def take(self, rows):
+        """The same figures of the layouts ``rows``."""
+        return _Nominal({k: v[rows] for k, v in self.parts.items()}, self.s4[rows], self.correction_left[rows],
+                        self.correction_right[rows])
 
 
 class _ChainScorer(_Scorer):
@@ -935,13 +1032,23 @@ def _coarse_pass(scorer, plan, keep_per_seat, progress, distinct_m=0.0):
     """Score every candidate of the plan by the first four parts; keep the best per seat."""
     vecs, s4s, n_cand = [], [], 0
     mirror = scorer.mirror_rows()
-    # the speaker positions repeat from seat to seat: their mode shapes are computed once
-    grid = np.unique(np.round(np.concatenate([np.concatenate([l_, r_]) for _, l_, r_, _ in plan]), 9), axis=0)
-    psi_grid = scorer.shapes(grid)
+    # the speaker positions repeat from seat to seat: they lie on few values of each axis,
+    # and the modal sum is taken by sum factorisation (Scorer.plane_transfer) with the
+    # axis of most values summed last and one table over the other two for every seat
+    # whose listening points lie on the same planes
+    speakers = np.concatenate([np.concatenate([l_, r_]) for _, l_, r_, _ in plan])
+    last = _last_axis(speakers, plan[0][0][None, :] + scorer.offsets, scorer.separable(0).table_bytes)
+    others = [a for a in range(3) if a != last]
+    src_values = tuple(np.unique(speakers[:, a]) for a in others)
+    psi_grid = {}
 
     def shapes_of(points):
-        rows = np.searchsorted(_row_keys(grid), _row_keys(np.round(points, 9)))
-        return psi_grid[rows]
+        # the fallback's mode shapes, computed once for the whole grid
+        if not psi_grid:
+            psi_grid["grid"] = np.unique(np.round(speakers, 9), axis=0)
+            psi_grid["psi"] = scorer.shapes(psi_grid["grid"])
+        rows = np.searchsorted(_row_keys(psi_grid["grid"]), _row_keys(np.round(points, 9)))
+        return psi_grid["psi"][rows]
 
     for i, (seat, left, right, mask) in enumerate(plan):
         rec = seat[None, :] + scorer.offsets
@@ -950,11 +1057,11 @@ def _coarse_pass(scorer, plan, keep_per_seat, progress, distinct_m=0.0):
             # the model is symmetric about y = Ly/2 (the damping weighs the left and right
             # walls alike): the mirrored speaker's transfer to a point is the speaker's
             # transfer to the mirrored point, so the right channel costs nothing
-            h = scorer.transfer_block(left, rec, shapes_of(left))
+            h = scorer.plane_transfer(left, rec, src_values, last, shapes_of)
             fl, fr = scorer.features(h, 0), scorer.features(h, 1, rows=mirror)
         else:
             both = np.concatenate([left, right])
-            h = scorer.transfer_block(both, rec, shapes_of(both))
+            h = scorer.plane_transfer(both, rec, src_values, last, shapes_of)
             fl, fr = scorer.features(h[:nl], 0), scorer.features(h[nl:], 1)
         if mask is None:  # mirrored pairs: left i goes with right i
             li = ri = np.arange(nl)
@@ -984,6 +1091,17 @@ def _coarse_pass(scorer, plan, keep_per_seat, progress, distinct_m=0.0):
             progress(i + 1, len(plan))
     scorer.layout_evaluations += n_cand
     return np.concatenate(vecs), np.concatenate(s4s), n_cand
+
+
+def _last_axis(sources, receivers, table_bytes):
+    """The axis to sum last in the coarse pass's sum factorisation: the one whose table over
+    the other two axes (every source value, one seat's receivers) is smallest."""
+    sizes = []
+    for a in range(3):
+        b, c = [i for i in range(3) if i != a]
+        n = [np.unique(p[:, i]).size for p in (sources, receivers) for i in (b, c)]
+        sizes.append(table_bytes(n[0] * n[1], n[2] * n[3]))
+    return int(np.argmin(sizes))
 
 
 def _row_keys(points):
@@ -1041,28 +1159,23 @@ def _refine(scorer, cons, seeds, seed_scores, step0, progress=None, max_iter=80,
         nb = cur[active][:, None, :] + step[active][:, None, None] * moves[None]  # (a, m, 9)
         ok = cons.valid(nb.reshape(-1, 9)).reshape(nb.shape[:2])
         owner, which = np.nonzero(ok)
+        improved = np.zeros(active.size, dtype=bool)
         if owner.size:
             cand = nb[owner, which]
-            p4, _ = scorer.score_vecs(cand, robustness=False)
-            s4 = scorer.base_score(p4)
-            # robustness only for the best few moves of each seed whose base score can still win
-            chosen = []
+            nominal = scorer.nominal(cand)
+            s4 = nominal.s4
+            # robustness only for the best few moves of each seed whose base score can
+            # still win, and of those only where it can change the choice (best_full)
             for a in np.unique(owner):
                 rows = np.flatnonzero(owner == a)
                 rows = rows[s4[rows] < score[active[a]]]
-                chosen.extend(rows[np.argsort(s4[rows])[:per_seed]])
-            chosen = np.array(chosen, dtype=int)
-        else:
-            chosen = np.array([], dtype=int)
-        improved = np.zeros(active.size, dtype=bool)
-        if chosen.size:
-            _, full = scorer.score_vecs(cand[chosen])
-            for a in np.unique(owner[chosen]):
-                rows = np.flatnonzero(owner[chosen] == a)
-                best = rows[np.argmin(full[rows])]
-                if full[best] < score[active[a]] - 1e-9:
-                    cur[active[a]] = cand[chosen[best]]
-                    score[active[a]] = full[best]
+                rows = rows[np.argsort(s4[rows])[:per_seed]]
+                if rows.size == 0:
+                    continue
+                best, full = scorer.best_full(cand, nominal, rows, batch=1)
+                if full < score[active[a]] - 1e-9:
+                    cur[active[a]] = cand[best]
+                    score[active[a]] = full
                     improved[a] = True
         step[active[~improved]] /= 2
         if progress:
@@ -1091,15 +1204,14 @@ def _polish(scorer, cons, vecs, scores):
             continue
         v = v[ok]
         # robustness is never negative: only points whose other parts already beat the
-        # current score can beat it in full
-        p4, _ = scorer.score_vecs(v, robustness=False)
-        cand = v[scorer.base_score(p4) < out_s[i] - 1e-12]
-        if cand.shape[0] == 0:
+        # current score can beat it in full, and best_full stops once none can
+        nominal = scorer.nominal(v)
+        rows = np.flatnonzero(nominal.s4 < out_s[i] - 1e-12)
+        if rows.size == 0:
             continue
-        _, full = scorer.score_vecs(cand)
-        j = int(np.argmin(full))
-        if full[j] < out_s[i] - 1e-12:
-            out[i], out_s[i] = cand[j], full[j]
+        j, full = scorer.best_full(v, nominal, rows)
+        if full < out_s[i] - 1e-12:
+            out[i], out_s[i] = v[j], full
     return out, out_s
 
 
