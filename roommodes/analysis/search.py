@@ -25,8 +25,9 @@ response included (:func:`roommodes.speaker.speaker_response`):
     diagonals, in different combinations); moves that improve count as zero.
 
 Search: a coarse global pass scores every layout of a grid over the allowed region
-(batched: all source positions x all listening points x all frequencies as real matrix
-products, grouped by seat position), the best are scored with the robustness part, the
+(batched: all source positions x all listening points x all frequencies, grouped by seat
+position, the modal sum taken one axis at a time over the grid's planes,
+:mod:`roommodes.solvers.separable`), the best are scored with the robustness part, the
 best distinct ones refined by a pattern search (coordinate moves with halving steps, down
 to 1 cm), and the result ranked. The four presets and the file's own layout are scored
 the same way. The modal sum is the one of :mod:`roommodes.solvers.modal` (same modes,
@@ -93,6 +94,10 @@ COARSE_STEPS_M = (0.05, 0.075, 0.1, 0.125, 0.15, 0.2, 0.25, 0.3, 0.4, 0.5)
 #: Budget of the coarse pass in floating-point operations of its matrix products
 #: (4 per mode, frequency and source-listening-point pair); about 2 s at 30 GFLOP/s.
 COARSE_BUDGET_FLOP = 6e10
+#: A layout batch is summed by sum factorisation (:mod:`roommodes.solvers.separable`) when
+#: its multiply-adds times this are fewer than the blocked product's (which runs in BLAS,
+#: mostly in float32).
+SEPARABLE_FMA_RATIO = 4.0
 #: Refinement stops when the step falls below this, m.
 MIN_STEP_M = 0.01
 _SMOOTH_FRACTION = 6  # 1/6 octave for the level curves
@@ -480,6 +485,11 @@ class _Scorer:
         v = np.atleast_2d(vecs)
         k = v.shape[0]
         a = self.offsets.shape[0]
+        out = self._separable_layouts(v)
+        if out is not None:
+            self.pair_evaluations += 2 * a * k
+            self.layout_evaluations += k
+            return out
         out = np.empty((k, 2, a, self.freq_hz.size), dtype=complex)
         for i0 in range(0, k, chunk):
             vi = v[i0:i0 + chunk]
@@ -496,6 +506,34 @@ class _Scorer:
         self.pair_evaluations += 2 * a * k
         self.layout_evaluations += k
         return out
+
+    def _separable_layouts(self, v):
+        """:meth:`transfer_layouts` by sum factorisation when that is the cheaper way (the
+        layouts' points lie on few planes: a line search, one layout's moved copies), else
+        None."""
+        k, a = v.shape[0], self.offsets.shape[0]
+        src = v[:, :6].reshape(k, 2, 3)
+        rec = np.clip(v[:, None, 6:9] + self.offsets[None], WALL_MARGIN_M, self.size - WALL_MARGIN_M)
+        pts_s, pts_r = src.reshape(-1, 3), rec.reshape(-1, 3)
+        counts = [np.unique(p[:, i]).size for p in (pts_s, pts_r) for i in range(3)]
+        n_pairs = 2 * a * k
+        cost = []
+        for last in range(3):
+            b, c = [i for i in range(3) if i != last]
+            cost.append(self.separable(0).fma(counts[b], counts[c], counts[3 + b], counts[3 + c], n_pairs))
+        last = int(np.argmin(cost))
+        # the blocked product runs in BLAS, mostly in float32, several times faster per
+        # multiply-add than the compiled sum
+        if cost[last] * SEPARABLE_FMA_RATIO > n_pairs * self.weight.size * 2:
+            return None
+        out = self.separable(last).grouped_transfer(src, rec)
+        if out is None:
+            return None
+        h, low = out
+        ss = np.broadcast_to(src[:, :, None, :], (k, 2, a, 3)).reshape(-1, 3)
+        rr = np.broadcast_to(rec[:, None, :, :], (k, 2, a, 3)).reshape(-1, 3)
+        h += (4 * np.pi * static_green_pairs(self.size, ss, rr).reshape(k, 2, a) - low)[..., None]
+        return h.reshape(k, 2, a, -1)
 
     # -- score parts from transfers
     def features(self, h, channel, correction_db=None, rows=None):

@@ -67,6 +67,7 @@ class SeparableModalSum:
         ia, ib, ic = idx[order, a], idx[order, b], idx[order, c]
         new_ab = np.r_[True, (ia[1:] != ia[:-1]) | (ib[1:] != ib[:-1])]
         self.ab_start = np.flatnonzero(new_ab)
+        self.ab_bounds = np.r_[self.ab_start, ia.size].astype(np.int64)
         self.ab_a, self.ab_b = ia[new_ab], ib[new_ab]
         self.mode_c = ic
         new_a = np.r_[True, self.ab_a[1:] != self.ab_a[:-1]]
@@ -97,7 +98,8 @@ class SeparableModalSum:
         # axis c: C[ab, (s_c, r_c), :] = sum over the modes of group ab
         pc = (self._cos(c, self.mode_c, sc)[:, :, None] * self._cos(c, self.mode_c, rc).T[None, :, :])  # (Sc, N, Rc)
         pc = pc.transpose(1, 0, 2).reshape(self.mode_c.size, -1)  # (N, Sc Rc)
-        big_c = np.add.reduceat(pc[:, :, None] * self.columns[:, None, :], self.ab_start, axis=0)  # (G, Sc Rc, K)
+        big_c = np.empty((self.ab_b.size, pc.shape[1], self.columns.shape[1]))  # (G, Sc Rc, K)
+        _kernels().group_sums_into(np.ascontiguousarray(pc), self.columns, self.ab_bounds, big_c)
         # axis b: D[a][(s_b, r_b), (s_c, r_c) K] = sum over the groups ab of a
         pb = (self._cos(b, self.ab_b, sb)[:, :, None] * self._cos(b, self.ab_b, rb).T[None, :, :])  # (Sb, G, Rb)
         pb = pb.transpose(1, 0, 2).reshape(self.ab_b.size, -1)  # (G, Sb Rb)
@@ -113,7 +115,7 @@ class SeparableModalSum:
         self._cache = (key, d)
         return d
 
-    def transfer(self, src, rec, src_values=None):
+    def transfer(self, src, rec, src_values=None, max_fma=None):
         """Modal sums of every source to every receiver.
 
         Parameters
@@ -125,6 +127,8 @@ class SeparableModalSum:
             Sorted values that hold every source coordinate on axes ``b`` and ``c``
             (``self.axes[1:]``); default the sources' own. Passing the same superset for
             many calls lets them share one table.
+        max_fma : float, optional
+            Give up (return None) when the sum would take more multiply-adds.
 
         Returns
         -------
@@ -132,16 +136,26 @@ class SeparableModalSum:
             ``sum_n psi_n(s) psi_n(r) W[n, f]``.
         low : ndarray (S, R)
             ``sum_n psi_n(s) psi_n(r) W_static[n]``.
-        Or None when the table would be too large (:data:`TABLE_BYTES`).
+        Or None when the table would be too large (:data:`TABLE_BYTES`) or the sum too long.
         """
-        s = np.atleast_2d(np.asarray(src, dtype=float))
-        r = np.atleast_2d(np.asarray(rec, dtype=float))
+        out = self.grouped_transfer(np.atleast_2d(src)[None], np.atleast_2d(rec)[None], src_values, max_fma)
+        return None if out is None else (out[0][0], out[1][0])
+
+    def grouped_transfer(self, src, rec, src_values=None, max_fma=None):
+        """:meth:`transfer` within each of K groups: sources (K, S, 3) to receivers
+        (K, R, 3); returns ``h`` (K, S, R, F) complex and ``low`` (K, S, R), or None."""
+        s3 = np.asarray(src, dtype=float)
+        r3 = np.asarray(rec, dtype=float)
+        n_groups, n_src, n_rec = s3.shape[0], s3.shape[1], r3.shape[1]
+        s, r = s3.reshape(-1, 3), r3.reshape(-1, 3)
         a, b, c = self.axes
         if src_values is None:
             src_values = (np.unique(s[:, b]), np.unique(s[:, c]))
         sb, sc = (np.asarray(v, dtype=float) for v in src_values)
         rb, ib_r = np.unique(r[:, b], return_inverse=True)
         rc, ic_r = np.unique(r[:, c], return_inverse=True)
+        if max_fma is not None and self.fma(sb.size, sc.size, rb.size, rc.size, s.shape[0] * n_rec) > max_fma:
+            return None
         ib_s, ic_s = np.searchsorted(sb, s[:, b]), np.searchsorted(sc, s[:, c])
         if (np.any(ib_s >= sb.size) or np.any(ic_s >= sc.size) or np.any(sb[np.minimum(ib_s, sb.size - 1)] != s[:, b])
                 or np.any(sc[np.minimum(ic_s, sc.size - 1)] != s[:, c])):
@@ -149,17 +163,30 @@ class SeparableModalSum:
         d = self.table(sb, sc, rb, rc)
         if d is None:
             return None
-        plane_s = (ib_s * sc.size + ic_s).astype(np.int64)
-        plane_r = (ib_r.ravel() * rc.size + ic_r.ravel()).astype(np.int64)
-        cx_s, cx_r = self._cos(a, self.a_index, s[:, a]), self._cos(a, self.a_index, r[:, a])
-        h = np.empty((s.shape[0], r.shape[0], 2 * self.n_freq))
-        low = np.empty((s.shape[0], r.shape[0]))
+        plane_s = (ib_s * sc.size + ic_s).astype(np.int64).reshape(n_groups, n_src)
+        plane_r = (ib_r.ravel() * rc.size + ic_r.ravel()).astype(np.int64).reshape(n_groups, n_rec)
+        cx_s = self._cos(a, self.a_index, s[:, a]).reshape(n_groups, n_src, -1)
+        cx_r = self._cos(a, self.a_index, r[:, a]).reshape(n_groups, n_rec, -1)
+        h = np.empty((n_groups, n_src, n_rec, 2 * self.n_freq))
+        low = np.empty((n_groups, n_src, n_rec))
         _kernels().pair_sums_into(cx_s, cx_r, plane_s, plane_r, rb.size * rc.size, d.reshape(-1, *d.shape[2:]), h, low)
         return h.view(np.complex128), low
+
+    def fma(self, n_sb, n_sc, n_rb, n_rc, n_pairs):
+        """Multiply-adds of a sum over ``n_pairs`` pairs with a table of that many values
+        on the two axes (its build included)."""
+        n_k = self.columns.shape[1]
+        table = n_k * (self.mode_c.size * n_sc * n_rc + self.ab_b.size * n_sb * n_rb * n_sc * n_rc)
+        return table + n_k * self.a_index.size * n_pairs
 
 
 def _pair_sums_numpy(cx_src, cx_rec, plane_src, plane_rec, n_plane_rec, table, n_out):
     """NumPy twin of :func:`._separable_kernels.pair_sums_into` (returns ``h``, ``low``)."""
-    t = table.reshape(-1, *table.shape[2:])[plane_src[:, None] * n_plane_rec + plane_rec[None, :]]  # (S, R, I, K)
-    out = np.einsum("si,ri,srik->srk", cx_src, cx_rec, t)
+    t = table[plane_src[:, :, None] * n_plane_rec + plane_rec[:, None, :]]  # (K, S, R, I, C)
+    out = np.einsum("ksi,kri,ksric->ksrc", cx_src, cx_rec, t)
     return out[..., :n_out], out[..., -1]
+
+
+def _group_sums_numpy(weight, columns, start):
+    """NumPy twin of :func:`._separable_kernels.group_sums_into` (returns ``out``)."""
+    return np.add.reduceat(weight[:, :, None] * columns[:, None, :], start[:-1], axis=0)
