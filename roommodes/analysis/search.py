@@ -884,7 +884,11 @@ class _Constraints:
         front wall by rear_clearance_m, it stays inside the room and out of the keep-out boxes."""
         sp = self.space
         c = cabinet_corners(p, sp.cabinets[side], seat, sp.toe_in)  # (..., 8, 3)
-        lo, hi = c.min(axis=-2), c.max(axis=-2)
+        # corner by corner: a reduction over the short middle axis is many times slower
+        lo, hi = c[..., 0, :].copy(), c[..., 0, :].copy()
+        for k in range(1, c.shape[-2]):
+            np.minimum(lo, c[..., k, :], out=lo)
+            np.maximum(hi, c[..., k, :], out=hi)
         ok = (lo[..., 0] >= sp.rear_clearance_m - 1e-9) & np.all(lo >= -1e-9, axis=-1) \
             & np.all(hi <= self.size + 1e-9, axis=-1)
         for box in sp.keep_out:
@@ -1002,19 +1006,27 @@ def _counted_plan(room, space, step):
         n_region = free_l.shape[0]
         free_l, free_r = free_l[cons.speaker_ok(free_l, 0)], free_r[cons.speaker_ok(free_r, 1)]
     plan, count, n_region, n_ok = [], 0, 0, 0
-    for seat in seats:
+    if space.symmetric:
+        # every seat's candidates checked in one pass (the checks are row by row)
+        lefts = [_pair_grid(cons, step, seat) for seat in seats]
+        sizes = np.array([g.shape[0] for g in lefts])
+        left_all = np.concatenate(lefts)
+        seat_all = np.repeat(seats, sizes, axis=0)
+        right_all = _mirror(left_all, seat_all[:, 1])
+        keep_all = cons.speaker_ok(left_all, 0) & cons.speaker_ok(right_all, 1)
+        ok_all = np.zeros(keep_all.shape, dtype=bool)
+        ok_all[keep_all] = cons.pair_ok(left_all[keep_all], right_all[keep_all], seat_all[keep_all])
+        n_region = int(sizes.sum())
+        n_ok = int(keep_all.sum())
+        bounds = np.r_[0, np.cumsum(sizes)]
+    for i_seat, seat in enumerate(seats):
         if space.symmetric:
-            left = _pair_grid(cons, step, seat)
-            n_region += left.shape[0]
-            right = _mirror(left, seat[1])
-            keep = cons.speaker_ok(left, 0) & cons.speaker_ok(right, 1)
-            left, right = left[keep], right[keep]
-            n_ok += left.shape[0]
-            ok = cons.pair_ok(left, right, seat[None, :])
+            rows = slice(bounds[i_seat], bounds[i_seat + 1])
+            ok = ok_all[rows]
             if ok.any():
                 per = 1 if abs(seat[1] - size[1] / 2) < 1e-9 else 2
                 count += per * int(ok.sum())
-                plan.append((seat, left[ok], right[ok], None))
+                plan.append((seat, left_all[rows][ok], right_all[rows][ok], None))
         else:
             n_ok += free_l.shape[0]
             li = np.flatnonzero(_distance_possible(free_l, seat, space))

@@ -243,7 +243,8 @@ def search_rows(room, rounds):
         fn = search.search_layouts.__wrapped__ if old else search.search_layouts  # old: BLAS's own threads
         if old:
             with mock.patch.multiple(search._Scorer, shapes=old_scorer.shapes, transfer_block=old_scorer.transfer_block,
-                                     transfer_layouts=old_scorer.transfer_layouts):
+                                     transfer_layouts=old_scorer.transfer_layouts,
+                                     plane_transfer=old_scorer.plane_transfer):
                 return timed(lambda: fn(room, method=method))
         return timed(lambda: fn(room, method=method))
 
