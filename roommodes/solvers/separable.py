@@ -24,7 +24,9 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["SeparableModalSum", "TABLE_BYTES"]
+from . import modal as _modal
+
+__all__ = ["SeparableModalSum", "TABLE_BYTES", "static_green_pairs_shared"]
 
 #: Largest table ``D`` built, bytes; beyond it :meth:`SeparableModalSum.table` returns None.
 TABLE_BYTES = 64 * 2**20
@@ -178,6 +180,47 @@ class SeparableModalSum:
         n_k = self.columns.shape[1]
         table = n_k * (self.mode_c.size * n_sc * n_rc + self.ab_b.size * n_sb * n_rb * n_sc * n_rc)
         return table + n_k * self.a_index.size * n_pairs
+
+
+def static_green_pairs_shared(size_m, sources_m, receivers_m):
+    """:func:`roommodes.solvers.modal.static_green_pairs`, the same values to the bit, with
+    the image terms computed once for all pairs that share the axis of largest separation
+    and their two coordinates on it (the pairs of one speaker and a listening area, say).
+
+    Parameters
+    ----------
+    size_m : array_like (3,)
+    sources_m, receivers_m : array_like (P, 3)
+        Paired points inside the box, m.
+
+    Returns
+    -------
+    ndarray (P,)
+    """
+    size = np.ascontiguousarray(size_m, dtype=float)
+    s = np.ascontiguousarray(np.atleast_2d(np.asarray(sources_m, dtype=float)))
+    r = np.ascontiguousarray(np.atleast_2d(np.asarray(receivers_m, dtype=float)))
+    if s.shape != r.shape or s.ndim != 2 or s.shape[1] != 3:
+        raise ValueError(f"sources_m and receivers_m must both be (P, 3), got {s.shape} and {r.shape}")
+    d = np.abs(s - r)
+    kmax = _modal._STATIC_DECAY / np.maximum(d.max(axis=1), 1e-3)
+    fits = kmax * size.max() / np.pi + 1 <= _modal._STATIC_TABLE_INDEX
+    out = np.empty(s.shape[0])
+    if not fits.all():  # close pairs: the solver's own kernel
+        near = np.flatnonzero(~fits)
+        out[near] = _modal.static_green_pairs(size, s[near], r[near])
+    far = np.flatnonzero(fits)
+    if far.size:
+        axis = np.argmax(d[far], axis=1)  # the first on ties, as the kernel's choice
+        lo = np.minimum(s[far, axis], r[far, axis])
+        hi = np.maximum(s[far, axis], r[far, axis])
+        _, group, counts = np.unique(np.stack([axis.astype(float), lo, hi], axis=1), axis=0, return_inverse=True,
+                                     return_counts=True)
+        order = far[np.argsort(group.ravel(), kind="stable")].astype(np.int64)
+        start = np.r_[0, np.cumsum(counts)].astype(np.int64)
+        _kernels().static_pairs_shared(size, s, r, _modal._STATIC_DECAY,
+                                       *_modal._static_tables(tuple(size.tolist())), order, start, out)
+    return out
 
 
 def _pair_sums_numpy(cx_src, cx_rec, plane_src, plane_rec, n_plane_rec, table, n_out):
