@@ -9,7 +9,9 @@ No outside check values: the reference is the package's own ``modal_transfer`` w
 import numpy as np
 
 from roommodes import demo_room_path, load_room
+from roommodes.analysis import search
 from roommodes.analysis.search import _Scorer, area_offsets, check_weights, search_layouts
+from roommodes.solvers import separable
 from roommodes.solvers.modal import modal_sum_block, modal_transfer, mode_shape_block, static_green_pairs
 
 DEMO = load_room(demo_room_path())
@@ -71,3 +73,18 @@ def test_layouts_on_few_planes_are_summed_by_factorisation_in_double_precision()
         # and the solver (whose static tail is summed block-wise, to 1e-7 dB the same)
         ref = modal_transfer(size, z, src, rec, sc.freq_hz, DEMO.speed_of_sound, precision="double")
         assert _max_db(h[i], ref) <= 1e-6
+
+
+def test_coarse_pass_without_the_factorised_sum_ranks_alike(monkeypatch):
+    # a table too large for the memory cap: the coarse pass falls back to the blocked
+    # product (single precision, within 5e-4 dB) and ranks the same layouts
+    res = search_layouts(DEMO, method="modal", refine=False, top=3)
+    monkeypatch.setattr(separable, "TABLE_BYTES", 0)
+    monkeypatch.setattr(search, "SEPARABLE_FMA_RATIO", np.inf)
+    calls = []
+    block = _Scorer.transfer_block
+    monkeypatch.setattr(_Scorer, "transfer_block", lambda self, *a, **k: calls.append(1) or block(self, *a, **k))
+    blocked = search_layouts(DEMO, method="modal", refine=False, top=3)
+    assert calls  # the blocked product ran
+    assert [r.layout for r in res.ranked] == [r.layout for r in blocked.ranked]
+    np.testing.assert_allclose([r.score for r in res.ranked], [r.score for r in blocked.ranked], rtol=0, atol=1e-3)
