@@ -119,6 +119,8 @@ def static_pairs_shared(size, src, rec, decay, kappa, weight_den, qexp, order, g
     pi = math.pi
     n_tab = kappa.shape[1]
     cos_c = np.empty(n_tab)
+    # per-point cosines, kept while consecutive pairs share a coordinate
+    cs_c, cr_c, cs_b, cr_b = np.empty(n_tab), np.empty(n_tab), np.empty(n_tab), np.empty(n_tab)
     num_t = np.empty((n_tab, n_tab))
     p_stop = np.empty(n_tab, dtype=np.int64)
     for g in range(group_start.size - 1):
@@ -163,16 +165,31 @@ def static_pairs_shared(size, src, rec, decay, kappa, weight_den, qexp, order, g
                     num += math.exp(-kap * e2)
                 num_t[m, p] = num
         zero = (la / 3.0 - hi + (lo * lo + hi * hi) / (2.0 * la)) / (lb * lc)
+        last_sb, last_rb, last_sc, last_rc = math.nan, math.nan, math.nan, math.nan
         for j in range(group_start[g], group_start[g + 1]):
             i = order[j]
             sb, rb, sc, rc = src[i, b], rec[i, b], src[i, c], rec[i, c]
+            if sc != last_sc:
+                for p in range(mc + 1):
+                    cs_c[p] = math.cos(p * pi / lc * sc)
+                last_sc = sc
+            if rc != last_rc:
+                for p in range(mc + 1):
+                    cr_c[p] = math.cos(p * pi / lc * rc)
+                last_rc = rc
+            if sb != last_sb:
+                for m in range(m_stop):
+                    cs_b[m] = math.cos(m * pi / lb * sb)
+                last_sb = sb
+            if rb != last_rb:
+                for m in range(m_stop):
+                    cr_b[m] = math.cos(m * pi / lb * rb)
+                last_rb = rb
             for p in range(mc + 1):
-                kc = p * pi / lc
-                cos_c[p] = math.cos(kc * sc) * math.cos(kc * rc)
+                cos_c[p] = cs_c[p] * cr_c[p]
             total = zero
             for m in range(m_stop):
-                kb = m * pi / lb
-                cb = math.cos(kb * sb) * math.cos(kb * rb)
+                cb = cs_b[m] * cr_b[m]
                 row_w = wd_t[m]
                 row_n = num_t[m]
                 acc = 0.0

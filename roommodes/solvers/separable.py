@@ -212,12 +212,17 @@ def static_green_pairs_shared(size_m, sources_m, receivers_m):
     far = np.flatnonzero(fits)
     if far.size:
         axis = np.argmax(d[far], axis=1)  # the first on ties, as the kernel's choice
-        lo = np.minimum(s[far, axis], r[far, axis])
-        hi = np.maximum(s[far, axis], r[far, axis])
-        _, group, counts = np.unique(np.stack([axis.astype(float), lo, hi], axis=1), axis=0, return_inverse=True,
-                                     return_counts=True)
-        order = far[np.argsort(group.ravel(), kind="stable")].astype(np.int64)
-        start = np.r_[0, np.cumsum(counts)].astype(np.int64)
+        sf, rf = s[far], r[far]
+        lo = np.minimum(sf[np.arange(far.size), axis], rf[np.arange(far.size), axis])
+        hi = np.maximum(sf[np.arange(far.size), axis], rf[np.arange(far.size), axis])
+        # groups of (axis, lo, hi); inside a group, pairs with the same source coordinates next
+        # to each other (the kernel keeps a point's cosines while they repeat)
+        keys = (rf[:, 2], rf[:, 1], rf[:, 0], sf[:, 2], sf[:, 1], sf[:, 0], hi, lo, axis)
+        sort = np.lexsort(keys)
+        new = np.ones(far.size, dtype=bool)
+        new[1:] = (np.diff(axis[sort]) != 0) | (np.diff(lo[sort]) != 0) | (np.diff(hi[sort]) != 0)
+        order = far[sort].astype(np.int64)
+        start = np.r_[np.flatnonzero(new), far.size].astype(np.int64)
         _kernels().static_pairs_shared(size, s, r, _modal._STATIC_DECAY,
                                        *_modal._static_tables(tuple(size.tolist())), order, start, out)
     return out
