@@ -521,7 +521,7 @@ class _Scorer:
         cost = []
         for last in range(3):
             b, c = [i for i in range(3) if i != last]
-            cost.append(self.separable(0).fma(counts[b], counts[c], counts[3 + b], counts[3 + c], n_pairs))
+            cost.append(self.separable(last).fma(counts[b], counts[c], counts[3 + b], counts[3 + c], n_pairs))
         last = int(np.argmin(cost))
         if cost[last] * SEPARABLE_FMA_RATIO > n_pairs * self.weight.size * 2:
             return None
@@ -1086,7 +1086,7 @@ def _coarse_pass(scorer, plan, keep_per_seat, progress, distinct_m=0.0):
     # axis of most values summed last and one table over the other two for every seat
     # whose listening points lie on the same planes
     speakers = np.concatenate([np.concatenate([l_, r_]) for _, l_, r_, _ in plan])
-    last = _last_axis(speakers, plan[0][0][None, :] + scorer.offsets, scorer.separable(0).table_bytes)
+    last = _last_axis(speakers, plan[0][0][None, :] + scorer.offsets, lambda a: scorer.separable(a).table_bytes)
     others = [a for a in range(3) if a != last]
     src_values = tuple(np.unique(speakers[:, a]) for a in others)
     psi_grid = {}
@@ -1144,12 +1144,13 @@ def _coarse_pass(scorer, plan, keep_per_seat, progress, distinct_m=0.0):
 
 def _last_axis(sources, receivers, table_bytes):
     """The axis to sum last in the coarse pass's sum factorisation: the one whose table over
-    the other two axes (every source value, one seat's receivers) is smallest."""
+    the other two axes (every source value, one seat's receivers) is smallest
+    (``table_bytes(axis)``: that axis's :meth:`SeparableModalSum.table_bytes`)."""
     sizes = []
     for a in range(3):
         b, c = [i for i in range(3) if i != a]
         n = [np.unique(p[:, i]).size for p in (sources, receivers) for i in (b, c)]
-        sizes.append(table_bytes(n[0] * n[1], n[2] * n[3]))
+        sizes.append(table_bytes(a)(n[0] * n[1], n[2] * n[3]))
     return int(np.argmin(sizes))
 
 
