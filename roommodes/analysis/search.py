@@ -25,8 +25,9 @@ response included (:func:`roommodes.speaker.speaker_response`):
     diagonals, in different combinations); moves that improve count as zero.
 
 Search: a coarse global pass scores every layout of a grid over the allowed region
-(batched: all source positions x all listening points x all frequencies as real matrix
-products, grouped by seat position), the best are scored with the robustness part, the
+(batched: all source positions x all listening points x all frequencies, grouped by seat
+position, the modal sum taken one axis at a time over the grid's planes,
+:mod:`roommodes.solvers.separable`), the best are scored with the robustness part, the
 best distinct ones refined by a pattern search (coordinate moves with halving steps, down
 to 1 cm), and the result ranked. The four presets and the file's own layout are scored
 the same way. The modal sum is the one of :mod:`roommodes.solvers.modal` (same modes,
@@ -64,8 +65,8 @@ from ..solvers.modal import (
     mode_shape_block,
     resonant_count,
     static_green_block,
-    static_green_pairs,
 )
+from ..solvers.separable import SeparableModalSum, static_green_pairs_shared
 from ..solvers.threads import blas_threads, small_products
 from .levels import speaker_levels
 from .predict import usable_band
@@ -92,6 +93,12 @@ COARSE_STEPS_M = (0.05, 0.075, 0.1, 0.125, 0.15, 0.2, 0.25, 0.3, 0.4, 0.5)
 #: Budget of the coarse pass in floating-point operations of its matrix products
 #: (4 per mode, frequency and source-listening-point pair); about 2 s at 30 GFLOP/s.
 COARSE_BUDGET_FLOP = 6e10
+#: A layout batch is summed by sum factorisation (:mod:`roommodes.solvers.separable`) when
+#: its multiply-adds times this are fewer than the blocked product's (which runs in BLAS,
+#: mostly in float32). Measured on the demo room, overheads and static tails included, a
+#: multiply-add of the factorised sum took 7 to 20 times as long; the two took the same
+#: time for one layout's eight moved copies, at a ratio of about 11.
+SEPARABLE_FMA_RATIO = 10.0
 #: Refinement stops when the step falls below this, m.
 MIN_STEP_M = 0.01
 _SMOOTH_FRACTION = 6  # 1/6 octave for the level curves
@@ -443,6 +450,31 @@ class _Scorer:
         self.pair_evaluations += src.shape[0] * rec.shape[0]
         return h
 
+    def separable(self, last_axis):
+        """The :class:`~roommodes.solvers.separable.SeparableModalSum` of this scorer's modes
+        summed last along ``last_axis`` (built once per axis)."""
+        cache = self.__dict__.setdefault("_separable", {})
+        if last_axis not in cache:
+            cache[last_axis] = SeparableModalSum(self.idx, self.size, self.weight, self.static_weight, last_axis)
+        return cache[last_axis]
+
+    def plane_transfer(self, src, rec, src_values, last_axis, psi_src=None):
+        """:meth:`transfer_block` by sum factorisation for sources on few planes
+        (:mod:`roommodes.solvers.separable`; float64, the same sum in another order), or
+        :meth:`transfer_block` itself (``psi_src``: a callable giving the sources' mode
+        shapes) when its table would be too large.
+
+        ``src_values``: the values on the two other axes (sorted) that hold every source's
+        coordinates; calls with the same values and receiver planes share one table.
+        """
+        out = self.separable(last_axis).transfer(src, rec, src_values)
+        if out is None:
+            return self.transfer_block(src, rec, None if psi_src is None else psi_src(src))
+        h, low = out
+        h += (4 * np.pi * static_green_block(self.size, src, rec) - low)[:, :, None]
+        self.pair_evaluations += src.shape[0] * rec.shape[0]
+        return h
+
     def transfer_layouts(self, vecs, chunk=256):
         """(K, 2, A, F) complex transfers of both speakers to the area points of K layouts.
 
@@ -454,6 +486,11 @@ class _Scorer:
         v = np.atleast_2d(vecs)
         k = v.shape[0]
         a = self.offsets.shape[0]
+        out = self._separable_layouts(v)
+        if out is not None:
+            self.pair_evaluations += 2 * a * k
+            self.layout_evaluations += k
+            return out
         out = np.empty((k, 2, a, self.freq_hz.size), dtype=complex)
         for i0 in range(0, k, chunk):
             vi = v[i0:i0 + chunk]
@@ -465,11 +502,37 @@ class _Scorer:
             h, low = grouped_pair_sum(psi_s, psi_r, self.weight, self.static_weight, n_double=self.n_double)
             ss = np.broadcast_to(src[:, :, None, :], (n, 2, a, 3)).reshape(-1, 3)
             rr = np.broadcast_to(rec[:, None, :, :], (n, 2, a, 3)).reshape(-1, 3)
-            h += (4 * np.pi * static_green_pairs(self.size, ss, rr).reshape(n, 2, a) - low)[..., None]
+            h += (4 * np.pi * static_green_pairs_shared(self.size, ss, rr).reshape(n, 2, a) - low)[..., None]
             out[i0:i0 + n] = h.reshape(n, 2, a, -1)
         self.pair_evaluations += 2 * a * k
         self.layout_evaluations += k
         return out
+
+    def _separable_layouts(self, v):
+        """:meth:`transfer_layouts` by sum factorisation when that is the cheaper way (the
+        layouts' points lie on few planes: a line search, one layout's moved copies), else
+        None."""
+        k, a = v.shape[0], self.offsets.shape[0]
+        src = v[:, :6].reshape(k, 2, 3)
+        rec = np.clip(v[:, None, 6:9] + self.offsets[None], WALL_MARGIN_M, self.size - WALL_MARGIN_M)
+        pts_s, pts_r = src.reshape(-1, 3), rec.reshape(-1, 3)
+        counts = [np.unique(p[:, i]).size for p in (pts_s, pts_r) for i in range(3)]
+        n_pairs = 2 * a * k
+        cost = []
+        for last in range(3):
+            b, c = [i for i in range(3) if i != last]
+            cost.append(self.separable(last).fma(counts[b], counts[c], counts[3 + b], counts[3 + c], n_pairs))
+        last = int(np.argmin(cost))
+        if cost[last] * SEPARABLE_FMA_RATIO > n_pairs * self.weight.size * 2:
+            return None
+        out = self.separable(last).grouped_transfer(src, rec)
+        if out is None:
+            return None
+        h, low = out
+        ss = np.broadcast_to(src[:, :, None, :], (k, 2, a, 3)).reshape(-1, 3)
+        rr = np.broadcast_to(rec[:, None, :, :], (k, 2, a, 3)).reshape(-1, 3)
+        h += (4 * np.pi * static_green_pairs_shared(self.size, ss, rr).reshape(k, 2, a) - low)[..., None]
+        return h.reshape(k, 2, a, -1)
 
     # -- score parts from transfers
     def features(self, h, channel, correction_db=None, rows=None):
@@ -529,21 +592,76 @@ class _Scorer:
         """Parts (dict of (K,) arrays, with ``robustness`` and the unweighted
         ``flatness_raw``) and scores (K,) of K layouts."""
         v = np.atleast_2d(np.asarray(vecs, dtype=float))
+        nominal = self.nominal(v)
+        parts = nominal.parts
+        if robustness and self.weights["robustness"] > 0:
+            parts["robustness"] = self.robustness(v, nominal)
+        else:
+            parts["robustness"] = np.zeros(v.shape[0])
+        return parts, nominal.s4 + self.weights["robustness"] * parts["robustness"]
+
+    def nominal(self, vecs):
+        """The first four parts of K layouts as planned: a :class:`_Nominal` (its
+        corrections are the EQ that :meth:`robustness` keeps)."""
+        v = np.atleast_2d(np.asarray(vecs, dtype=float))
         h = self.transfer_layouts(v)
         fl, fr = self.features(h[:, 0], 0), self.features(h[:, 1], 1)
         parts = self.parts(fl, fr)
-        s4 = self.base_score(parts)
-        if robustness and self.weights["robustness"] > 0:
-            moves = perturbations().reshape(8, 9)
-            pv = self.clip_inside(v[:, None, :] + moves[None]).reshape(-1, 9)
-            hp = self.transfer_layouts(pv)
-            # the EQ set up for the planned layout stays when the objects land 5 cm off
-            cl, cr = (np.repeat(f["correction"], 8, axis=0) for f in (fl, fr))
-            sp = self.base_score(self.parts(self.features(hp[:, 0], 0, cl), self.features(hp[:, 1], 1, cr)))
-            parts["robustness"] = np.mean(np.maximum(0.0, sp.reshape(-1, 8) - s4[:, None]), axis=1)
-        else:
-            parts["robustness"] = np.zeros(v.shape[0])
-        return parts, s4 + self.weights["robustness"] * parts["robustness"]
+        return _Nominal(parts, self.base_score(parts), fl["correction"], fr["correction"])
+
+    def robustness(self, vecs, nominal):
+        """The robustness part (K,) of K layouts whose :meth:`nominal` figures are given."""
+        v = np.atleast_2d(np.asarray(vecs, dtype=float))
+        moves = perturbations().reshape(8, 9)
+        pv = self.clip_inside(v[:, None, :] + moves[None]).reshape(-1, 9)
+        hp = self.transfer_layouts(pv)
+        # the EQ set up for the planned layout stays when the objects land 5 cm off
+        cl, cr = (np.repeat(c, 8, axis=0) for c in (nominal.correction_left, nominal.correction_right))
+        sp = self.base_score(self.parts(self.features(hp[:, 0], 0, cl), self.features(hp[:, 1], 1, cr)))
+        return np.mean(np.maximum(0.0, sp.reshape(-1, 8) - nominal.s4[:, None]), axis=1)
+
+    def best_full(self, vecs, nominal, rows, batch=4):
+        """The row of ``rows`` with the lowest full score, and that score, computing the
+        robustness part only where it can still decide.
+
+        The full score is ``s4 + w r`` with ``r >= 0``: the rows are taken in order of
+        ``s4`` (``batch`` at a time) until the next ``s4`` exceeds the best full score
+        found, which no later row can then reach. Ties go to the first of ``rows``, as
+        ``rows[np.argmin(full[rows])]`` with every full score computed.
+
+        Parameters
+        ----------
+        vecs : ndarray (K, 9)
+        nominal : _Nominal
+            Of ``vecs``.
+        rows : ndarray of int
+            Candidate rows; ties go to the one named first.
+        """
+        rows = np.asarray(rows, dtype=int)
+        s4 = nominal.s4[rows]
+        w = self.weights["robustness"]
+        if w <= 0:
+            full = s4 + 0.0
+            i = int(np.argmin(full))
+            return int(rows[i]), float(full[i])
+        order = np.argsort(s4, kind="stable")  # positions in rows
+        done, full = [], []
+        best = np.inf
+        b0 = 0
+        while b0 < order.size:
+            take = order[b0:b0 + batch]
+            b0 += batch
+            # the margin covers round-off between the s4 of a batch and of the whole
+            take = take[s4[take] <= best + 1e-9]
+            if take.size == 0:
+                break
+            f = s4[take] + w * self.robustness(vecs[rows[take]], nominal.take(rows[take]))
+            done.extend(take.tolist())
+            full.extend(f.tolist())
+            best = min(best, float(np.min(f)))
+            batch *= 2
+        i = int(np.lexsort((done, full))[0])
+        return int(rows[done[i]]), float(full[i])
 
     def curves(self, vec):
         """Seat levels of one layout on the band's grid: (freq_hz (Fb,), before (2, Fb),
@@ -563,6 +681,22 @@ class _Scorer:
     def clip_inside(self, vecs):
         size3 = np.tile(self.size, 3)
         return np.clip(vecs, WALL_MARGIN_M, size3 - WALL_MARGIN_M)
+
+
+@dataclass(frozen=True)
+class _Nominal:
+    """The first four parts of K layouts (dict of (K,)), their weighted sum ``s4`` (K,) and
+    each channel's correction (K, Fb), dB."""
+
+    parts: dict
+    s4: np.ndarray
+    correction_left: np.ndarray
+    correction_right: np.ndarray
+
+    def take(self, rows):
+        """The same figures of the layouts ``rows``."""
+        return _Nominal({k: v[rows] for k, v in self.parts.items()}, self.s4[rows], self.correction_left[rows],
+                        self.correction_right[rows])
 
 
 class _ChainScorer(_Scorer):
@@ -749,7 +883,11 @@ class _Constraints:
         front wall by rear_clearance_m, it stays inside the room and out of the keep-out boxes."""
         sp = self.space
         c = cabinet_corners(p, sp.cabinets[side], seat, sp.toe_in)  # (..., 8, 3)
-        lo, hi = c.min(axis=-2), c.max(axis=-2)
+        # corner by corner: a reduction over the short middle axis is many times slower
+        lo, hi = c[..., 0, :].copy(), c[..., 0, :].copy()
+        for k in range(1, c.shape[-2]):
+            np.minimum(lo, c[..., k, :], out=lo)
+            np.maximum(hi, c[..., k, :], out=hi)
         ok = (lo[..., 0] >= sp.rear_clearance_m - 1e-9) & np.all(lo >= -1e-9, axis=-1) \
             & np.all(hi <= self.size + 1e-9, axis=-1)
         for box in sp.keep_out:
@@ -867,19 +1005,27 @@ def _counted_plan(room, space, step):
         n_region = free_l.shape[0]
         free_l, free_r = free_l[cons.speaker_ok(free_l, 0)], free_r[cons.speaker_ok(free_r, 1)]
     plan, count, n_region, n_ok = [], 0, 0, 0
-    for seat in seats:
+    if space.symmetric:
+        # every seat's candidates checked in one pass (the checks are row by row)
+        lefts = [_pair_grid(cons, step, seat) for seat in seats]
+        sizes = np.array([g.shape[0] for g in lefts])
+        left_all = np.concatenate(lefts)
+        seat_all = np.repeat(seats, sizes, axis=0)
+        right_all = _mirror(left_all, seat_all[:, 1])
+        keep_all = cons.speaker_ok(left_all, 0) & cons.speaker_ok(right_all, 1)
+        ok_all = np.zeros(keep_all.shape, dtype=bool)
+        ok_all[keep_all] = cons.pair_ok(left_all[keep_all], right_all[keep_all], seat_all[keep_all])
+        n_region = int(sizes.sum())
+        n_ok = int(keep_all.sum())
+        bounds = np.r_[0, np.cumsum(sizes)]
+    for i_seat, seat in enumerate(seats):
         if space.symmetric:
-            left = _pair_grid(cons, step, seat)
-            n_region += left.shape[0]
-            right = _mirror(left, seat[1])
-            keep = cons.speaker_ok(left, 0) & cons.speaker_ok(right, 1)
-            left, right = left[keep], right[keep]
-            n_ok += left.shape[0]
-            ok = cons.pair_ok(left, right, seat[None, :])
+            rows = slice(bounds[i_seat], bounds[i_seat + 1])
+            ok = ok_all[rows]
             if ok.any():
                 per = 1 if abs(seat[1] - size[1] / 2) < 1e-9 else 2
                 count += per * int(ok.sum())
-                plan.append((seat, left[ok], right[ok], None))
+                plan.append((seat, left_all[rows][ok], right_all[rows][ok], None))
         else:
             n_ok += free_l.shape[0]
             li = np.flatnonzero(_distance_possible(free_l, seat, space))
@@ -935,13 +1081,23 @@ def _coarse_pass(scorer, plan, keep_per_seat, progress, distinct_m=0.0):
     """Score every candidate of the plan by the first four parts; keep the best per seat."""
     vecs, s4s, n_cand = [], [], 0
     mirror = scorer.mirror_rows()
-    # the speaker positions repeat from seat to seat: their mode shapes are computed once
-    grid = np.unique(np.round(np.concatenate([np.concatenate([l_, r_]) for _, l_, r_, _ in plan]), 9), axis=0)
-    psi_grid = scorer.shapes(grid)
+    # the speaker positions repeat from seat to seat: they lie on few values of each axis,
+    # and the modal sum is taken by sum factorisation (Scorer.plane_transfer) with the
+    # axis of most values summed last and one table over the other two for every seat
+    # whose listening points lie on the same planes
+    speakers = np.concatenate([np.concatenate([l_, r_]) for _, l_, r_, _ in plan])
+    last = _last_axis(speakers, plan[0][0][None, :] + scorer.offsets, lambda a: scorer.separable(a).table_bytes)
+    others = [a for a in range(3) if a != last]
+    src_values = tuple(np.unique(speakers[:, a]) for a in others)
+    psi_grid = {}
 
     def shapes_of(points):
-        rows = np.searchsorted(_row_keys(grid), _row_keys(np.round(points, 9)))
-        return psi_grid[rows]
+        # the fallback's mode shapes, computed once for the whole grid
+        if not psi_grid:
+            psi_grid["grid"] = np.unique(np.round(speakers, 9), axis=0)
+            psi_grid["psi"] = scorer.shapes(psi_grid["grid"])
+        rows = np.searchsorted(_row_keys(psi_grid["grid"]), _row_keys(np.round(points, 9)))
+        return psi_grid["psi"][rows]
 
     for i, (seat, left, right, mask) in enumerate(plan):
         rec = seat[None, :] + scorer.offsets
@@ -950,11 +1106,11 @@ def _coarse_pass(scorer, plan, keep_per_seat, progress, distinct_m=0.0):
             # the model is symmetric about y = Ly/2 (the damping weighs the left and right
             # walls alike): the mirrored speaker's transfer to a point is the speaker's
             # transfer to the mirrored point, so the right channel costs nothing
-            h = scorer.transfer_block(left, rec, shapes_of(left))
+            h = scorer.plane_transfer(left, rec, src_values, last, shapes_of)
             fl, fr = scorer.features(h, 0), scorer.features(h, 1, rows=mirror)
         else:
             both = np.concatenate([left, right])
-            h = scorer.transfer_block(both, rec, shapes_of(both))
+            h = scorer.plane_transfer(both, rec, src_values, last, shapes_of)
             fl, fr = scorer.features(h[:nl], 0), scorer.features(h[nl:], 1)
         if mask is None:  # mirrored pairs: left i goes with right i
             li = ri = np.arange(nl)
@@ -984,6 +1140,18 @@ def _coarse_pass(scorer, plan, keep_per_seat, progress, distinct_m=0.0):
             progress(i + 1, len(plan))
     scorer.layout_evaluations += n_cand
     return np.concatenate(vecs), np.concatenate(s4s), n_cand
+
+
+def _last_axis(sources, receivers, table_bytes):
+    """The axis to sum last in the coarse pass's sum factorisation: the one whose table over
+    the other two axes (every source value, one seat's receivers) is smallest
+    (``table_bytes(axis)``: that axis's :meth:`SeparableModalSum.table_bytes`)."""
+    sizes = []
+    for a in range(3):
+        b, c = [i for i in range(3) if i != a]
+        n = [np.unique(p[:, i]).size for p in (sources, receivers) for i in (b, c)]
+        sizes.append(table_bytes(a)(n[0] * n[1], n[2] * n[3]))
+    return int(np.argmin(sizes))
 
 
 def _row_keys(points):
@@ -1041,28 +1209,23 @@ def _refine(scorer, cons, seeds, seed_scores, step0, progress=None, max_iter=80,
         nb = cur[active][:, None, :] + step[active][:, None, None] * moves[None]  # (a, m, 9)
         ok = cons.valid(nb.reshape(-1, 9)).reshape(nb.shape[:2])
         owner, which = np.nonzero(ok)
+        improved = np.zeros(active.size, dtype=bool)
         if owner.size:
             cand = nb[owner, which]
-            p4, _ = scorer.score_vecs(cand, robustness=False)
-            s4 = scorer.base_score(p4)
-            # robustness only for the best few moves of each seed whose base score can still win
-            chosen = []
+            nominal = scorer.nominal(cand)
+            s4 = nominal.s4
+            # robustness only for the best few moves of each seed whose base score can
+            # still win, and of those only where it can change the choice (best_full)
             for a in np.unique(owner):
                 rows = np.flatnonzero(owner == a)
                 rows = rows[s4[rows] < score[active[a]]]
-                chosen.extend(rows[np.argsort(s4[rows])[:per_seed]])
-            chosen = np.array(chosen, dtype=int)
-        else:
-            chosen = np.array([], dtype=int)
-        improved = np.zeros(active.size, dtype=bool)
-        if chosen.size:
-            _, full = scorer.score_vecs(cand[chosen])
-            for a in np.unique(owner[chosen]):
-                rows = np.flatnonzero(owner[chosen] == a)
-                best = rows[np.argmin(full[rows])]
-                if full[best] < score[active[a]] - 1e-9:
-                    cur[active[a]] = cand[chosen[best]]
-                    score[active[a]] = full[best]
+                rows = rows[np.argsort(s4[rows])[:per_seed]]
+                if rows.size == 0:
+                    continue
+                best, full = scorer.best_full(cand, nominal, rows, batch=1)
+                if full < score[active[a]] - 1e-9:
+                    cur[active[a]] = cand[best]
+                    score[active[a]] = full
                     improved[a] = True
         step[active[~improved]] /= 2
         if progress:
@@ -1091,15 +1254,14 @@ def _polish(scorer, cons, vecs, scores):
             continue
         v = v[ok]
         # robustness is never negative: only points whose other parts already beat the
-        # current score can beat it in full
-        p4, _ = scorer.score_vecs(v, robustness=False)
-        cand = v[scorer.base_score(p4) < out_s[i] - 1e-12]
-        if cand.shape[0] == 0:
+        # current score can beat it in full, and best_full stops once none can
+        nominal = scorer.nominal(v)
+        rows = np.flatnonzero(nominal.s4 < out_s[i] - 1e-12)
+        if rows.size == 0:
             continue
-        _, full = scorer.score_vecs(cand)
-        j = int(np.argmin(full))
-        if full[j] < out_s[i] - 1e-12:
-            out[i], out_s[i] = cand[j], full[j]
+        j, full = scorer.best_full(v, nominal, rows)
+        if full < out_s[i] - 1e-12:
+            out[i], out_s[i] = v[j], full
     return out, out_s
 
 

@@ -25,6 +25,8 @@ References
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
 __all__ = [
@@ -109,6 +111,28 @@ def impedance_from_absorption(alpha):
     (see :func:`random_incidence_absorption`), vectorised over the input.
     """
     a = np.clip(np.asarray(alpha, dtype=float), 0.0, ALPHA_MAX)
+    if a.size > _CACHE_MAX_VALUES:
+        return _impedance_bisection(a)
+    # the same coefficients come back call after call (a room at the same frequencies):
+    # the answers for the last few are kept
+    return _impedance_cached(a.tobytes(), a.shape).copy()
+
+
+#: Largest input whose answer :func:`impedance_from_absorption` keeps (6 walls x 4096 frequencies).
+_CACHE_MAX_VALUES = 6 * 4096
+
+
+@functools.lru_cache(maxsize=32)
+def _impedance_cached(data, shape):
+    """:func:`impedance_from_absorption` of the clipped coefficients ``data`` (bytes of a
+    float64 array of ``shape``); read-only."""
+    z = _impedance_bisection(np.frombuffer(data, dtype=float).reshape(shape))
+    z.flags.writeable = False
+    return z
+
+
+def _impedance_bisection(a):
+    """The bisection of :func:`impedance_from_absorption` on clipped coefficients ``a``."""
     # Vectorised bisection in log(zeta) on [zeta_max, 1e12], where alpha falls monotonically:
     # 60 halvings of a 30-wide log interval leave a relative error below 1e-16.
     lo = np.full(a.shape, np.log(ZETA_AT_ALPHA_MAX))

@@ -474,6 +474,15 @@ def _modes(x_m, k_m, a_lo):
     return c + a_lo * (sn / k_m)
 
 
+def _modes_of(x_m, k_m, a_lo):
+    """:func:`_modes` computed at the distinct values of ``x_m`` only and gathered back
+    (the pairs of a call share their points: a few sources, a few receivers)."""
+    u, inv = np.unique(x_m, return_inverse=True)
+    if u.size == x_m.size:
+        return _modes(x_m, k_m, a_lo)
+    return _modes(u, k_m, a_lo)[inv.ravel()]
+
+
 def robin_norms(length_m, k_m, a_lo):
     """Unconjugated norms ``N_m = int_0^L X_m^2 dx`` (closed form).
 
@@ -810,8 +819,8 @@ def exact_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound
             part = sel[p0:p0 + chunk]
             s, r = src[si[part]], rec[ri[part]]
             # transverse mode products X(s) X(r) / N, (P, F, m)
-            xb = (_modes(s[:, tb], kb, ab) * _modes(r[:, tb], kb, ab)) / nb
-            xc = (_modes(s[:, tc], kc, ac) * _modes(r[:, tc], kc, ac)) / nc
+            xb = (_modes_of(s[:, tb], kb, ab) * _modes_of(r[:, tb], kb, ab)) / nb
+            xc = (_modes_of(s[:, tc], kc, ac) * _modes_of(r[:, tc], kc, ac)) / nc
             lo = np.minimum(s[:, a], r[:, a])
             hi = np.maximum(s[:, a], r[:, a])
             if factor_ok:

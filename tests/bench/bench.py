@@ -268,7 +268,8 @@ def search_rows(room, rounds):
         fn = search.search_layouts.__wrapped__ if old else search.search_layouts  # old: BLAS's own threads
         if old:
             with mock.patch.multiple(search._Scorer, shapes=old_scorer.shapes, transfer_block=old_scorer.transfer_block,
-                                     transfer_layouts=old_scorer.transfer_layouts):
+                                     transfer_layouts=old_scorer.transfer_layouts,
+                                     plane_transfer=old_scorer.plane_transfer):
                 return timed(lambda: fn(room, method=method))
         return timed(lambda: fn(room, method=method))
 
@@ -287,7 +288,7 @@ def search_rows(room, rounds):
         rate_new = n_new / float(np.median(t_new))
         speed = float(np.median(np.array(t_old) / n_old / (np.array(t_new) / n_new)))
         print(f"{label:46s} {'>= 10000':>8s} {rate_old:10.0f} {rate_new:10.0f} {speed:13.3f}  "
-              f"{res[True].ranked[0].score:.4f} / {res[False].ranked[0].score:.4f}")
+              f"{res[True].ranked[0].score:.6f} / {res[False].ranked[0].score:.6f}")
         print(f"  {n_new} layouts scored, {float(np.median(t_new)):.2f} s (before {float(np.median(t_old)):.2f} s)")
 
 

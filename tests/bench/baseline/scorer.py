@@ -1,5 +1,6 @@
 """The placement search's product paths (``_Scorer.shapes``, ``transfer_block``,
-``transfer_layouts``) as they were before the modal-kernel work, on the old modal module
+``transfer_layouts``; ``plane_transfer``, the coarse pass's sum by factorisation, as the
+``transfer_block`` it replaced) as they were before the modal-kernel work, on the old modal module
 (tests/bench/baseline/modal.py). tests/bench/bench.py swaps them into ``_Scorer`` to time
 the whole search before and after in the same run; everything else (scoring terms,
 constraints, refinement) is the current code. Not part of the package."""
@@ -54,3 +55,7 @@ def transfer_layouts(self, vecs, chunk=256):
     self.pair_evaluations += 2 * a * k
     self.layout_evaluations += k
     return out
+
+
+def plane_transfer(self, src, rec, src_values, last_axis, psi_src=None):
+    return transfer_block(self, src, rec, None if psi_src is None else psi_src(src))
