@@ -21,9 +21,15 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit
+from numba import get_num_threads, njit, prange
 
-__all__ = ["shapes_into", "fold_into", "pair_products_into", "static_green_pairs_kernel", "static_green_pairs_tabled"]
+__all__ = ["shapes_into", "shapes_split_into", "fold_into", "fold_into_parallel", "pair_products_into",
+           "static_green_pairs_kernel", "static_green_pairs_tabled", "static_green_pairs_tabled_parallel"]
+
+def n_threads():
+    """numba's thread count (the ``n_chunks`` of the parallel kernels)."""
+    return get_num_threads()
+
 
 #: Exponent below which an image term of the 1-D Green's function is dropped (e^-40 = 4e-18).
 _NEGLIGIBLE_EXP = 40.0
@@ -52,6 +58,26 @@ def shapes_into(cos_x, cos_y, cos_z, ix, iy, iz, out):
             row[n] = cx[ix[n]] * cy[iy[n]] * cz[iz[n]]
 
 
+@njit(cache=True, parallel=True)
+def shapes_split_into(cos_x, cos_y, cos_z, ix, iy, iz, out_lo, out_hi):
+    """:func:`shapes_into` for many points on all cores, split by mode: modes
+    ``n < n_lo`` into ``out_lo`` (P, n_lo), float64, may be a column slice of a wider
+    block), the others into ``out_hi`` (P, N - n_lo), float64 or float32, C order)."""
+    n_lo = out_lo.shape[1]
+    n_hi = out_hi.shape[1]
+    for p in prange(out_lo.shape[0]):
+        cx = cos_x[p]
+        cy = cos_y[p]
+        cz = cos_z[p]
+        lo = out_lo[p]
+        for n in range(n_lo):
+            lo[n] = cx[ix[n]] * cy[iy[n]] * cz[iz[n]]
+        hi = out_hi[p]
+        for n in range(n_hi):
+            m = n + n_lo
+            hi[n] = cx[ix[m]] * cy[iy[m]] * cz[iz[m]]
+
+
 @njit(cache=True)
 def fold_into(kn2, scale, static_weight, walls, beta, k, psi_fold, out_lo, out_hi):
     """Folded modal weights ``B[n, r, f] = psi_fold[r, n] (W[n, f] - static_weight[n])``.
@@ -76,27 +102,46 @@ def fold_into(kn2, scale, static_weight, walls, beta, k, psi_fold, out_lo, out_h
     out_hi : float64 or float32 (N - n_lo, 2 R F)
         Written in place (``out_hi`` rounded once when float32).
     """
-    n_modes = kn2.shape[0]
-    n_lo = out_lo.shape[0]
     n_freq = k.shape[0]
-    n_walls = walls.shape[1]
     wr = np.empty(n_freq)
     wi = np.empty(n_freq)
-    for n in range(n_modes):
-        for f in range(n_freq):
-            damp = 0.0
-            for w in range(n_walls):
-                damp += walls[n, w] * beta[w, f]
-            kf = k[f]
-            re = kn2[n] - kf * kf
-            im = damp * kf
-            den = re * re + im * im
-            wr[f] = scale[n] * re / den - static_weight[n]
-            wi[f] = -scale[n] * im / den
-        if n < n_lo:
-            _fold_row(out_lo[n], psi_fold, n, wr, wi)
-        else:
-            _fold_row(out_hi[n - n_lo], psi_fold, n, wr, wi)
+    for n in range(kn2.shape[0]):
+        _fold_mode(n, kn2, scale, static_weight, walls, beta, k, psi_fold, out_lo, out_hi, wr, wi)
+
+
+@njit(cache=True, parallel=True)
+def fold_into_parallel(kn2, scale, static_weight, walls, beta, k, psi_fold, out_lo, out_hi, n_chunks):
+    """:func:`fold_into` on all cores, the modes split in ``n_chunks`` contiguous runs (one
+    per thread: ``numba.get_num_threads()``); the same arithmetic, so the same values."""
+    n_modes = kn2.shape[0]
+    n_freq = k.shape[0]
+    n_chunks = max(1, min(n_chunks, n_modes))
+    for t in prange(n_chunks):
+        wr = np.empty(n_freq)
+        wi = np.empty(n_freq)
+        for n in range(t * n_modes // n_chunks, (t + 1) * n_modes // n_chunks):
+            _fold_mode(n, kn2, scale, static_weight, walls, beta, k, psi_fold, out_lo, out_hi, wr, wi)
+
+
+@njit(cache=True, inline="always")
+def _fold_mode(n, kn2, scale, static_weight, walls, beta, k, psi_fold, out_lo, out_hi, wr, wi):
+    """Row ``n`` of :func:`fold_into` (``wr``, ``wi``: scratch of F)."""
+    n_lo = out_lo.shape[0]
+    n_walls = walls.shape[1]
+    for f in range(k.shape[0]):
+        damp = 0.0
+        for w in range(n_walls):
+            damp += walls[n, w] * beta[w, f]
+        kf = k[f]
+        re = kn2[n] - kf * kf
+        im = damp * kf
+        den = re * re + im * im
+        wr[f] = scale[n] * re / den - static_weight[n]
+        wi[f] = -scale[n] * im / den
+    if n < n_lo:
+        _fold_row(out_lo[n], psi_fold, n, wr, wi)
+    else:
+        _fold_row(out_hi[n - n_lo], psi_fold, n, wr, wi)
 
 
 @njit(cache=True, inline="always")
@@ -272,54 +317,72 @@ def static_green_pairs_tabled(size, src, rec, decay, kappa, weight_den, qexp, ou
     the four image terms are ``X + Y + Q / Y + Q / X``: two exponentials per term instead
     of four, no square root and no division by the denominator.
     """
+    cos_c = np.empty(kappa.shape[1])
+    for i in range(src.shape[0]):
+        out[i] = _tabled_pair(size, src[i], rec[i], decay, kappa, weight_den, qexp, cos_c)
+
+
+@njit(cache=True, parallel=True)
+def static_green_pairs_tabled_parallel(size, src, rec, decay, kappa, weight_den, qexp, out, n_chunks):
+    """:func:`static_green_pairs_tabled` on all cores, the pairs dealt out in turn to
+    ``n_chunks`` runs (one per thread; the close pairs, which cost the most, are spread
+    evenly); the same arithmetic, so the same values."""
     n_pairs = src.shape[0]
+    n_chunks = max(1, min(n_chunks, n_pairs))
+    for t in prange(n_chunks):
+        cos_c = np.empty(kappa.shape[1])
+        for i in range(t, n_pairs, n_chunks):
+            out[i] = _tabled_pair(size, src[i], rec[i], decay, kappa, weight_den, qexp, cos_c)
+
+
+@njit(cache=True)
+def _tabled_pair(size, s_i, r_i, decay, kappa, weight_den, qexp, cos_c):
+    """One pair of :func:`static_green_pairs_tabled` (``cos_c``: scratch of M + 1)."""
     pi = math.pi
     n_tab = kappa.shape[1]
-    cos_c = np.empty(n_tab)
-    for i in range(n_pairs):
-        a, b, c, da = _pair_axes(src[i], rec[i])
-        sep = max(da, 1e-3)
-        kmax = decay / sep
-        lb = size[b]
-        lc = size[c]
-        la = size[a]
-        lo = min(src[i, a], rec[i, a])
-        hi = max(src[i, a], rec[i, a])
-        e1 = hi - lo
-        e2 = 2 * la - lo - hi
-        e3 = lo + hi
-        sb, rb, sc, rc = src[i, b], rec[i, b], src[i, c], rec[i, c]
-        kap_t = kappa[a]
-        wd_t = weight_den[a]
-        q_t = qexp[a]
-        mc = min(int(kmax * lc / pi) + 1, n_tab - 1)
-        for p in range(mc + 1):
-            kc = p * pi / lc
-            cos_c[p] = math.cos(kc * sc) * math.cos(kc * rc)
-        # the (0, 0) term: zero-mean 1-D Green's function, weight 1 / (lb lc)
-        total = (la / 3.0 - hi + (lo * lo + hi * hi) / (2.0 * la)) / (lb * lc)
-        mb = min(int(kmax * lb / pi) + 1, n_tab - 1)
-        for m in range(mb + 1):
-            if kap_t[m, 0] > kmax:
+    a, b, c, da = _pair_axes(s_i, r_i)
+    sep = max(da, 1e-3)
+    kmax = decay / sep
+    lb = size[b]
+    lc = size[c]
+    la = size[a]
+    lo = min(s_i[a], r_i[a])
+    hi = max(s_i[a], r_i[a])
+    e1 = hi - lo
+    e2 = 2 * la - lo - hi
+    e3 = lo + hi
+    sb, rb, sc, rc = s_i[b], r_i[b], s_i[c], r_i[c]
+    kap_t = kappa[a]
+    wd_t = weight_den[a]
+    q_t = qexp[a]
+    mc = min(int(kmax * lc / pi) + 1, n_tab - 1)
+    for p in range(mc + 1):
+        kc = p * pi / lc
+        cos_c[p] = math.cos(kc * sc) * math.cos(kc * rc)
+    # the (0, 0) term: zero-mean 1-D Green's function, weight 1 / (lb lc)
+    total = (la / 3.0 - hi + (lo * lo + hi * hi) / (2.0 * la)) / (lb * lc)
+    mb = min(int(kmax * lb / pi) + 1, n_tab - 1)
+    for m in range(mb + 1):
+        if kap_t[m, 0] > kmax:
+            break
+        kb = m * pi / lb
+        cb = math.cos(kb * sb) * math.cos(kb * rb)
+        row_k = kap_t[m]
+        row_w = wd_t[m]
+        row_q = q_t[m]
+        acc = 0.0
+        for p in range(1 if m == 0 else 0, mc + 1):
+            kap = row_k[p]
+            if kap > kmax:
                 break
-            kb = m * pi / lb
-            cb = math.cos(kb * sb) * math.cos(kb * rb)
-            row_k = kap_t[m]
-            row_w = wd_t[m]
-            row_q = q_t[m]
-            acc = 0.0
-            for p in range(1 if m == 0 else 0, mc + 1):
-                kap = row_k[p]
-                if kap > kmax:
-                    break
-                x = math.exp(-kap * e1)
-                q = row_q[p]
-                num = x + q / x
-                if kap * e3 < _NEGLIGIBLE_EXP:
-                    y = math.exp(-kap * e3)
-                    num += y + q / y
-                elif kap * e2 < _NEGLIGIBLE_EXP:
-                    num += math.exp(-kap * e2)
-                acc += cos_c[p] * row_w[p] * num
-            total += cb * acc
-        out[i] = total
+            x = math.exp(-kap * e1)
+            q = row_q[p]
+            num = x + q / x
+            if kap * e3 < _NEGLIGIBLE_EXP:
+                y = math.exp(-kap * e3)
+                num += y + q / y
+            elif kap * e2 < _NEGLIGIBLE_EXP:
+                num += math.exp(-kap * e2)
+            acc += cos_c[p] * row_w[p] * num
+        total += cb * acc
+    return total

@@ -39,7 +39,7 @@ import numpy as np
 
 from ..model.modes import mode_indices, mode_shapes, wall_weights
 from ..model.walls import impedance_table
-from .threads import blas_threads
+from .threads import blas_threads, spare_cores
 
 
 def _kernels():
@@ -467,19 +467,37 @@ def static_green_pairs(size_m, sources_m, receivers_m):
     # pairs whose 2-D terms fit the cached tables take the tabled kernel, the others (points
     # closer than about 0.1 m) the kernel that computes every term's constants itself
     fits = kmax * size.max() / np.pi + 1 <= _STATIC_TABLE_INDEX
+    # many pairs on all cores, a few on one (starting the threads would cost more)
+    kern = _kernels()
     if fits.all():
-        _kernels().static_green_pairs_tabled(size, s, r, _STATIC_DECAY, *_static_tables(tuple(size.tolist())), out)
+        _tabled(kern, size, s, r, out)
         return out
     far, near = np.flatnonzero(fits), np.flatnonzero(~fits)
     if far.size:
         part = np.empty(far.size)
-        _kernels().static_green_pairs_tabled(size, s[far], r[far], _STATIC_DECAY, *_static_tables(tuple(size.tolist())), part)
+        _tabled(kern, size, s[far], r[far], part)
         out[far] = part
     part = np.empty(near.size)
     _kernels().static_green_pairs_kernel(size, s[near], r[near], _STATIC_DECAY, _STATIC_MAX_INDEX, part)
     out[near] = part
     return out
 
+
+def _tabled(kern, size, s, r, out):
+    """The tabled static kernel, on all cores for many pairs."""
+    tables = _static_tables(tuple(size.tolist()))
+    if s.shape[0] >= _PARALLEL_MIN_POINTS and spare_cores():
+        kern.static_green_pairs_tabled_parallel(size, s, r, _STATIC_DECAY, *tables, out, kern.n_threads())
+    else:
+        kern.static_green_pairs_tabled(size, s, r, _STATIC_DECAY, *tables, out)
+
+
+#: Calls with at least this many points (pairs, rows of a block) run their compiled loops
+#: on all cores when the machine has cores to spare (:func:`.threads.spare_cores`); below
+#: it one core is faster than starting the threads.
+_PARALLEL_MIN_POINTS = 64
+#: The fused weights-and-fold pass runs on all cores from this many (mode, frequency) terms.
+_PARALLEL_MIN_TERMS = 32_768
 
 #: Largest 2-D index of the cached tables of :func:`static_green_pairs` (pairs more than
 #: about 18 L / (pi 256), 0.1 m in a 4.6 m room, apart use them).
@@ -681,57 +699,89 @@ def modal_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound
 
 
 def _blocks(table, size, rows, folds, hv, gs_all, z, k, single):
-    """The block loop of :func:`modal_transfer`: writes ``hv`` (rows, folds, F) in place."""
+    """The block loop of :func:`modal_transfer`: writes ``hv`` (rows, folds, F) in place.
+
+    Per block of rows, one real product ``[psi_lo | gs] @ [fold_lo ; E]`` in float64 (the
+    resonant modes, and the closed-form static term ``gs`` of each (row, folded point) as
+    one extra column per folded point, ``E`` its unit pattern on the real parts), plus
+    ``psi_hi @ fold_hi`` in float32 for the other modes in single precision. The float64
+    product is written straight into the result when the block is contiguous there.
+    """
     static_tail = gs_all is not None
     n_freq = k.size
     n_modes = table.indices.shape[0]
     # single precision: the resonant modes (up to RESONANT_FACTOR f_max, the large terms)
     # stay float64, the rest (1 - 1 / 8 of them at the default cutoff) go float32
     n_lo = table.modes_below(RESONANT_FACTOR * k.max()) if single else n_modes
+    n_hi = n_modes - n_lo
     rb, gb, fb = block_sizes(rows.shape[0], folds.shape[0], n_freq, n_modes)
     beta = np.ascontiguousarray(1.0 / z)
     sw = table.static_weight if static_tail else np.zeros(n_modes)
+    n_gs = gb if static_tail else 0  # static columns of a block
+    kern = _kernels()
+    ix, iy, iz = table.indices_by_axis
+    lo_buf = np.empty((rb, n_lo + n_gs))
+    hi_buf = np.empty((rb, n_hi), dtype=np.float32 if single else np.float64)
     for r0 in range(0, rows.shape[0], rb):
         r1 = min(r0 + rb, rows.shape[0])
+        nr = r1 - r0
         cos = _cos_tables(table, rows[r0:r1])
-        psi_lo = _shapes(table, size, None, np.float64, stop=n_lo, cos=cos)
-        psi_hi = _shapes(table, size, None, np.float32, start=n_lo, cos=cos) if n_lo < n_modes else None
+        psi_lo, psi_hi = lo_buf[:nr], hi_buf[:nr]
+        if nr >= _PARALLEL_MIN_POINTS and spare_cores():
+            kern.shapes_split_into(cos[0], cos[1], cos[2], ix, iy, iz, psi_lo[:, :n_lo], psi_hi)
+        else:
+            kern.shapes_into(cos[0], cos[1], cos[2], ix[:n_lo], iy[:n_lo], iz[:n_lo], psi_lo[:, :n_lo])
+            kern.shapes_into(cos[0], cos[1], cos[2], ix[n_lo:], iy[n_lo:], iz[n_lo:], psi_hi)
         for g0 in range(0, folds.shape[0], gb):
             g1 = min(g0 + gb, folds.shape[0])
+            ng = g1 - g0
             psi_fold = _shapes(table, size, folds[g0:g1])
-            gs = gs_all[r0:r1, g0:g1] if static_tail else None
+            a_lo = psi_lo[:, :n_lo + ng] if static_tail else psi_lo
+            if static_tail:
+                a_lo[:, n_lo:] = gs_all[r0:r1, g0:g1]
             for f0 in range(0, n_freq, fb):
                 f1 = min(f0 + fb, n_freq)
+                nf = f1 - f0
                 # weights and fold in one pass, as real pairs (N, 2 R F): the resonant modes
                 # in float64, the others rounded once to float32 (W - W_static formed in
-                # float64 first)
-                cols = 2 * (g1 - g0) * (f1 - f0)
-                fold_lo = np.empty((n_lo, cols))
-                fold_hi = np.empty((n_modes - n_lo, cols), dtype=np.float32 if single else np.float64)
-                _kernels().fold_into(table.kn2, table.scale, sw, table.walls, beta[:, f0:f1], k[f0:f1], psi_fold,
-                          fold_lo, fold_hi)
-                # the thread count measured best for the block product's size
-                with blas_threads(2.0 * (r1 - r0) * n_modes * cols):
-                    res = psi_lo @ fold_lo  # (rows, 2 R F) real
-                    if psi_hi is not None:
-                        res += psi_hi @ fold_hi
+                # float64 first); below them the unit rows of the static columns
+                cols = 2 * ng * nf
+                fold_lo = np.empty((a_lo.shape[1], cols))
+                fold_hi = np.empty((n_hi, cols), dtype=hi_buf.dtype)
+                args = (table.kn2, table.scale, sw, table.walls, beta[:, f0:f1], k[f0:f1], psi_fold,
+                        fold_lo[:n_lo], fold_hi)
+                if n_modes * nf >= _PARALLEL_MIN_TERMS and spare_cores():
+                    kern.fold_into_parallel(*args, kern.n_threads())
+                else:
+                    kern.fold_into(*args)
+                if static_tail:
+                    unit = fold_lo[n_lo:]
+                    unit[...] = 0.0
+                    for g in range(ng):
+                        unit[g, 2 * g * nf:2 * (g + 1) * nf:2] = 1.0
                 out = hv[r0:r1, g0:g1, f0:f1]
-                out[...] = res.view(np.complex128).reshape(r1 - r0, g1 - g0, f1 - f0)
-                if gs is not None:
-                    out += gs[:, :, None]
+                direct = out.flags.c_contiguous
+                res = out.view(np.float64).reshape(nr, cols) if direct else np.empty((nr, cols))
+                # the thread count measured best for the block product's size
+                with blas_threads(2.0 * nr * (n_modes + n_gs) * cols):
+                    np.matmul(a_lo, fold_lo, out=res)  # (rows, 2 R F) real
+                    if n_hi:
+                        res += psi_hi @ fold_hi
+                if not direct:
+                    out[...] = res.view(np.complex128).reshape(nr, ng, nf)
 
 
 def block_sizes(n_rows, n_fold, n_freq, n_modes, budget_bytes=None):
     """Block sizes ``(rows, folded points, frequencies)`` of :func:`modal_transfer`.
 
     Half of the budget (default :data:`BLOCK_BYTES`) goes to the folded weights
-    (``16 N R F`` bytes plus the ``(N, F)`` weights), half to a block of rows (``8 N`` bytes
-    of shapes and ``16 R F`` of product per row), so that a call's temporaries stay within
+    (``16 N R F`` bytes plus the ``(N, F)`` weights), half to a block of rows (``8 (N + R)``
+    bytes of shapes and static columns and ``16 R F`` of product per row), so that a call's temporaries stay within
     about the budget for any number of points.
     """
     half = (BLOCK_BYTES if budget_bytes is None else budget_bytes) // 2
     n = max(int(n_modes), 1)
     fb = max(1, min(n_freq, half // (32 * n)))
     gb = max(1, min(n_fold, half // (16 * n * fb) - 1))
-    rb = max(1, min(n_rows, half // (8 * n + 16 * gb * fb)))
+    rb = max(1, min(n_rows, half // (8 * (n + gb) + 16 * gb * fb)))
     return rb, gb, fb

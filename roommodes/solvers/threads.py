@@ -1,26 +1,80 @@
-"""BLAS thread count per product size.
+"""BLAS thread count per product size, and whether the machine has cores to spare.
 
-OpenBLAS splits every product over all its threads. For the products of the modal solver
-and the placement search most are small (tens of MFLOP), and two threads then cost more
-than one: the split, the hand-over and, on a shared machine, waiting for a core busy with
-other work. ``tests/bench/bench.py`` measures one thread against all of them for the
-shapes these products have (its "BLAS threads" table). On the shared 2-core machine it was
-measured on (load average 10-15), one thread was 3 to 20 times faster for products of
-about 1e8 flop, 1.2-1.4 times faster at 1.4e9 flop (300 x 1037 x 2200), and 1.2 times
-slower at 1.7e9 flop (2000 x 1037 x 400) and above, so the threshold sits at 1.5e9.
-Run the benchmark on a new machine and set :data:`MULTI_THREAD_MIN_FLOP` from its table.
+OpenBLAS splits every product over all its threads. Whether that pays depends on the
+product's size and on whether the cores are free: ``tests/bench/bench.py`` measures one
+thread against the BLAS's own count for the shapes the modal solver and the placement
+search run (its "BLAS threads" table: time with one thread / time with all, medians of
+interleaved rounds; < 1 means one thread is faster). On the shared 2-core machine:
+
+==========================  =========  =====================  =====================
+product (m x k x n)         flop       idle (load ~1)         busy (load 5.1-5.7)
+                                       float64   float32      float64   float32
+==========================  =========  =====================  =====================
+2000 x 1037 x 400           1.7e9        -         -         1.52      1.28
+300 x 1037 x 2200           1.4e9        -         -         1.02      0.82
+240 x 1037 x 220            1.1e8        1.9       -         0.41      0.07
+100 x 1037 x 100            2.1e7        -         -         0.11      0.80
+30 x 1037 x 60              3.7e6        -         -         0.37      0.19
+8 x 1037 x 50               8.3e5        -         -         1.38      0.99
+1 x 1037 x 418              8.7e5        1.0       -         1.00      1.02
+==========================  =========  =====================  =====================
+
+So the threshold depends on the load: with cores to spare (1-minute load average at most
+:data:`BUSY_LOAD_PER_CPU` per CPU) products from :data:`MULTI_THREAD_MIN_FLOP` on run on
+all threads; on a busy machine, where a second thread waits for a core other work holds,
+only products from :data:`BUSY_MULTI_THREAD_MIN_FLOP` on. The load average counts this
+process's own threads too (about one per core while it multiplies), hence a cut above 1.
+Run the benchmark on a new machine and set the constants from its table.
+
+The same test decides whether the modal solver's compiled loops run on all cores
+(:func:`spare_cores`). numba's OpenMP workers are asked to wait passively
+(``OMP_WAIT_POLICY=PASSIVE`` unless set): spinning workers left over from a compiled loop
+otherwise hold the cores the next BLAS product wants.
 """
 
 from __future__ import annotations
 
 import contextlib
 import functools
+import os
+import time
 
-__all__ = ["blas_threads", "small_products", "MULTI_THREAD_MIN_FLOP"]
+os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")
 
-#: Products with fewer floating-point operations run on one BLAS thread (measured:
-#: tests/bench/bench.py, "BLAS threads" table).
-MULTI_THREAD_MIN_FLOP = 1.5e9
+__all__ = ["blas_threads", "small_products", "spare_cores", "multi_thread_min_flop", "MULTI_THREAD_MIN_FLOP",
+           "BUSY_MULTI_THREAD_MIN_FLOP", "BUSY_LOAD_PER_CPU"]
+
+#: With cores to spare, products with fewer floating-point operations run on one BLAS
+#: thread (measured: tests/bench/bench.py, "BLAS threads" table, idle machine).
+MULTI_THREAD_MIN_FLOP = 1e6
+#: The same on a busy machine (measured there under load 5-15 on 2 CPUs).
+BUSY_MULTI_THREAD_MIN_FLOP = 1.5e9
+#: The machine counts as busy above this 1-minute load average per CPU.
+BUSY_LOAD_PER_CPU = 1.5
+#: Seconds a reading of the load average is reused.
+_LOAD_TTL_S = 1.0
+_load_cache = [-1e9, False]
+
+
+def spare_cores():
+    """Whether the machine has cores to spare: 1-minute load average at most
+    :data:`BUSY_LOAD_PER_CPU` per CPU (read at most once per second; True where the
+    platform has no load average)."""
+    now = time.monotonic()
+    if now - _load_cache[0] > _LOAD_TTL_S:
+        try:
+            load = os.getloadavg()[0]
+        except (OSError, AttributeError):
+            load = 0.0
+        _load_cache[0] = now
+        _load_cache[1] = load <= BUSY_LOAD_PER_CPU * (os.cpu_count() or 1)
+    return _load_cache[1]
+
+
+def multi_thread_min_flop():
+    """The product size (flop) from which the BLAS's own thread count is used, for the
+    machine's present load (:data:`MULTI_THREAD_MIN_FLOP` or :data:`BUSY_MULTI_THREAD_MIN_FLOP`)."""
+    return MULTI_THREAD_MIN_FLOP if spare_cores() else BUSY_MULTI_THREAD_MIN_FLOP
 
 
 @functools.lru_cache(maxsize=1)
@@ -41,7 +95,7 @@ def _own_threads():
 
 def blas_threads(flop):
     """Context manager: one BLAS thread for a product of fewer than
-    :data:`MULTI_THREAD_MIN_FLOP` operations, the BLAS's own count otherwise (also inside
+    :func:`multi_thread_min_flop` operations, the BLAS's own count otherwise (also inside
     an enclosing one-thread context, so that a call can run its small products on one
     thread and its large one on all).
 
@@ -54,13 +108,13 @@ def blas_threads(flop):
     if ctl is None:
         return contextlib.nullcontext()
     own = _own_threads()
-    return ctl.limit(limits=1 if flop < MULTI_THREAD_MIN_FLOP else own, user_api="blas")
+    return ctl.limit(limits=1 if flop < multi_thread_min_flop() else own, user_api="blas")
 
 
 def small_products(fn):
-    """Decorator: ``fn`` runs on one BLAS thread (for callers whose every product is far
-    below :data:`MULTI_THREAD_MIN_FLOP`, such as the placement search's scoring: thousands
-    of products of a few MFLOP, where two threads were measured several times slower)."""
+    """Decorator: ``fn`` runs on one BLAS thread, except for the products it wraps in
+    :func:`blas_threads` (for callers whose products are mostly small, such as the
+    placement search's scoring: thousands of products of a few MFLOP)."""
 
     @functools.wraps(fn)
     def wrapper(*args, **kwargs):
