@@ -4,13 +4,22 @@
   from per-axis cosine tables, in one pass, straight into a C-order block of the dtype the
   product wants (float64 or float32). Same products in the same order as
   :func:`roommodes.model.modes.mode_shapes`, so the float64 values are equal to the last bit.
+- :func:`shapes_split_into`: the same for a block of many points on all cores, the
+  resonant modes into a float64 block (a column slice: the static term's columns follow),
+  the others into a float32 (or float64) block.
 - :func:`fold_into`: the modal weights and their fold with the mode shapes of the folded
-  points in one pass, written as real pairs straight into the product's operands.
+  points in one pass, written as real pairs straight into the product's operands
+  (:func:`fold_into_parallel`: the same on all cores).
 - :func:`static_green_pairs_kernel`: the static rigid-wall Green's function of the box for
   many (source, receiver) pairs, each summed as :func:`roommodes.solvers.modal.static_green`
   sums it (a closed-form 1-D Green's function along the axis of largest separation over the
   2-D modes of the other two axes, cut where ``kappa |d| > _STATIC_DECAY``), but with each
-  pair's own cutoff and without temporaries.
+  pair's own cutoff and without temporaries; :func:`static_green_pairs_tabled` with the
+  per-term constants from tables (:func:`static_green_pairs_tabled_parallel` on all cores).
+
+The parallel kernels split their loop in as many runs as numba has threads (``n_chunks``,
+passed in, so that the kernels stay cacheable); each computes what its serial twin does,
+so the values are the same to the last bit.
 
 Their NumPy twins are :func:`roommodes.solvers.modal._shapes_numpy` and
 :func:`roommodes.solvers.modal.static_green`; tests/solvers/test_modal_kernels.py holds them equal.

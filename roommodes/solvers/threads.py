@@ -57,9 +57,12 @@ _load_cache = [-1e9, False]
 
 
 def spare_cores():
-    """Whether the machine has cores to spare: 1-minute load average at most
-    :data:`BUSY_LOAD_PER_CPU` per CPU (read at most once per second; True where the
-    platform has no load average)."""
+    """Whether this process may use more than one core: the BLAS was given more than one
+    thread (a process started with ``OPENBLAS_NUM_THREADS=1``, as Dask starts its workers,
+    keeps to one) and the 1-minute load average is at most :data:`BUSY_LOAD_PER_CPU` per
+    CPU (read at most once per second; no load average counts as idle)."""
+    if _own_threads() <= 1:
+        return False
     now = time.monotonic()
     if now - _load_cache[0] > _LOAD_TTL_S:
         try:
@@ -90,6 +93,8 @@ def _controller():
 def _own_threads():
     """The BLAS's own thread count (as first seen, outside any limit of this module)."""
     ctl = _controller()
+    if ctl is None:
+        return os.cpu_count() or 1
     return max([lib.num_threads for lib in ctl.select(user_api="blas").lib_controllers] or [1])
 
 

@@ -170,10 +170,14 @@ def test_thread_threshold_follows_the_load(monkeypatch, load, spare):
     monkeypatch.setattr(threads.os, "getloadavg", lambda: (load, load, load))
     monkeypatch.setattr(threads.os, "cpu_count", lambda: 2)
     monkeypatch.setattr(threads, "_load_cache", [-1e9, None])
+    monkeypatch.setattr(threads, "_own_threads", lambda: 2)
     assert threads.spare_cores() is spare
     want = threads.MULTI_THREAD_MIN_FLOP if spare else threads.BUSY_MULTI_THREAD_MIN_FLOP
     assert threads.multi_thread_min_flop() == want
     assert threads.MULTI_THREAD_MIN_FLOP < threads.BUSY_MULTI_THREAD_MIN_FLOP
+    # a process whose BLAS was given one thread (Dask's workers) keeps to one core
+    monkeypatch.setattr(threads, "_own_threads", lambda: 1)
+    assert threads.spare_cores() is False
 
 
 def test_parallel_kernels_equal_the_serial_ones():
