@@ -288,7 +288,7 @@ def thread_table(psi, fold, rounds=5):
         for dt in (np.float64, np.float32):
             a, b = rng.standard_normal((m, k)).astype(dt), rng.standard_normal((k, nn)).astype(dt)
 
-            def many(a=a, b=b):
+            def many(a=a, b=b, reps=reps):
                 for _ in range(reps):
                     a @ b
 
