@@ -6,18 +6,18 @@ thread against the BLAS's own count for the shapes the modal solver and the plac
 search run (its "BLAS threads" table: time with one thread / time with all, medians of
 interleaved rounds; < 1 means one thread is faster). On the shared 2-core machine:
 
-==========================  =========  =====================  =====================
-product (m x k x n)         flop       idle (load ~1)         busy (load 5.1-5.7)
-                                       float64   float32      float64   float32
-==========================  =========  =====================  =====================
-2000 x 1037 x 400           1.7e9        -         -         1.52      1.28
-300 x 1037 x 2200           1.4e9        -         -         1.02      0.82
-240 x 1037 x 220            1.1e8        1.9       -         0.41      0.07
-100 x 1037 x 100            2.1e7        -         -         0.11      0.80
-30 x 1037 x 60              3.7e6        -         -         0.37      0.19
-8 x 1037 x 50               8.3e5        -         -         1.38      0.99
-1 x 1037 x 418              8.7e5        1.0       -         1.00      1.02
-==========================  =========  =====================  =====================
+==========================  =========  =================  =================  =================
+product (m x k x n)         flop       idle (load ~1)     load 3.7-4.4       load 5.1-5.7
+                                       float64  float32   float64  float32   float64  float32
+==========================  =========  =================  =================  =================
+2000 x 1037 x 400           1.7e9        -        -         2.06     1.38      1.52     1.28
+300 x 1037 x 2200           1.4e9        -        -         1.24     1.39      1.02     0.82
+240 x 1037 x 220            1.1e8        1.9      -         1.05     0.10      0.41     0.07
+100 x 1037 x 100            2.1e7        -        -         0.02    <0.01      0.11     0.80
+30 x 1037 x 60              3.7e6        -        -         0.64     0.36      0.37     0.19
+8 x 1037 x 50               8.3e5        -        -         1.38     2.05      1.38     0.99
+1 x 1037 x 418              8.7e5        1.0      -         0.99     0.99      1.00     1.02
+==========================  =========  =================  =================  =================
 
 So the threshold depends on the load: with cores to spare (1-minute load average at most
 :data:`BUSY_LOAD_PER_CPU` per CPU) products from :data:`MULTI_THREAD_MIN_FLOP` on run on
