@@ -484,9 +484,9 @@ def static_green_pairs(size_m, sources_m, receivers_m):
 
 
 def _tabled(kern, size, s, r, out):
-    """The tabled static kernel, on all cores for many pairs."""
+    """The tabled static kernel, on all cores for many pairs (when cores are spare)."""
     tables = _static_tables(tuple(size.tolist()))
-    if s.shape[0] >= _PARALLEL_MIN_POINTS and spare_cores():
+    if s.shape[0] >= _PARALLEL_MIN_PAIRS and spare_cores():
         kern.static_green_pairs_tabled_parallel(size, s, r, _STATIC_DECAY, *tables, out, kern.n_threads())
     else:
         kern.static_green_pairs_tabled(size, s, r, _STATIC_DECAY, *tables, out)
@@ -496,6 +496,8 @@ def _tabled(kern, size, s, r, out):
 #: on all cores when the machine has cores to spare (:func:`.threads.spare_cores`); below
 #: it one core is faster than starting the threads.
 _PARALLEL_MIN_POINTS = 64
+#: The static pairs run on all cores from this many pairs (about 2 ms on one core).
+_PARALLEL_MIN_PAIRS = 8192
 #: The fused weights-and-fold pass runs on all cores from this many (mode, frequency) terms.
 _PARALLEL_MIN_TERMS = 32_768
 
@@ -506,23 +508,28 @@ _STATIC_TABLE_INDEX = 256
 
 @functools.lru_cache(maxsize=4)
 def _static_tables(size):
-    """Per-axis tables of :func:`._modal_kernels.static_green_pairs_tabled`: ``kappa``,
-    ``w / (2 kappa (1 - e^{-2 kappa L}))`` and ``e^{-2 kappa L}`` (3, M + 1, M + 1)."""
+    """Per-axis tables of :func:`._modal_kernels.static_green_pairs_tabled`: for the 1-D sum
+    along axis ``a``, the 2-D terms (m, p) of the other two axes with m, p <= 256 and
+    ``kappa > 0``, sorted by ``kappa`` (so that a pair's disc ``kappa <= kmax`` is a prefix):
+    ``kappa``, ``w / (2 kappa (1 - e^{-2 kappa L_a}))``, ``e^{-2 kappa L_a}``, m and p, each (3, T)."""
     n = _STATIC_TABLE_INDEX + 1
-    kappa, wd, q = (np.zeros((3, n, n)) for _ in range(3))
     m, p = np.meshgrid(np.arange(n), np.arange(n), indexing="ij")
+    m, p = m.ravel()[1:], p.ravel()[1:]  # without (0, 0)
+    cols = [[], [], [], [], []]
     for a in range(3):
         b, c = [i for i in range(3) if i != a]
         lb, lc, la = size[b], size[c], size[a]
         k = np.pi * np.sqrt((m / lb) ** 2 + (p / lc) ** 2)
-        w = np.where(m > 0, 2.0, 1.0) * np.where(p > 0, 2.0, 1.0) / (lb * lc)
-        ks = np.where(k > 0, k, 1.0)
-        kappa[a] = k
-        wd[a] = np.where(k > 0, w / (2.0 * ks * -np.expm1(-2.0 * ks * la)), 0.0)
-        q[a] = np.where(k > 0, np.exp(-2.0 * ks * la), 0.0)
-    for arr in (kappa, wd, q):
+        order = np.argsort(k, kind="stable")
+        k = k[order]
+        w = (np.where(m > 0, 2.0, 1.0) * np.where(p > 0, 2.0, 1.0))[order] / (lb * lc)
+        for col, arr in zip(cols, (k, w / (2.0 * k * -np.expm1(-2.0 * k * la)), np.exp(-2.0 * k * la), m[order],
+                                   p[order])):
+            col.append(arr)
+    tables = tuple(np.ascontiguousarray(np.stack(col)) for col in cols)
+    for arr in tables:
         arr.flags.writeable = False
-    return kappa, wd, q
+    return tables
 
 
 def _g1d(lo, hi, kappa, length):
