@@ -4,9 +4,10 @@
   from per-axis cosine tables, in one pass, straight into a C-order block of the dtype the
   product wants (float64 or float32). Same products in the same order as
   :func:`roommodes.model.modes.mode_shapes`, so the float64 values are equal to the last bit.
-- :func:`shapes_split_into`: the same for a block of many points on all cores, the
-  resonant modes into a float64 block (a column slice: the static term's columns follow),
-  the others into a float32 (or float64) block.
+- :func:`shapes_split_into`: the same for a block of points (two gathers per shape, from
+  a per-point table of ``cos_x cos_y``), the resonant modes into a float64 block (a column
+  slice: the static term's columns follow), the others into a float32 (or float64) block;
+  :func:`shapes_split_into_parallel` on all cores.
 - :func:`fold_into`: the modal weights and their fold with the mode shapes of the folded
   points in one pass, written as real pairs straight into the product's operands
   (:func:`fold_into_parallel`: the same on all cores).
@@ -33,7 +34,7 @@ import math
 import numpy as np
 from numba import get_num_threads, njit, prange
 
-__all__ = ["shapes_into", "shapes_split_into", "fold_into", "fold_into_parallel", "pair_products_into",
+__all__ = ["shapes_into", "shapes_split_into", "shapes_split_into_parallel", "fold_into", "fold_into_parallel", "pair_products_into",
            "static_green_pairs_kernel", "static_green_pairs_tabled", "static_green_pairs_tabled_parallel",
            "exp_neg_into", "COS_TABLE"]
 
@@ -69,24 +70,46 @@ def shapes_into(cos_x, cos_y, cos_z, ix, iy, iz, out):
             row[n] = cx[ix[n]] * cy[iy[n]] * cz[iz[n]]
 
 
+@njit(cache=True)
+def shapes_split_into(cos_x, cos_y, cos_z, ixy, iz, out_lo, out_hi):
+    """:func:`shapes_into` for a block of points, split by mode: modes ``n < n_lo`` into
+    ``out_lo`` (P, n_lo), float64, may be a column slice of a wider block), the others into
+    ``out_hi`` (P, N - n_lo), float64 or float32, C order).
+
+    ``ixy = ix * n_y + iy`` indexes a per-point table of ``cos_x[p, i] cos_y[p, j]``, so each
+    shape takes two gathers and one product; the products are the same, in the same order
+    (``(cos_x cos_y) cos_z``), so the values equal :func:`shapes_into`'s to the last bit.
+    """
+    cxy = np.empty(cos_x.shape[1] * cos_y.shape[1])
+    for p in range(out_lo.shape[0]):
+        _shape_row(cos_x[p], cos_y[p], cos_z[p], ixy, iz, out_lo[p], out_hi[p], cxy)
+
+
 @njit(cache=True, parallel=True)
-def shapes_split_into(cos_x, cos_y, cos_z, ix, iy, iz, out_lo, out_hi):
-    """:func:`shapes_into` for many points on all cores, split by mode: modes
-    ``n < n_lo`` into ``out_lo`` (P, n_lo), float64, may be a column slice of a wider
-    block), the others into ``out_hi`` (P, N - n_lo), float64 or float32, C order)."""
-    n_lo = out_lo.shape[1]
-    n_hi = out_hi.shape[1]
-    for p in prange(out_lo.shape[0]):
-        cx = cos_x[p]
-        cy = cos_y[p]
-        cz = cos_z[p]
-        lo = out_lo[p]
-        for n in range(n_lo):
-            lo[n] = cx[ix[n]] * cy[iy[n]] * cz[iz[n]]
-        hi = out_hi[p]
-        for n in range(n_hi):
-            m = n + n_lo
-            hi[n] = cx[ix[m]] * cy[iy[m]] * cz[iz[m]]
+def shapes_split_into_parallel(cos_x, cos_y, cos_z, ixy, iz, out_lo, out_hi, n_chunks):
+    """:func:`shapes_split_into` on all cores, the points split in ``n_chunks`` contiguous
+    runs (one per thread); the same values."""
+    n_pts = out_lo.shape[0]
+    n_chunks = max(1, min(n_chunks, n_pts))
+    for t in prange(n_chunks):
+        cxy = np.empty(cos_x.shape[1] * cos_y.shape[1])
+        for p in range(t * n_pts // n_chunks, (t + 1) * n_pts // n_chunks):
+            _shape_row(cos_x[p], cos_y[p], cos_z[p], ixy, iz, out_lo[p], out_hi[p], cxy)
+
+
+@njit(cache=True, inline="always")
+def _shape_row(cx, cy, cz, ixy, iz, lo, hi, cxy):
+    """One point of :func:`shapes_split_into` (``cxy``: scratch of n_x n_y)."""
+    n_y = cy.shape[0]
+    for i in range(cx.shape[0]):
+        for j in range(n_y):
+            cxy[i * n_y + j] = cx[i] * cy[j]
+    n_lo = lo.shape[0]
+    for n in range(n_lo):
+        lo[n] = cxy[ixy[n]] * cz[iz[n]]
+    for n in range(hi.shape[0]):
+        m = n + n_lo
+        hi[n] = cxy[ixy[m]] * cz[iz[m]]
 
 
 @njit(cache=True)

@@ -217,8 +217,10 @@ class _ModeTable:
         # per-axis wavenumbers n pi / L of the indices in use, for the shape tables
         self.axis_k = [np.pi * np.arange(idx[:, a].max(initial=0) + 1) / size[a] for a in range(3)]
         self.indices_by_axis = [np.ascontiguousarray(idx[:, a], dtype=np.int64) for a in range(3)]
+        # (x, y) index pairs into a per-point table of cos_x cos_y (n_x by n_y, row major)
+        self.indices_xy = self.indices_by_axis[0] * self.axis_k[1].size + self.indices_by_axis[1]
         for arr in (self.indices, self.kn2, self.walls, self.scale, self.static_weight, *self.axis_k,
-                    *self.indices_by_axis):
+                    *self.indices_by_axis, self.indices_xy):
             arr.flags.writeable = False
 
     def modes_below(self, k):
@@ -726,7 +728,7 @@ def _blocks(table, size, rows, folds, hv, gs_all, z, k, single):
     sw = table.static_weight if static_tail else np.zeros(n_modes)
     n_gs = gb if static_tail else 0  # static columns of a block
     kern = _kernels()
-    ix, iy, iz = table.indices_by_axis
+    iz = table.indices_by_axis[2]
     lo_buf = np.empty((rb, n_lo + n_gs))
     hi_buf = np.empty((rb, n_hi), dtype=np.float32 if single else np.float64)
     for r0 in range(0, rows.shape[0], rb):
@@ -735,10 +737,9 @@ def _blocks(table, size, rows, folds, hv, gs_all, z, k, single):
         cos = _cos_tables(table, rows[r0:r1])
         psi_lo, psi_hi = lo_buf[:nr], hi_buf[:nr]
         if nr >= _PARALLEL_MIN_POINTS and spare_cores():
-            kern.shapes_split_into(cos[0], cos[1], cos[2], ix, iy, iz, psi_lo[:, :n_lo], psi_hi)
+            kern.shapes_split_into_parallel(*cos, table.indices_xy, iz, psi_lo[:, :n_lo], psi_hi, kern.n_threads())
         else:
-            kern.shapes_into(cos[0], cos[1], cos[2], ix[:n_lo], iy[:n_lo], iz[:n_lo], psi_lo[:, :n_lo])
-            kern.shapes_into(cos[0], cos[1], cos[2], ix[n_lo:], iy[n_lo:], iz[n_lo:], psi_hi)
+            kern.shapes_split_into(*cos, table.indices_xy, iz, psi_lo[:, :n_lo], psi_hi)
         for g0 in range(0, folds.shape[0], gb):
             g1 = min(g0 + gb, folds.shape[0])
             ng = g1 - g0

@@ -188,13 +188,18 @@ def test_parallel_kernels_equal_the_serial_ones():
     cos = modal._cos_tables(table, pts)
     ix, iy, iz = table.indices_by_axis
     n, n_lo = ix.size, 37
-    # the shapes of a block, the resonant part written into a column slice of a wider block
-    wide, hi = np.full((150, n_lo + 3), -1.0), np.empty((150, n - n_lo), dtype=np.float32)
-    kern.shapes_split_into(cos[0], cos[1], cos[2], ix, iy, iz, wide[:, :n_lo], hi)
+    # the shapes of a block, the resonant part written into a column slice of a wider block,
+    # from the (x, y) table: the same products in the same order, equal to the last bit
     psi = modal._shapes(table, SIZE, pts)
-    np.testing.assert_array_equal(wide[:, :n_lo], psi[:, :n_lo])
-    np.testing.assert_array_equal(hi, psi[:, n_lo:].astype(np.float32))
-    assert np.all(wide[:, n_lo:] == -1.0)
+    for par in (False, True):
+        wide, hi = np.full((150, n_lo + 3), -1.0), np.empty((150, n - n_lo), dtype=np.float32)
+        if par:
+            kern.shapes_split_into_parallel(*cos, table.indices_xy, iz, wide[:, :n_lo], hi, 2)
+        else:
+            kern.shapes_split_into(*cos, table.indices_xy, iz, wide[:, :n_lo], hi)
+        np.testing.assert_array_equal(wide[:, :n_lo], psi[:, :n_lo])
+        np.testing.assert_array_equal(hi, psi[:, n_lo:].astype(np.float32))
+        assert np.all(wide[:, n_lo:] == -1.0)
     # the fused fold, same arithmetic per mode: equal to the last bit
     f = np.geomspace(20, 200, 23)
     beta = 1.0 / impedance_table(impedance_from_absorption(np.full(6, 0.2)), f.size)
