@@ -34,6 +34,7 @@ free-field pressure the same source gives at 1 m.
 from __future__ import annotations
 
 import functools
+import threading
 
 import numpy as np
 
@@ -729,8 +730,8 @@ def _blocks(table, size, rows, folds, hv, gs_all, z, k, single):
     n_gs = gb if static_tail else 0  # static columns of a block
     kern = _kernels()
     iz = table.indices_by_axis[2]
-    lo_buf = np.empty((rb, n_lo + n_gs))
-    hi_buf = np.empty((rb, n_hi), dtype=np.float32 if single else np.float64)
+    lo_buf = _work("shapes_lo", (rb, n_lo + n_gs), np.float64)
+    hi_buf = _work("shapes_hi", (rb, n_hi), np.float32 if single else np.float64)
     for r0 in range(0, rows.shape[0], rb):
         r1 = min(r0 + rb, rows.shape[0])
         nr = r1 - r0
@@ -754,8 +755,8 @@ def _blocks(table, size, rows, folds, hv, gs_all, z, k, single):
                 # in float64, the others rounded once to float32 (W - W_static formed in
                 # float64 first); below them the unit rows of the static columns
                 cols = 2 * ng * nf
-                fold_lo = np.empty((a_lo.shape[1], cols))
-                fold_hi = np.empty((n_hi, cols), dtype=hi_buf.dtype)
+                fold_lo = _work("fold_lo", (a_lo.shape[1], cols), np.float64)
+                fold_hi = _work("fold_hi", (n_hi, cols), hi_buf.dtype)
                 args = (table.kn2, table.scale, sw, table.walls, beta[:, f0:f1], k[f0:f1], psi_fold,
                         fold_lo[:n_lo], fold_hi)
                 if n_modes * nf >= _PARALLEL_MIN_TERMS and spare_cores():
@@ -774,9 +775,35 @@ def _blocks(table, size, rows, folds, hv, gs_all, z, k, single):
                 with blas_threads(2.0 * nr * (n_modes + n_gs) * cols):
                     np.matmul(a_lo, fold_lo, out=res)  # (rows, 2 R F) real
                     if n_hi:
-                        res += psi_hi @ fold_hi
+                        res += np.matmul(psi_hi, fold_hi, out=_work("product_hi", (nr, cols), hi_buf.dtype))
                 if not direct:
                     out[...] = res.view(np.complex128).reshape(nr, ng, nf)
+
+
+#: Work buffers of :func:`modal_transfer` (shapes, folds, the float32 product) are kept
+#: between calls, per thread, while together they hold at most this many bytes: a fresh
+#: buffer of a few MB costs a page fault per 4 kB on first touch (2,500 faults, several ms,
+#: per call of the 2,000-source case without them).
+WORK_KEEP_BYTES = 32 * 2**20
+_work_local = threading.local()
+
+
+def _work(slot, shape, dtype):
+    """An uninitialised C-order array ``shape`` of ``dtype`` for the work buffer ``slot``:
+    a view of this thread's kept buffer when it is large enough, else a new one (kept when
+    the thread's kept buffers stay within :data:`WORK_KEEP_BYTES`)."""
+    dtype = np.dtype(dtype)
+    n = int(np.prod(shape, dtype=np.int64)) * dtype.itemsize
+    kept = getattr(_work_local, "buffers", None)
+    if kept is None:
+        kept = _work_local.buffers = {}
+    buf = kept.get(slot)
+    if buf is None or buf.nbytes < n:
+        kept.pop(slot, None)
+        buf = np.empty(max(n, 1), dtype=np.uint8)
+        if n + sum(b.nbytes for b in kept.values()) <= WORK_KEEP_BYTES:
+            kept[slot] = buf
+    return buf[:n].view(dtype).reshape(shape)
 
 
 def block_sizes(n_rows, n_fold, n_freq, n_modes, budget_bytes=None):
