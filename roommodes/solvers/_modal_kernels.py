@@ -359,8 +359,10 @@ def static_green_pairs_tabled(size, src, rec, decay, kappa, weight_den, qexp, m_
     Notes
     -----
     A pair's terms are a prefix of its axis' table, summed in one loop without branches
-    (:func:`_pair_terms`). With ``X = e^{-kappa (h - l)}`` and ``Q = e^{-2 kappa L}`` the
-    four image terms are ``X + Q / X + e^{-kappa (l + h)} + e^{-kappa (2 L - l - h)}``.
+    (:func:`_pair_terms`). With ``X = e^{-kappa (h - l)}``, ``Y = e^{-kappa min(l + h, 2 L -
+    l - h)}`` and ``Q = e^{-2 kappa L}`` the four image terms are ``X + Q / X + Y + Q / Y``:
+    two exponentials per term. ``kappa (h - l) <= decay`` and ``kappa min(.) <= kappa L``,
+    so ``X`` never underflows, and where ``Y`` would (``kappa L > 700``) ``Q`` is 0.
     """
     cos_b = np.empty(COS_TABLE)
     cos_c = np.empty(COS_TABLE)
@@ -432,15 +434,18 @@ _COS_RESYNC = 32
 
 @njit(cache=True, fastmath={"reassoc", "contract"}, error_model="numpy")
 def _pair_terms(n_terms, kappa, weight_den, qexp, m_idx, p_idx, cos_b, cos_c, e1, e2, e3, pow2):
-    """``sum_t wd_t cos_b[m_t] cos_c[p_t] (X + Q_t / X + e^{-kappa_t e3} + e^{-kappa_t e2})``,
-    ``X = e^{-kappa_t e1}``, over the first ``n_terms`` terms of one axis' tables. No
+    """``sum_t wd_t cos_b[m_t] cos_c[p_t] (X + Q_t / X + Y + Q_t / Y)``, ``X = e^{-kappa_t e1}``,
+    ``Y = e^{-kappa_t min(e2, e3)}``, over the first ``n_terms`` terms of one axis' tables. No
     branch and a branch-free exponential (:func:`_exp_neg`), so the loop runs in SIMD
     lanes; the sum is reassociated (round-off of IEEE float64, not the order of the terms)."""
     acc = 0.0
+    e_near = min(e2, e3)
     for t in range(n_terms):
         kap = kappa[t]
+        q = qexp[t]
         x = _exp_neg(-kap * e1, pow2)
-        num = x + qexp[t] / x + _exp_neg(-kap * e3, pow2) + _exp_neg(-kap * e2, pow2)
+        y = _exp_neg(-kap * e_near, pow2)
+        num = x + q / x + y + q / y
         acc += weight_den[t] * cos_b[m_idx[t]] * cos_c[p_idx[t]] * num
     return acc
 
