@@ -7,17 +7,26 @@ search run (its "BLAS threads" table: time with one thread / time with all, medi
 interleaved rounds; < 1 means one thread is faster). On the shared 2-core machine:
 
 ==========================  =========  =================  =================  =================
-product (m x k x n)         flop       idle (load ~1)     load 3.7-4.4       load 5.1-5.7
+product (m x k x n)         flop       load 1.1-1.2       load 3.7-4.4       load 5.1-5.7
                                        float64  float32   float64  float32   float64  float32
 ==========================  =========  =================  =================  =================
-2000 x 1037 x 400           1.7e9        -        -         2.06     1.38      1.52     1.28
-300 x 1037 x 2200           1.4e9        -        -         1.24     1.39      1.02     0.82
-240 x 1037 x 220            1.1e8        1.9      -         1.05     0.10      0.41     0.07
-100 x 1037 x 100            2.1e7        -        -         0.02    <0.01      0.11     0.80
-30 x 1037 x 60              3.7e6        -        -         0.64     0.36      0.37     0.19
-8 x 1037 x 50               8.3e5        -        -         1.38     2.05      1.38     0.99
-1 x 1037 x 418              8.7e5        1.0      -         0.99     0.99      1.00     1.02
+600 x 1037 x 2200           2.7e9        1.95     1.95      1.52     1.44      1.01     1.39
+4608 x 1037 x 220           2.1e9        1.95     1.92      1.86     1.73      1.46     1.69
+2000 x 1037 x 400           1.7e9        1.98     1.92      2.06     1.38      1.52     1.28
+300 x 1037 x 2200           1.4e9        1.93     1.91      1.24     1.39      1.02     0.82
+240 x 1037 x 220            1.1e8        1.71     1.67      1.05     0.10      0.41     0.07
+100 x 1037 x 100            2.1e7        1.34     1.14      0.02    <0.01      0.11     0.80
+30 x 1037 x 60              3.7e6        1.25     1.16      0.64     0.36      0.37     0.19
+8 x 1037 x 50               8.3e5        0.98     0.97      1.38     2.05      1.38     0.99
+1 x 1037 x 418              8.7e5        0.99     0.95      0.99     0.99      1.00     1.02
 ==========================  =========  =================  =================  =================
+
+On the idle machine (load 1.1-1.2, this process's own threads included) two threads win from
+about 1e6 flop on: by 1.2-1.3 times at a few MFLOP, 1.7 times at 1e8 and nearly 2 from 1e9.
+With other work on the cores (load about 2 per CPU and more) one thread wins from a few MFLOP
+to 1e8 flop, by 2 to over 100 times (medians of noisy rounds), and two threads win again from
+about 1.5e9 (as in the first measurement of this rule, at load 10-15). Below 1e6 flop the two
+are alike when idle and mixed under load.
 
 So the threshold depends on the load: with cores to spare (1-minute load average at most
 :data:`BUSY_LOAD_PER_CPU` per CPU) products from :data:`MULTI_THREAD_MIN_FLOP` on run on
@@ -29,7 +38,9 @@ Run the benchmark on a new machine and set the constants from its table.
 The same test decides whether the modal solver's compiled loops run on all cores
 (:func:`spare_cores`). numba's OpenMP workers are asked to wait passively
 (``OMP_WAIT_POLICY=PASSIVE`` unless set): spinning workers left over from a compiled loop
-otherwise hold the cores the next BLAS product wants.
+otherwise hold the cores the next BLAS product wants (under load 5, with the modal solver's
+loops then on all cores, its 2,000-source call took 1.75 times the plain product with
+spinning workers and 1.19 with passive ones).
 """
 
 from __future__ import annotations
