@@ -212,7 +212,9 @@ def test_parallel_kernels_equal_the_serial_ones():
         kern.fold_into_parallel(*args, 2) if par else kern.fold_into(*args)
         outs.append(np.vstack([lo, hi]))
     np.testing.assert_array_equal(outs[0], outs[1])
-    # the static pairs, dealt out over threads: equal to the last bit (same SIMD loop per pair)
+    # the static pairs, dealt out over threads: equal to the last bit (same SIMD loop per pair);
+    # the kernel's cosine tables cover every index of modal's term tables
+    assert kern.COS_TABLE == modal._STATIC_TABLE_INDEX + 1
     s, r = _points(130, 13), _points(130, 14)
     tables = modal._static_tables(tuple(SIZE.tolist()))
     a, b = np.empty(130), np.empty(130)
