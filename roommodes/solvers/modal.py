@@ -34,12 +34,13 @@ free-field pressure the same source gives at 1 m.
 from __future__ import annotations
 
 import functools
+import threading
 
 import numpy as np
 
 from ..model.modes import mode_indices, mode_shapes, wall_weights
 from ..model.walls import impedance_table
-from .threads import blas_threads
+from .threads import blas_threads, spare_cores
 
 
 def _kernels():
@@ -217,8 +218,10 @@ class _ModeTable:
         # per-axis wavenumbers n pi / L of the indices in use, for the shape tables
         self.axis_k = [np.pi * np.arange(idx[:, a].max(initial=0) + 1) / size[a] for a in range(3)]
         self.indices_by_axis = [np.ascontiguousarray(idx[:, a], dtype=np.int64) for a in range(3)]
+        # (x, y) index pairs into a per-point table of cos_x cos_y (n_x by n_y, row major)
+        self.indices_xy = self.indices_by_axis[0] * self.axis_k[1].size + self.indices_by_axis[1]
         for arr in (self.indices, self.kn2, self.walls, self.scale, self.static_weight, *self.axis_k,
-                    *self.indices_by_axis):
+                    *self.indices_by_axis, self.indices_xy):
             arr.flags.writeable = False
 
     def modes_below(self, k):
@@ -467,19 +470,39 @@ def static_green_pairs(size_m, sources_m, receivers_m):
     # pairs whose 2-D terms fit the cached tables take the tabled kernel, the others (points
     # closer than about 0.1 m) the kernel that computes every term's constants itself
     fits = kmax * size.max() / np.pi + 1 <= _STATIC_TABLE_INDEX
+    # many pairs on all cores, a few on one (starting the threads would cost more)
+    kern = _kernels()
     if fits.all():
-        _kernels().static_green_pairs_tabled(size, s, r, _STATIC_DECAY, *_static_tables(tuple(size.tolist())), out)
+        _tabled(kern, size, s, r, out)
         return out
     far, near = np.flatnonzero(fits), np.flatnonzero(~fits)
     if far.size:
         part = np.empty(far.size)
-        _kernels().static_green_pairs_tabled(size, s[far], r[far], _STATIC_DECAY, *_static_tables(tuple(size.tolist())), part)
+        _tabled(kern, size, s[far], r[far], part)
         out[far] = part
     part = np.empty(near.size)
     _kernels().static_green_pairs_kernel(size, s[near], r[near], _STATIC_DECAY, _STATIC_MAX_INDEX, part)
     out[near] = part
     return out
 
+
+def _tabled(kern, size, s, r, out):
+    """The tabled static kernel, on all cores for many pairs (when cores are spare)."""
+    tables = _static_tables(tuple(size.tolist()))
+    if s.shape[0] >= _PARALLEL_MIN_PAIRS and spare_cores():
+        kern.static_green_pairs_tabled_parallel(size, s, r, _STATIC_DECAY, *tables, out, kern.n_threads())
+    else:
+        kern.static_green_pairs_tabled(size, s, r, _STATIC_DECAY, *tables, out)
+
+
+#: Calls with at least this many points (pairs, rows of a block) run their compiled loops
+#: on all cores when the machine has cores to spare (:func:`.threads.spare_cores`); below
+#: it one core is faster than starting the threads.
+_PARALLEL_MIN_POINTS = 64
+#: The static pairs run on all cores from this many pairs (about 2 ms on one core).
+_PARALLEL_MIN_PAIRS = 8192
+#: The fused weights-and-fold pass runs on all cores from this many (mode, frequency) terms.
+_PARALLEL_MIN_TERMS = 32_768
 
 #: Largest 2-D index of the cached tables of :func:`static_green_pairs` (pairs more than
 #: about 18 L / (pi 256), 0.1 m in a 4.6 m room, apart use them).
@@ -488,23 +511,28 @@ _STATIC_TABLE_INDEX = 256
 
 @functools.lru_cache(maxsize=4)
 def _static_tables(size):
-    """Per-axis tables of :func:`._modal_kernels.static_green_pairs_tabled`: ``kappa``,
-    ``w / (2 kappa (1 - e^{-2 kappa L}))`` and ``e^{-2 kappa L}`` (3, M + 1, M + 1)."""
+    """Per-axis tables of :func:`._modal_kernels.static_green_pairs_tabled`: for the 1-D sum
+    along axis ``a``, the 2-D terms (m, p) of the other two axes with m, p <= 256 and
+    ``kappa > 0``, sorted by ``kappa`` (so that a pair's disc ``kappa <= kmax`` is a prefix):
+    ``kappa``, ``w / (2 kappa (1 - e^{-2 kappa L_a}))``, ``e^{-2 kappa L_a}``, m and p, each (3, T)."""
     n = _STATIC_TABLE_INDEX + 1
-    kappa, wd, q = (np.zeros((3, n, n)) for _ in range(3))
     m, p = np.meshgrid(np.arange(n), np.arange(n), indexing="ij")
+    m, p = m.ravel()[1:], p.ravel()[1:]  # without (0, 0)
+    cols = [[], [], [], [], []]
     for a in range(3):
         b, c = [i for i in range(3) if i != a]
         lb, lc, la = size[b], size[c], size[a]
         k = np.pi * np.sqrt((m / lb) ** 2 + (p / lc) ** 2)
-        w = np.where(m > 0, 2.0, 1.0) * np.where(p > 0, 2.0, 1.0) / (lb * lc)
-        ks = np.where(k > 0, k, 1.0)
-        kappa[a] = k
-        wd[a] = np.where(k > 0, w / (2.0 * ks * -np.expm1(-2.0 * ks * la)), 0.0)
-        q[a] = np.where(k > 0, np.exp(-2.0 * ks * la), 0.0)
-    for arr in (kappa, wd, q):
+        order = np.argsort(k, kind="stable")
+        k = k[order]
+        w = (np.where(m > 0, 2.0, 1.0) * np.where(p > 0, 2.0, 1.0))[order] / (lb * lc)
+        for col, arr in zip(cols, (k, w / (2.0 * k * -np.expm1(-2.0 * k * la)), np.exp(-2.0 * k * la), m[order],
+                                   p[order])):
+            col.append(arr)
+    tables = tuple(np.ascontiguousarray(np.stack(col)) for col in cols)
+    for arr in tables:
         arr.flags.writeable = False
-    return kappa, wd, q
+    return tables
 
 
 def _g1d(lo, hi, kappa, length):
@@ -681,57 +709,114 @@ def modal_transfer(size_m, zeta, sources_m, receivers_m, freq_hz, speed_of_sound
 
 
 def _blocks(table, size, rows, folds, hv, gs_all, z, k, single):
-    """The block loop of :func:`modal_transfer`: writes ``hv`` (rows, folds, F) in place."""
+    """The block loop of :func:`modal_transfer`: writes ``hv`` (rows, folds, F) in place.
+
+    Per block of rows, one real product ``[psi_lo | gs] @ [fold_lo ; E]`` in float64 (the
+    resonant modes, and the closed-form static term ``gs`` of each (row, folded point) as
+    one extra column per folded point, ``E`` its unit pattern on the real parts), plus
+    ``psi_hi @ fold_hi`` in float32 for the other modes in single precision. The float64
+    product is written straight into the result when the block is contiguous there.
+    """
     static_tail = gs_all is not None
     n_freq = k.size
     n_modes = table.indices.shape[0]
     # single precision: the resonant modes (up to RESONANT_FACTOR f_max, the large terms)
     # stay float64, the rest (1 - 1 / 8 of them at the default cutoff) go float32
     n_lo = table.modes_below(RESONANT_FACTOR * k.max()) if single else n_modes
+    n_hi = n_modes - n_lo
     rb, gb, fb = block_sizes(rows.shape[0], folds.shape[0], n_freq, n_modes)
     beta = np.ascontiguousarray(1.0 / z)
     sw = table.static_weight if static_tail else np.zeros(n_modes)
+    n_gs = gb if static_tail else 0  # static columns of a block
+    kern = _kernels()
+    iz = table.indices_by_axis[2]
+    lo_buf = _work("shapes_lo", (rb, n_lo + n_gs), np.float64)
+    hi_buf = _work("shapes_hi", (rb, n_hi), np.float32 if single else np.float64)
     for r0 in range(0, rows.shape[0], rb):
         r1 = min(r0 + rb, rows.shape[0])
+        nr = r1 - r0
         cos = _cos_tables(table, rows[r0:r1])
-        psi_lo = _shapes(table, size, None, np.float64, stop=n_lo, cos=cos)
-        psi_hi = _shapes(table, size, None, np.float32, start=n_lo, cos=cos) if n_lo < n_modes else None
+        psi_lo, psi_hi = lo_buf[:nr], hi_buf[:nr]
+        if nr >= _PARALLEL_MIN_POINTS and spare_cores():
+            kern.shapes_split_into_parallel(*cos, table.indices_xy, iz, psi_lo[:, :n_lo], psi_hi, kern.n_threads())
+        else:
+            kern.shapes_split_into(*cos, table.indices_xy, iz, psi_lo[:, :n_lo], psi_hi)
         for g0 in range(0, folds.shape[0], gb):
             g1 = min(g0 + gb, folds.shape[0])
+            ng = g1 - g0
             psi_fold = _shapes(table, size, folds[g0:g1])
-            gs = gs_all[r0:r1, g0:g1] if static_tail else None
+            a_lo = psi_lo[:, :n_lo + ng] if static_tail else psi_lo
+            if static_tail:
+                a_lo[:, n_lo:] = gs_all[r0:r1, g0:g1]
             for f0 in range(0, n_freq, fb):
                 f1 = min(f0 + fb, n_freq)
+                nf = f1 - f0
                 # weights and fold in one pass, as real pairs (N, 2 R F): the resonant modes
                 # in float64, the others rounded once to float32 (W - W_static formed in
-                # float64 first)
-                cols = 2 * (g1 - g0) * (f1 - f0)
-                fold_lo = np.empty((n_lo, cols))
-                fold_hi = np.empty((n_modes - n_lo, cols), dtype=np.float32 if single else np.float64)
-                _kernels().fold_into(table.kn2, table.scale, sw, table.walls, beta[:, f0:f1], k[f0:f1], psi_fold,
-                          fold_lo, fold_hi)
-                # the thread count measured best for the block product's size
-                with blas_threads(2.0 * (r1 - r0) * n_modes * cols):
-                    res = psi_lo @ fold_lo  # (rows, 2 R F) real
-                    if psi_hi is not None:
-                        res += psi_hi @ fold_hi
+                # float64 first); below them the unit rows of the static columns
+                cols = 2 * ng * nf
+                fold_lo = _work("fold_lo", (a_lo.shape[1], cols), np.float64)
+                fold_hi = _work("fold_hi", (n_hi, cols), hi_buf.dtype)
+                args = (table.kn2, table.scale, sw, table.walls, beta[:, f0:f1], k[f0:f1], psi_fold,
+                        fold_lo[:n_lo], fold_hi)
+                if n_modes * nf >= _PARALLEL_MIN_TERMS and spare_cores():
+                    kern.fold_into_parallel(*args, kern.n_threads())
+                else:
+                    kern.fold_into(*args)
+                if static_tail:
+                    unit = fold_lo[n_lo:]
+                    unit[...] = 0.0
+                    for g in range(ng):
+                        unit[g, 2 * g * nf:2 * (g + 1) * nf:2] = 1.0
                 out = hv[r0:r1, g0:g1, f0:f1]
-                out[...] = res.view(np.complex128).reshape(r1 - r0, g1 - g0, f1 - f0)
-                if gs is not None:
-                    out += gs[:, :, None]
+                direct = out.flags.c_contiguous
+                res = out.view(np.float64).reshape(nr, cols) if direct else np.empty((nr, cols))
+                # the thread count measured best for the block product's size
+                with blas_threads(2.0 * nr * (n_modes + n_gs) * cols):
+                    np.matmul(a_lo, fold_lo, out=res)  # (rows, 2 R F) real
+                    if n_hi:
+                        res += np.matmul(psi_hi, fold_hi, out=_work("product_hi", (nr, cols), hi_buf.dtype))
+                if not direct:
+                    out[...] = res.view(np.complex128).reshape(nr, ng, nf)
+
+
+#: Work buffers of :func:`modal_transfer` (shapes, folds, the float32 product) are kept
+#: between calls, per thread, while together they hold at most this many bytes: a fresh
+#: buffer of a few MB costs a page fault per 4 kB on first touch (2,500 faults, several ms,
+#: per call of the 2,000-source case without them).
+WORK_KEEP_BYTES = 32 * 2**20
+_work_local = threading.local()
+
+
+def _work(slot, shape, dtype):
+    """An uninitialised C-order array ``shape`` of ``dtype`` for the work buffer ``slot``:
+    a view of this thread's kept buffer when it is large enough, else a new one (kept when
+    the thread's kept buffers stay within :data:`WORK_KEEP_BYTES`)."""
+    dtype = np.dtype(dtype)
+    n = int(np.prod(shape, dtype=np.int64)) * dtype.itemsize
+    kept = getattr(_work_local, "buffers", None)
+    if kept is None:
+        kept = _work_local.buffers = {}
+    buf = kept.get(slot)
+    if buf is None or buf.nbytes < n:
+        kept.pop(slot, None)
+        buf = np.empty(max(n, 1), dtype=np.uint8)
+        if n + sum(b.nbytes for b in kept.values()) <= WORK_KEEP_BYTES:
+            kept[slot] = buf
+    return buf[:n].view(dtype).reshape(shape)
 
 
 def block_sizes(n_rows, n_fold, n_freq, n_modes, budget_bytes=None):
     """Block sizes ``(rows, folded points, frequencies)`` of :func:`modal_transfer`.
 
     Half of the budget (default :data:`BLOCK_BYTES`) goes to the folded weights
-    (``16 N R F`` bytes plus the ``(N, F)`` weights), half to a block of rows (``8 N`` bytes
-    of shapes and ``16 R F`` of product per row), so that a call's temporaries stay within
+    (``16 N R F`` bytes plus the ``(N, F)`` weights), half to a block of rows (``8 (N + R)``
+    bytes of shapes and static columns and ``16 R F`` of product per row), so that a call's temporaries stay within
     about the budget for any number of points.
     """
     half = (BLOCK_BYTES if budget_bytes is None else budget_bytes) // 2
     n = max(int(n_modes), 1)
     fb = max(1, min(n_freq, half // (32 * n)))
     gb = max(1, min(n_fold, half // (16 * n * fb) - 1))
-    rb = max(1, min(n_rows, half // (8 * n + 16 * gb * fb)))
+    rb = max(1, min(n_rows, half // (8 * (n + gb) + 16 * gb * fb)))
     return rb, gb, fb

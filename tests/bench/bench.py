@@ -55,7 +55,7 @@ from roommodes.model.walls import impedance_from_absorption
 from roommodes.solvers.exact import exact_transfer
 from roommodes.solvers.images import image_count, image_source_transfer
 from roommodes.solvers.modal import modal_transfer
-from roommodes.solvers.threads import MULTI_THREAD_MIN_FLOP, blas_threads
+from roommodes.solvers.threads import blas_threads, multi_thread_min_flop, spare_cores
 
 #: CPU time (all threads of the process) of the last call of :func:`timed`.
 _last_cpu = [0.0]
@@ -140,6 +140,7 @@ def main(argv=None):
     times = {k: [] for k in cases}
     cpu = {k: [] for k in cases}
     results = {}
+    load_start = os.getloadavg()[0]
     for rnd in range(args.rounds + 1):
         for key, fn_case in cases.items():
             # a pause, so that BLAS threads still spinning after the previous case's
@@ -223,7 +224,8 @@ def main(argv=None):
           f"{med['img1_new'] * 1e3:.1f} ms ({cpu_med['img1_new'] * 1e3:.1f} ms CPU); "
           f"100 receivers {med['img100_new'] * 1e3:.0f} ms ({cpu_med['img100_new'] * 1e3:.0f} ms CPU)")
 
-    print(f"(load average at the end of the rounds: {os.getloadavg()[0]:.1f} on {os.cpu_count()} CPUs)")
+    print(f"(load average {load_start:.1f} at the start of the rounds, {os.getloadavg()[0]:.1f} at their end, "
+          f"on {os.cpu_count()} CPUs)")
 
     if args.search_rounds > 0:
         search_rows(room, args.search_rounds)
@@ -294,26 +296,39 @@ def search_rows(room, rounds):
 
 def thread_table(psi, fold, rounds=5):
     """One BLAS thread against the BLAS's own count, for product shapes the modal solver and
-    the search run; interleaved rounds, medians of the per-round ratio."""
+    the search run; interleaved rounds (each side repeated to about 0.3 GFLOP), medians of
+    the per-round ratio, and the load average around it (the rule of
+    roommodes.solvers.threads depends on it)."""
     rng = np.random.default_rng(5)
     n = psi.shape[1]
-    shapes = [(2000, n, 400), (600, n, 2200), (300, n, 2200), (4608, n, 220), (240, n, 220), (1, n, 418)]
+    shapes = [(2000, n, 400), (600, n, 2200), (300, n, 2200), (4608, n, 220), (240, n, 220), (100, n, 100),
+              (30, n, 60), (8, n, 50), (1, n, 418)]
+    load0 = os.getloadavg()[0]
     print(f"\nBLAS threads: time with one thread / time with the BLAS's own count ({os.cpu_count()} CPUs; "
-          f"< 1 means one thread is faster); the code uses one thread below {MULTI_THREAD_MIN_FLOP:.1e} flop")
+          f"< 1 means one thread is faster); load average {load0:.1f} at the start, so the code now uses "
+          f"one thread below {multi_thread_min_flop():.1e} flop (cores to spare: {spare_cores()})")
     print(f"{'product (m x k x n)':24s} {'flop':>9s} {'float64':>8s} {'float32':>8s}")
     for m, k, nn in shapes:
         line = f"{f'{m} x {k} x {nn}':24s} {2.0 * m * k * nn:9.1e}"
+        reps = max(1, int(3e8 / (2.0 * m * k * nn)))
         for dt in (np.float64, np.float32):
             a, b = rng.standard_normal((m, k)).astype(dt), rng.standard_normal((k, nn)).astype(dt)
+
+            def many(a=a, b=b, reps=reps):
+                for _ in range(reps):
+                    a @ b
+
             r = []
             for rnd in range(rounds + 1):
-                t_all, _ = timed(lambda a=a, b=b: a @ b)
+                time.sleep(0.02)
+                t_all, _ = timed(many)
                 with blas_threads(0):
-                    t_one, _ = timed(lambda a=a, b=b: a @ b)
+                    t_one, _ = timed(many)
                 if rnd:
                     r.append(t_one / t_all)
             line += f" {float(np.median(r)):8.2f}"
         print(line)
+    print(f"(load average {load0:.1f} at the start of the table, {os.getloadavg()[0]:.1f} at its end)")
 
 
 if __name__ == "__main__":

@@ -80,3 +80,19 @@ def test_a_large_call_is_split_into_blocks_within_the_budget():
     # a fold too large for half the budget is cut along the folded points, then frequencies
     rb, gb, fb = block_sizes(10, 10_000, 200, 3300)
     assert gb < 10_000 and 16 * 3300 * gb * fb <= modal.BLOCK_BYTES // 2
+
+
+def test_work_buffers_are_reused_per_thread_within_their_cap(monkeypatch):
+    monkeypatch.setattr(modal, "_work_local", __import__("threading").local())
+    monkeypatch.setattr(modal, "WORK_KEEP_BYTES", 10_000)
+    a = modal._work("x", (10, 20), np.float64)  # 1,600 bytes: kept
+    b = modal._work("x", (5, 20), np.float32)
+    assert a.flags.c_contiguous and b.shape == (5, 20) and b.dtype == np.float32
+    assert np.shares_memory(a, b)  # the same buffer, viewed again
+    big = modal._work("y", (100, 100), np.float64)  # 80,000 bytes: over the cap, not kept
+    assert not np.shares_memory(big, modal._work("y", (100, 100), np.float64))
+    # results do not depend on the kept buffers: two calls give the same values
+    f = np.geomspace(25, 150, 17)
+    src, rec = _points(70, 4), _points(1, 5)
+    np.testing.assert_array_equal(modal_transfer(SIZE, ZETA, src, rec, f, C, precision="single"),
+                                  modal_transfer(SIZE, ZETA, src, rec, f, C, precision="single"))

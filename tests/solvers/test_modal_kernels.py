@@ -128,7 +128,7 @@ def test_blas_threads_one_thread_for_small_products_and_restored_after():
     if ctl is None:
         pytest.skip("threadpoolctl not installed")
     before = [lib.num_threads for lib in ctl.select(user_api="blas").lib_controllers]
-    with threads.blas_threads(1e6):
+    with threads.blas_threads(0.5 * threads.MULTI_THREAD_MIN_FLOP):
         assert all(lib.num_threads == 1 for lib in threads._controller().select(user_api="blas").lib_controllers)
     after = [lib.num_threads for lib in threads._controller().select(user_api="blas").lib_controllers]
     assert after == before
@@ -158,7 +158,94 @@ def test_blas_threads_large_products_get_the_blas_own_count_inside_a_one_thread_
         pytest.skip("threadpoolctl not installed")
     own = threads._own_threads()
     with threads.blas_threads(0):
-        with threads.blas_threads(threads.MULTI_THREAD_MIN_FLOP):
+        with threads.blas_threads(threads.BUSY_MULTI_THREAD_MIN_FLOP):
             counts = [lib.num_threads for lib in ctl.select(user_api="blas").lib_controllers]
         assert all(n == own for n in counts)
         assert all(lib.num_threads == 1 for lib in ctl.select(user_api="blas").lib_controllers)
+
+
+@pytest.mark.parametrize("load,spare", [(0.5, True), (1.9, True), (3.5, False)])
+def test_thread_threshold_follows_the_load(monkeypatch, load, spare):
+    # per CPU: 0.25 and 0.95 leave cores to spare, 1.75 (above BUSY_LOAD_PER_CPU) does not
+    monkeypatch.setattr(threads.os, "getloadavg", lambda: (load, load, load))
+    monkeypatch.setattr(threads.os, "cpu_count", lambda: 2)
+    monkeypatch.setattr(threads, "_load_cache", [-1e9, None])
+    monkeypatch.setattr(threads, "_own_threads", lambda: 2)
+    assert threads.spare_cores() is spare
+    want = threads.MULTI_THREAD_MIN_FLOP if spare else threads.BUSY_MULTI_THREAD_MIN_FLOP
+    assert threads.multi_thread_min_flop() == want
+    assert threads.MULTI_THREAD_MIN_FLOP < threads.BUSY_MULTI_THREAD_MIN_FLOP
+    # a process whose BLAS was given one thread (Dask's workers) keeps to one core
+    monkeypatch.setattr(threads, "_own_threads", lambda: 1)
+    assert threads.spare_cores() is False
+
+
+def test_parallel_kernels_equal_the_serial_ones():
+    from roommodes.solvers import _modal_kernels as kern
+
+    table = modal._mode_table(tuple(SIZE.tolist()), 500.0, C)
+    pts = _points(150, 12)
+    cos = modal._cos_tables(table, pts)
+    ix, iy, iz = table.indices_by_axis
+    n, n_lo = ix.size, 37
+    # the shapes of a block, the resonant part written into a column slice of a wider block,
+    # from the (x, y) table: the same products in the same order, equal to the last bit
+    psi = modal._shapes(table, SIZE, pts)
+    for par in (False, True):
+        wide, hi = np.full((150, n_lo + 3), -1.0), np.empty((150, n - n_lo), dtype=np.float32)
+        if par:
+            kern.shapes_split_into_parallel(*cos, table.indices_xy, iz, wide[:, :n_lo], hi, 2)
+        else:
+            kern.shapes_split_into(*cos, table.indices_xy, iz, wide[:, :n_lo], hi)
+        np.testing.assert_array_equal(wide[:, :n_lo], psi[:, :n_lo])
+        np.testing.assert_array_equal(hi, psi[:, n_lo:].astype(np.float32))
+        assert np.all(wide[:, n_lo:] == -1.0)
+    # the fused fold, same arithmetic per mode: equal to the last bit
+    f = np.geomspace(20, 200, 23)
+    beta = 1.0 / impedance_table(impedance_from_absorption(np.full(6, 0.2)), f.size)
+    k = 2 * np.pi * f / C
+    pf = psi[:3]
+    outs = []
+    for par in (False, True):
+        lo, hi = np.empty((n_lo, 2 * 3 * f.size)), np.empty((n - n_lo, 2 * 3 * f.size))
+        args = (table.kn2, table.scale, table.static_weight, table.walls, beta, k, pf, lo, hi)
+        kern.fold_into_parallel(*args, 2) if par else kern.fold_into(*args)
+        outs.append(np.vstack([lo, hi]))
+    np.testing.assert_array_equal(outs[0], outs[1])
+    # the static pairs, dealt out over threads: equal to the last bit (same SIMD loop per pair);
+    # the kernel's cosine tables cover every index of modal's term tables
+    assert kern.COS_TABLE == modal._STATIC_TABLE_INDEX + 1
+    s, r = _points(130, 13), _points(130, 14)
+    tables = modal._static_tables(tuple(SIZE.tolist()))
+    a, b = np.empty(130), np.empty(130)
+    kern.static_green_pairs_tabled(SIZE, s, r, modal._STATIC_DECAY, *tables, a)
+    kern.static_green_pairs_tabled_parallel(SIZE, s, r, modal._STATIC_DECAY, *tables, b, 3)
+    np.testing.assert_array_equal(a, b)
+
+
+def test_branch_free_exponential_is_within_two_ulp_of_the_c_library():
+    from roommodes.solvers._modal_kernels import exp_neg_into
+
+    x = -np.concatenate([np.geomspace(1e-12, 700.0, 20001), [0.0, np.log(2) / 2, 0.5, 1.0, 18.0, 40.0]])
+    out = np.empty_like(x)
+    exp_neg_into(x, out)
+    ref = np.exp(x)
+    # Cody-Waite reduction and a degree-12 polynomial: a couple of ulp (IEEE float64)
+    assert np.max(np.abs(out - ref) / np.spacing(ref)) <= 2.0
+    big = np.array([-745.0, -1e4])
+    exp_neg_into(big, out[:2])
+    assert np.all(out[:2] > 0) and np.all(out[:2] < 1e-300)  # clamped at e^-700, not 0
+
+
+def test_single_precision_bound_holds_with_receivers_as_rows_and_small_blocks(monkeypatch):
+    # more receivers than sources: the receivers are the product's rows, the result is
+    # written through a transposed view; a small budget cuts rows and folded points into blocks
+    zeta = impedance_from_absorption(np.full(6, 0.3))
+    f = np.geomspace(15, 300, 90)
+    src, rec = _points(3, 15), _points(120, 16)
+    hd = modal_transfer(SIZE, zeta, src, rec, f, C, precision="double")
+    monkeypatch.setattr(modal, "BLOCK_BYTES", 3_000_000)
+    hs = modal_transfer(SIZE, zeta, src, rec, f, C, precision="single")
+    # the bound modal_transfer states for single precision
+    assert np.max(np.abs(20 * np.log10(np.abs(hs) / np.abs(hd)))) <= 5e-4
+    assert np.any(hs != hd)
