@@ -65,8 +65,9 @@ from ..solvers.modal import (
     mode_shape_block,
     resonant_count,
     static_green_block,
+    static_green_pairs,
 )
-from ..solvers.separable import SeparableModalSum, static_green_pairs_shared
+from ..solvers.separable import SeparableModalSum
 from ..solvers.threads import blas_threads, small_products
 from .levels import speaker_levels
 from .predict import usable_band
@@ -502,7 +503,7 @@ class _Scorer:
             h, low = grouped_pair_sum(psi_s, psi_r, self.weight, self.static_weight, n_double=self.n_double)
             ss = np.broadcast_to(src[:, :, None, :], (n, 2, a, 3)).reshape(-1, 3)
             rr = np.broadcast_to(rec[:, None, :, :], (n, 2, a, 3)).reshape(-1, 3)
-            h += (4 * np.pi * static_green_pairs_shared(self.size, ss, rr).reshape(n, 2, a) - low)[..., None]
+            h += (4 * np.pi * static_green_pairs(self.size, ss, rr).reshape(n, 2, a) - low)[..., None]
             out[i0:i0 + n] = h.reshape(n, 2, a, -1)
         self.pair_evaluations += 2 * a * k
         self.layout_evaluations += k
@@ -531,7 +532,7 @@ class _Scorer:
         h, low = out
         ss = np.broadcast_to(src[:, :, None, :], (k, 2, a, 3)).reshape(-1, 3)
         rr = np.broadcast_to(rec[:, None, :, :], (k, 2, a, 3)).reshape(-1, 3)
-        h += (4 * np.pi * static_green_pairs_shared(self.size, ss, rr).reshape(k, 2, a) - low)[..., None]
+        h += (4 * np.pi * static_green_pairs(self.size, ss, rr).reshape(k, 2, a) - low)[..., None]
         return h.reshape(k, 2, a, -1)
 
     # -- score parts from transfers

@@ -24,9 +24,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from . import modal as _modal
-
-__all__ = ["SeparableModalSum", "TABLE_BYTES", "static_green_pairs_shared"]
+__all__ = ["SeparableModalSum", "TABLE_BYTES"]
 
 #: Largest table ``D`` built, bytes; beyond it :meth:`SeparableModalSum.table` returns None.
 TABLE_BYTES = 64 * 2**20
@@ -180,52 +178,6 @@ class SeparableModalSum:
         n_k = self.columns.shape[1]
         table = n_k * (self.mode_c.size * n_sc * n_rc + self.ab_b.size * n_sb * n_rb * n_sc * n_rc)
         return table + n_k * self.a_index.size * n_pairs
-
-
-def static_green_pairs_shared(size_m, sources_m, receivers_m):
-    """:func:`roommodes.solvers.modal.static_green_pairs`, the same values to the bit, with
-    the image terms computed once for all pairs that share the axis of largest separation
-    and their two coordinates on it (the pairs of one speaker and a listening area, say).
-
-    Parameters
-    ----------
-    size_m : array_like (3,)
-    sources_m, receivers_m : array_like (P, 3)
-        Paired points inside the box, m.
-
-    Returns
-    -------
-    ndarray (P,)
-    """
-    size = np.ascontiguousarray(size_m, dtype=float)
-    s = np.ascontiguousarray(np.atleast_2d(np.asarray(sources_m, dtype=float)))
-    r = np.ascontiguousarray(np.atleast_2d(np.asarray(receivers_m, dtype=float)))
-    if s.shape != r.shape or s.ndim != 2 or s.shape[1] != 3:
-        raise ValueError(f"sources_m and receivers_m must both be (P, 3), got {s.shape} and {r.shape}")
-    d = np.abs(s - r)
-    kmax = _modal._STATIC_DECAY / np.maximum(d.max(axis=1), 1e-3)
-    fits = kmax * size.max() / np.pi + 1 <= _modal._STATIC_TABLE_INDEX
-    out = np.empty(s.shape[0])
-    if not fits.all():  # close pairs: the solver's own kernel
-        near = np.flatnonzero(~fits)
-        out[near] = _modal.static_green_pairs(size, s[near], r[near])
-    far = np.flatnonzero(fits)
-    if far.size:
-        axis = np.argmax(d[far], axis=1)  # the first on ties, as the kernel's choice
-        sf, rf = s[far], r[far]
-        lo = np.minimum(sf[np.arange(far.size), axis], rf[np.arange(far.size), axis])
-        hi = np.maximum(sf[np.arange(far.size), axis], rf[np.arange(far.size), axis])
-        # groups of (axis, lo, hi); inside a group, pairs with the same source coordinates next
-        # to each other (the kernel keeps a point's cosines while they repeat)
-        keys = (rf[:, 2], rf[:, 1], rf[:, 0], sf[:, 2], sf[:, 1], sf[:, 0], hi, lo, axis)
-        sort = np.lexsort(keys)
-        new = np.ones(far.size, dtype=bool)
-        new[1:] = (np.diff(axis[sort]) != 0) | (np.diff(lo[sort]) != 0) | (np.diff(hi[sort]) != 0)
-        order = far[sort].astype(np.int64)
-        start = np.r_[np.flatnonzero(new), far.size].astype(np.int64)
-        _kernels().static_pairs_shared(size, s, r, _modal._STATIC_DECAY,
-                                       *_modal._static_tables(tuple(size.tolist())), order, start, out)
-    return out
 
 
 def _pair_sums_numpy(cx_src, cx_rec, plane_src, plane_rec, n_plane_rec, table, n_out):

@@ -14,12 +14,11 @@ import pytest
 from roommodes import demo_room_path, load_room
 from roommodes.solvers import _separable_kernels as kern
 from roommodes.solvers import separable
-from roommodes.solvers.modal import modal_sum_block, modal_weights, mode_shape_block, static_green_pairs
+from roommodes.solvers.modal import modal_sum_block, modal_weights, mode_shape_block
 from roommodes.solvers.separable import (
     SeparableModalSum,
     _group_sums_numpy,
     _pair_sums_numpy,
-    static_green_pairs_shared,
 )
 
 DEMO = load_room(demo_room_path())
@@ -120,20 +119,3 @@ def test_kernels_equal_their_numpy_twins():
     out = np.empty((4, 3, 7))
     kern.group_sums_into(weight, columns, start, out)
     np.testing.assert_allclose(out, _group_sums_numpy(weight, columns, start), rtol=1e-13, atol=1e-13)
-
-
-def test_shared_static_pairs_equal_the_solver_to_the_bit():
-    rng = np.random.default_rng(8)
-    # a pair of speakers to a 3 x 3 listening area, for many layouts: pairs share the axis of
-    # largest separation and its coordinates; then random pairs, ties and close pairs
-    k = 60
-    spk = np.column_stack([0.3 + rng.random(k) * 1.2, 0.3 + rng.random(k) * 1.2, 0.8 + rng.random(k) * 0.4])
-    spk = np.stack([spk, spk * [1, -1, 1] + [0, SIZE[1], 0]], axis=1)  # (k, 2, 3)
-    seat = np.column_stack([1.5 + rng.random(k) * 2, np.full(k, SIZE[1] / 2), np.full(k, 1.2)])
-    grid = np.stack(np.meshgrid([-0.3, 0, 0.3], [-0.3, 0, 0.3], [0.0], indexing="ij"), -1).reshape(-1, 3)
-    src = np.repeat(spk[:, :, None, :], 9, axis=2).reshape(-1, 3)
-    rec = np.repeat((seat[:, None, :] + grid)[:, None], 2, axis=1).reshape(-1, 3)
-    src = np.vstack([src, 0.2 + rng.random((200, 3)) * (SIZE - 0.4), [[1.0, 1.0, 1.0], [1.0, 1.0, 1.0], [2.0, 1.0, 1.0]]])
-    rec = np.vstack([rec, 0.2 + rng.random((200, 3)) * (SIZE - 0.4), [[1.05, 1.0, 1.0], [1.0, 1.0, 1.0001],
-                                                                       [1.0, 2.0, 1.0]]])
-    np.testing.assert_array_equal(static_green_pairs_shared(SIZE, src, rec), static_green_pairs(SIZE, src, rec))
