@@ -114,7 +114,7 @@ def _row(label, s, parts):
 @click.option("--force", is_flag=True, help="Overwrite an existing output file (never the input).")
 @method_option
 @uncertainty_options(samples=DEFAULT_PLACE_SAMPLES, samples_note=(
-    "Each drawn room re-scores every finalist (about 0.02 s of one core per layout and room with the "
+    "Each drawn room re-scores every finalist (about 0.004 s per layout and room with the "
     "batched modal scorer, ten times more with the exact solver; docs/uncertainty.md)."))
 @click.option("--uncertainty-method", "ensemble_method", type=click.Choice(list(METHODS)),
               default=DEFAULT_ENSEMBLE_METHOD, show_default=True,
