@@ -403,6 +403,16 @@ class SubsBands:
         """(p10, p50, p90) of each configuration's seat-to-seat spread, each (C,), dB."""
         return tuple(np.percentile(self.seat_spread_db, PERCENTILES, axis=0))
 
+    def share_below(self, ref=0):
+        """Share of the drawn rooms in which each configuration's seat-to-seat spread is
+        below that of configuration ``ref`` (C,), 0-1.
+
+        The rooms are the same for every configuration, so this is a paired comparison:
+        near 0.5 the two are a tie within what the room file knows, however far apart their
+        nominal scores; near 0 or 1 one is better in almost every room that could be.
+        """
+        return np.mean(self.seat_spread_db < self.seat_spread_db[:, [ref]], axis=0)
+
     def to_dict(self):
         """JSON-ready settings of the ensemble (the per-configuration figures go beside each configuration)."""
         return {"samples": self.n_samples, "seed": self.seed, "method": self.method,

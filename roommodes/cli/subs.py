@@ -58,6 +58,15 @@ def _count(n):
     return f"{n} sub{'s' if n != 1 else ''}"
 
 
+def _paired_text(below, n_ranked):
+    """How often each ranked configuration beats the first in the same drawn rooms."""
+    if n_ranked < 2:
+        return "(one configuration ranked: nothing to compare in the drawn rooms)"
+    parts = [f"#{i + 1} in {100 * below[i]:.0f} %" for i in range(1, n_ranked)]
+    return ("in the same drawn rooms, the seat-to-seat spread is below #1's for " + ", ".join(parts)
+            + " of them (near 50 %: a tie within what the room file knows; the ranking keeps the nominal scores)")
+
+
 def _drawn(drawn, i):
     """A configuration's spread in the drawn rooms, "median (p10-p90)"; "-" for one not drawn."""
     if i >= len(drawn):
@@ -166,9 +175,10 @@ def subs(room_file, method, points_per_octave, plot_path, force, settings_path, 
             d["shared_eq"] = shared.to_dict()
         d["elapsed_s"] = elapsed
         if bands is not None:
-            for entry, p10, p50, p90 in zip([*d["ranked"], d["before"]], *bands.spread_percentiles()):
+            for entry, p10, p50, p90, below in zip([*d["ranked"], d["before"]], *bands.spread_percentiles(),
+                                                   bands.share_below(0)):
                 entry.update(seat_spread_db_p10=float(p10), seat_spread_db_p50=float(p50),
-                             seat_spread_db_p90=float(p90))
+                             seat_spread_db_p90=float(p90), spread_below_first_share=float(below))
             d["uncertainty"] = {**bands.to_dict(), "elapsed_s": ens_elapsed}
         dump_json(d)
         for c in CAUTIONS:
@@ -313,6 +323,7 @@ def _print(room, res, elapsed, bands=None):
         click.echo(f"  (drawn rooms: the ranked settings and the file's own tried in {bands.n_samples} rooms drawn from the "
                    f"room file's [uncertainty], the same rooms for each, seed {bands.seed}; {uncertainty_text(room)}; "
                    "the settings stay those found in the nominal room)")
+        click.echo("  " + _paired_text(bands.share_below(0), len(res.ranked)))
     if lay.subs:
         sy = room.system
         xo = (f"the [system] crossover at {sy.crossover_hz:g} Hz" if sy is not None and sy.crossover_hz else

@@ -245,3 +245,21 @@ def test_floor_map_spread_is_larger_at_the_axial_node_than_at_its_antinode():
     assert np.all(b.spread_db[beside_node, j] > 3.0 * b.spread_db[antinode, j])
     ok = np.isfinite(b.level_db_p50)
     assert np.all(b.level_db_p10[ok] <= b.level_db_p50[ok]) and np.all(b.level_db_p50[ok] <= b.level_db_p90[ok])
+
+
+def test_subs_share_below_is_a_paired_comparison():
+    # the same drawn rooms for every configuration: a configuration 0.1 dB better in every room
+    # beats the first in all of them even when the rooms' own spread (1 dB) swamps the gap, and
+    # an independent one of the same distribution wins about half the time
+    # (common practice: paired comparison under common random numbers)
+    from roommodes.analysis.uncertainty import SubsBands
+
+    rng = np.random.default_rng(3)
+    room_effect = rng.normal(5.0, 1.0, 400)
+    spread = np.column_stack([room_effect, room_effect - 0.1, rng.normal(5.0, 1.0, 400)])
+    b = SubsBands(np.array([50.0]), ("a", "b", "c"), np.zeros((400, 3, 1, 1)), spread, (30.0, 120.0), 1, "modal",
+                  None)
+    share = b.share_below(0)
+    assert share[0] == 0.0
+    assert share[1] == 1.0
+    assert 0.4 < share[2] < 0.6

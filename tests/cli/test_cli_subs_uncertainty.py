@@ -45,6 +45,11 @@ def test_json_spread_keys_ordered_reproducible_and_absent_without_the_option(sma
         assert entry["seat_spread_db"] == pytest.approx(before["seat_spread_db"])
         assert entry["subs"] == before["subs"]
     assert d["uncertainty"]["samples"] == 10 and d["uncertainty"]["seed"] == 4
+    # the paired share: #1 never below itself; every share a fraction of the 10 rooms
+    assert d["ranked"][0]["spread_below_first_share"] == 0.0
+    for entry in d["ranked"] + [d["before"]]:
+        assert 0.0 <= entry["spread_below_first_share"] <= 1.0
+        assert (entry["spread_below_first_share"] * 10) == pytest.approx(round(entry["spread_below_first_share"] * 10))
     again = _json(small_room, "--uncertainty", "--samples", 10, "--seed", 4)
     assert [[e[k] for k in KEYS] for e in again["ranked"]] == [[e[k] for k in KEYS] for e in d["ranked"]]
 
