@@ -459,19 +459,25 @@ def test_shared_walk_matches_the_per_pair_walk(band_walls):
         assert np.max(np.abs(rem[j] - remj)) < 1e-10 * np.max(np.abs(hj))
 
 
+@pytest.mark.parametrize("band_walls", [False, True])
 @pytest.mark.parametrize("pairs_per_thread", [0, 1 << 40])
-def test_one_and_many_receivers_agree(monkeypatch, pairs_per_thread):
+def test_one_and_many_receivers_agree(monkeypatch, pairs_per_thread, band_walls):
     # A receiver's result must not depend on the other receivers of the call nor on whether
     # the receivers are spread in parallel (0: every block with enough receivers in
     # parallel; 2^40: all on the calling thread). Same images, same taps: equal up to the
     # order of the additions (1e-12 relative here; the issue asks 1e-9), and the same
-    # truncation orders.
+    # truncation orders. Constant walls spread one column per receiver, band walls several
+    # (the two loops of the kernel).
     monkeypatch.setattr(im, "_PAIR_IMAGES_PER_THREAD", pairs_per_thread)
     monkeypatch.setattr(im, "_RECEIVERS_PER_THREAD", 1)
     rng = np.random.default_rng(11)
     rec = 0.3 + rng.random((9, 3)) * (SIZE - 0.6)
     f = log_frequencies(30.0, 150.0, 12)
-    z = impedance_from_absorption(np.full(6, 0.3))
+    if band_walls:
+        alpha = np.clip(MIXED_ALPHA[:, None] * (1 + 0.5 * np.sin(f / 40.0))[None, :], 0.2, 0.9)
+        z = impedance_from_absorption(alpha)
+    else:
+        z = impedance_from_absorption(np.full(6, 0.3))
     h, info = im.image_source_transfer(SIZE, z, [SRC], rec, f, C)
     for j in (0, 4, 8):
         h1, i1 = im.image_source_transfer(SIZE, z, [SRC], rec[j:j + 1], f, C)
