@@ -104,16 +104,17 @@ single receiver uses one core. The spectra of the convergence checks are small p
 run on one BLAS thread.
 
 Measured (tests/bench/bench.py, demo room, alpha 0.3, 30-150 Hz, 5 interleaved rounds, shared
-2-core machine at load 1.0-1.2): a whole call with 100 receivers 12 ns of CPU per image and pair
-(24.1 million images, order 68; 287 ms of CPU, 157 ms wall; the code before the tap table was
-aligned: 18.6 ns, 448 ms and 265 ms in a run at load 0.8-0.9), one receiver 7.2 ms (order 53,
-204,000 images; before: 8.1 ms). 100 receivers cost 42 times one receiver in CPU time (before:
-52) and 23 times in wall time (before: 30). Interleaved in one process (main's code against
-this, 5 rounds) the two came out 16 % faster each, 1 and 100 receivers alike, so the ratio
-moves less than the cost per pair. Only sharing lowers the CPU ratio, and 100 random receivers
-share little: per image and pair the spreading alone costs about 12 ns on one thread
-(tests/bench/bench_image_kernel.py): about 4.4 ns for the distance, its square root,
-``1 / R`` and the sample index, and the rest for the 16 taps and their adds. The tap table
+2-core machine at load 0.5-1.2, two runs each): a whole call with 100 receivers 12-13 ns of CPU
+per image and pair (24.1 million images, order 68; 287-305 ms of CPU, 157-169 ms wall; the code
+before the tap table was aligned: 18.3-18.6 ns, 441-448 ms and 257-265 ms), one receiver
+7.0-7.2 ms (order 53, 204,000 images; before: 8.1-8.5 ms). 100 receivers cost 42-43 times one
+receiver in CPU time (before: 50-52) and 23-24 times in wall time (before: 27-30). Interleaved
+in one process (the previous code against this, 5 rounds) both calls came out 16 % faster, 1 and
+100 receivers alike, so there the ratio did not move (24.4 and 25.0 in wall time): the lower
+ratios of the separate runs above are partly their noise. Only sharing lowers the CPU ratio,
+and 100 random receivers share little: per image and pair the spreading alone costs about
+12 ns on one thread (tests/bench/bench_image_kernel.py): about 4.4 ns for the distance, its
+square root, ``1 / R`` and the sample index, and the rest for the 16 taps and their adds. The tap table
 must start on a cache line (:func:`_aligned_copy`): 16 bytes off, every vector load of
 coefficients spans two lines and the spreading took 1.17 times as long (NumPy's placement
 differs between processes, so the old cost did too). With every image's taps from one bin
