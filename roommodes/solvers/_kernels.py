@@ -265,62 +265,83 @@ def lattice_images(axis_pos, axis_amp, n_first, n_last, pos, amp):
     return i
 
 
+@njit(cache=True, fastmath={"contract"})
+def _spread_column(pos, amp, i_first, i_last, rx, ry, rz, samples_per_m, coef, offset, out):
+    """:func:`_spread_one` for one column (the common case): a contiguous run of taps per image.
+
+    A function of its own: inside one function with the K-column loop, this loop measured
+    about 8 % slower per image (fewer values kept in registers). Only fused multiply-adds
+    are allowed (``contract``): with free reassociation the compiler multiplied every tap
+    by ``A`` and by ``1 / R`` separately (2 % slower)."""
+    n_bins = coef.shape[0] // (TAPS * TAP_POWERS)
+    k_min = 1 - TAPS // 2
+    i_top = -1
+    flat = out.reshape(out.size)
+    for i in range(i_first, i_last):
+        dx = pos[i, 0] - rx
+        dy = pos[i, 1] - ry
+        dz = pos[i, 2] - rz
+        r = np.sqrt(dx * dx + dy * dy + dz * dz)
+        u = r * samples_per_m
+        i0 = int(u)
+        delta = u - i0
+        b = int(delta * n_bins)  # delta < 1, so b < n_bins
+        e = delta - (b + 0.5) / n_bins
+        c = coef[b * TAPS * TAP_POWERS:(b + 1) * TAPS * TAP_POWERS]
+        s = amp[i, 0] / r
+        o = flat[offset + i0 + k_min:offset + i0 + k_min + TAPS]
+        for j in range(TAPS):
+            # tap j: its degree-5 polynomial in e (Horner)
+            o[j] += s * (c[j] + e * (c[TAPS + j] + e * (c[2 * TAPS + j] + e * (
+                c[3 * TAPS + j] + e * (c[4 * TAPS + j] + e * c[5 * TAPS + j])))))
+        i_top = max(i_top, i0)
+    return offset + i_top + k_min + TAPS - 1 if i_top >= 0 else 0
+
+
 @njit(cache=True, fastmath=True)
-def _spread_one(pos, amp, i_first, i_last, rx, ry, rz, samples_per_m, coef, offset, out):
-    """Spread the images ``i_first..i_last - 1`` of ``pos``, ``amp`` onto ``out`` (Ns, K) of the
-    receiver at ``(rx, ry, rz)``; returns the largest row written (see
-    :func:`spread_images_many`). Each tap is computed and added in one pass (no temporary
-    array of taps: a store and reload per image cost as much as the arithmetic).
-    ``fastmath`` only lets the compiler reorder and fuse the tap arithmetic (rounding)."""
+def _spread_columns(pos, amp, i_first, i_last, rx, ry, rz, samples_per_m, coef, offset, out):
+    """:func:`_spread_one` for K > 1 columns: the taps of an image once, then added to every
+    column (K innermost). ``fastmath`` only lets the compiler reorder and fuse the tap
+    arithmetic (rounding)."""
     n_k = out.shape[1]
     n_bins = coef.shape[0] // (TAPS * TAP_POWERS)
     k_min = 1 - TAPS // 2
     i_top = -1
-    if n_k == 1:  # one column (the common case): a contiguous run of taps per image
-        flat = out.reshape(out.size)
-        for i in range(i_first, i_last):
-            dx = pos[i, 0] - rx
-            dy = pos[i, 1] - ry
-            dz = pos[i, 2] - rz
-            r = np.sqrt(dx * dx + dy * dy + dz * dz)
-            u = r * samples_per_m
-            i0 = int(u)
-            delta = u - i0
-            b = int(delta * n_bins)  # delta < 1, so b < n_bins
-            e = delta - (b + 0.5) / n_bins
-            c = coef[b * TAPS * TAP_POWERS:(b + 1) * TAPS * TAP_POWERS]
-            s = amp[i, 0] / r
-            o = flat[offset + i0 + k_min:offset + i0 + k_min + TAPS]
-            for j in range(TAPS):
-                # tap j: its degree-5 polynomial in e (Horner)
-                o[j] += s * (c[j] + e * (c[TAPS + j] + e * (c[2 * TAPS + j] + e * (
-                    c[3 * TAPS + j] + e * (c[4 * TAPS + j] + e * c[5 * TAPS + j])))))
-            i_top = max(i_top, i0)
-    else:
-        w = np.empty(TAPS)
-        for i in range(i_first, i_last):
-            dx = pos[i, 0] - rx
-            dy = pos[i, 1] - ry
-            dz = pos[i, 2] - rz
-            r = np.sqrt(dx * dx + dy * dy + dz * dz)
-            u = r * samples_per_m
-            i0 = int(u)
-            delta = u - i0
-            b = int(delta * n_bins)
-            e = delta - (b + 0.5) / n_bins
-            c = coef[b * TAPS * TAP_POWERS:(b + 1) * TAPS * TAP_POWERS]
-            s = 1.0 / r
-            for j in range(TAPS):
-                w[j] = s * (c[j] + e * (c[TAPS + j] + e * (c[2 * TAPS + j] + e * (
-                    c[3 * TAPS + j] + e * (c[4 * TAPS + j] + e * c[5 * TAPS + j])))))
-            base = offset + i0 + k_min
-            for j in range(TAPS):
-                row = out[base + j]
-                wj = w[j]
-                for kk in range(n_k):
-                    row[kk] += amp[i, kk] * wj
-            i_top = max(i_top, i0)
+    w = np.empty(TAPS)
+    for i in range(i_first, i_last):
+        dx = pos[i, 0] - rx
+        dy = pos[i, 1] - ry
+        dz = pos[i, 2] - rz
+        r = np.sqrt(dx * dx + dy * dy + dz * dz)
+        u = r * samples_per_m
+        i0 = int(u)
+        delta = u - i0
+        b = int(delta * n_bins)
+        e = delta - (b + 0.5) / n_bins
+        c = coef[b * TAPS * TAP_POWERS:(b + 1) * TAPS * TAP_POWERS]
+        s = 1.0 / r
+        for j in range(TAPS):
+            w[j] = s * (c[j] + e * (c[TAPS + j] + e * (c[2 * TAPS + j] + e * (
+                c[3 * TAPS + j] + e * (c[4 * TAPS + j] + e * c[5 * TAPS + j])))))
+        base = offset + i0 + k_min
+        for j in range(TAPS):
+            row = out[base + j]
+            wj = w[j]
+            for kk in range(n_k):
+                row[kk] += amp[i, kk] * wj
+        i_top = max(i_top, i0)
     return offset + i_top + k_min + TAPS - 1 if i_top >= 0 else 0
+
+
+@njit(cache=True)
+def _spread_one(pos, amp, i_first, i_last, rx, ry, rz, samples_per_m, coef, offset, out):
+    """Spread the images ``i_first..i_last - 1`` of ``pos``, ``amp`` onto ``out`` (Ns, K) of the
+    receiver at ``(rx, ry, rz)``; returns the largest row written (see
+    :func:`spread_images_many`). Each tap is computed and added in one pass (no temporary
+    array of taps: a store and reload per image cost as much as the arithmetic)."""
+    if out.shape[1] == 1:
+        return _spread_column(pos, amp, i_first, i_last, rx, ry, rz, samples_per_m, coef, offset, out)
+    return _spread_columns(pos, amp, i_first, i_last, rx, ry, rz, samples_per_m, coef, offset, out)
 
 
 @njit(cache=True)

@@ -103,21 +103,32 @@ slower on the shared 2-core machine (2.3 times the wall time of one thread at lo
 single receiver uses one core. The spectra of the convergence checks are small products and
 run on one BLAS thread.
 
-Measured (tests/bench/bench.py, demo room, alpha 0.3, 30-150 Hz, 3 interleaved rounds, shared
-2-core machine at load 3-4.5): the spreading alone about 13 ns of CPU per image and pair; a
-whole call with 100 receivers 16-17 ns of CPU per image and pair (24.1 million images, order
-68; before: 52-53 ns), one receiver 7 ms (order 53, 204,000 images; before: 12.4 ms of CPU, 25 ms
-of wall time). 100 receivers cost 53-55 times one receiver in CPU time (before: 99-103) and
-27-41 times in wall time, depending on whether the second core was free (before: 78-93). Only
-sharing lowers the CPU ratio, and 100 random receivers share little: per image and pair the
-distance, its square root and reciprocal, the tap polynomials and the scatter into the
-receiver's response remain, about 13 ns, against about 4 ns of shared listing per image and
-3-4 ms of fixed cost per call. That 13 ns did not drop with 4 taps instead of 16, without
-the scatter, with the distances computed in a separate vectorised pass, or with tap tables
-that fit the L1 cache (each measured in isolation); what bounds it was not pinned down.
-Expansions about a cluster's centre do not pay at this size either: by the usual truncation
-rule of multipole expansions (an estimate, not measured here) a field over the whole room at
-150 Hz needs several hundred coefficients per frequency for 1e-9, more work than 100
+Measured (tests/bench/bench.py, demo room, alpha 0.3, 30-150 Hz, 5 interleaved rounds, shared
+2-core machine at load 0.5-1.2, two runs each): a whole call with 100 receivers 12-13 ns of CPU
+per image and pair (24.1 million images, order 68; 287-305 ms of CPU, 157-169 ms wall; the code
+before the tap table was aligned: 18.3-18.6 ns, 441-448 ms and 257-265 ms), one receiver
+7.0-7.2 ms (order 53, 204,000 images; before: 8.1-8.5 ms). 100 receivers cost 42-43 times one
+receiver in CPU time (before: 50-52) and 23-24 times in wall time (before: 27-30). Interleaved
+in one process (the previous code against this, 5 rounds) both calls came out 16 % faster, 1 and
+100 receivers alike, so there the ratio did not move (24.4 and 25.0 in wall time): the lower
+ratios of the separate runs above are partly their noise. Only sharing lowers the CPU ratio,
+and 100 random receivers share little: per image and pair the spreading alone costs about
+12 ns on one thread (tests/bench/bench_image_kernel.py): about 4.4 ns for the distance, its
+square root, ``1 / R`` and the sample index, and the rest for the 16 taps and their adds. The tap table
+must start on a cache line (:func:`_aligned_copy`): 16 bytes off, every vector load of
+coefficients spans two lines and the spreading took 1.17 times as long (NumPy's placement
+differs between processes, so the old cost did too). With every image's taps from one bin
+(a table in L1; not a valid result, a bound) it takes 0.77 times as long, so no table layout
+can gain more than about a quarter; smaller tables need higher degrees (more arithmetic).
+Measured and not kept (single thread, in isolation): the factorised Gaussian (two scalar
+functions of the fractional delay per image, then the taps as powers times constants: 2 to 3
+times slower in the versions tried, whose powers numba did not vectorise), two-level tables (an
+exponential polynomial per tap from an L1-resident table: within 10 %), the distances of a
+block first in a vectorised pass (5 % slower), 4 taps instead of 16 (no faster: the cost is per
+image, not per tap) and images sorted by bin (8 % faster spreading before the cost of sorting,
+not pursued). Expansions about a cluster's centre do not pay at this size either: by the usual
+truncation rule of multipole expansions (an estimate, not measured here) a field over the whole
+room at 150 Hz needs several hundred coefficients per frequency for 1e-9, more work than 100
 receivers. The impedance model's factors depend on the receiver's angle, so it walks the
 lattice per pair (``spread_shells``, two ``exp`` per image), about 55 ns per image and pair on
 one core. First call: numba compiles the kernel once (about 5-9 s), cached on disk afterwards
@@ -621,8 +632,28 @@ def _tap_tables(tau, n_bins=DELAY_BINS):
     for m in range(TAP_POWERS):
         for p in range(0, (TAP_POWERS - 1 - m) // 2 + 1):
             coef[:, m + 2 * p] += slope**m / math.factorial(m) * (-a) ** p / math.factorial(p)
-    out = np.ascontiguousarray(coef * np.exp(-a * x**2)[:, None, :]).ravel()
+    out = _aligned_copy((coef * np.exp(-a * x**2)[:, None, :]).ravel())
     out.flags.writeable = False
+    return out
+
+
+#: Alignment of the tap tables, bytes (a cache line: each bin's rows then start on one).
+_TABLE_ALIGN = 64
+
+
+def _aligned_copy(values):
+    """A copy of the 1-D float64 ``values`` starting on a :data:`_TABLE_ALIGN`-byte boundary.
+
+    The spreading kernel loads each bin's coefficients as whole vectors; from a table that
+    NumPy happened to place 16 or 32 bytes off a cache line every such load spans two lines,
+    and the kernel measured 13-25 % slower per image (which of the two depended on where the
+    allocator put the table, so on the process).
+    """
+    n = values.size
+    buf = np.empty(n + _TABLE_ALIGN // 8)
+    start = (-buf.ctypes.data % _TABLE_ALIGN) // 8
+    out = buf[start:start + n]
+    out[:] = values
     return out
 
 
