@@ -265,6 +265,22 @@ def lattice_images(axis_pos, axis_amp, n_first, n_last, pos, amp):
     return i
 
 
+@njit(cache=True, inline="always")
+def _delay_of(pos, i, rx, ry, rz, samples_per_m, n_bins):
+    """Distance ``r`` of image ``i`` from the receiver, its whole samples ``i0``, its
+    fractional-delay bin ``b`` and the offset ``e`` from the bin's centre (inlined into the
+    kernels below, under their own fastmath flags)."""
+    dx = pos[i, 0] - rx
+    dy = pos[i, 1] - ry
+    dz = pos[i, 2] - rz
+    r = np.sqrt(dx * dx + dy * dy + dz * dz)
+    u = r * samples_per_m
+    i0 = int(u)
+    delta = u - i0
+    b = int(delta * n_bins)  # delta < 1, so b < n_bins
+    return r, i0, b, delta - (b + 0.5) / n_bins
+
+
 @njit(cache=True, fastmath={"contract"})
 def _spread_column(pos, amp, i_first, i_last, rx, ry, rz, samples_per_m, coef, offset, out):
     """:func:`_spread_one` for one column (the common case): a contiguous run of taps per image.
@@ -278,15 +294,7 @@ def _spread_column(pos, amp, i_first, i_last, rx, ry, rz, samples_per_m, coef, o
     i_top = -1
     flat = out.reshape(out.size)
     for i in range(i_first, i_last):
-        dx = pos[i, 0] - rx
-        dy = pos[i, 1] - ry
-        dz = pos[i, 2] - rz
-        r = np.sqrt(dx * dx + dy * dy + dz * dz)
-        u = r * samples_per_m
-        i0 = int(u)
-        delta = u - i0
-        b = int(delta * n_bins)  # delta < 1, so b < n_bins
-        e = delta - (b + 0.5) / n_bins
+        r, i0, b, e = _delay_of(pos, i, rx, ry, rz, samples_per_m, n_bins)
         c = coef[b * TAPS * TAP_POWERS:(b + 1) * TAPS * TAP_POWERS]
         s = amp[i, 0] / r
         o = flat[offset + i0 + k_min:offset + i0 + k_min + TAPS]
@@ -309,15 +317,7 @@ def _spread_columns(pos, amp, i_first, i_last, rx, ry, rz, samples_per_m, coef, 
     i_top = -1
     w = np.empty(TAPS)
     for i in range(i_first, i_last):
-        dx = pos[i, 0] - rx
-        dy = pos[i, 1] - ry
-        dz = pos[i, 2] - rz
-        r = np.sqrt(dx * dx + dy * dy + dz * dz)
-        u = r * samples_per_m
-        i0 = int(u)
-        delta = u - i0
-        b = int(delta * n_bins)
-        e = delta - (b + 0.5) / n_bins
+        r, i0, b, e = _delay_of(pos, i, rx, ry, rz, samples_per_m, n_bins)
         c = coef[b * TAPS * TAP_POWERS:(b + 1) * TAPS * TAP_POWERS]
         s = 1.0 / r
         for j in range(TAPS):
