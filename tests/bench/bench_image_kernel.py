@@ -26,7 +26,7 @@ from numba import njit
 
 import roommodes
 from roommodes.solvers import images as im
-from roommodes.solvers._kernels import DELAY_BINS, TAP_POWERS, TAPS, lattice_images, spread_images
+from roommodes.solvers._kernels import DELAY_BINS, TAP_POWERS, TAPS, _delay_of, lattice_images, spread_images
 
 
 @njit(cache=True, fastmath={"contract"})
@@ -35,15 +35,7 @@ def _one_bin(pos, amp, rx, ry, rz, samples_per_m, coef, offset, out):
     c = coef[:TAPS * TAP_POWERS]
     k_min = 1 - TAPS // 2
     for i in range(pos.shape[0]):
-        dx = pos[i, 0] - rx
-        dy = pos[i, 1] - ry
-        dz = pos[i, 2] - rz
-        r = np.sqrt(dx * dx + dy * dy + dz * dz)
-        u = r * samples_per_m
-        i0 = int(u)
-        delta = u - i0
-        b = int(delta * DELAY_BINS)
-        e = delta - (b + 0.5) / DELAY_BINS
+        r, i0, _, e = _delay_of(pos, i, rx, ry, rz, samples_per_m, DELAY_BINS)
         s = amp[i, 0] / r
         o = flat[offset + i0 + k_min:offset + i0 + k_min + TAPS]
         for j in range(TAPS):
