@@ -1,5 +1,6 @@
 """Benchmark of the commands people wait for, against a baseline tree, in one run.
-Prints figures; asserts nothing.
+Prints figures; asserts nothing (no check values from an outside source: the reference is the
+baseline tree, run in the same rounds).
 
     git worktree add /tmp/roommodes-base COMMIT     # the code to compare with, outside this tree
     python tests/bench/bench_commands.py --baseline /tmp/roommodes-base [--rounds 3]
