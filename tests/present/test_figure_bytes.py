@@ -10,11 +10,8 @@ import io
 import xml.etree.ElementTree as ET
 
 import numpy as np
-import pytest
 
 from roommodes.present.plots import figure_bytes, new_figure
-
-pytest.importorskip("matplotlib")
 
 
 def _figure():
