@@ -413,8 +413,9 @@ def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=None, chan
         raise ValueError(f"step {step * 100:g} cm gives {nx} x {ny} = {nx * ny} points over the {lx:g} x {ly:g} m floor; "
                          f"a map computes at most {MAP_MAX_POINTS} points: use a step of at least "
                          f"{math.ceil(least * 100)} cm")
-    x = (np.arange(nx) + 0.5) * lx / nx
-    y = (np.arange(ny) + 0.5) * ly / ny
+    # cell centres rounded to 1 micrometre, so JSON carries 3.075 rather than 3.0749999999999997
+    x = np.round((np.arange(nx) + 0.5) * lx / nx, 6)
+    y = np.round((np.arange(ny) + 0.5) * ly / ny, 6)
     xx, yy = np.meshgrid(x, y, indexing="ij")
     pts = np.stack([xx.ravel(), yy.ravel(), np.full(xx.size, h_m)], axis=1)
     src = np.array([s.position_m for s in speakers], dtype=float)
