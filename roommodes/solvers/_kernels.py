@@ -17,6 +17,8 @@ spread for each receiver (:func:`spread_images` on one thread, :func:`spread_ima
 one or more) with each tap a degree-5 polynomial from tables, computed and added in one pass:
 no transcendental call and no temporary array per image.
 
+:func:`windowed_max` is the sliding maximum of the truncation estimate.
+
 References
 ----------
 .. [1] J. B. Allen, D. A. Berkley, "Image method for efficiently simulating
@@ -30,7 +32,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit, prange
 
-__all__ = ["lattice_images", "spread_images", "spread_images_many", "spread_shells"]
+__all__ = ["lattice_images", "spread_images", "spread_images_many", "spread_shells", "windowed_max"]
 
 
 @njit(cache=True)
@@ -400,3 +402,19 @@ def spread_images_many(pos, amp, receivers, rows, samples_per_m, coef, offset, i
         top = _spread_one(pos, amp, 0, pos.shape[0], receivers[a, 0], receivers[a, 1], receivers[a, 2],
                           samples_per_m, coef, offset, ir[row])
         last[row] = max(last[row], top)
+
+
+@njit(cache=True)
+def windowed_max(values, lo, hi, out):
+    """``out[r, i] = max(values[r, lo[i]:hi[i]])`` (every window non-empty).
+
+    The envelope of the truncation estimate (``images._envelope``): a few dozen to a few
+    hundred frequencies, windows of a few to a few dozen, so a plain loop beats any
+    sparse table built in NumPy calls.
+    """
+    for r in range(values.shape[0]):
+        for i in range(lo.size):
+            best = values[r, lo[i]]
+            for j in range(lo[i] + 1, hi[i]):
+                best = max(best, values[r, j])
+            out[r, i] = best

@@ -547,6 +547,18 @@ def test_aligned_copy_is_an_aligned_equal_copy():
         assert a.ctypes.data % 64 == 0 and np.array_equal(a, v) and not np.shares_memory(a, v)
 
 
+def test_spectrum_table_is_the_plain_exponential():
+    # the two-factor table e^{-j w 32 a} e^{-j w b} against e^{-j w m} computed directly, within
+    # a few units of the rounding of the largest argument w m (either way carries that much)
+    f = np.geomspace(20.0, 300.0, 41)
+    spectrum = im._Spectrum(f, 2400.0, im._gaussian(), offset=im._WIDTH, speed_of_sound=C)
+    direct = np.exp(-1j * np.outer(np.arange(spectrum.block), spectrum.omega))
+    ulp = np.spacing(spectrum.omega.max() * spectrum.block)
+    assert np.max(np.abs(spectrum.base_re + 1j * spectrum.base_im - direct)) < 4 * ulp
+    with pytest.raises(ValueError, match="multiple of 32"):
+        im._Spectrum(f, 2400.0, im._gaussian(), offset=im._WIDTH, speed_of_sound=C, block=1000)
+
+
 def test_envelope_is_the_windowed_maximum():
     # the vectorised sliding maximum against a plain loop over frequencies (definition)
     rng = np.random.default_rng(4)
@@ -556,3 +568,7 @@ def test_envelope_is_the_windowed_maximum():
         env = im._envelope(v, f, half)
         ref = np.array([[np.abs(row[np.abs(f - fi) <= half]).max() for fi in f] for row in v])
         assert np.array_equal(env, ref)
+    # unsorted frequencies and a single row
+    shuffle = rng.permutation(f.size)
+    env = im._envelope(v[0, shuffle], f[shuffle], 17.0)
+    assert np.array_equal(env, im._envelope(v[0], f, 17.0)[shuffle])
