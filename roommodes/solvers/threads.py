@@ -41,6 +41,17 @@ The same test decides whether the modal solver's compiled loops run on all cores
 otherwise hold the cores the next BLAS product wants (under load 5, with the modal solver's
 loops then on all cores, its 2,000-source call took 1.75 times the plain product with
 spinning workers and 1.19 with passive ones).
+
+The reverse holds too: OpenBLAS's own workers spin for about 2^28 clock ticks (~0.1 s; the
+library's default, recalled from its build notes) after every product and take the cores
+from the numba loops that follow. ``import roommodes`` sets ``OPENBLAS_THREAD_TIMEOUT=22``
+(2^22 ticks, ~1.4 ms) unless the environment sets it; OpenBLAS reads it when numpy first
+loads, so a program that imports numpy before roommodes keeps the default (set the
+variable in its environment instead). Measured on the idle 2-core machine
+(tests/bench/bench.py, 5 interleaved rounds, default against 22): the image solver with
+100 receivers 251 ms -> 162 ms wall, 406 -> 293 ms CPU; right after a GEMM alone, 205 ->
+150 ms (values 4 and 18 gave the same); the modal 2,000-source call 1.00 -> 0.97 times the
+plain product, the placement search 13,771 -> 13,810 layouts/s (unchanged).
 """
 
 from __future__ import annotations

@@ -42,7 +42,11 @@ import time
 import tracemalloc
 from unittest import mock
 
-import numpy as np
+# what `import roommodes` sets before numpy loads, as the command line gets it (numpy is
+# imported first here; roommodes.solvers.threads)
+os.environ.setdefault("OPENBLAS_THREAD_TIMEOUT", "22")
+
+import numpy as np  # noqa: E402
 from baseline import exact as old_exact
 from baseline import images as old_images
 from baseline import modal as old_modal

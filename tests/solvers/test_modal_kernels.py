@@ -249,3 +249,20 @@ def test_single_precision_bound_holds_with_receivers_as_rows_and_small_blocks(mo
     # the bound modal_transfer states for single precision
     assert np.max(np.abs(20 * np.log10(np.abs(hs) / np.abs(hd)))) <= 5e-4
     assert np.any(hs != hd)
+
+
+@pytest.mark.parametrize("preset,expected", [(None, "22"), ("10", "10")])
+def test_import_quietens_idle_blas_workers_unless_the_environment_says(preset, expected):
+    # `import roommodes` before numpy sets OPENBLAS_THREAD_TIMEOUT (roommodes.solvers.threads,
+    # measured there) and leaves a value the user set alone; a fresh interpreter, since this one
+    # loaded numpy long ago
+    import os
+    import subprocess
+    import sys
+
+    env = {k: v for k, v in os.environ.items() if k != "OPENBLAS_THREAD_TIMEOUT"}
+    if preset is not None:
+        env["OPENBLAS_THREAD_TIMEOUT"] = preset
+    code = "import os, roommodes, numpy; print(os.environ['OPENBLAS_THREAD_TIMEOUT'])"
+    out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == expected
