@@ -111,15 +111,15 @@ slower on the shared 2-core machine (2.3 times the wall time of one thread at lo
 single receiver uses one core. The spectra of the convergence checks are small products and
 run on one BLAS thread.
 
-Measured (tests/bench/bench.py, demo room, alpha 0.3, 30-150 Hz, 5 interleaved rounds, shared
-2-core machine at load 0.5-1.2, two runs each): a whole call with 100 receivers 12-13 ns of CPU
-per image and pair (24.1 million images, order 68; 287-305 ms of CPU, 157-169 ms wall; the code
-before the tap table was aligned: 18.3-18.6 ns, 441-448 ms and 257-265 ms), one receiver
-7.0-7.2 ms (order 53, 204,000 images; before: 8.1-8.5 ms). 100 receivers cost 42-43 times one
-receiver in CPU time (before: 50-52) and 23-24 times in wall time (before: 27-30). Interleaved
-in one process (the previous code against this, 5 rounds) both calls came out 16 % faster, 1 and
-100 receivers alike, so there the ratio did not move (24.4 and 25.0 in wall time): the lower
-ratios of the separate runs above are partly their noise. Only sharing lowers the CPU ratio,
+Measured (tests/bench/bench.py, demo room, alpha 0.3, 30-150 Hz, 5 interleaved rounds, idle
+2-core machine): a whole call with 100 receivers 12.2 ns of CPU per image and pair (24.1
+million images, order 68; 293 ms of CPU, 162 ms wall), one receiver 5.8 ms (order 53, 204,000
+images; 7.0-7.4 ms before the truncation estimate's envelope and the spectrum's table were
+made cheaper, 8.1-8.5 ms before the tap table was aligned). 100 receivers cost 50 times one
+receiver in CPU time and 28 in wall time: the cheaper single call raised both ratios from 42-43
+and 23-24, while the 100-receiver call itself stayed as fast. The wall time of the
+100-receiver call depends on the BLAS's idle workers: spinning for their default ~0.1 s after
+each product they took 251 ms (:mod:`roommodes.solvers.threads`). Only sharing lowers the CPU ratio,
 and 100 random receivers share little: per image and pair the spreading alone costs about
 12 ns on one thread (tests/bench/bench_image_kernel.py): about 4.4 ns for the distance, its
 square root, ``1 / R`` and the sample index, and the rest for the 16 taps and their adds. The tap table
@@ -134,7 +134,11 @@ times slower in the versions tried, whose powers numba did not vectorise), two-l
 exponential polynomial per tap from an L1-resident table: within 10 %), the distances of a
 block first in a vectorised pass (5 % slower), 4 taps instead of 16 (no faster: the cost is per
 image, not per tap) and images sorted by bin (8 % faster spreading before the cost of sorting,
-not pursued). Expansions about a cluster's centre do not pay at this size either: by the usual
+not pursued). Also measured (/tmp experiments, one thread, order 60): 8 taps (the compiler left
+the 8-wide loop scalar: 2.2 times slower), two or four interleaved runs of images (no change,
+so the loop is not held up by one image's taps waiting for the previous one's stores), and the
+tap polynomials in float32 (0.84 of the time, about 1e-7 error per image; not built, as it
+needs a precision bound and tests of its own). Expansions about a cluster's centre do not pay at this size either: by the usual
 truncation rule of multipole expansions (an estimate, not measured here) a field over the whole
 room at 150 Hz needs several hundred coefficients per frequency for 1e-9, more work than 100
 receivers. The impedance model's factors depend on the receiver's angle, so it walks the
