@@ -134,7 +134,7 @@ times slower in the versions tried, whose powers numba did not vectorise), two-l
 exponential polynomial per tap from an L1-resident table: within 10 %), the distances of a
 block first in a vectorised pass (5 % slower), 4 taps instead of 16 (no faster: the cost is per
 image, not per tap) and images sorted by bin (8 % faster spreading before the cost of sorting,
-not pursued). Also measured (/tmp experiments, one thread, order 60): 8 taps (the compiler left
+not pursued). Also measured (one thread, order 60, scripts not kept): 8 taps (the compiler left
 the 8-wide loop scalar: 2.2 times slower), two or four interleaved runs of images (no change,
 so the loop is not held up by one image's taps waiting for the previous one's stores), and the
 tap polynomials in float32 (0.84 of the time, about 1e-7 error per image; not built, as it
