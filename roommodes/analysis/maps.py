@@ -469,8 +469,9 @@ def floor_level_map(room, freq_hz, layout=None, height_m=None, step_m=None, chan
 #: 5 cm map, docs/uncertainty.md); 200 leave about 20 rooms beyond each of the 10 % and 90 %
 #: points, as :data:`~roommodes.analysis.uncertainty.SUBS_SAMPLES` does.
 MAP_SAMPLES = 200
-#: A cell whose 10-90 % spread exceeds this is marked unsure on the plot, dB (our choice: its
-#: level is then not known to within +-3 dB, the contour step of the map).
+#: A cell whose 10-90 % spread relative to the floor's median exceeds this is marked unsure on
+#: the plot, dB (our choice: its level against the rest of the floor is then not known to
+#: within +-3 dB, the contour step of the map).
 MAP_UNSURE_DB = 6.0
 #: Most levels (drawn rooms x grid cells) the bands hold at once: 40 million, 160 MB as 32-bit
 #: floats (the demo room's 5 cm map at 800 rooms holds 5 million).
@@ -497,6 +498,13 @@ class FloorMapBands:
         Step of the solved grid in each drawn room (None: every cell solved).
     elapsed_s : float
         CPU time of the drawn rooms, s.
+    pattern_spread_db : ndarray (X, Y)
+        10-90 % width of each cell's level relative to the median level of the floor in the
+        same drawn room, dB: how sure the *pattern* is (where the loud and quiet spots lie),
+        with the shift of the whole floor taken out. Cells above :data:`MAP_UNSURE_DB` are
+        marked unsure.
+    floor_median_db : ndarray (N,)
+        Median level over the floor in each drawn room, dB.
     """
 
     level_db_p10: np.ndarray
@@ -508,6 +516,8 @@ class FloorMapBands:
     uncertainty: object
     solve_step_m: float | None
     elapsed_s: float
+    pattern_spread_db: np.ndarray
+    floor_median_db: np.ndarray
 
     @property
     def n_samples(self):
@@ -519,13 +529,26 @@ class FloorMapBands:
         """Width of each cell's 10-90 % band (X, Y), dB."""
         return self.level_db_p90 - self.level_db_p10
 
+    @property
+    def floor_shift_db(self):
+        """10th and 90th percentile of the floor's median level over the drawn rooms, dB: how
+        far the whole floor moves together."""
+        return tuple(float(v) for v in np.percentile(self.floor_median_db, [10.0, 90.0]))
+
+    @property
+    def unsure(self):
+        """Cells whose pattern spread exceeds :data:`MAP_UNSURE_DB` (X, Y), bool."""
+        return np.nan_to_num(self.pattern_spread_db, nan=0.0) > MAP_UNSURE_DB
+
     def to_dict(self):
         """JSON-ready values: ``level_db_p10/p50/p90`` on the map's grid and the ensemble's settings."""
         return {"level_db_p10": self.level_db_p10, "level_db_p50": self.level_db_p50,
-                "level_db_p90": self.level_db_p90,
+                "level_db_p90": self.level_db_p90, "pattern_spread_db": self.pattern_spread_db,
                 "uncertainty": {"samples": self.n_samples, "seed": self.seed, "method": self.method,
                                 "uncertainty": self.uncertainty.to_dict(), "solve_step_m": self.solve_step_m,
                                 "unsure_spread_db": MAP_UNSURE_DB,
+                                "floor_median_db_p10": self.floor_shift_db[0],
+                                "floor_median_db_p90": self.floor_shift_db[1],
                                 "quietest_m": self.quietest_m}}
 
 
@@ -613,15 +636,28 @@ def floor_map_bands(room, floor_map, layout=None, *, n_samples=MAP_SAMPLES, seed
         k = int(np.nanargmin(lv))
         quietest[i] = m.x_m[k // ny], m.y_m[k % ny]
     elapsed = process_time() - t0
-    holes = np.isnan(levels)
-    pct = np.full((len(PERCENTILES), nx * ny), np.nan)
+    p10, p50, p90 = (v.reshape(nx, ny) for v in _cell_percentiles(levels, PERCENTILES))
+    # each cell against its own drawn room's floor median: the pattern over the floor, without
+    # the shift of the whole floor (at a mode's own frequency the absorption moves the
+    # resonance's height everywhere alike)
+    floor_median = np.nanmedian(levels, axis=1)
+    r10, r90 = _cell_percentiles(levels - floor_median[:, None].astype(np.float32), (10.0, 90.0))
+    return FloorMapBands(p10, p50, p90, quietest, seed, m.method, u, solve_step_m, float(elapsed),
+                         (r90 - r10).reshape(nx, ny), floor_median)
+
+
+def _cell_percentiles(values, percentiles):
+    """Percentiles over drawn rooms (axis 0) of each cell; NaN where half the rooms or more
+    have none (a drawn speaker within the clearance), the rest over the rooms that have one."""
+    n = values.shape[0]
+    holes = np.isnan(values)
+    pct = np.full((len(percentiles), values.shape[1]), np.nan)
     clean = ~holes.any(axis=0)
-    pct[:, clean] = np.percentile(levels[:, clean], PERCENTILES, axis=0)
+    pct[:, clean] = np.percentile(values[:, clean], percentiles, axis=0)
     some = ~clean & (holes.sum(axis=0) < n / 2)
     if some.any():
-        pct[:, some] = np.nanpercentile(levels[:, some], PERCENTILES, axis=0)
-    p10, p50, p90 = (v.reshape(nx, ny) for v in pct)
-    return FloorMapBands(p10, p50, p90, quietest, seed, m.method, u, solve_step_m, float(elapsed))
+        pct[:, some] = np.nanpercentile(values[:, some], percentiles, axis=0)
+    return pct
 
 
 def coupling_ranges(room, coupling, layout=None, *, n_samples=MAP_SAMPLES, seed=None, uncertainty=None):

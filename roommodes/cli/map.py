@@ -75,13 +75,16 @@ def _ascii_map(fm, width=36):
 
 def _echo_bands(fm, bands, room, units):
     """How sure the map is: the spread over the floor, at the seat and where the quietest spot lands."""
-    sp = bands.spread_db
-    ok = np.isfinite(sp)
+    sp, pattern = bands.spread_db, bands.pattern_spread_db
+    ok = np.isfinite(sp) & np.isfinite(pattern)
+    lo, hi = bands.floor_shift_db
     click.echo("")
     click.echo(f"How sure: {bands.n_samples} rooms drawn (seed {bands.seed}); {uncertainty_text(room)}.")
-    click.echo(f"  10-90 % spread of the level over the floor: median {np.median(sp[ok]):.1f} dB, "
-               f"largest {np.max(sp[ok]):.1f} dB; {100 * np.mean(sp[ok] > MAP_UNSURE_DB):.0f} % of the floor "
-               f"spreads more than {MAP_UNSURE_DB:g} dB (unsure there)")
+    click.echo(f"  the whole floor moves together by {lo:+.1f} to {hi:+.1f} dB (10-90 % of its median level); "
+               f"each cell's own 10-90 % spread: median {np.median(sp[ok]):.1f} dB")
+    click.echo(f"  against the floor's median (the pattern): median {np.median(pattern[ok]):.1f} dB, largest "
+               f"{np.max(pattern[ok]):.1f} dB; {100 * np.mean(pattern[ok] > MAP_UNSURE_DB):.0f} % of the floor "
+               f"spreads more than {MAP_UNSURE_DB:g} dB (where loud and quiet spots lie is unsure there)")
     if fm.seat_m is not None:
         ix = int(np.argmin(np.abs(fm.x_m - fm.seat_m[0])))
         iy = int(np.argmin(np.abs(fm.y_m - fm.seat_m[1])))
@@ -135,9 +138,10 @@ def map_(room_file, freq_hz, height, channels, layout, step, units, method, plot
     loudest); --plot draws it with the speakers, the seat and the nearest mode's nodal lines.
 
     With --uncertainty, the map is computed again in rooms drawn from the room file's
-    [uncertainty] table: the 10th, 50th and 90th percentile of every cell's level, how much
-    of the floor is unsure (10-90 % spread over 6 dB) and where the quietest spot lands;
-    --plot adds a panel of the spread (docs/uncertainty.md).
+    [uncertainty] table: the 10th, 50th and 90th percentile of every cell's level, how far
+    the whole floor moves together, how much of the floor's pattern is unsure (10-90 %
+    spread against the floor's median over 6 dB) and where the quietest spot lands; --plot
+    adds a panel of that spread (docs/uncertainty.md).
     """
 
     freq_hz = check_number("--freq", freq_hz, 5.0, 1000.0, unit=" Hz")

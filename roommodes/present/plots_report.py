@@ -336,19 +336,20 @@ def _cell_edges(m, room):
 
 
 def _spread_panel(fig, ax, m, bands, room, units):
-    """The 10-90 % spread of each cell over the drawn rooms; hatched beyond ``MAP_UNSURE_DB``."""
+    """Each cell's 10-90 % spread over the drawn rooms, relative to the floor's median level in
+    each; hatched beyond ``MAP_UNSURE_DB``."""
     from ..analysis.maps import MAP_UNSURE_DB
 
     xe, ye = _cell_edges(m, room)
-    sp = bands.spread_db
+    sp = bands.pattern_spread_db
     top = max(2.0 * MAP_UNSURE_DB, float(np.nanpercentile(sp, 99)) if np.isfinite(sp).any() else 0.0)
     mesh = ax.pcolormesh(ye, xe, sp, cmap="magma_r", vmin=0.0, vmax=top, shading="flat", rasterized=True)
-    if np.nanmax(sp, initial=0.0) > MAP_UNSURE_DB:
+    if bands.unsure.any():
         ax.contourf(m.y_m, m.x_m, np.nan_to_num(sp, nan=0.0), levels=[MAP_UNSURE_DB, np.inf], colors="none",
                     hatches=["///"])
         ax.contour(m.y_m, m.x_m, np.nan_to_num(sp, nan=0.0), levels=[MAP_UNSURE_DB], colors="0.1", linewidths=1.0)
     cb = fig.colorbar(mesh, ax=ax, shrink=0.9)
-    cb.set_label("10-90 % spread of the level (dB)", fontsize=8.5)
+    cb.set_label("10-90 % spread against the floor's median (dB)", fontsize=8.5)
     _plan_frame(ax, m, room, units)
     if m.seat_m is not None:
         ix = int(np.argmin(np.abs(m.x_m - m.seat_m[0])))
@@ -357,12 +358,14 @@ def _spread_panel(fig, ax, m, bands, room, units):
                 label=f"seat: {bands.level_db_p10[ix, iy]:+.1f} to {bands.level_db_p90[ix, iy]:+.1f} dB")
     from matplotlib.patches import Patch
 
+    lo, hi = bands.floor_shift_db
     ax.legend(handles=[Patch(facecolor="white", edgecolor="0.1", hatch="///",
-                             label=f"spread over {MAP_UNSURE_DB:g} dB: level unsure here")]
+                             label=f"spread over {MAP_UNSURE_DB:g} dB: the pattern is unsure here")]
               + ax.get_legend_handles_labels()[0], fontsize=7.5, loc="upper center", bbox_to_anchor=(0.5, -0.09),
               ncol=1, frameon=False)
-    ax.set_title(f"How sure: 10-90 % spread over {bands.n_samples} drawn rooms (seed {bands.seed})\n"
-                 "light: the same in every drawn room; dark: unsure", fontsize=9.5)
+    ax.set_title(f"How sure: 10-90 % spread over {bands.n_samples} drawn rooms (seed {bands.seed}),\n"
+                 f"the whole floor's shift ({hi - lo:.1f} dB) taken out; light: same pattern in every room",
+                 fontsize=9.5)
 
 
 def plot_floor_map(floor_map, room, layout=None, units="cm", title=None, path=None, range_db=30.0, bands=None):
@@ -383,7 +386,8 @@ def plot_floor_map(floor_map, room, layout=None, units="cm", title=None, path=No
     bands : roommodes.analysis.maps.FloorMapBands, optional
         The map over drawn rooms: the level panel then marks the quietest cell of each drawn
         room (where the deepest node lands), and a second panel maps each cell's 10-90 %
-        spread, hatched where it exceeds :data:`~roommodes.analysis.maps.MAP_UNSURE_DB`.
+        spread relative to the floor's median level in each drawn room (the pattern's
+        spread), hatched where it exceeds :data:`~roommodes.analysis.maps.MAP_UNSURE_DB`.
 
     Returns
     -------

@@ -850,18 +850,25 @@ def _maps_held(run):
 def _map_band_caption(mb):
     if mb is None:
         return ""
-    sp = mb.spread_db[np.isfinite(mb.spread_db)]
+    sp = mb.pattern_spread_db[np.isfinite(mb.pattern_spread_db)]
+    lo, hi = mb.floor_shift_db
     return (f" Right: each cell's 10-90 % spread over {mb.n_samples} rooms drawn from the room file's [uncertainty] "
             f"(seed {mb.seed}; each cell solved in every drawn room, the grid kept where it is from the front and "
-            f"left walls), hatched where it exceeds {MAP_UNSURE_DB:g} dB: there the map's level is unsure. "
-            f"Median spread {np.median(sp):.1f} dB, {100 * np.mean(sp > MAP_UNSURE_DB):.0f} % of the floor hatched. "
+            f"left walls), taken against the median level of the floor in the same drawn room: the whole floor moves "
+            f"together by {lo:+.1f} to {hi:+.1f} dB (10-90 %), which says nothing about where to sit, and is taken out. "
+            f"Hatched where the rest exceeds {MAP_UNSURE_DB:g} dB: there the pattern is unsure. "
+            f"Median {np.median(sp):.1f} dB, {100 * np.mean(sp > MAP_UNSURE_DB):.0f} % of the floor hatched. "
             "Crosses on the left: the quietest spot of each drawn room; where they scatter, the node moves.")
 
 
 def _map_band_values(mb):
     sp = mb.spread_db[np.isfinite(mb.spread_db)]
+    pattern = mb.pattern_spread_db[np.isfinite(mb.pattern_spread_db)]
     return {"samples": mb.n_samples, "spread_db_median": float(np.median(sp)), "spread_db_max": float(np.max(sp)),
-            "unsure_share": float(np.mean(sp > MAP_UNSURE_DB))}
+            "pattern_spread_db_median": float(np.median(pattern)),
+            "pattern_spread_db_max": float(np.max(pattern)),
+            "floor_median_db_p10": mb.floor_shift_db[0], "floor_median_db_p90": mb.floor_shift_db[1],
+            "unsure_share": float(np.mean(pattern > MAP_UNSURE_DB))}
 
 
 #: Rooms drawn at most for the layouts the report compares with the file's own (the standard

@@ -247,6 +247,29 @@ def test_floor_map_spread_is_larger_at_the_axial_node_than_at_its_antinode():
     assert np.all(b.level_db_p10[ok] <= b.level_db_p50[ok]) and np.all(b.level_db_p50[ok] <= b.level_db_p90[ok])
 
 
+def test_floor_map_pattern_spread_leaves_out_the_shift_of_a_resonance():
+    # Kuttruff, Room Acoustics (5th ed. 2009), sec. 3.3: driven at its own frequency a mode's
+    # pressure is its shape times an amplitude set by its damping. With only the absorption drawn
+    # (sd 25 %) the shape, fixed by the geometry, stays: the whole floor rises and falls
+    # together by a few dB, each cell's spread is about that shift, and against the floor's
+    # median (the pattern) almost nothing is left away from the node. Checked against the
+    # drawn rooms' own levels: the floor shift is the spread of their floor medians.
+    from roommodes.analysis.maps import floor_level_map, floor_map_bands
+
+    room, f = _axial_box()
+    fm = floor_level_map(room, f, step_m=0.2)
+    b = floor_map_bands(room, fm, n_samples=40, seed=2, uncertainty=Uncertainty(0.0, 0.0, 0.25, 0.0))
+    lo, hi = b.floor_shift_db
+    assert hi - lo > 2.0
+    away = np.abs(fm.x_m[:, None] - 2.4) > 0.5  # cells well off the (1,0,0) node at x = L/2
+    away = away & np.isfinite(b.pattern_spread_db)
+    assert np.median(b.spread_db[away]) > 0.7 * (hi - lo)
+    assert np.median(b.pattern_spread_db[away]) < 0.25 * np.median(b.spread_db[away])
+    assert not b.unsure[away].any()
+    assert b.floor_median_db.shape == (40,)
+    assert np.percentile(b.floor_median_db, [10, 90]) == pytest.approx([lo, hi])
+
+
 def test_subs_share_below_is_a_paired_comparison():
     # the same drawn rooms for every configuration: a configuration 0.1 dB better in every room
     # beats the first in all of them even when the rooms' own spread (1 dB) swamps the gap, and

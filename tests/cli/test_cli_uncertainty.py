@@ -208,9 +208,13 @@ def test_map_uncertainty_json_keys_and_plot(tmp_path):
     assert np.all(p10[ok] <= p50[ok]) and np.all(p50[ok] <= p90[ok])
     assert data["uncertainty"]["samples"] == 6 and data["uncertainty"]["seed"] == 3
     assert len(data["uncertainty"]["quietest_m"]) == 6
+    pattern = np.array(data["pattern_spread_db"], dtype=float)
+    assert pattern.shape == p50.shape and np.all(pattern[ok] >= 0)
+    assert data["uncertainty"]["floor_median_db_p10"] <= data["uncertainty"]["floor_median_db_p90"]
     assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     text = run("map", DEMO, "--freq", 60, "--step", "20cm", "--uncertainty", "--samples", 6, "--seed", 3).stdout
-    assert "10-90 % spread of the level over the floor" in text and "quietest spot of the drawn rooms" in text
+    assert "the whole floor moves together by" in text and "against the floor's median (the pattern)" in text
+    assert "quietest spot of the drawn rooms" in text
     plain = json.loads(run("map", DEMO, "--freq", 60, "--step", "20cm", "--json").stdout)
     assert "level_db_p10" not in plain and "uncertainty" not in plain
 
@@ -243,4 +247,5 @@ def test_map_spread_is_zero_when_the_room_file_states_no_uncertainty(tmp_path):
     nominal = np.array(data["level_db"], dtype=float)
     ok = np.isfinite(nominal)
     assert np.max(p90[ok] - p10[ok]) < 1e-4
+    assert np.nanmax(np.array(data["pattern_spread_db"], dtype=float)) < 1e-4
     np.testing.assert_allclose(p50[ok], nominal[ok], atol=1e-4)

@@ -486,11 +486,14 @@ def test_report_maps_coupling_and_mode_chart_show_the_drawn_rooms(monkeypatch):
     spread_ax = next(ax for ax in fig.axes if ax.get_title().startswith("How sure"))
     shown = np.asarray(spread_ax.collections[0].get_array()).reshape(-1)
     fm = floor_level_map(room, maps[0]["freq_hz"], method="exact", solve_step_m=report.MAP_SOLVE_STEP_M)
-    want = floor_map_bands(room, fm, room.layout, n_samples=n, seed=4).spread_db.reshape(-1)
+    bands = floor_map_bands(room, fm, room.layout, n_samples=n, seed=4)
+    want = bands.pattern_spread_db.reshape(-1)
     ok = np.isfinite(want)
     np.testing.assert_allclose(np.ma.filled(shown, np.nan)[ok], want[ok], atol=1e-4)
+    assert maps[0]["pattern_spread_db_median"] == pytest.approx(float(np.median(want[ok])))
+    assert maps[0]["spread_db_median"] == pytest.approx(float(np.nanmedian(bands.spread_db)))
     caption = next(x.caption for x in rep.figures if "map-" in x.name)
-    assert f"10-90 % spread over {n} rooms drawn" in caption and "hatched where it exceeds 6 dB" in caption
+    assert f"10-90 % spread over {n} rooms drawn" in caption and "Hatched where the rest exceeds 6 dB" in caption
 
     (cfig,) = drawn["plot_mode_coupling"]
     c = mode_coupling(room, room.layout)
