@@ -857,7 +857,8 @@ def _map_band_caption(mb):
             f"left walls), taken against the median level of the floor in the same drawn room: the whole floor moves "
             f"together by {lo:+.1f} to {hi:+.1f} dB (10-90 %), which says nothing about where to sit, and is taken out. "
             f"Hatched where the rest exceeds {MAP_UNSURE_DB:g} dB: there the pattern is unsure. "
-            f"Median {np.median(sp):.1f} dB, {100 * np.mean(sp > MAP_UNSURE_DB):.0f} % of the floor hatched. "
+            f"The rest has a median of {np.median(sp):.1f} dB over the floor; {100 * np.mean(sp > MAP_UNSURE_DB):.0f} % "
+            "of the floor is hatched. "
             "Crosses on the left: the quietest spot of each drawn room; where they scatter, the node moves.")
 
 
