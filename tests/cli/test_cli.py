@@ -131,6 +131,20 @@ def test_installed_console_script_runs_the_demo(tmp_path):
     assert (tmp_path / "d" / "predict-layouts.png").exists()
 
 
+def test_python_dash_m_runs_the_same_command_line(tmp_path):
+    # `python -m roommodes` is the console script by another name: same version line, same one-line
+    # error and exit code 2 for a missing room file
+    import subprocess
+    import sys
+
+    res = subprocess.run([sys.executable, "-m", "roommodes", "--version"], cwd=tmp_path, capture_output=True,
+                         text=True, timeout=120)
+    assert res.returncode == 0 and res.stdout.startswith("roommodes, version")
+    res = subprocess.run([sys.executable, "-m", "roommodes", "predict", "missing.toml"], cwd=tmp_path,
+                         capture_output=True, text=True, timeout=120)
+    assert res.returncode == 2 and res.stderr.count("\n") == 1 and "missing.toml" in res.stderr
+
+
 @pytest.mark.parametrize("units,text", [("cm", "50 cm from the front wall"), ("m", "0.50 m from the front wall"),
                                         ("ft-in", "1 ft 7 3/4 in from the front wall")])
 def test_units_of_printed_distances(units, text):
