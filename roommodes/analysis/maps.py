@@ -641,7 +641,7 @@ def floor_map_bands(room, floor_map, layout=None, *, n_samples=MAP_SAMPLES, seed
     # the shift of the whole floor (at a mode's own frequency the absorption moves the
     # resonance's height everywhere alike)
     floor_median = np.nanmedian(levels, axis=1)
-    r10, r90 = _cell_percentiles(levels - floor_median[:, None].astype(np.float32), (10.0, 90.0))
+    r10, r90 = _cell_percentiles(levels - floor_median[:, None], (10.0, 90.0))
     return FloorMapBands(p10, p50, p90, quietest, seed, m.method, u, solve_step_m, float(elapsed),
                          (r90 - r10).reshape(nx, ny), floor_median)
 
