@@ -58,10 +58,17 @@ def _modules():
 
 
 def test_every_module_sits_in_a_layer_folder():
-    loose = [p.name for p in PACKAGE.glob("*.py") if p.name != "__init__.py"]
+    # __init__.py and the `python -m roommodes` entry point must sit at the top, by Python's rules
+    loose = [p.name for p in PACKAGE.glob("*.py") if p.name not in ("__init__.py", "__main__.py")]
     assert loose == [], f"modules directly in roommodes/ (put them in a layer folder): {loose}"
     folders = {p.name for p in PACKAGE.iterdir() if p.is_dir() and (p / "__init__.py").exists()}
     assert folders - {"data"} <= set(LAYERS)
+
+
+def test_the_dash_m_entry_point_only_calls_the_command_line():
+    # the one module outside the layers is a door to the top layer, nothing more
+    names = [name for _, name in _imports(PACKAGE / "__main__.py")]
+    assert names and all(_layer(name) == "cli" for name in names), names
 
 
 @pytest.mark.parametrize("path", _modules(), ids=lambda p: str(p.relative_to(PACKAGE)))
