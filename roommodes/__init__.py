@@ -11,9 +11,9 @@ The public API, re-exported here, is what the command-line tool uses:
 
 import os as _os
 
-# BLAS worker threads keep spinning for about 2^28 clock ticks (~0.1 s) after each product
-# unless told otherwise, and hold the cores the numba loops that follow want: measured, an
-# image-solver call with 100 receivers right after a GEMM took 205 ms instead of 150 ms
+# After each product OpenBLAS's worker threads keep spinning for about 2^28 clock ticks (~0.1 s,
+# its default as we recall it) and hold the cores the numba loops that follow want: measured,
+# an image-solver call with 100 receivers right after a GEMM took 205 ms instead of 150 ms
 # (roommodes.solvers.threads). 2^22 ticks (~1.4 ms) keeps them awake through a run of
 # products. OpenBLAS reads this once, when numpy loads it: it has no effect when numpy was
 # imported before roommodes, and none when the environment sets it.
