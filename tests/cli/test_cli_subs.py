@@ -19,15 +19,6 @@ def run(*args):
 
 
 @pytest.fixture(scope="module")
-def small_room(tmp_path_factory):
-    """The bundled sofa room with a smaller search (counts 1 and 2, a 0.5 m grid): quick."""
-    text = SOFA.read_text().replace("counts = [1, 2, 4]", "counts = [1, 2]\nstep_m = 0.5")
-    path = tmp_path_factory.mktemp("subs") / "sofa.toml"
-    path.write_text(text)
-    return path
-
-
-@pytest.fixture(scope="module")
 def small_json(small_room):
     res = run("subs", small_room, "--json")
     assert res.exit_code == 0, res.output
